@@ -1,0 +1,69 @@
+import type { Grid } from '../grid.js';
+
+/** Units are labels carried into outputs; the user keeps inputs consistent. */
+export interface Units {
+  length: 'm' | 'ft';
+  time: 's' | 'd';
+}
+
+export interface WellInput {
+  id: string;
+  /** Map coordinates in the raster CRS (already reprojected from pointCrs). */
+  x: number;
+  y: number;
+  /** length^3/time, negative = withdrawal. */
+  rate: number;
+  /** Well-bore radius, length units, when given. */
+  radius?: number;
+  /** Where it came from, for messages: e.g. `wells[2]` or `wells.csv line 4`. */
+  source: string;
+}
+
+export interface ObservationInput {
+  id: string;
+  x: number;
+  y: number;
+  head: number;
+  source: string;
+}
+
+/** One fixed-head group, resolved to cells. */
+export interface FixedHeadInput {
+  name: string;
+  /** Where it came from, for messages: e.g. `fixedHeads[1]`. */
+  source: string;
+  /** Cell indices this entry fixes (before removing inactive cells) and the head at each. */
+  cells: Int32Array;
+  heads: Float64Array;
+}
+
+export interface SolverSettings {
+  method: string;
+  tolerance: number;
+  maxIterations: number;
+  relaxation?: number;
+}
+
+/** A scenario with every raster read, every path resolved and every point in the raster CRS. */
+export interface ModelInput {
+  title: string;
+  units: Units;
+  /** Absolute path of the scenario file (or '<inline>'). */
+  scenarioPath: string;
+  grid: Grid;
+  /** Conductivity per cell; NaN or <= 0 = inactive. */
+  conductivity: Float64Array;
+  /** Thickness per cell, or one number. */
+  thickness: Float64Array | number;
+  anisotropy: number;
+  fixedHeads: FixedHeadInput[];
+  /** Recharge per cell (length/time), or one number. */
+  recharge: Float64Array | number;
+  wells: WellInput[];
+  observations: ObservationInput[];
+  solver: SolverSettings;
+  /** Input files read, for the summary. */
+  inputFiles: string[];
+  /** Non-fatal remarks found while loading. */
+  warnings: string[];
+}
