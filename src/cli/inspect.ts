@@ -1,0 +1,89 @@
+import { CAUTION } from '../caution.js';
+import { cellHeight, cellWidth, crsLabel, gridBounds } from '../grid.js';
+import type { FlowSystem } from '../discretisation/assemble.js';
+import type { ModelInput } from '../scenario/types.js';
+
+export interface InspectReport {
+  title: string;
+  scenario: string;
+  grid: { nx: number; ny: number; dx: number; dy: number; crs: string; bounds: { minX: number; minY: number; maxX: number; maxY: number } };
+  cells: { total: number; active: number; inactive: number; fixedHead: number; unknowns: number; regions: number };
+  fixedHeads: Array<{ name: string; cells: number; ignoredOnInactive: number }>;
+  conductivity: { min: number; max: number };
+  wells: Array<{ id: string; row: number; col: number; rate: number }>;
+  observations: number;
+  solver: { method: string; autoChoice: string; tolerance: number; maxIterations: number };
+  inputFiles: string[];
+  warnings: string[];
+  caution: string;
+}
+
+export function inspectReport(model: ModelInput, system: FlowSystem, autoChoice: string): InspectReport {
+  const { grid } = model;
+  let kMin = Infinity, kMax = -Infinity;
+  for (let p = 0; p < system.active.length; p++) {
+    if (!system.active[p]) continue;
+    const k = model.conductivity[p]!;
+    if (k < kMin) kMin = k;
+    if (k > kMax) kMax = k;
+  }
+  const groupCells = system.groups.map(() => 0);
+  for (let p = 0; p < system.fixedGroup.length; p++) {
+    const g = system.fixedGroup[p]!;
+    if (g >= 0) groupCells[g]!++;
+  }
+  const warnings = [...model.warnings];
+  system.counts.fixedOnInactive.forEach((count, g) => {
+    if (count > 0) warnings.push(`${count} fixed-head cell(s) of "${system.groups[g]}" fall on inactive cells and will be ignored`);
+  });
+  return {
+    title: model.title,
+    scenario: model.scenarioPath,
+    grid: { nx: grid.nx, ny: grid.ny, dx: cellWidth(grid), dy: cellHeight(grid), crs: crsLabel(grid.crs), bounds: gridBounds(grid) },
+    cells: {
+      total: system.counts.cells,
+      active: system.counts.active,
+      inactive: system.counts.cells - system.counts.active,
+      fixedHead: system.counts.fixed,
+      unknowns: system.counts.unknowns,
+      regions: system.counts.regions,
+    },
+    fixedHeads: system.groups.map((name, g) => ({ name, cells: groupCells[g]!, ignoredOnInactive: system.counts.fixedOnInactive[g]! })),
+    conductivity: { min: kMin, max: kMax },
+    wells: model.wells.map((w, k) => {
+      const p = system.wellCells[k]!;
+      return { id: w.id, row: Math.floor(p / grid.nx), col: p % grid.nx, rate: w.rate };
+    }),
+    observations: model.observations.length,
+    solver: { method: model.solver.method, autoChoice, tolerance: model.solver.tolerance, maxIterations: model.solver.maxIterations },
+    inputFiles: model.inputFiles,
+    warnings,
+    caution: CAUTION,
+  };
+}
+
+export function formatInspect(r: InspectReport): string {
+  const L = (n: number) => n.toLocaleString('en-US');
+  const out: string[] = [];
+  out.push(`piezomap inspect: ${r.title}`);
+  out.push(`Grid         ${r.grid.nx} x ${r.grid.ny} cells of ${r.grid.dx} x ${r.grid.dy}, ${r.grid.crs}`);
+  out.push(`Extent       x ${r.grid.bounds.minX} to ${r.grid.bounds.maxX}, y ${r.grid.bounds.minY} to ${r.grid.bounds.maxY}`);
+  out.push(
+    `Cells        ${L(r.cells.active)} active (${L(r.cells.inactive)} inactive), ${L(r.cells.fixedHead)} fixed-head, ` +
+      `${L(r.cells.unknowns)} unknowns in ${r.cells.regions} connected region(s)`,
+  );
+  out.push(`Conductivity ${r.conductivity.min.toPrecision(4)} to ${r.conductivity.max.toPrecision(4)} on active cells`);
+  for (const f of r.fixedHeads) {
+    out.push(`Fixed head   ${f.name}: ${L(f.cells)} cells${f.ignoredOnInactive ? ` (${L(f.ignoredOnInactive)} on inactive cells ignored)` : ''}`);
+  }
+  for (const w of r.wells) out.push(`Well         ${w.id}: row ${w.row}, col ${w.col}, rate ${w.rate}`);
+  out.push(`Observations ${r.observations}`);
+  out.push(
+    `Solver       ${r.solver.method}${r.solver.method === 'auto' ? ` (would use ${r.solver.autoChoice})` : ''}, tolerance ${r.solver.tolerance}, at most ${L(r.solver.maxIterations)} iterations`,
+  );
+  out.push(`Inputs       ${r.inputFiles.join(', ')}`);
+  for (const w of r.warnings) out.push(`warning: ${w}`);
+  out.push('');
+  out.push(r.caution);
+  return out.join('\n') + '\n';
+}

@@ -1,0 +1,215 @@
+/**
+ * The command-line shell: parse arguments, call the library, format its result, return an exit code.
+ * Exit codes (../shared/spec/interface.md): 0 done, 2 bad input or usage, 3 solver did not reach the tolerance, 1 anything else.
+ */
+import { existsSync, rmSync } from 'node:fs';
+import { dirname, resolve } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { Command, CommanderError, Option } from 'commander';
+import { PiezomapError, describeThrown, exitCodeFor } from '../errors.js';
+import { VERSION } from '../version.js';
+import { CAUTION } from '../caution.js';
+import { loadScenario } from '../scenario/load.js';
+import { assembleSystem } from '../discretisation/assemble.js';
+import { locateObservations } from '../analysis/points.js';
+import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
+import { solveModel, writeSolveResults, prepareResultFolder, resultProblem, type RunOptions } from '../pipeline.js';
+import { formatSummary } from '../output/summary.js';
+import { removeTemporaryFilesSync } from '../output/resultFolder.js';
+import { formatInspect, inspectReport } from './inspect.js';
+import { makeProgress, clearProgress } from './progress.js';
+
+interface CommonFlags {
+  json?: boolean;
+  quiet?: boolean;
+  debug?: boolean;
+}
+
+interface SolveFlags extends CommonFlags {
+  out?: string;
+  method?: string;
+  tolerance?: number;
+  maxIterations?: number;
+  relaxation?: number;
+  overwrite?: boolean;
+}
+
+export interface CliIO {
+  stdout: (text: string) => void;
+  stderr: (text: string) => void;
+}
+
+const defaultIO: CliIO = {
+  stdout: (t) => process.stdout.write(t),
+  stderr: (t) => process.stderr.write(t),
+};
+
+/** The bundled demo scenario (data/valley.json beside the package). */
+export function demoScenarioPath(): string {
+  // dist/src/cli/main.js or src/cli/main.ts -> package root
+  const here = dirname(fileURLToPath(import.meta.url));
+  const candidates = [resolve(here, '../../data/valley.json'), resolve(here, '../../../data/valley.json')];
+  return candidates.find((c) => existsSync(c)) ?? candidates[0]!;
+}
+
+function positiveNumber(name: string) {
+  return (value: string): number => {
+    const v = Number(value);
+    if (!Number.isFinite(v) || v <= 0) throw new PiezomapError('usage', `${name} must be a positive number, got "${value}"`);
+    return v;
+  };
+}
+
+function positiveInteger(name: string) {
+  return (value: string): number => {
+    const v = Number(value);
+    if (!Number.isInteger(v) || v <= 0) throw new PiezomapError('usage', `${name} must be a positive whole number, got "${value}"`);
+    return v;
+  };
+}
+
+function addCommon(cmd: Command): Command {
+  return cmd
+    .option('--json', 'print the machine-readable summary on stdout instead of the human one')
+    .option('--quiet', 'no progress on stderr')
+    .option('--debug', 'show stack traces for errors');
+}
+
+function addSolverOptions(cmd: Command): Command {
+  return cmd
+    .addOption(new Option('--method <name>', `solver method (overrides the scenario): auto, ${solverMethodNames().join(', ')}`))
+    .option('--tolerance <number>', 'relative residual to reach (overrides the scenario)', positiveNumber('--tolerance'))
+    .option('--max-iterations <n>', 'iteration cap (overrides the scenario)', positiveInteger('--max-iterations'))
+    .option('--relaxation <omega>', 'relaxation factor for SOR (default: chosen automatically)', positiveNumber('--relaxation'))
+    .option('--overwrite', 'replace results already in the output folder');
+}
+
+async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  if (flags.method && flags.method !== 'auto' && !solverMethodNames().includes(flags.method)) {
+    throw new PiezomapError('usage', `unknown solver method "${flags.method}"`, { hint: `choose one of: auto, ${solverMethodNames().join(', ')}` });
+  }
+  const progress = makeProgress(Boolean(flags.quiet));
+  const options: RunOptions = { onProgress: progress };
+  if (flags.method) options.method = flags.method;
+  if (flags.tolerance !== undefined) options.tolerance = flags.tolerance;
+  if (flags.maxIterations !== undefined) options.maxIterations = flags.maxIterations;
+  if (flags.relaxation !== undefined) options.relaxation = flags.relaxation;
+
+  const t0 = performance.now();
+  progress?.({ stage: 'load', message: `reading ${scenario}` });
+  const { model } = await loadScenario(scenario);
+  const timings: Record<string, number> = { load: (performance.now() - t0) / 1000 };
+  // Check the output folder before the long work.
+  await prepareResultFolder(outDir, Boolean(flags.overwrite));
+  const result = solveModel(model, options, timings);
+  progress?.({ stage: 'write', message: `writing results to ${outDir}` });
+  const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite) });
+  clearProgress();
+  const problem = resultProblem(result);
+  if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');
+  else io.stdout(formatSummary(summary, outDir));
+  if (problem) {
+    io.stderr(`piezomap: ${problem.describe()}\n  no head.tif was written; diagnostics are in ${outDir}\n`);
+    return exitCodeFor(problem);
+  }
+  return 0;
+}
+
+async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Promise<number> {
+  const { model } = await loadScenario(scenario);
+  const system = assembleSystem(model);
+  locateObservations(system, model.observations);
+  const report = inspectReport(model, system, chooseAutoMethod(system.operator));
+  io.stdout(flags.json ? JSON.stringify(report, null, 2) + '\n' : formatInspect(report));
+  return 0;
+}
+
+export function buildProgram(io: CliIO, setExit: (code: number) => void): Command {
+  const program = new Command();
+  program
+    .name('piezomap')
+    .description(
+      'Steady confined groundwater heads, drawdown and water budgets from GeoTIFF rasters and a JSON scenario file.\n' + CAUTION,
+    )
+    .version(VERSION, '--version', 'print the version')
+    .showHelpAfterError('(run with --help for usage)')
+    .configureOutput({ writeOut: io.stdout, writeErr: io.stderr })
+    .exitOverride();
+
+  const run = (fn: () => Promise<number>) => async () => {
+    setExit(await fn());
+  };
+
+  addSolverOptions(
+    addCommon(
+      program
+        .command('solve')
+        .description('solve the baseline of a scenario and write head.tif, budget.csv, summary.json into OUTDIR')
+        .argument('<scenario>', 'scenario JSON file')
+        .requiredOption('-o, --out <dir>', 'result folder'),
+    ),
+  ).action(async (scenario: string, flags: SolveFlags) => {
+    await run(() => runSolve(scenario, flags.out!, flags, io))();
+  });
+
+  addCommon(
+    program.command('inspect').description('load and validate a scenario; print the grid, counts and warnings; solve nothing').argument('<scenario>', 'scenario JSON file'),
+  ).action(async (scenario: string, flags: CommonFlags) => {
+    await run(() => runInspect(scenario, flags, io))();
+  });
+
+  addSolverOptions(
+    addCommon(
+      program
+        .command('demo')
+        .description('solve the bundled demo scenario (data/valley.json)')
+        .option('-o, --out <dir>', 'result folder', 'piezomap-demo'),
+    ),
+  ).action(async (flags: SolveFlags) => {
+    // The demo owns its default folder: rerunning it replaces the earlier demo results.
+    const overwrite = flags.overwrite ?? flags.out === 'piezomap-demo';
+    await run(() => runSolve(demoScenarioPath(), flags.out!, { ...flags, overwrite }, io))();
+  });
+
+  return program;
+}
+
+/** Run the CLI; resolves to the exit code. */
+export async function main(argv: string[], io: CliIO = defaultIO): Promise<number> {
+  let exitCode = 0;
+  const program = buildProgram(io, (code) => {
+    exitCode = code;
+  });
+  const debug = argv.includes('--debug');
+  try {
+    await program.parseAsync(argv, { from: 'user' });
+    return exitCode;
+  } catch (error) {
+    clearProgress();
+    if (error instanceof CommanderError) {
+      if (error.code === 'commander.helpDisplayed' || error.code === 'commander.version' || error.code === 'commander.help') return 0;
+      return 2;
+    }
+    if (error instanceof PiezomapError) {
+      io.stderr(`piezomap: ${error.describe()}\n`);
+      if (debug && error.stack) io.stderr(error.stack + '\n');
+      return exitCodeFor(error);
+    }
+    io.stderr(`piezomap: internal error: ${describeThrown(error)}\n`);
+    if (debug && error instanceof Error && error.stack) io.stderr(error.stack + '\n');
+    else io.stderr('  (run with --debug for details)\n');
+    return 1;
+  }
+}
+
+/** Signal handling for the process entry point: remove temporary files, say so, exit. */
+export function installSignalHandlers(): void {
+  for (const signal of ['SIGINT', 'SIGTERM'] as const) {
+    process.on(signal, () => {
+      removeTemporaryFilesSync(rmSync);
+      process.stderr.write(`\npiezomap: interrupted by ${signal}; no result files were completed, temporary files removed\n`);
+      process.exit(signal === 'SIGINT' ? 130 : 143);
+    });
+  }
+}
+

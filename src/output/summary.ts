@@ -1,0 +1,178 @@
+import { CAUTION } from '../caution.js';
+import { cellHeight, cellWidth, crsLabel } from '../grid.js';
+import type { SolveResult } from '../pipeline.js';
+import type { WaterBudget } from '../analysis/budget.js';
+
+/** Round to 12 significant digits so files are stable and readable (float noise beyond that is meaningless here). */
+export function tidy(v: number): number {
+  return Number.isFinite(v) ? Number(v.toPrecision(12)) : v;
+}
+
+export function headRange(head: Float64Array): { min: number; max: number; mean: number } {
+  let min = Infinity, max = -Infinity, sum = 0, count = 0;
+  for (let p = 0; p < head.length; p++) {
+    const h = head[p]!;
+    if (h === h) {
+      if (h < min) min = h;
+      if (h > max) max = h;
+      sum += h;
+      count++;
+    }
+  }
+  return { min, max, mean: count ? sum / count : NaN };
+}
+
+export interface SummaryJson {
+  title: string;
+  piezomap: string;
+  scenario: string;
+  units: { length: string; time: string };
+  grid: Record<string, unknown>;
+  solver: Record<string, unknown>;
+  budget: { terms: Array<{ term: string; inflow: number; outflow: number }>; totalIn: number; totalOut: number; discrepancyPercent: number };
+  head: { min: number; max: number; mean: number };
+  wells: Array<Record<string, unknown>>;
+  observations: Array<Record<string, unknown>>;
+  warnings: string[];
+  files: string[];
+  timings: Record<string, number>;
+  caution: string;
+  [extra: string]: unknown;
+}
+
+export function buildSummary(result: SolveResult, files: string[], version: string): SummaryJson {
+  const { model, system, stats, budget } = result;
+  const range = headRange(result.head);
+  return {
+    title: model.title,
+    piezomap: version,
+    scenario: model.scenarioPath,
+    units: model.units,
+    grid: {
+      nx: model.grid.nx,
+      ny: model.grid.ny,
+      dx: cellWidth(model.grid),
+      dy: cellHeight(model.grid),
+      crs: crsLabel(model.grid.crs),
+      geotransform: [...model.grid.transform],
+      activeCells: system.counts.active,
+      fixedHeadCells: system.counts.fixed,
+      unknowns: system.counts.unknowns,
+      regions: system.counts.regions,
+    },
+    solver: {
+      method: stats.method,
+      requested: model.solver.method,
+      iterations: stats.iterations,
+      relativeResidual: stats.relativeResidual,
+      converged: stats.converged,
+      stopReason: stats.stopReason,
+      tolerance: model.solver.tolerance,
+      maxIterations: model.solver.maxIterations,
+      criterion: stats.criterion,
+      convergenceFactor: stats.convergenceFactor,
+      spectralRadius: stats.spectralRadius,
+      headDatum: tidy(system.datum),
+      setupSeconds: tidy(stats.setupSeconds),
+      seconds: tidy(stats.solveSeconds),
+      peakMemoryMiB: tidy(result.peakMemoryMiB),
+      notes: stats.notes,
+    },
+    budget: budgetJson(budget),
+    head: { min: tidy(range.min), max: tidy(range.max), mean: tidy(range.mean) },
+    wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, row: w.row, col: w.col, rate: w.rate, cellHead: tidy(w.cellHead) })),
+    observations: result.observations.map((o) => ({
+      id: o.id,
+      x: o.x,
+      y: o.y,
+      row: o.row,
+      col: o.col,
+      simulated: tidy(o.simulated),
+      observed: o.observed,
+      residual: tidy(o.residual),
+    })),
+    warnings: result.warnings,
+    files,
+    timings: Object.fromEntries(Object.entries(result.timings).map(([k, v]) => [k, tidy(v)])),
+    caution: CAUTION,
+  };
+}
+
+export function budgetJson(budget: WaterBudget): SummaryJson['budget'] {
+  return {
+    terms: budget.terms.map((t) => ({ term: t.term, inflow: tidy(t.inflow), outflow: tidy(t.outflow) })),
+    totalIn: tidy(budget.totalIn),
+    totalOut: tidy(budget.totalOut),
+    discrepancyPercent: tidy(budget.discrepancyPercent),
+  };
+}
+
+/** CSV text field: quoted when it holds a comma, quote or line break (RFC 4180). */
+export function csvField(value: string | number): string {
+  const s = String(value);
+  return /[",\r\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
+}
+
+export function budgetCsv(budget: WaterBudget): string {
+  const lines = ['term,inflow,outflow'];
+  for (const t of budget.terms) lines.push(`${csvField(t.term)},${tidy(t.inflow)},${tidy(t.outflow)}`);
+  lines.push(`total,${tidy(budget.totalIn)},${tidy(budget.totalOut)}`);
+  return lines.join('\n') + '\n';
+}
+
+export function convergenceCsv(history: number[]): string {
+  const lines = ['iteration,relative_residual'];
+  history.forEach((r, k) => lines.push(`${k},${r}`));
+  return lines.join('\n') + '\n';
+}
+
+function num(v: number, digits = 4): string {
+  if (!Number.isFinite(v)) return String(v);
+  const a = Math.abs(v);
+  if (a !== 0 && (a >= 1e7 || a < 1e-3)) return v.toExponential(2);
+  return v.toLocaleString('en-US', { maximumFractionDigits: digits, minimumFractionDigits: 0 });
+}
+
+function table(rows: string[][], alignRight: boolean[]): string[] {
+  const widths = rows[0]!.map((_, c) => Math.max(...rows.map((r) => r[c]!.length)));
+  return rows.map((r) => '  ' + r.map((cell, c) => (alignRight[c] ? cell.padStart(widths[c]!) : cell.padEnd(widths[c]!))).join('  ').trimEnd());
+}
+
+/** The human-readable summary printed after `solve`; ends with the caution. */
+export function formatSummary(summary: SummaryJson, outDir: string | null): string {
+  const L = summary.units.length;
+  const T = summary.units.time;
+  const g = summary.grid as { nx: number; ny: number; dx: number; dy: number; crs: string; activeCells: number; fixedHeadCells: number };
+  const s = summary.solver as { method: string; iterations: number; relativeResidual: number; converged: boolean; stopReason: string; seconds: number; setupSeconds: number };
+  const out: string[] = [];
+  out.push(`piezomap: ${summary.title}`);
+  out.push(`Grid     ${g.nx} x ${g.ny} cells of ${num(g.dx)} x ${num(g.dy)} ${L}, ${g.crs}; ${g.activeCells.toLocaleString('en-US')} active, ${g.fixedHeadCells.toLocaleString('en-US')} fixed-head`);
+  out.push(
+    `Solver   ${s.method}: ${s.converged ? 'converged' : `NOT converged (${s.stopReason})`} in ${s.iterations} iterations, ` +
+      `relative residual ${s.relativeResidual.toExponential(2)} (setup ${s.setupSeconds.toFixed(2)} s, solve ${s.seconds.toFixed(2)} s)`,
+  );
+  out.push(`Head     min ${num(summary.head.min, 3)} ${L}, max ${num(summary.head.max, 3)} ${L}`);
+  out.push(`Budget   (${L}³/${T})`);
+  const budgetRows = [['term', 'inflow', 'outflow']];
+  for (const t of summary.budget.terms) budgetRows.push([t.term, num(t.inflow, 2), num(t.outflow, 2)]);
+  budgetRows.push(['total', num(summary.budget.totalIn, 2), num(summary.budget.totalOut, 2)]);
+  out.push(...table(budgetRows, [false, true, true]));
+  out.push(`  discrepancy ${summary.budget.discrepancyPercent.toExponential(2)} %`);
+  if (summary.wells.length) {
+    out.push('Wells');
+    const rows = [['id', 'row', 'col', `rate ${L}³/${T}`, `cell head ${L}`]];
+    for (const w of summary.wells) rows.push([String(w.id), String(w.row), String(w.col), num(w.rate as number, 2), num(w.cellHead as number, 3)]);
+    out.push(...table(rows, [false, true, true, true, true]));
+  }
+  if (summary.observations.length) {
+    out.push('Observations');
+    const rows = [['id', `observed ${L}`, `simulated ${L}`, `residual ${L}`]];
+    for (const o of summary.observations) rows.push([String(o.id), num(o.observed as number, 3), num(o.simulated as number, 3), num(o.residual as number, 3)]);
+    out.push(...table(rows, [false, true, true, true]));
+  }
+  for (const w of summary.warnings) out.push(`warning: ${w}`);
+  if (outDir) out.push(`Results  ${outDir}: ${summary.files.join(', ')}`);
+  out.push('');
+  out.push(summary.caution);
+  return out.join('\n') + '\n';
+}

@@ -1,0 +1,190 @@
+/**
+ * The one-way flow of a run: load -> assemble -> solve -> analyse -> write.
+ * Library users call these steps directly; the CLI only parses arguments and formats what they return.
+ */
+import { readFile } from 'node:fs/promises';
+import { join } from 'node:path';
+import { assembleSystem, headsFromSolution, type FlowSystem } from './discretisation/assemble.js';
+import { waterBudget, type WaterBudget } from './analysis/budget.js';
+import { observationResults, wellResults, locateObservations, type ObservationResult, type WellResult } from './analysis/points.js';
+import { PiezomapError } from './errors.js';
+import { loadScenario } from './scenario/load.js';
+import type { ModelInput } from './scenario/types.js';
+import { createSolver, chooseAutoMethod } from './solvers/registry.js';
+import type { Solver, SolveStats } from './solvers/types.js';
+import { encodeFloat32GeoTiff } from './raster/write.js';
+import { buildSummary, budgetCsv, convergenceCsv, type SummaryJson } from './output/summary.js';
+import { prepareResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './output/resultFolder.js';
+import { CAUTION } from './caution.js';
+import { VERSION } from './version.js';
+
+/** Above this budget discrepancy a run fails loudly even when the residual criterion was met. */
+export const BUDGET_DISCREPANCY_LIMIT_PERCENT = 0.1;
+
+export interface RunOptions {
+  /** Override the scenario's solver settings. */
+  method?: string;
+  tolerance?: number;
+  maxIterations?: number;
+  relaxation?: number;
+  /** Progress of long stages; return false from a solver progress call to stop. */
+  onProgress?: (event: ProgressEvent) => boolean | void;
+}
+
+export type ProgressEvent =
+  | { stage: 'load' | 'assemble' | 'analyse' | 'write'; message: string }
+  | { stage: 'solve'; iteration: number; relativeResidual: number; tolerance: number; maxIterations: number };
+
+export interface SolveResult {
+  model: ModelInput;
+  system: FlowSystem;
+  /** Head per cell, NaN on inactive cells. */
+  head: Float64Array;
+  stats: SolveStats;
+  budget: WaterBudget;
+  wells: WellResult[];
+  observations: ObservationResult[];
+  warnings: string[];
+  /** Wall seconds per stage. */
+  timings: Record<string, number>;
+  peakMemoryMiB: number;
+}
+
+const now = () => performance.now() / 1000;
+
+export function peakMemoryMiB(): number {
+  // resourceUsage().maxRSS is in kilobytes.
+  return process.resourceUsage().maxRSS / 1024;
+}
+
+/** Assemble once; the returned solver can be reused for other right-hand sides on the same operator. */
+export function prepareSolver(system: FlowSystem, model: ModelInput, options: RunOptions = {}): { solver: Solver; setupSeconds: number } {
+  const requested = options.method ?? model.solver.method;
+  const method = requested === 'auto' ? chooseAutoMethod(system.operator) : requested;
+  const relaxation = options.relaxation ?? model.solver.relaxation;
+  const t0 = now();
+  const solver = createSolver(method, system.operator, relaxation === undefined ? {} : { relaxation });
+  return { solver, setupSeconds: now() - t0 };
+}
+
+/** Assemble, solve and analyse a loaded model. Does not throw on non-convergence: check `stats.converged`. */
+export function solveModel(model: ModelInput, options: RunOptions = {}, timings: Record<string, number> = {}): SolveResult {
+  let t = now();
+  options.onProgress?.({ stage: 'assemble', message: 'assembling the flow system' });
+  const system = assembleSystem(model);
+  // Points are checked before the long solve so bad input fails fast.
+  locateObservations(system, model.observations);
+  timings.assemble = now() - t;
+
+  const { solver, setupSeconds } = prepareSolver(system, model, options);
+  t = now();
+  const x = new Float64Array(system.operator.n);
+  const tolerance = options.tolerance ?? model.solver.tolerance;
+  const maxIterations = options.maxIterations ?? model.solver.maxIterations;
+  const stats = solver.solve(system.rhs, x, {
+    tolerance,
+    maxIterations,
+    keepHistory: true,
+    onProgress: (iteration, relativeResidual) =>
+      options.onProgress?.({ stage: 'solve', iteration, relativeResidual, tolerance, maxIterations }),
+  });
+  stats.setupSeconds = setupSeconds;
+  timings.solve = now() - t + setupSeconds;
+
+  t = now();
+  const head = headsFromSolution(system, x);
+  const budget = waterBudget(system, head);
+  const warnings = [...model.warnings];
+  const ignored = system.counts.fixedOnInactive;
+  ignored.forEach((count, g) => {
+    if (count > 0) warnings.push(`${count} fixed-head cell(s) of "${system.groups[g]}" fall on inactive cells and were ignored`);
+  });
+  const result: SolveResult = {
+    model,
+    system,
+    head,
+    stats,
+    budget,
+    wells: wellResults(system, model.wells, head),
+    observations: observationResults(system, model.observations, head),
+    warnings,
+    timings,
+    peakMemoryMiB: peakMemoryMiB(),
+  };
+  timings.analyse = now() - t;
+  return result;
+}
+
+export async function solveScenarioFile(path: string, options: RunOptions = {}): Promise<SolveResult> {
+  const timings: Record<string, number> = {};
+  const t = now();
+  options.onProgress?.({ stage: 'load', message: `reading ${path}` });
+  const { model } = await loadScenario(path);
+  timings.load = now() - t;
+  return solveModel(model, options, timings);
+}
+
+/** Why a finished solve must not be presented as a result, or null when it is sound. */
+export function resultProblem(result: SolveResult): PiezomapError | null {
+  const { stats, budget } = result;
+  if (!stats.converged) {
+    const factor = stats.convergenceFactor ?? stats.spectralRadius;
+    const note = stats.notes.length ? `\n  ${stats.notes.join('\n  ')}` : '';
+    return new PiezomapError(
+      'solver',
+      `solver ${stats.method} did not reach the tolerance (${stats.stopReason}): relative residual ${stats.relativeResidual.toExponential(2)} after ${stats.iterations} iterations` +
+        (factor !== null && factor !== undefined ? `, convergence factor ${factor.toFixed(6)}` : '') +
+        note,
+      { hint: 'try solver.method "auto" or "pcg-multigrid", or raise solver.maxIterations' },
+    );
+  }
+  if (Math.abs(budget.discrepancyPercent) > BUDGET_DISCREPANCY_LIMIT_PERCENT) {
+    return new PiezomapError(
+      'solver',
+      `water budget does not close: discrepancy ${budget.discrepancyPercent.toFixed(4)} % exceeds ${BUDGET_DISCREPANCY_LIMIT_PERCENT} % although the residual criterion was met`,
+      { hint: 'tighten solver.tolerance (e.g. 1e-10)' },
+    );
+  }
+  return null;
+}
+
+/** Result files of one solve, as bytes; `head.tif` only for a sound result. */
+export function resultFiles(result: SolveResult, prefix = ''): OutputFile[] {
+  const sound = resultProblem(result) === null;
+  const files: OutputFile[] = [];
+  const description = `piezomap ${VERSION} head (${result.model.units.length}): ${result.model.title}. ${CAUTION}`;
+  const headBytes = encodeFloat32GeoTiff(result.model.grid, result.head, { nodata: -9999, description });
+  files.push({ name: prefix + (sound ? 'head.tif' : 'head-not-converged.tif'), bytes: headBytes });
+  files.push({ name: prefix + 'budget.csv', bytes: budgetCsv(result.budget) });
+  files.push({ name: prefix + 'convergence.csv', bytes: convergenceCsv(result.stats.history) });
+  return files;
+}
+
+/**
+ * Write the result folder of one solve. Refuses a folder holding earlier results unless `overwrite`.
+ * Returns the summary that was written.
+ */
+export async function writeSolveResults(result: SolveResult, outDir: string, options: { overwrite?: boolean } = {}): Promise<SummaryJson> {
+  const t = now();
+  const previous = await previousResultFiles(outDir);
+  const files = resultFiles(result);
+  const names = [...files.map((f) => f.name), RESULT_MARKER];
+  result.timings.write = now() - t;
+  const summary = buildSummary(result, names, VERSION);
+  files.push({ name: RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
+  await writeResultFiles(outDir, files, options.overwrite ? previous : []);
+  return summary;
+}
+
+export { prepareResultFolder };
+
+/** Files listed by an earlier summary.json in the folder (removed on overwrite so old and new never mix). */
+export async function previousResultFiles(outDir: string): Promise<string[]> {
+  try {
+    const text = await readFile(join(outDir, RESULT_MARKER), 'utf8');
+    const files = (JSON.parse(text) as { files?: unknown }).files;
+    return Array.isArray(files) ? files.filter((f): f is string => typeof f === 'string' && !f.includes('..')) : [];
+  } catch {
+    return [];
+  }
+}
