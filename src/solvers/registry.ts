@@ -1,0 +1,73 @@
+import { PiezomapError } from '../errors.js';
+import { PcgSolver } from './pcg.js';
+import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
+import { StationarySolver } from './stationary.js';
+import type { Preconditioner, Solver, SolverConfig, SolverFactory, StencilOperator } from './types.js';
+
+/** Wraps a preconditioner constructor as a PCG factory that times the setup. */
+function pcgFactory(method: string, build: ((op: StencilOperator, config: SolverConfig) => Preconditioner) | null): SolverFactory {
+  return (op, config) => {
+    const t0 = performance.now();
+    const preconditioner = build ? build(op, config) : null;
+    return new PcgSolver(method, op, preconditioner, (performance.now() - t0) / 1000);
+  };
+}
+
+/** Every solver method by the name users give in `solver.method`. */
+export const solverRegistry: Record<string, { factory: SolverFactory; description: string }> = {
+  jacobi: {
+    factory: (op) => new StationarySolver('jacobi', op, 'jacobi', undefined),
+    description: 'Jacobi iteration (classical; slow on large grids, reports its spectral radius)',
+  },
+  'gauss-seidel': {
+    factory: (op) => new StationarySolver('gauss-seidel', op, 'gauss-seidel', undefined),
+    description: 'Gauss-Seidel iteration, lexicographic order (classical; reports its spectral radius)',
+  },
+  sor: {
+    factory: (op, config) => new StationarySolver('sor', op, 'sor', config.relaxation),
+    description:
+      'successive over-relaxation, red-black order; relaxation factor given or optimal from the estimated Jacobi spectral radius (Young 1950)',
+  },
+  cg: {
+    factory: pcgFactory('cg', null),
+    description: 'conjugate gradient without preconditioner',
+  },
+  'pcg-jacobi': {
+    factory: pcgFactory('pcg-jacobi', (op) => new JacobiPreconditioner(op)),
+    description: 'conjugate gradient with diagonal (Jacobi) preconditioner',
+  },
+  'pcg-ssor': {
+    factory: pcgFactory('pcg-ssor', (op, config) => new SsorPreconditioner(op, config.relaxation ?? 1)),
+    description: 'conjugate gradient with symmetric Gauss-Seidel (SSOR) preconditioner',
+  },
+  'pcg-ic0': {
+    factory: pcgFactory('pcg-ic0', (op) => new IncompleteCholeskyPreconditioner(op)),
+    description: 'conjugate gradient with incomplete Cholesky IC(0) preconditioner',
+  },
+};
+
+/**
+ * The method `auto` stands for, chosen from the operator alone.
+ * Rule: incomplete-Cholesky CG (robust for any SPD five-point system; no hierarchy to build).
+ */
+export function chooseAutoMethod(_op: StencilOperator): string {
+  return 'pcg-ic0';
+}
+
+/** All names accepted by createSolver, `auto` included. */
+export function solverMethodNames(): string[] {
+  return ['auto', ...Object.keys(solverRegistry)];
+}
+
+/** Builds the solver named `method` for `op` (setup work happens here); `auto` resolves via chooseAutoMethod. */
+export function createSolver(method: string, op: StencilOperator, config: SolverConfig = {}): Solver {
+  const name = method === 'auto' ? chooseAutoMethod(op) : method;
+  const entry = Object.prototype.hasOwnProperty.call(solverRegistry, name) ? solverRegistry[name] : undefined;
+  if (!entry) {
+    throw new PiezomapError('usage', `unknown solver method "${method}"`, {
+      key: 'solver.method',
+      hint: `use one of: ${solverMethodNames().join(', ')}`,
+    });
+  }
+  return entry.factory(op, config);
+}
