@@ -1,0 +1,329 @@
+/**
+ * Head and drawdown contours: levels at a round interval, lines traced by d3-contour, GeoJSON out.
+ *
+ * How inactive cells are kept from making false lines. d3-contour traces, for each level L, the rings that
+ * bound the region {value >= L} on the grid of cell centres, treating NaN (inactive) and everything outside
+ * the raster as below every level. Those rings are the true isoline plus pieces that run along the edge of
+ * the data (inactive cells, raster border). We ask d3-contour for the rings without its smoothing, so every
+ * ring vertex still sits on the midpoint between two neighbouring cell centres, and keep a vertex only when
+ * both of those cells are active (a genuine crossing of L between two heads); a ring is cut wherever it
+ * touches a vertex with an inactive or outside cell. The genuine vertices are then placed by linear
+ * interpolation between the two heads, as d3-contour's own smoothing does. Consequence: lines stop up to one
+ * cell short of inactive areas and of the raster border, and never trace the outline of a hole.
+ *
+ * Coordinates: d3-contour's unit is one cell and a cell's value sits at its centre, (col + 0.5, row + 0.5);
+ * so a point (u, v) in that space maps to x = originX + u * pixelWidth, y = originY + v * pixelHeight.
+ */
+import { contours as d3Contours } from 'd3-contour';
+import type { Grid } from '../grid.js';
+import { inputError } from '../errors.js';
+
+/** A polyline in map coordinates of the raster CRS: [x0, y0, x1, y1, ...]. Closed lines repeat the first point. */
+export type Polyline = Float64Array;
+
+export interface ContourLevel {
+  level: number;
+  lines: Polyline[];
+}
+
+export interface ContourSet {
+  /** Every level asked for, in ascending order; a level may have no lines. */
+  levels: ContourLevel[];
+  /** Spacing between levels when they are evenly spaced, else null. */
+  interval: number | null;
+}
+
+export interface ContourOptions {
+  /** Spacing between levels (> 0). Default: automatic round interval, see `roundInterval`. */
+  interval?: number;
+  /** Explicit levels; overrides `interval`. */
+  levels?: readonly number[];
+  /** Levels are multiples of `interval` offset by `base`. Default 0. */
+  base?: number;
+}
+
+/** Steps tried for an automatic interval, times a power of ten. */
+const ROUND_STEPS = [1, 2, 2.5, 5] as const;
+const MAX_AUTO_LEVELS = 25;
+
+/**
+ * The smallest round interval (1, 2, 2.5 or 5 times a power of ten) that gives at most 25 levels across
+ * [min, max]; since consecutive round steps differ by at most 2.5x, that gives about 10 to 25 levels.
+ * Returns null when the range is empty or not finite.
+ */
+export function roundInterval(min: number, max: number): number | null {
+  const range = max - min;
+  if (!Number.isFinite(range) || range <= 0) return null;
+  let power = Math.pow(10, Math.floor(Math.log10(range / MAX_AUTO_LEVELS)) - 1);
+  for (;;) {
+    for (const step of ROUND_STEPS) {
+      const interval = step * power;
+      if (countLevels(min, max, interval, 0) <= MAX_AUTO_LEVELS) return interval;
+    }
+    power *= 10;
+  }
+}
+
+/** Multiples of `interval` (offset by `base`) strictly between min and max, ascending. */
+export function contourLevels(min: number, max: number, interval: number, base = 0): number[] {
+  if (!(interval > 0) || !Number.isFinite(interval)) {
+    throw inputError(`contour interval must be a positive number, got ${interval}`, {
+      key: 'contours.interval',
+      hint: 'give a spacing in head units, e.g. 0.5',
+    });
+  }
+  const levels: number[] = [];
+  if (!(max > min)) return levels;
+  const first = Math.floor((min - base) / interval) + 1;
+  const last = Math.ceil((max - base) / interval) - 1;
+  for (let k = first; k <= last; k++) {
+    // Round to the interval's own decimals so that 0.1 * 3 prints and compares as 0.3.
+    const level = roundTo(base + k * interval, decimalsOf(interval) + decimalsOf(base));
+    if (level > min && level < max) levels.push(level);
+  }
+  return levels;
+}
+
+function countLevels(min: number, max: number, interval: number, base: number): number {
+  return Math.max(0, Math.ceil((max - base) / interval) - 1 - Math.floor((min - base) / interval));
+}
+
+/** Number of decimals a round number needs to print exactly (0..9). */
+export function decimalsOf(value: number): number {
+  for (let d = 0; d < 9; d++) {
+    const scaled = value * Math.pow(10, d);
+    if (Math.abs(scaled - Math.round(scaled)) < 1e-7 * Math.max(1, Math.abs(scaled))) return d;
+  }
+  return 9;
+}
+
+function roundTo(value: number, decimals: number): number {
+  const f = Math.pow(10, decimals);
+  return Math.round(value * f) / f;
+}
+
+/** Finite minimum and maximum of a field, ignoring NaN; null when no value is finite. */
+export function finiteRange(values: Float64Array): { min: number; max: number } | null {
+  let min = Infinity;
+  let max = -Infinity;
+  for (let p = 0; p < values.length; p++) {
+    const v = values[p]!;
+    if (v < min) min = v;
+    if (v > max) max = v;
+  }
+  return min <= max ? { min, max } : null;
+}
+
+/**
+ * Contour lines of a cell-centred field (head or drawdown; NaN = inactive) in the raster's map coordinates.
+ * Levels: `options.levels`, else multiples of `options.interval`, else an automatic round interval.
+ */
+export function contourField(grid: Grid, values: Float64Array, options: ContourOptions = {}): ContourSet {
+  const { nx, ny } = grid;
+  if (values.length !== nx * ny) {
+    throw inputError(`contour field has ${values.length} values, the grid has ${nx * ny} cells`, {
+      hint: 'pass one value per cell, row-major',
+    });
+  }
+  const range = finiteRange(values);
+  let levels: number[];
+  let interval: number | null = null;
+  if (options.levels) {
+    levels = [...options.levels].filter((l) => Number.isFinite(l)).sort((a, b) => a - b);
+  } else if (!range) {
+    levels = [];
+  } else {
+    interval = options.interval ?? roundInterval(range.min, range.max);
+    levels = interval === null ? [] : contourLevels(range.min, range.max, interval, options.base ?? 0);
+  }
+  const generator = d3Contours().size([nx, ny]).smooth(false);
+  const array = values as unknown as number[];
+  const result: ContourLevel[] = [];
+  for (const level of levels) {
+    const lines: Polyline[] = [];
+    if (range && level >= range.min && level <= range.max) {
+      const shape = generator.contour(array, level);
+      for (const polygon of shape.coordinates) {
+        for (const ring of polygon) collectGenuineRuns(grid, values, level, ring as number[][], lines);
+      }
+    }
+    result.push({ level, lines });
+  }
+  return { levels: result, interval };
+}
+
+/**
+ * Split one d3-contour ring into runs of genuine crossings and append each run (2+ points) to `out`
+ * as a map-coordinate polyline. A ring with no boundary vertex stays one closed line.
+ */
+function collectGenuineRuns(grid: Grid, values: Float64Array, level: number, ring: number[][], out: Polyline[]): void {
+  // d3 rings repeat the first point at the end; work on the distinct vertices.
+  const n = ring.length - 1;
+  if (n < 2) return;
+  const xs = new Float64Array(n);
+  const ys = new Float64Array(n);
+  const genuine = new Uint8Array(n);
+  let firstBoundary = -1;
+  for (let k = 0; k < n; k++) {
+    const point = ring[k]!;
+    if (placeVertex(grid, values, level, point[0]!, point[1]!, xs, ys, k)) genuine[k] = 1;
+    else if (firstBoundary < 0) firstBoundary = k;
+  }
+  if (firstBoundary < 0) {
+    const line = new Float64Array(2 * (n + 1));
+    for (let k = 0; k < n; k++) {
+      line[2 * k] = xs[k]!;
+      line[2 * k + 1] = ys[k]!;
+    }
+    line[2 * n] = xs[0]!;
+    line[2 * n + 1] = ys[0]!;
+    out.push(line);
+    return;
+  }
+  // Walk once round the ring starting just after a boundary vertex, so no run is split at the seam.
+  let runStart = -1;
+  for (let step = 1; step <= n; step++) {
+    const k = (firstBoundary + step) % n;
+    if (genuine[k]) {
+      if (runStart < 0) runStart = step;
+    } else if (runStart >= 0) {
+      pushRun(xs, ys, n, firstBoundary, runStart, step, out);
+      runStart = -1;
+    }
+  }
+}
+
+function pushRun(xs: Float64Array, ys: Float64Array, n: number, origin: number, from: number, to: number, out: Polyline[]): void {
+  const count = to - from;
+  if (count < 2) return;
+  const line = new Float64Array(2 * count);
+  for (let s = 0; s < count; s++) {
+    const k = (origin + from + s) % n;
+    line[2 * s] = xs[k]!;
+    line[2 * s + 1] = ys[k]!;
+  }
+  out.push(line);
+}
+
+/**
+ * Place a ring vertex given in d3-contour's cell space. Vertices sit on the midpoint between two cell
+ * centres: (X, r + 0.5) between cells (r, X-1) and (r, X); (c + 0.5, Y) between cells (Y-1, c) and (Y, c).
+ * Returns false (boundary vertex) when either cell is outside the raster or inactive.
+ */
+function placeVertex(
+  grid: Grid,
+  values: Float64Array,
+  level: number,
+  u: number,
+  v: number,
+  xs: Float64Array,
+  ys: Float64Array,
+  k: number,
+): boolean {
+  const { nx, ny, transform: t } = grid;
+  let a: number;
+  let b: number;
+  let uu = u;
+  let vv = v;
+  if (Number.isInteger(u)) {
+    const row = Math.floor(v);
+    if (u <= 0 || u >= nx || row < 0 || row >= ny) return false;
+    a = values[row * nx + u - 1]!;
+    b = values[row * nx + u]!;
+    if (!Number.isFinite(a) || !Number.isFinite(b)) return false;
+    uu = u - 0.5 + crossing(a, b, level);
+  } else {
+    const col = Math.floor(u);
+    if (v <= 0 || v >= ny || col < 0 || col >= nx) return false;
+    a = values[(v - 1) * nx + col]!;
+    b = values[v * nx + col]!;
+    if (!Number.isFinite(a) || !Number.isFinite(b)) return false;
+    vv = v - 0.5 + crossing(a, b, level);
+  }
+  xs[k] = t[0] + uu * t[1];
+  ys[k] = t[3] + vv * t[5];
+  return true;
+}
+
+/** Fraction of the way from a to b where the level is crossed (linear interpolation; 0.5 if a == b). */
+function crossing(a: number, b: number, level: number): number {
+  const d = b - a;
+  if (d === 0) return 0.5;
+  const f = (level - a) / d;
+  return f < 0 ? 0 : f > 1 ? 1 : f;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// GeoJSON
+
+export interface GeoJsonOptions {
+  /** What the field is; goes into each feature's `quantity` property. */
+  quantity: 'head' | 'drawdown';
+  /** Length unit label of the levels (e.g. "m"). */
+  units: string;
+  /**
+   * Map (raster CRS) -> WGS 84 longitude/latitude, for RFC 7946 output. When omitted, coordinates stay in the
+   * raster CRS and the collection says so in its `coordinateSystem` member (then it is not RFC 7946 GeoJSON:
+   * write it under a name that says so, e.g. `head-contours.native.geojson`).
+   */
+  toLonLat?: (x: number, y: number) => { x: number; y: number };
+  /** Label of the raster CRS for native output, e.g. "EPSG:32633". */
+  crsLabel?: string;
+  /** Decimals kept in coordinates. Default 7 for lon/lat (about 1 cm), 3 for native coordinates. */
+  decimals?: number;
+}
+
+export interface GeoJsonFeatureCollection {
+  type: 'FeatureCollection';
+  [member: string]: unknown;
+  features: GeoJsonFeature[];
+}
+
+export interface GeoJsonFeature {
+  type: 'Feature';
+  properties: { level: number; quantity: string; units: string; interval: number | null };
+  geometry: { type: 'LineString'; coordinates: number[][] } | { type: 'MultiLineString'; coordinates: number[][][] };
+}
+
+/**
+ * One Feature per level that has lines (LineString for one line, MultiLineString for several), properties
+ * `level`, `quantity`, `units`, `interval`. With `toLonLat`: RFC 7946 (WGS 84, lon/lat order, no `crs` member).
+ */
+export function contoursToGeoJson(set: ContourSet, options: GeoJsonOptions): GeoJsonFeatureCollection {
+  const project = options.toLonLat;
+  const decimals = options.decimals ?? (project ? 7 : 3);
+  const features: GeoJsonFeature[] = [];
+  for (const { level, lines } of set.levels) {
+    const parts: number[][][] = [];
+    for (const line of lines) {
+      const coords: number[][] = [];
+      for (let k = 0; k < line.length; k += 2) {
+        let x = line[k]!;
+        let y = line[k + 1]!;
+        if (project) {
+          const p = project(x, y);
+          x = p.x;
+          y = p.y;
+        }
+        const point = [roundTo(x, decimals), roundTo(y, decimals)];
+        const last = coords[coords.length - 1];
+        // Rounding can merge neighbouring vertices; RFC 7946 LineStrings need two or more distinct positions.
+        if (!last || last[0] !== point[0] || last[1] !== point[1]) coords.push(point);
+      }
+      if (coords.length >= 2) parts.push(coords);
+    }
+    if (parts.length === 0) continue;
+    const properties = { level, quantity: options.quantity, units: options.units, interval: set.interval };
+    features.push(
+      parts.length === 1
+        ? { type: 'Feature', properties, geometry: { type: 'LineString', coordinates: parts[0]! } }
+        : { type: 'Feature', properties, geometry: { type: 'MultiLineString', coordinates: parts } },
+    );
+  }
+  const collection: GeoJsonFeatureCollection = { type: 'FeatureCollection', features };
+  if (!project) {
+    collection['coordinateSystem'] =
+      `${options.crsLabel ?? 'raster CRS'} (the raster's own coordinates, not WGS 84: not RFC 7946 GeoJSON; assign this CRS when loading)`;
+  }
+  return collection;
+}
