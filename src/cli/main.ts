@@ -77,7 +77,7 @@ function addCommon(cmd: Command): Command {
 
 function addSolverOptions(cmd: Command): Command {
   return cmd
-    .addOption(new Option('--method <name>', `solver method (overrides the scenario): auto, ${solverMethodNames().join(', ')}`))
+    .addOption(new Option('--method <name>', `solver method (overrides the scenario): ${solverMethodNames().join(', ')}`))
     .option('--tolerance <number>', 'relative residual to reach (overrides the scenario)', positiveNumber('--tolerance'))
     .option('--max-iterations <n>', 'iteration cap (overrides the scenario)', positiveInteger('--max-iterations'))
     .option('--relaxation <omega>', 'relaxation factor for SOR (default: chosen automatically)', positiveNumber('--relaxation'))
@@ -85,8 +85,8 @@ function addSolverOptions(cmd: Command): Command {
 }
 
 async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
-  if (flags.method && flags.method !== 'auto' && !solverMethodNames().includes(flags.method)) {
-    throw new PiezomapError('usage', `unknown solver method "${flags.method}"`, { hint: `choose one of: auto, ${solverMethodNames().join(', ')}` });
+  if (flags.method && !solverMethodNames().includes(flags.method)) {
+    throw new PiezomapError('usage', `unknown solver method "${flags.method}"`, { hint: `choose one of: ${solverMethodNames().join(', ')}` });
   }
   const progress = makeProgress(Boolean(flags.quiet));
   const options: RunOptions = { onProgress: progress };
