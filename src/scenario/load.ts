@@ -1,0 +1,536 @@
+/**
+ * Scenario loading: read the JSON, validate it (schema.ts), read every raster and CSV it names (paths relative to
+ * the scenario file), check that all rasters share the conductivity raster's grid, reproject points given in
+ * `pointCrs`, and return a ModelInput. Variants are merged into the baseline's JSON (mergeVariant) and resolved
+ * the same way (resolveScenario).
+ *
+ * Decisions (documented for users in the README's scenario tour):
+ * - Recharge raster cells without data count as 0 recharge; a warning gives the count on active cells.
+ * - A thickness raster's cells without data or <= 0 are inactive; a warning gives the count where K had data.
+ * - A well with rate 0 (e.g. switched off by a variant) is left out of the model.
+ * - The `pointCrs` of the (merged) scenario applies to all of its points, inherited ones included.
+ */
+import { readFile, stat } from 'node:fs/promises';
+import { basename, dirname, extname, resolve } from 'node:path';
+import { crsLabel, gridBounds, gridDifference, type Grid } from '../grid.js';
+import { describeThrown, inputError, PiezomapError } from '../errors.js';
+import { readRaster } from '../raster/read.js';
+import type { RasterData } from '../raster/types.js';
+import { makeTransform, parseEpsg, type PointTransform } from './crs.js';
+import {
+  parseScenarioJson,
+  solverSchema,
+  type FixedHeadEntry,
+  type ScenarioJson,
+  type VariantJson,
+  type WellChange,
+  type WellEntry,
+  type WellLayer,
+  type WellLayers,
+} from './schema.js';
+import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
+import type { FixedHeadInput, ModelInput, ObservationInput, WellInput } from './types.js';
+
+export type { ScenarioJson, VariantJson } from './schema.js';
+
+const SCHEMA_HINT = 'the keys and their forms are listed in the README, section "Scenario file"';
+
+/** Read, validate and resolve a scenario file. `raw` is the validated JSON (with its variants, for `compare`). */
+export async function loadScenario(path: string): Promise<{ model: ModelInput; raw: ScenarioJson }> {
+  const absolute = resolve(path);
+  let text: string;
+  try {
+    text = await readFile(absolute, 'utf8');
+  } catch (thrown) {
+    throw fileProblem(thrown, path, absolute, 'scenario file');
+  }
+  const json = parseJsonText(text, path, absolute);
+  const parsed = parseScenarioJson(json, path);
+  if (!parsed.ok) {
+    throw inputError(parsed.message, { file: absolute, hint: SCHEMA_HINT });
+  }
+  const model = await resolveScenario(parsed.scenario, dirname(absolute), path);
+  return { model, raw: parsed.scenario };
+}
+
+/**
+ * Read everything a validated scenario names and build the ModelInput.
+ * `baseDir`: folder that relative paths start from. `scenarioPath`: the scenario file as the user named it
+ * (for messages), or '<inline>'.
+ */
+export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenarioPath: string): Promise<ModelInput> {
+  const inline = scenarioPath === '<inline>';
+  const loader = new Loader(baseDir, inline ? '<inline scenario>' : scenarioPath);
+  if (!inline) loader.inputFiles.add(resolve(scenarioPath));
+
+  const units = { length: raw.units?.length ?? 'm', time: raw.units?.time ?? 'd' } as const;
+
+  // The conductivity raster defines the grid and the CRS.
+  const conductivityPath = raw.aquifer.conductivity;
+  const conductivityRaster = await loader.raster('aquifer.conductivity', conductivityPath, null);
+  const grid = conductivityRaster.grid;
+  loader.checkGridIsProjected(conductivityPath, grid, units.length);
+  const conductivity = conductivityRaster.values;
+
+  let thickness: Float64Array | number;
+  if (typeof raw.aquifer.thickness === 'number') {
+    thickness = raw.aquifer.thickness;
+  } else {
+    const raster = await loader.raster('aquifer.thickness', raw.aquifer.thickness, conductivityRaster);
+    thickness = raster.values;
+    let lost = 0;
+    for (let p = 0; p < thickness.length; p++) {
+      const b = thickness[p]!;
+      if (isActiveValue(conductivity[p]!) && !(b > 0)) lost++;
+    }
+    if (lost > 0) {
+      loader.warn(`aquifer.thickness "${raw.aquifer.thickness}": ${lost} cell(s) with a conductivity have no thickness > 0 there and are inactive`);
+    }
+  }
+  const activeCells = countActive(conductivity, thickness);
+  if (activeCells === 0) {
+    throw inputError(
+      `${loader.label}: aquifer.conductivity "${conductivityPath}" has no active cell (every cell is nodata, NaN or <= 0${typeof thickness === 'number' ? '' : ', or has no thickness'})`,
+      { file: loader.path(conductivityPath), key: 'aquifer.conductivity', hint: 'check the raster and its nodata value (gdalinfo -stats)' },
+    );
+  }
+
+  const fixedHeads = await loader.fixedHeads(raw.fixedHeads, conductivityRaster);
+
+  let recharge: Float64Array | number;
+  if (typeof raw.recharge === 'string') {
+    const given = raw.recharge;
+    const values = (await loader.raster('recharge', given, conductivityRaster)).values;
+    let missing = 0;
+    for (let p = 0; p < values.length; p++) {
+      if (Number.isNaN(values[p]!)) {
+        if (isActive(conductivity, thickness, p)) missing++;
+        values[p] = 0;
+      }
+    }
+    if (missing > 0) loader.warn(`recharge "${given}": ${missing} active cell(s) have no data; their recharge is taken as 0`);
+    recharge = values;
+  } else {
+    recharge = raw.recharge ?? 0;
+  }
+
+  const transform = loader.pointTransform(raw.pointCrs, grid, conductivityPath);
+  const wells = await loader.wells(raw.wells, transform);
+  const observations = await loader.observations(raw.observations, transform);
+
+  const solver = raw.solver ?? solverSchema.parse({});
+  const title = raw.title ?? (inline ? 'Untitled scenario' : basename(scenarioPath, extname(scenarioPath)));
+
+  return {
+    title,
+    units,
+    scenarioPath: inline ? '<inline>' : resolve(scenarioPath),
+    grid,
+    conductivity,
+    thickness,
+    anisotropy: raw.aquifer.anisotropy,
+    fixedHeads,
+    recharge,
+    wells,
+    observations,
+    solver: { ...solver },
+    inputFiles: [...loader.inputFiles],
+    warnings: loader.warnings,
+  };
+}
+
+/**
+ * The scenario a variant describes: its top-level keys replace the baseline's; its wells merge with the
+ * baseline's by id (same id: the fields given replace the baseline well's, new id: added, `rate: 0`: switched off).
+ * The result has no variants. Wells given as CSV are merged when the scenario is resolved.
+ */
+export function mergeVariant(base: ScenarioJson, variant: VariantJson): ScenarioJson {
+  const { name, wells, ...replacing } = variant;
+  const merged: ScenarioJson = { ...base };
+  delete merged.variants;
+  for (const [key, value] of Object.entries(replacing)) {
+    if (value !== undefined) (merged as Record<string, unknown>)[key] = value;
+  }
+  if (wells !== undefined) {
+    merged.wells = { layers: [...wellLayers(base.wells), { source: `variants "${name}".wells`, wells }] };
+  }
+  return merged;
+}
+
+function wellLayers(wells: ScenarioJson['wells']): WellLayer[] {
+  if (wells === undefined) return [];
+  if (typeof wells === 'string' || Array.isArray(wells)) return [{ source: 'wells', wells }];
+  return wells.layers;
+}
+
+/** Conductivity (or thickness) value that makes a cell active: finite and > 0 (NaN compares false). */
+function isActiveValue(value: number): boolean {
+  return value > 0 && value < Infinity;
+}
+
+function isActive(conductivity: Float64Array, thickness: Float64Array | number, p: number): boolean {
+  return isActiveValue(conductivity[p]!) && isActiveValue(typeof thickness === 'number' ? thickness : thickness[p]!);
+}
+
+function countActive(conductivity: Float64Array, thickness: Float64Array | number): number {
+  let count = 0;
+  for (let p = 0; p < conductivity.length; p++) if (isActive(conductivity, thickness, p)) count++;
+  return count;
+}
+
+/** JSON text to a value; a syntax error names the file, line and column. */
+function parseJsonText(text: string, label: string, absolute: string): unknown {
+  try {
+    return JSON.parse(text.charCodeAt(0) === 0xfeff ? text.slice(1) : text);
+  } catch (thrown) {
+    const problem = findJsonSyntaxError(text);
+    const where = problem ? ` line ${problem.line}, column ${problem.column}` : '';
+    const what = problem ? problem.problem : describeThrown(thrown);
+    throw inputError(`${label}${where}: invalid JSON: ${what}`, { file: absolute, hint: 'fix the JSON syntax (a JSON validator or editor will point at the same place)' });
+  }
+}
+
+function fileProblem(thrown: unknown, given: string, absolute: string, what: string, key?: string): PiezomapError {
+  const code = (thrown as { code?: string } | null)?.code;
+  const detail = { file: absolute, ...(key ? { key } : {}) };
+  if (code === 'ENOENT') {
+    return inputError(`${what} not found: "${given}" (looked for ${absolute})`, {
+      ...detail,
+      hint: key ? 'paths in a scenario are relative to the folder of the scenario file' : 'check the path',
+    });
+  }
+  if (code === 'EISDIR') return inputError(`${what} "${given}" is a folder, not a file (${absolute})`, detail);
+  if (code === 'EACCES' || code === 'EPERM') return inputError(`${what} "${given}" cannot be read: permission denied (${absolute})`, detail);
+  return inputError(`${what} "${given}" cannot be read (${absolute}): ${describeThrown(thrown)}`, detail);
+}
+
+/** One CSV record: `source` names the file and line for messages; `file` is the absolute path. */
+type PointRecord = { source: string; file: string; values: Map<string, string> };
+
+/** The I/O of one resolve: paths, files read, warnings. */
+class Loader {
+  readonly inputFiles = new Set<string>();
+  readonly warnings: string[] = [];
+
+  constructor(
+    readonly baseDir: string,
+    readonly label: string,
+  ) {}
+
+  path(given: string): string {
+    return resolve(this.baseDir, given);
+  }
+
+  warn(text: string): void {
+    this.warnings.push(text);
+  }
+
+  /** Read a raster a key names; with `reference`, it must lie on the reference's grid. */
+  async raster(key: string, given: string, reference: RasterData | null, referenceKey = 'aquifer.conductivity'): Promise<RasterData> {
+    const absolute = this.path(given);
+    await this.requireFile(key, given, absolute, 'raster');
+    let raster: RasterData;
+    try {
+      raster = await readRaster(absolute, { label: `${key} "${given}"` });
+    } catch (thrown) {
+      if (thrown instanceof PiezomapError) throw thrown;
+      throw inputError(`${this.label}: ${key}: "${given}" cannot be read as a GeoTIFF: ${describeThrown(thrown)}`, { file: absolute, key });
+    }
+    this.inputFiles.add(absolute);
+    if (raster.bandCount > 1) this.warn(`${key} "${given}" has ${raster.bandCount} bands; only band 1 is used`);
+    if (reference) {
+      const difference = gridDifference(reference.grid, raster.grid);
+      if (difference !== null) {
+        throw inputError(
+          `${this.label}: ${key} "${given}" is not on the grid of ${referenceKey} "${basename(reference.path)}": ${difference} (${basename(reference.path)} vs ${basename(given)})`,
+          { file: absolute, key, hint: resampleHint(reference.grid, given) },
+        );
+      }
+    }
+    return raster;
+  }
+
+  async requireFile(key: string, given: string, absolute: string, what: string): Promise<void> {
+    try {
+      const info = await stat(absolute);
+      if (info.isDirectory()) throw Object.assign(new Error('is a directory'), { code: 'EISDIR' });
+    } catch (thrown) {
+      const problem = fileProblem(thrown, given, absolute, `${what} file`, key);
+      throw new PiezomapError('input', `${this.label}: ${key}: ${problem.message}`, problem.detail);
+    }
+  }
+
+  checkGridIsProjected(given: string, grid: Grid, lengthUnit: 'm' | 'ft'): void {
+    if (grid.crs?.geographic) {
+      throw inputError(
+        `${this.label}: aquifer.conductivity "${given}" is in a geographic CRS (${crsLabel(grid.crs)}): its cell sizes are degrees, not lengths`,
+        { file: this.path(given), key: 'aquifer.conductivity', hint: 'reproject the rasters to a projected CRS in metres or feet, e.g. gdalwarp -t_srs EPSG:326zz (WGS 84 / UTM zone zz north)' },
+      );
+    }
+    const unit = grid.crs?.linearUnit;
+    if (unit) {
+      const metres = /met(er|re)/i.test(unit);
+      const feet = /\b(foot|feet|ft)\b/i.test(unit);
+      if ((metres && lengthUnit === 'ft') || (feet && lengthUnit === 'm')) {
+        this.warn(`units.length is "${lengthUnit}" but the CRS of "${given}" measures in ${unit}: cell sizes are taken in ${unit}; keep the other inputs consistent`);
+      }
+    }
+  }
+
+  async fixedHeads(entries: FixedHeadEntry[], reference: RasterData): Promise<FixedHeadInput[]> {
+    const groups: FixedHeadInput[] = [];
+    const names = new Map<string, string>();
+    for (let index = 0; index < entries.length; index++) {
+      const entry = entries[index]!;
+      const source = `fixedHeads[${index}]`;
+      const group = 'raster' in entry ? await this.fixedHeadRaster(entry.raster, entry.name, source, reference) : this.fixedHeadEdge(entry.edge, entry.head, entry.name, source, reference.grid);
+      const earlier = names.get(group.name);
+      if (earlier !== undefined) {
+        throw inputError(`${this.label}: ${source}: the fixed-head group name "${group.name}" is already used by ${earlier}`, {
+          key: source,
+          hint: 'each entry names one term of the water budget: give one of them a different "name"',
+        });
+      }
+      names.set(group.name, source);
+      groups.push(group);
+    }
+    return groups;
+  }
+
+  private async fixedHeadRaster(given: string, name: string | undefined, source: string, reference: RasterData): Promise<FixedHeadInput> {
+    const raster = await this.raster(`${source}.raster`, given, reference);
+    const values = raster.values;
+    let count = 0;
+    for (let p = 0; p < values.length; p++) if (Number.isFinite(values[p]!)) count++;
+    const cells = new Int32Array(count);
+    const heads = new Float64Array(count);
+    let k = 0;
+    for (let p = 0; p < values.length; p++) {
+      const h = values[p]!;
+      if (Number.isFinite(h)) {
+        cells[k] = p;
+        heads[k] = h;
+        k++;
+      }
+    }
+    if (count === 0) this.warn(`${source}: "${given}" has no cell with data, so it fixes no head`);
+    return { name: name ?? basename(given, extname(given)), source, cells, heads };
+  }
+
+  private fixedHeadEdge(edge: 'west' | 'east' | 'north' | 'south', head: number, name: string | undefined, source: string, grid: Grid): FixedHeadInput {
+    const { nx, ny } = grid;
+    // Outer row/column by map direction, so that grids stored south-up or east-to-west are handled too.
+    const northRow = grid.transform[5] < 0 ? 0 : ny - 1;
+    const westCol = grid.transform[1] > 0 ? 0 : nx - 1;
+    const vertical = edge === 'west' || edge === 'east';
+    const count = vertical ? ny : nx;
+    const cells = new Int32Array(count);
+    if (vertical) {
+      const col = edge === 'west' ? westCol : nx - 1 - westCol;
+      for (let row = 0; row < ny; row++) cells[row] = row * nx + col;
+    } else {
+      const row = edge === 'north' ? northRow : ny - 1 - northRow;
+      for (let col = 0; col < nx; col++) cells[col] = row * nx + col;
+    }
+    return { name: name ?? edge, source, cells, heads: new Float64Array(count).fill(head) };
+  }
+
+  /** The transform from `pointCrs` to the raster CRS, or null when points are already in the raster CRS. */
+  pointTransform(pointCrs: string | undefined, grid: Grid, conductivityPath: string): PointTransform | null {
+    if (pointCrs === undefined) return null;
+    const from = parseEpsg(pointCrs);
+    if (from === null) throw inputError(`${this.label}: pointCrs: "${pointCrs}" is not an EPSG code such as "EPSG:4326"`, { key: 'pointCrs' });
+    const to = grid.crs?.epsg ?? null;
+    if (to === null) {
+      throw inputError(
+        `${this.label}: pointCrs is ${pointCrs}, but aquifer.conductivity "${conductivityPath}" has no EPSG code (${crsLabel(grid.crs)} CRS), so points cannot be reprojected into it`,
+        { key: 'pointCrs', hint: 'give the points in the raster CRS and drop "pointCrs", or assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)' },
+      );
+    }
+    if (from === to) return null;
+    try {
+      return makeTransform(from, to);
+    } catch (thrown) {
+      if (thrown instanceof PiezomapError) {
+        throw new PiezomapError(thrown.code, `${this.label}: pointCrs ${pointCrs} to the raster CRS EPSG:${to}: ${thrown.message}`, { ...thrown.detail, key: 'pointCrs' });
+      }
+      throw thrown;
+    }
+  }
+
+  async wells(spec: WellEntry[] | string | WellLayers | undefined, transform: PointTransform | null): Promise<WellInput[]> {
+    const byId = new Map<string, { change: Partial<WellChange>; source: string }>();
+    for (const layer of wellLayers(spec)) {
+      const changes: { change: WellChange; source: string }[] =
+        typeof layer.wells === 'string'
+          ? (await this.pointCsv(`${layer.source}`, layer.wells, ['id', 'x', 'y', 'rate'], ['radius'])).map((record) => ({
+              change: wellFromRecord(record),
+              source: record.source,
+            }))
+          : layer.wells.map((change, index) => ({ change, source: `${layer.source}[${index}]` }));
+      for (const { change, source } of changes) {
+        const existing = byId.get(change.id);
+        const mergedChange: Partial<WellChange> = { ...(existing?.change ?? {}) };
+        for (const [key, value] of Object.entries(change)) if (value !== undefined) (mergedChange as Record<string, unknown>)[key] = value;
+        byId.set(change.id, { change: mergedChange, source });
+      }
+    }
+    const wells: WellInput[] = [];
+    for (const [id, { change, source }] of byId) {
+      const missing = (['x', 'y', 'rate'] as const).filter((key) => change[key] === undefined);
+      if (missing.length) {
+        throw inputError(`${this.label}: ${source}: well "${id}" is new here, so it needs ${missing.join(', ')} (no earlier well has this id)`, {
+          key: source,
+          hint: 'a variant changes a baseline well by giving its id; check the id for typos',
+        });
+      }
+      if (change.rate === 0) continue;
+      const point = this.project(transform, change.x!, change.y!, `well "${id}" (${source})`);
+      const well: WellInput = { id, x: point.x, y: point.y, rate: change.rate!, source };
+      if (change.radius !== undefined) well.radius = change.radius;
+      wells.push(well);
+    }
+    return wells;
+  }
+
+  async observations(spec: ScenarioJson['observations'], transform: PointTransform | null): Promise<ObservationInput[]> {
+    if (spec === undefined) return [];
+    const entries =
+      typeof spec === 'string'
+        ? (await this.pointCsv('observations', spec, ['id', 'x', 'y', 'head'], [])).map((record) => ({
+            id: record.values.get('id')!,
+            x: csvNumber(record, 'x'),
+            y: csvNumber(record, 'y'),
+            head: csvNumber(record, 'head'),
+            source: record.source,
+          }))
+        : spec.map((entry, index) => ({ ...entry, source: `observations[${index}]` }));
+    return entries.map((entry) => {
+      const point = this.project(transform, entry.x, entry.y, `observation "${entry.id}" (${entry.source})`);
+      return { id: entry.id, x: point.x, y: point.y, head: entry.head, source: entry.source };
+    });
+  }
+
+  private project(transform: PointTransform | null, x: number, y: number, what: string): { x: number; y: number } {
+    if (!transform) return { x, y };
+    try {
+      return transform.forward(x, y, what);
+    } catch (thrown) {
+      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, thrown.detail);
+      throw thrown;
+    }
+  }
+
+  /**
+   * Records of a point CSV: header with the required columns (any order, any case), one record per line.
+   * Unknown columns are ignored with a warning; a record with the wrong number of fields, an empty id or a
+   * duplicate id is an error naming the file and line.
+   */
+  async pointCsv(key: string, given: string, required: string[], optional: string[]): Promise<PointRecord[]> {
+    const absolute = this.path(given);
+    await this.requireFile(key, given, absolute, 'CSV');
+    let text: string;
+    try {
+      text = await readFile(absolute, 'utf8');
+    } catch (thrown) {
+      throw fileProblem(thrown, given, absolute, 'CSV file', key);
+    }
+    this.inputFiles.add(absolute);
+    const name = basename(given);
+    let records;
+    try {
+      records = parseCsv(text);
+    } catch (thrown) {
+      if (thrown instanceof CsvSyntaxError) throw inputError(`${name} line ${thrown.line}: ${thrown.message}`, { file: absolute, key });
+      throw thrown;
+    }
+    const expected = required.join(',');
+    if (records.length === 0) throw inputError(`${name}: the file is empty (expected a header line "${expected}")`, { file: absolute, key });
+    const header = records[0]!;
+    const columns = header.fields.map((field) => field.trim().toLowerCase());
+    if (columns.length === 1 && /[;\t]/.test(columns[0]!)) {
+      throw inputError(`${name} line ${header.line}: the header "${header.fields[0]}" is not separated by commas`, {
+        file: absolute,
+        key,
+        hint: `write the columns as "${expected}" with commas (and "." as the decimal point)`,
+      });
+    }
+    const seen = new Set<string>();
+    for (const column of columns) {
+      if (seen.has(column)) throw inputError(`${name} line ${header.line}: column "${column}" appears twice in the header`, { file: absolute, key });
+      seen.add(column);
+    }
+    const missing = required.filter((column) => !seen.has(column));
+    if (missing.length) {
+      throw inputError(`${name} line ${header.line}: the header lacks the column(s) ${missing.map((c) => `"${c}"`).join(', ')} (found: ${columns.join(',')})`, {
+        file: absolute,
+        key,
+        hint: `the header must be "${expected}"${optional.length ? ` (optional: ${optional.join(', ')})` : ''}`,
+      });
+    }
+    const ignored = columns.filter((column) => !required.includes(column) && !optional.includes(column));
+    if (ignored.length) this.warn(`${name}: column(s) ${ignored.map((c) => `"${c}"`).join(', ')} ignored`);
+
+    const result: PointRecord[] = [];
+    const firstLine = new Map<string, number>();
+    for (let r = 1; r < records.length; r++) {
+      const record = records[r]!;
+      if (record.fields.length !== columns.length) {
+        throw inputError(`${name} line ${record.line}: ${record.fields.length} field(s) where the header has ${columns.length}`, {
+          file: absolute,
+          key,
+          hint: 'quote a field that contains a comma ("like, this"); use "." as the decimal point',
+        });
+      }
+      const values = new Map<string, string>();
+      columns.forEach((column, c) => values.set(column, record.fields[c]!.trim()));
+      const id = values.get('id')!;
+      if (id === '') throw inputError(`${name} line ${record.line}: the id is empty`, { file: absolute, key });
+      const earlier = firstLine.get(id);
+      if (earlier !== undefined) {
+        throw inputError(`${name} line ${record.line}: duplicate id "${id}" (also on line ${earlier})`, { file: absolute, key, hint: 'ids must be unique within a list' });
+      }
+      firstLine.set(id, record.line);
+      result.push({ source: `${name} line ${record.line}`, file: absolute, values });
+    }
+    return result;
+  }
+}
+
+function wellFromRecord(record: PointRecord): WellChange {
+  const well: WellChange = {
+    id: record.values.get('id')!,
+    x: csvNumber(record, 'x'),
+    y: csvNumber(record, 'y'),
+    rate: csvNumber(record, 'rate'),
+  };
+  const radius = record.values.get('radius');
+  if (radius !== undefined && radius !== '') {
+    const value = csvNumber(record, 'radius');
+    if (!(value > 0)) throw inputError(`${record.source}: radius ${value} must be > 0 (or left empty)`, { file: record.file });
+    well.radius = value;
+  }
+  return well;
+}
+
+/** A finite number from a CSV field, else an error naming the file, line and column. */
+function csvNumber(record: PointRecord, column: string): number {
+  const text = record.values.get(column) ?? '';
+  // Number('') is 0 and Number('0x10') is 16: accept only decimal notation.
+  const value = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(text) ? Number(text) : NaN;
+  if (!Number.isFinite(value)) {
+    const hint = /^[+-]?\d+,\d+$/.test(text) ? 'use "." as the decimal point (and quote nothing)' : undefined;
+    throw inputError(`${record.source}: ${column} ${text === '' ? 'is empty' : `"${text}" is not a number`}`, {
+      file: record.file,
+      ...(hint ? { hint } : {}),
+    });
+  }
+  return value;
+}
+
+/** A gdalwarp command that puts a raster on the reference grid. */
+function resampleHint(reference: Grid, given: string): string {
+  const b = gridBounds(reference);
+  const srs = reference.crs?.epsg != null ? ` -t_srs EPSG:${reference.crs.epsg}` : '';
+  return `resample it onto the conductivity grid, e.g. gdalwarp${srs} -te ${b.minX} ${b.minY} ${b.maxX} ${b.maxY} -ts ${reference.nx} ${reference.ny} ${given} resampled.tif`;
+}

@@ -1,0 +1,278 @@
+/**
+ * The scenario file's JSON, as zod (v4) schemas: strict objects (unknown keys refused, with a "did you mean"),
+ * types, ranges and enumerations. The contract is ../shared/spec/interface.md, section "Scenario file".
+ *
+ * Top-level keys carry no defaults here, so that a variant (which replaces top-level keys) can tell "not given"
+ * from "given"; the baseline's defaults are applied when the scenario is resolved (load.ts). Nested defaults
+ * (solver settings, anisotropy, units) are applied by the schema.
+ */
+import * as z from 'zod';
+import { describeIssues } from './issues.js';
+
+/** Keys of an object schema and the error text for unknown ones (see unknownKeyText). */
+function strict<S extends z.ZodRawShape>(shape: S) {
+  const known = Object.keys(shape);
+  return z.strictObject(shape, {
+    error: (issue) => {
+      if (issue.code !== 'unrecognized_keys') return undefined;
+      // One line per unknown key, in the order of issue.keys; issues.ts puts each key's path in front.
+      return issue.keys.map((key) => unknownKeyText(key, known)).join('\n');
+    },
+  });
+}
+
+/**
+ * A value whose schema depends on what it is (a number or a path, a list or a CSV path, which key an entry has).
+ * Unlike a zod union, the issues reported are those of the one schema that applies, with their paths.
+ */
+function dispatch<T>(expected: string, pick: (value: unknown) => z.ZodType<T> | undefined) {
+  return z.unknown().transform((value, ctx): T => {
+    const schema = pick(value);
+    if (!schema) {
+      ctx.addIssue({ code: 'custom', message: `expected ${expected}`, input: value });
+      return z.NEVER;
+    }
+    const result = schema.safeParse(value);
+    if (!result.success) {
+      for (const issue of result.error.issues) ctx.addIssue({ ...issue } as Parameters<typeof ctx.addIssue>[0]);
+      return z.NEVER;
+    }
+    return result.data;
+  });
+}
+
+const finite = z.number();
+const filePath = z.string().trim().min(1, { error: 'must be a file path, not empty' });
+const identifier = z.string().trim().min(1, { error: 'must not be empty' });
+
+/** number | path: e.g. thickness (a number must be > 0) and recharge (any finite number). */
+function numberOrPath(numberSchema: z.ZodType<number>, expected: string) {
+  return dispatch<number | string>(expected, (value) =>
+    typeof value === 'number' ? numberSchema : typeof value === 'string' ? filePath : undefined,
+  );
+}
+
+/** list | CSV path, for point lists; ids unique within an inline list. */
+function listOrCsv<T extends { id: string }>(entry: z.ZodType<T>, what: string) {
+  const list = z.array(entry).superRefine((entries, ctx) => {
+    const seen = new Map<string, number>();
+    entries.forEach((item, index) => {
+      const first = seen.get(item.id);
+      if (first !== undefined) {
+        ctx.addIssue({ code: 'custom', path: [index, 'id'], message: `duplicate ${what} id "${item.id}" (also at [${first}])` });
+      } else {
+        seen.set(item.id, index);
+      }
+    });
+  });
+  return dispatch<T[] | string>(`a list of ${what}s or the path of a CSV file`, (value) =>
+    Array.isArray(value) ? list : typeof value === 'string' ? filePath : undefined,
+  );
+}
+
+export const unitsSchema = strict({
+  length: z.enum(['m', 'ft']).default('m'),
+  time: z.enum(['s', 'd']).default('d'),
+});
+
+export const aquiferSchema = strict({
+  conductivity: filePath,
+  thickness: numberOrPath(finite.gt(0), 'a thickness > 0 or the path of a GeoTIFF'),
+  anisotropy: finite.gt(0).default(1),
+});
+
+export const edgeNames = ['west', 'east', 'north', 'south'] as const;
+export type EdgeName = (typeof edgeNames)[number];
+
+const groupName = identifier.optional();
+
+export const fixedHeadRasterSchema = strict({ raster: filePath, name: groupName });
+export const fixedHeadEdgeSchema = strict({ edge: z.enum(edgeNames), head: finite, name: groupName });
+
+/**
+ * A fixed-head entry is told apart by the key it has; a later kind (e.g. a GeoJSON shape) is one more line here.
+ * When an entry has more than one of these keys, the first one listed wins and the other is refused as unknown.
+ */
+const fixedHeadKinds = {
+  raster: fixedHeadRasterSchema,
+  edge: fixedHeadEdgeSchema,
+} as const;
+
+export const fixedHeadSchema = dispatch<FixedHeadEntry>(
+  '{ "raster": PATH } or { "edge": "west"|"east"|"north"|"south", "head": H }',
+  (value) => {
+    if (typeof value !== 'object' || value === null || Array.isArray(value)) return undefined;
+    for (const [key, schema] of Object.entries(fixedHeadKinds)) {
+      if (key in value) return schema as z.ZodType<FixedHeadEntry>;
+    }
+    return undefined;
+  },
+);
+
+export const wellSchema = strict({
+  id: identifier,
+  x: finite,
+  y: finite,
+  rate: finite,
+  radius: finite.gt(0).optional(),
+});
+
+/** In a variant, a well entry with the id of a baseline well changes only the fields it gives. */
+export const wellChangeSchema = strict({
+  id: identifier,
+  x: finite.optional(),
+  y: finite.optional(),
+  rate: finite.optional(),
+  radius: finite.gt(0).optional(),
+});
+
+export const observationSchema = strict({
+  id: identifier,
+  x: finite,
+  y: finite,
+  head: finite,
+});
+
+export const solverSchema = strict({
+  method: z
+    .string()
+    .regex(/^[A-Za-z0-9_-]+$/, { error: 'must be a method name (letters, digits, "-", "_"), e.g. "auto"' })
+    .default('auto'),
+  tolerance: finite.gt(0).lt(1).default(1e-8),
+  maxIterations: z.int().gt(0).default(20000),
+  relaxation: finite.gt(0).lt(2).optional(),
+});
+
+export const pointCrsSchema = z
+  .string()
+  .regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' });
+
+/** Keys a variant may replace: every top-level key except `variants`. */
+const replaceableFields = {
+  title: z.string().optional(),
+  units: unitsSchema.optional(),
+  aquifer: aquiferSchema.optional(),
+  fixedHeads: z.array(fixedHeadSchema).min(1, { error: 'needs at least one entry: without a fixed head the head is undetermined' }).optional(),
+  recharge: numberOrPath(finite, 'a recharge rate (length/time) or the path of a GeoTIFF').optional(),
+  wells: listOrCsv(wellSchema, 'well').optional(),
+  pointCrs: pointCrsSchema.optional(),
+  observations: listOrCsv(observationSchema, 'observation').optional(),
+  solver: solverSchema.optional(),
+};
+
+export const variantSchema = strict({
+  name: z
+    .string()
+    .regex(/^[A-Za-z0-9_-]+$/, { error: 'must use only letters, digits, "-" and "_" (it names a result folder)' })
+    .refine((name) => name.toLowerCase() !== 'baseline', { error: '"baseline" is reserved for the scenario itself' }),
+  ...replaceableFields,
+  wells: listOrCsv(wellChangeSchema, 'well').optional(),
+});
+
+export const scenarioSchema = strict({
+  ...replaceableFields,
+  aquifer: aquiferSchema,
+  fixedHeads: replaceableFields.fixedHeads.unwrap(),
+  variants: z
+    .array(variantSchema)
+    .superRefine((variants, ctx) => {
+      const seen = new Map<string, number>();
+      variants.forEach((variant, index) => {
+        // Folder names: compare without case so that "Wet" and "wet" cannot overwrite each other on any file system.
+        const key = variant.name.toLowerCase();
+        const first = seen.get(key);
+        if (first !== undefined) {
+          ctx.addIssue({ code: 'custom', path: [index, 'name'], message: `duplicate variant name "${variant.name}" (also variants[${first}])` });
+        } else {
+          seen.set(key, index);
+        }
+      });
+    })
+    .optional(),
+});
+
+export type Units = z.output<typeof unitsSchema>;
+export type AquiferJson = z.output<typeof aquiferSchema>;
+export type FixedHeadRasterEntry = z.output<typeof fixedHeadRasterSchema>;
+export type FixedHeadEdgeEntry = z.output<typeof fixedHeadEdgeSchema>;
+export type FixedHeadEntry = FixedHeadRasterEntry | FixedHeadEdgeEntry;
+export type WellEntry = z.output<typeof wellSchema>;
+export type WellChange = z.output<typeof wellChangeSchema>;
+export type ObservationEntry = z.output<typeof observationSchema>;
+export type SolverJson = z.output<typeof solverSchema>;
+export type VariantJson = z.output<typeof variantSchema>;
+type ParsedScenario = z.output<typeof scenarioSchema>;
+
+/**
+ * Wells after a variant was merged in: the layers apply in order, merging by id (see mergeVariant in load.ts).
+ * It is not part of the file format: only mergeVariant makes it, so that a CSV well list can be merged when read.
+ */
+export interface WellLayers {
+  layers: WellLayer[];
+}
+
+export interface WellLayer {
+  /** For messages: e.g. `wells` or `variants "expanded".wells`. */
+  source: string;
+  wells: WellChange[] | string;
+}
+
+/** The validated scenario JSON (nested defaults applied). `wells` is a WellLayers only after mergeVariant. */
+export type ScenarioJson = Omit<ParsedScenario, 'wells'> & { wells?: WellEntry[] | string | WellLayers };
+
+export type ParseResult = { ok: true; scenario: ScenarioJson } | { ok: false; message: string; issueCount: number };
+
+/**
+ * Validate parsed JSON. On failure, `message` lists every problem as `LABEL: key.path: what is wrong`
+ * (at most `maxLines` lines, then a count of the rest).
+ */
+export function parseScenarioJson(json: unknown, label: string, maxLines = 8): ParseResult {
+  const result = scenarioSchema.safeParse(json);
+  if (result.success) return { ok: true, scenario: result.data };
+  const { text, count } = describeIssues(result.error.issues, json, label, maxLines);
+  return { ok: false, message: text, issueCount: count };
+}
+
+/** `KEY: unknown key (did you mean "X"?)`, or the list of keys allowed here when no key is close. */
+export function unknownKeyText(key: string, known: readonly string[]): string {
+  const best = closest(key, known);
+  if (best !== null) return `unknown key (did you mean "${best}"?)`;
+  return `unknown key (allowed here: ${known.join(', ')})`;
+}
+
+/** The known word nearest to `word` in edit distance, when near enough to be a likely typo. */
+export function closest(word: string, known: readonly string[]): string | null {
+  const lower = word.toLowerCase();
+  let best: string | null = null;
+  let bestDistance = Infinity;
+  for (const candidate of known) {
+    const distance = editDistance(lower, candidate.toLowerCase());
+    if (distance < bestDistance) {
+      best = candidate;
+      bestDistance = distance;
+    }
+  }
+  // Allow about one typo per three letters; "x" for "y" would be a guess, not a suggestion.
+  const limit = Math.max(1, Math.floor(Math.max(word.length, 3) / 3));
+  return bestDistance <= limit ? best : null;
+}
+
+/** Optimal string alignment distance (Levenshtein plus adjacent transpositions; Damerau 1964). */
+function editDistance(a: string, b: string): number {
+  const rows = a.length + 1;
+  const cols = b.length + 1;
+  const d = new Int32Array(rows * cols);
+  for (let i = 0; i < rows; i++) d[i * cols] = i;
+  for (let j = 0; j < cols; j++) d[j] = j;
+  for (let i = 1; i < rows; i++) {
+    for (let j = 1; j < cols; j++) {
+      const cost = a.charCodeAt(i - 1) === b.charCodeAt(j - 1) ? 0 : 1;
+      let value = Math.min(d[(i - 1) * cols + j]! + 1, d[i * cols + j - 1]! + 1, d[(i - 1) * cols + j - 1]! + cost);
+      if (i > 1 && j > 1 && a.charCodeAt(i - 1) === b.charCodeAt(j - 2) && a.charCodeAt(i - 2) === b.charCodeAt(j - 1)) {
+        value = Math.min(value, d[(i - 2) * cols + j - 2]! + 1);
+      }
+      d[i * cols + j] = value;
+    }
+  }
+  return d[rows * cols - 1]!;
+}

@@ -1,0 +1,283 @@
+/**
+ * Plain-text formats of the scenario: CSV point lists (RFC 4180: quoted fields, "" escapes, CRLF, a leading BOM)
+ * and JSON syntax errors located by line and column (JSON, RFC 8259). Pure functions; load.ts does the file I/O.
+ */
+
+export interface CsvRecord {
+  /** 1-based line where the record starts (a quoted field may span lines). */
+  line: number;
+  fields: string[];
+}
+
+export class CsvSyntaxError extends Error {
+  constructor(
+    message: string,
+    readonly line: number,
+  ) {
+    super(message);
+  }
+}
+
+/** Split CSV text into records. Blank lines are skipped; fields are returned as written (not trimmed). */
+export function parseCsv(text: string): CsvRecord[] {
+  const records: CsvRecord[] = [];
+  const n = text.length;
+  let i = text.charCodeAt(0) === 0xfeff ? 1 : 0;
+  let line = 1;
+  while (i < n) {
+    const startLine = line;
+    const fields: string[] = [];
+    let endOfRecord = false;
+    while (!endOfRecord) {
+      let field = '';
+      if (text[i] === '"') {
+        const quoteLine = line;
+        i++;
+        for (;;) {
+          if (i >= n) throw new CsvSyntaxError(`a quoted field opened on line ${quoteLine} is never closed`, quoteLine);
+          const ch = text[i]!;
+          if (ch === '"') {
+            if (text[i + 1] === '"') {
+              field += '"';
+              i += 2;
+              continue;
+            }
+            i++;
+            break;
+          }
+          if (ch === '\n') line++;
+          field += ch;
+          i++;
+        }
+        // Only spaces may follow a closing quote before the separator.
+        while (i < n && (text[i] === ' ' || text[i] === '\t')) i++;
+        if (i < n && text[i] !== ',' && text[i] !== '\n' && text[i] !== '\r') {
+          throw new CsvSyntaxError(`unexpected text after a closing quote on line ${line}`, line);
+        }
+      } else {
+        const start = i;
+        while (i < n && text[i] !== ',' && text[i] !== '\n' && text[i] !== '\r') i++;
+        field = text.slice(start, i);
+        if (field.includes('"')) throw new CsvSyntaxError(`a quote inside an unquoted field on line ${line}`, line);
+      }
+      fields.push(field);
+      if (i >= n) {
+        endOfRecord = true;
+      } else if (text[i] === ',') {
+        i++;
+      } else {
+        // \r\n, \n or a lone \r ends the record.
+        if (text[i] === '\r' && text[i + 1] === '\n') i++;
+        i++;
+        line++;
+        endOfRecord = true;
+      }
+    }
+    const blank = fields.length === 1 && fields[0]!.trim() === '';
+    if (!blank) records.push({ line: startLine, fields });
+  }
+  return records;
+}
+
+export interface JsonSyntaxProblem {
+  /** 1-based. */
+  line: number;
+  column: number;
+  problem: string;
+}
+
+/**
+ * Where JSON text first breaks the grammar and why, in words a user can act on, or null when it is valid JSON.
+ * (JSON.parse's messages differ between Node versions and do not always give a position.)
+ */
+export function findJsonSyntaxError(text: string): JsonSyntaxProblem | null {
+  const scanner = new JsonScanner(text);
+  try {
+    scanner.document();
+    return null;
+  } catch (thrown) {
+    if (!(thrown instanceof JsonStop)) throw thrown;
+    const { line, column } = lineColumn(text, thrown.offset);
+    return { line, column, problem: thrown.message };
+  }
+}
+
+/** 1-based line and column of a character offset (a BOM is not a column). */
+export function lineColumn(text: string, offset: number): { line: number; column: number } {
+  let line = 1;
+  let lineStart = text.charCodeAt(0) === 0xfeff ? 1 : 0;
+  const end = Math.min(offset, text.length);
+  for (let i = 0; i < end; i++) {
+    if (text.charCodeAt(i) === 10) {
+      line++;
+      lineStart = i + 1;
+    }
+  }
+  return { line, column: end - lineStart + 1 };
+}
+
+class JsonStop extends Error {
+  constructor(
+    message: string,
+    readonly offset: number,
+  ) {
+    super(message);
+  }
+}
+
+class JsonScanner {
+  private i = 0;
+
+  constructor(private readonly text: string) {
+    if (text.charCodeAt(0) === 0xfeff) this.i = 1;
+  }
+
+  document(): void {
+    this.space();
+    if (this.i >= this.text.length) this.stop('the file is empty (expected a JSON object)');
+    this.value();
+    this.space();
+    if (this.i < this.text.length) this.stop(`unexpected ${this.shown()} after the end of the JSON value`);
+  }
+
+  private value(): void {
+    const ch = this.text[this.i];
+    if (ch === undefined) this.stop('the file ends in the middle of the JSON (a value is missing)');
+    if (ch === '{') return this.object();
+    if (ch === '[') return this.array();
+    if (ch === '"') return this.string();
+    if (ch === '-' || (ch >= '0' && ch <= '9')) return this.number();
+    if (ch === "'") this.stop('strings need double quotes ("), not single quotes');
+    for (const word of ['true', 'false', 'null']) {
+      if (this.text.startsWith(word, this.i)) {
+        this.i += word.length;
+        return;
+      }
+    }
+    if (ch === '/') this.stop('comments are not allowed in JSON');
+    if (ch === '}' || ch === ']') this.stop(`a value is missing before "${ch}"`);
+    if (ch === ',') this.stop('a value is missing before ","');
+    this.stop(`unexpected ${this.shown()} (expected a value: number, "string", true, false, null, { or [)`);
+  }
+
+  private object(): void {
+    this.i++;
+    this.space();
+    if (this.text[this.i] === '}') {
+      this.i++;
+      return;
+    }
+    for (;;) {
+      this.space();
+      const ch = this.text[this.i];
+      if (ch === '}') this.stop('trailing comma before "}"', this.lastComma);
+      if (ch !== '"') {
+        if (ch === undefined) this.stop('the file ends inside an object (missing "}")');
+        this.stop(ch === "'" ? 'keys need double quotes ("), not single quotes' : `expected a key in double quotes, found ${this.shown()}`);
+      }
+      this.string();
+      this.space();
+      if (this.text[this.i] !== ':') this.stop(`expected ":" after a key, found ${this.shown()}`);
+      this.i++;
+      this.space();
+      this.value();
+      this.space();
+      const next = this.text[this.i];
+      if (next === ',') {
+        this.lastComma = this.i;
+        this.i++;
+        continue;
+      }
+      if (next === '}') {
+        this.i++;
+        return;
+      }
+      if (next === undefined) this.stop('the file ends inside an object (missing "}")');
+      this.stop(`expected "," or "}" after a value, found ${this.shown()}`);
+    }
+  }
+
+  private lastComma = 0;
+
+  private array(): void {
+    this.i++;
+    this.space();
+    if (this.text[this.i] === ']') {
+      this.i++;
+      return;
+    }
+    for (;;) {
+      this.space();
+      if (this.text[this.i] === ']') this.stop('trailing comma before "]"', this.lastComma);
+      this.value();
+      this.space();
+      const next = this.text[this.i];
+      if (next === ',') {
+        this.lastComma = this.i;
+        this.i++;
+        continue;
+      }
+      if (next === ']') {
+        this.i++;
+        return;
+      }
+      if (next === undefined) this.stop('the file ends inside a list (missing "]")');
+      this.stop(`expected "," or "]" after a value, found ${this.shown()}`);
+    }
+  }
+
+  private string(): void {
+    const start = this.i;
+    this.i++;
+    for (;;) {
+      const code = this.text.charCodeAt(this.i);
+      if (Number.isNaN(code)) this.stop('a string is never closed (missing ")', start);
+      if (code === 0x22) {
+        this.i++;
+        return;
+      }
+      if (code < 0x20) this.stop('line break or control character inside a string (missing closing "?)');
+      if (code === 0x5c) {
+        const escape = this.text[this.i + 1];
+        if (escape === 'u') {
+          if (!/^[0-9a-fA-F]{4}$/.test(this.text.slice(this.i + 2, this.i + 6))) this.stop('bad \\u escape (needs 4 hex digits)');
+          this.i += 6;
+          continue;
+        }
+        if (escape === undefined || !'"\\/bfnrt'.includes(escape)) {
+          this.stop('bad escape in a string (write a backslash as \\\\, e.g. in Windows paths, or use /)');
+        }
+        this.i += 2;
+        continue;
+      }
+      this.i++;
+    }
+  }
+
+  private number(): void {
+    const match = /^-?(0|[1-9]\d*)(\.\d+)?([eE][+-]?\d+)?/.exec(this.text.slice(this.i, this.i + 400));
+    if (!match) this.stop(`malformed number starting with ${this.shown()}`);
+    this.i += match[0].length;
+    const next = this.text[this.i];
+    if (next !== undefined && /[0-9.eE]/.test(next)) this.stop('malformed number (leading zero, or misplaced "." or exponent)');
+  }
+
+  private space(): void {
+    const text = this.text;
+    while (this.i < text.length) {
+      const ch = text.charCodeAt(this.i);
+      if (ch !== 0x20 && ch !== 0x09 && ch !== 0x0a && ch !== 0x0d) return;
+      this.i++;
+    }
+  }
+
+  private shown(): string {
+    const ch = this.text[this.i];
+    if (ch === undefined) return 'the end of the file';
+    return JSON.stringify(this.text.slice(this.i, this.i + 12).split(/[\r\n]/)[0]);
+  }
+
+  private stop(message: string, offset: number = this.i): never {
+    throw new JsonStop(message, offset);
+  }
+}
