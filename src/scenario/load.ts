@@ -22,16 +22,16 @@ import {
   solverSchema,
   type FixedHeadEntry,
   type ScenarioJson,
-  type VariantJson,
   type WellChange,
   type WellEntry,
-  type WellLayer,
   type WellLayers,
 } from './schema.js';
+import { wellLayers } from './merge.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import type { FixedHeadInput, ModelInput, ObservationInput, WellInput } from './types.js';
 
 export type { ScenarioJson, VariantJson } from './schema.js';
+export { mergeVariant } from './merge.js';
 
 const SCHEMA_HINT = 'the keys and their forms are listed in the README, section "Scenario file"';
 
@@ -137,30 +137,6 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     inputFiles: [...loader.inputFiles],
     warnings: loader.warnings,
   };
-}
-
-/**
- * The scenario a variant describes: its top-level keys replace the baseline's; its wells merge with the
- * baseline's by id (same id: the fields given replace the baseline well's, new id: added, `rate: 0`: switched off).
- * The result has no variants. Wells given as CSV are merged when the scenario is resolved.
- */
-export function mergeVariant(base: ScenarioJson, variant: VariantJson): ScenarioJson {
-  const { name, wells, ...replacing } = variant;
-  const merged: ScenarioJson = { ...base };
-  delete merged.variants;
-  for (const [key, value] of Object.entries(replacing)) {
-    if (value !== undefined) (merged as Record<string, unknown>)[key] = value;
-  }
-  if (wells !== undefined) {
-    merged.wells = { layers: [...wellLayers(base.wells), { source: `variants "${name}".wells`, wells }] };
-  }
-  return merged;
-}
-
-function wellLayers(wells: ScenarioJson['wells']): WellLayer[] {
-  if (wells === undefined) return [];
-  if (typeof wells === 'string' || Array.isArray(wells)) return [{ source: 'wells', wells }];
-  return wells.layers;
 }
 
 /** Conductivity (or thickness) value that makes a cell active: finite and > 0 (NaN compares false). */
