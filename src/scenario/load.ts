@@ -209,7 +209,8 @@ class Loader {
     try {
       raster = await readRaster(absolute, { label: `${key} "${given}"` });
     } catch (thrown) {
-      if (thrown instanceof PiezomapError) throw thrown;
+      // The reader names the raster by the label given; add the scenario file, the path and the key.
+      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
       throw inputError(`${this.label}: ${key}: "${given}" cannot be read as a GeoTIFF: ${describeThrown(thrown)}`, { file: absolute, key });
     }
     this.inputFiles.add(absolute);
