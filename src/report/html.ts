@@ -1,0 +1,384 @@
+/**
+ * The self-contained HTML report of a `solve` or `compare` run: one file that opens from disk with no network.
+ * No scripts, no external fonts, stylesheets or images: maps are `data:` images, the convergence plot is inline
+ * SVG, and a Content-Security-Policy forbids everything else. Every user-supplied string is escaped.
+ */
+import { convergencePlotSvg } from './plot.js';
+import { dataUrl } from './png.js';
+import { escapeMarkup, formatFixed, formatSignificant } from './text.js';
+
+export interface ReportMap {
+  caption: string;
+  /** The map as an SVG document (preferred: sharp at any zoom). */
+  svg?: string;
+  /** Or as PNG bytes. */
+  png?: Uint8Array;
+  /** Path of the map file in the result folder, shown under the map. */
+  file?: string;
+}
+
+export interface ReportSolver {
+  method: string;
+  converged: boolean;
+  stopReason?: string;
+  iterations: number;
+  relativeResidual: number;
+  tolerance?: number;
+  criterion?: string;
+  setupSeconds?: number;
+  solveSeconds?: number;
+  convergenceFactor?: number | null;
+  notes?: string[];
+  /** Relative residual per iteration (index 0 = start), when recorded. */
+  history?: number[];
+}
+
+export interface ReportWell {
+  id: string;
+  x?: number;
+  y?: number;
+  row: number;
+  col: number;
+  /** length^3/time, negative = withdrawal. */
+  rate: number;
+  cellHead: number;
+  /** Drawdown against the baseline, for variants. */
+  drawdown?: number;
+}
+
+export interface ReportObservation {
+  id: string;
+  observed: number;
+  simulated: number;
+  /** simulated - observed. */
+  residual: number;
+  drawdown?: number;
+}
+
+export interface ReportRun {
+  /** `baseline` or the variant's name. */
+  name: string;
+  solver: ReportSolver;
+  budget: { terms: Array<{ term: string; inflow: number; outflow: number }>; discrepancyPercent: number };
+  head?: { min: number; max: number };
+  /** Largest drawdown against the baseline, for variants. */
+  maxDrawdown?: number;
+  wells: ReportWell[];
+  observations: ReportObservation[];
+  maps: ReportMap[];
+  warnings?: string[];
+}
+
+export interface ReportVariantRow {
+  name: string;
+  maxDrawdown: number;
+  totalWithdrawal: number;
+  discrepancyPercent: number;
+  converged: boolean;
+  /** Drawdown at each observation point, in the order of `observationIds`. */
+  observationDrawdowns: number[];
+}
+
+export interface ReportInput {
+  kind: 'solve' | 'compare';
+  title: string;
+  units: { length: string; time: string };
+  grid: { nx: number; ny: number; dx: number; dy: number; crs: string; activeCells: number; fixedHeadCells: number };
+  /** One run for `solve`; baseline first, then the variants, for `compare`. */
+  runs: ReportRun[];
+  /** `compare` only: one row per variant. */
+  variants?: ReportVariantRow[];
+  /** Column headings of `observationDrawdowns`. */
+  observationIds?: string[];
+  warnings: string[];
+  caution: string;
+  scenarioFile?: string;
+  /** e.g. "piezomap 0.1.0". */
+  program?: string;
+  /** When the run was made, as the caller wants it shown (e.g. ISO 8601). */
+  generatedAt?: string;
+  /** Wall time per stage, seconds. */
+  timings?: Array<{ stage: string; seconds: number }>;
+  /** Files written, relative to the result folder. */
+  files?: string[];
+}
+
+const e = escapeMarkup;
+
+/** Render the report as one HTML document. */
+export function renderReportHtml(input: ReportInput): string {
+  const L = input.units.length;
+  const T = input.units.time;
+  const flowUnit = `${L}\u00b3/${T}`;
+  const kindLabel = input.kind === 'solve' ? 'Steady head solution' : 'Scenario comparison';
+  const body: string[] = [];
+
+  body.push('<header>');
+  body.push(`<p class="kicker">${e(kindLabel)} \u00b7 confined aquifer, steady state</p>`);
+  body.push(`<h1>${e(input.title)}</h1>`);
+  const meta: string[] = [];
+  if (input.scenarioFile) meta.push(`scenario <code>${e(input.scenarioFile)}</code>`);
+  if (input.generatedAt) meta.push(e(input.generatedAt));
+  if (input.program) meta.push(e(input.program));
+  if (meta.length) body.push(`<p class="meta">${meta.join(' \u00b7 ')}</p>`);
+  body.push('</header>');
+  body.push(`<aside class="caution" role="note"><strong>Caution.</strong> ${e(input.caution)}</aside>`);
+
+  body.push(glance(input));
+
+  if (input.runs.length > 1) {
+    body.push('<nav><span>Jump to:</span>');
+    if (input.variants?.length) body.push('<a href="#variants">variants table</a>');
+    for (const run of input.runs) body.push(`<a href="#${anchor(run.name)}">${e(run.name)}</a>`);
+    body.push('</nav>');
+  }
+
+  if (input.kind === 'compare' && input.variants) body.push(variantsTable(input.variants, input.observationIds ?? [], L, flowUnit));
+
+  for (const run of input.runs) body.push(runSection(run, input, L, flowUnit));
+
+  body.push('<section><h2>Grid</h2><table class="facts">');
+  const g = input.grid;
+  body.push(row('Size', `${g.nx} \u00d7 ${g.ny} cells`));
+  body.push(row('Cell size', `${formatSignificant(g.dx, 6)} \u00d7 ${formatSignificant(g.dy, 6)} ${e(L)}`));
+  body.push(row('Coordinate reference system', e(g.crs)));
+  body.push(row('Active cells', g.activeCells.toLocaleString('en-US')));
+  body.push(row('Fixed-head cells', g.fixedHeadCells.toLocaleString('en-US')));
+  body.push('</table></section>');
+
+  body.push('<section><h2>Warnings</h2>');
+  if (input.warnings.length) body.push(`<ul class="warnings">${input.warnings.map((w) => `<li>${e(w)}</li>`).join('')}</ul>`);
+  else body.push('<p class="quiet">None.</p>');
+  body.push('</section>');
+
+  if (input.timings?.length) {
+    body.push('<section><h2>Timing</h2><table class="facts">');
+    for (const t of input.timings) body.push(row(e(t.stage), `${formatSignificant(t.seconds, 3)} s`));
+    body.push('</table></section>');
+  }
+  if (input.files?.length) {
+    body.push(`<section><h2>Files written</h2><ul class="files">${input.files.map((f) => `<li><code>${e(f)}</code></li>`).join('')}</ul></section>`);
+  }
+
+  body.push(`<footer><p>${e(input.caution)}</p></footer>`);
+
+  return [
+    '<!DOCTYPE html>',
+    '<html lang="en">',
+    '<head>',
+    '<meta charset="utf-8">',
+    // Nothing may load from anywhere but this file; no script may run at all.
+    `<meta http-equiv="Content-Security-Policy" content="default-src 'none'; img-src data:; style-src 'unsafe-inline'; base-uri 'none'; form-action 'none'">`,
+    '<meta name="viewport" content="width=device-width, initial-scale=1">',
+    `<title>${e(input.title)} \u2013 ${e(kindLabel)}</title>`,
+    `<style>${STYLE}</style>`,
+    '</head>',
+    '<body>',
+    '<main>',
+    ...body,
+    '</main>',
+    '</body>',
+    '</html>',
+    '',
+  ].join('\n');
+}
+
+function glance(input: ReportInput): string {
+  const first = input.runs[0];
+  const cards: string[] = [];
+  const L = input.units.length;
+  if (first?.head) cards.push(card('Head range', `${formatFixed(first.head.min, 2)} \u2013 ${formatFixed(first.head.max, 2)} ${e(L)}`, first.name));
+  if (input.variants?.length) {
+    let worst = input.variants[0]!;
+    for (const v of input.variants) if (v.maxDrawdown > worst.maxDrawdown) worst = v;
+    cards.push(card('Largest drawdown', `${formatFixed(worst.maxDrawdown, 2)} ${e(L)}`, worst.name));
+  }
+  const allConverged = input.runs.every((r) => r.solver.converged);
+  cards.push(card('Solver', allConverged ? 'converged' : 'NOT converged', input.runs.length > 1 ? `${input.runs.length} runs` : e(first?.solver.method ?? ''), allConverged ? '' : 'bad'));
+  let worstDiscrepancy = 0;
+  for (const r of input.runs) worstDiscrepancy = Math.max(worstDiscrepancy, Math.abs(r.budget.discrepancyPercent));
+  cards.push(card('Budget discrepancy', `${formatSignificant(worstDiscrepancy, 2)} %`, input.runs.length > 1 ? 'largest of all runs' : 'in \u2212 out'));
+  cards.push(card('Warnings', String(input.warnings.length), input.warnings.length ? 'see below' : 'none', input.warnings.length ? 'warn' : ''));
+  return `<section class="glance">${cards.join('')}</section>`;
+}
+
+function card(label: string, value: string, note: string, tone = ''): string {
+  return `<div class="card${tone ? ` ${tone}` : ''}"><div class="label">${label}</div><div class="value">${value}</div><div class="note">${e(note)}</div></div>`;
+}
+
+function row(label: string, value: string): string {
+  return `<tr><th scope="row">${label}</th><td>${value}</td></tr>`;
+}
+
+function num(v: number | undefined | null, decimals: number): string {
+  return `<td class="num">${formatFixed(v, decimals)}</td>`;
+}
+
+function variantsTable(variants: ReportVariantRow[], observationIds: string[], L: string, flowUnit: string): string {
+  const head = [
+    '<th scope="col">Variant</th>',
+    `<th scope="col" class="num">Max drawdown (${e(L)})</th>`,
+    ...observationIds.map((id) => `<th scope="col" class="num">Drawdown at ${e(id)} (${e(L)})</th>`),
+    `<th scope="col" class="num">Total withdrawal (${e(flowUnit)})</th>`,
+    '<th scope="col" class="num">Budget discrepancy (%)</th>',
+    '<th scope="col">Solver</th>',
+  ].join('');
+  const rows = variants.map((v) => {
+    const cells = [
+      `<th scope="row"><a href="#${anchor(v.name)}">${e(v.name)}</a></th>`,
+      num(v.maxDrawdown, 3),
+      ...observationIds.map((_, k) => num(v.observationDrawdowns[k], 3)),
+      num(v.totalWithdrawal, 1),
+      `<td class="num">${formatSignificant(v.discrepancyPercent, 2)}</td>`,
+      `<td>${v.converged ? 'converged' : '<span class="bad">not converged</span>'}</td>`,
+    ];
+    return `<tr>${cells.join('')}</tr>`;
+  });
+  return `<section id="variants"><h2>Variants against the baseline</h2><p class="quiet">Drawdown = baseline head \u2212 variant head (positive = lowered).</p><div class="scroll"><table class="data"><thead><tr>${head}</tr></thead><tbody>${rows.join('')}</tbody></table></div></section>`;
+}
+
+function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: string): string {
+  const parts: string[] = [];
+  const heading = input.runs.length > 1 ? (run.name === 'baseline' ? 'Baseline' : `Variant ${e(run.name)}`) : 'Result';
+  parts.push(`<section id="${anchor(run.name)}" class="run"><h2>${heading}</h2>`);
+
+  for (const map of run.maps) {
+    const src = map.svg ? dataUrl('image/svg+xml', map.svg) : map.png ? dataUrl('image/png', map.png) : null;
+    if (!src) continue;
+    parts.push(
+      `<figure class="map"><img src="${src}" alt="${e(map.caption)}"><figcaption>${e(map.caption)}${map.file ? ` \u00b7 <code>${e(map.file)}</code>` : ''}</figcaption></figure>`,
+    );
+  }
+
+  parts.push('<div class="columns">');
+  // Water budget
+  let totalIn = 0;
+  let totalOut = 0;
+  const budgetRows = run.budget.terms.map((t) => {
+    totalIn += t.inflow;
+    totalOut += t.outflow;
+    return `<tr><th scope="row">${e(t.term)}</th>${num(t.inflow, 2)}${num(t.outflow, 2)}${num(t.inflow - t.outflow, 2)}</tr>`;
+  });
+  parts.push(
+    `<div><h3>Water budget (${e(flowUnit)})</h3><table class="data"><thead><tr><th scope="col">Term</th><th scope="col" class="num">In</th><th scope="col" class="num">Out</th><th scope="col" class="num">Net</th></tr></thead><tbody>${budgetRows.join('')}</tbody>` +
+      `<tfoot><tr><th scope="row">Total</th>${num(totalIn, 2)}${num(totalOut, 2)}${num(totalIn - totalOut, 2)}</tr>` +
+      `<tr><th scope="row">Discrepancy</th><td class="num" colspan="3">${formatSignificant(run.budget.discrepancyPercent, 3)} %</td></tr></tfoot></table></div>`,
+  );
+
+  // Solver facts
+  const s = run.solver;
+  const facts: string[] = [];
+  facts.push(row('Method', e(s.method)));
+  facts.push(row('Outcome', s.converged ? `converged${s.stopReason ? ` (${e(s.stopReason)})` : ''}` : `<span class="bad">not converged${s.stopReason ? ` (${e(s.stopReason)})` : ''}</span>`));
+  facts.push(row('Iterations', String(s.iterations)));
+  facts.push(row('Relative residual', formatSignificant(s.relativeResidual, 3)));
+  if (s.tolerance !== undefined) facts.push(row('Tolerance', formatSignificant(s.tolerance, 3)));
+  if (s.criterion) facts.push(row('Stopping rule', e(s.criterion)));
+  if (s.convergenceFactor !== undefined && s.convergenceFactor !== null) facts.push(row('Residual reduction per iteration', formatSignificant(s.convergenceFactor, 4)));
+  if (s.setupSeconds !== undefined) facts.push(row('Setup time', `${formatSignificant(s.setupSeconds, 3)} s`));
+  if (s.solveSeconds !== undefined) facts.push(row('Solve time', `${formatSignificant(s.solveSeconds, 3)} s`));
+  if (run.head) facts.push(row('Head range', `${formatFixed(run.head.min, 3)} \u2013 ${formatFixed(run.head.max, 3)} ${e(L)}`));
+  if (run.maxDrawdown !== undefined) facts.push(row('Largest drawdown', `${formatFixed(run.maxDrawdown, 3)} ${e(L)}`));
+  parts.push(`<div><h3>Solver</h3><table class="facts">${facts.join('')}</table>`);
+  if (s.notes?.length) parts.push(`<ul class="notes">${s.notes.map((n) => `<li>${e(n)}</li>`).join('')}</ul>`);
+  parts.push('</div></div>');
+
+  parts.push(
+    `<figure class="plot"><figcaption>Convergence: relative residual per iteration${s.history?.length ? '' : ' (history not recorded)'}</figcaption>${convergencePlotSvg(s.history ?? [], { tolerance: s.tolerance, title: `Convergence of ${run.name}` })}</figure>`,
+  );
+
+  // Wells
+  parts.push(`<h3>Wells</h3>`);
+  if (run.wells.length === 0) parts.push('<p class="quiet">No wells.</p>');
+  else {
+    const hasXY = run.wells.some((w) => w.x !== undefined);
+    const hasDd = run.wells.some((w) => w.drawdown !== undefined);
+    const head =
+      `<th scope="col">Id</th>${hasXY ? `<th scope="col" class="num">x</th><th scope="col" class="num">y</th>` : ''}` +
+      `<th scope="col" class="num">Row</th><th scope="col" class="num">Column</th><th scope="col" class="num">Rate (${e(flowUnit)})</th>` +
+      `<th scope="col" class="num">Cell head (${e(L)})</th>${hasDd ? `<th scope="col" class="num">Drawdown (${e(L)})</th>` : ''}`;
+    const rows = run.wells.map(
+      (w) =>
+        `<tr><th scope="row">${e(w.id)}</th>${hasXY ? num(w.x, 2) + num(w.y, 2) : ''}<td class="num">${w.row}</td><td class="num">${w.col}</td>${num(w.rate, 2)}${num(w.cellHead, 3)}${hasDd ? num(w.drawdown, 3) : ''}</tr>`,
+    );
+    parts.push(`<div class="scroll"><table class="data"><thead><tr>${head}</tr></thead><tbody>${rows.join('')}</tbody></table></div>`);
+    parts.push('<p class="quiet">Cell head is the mean head of the well\u2019s cell, not the head inside the pumped well bore.</p>');
+  }
+
+  // Observations
+  parts.push(`<h3>Observation points</h3>`);
+  if (run.observations.length === 0) parts.push('<p class="quiet">No observation points.</p>');
+  else {
+    const hasDd = run.observations.some((o) => o.drawdown !== undefined);
+    const rows = run.observations.map(
+      (o) => `<tr><th scope="row">${e(o.id)}</th>${num(o.observed, 3)}${num(o.simulated, 3)}${num(o.residual, 3)}${hasDd ? num(o.drawdown, 3) : ''}</tr>`,
+    );
+    let sum = 0;
+    let sumSq = 0;
+    let count = 0;
+    for (const o of run.observations) {
+      if (Number.isFinite(o.residual)) {
+        sum += o.residual;
+        sumSq += o.residual * o.residual;
+        count++;
+      }
+    }
+    parts.push(
+      `<div class="scroll"><table class="data"><thead><tr><th scope="col">Id</th><th scope="col" class="num">Observed (${e(L)})</th><th scope="col" class="num">Simulated (${e(L)})</th><th scope="col" class="num">Residual (${e(L)})</th>${hasDd ? `<th scope="col" class="num">Drawdown (${e(L)})</th>` : ''}</tr></thead><tbody>${rows.join('')}</tbody></table></div>`,
+    );
+    if (count > 0) {
+      parts.push(
+        `<p class="quiet">Residual = simulated \u2212 observed. Mean ${formatFixed(sum / count, 3)} ${e(L)}, root mean square ${formatFixed(Math.sqrt(sumSq / count), 3)} ${e(L)} over ${count} point${count === 1 ? '' : 's'}.</p>`,
+      );
+    }
+  }
+  if (run.warnings?.length) parts.push(`<h3>Warnings for this run</h3><ul class="warnings">${run.warnings.map((w) => `<li>${e(w)}</li>`).join('')}</ul>`);
+  parts.push('</section>');
+  return parts.join('\n');
+}
+
+/** An id attribute value from a run name: letters, digits, - and _ kept, everything else dropped. */
+function anchor(name: string): string {
+  return `run-${name.replace(/[^A-Za-z0-9_-]/g, '') || 'unnamed'}`;
+}
+
+const STYLE = `
+:root { --ink: #1d2327; --muted: #5b6770; --line: #d9dee1; --accent: #1f4e79; --warm: #b5651d; --paper: #ffffff; --wash: #f4f6f7; }
+* { box-sizing: border-box; }
+body { margin: 0; background: var(--wash); color: var(--ink); font: 15px/1.5 'DejaVu Sans', 'Noto Sans', 'Liberation Sans', Arial, sans-serif; }
+main { max-width: 1180px; margin: 0 auto; padding: 24px 28px 48px; background: var(--paper); min-height: 100vh; }
+header { border-bottom: 3px solid var(--accent); padding-bottom: 10px; margin-bottom: 16px; }
+.kicker { margin: 0; color: var(--accent); font-size: 13px; letter-spacing: .06em; text-transform: uppercase; }
+h1 { margin: 4px 0 4px; font-size: 26px; line-height: 1.25; overflow-wrap: anywhere; }
+h2 { font-size: 20px; margin: 32px 0 10px; padding-bottom: 4px; border-bottom: 1px solid var(--line); }
+h3 { font-size: 16px; margin: 20px 0 8px; }
+.meta, .quiet { color: var(--muted); font-size: 13px; margin: 4px 0; }
+code { font-family: 'DejaVu Sans Mono', 'Liberation Mono', monospace; font-size: .92em; overflow-wrap: anywhere; }
+.caution { border-left: 5px solid var(--warm); background: #fbf3ea; padding: 10px 14px; margin: 12px 0 20px; }
+.glance { display: grid; grid-template-columns: repeat(auto-fit, minmax(170px, 1fr)); gap: 12px; }
+.card { border: 1px solid var(--line); border-radius: 6px; padding: 10px 12px; background: var(--paper); }
+.card .label { color: var(--muted); font-size: 12px; text-transform: uppercase; letter-spacing: .05em; }
+.card .value { font-size: 20px; font-weight: bold; margin: 2px 0; }
+.card .note { color: var(--muted); font-size: 12px; overflow-wrap: anywhere; }
+.card.bad { border-color: #a1262b; } .card.bad .value, .bad { color: #a1262b; font-weight: bold; }
+.card.warn { border-color: var(--warm); }
+nav { margin: 18px 0 0; font-size: 14px; } nav span { color: var(--muted); margin-right: 8px; } nav a { margin-right: 12px; color: var(--accent); }
+figure { margin: 16px 0; }
+figure.map img { display: block; max-width: 100%; height: auto; border: 1px solid var(--line); }
+figcaption { color: var(--muted); font-size: 13px; margin-top: 6px; }
+figure.plot svg { max-width: 100%; height: auto; font-family: inherit; }
+.columns { display: grid; grid-template-columns: repeat(auto-fit, minmax(360px, 1fr)); gap: 8px 32px; }
+table { border-collapse: collapse; font-size: 14px; }
+table.data { width: 100%; }
+table.data th, table.data td { padding: 5px 10px; border-bottom: 1px solid var(--line); text-align: left; }
+table.data thead th { border-bottom: 2px solid var(--ink); font-size: 13px; vertical-align: bottom; }
+table.data tfoot th, table.data tfoot td { border-top: 2px solid var(--ink); font-weight: bold; }
+table.facts th { text-align: left; font-weight: normal; color: var(--muted); padding: 3px 18px 3px 0; vertical-align: top; }
+table.facts td { padding: 3px 0; overflow-wrap: anywhere; }
+th, td { overflow-wrap: anywhere; }
+.num { text-align: right !important; font-variant-numeric: tabular-nums; white-space: nowrap; }
+.scroll { overflow-x: auto; }
+ul.warnings li { margin: 4px 0; } ul.notes { color: var(--muted); font-size: 13px; }
+footer { margin-top: 40px; border-top: 1px solid var(--line); color: var(--muted); font-size: 13px; }
+@media print { body { background: #fff; } main { padding: 0; } figure, table { break-inside: avoid; } }
+`;
