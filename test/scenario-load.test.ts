@@ -83,6 +83,8 @@ beforeAll(() => {
   writeTestRaster(join(dir, 'k_shifted.tif'), { ...grid, transform: [x0 + 50, 100, 0, y0, 0, -100] }, new Array(12).fill(1), nodata);
   writeTestRaster(join(dir, 'k_32634.tif'), { ...grid, epsg: 32634 }, new Array(12).fill(1), nodata);
   writeTestRaster(join(dir, 'k_none.tif'), grid, new Array(12).fill(nodata), nodata);
+  writeTestRaster(join(dir, 'k_userdefined.tif'), { ...grid, epsg: 32767 }, new Array(12).fill(1), nodata);
+  writeFileSync(join(dir, 'not_a_tiff.tif'), 'id,x,y\n');
   writeTestRaster(join(dir, 'k_lonlat.tif'), { nx, ny, transform: [15, 0.001, 0, 45.2, 0, -0.001], epsg: 4326 }, new Array(12).fill(1), nodata);
 });
 
@@ -232,6 +234,14 @@ describe('loadScenario', () => {
     expect(crs.message).toContain('fixedHeads[0].raster "k_32634.tif" is not on the grid of aquifer.conductivity "k.tif": CRS EPSG:32633 vs EPSG:32634');
   });
 
+  it('passes on a raster reader error with the scenario file and key in front', async () => {
+    const path = scenario('damaged.json', { ...base, recharge: 'not_a_tiff.tif' });
+    const error = await loadError(path);
+    expect(error.code).toBe('input');
+    expect(error.message).toMatch(new RegExp(`^${path.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}: recharge "not_a_tiff.tif": `));
+    expect(error.detail).toMatchObject({ file: join(dir, 'not_a_tiff.tif'), key: 'recharge' });
+  });
+
   it('refuses a conductivity raster without any active cell', async () => {
     const error = await loadError(scenario('inactive.json', { ...base, aquifer: { conductivity: 'k_none.tif', thickness: 10 } }));
     expect(error.message).toContain('aquifer.conductivity "k_none.tif" has no active cell');
@@ -326,6 +336,14 @@ describe('pointCrs', () => {
     expect(unknown.message).toContain('pointCrs EPSG:99999 to the raster CRS EPSG:32633: EPSG:99999 is not a known EPSG code');
     const grid = await loadError(scenario('crs-grid.json', { ...base, pointCrs: 'EPSG:27700', wells: [{ id: 'W1', x: 1, y: 2, rate: -1 }] }));
     expect(grid.message).toContain('needs the datum grid-shift file');
+  });
+
+  it('refuses pointCrs when the rasters have no EPSG code, and loads them without it', async () => {
+    const userDefined = { ...base, aquifer: { conductivity: 'k_userdefined.tif', thickness: 10 }, wells: [{ id: 'W1', x: 539150, y: 5005150, rate: -1 }] };
+    const { model } = await loadScenario(scenario('crs-user.json', userDefined));
+    expect(model.grid.crs?.epsg ?? null).toBeNull();
+    const error = await loadError(scenario('crs-user-points.json', { ...userDefined, pointCrs: 'EPSG:4326' }));
+    expect(error.message).toContain('pointCrs is EPSG:4326, but aquifer.conductivity "k_userdefined.tif" has no EPSG code');
   });
 
   it('names the well whose coordinates are not lon/lat', async () => {

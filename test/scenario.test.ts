@@ -141,6 +141,14 @@ describe('parseScenarioJson', () => {
     expect(errorsOf({ ...minimal, wells: 12 })).toEqual(['scenario.json: wells: expected a list of wells or the path of a CSV file, got 12']);
   });
 
+  it('takes a whole-number id as text, and refuses an empty one', () => {
+    expect(valid({ ...minimal, wells: [{ id: 7, x: 0, y: 0, rate: -1 }] }).wells).toEqual([{ id: '7', x: 0, y: 0, rate: -1 }]);
+    expect(errorsOf({ ...minimal, wells: [{ id: ' ', x: 0, y: 0, rate: -1 }] })).toEqual(['scenario.json: wells[0].id: must not be empty']);
+    expect(errorsOf({ ...minimal, observations: [{ id: 1.5, x: 0, y: 0, head: 1 }] })).toEqual([
+      'scenario.json: observations[0].id: expected a string, got 1.5',
+    ]);
+  });
+
   it('refuses duplicate well and observation ids', () => {
     const lines = errorsOf({
       ...minimal,

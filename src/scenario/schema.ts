@@ -43,7 +43,9 @@ function dispatch<T>(expected: string, pick: (value: unknown) => z.ZodType<T> | 
 
 const finite = z.number();
 const filePath = z.string().trim().min(1, { error: 'must be a file path, not empty' });
-const identifier = z.string().trim().min(1, { error: 'must not be empty' });
+const nonEmpty = z.string().trim().min(1, { error: 'must not be empty' });
+/** Well and observation ids: text; a whole number (as GIS exports often write ids) is taken as its text. */
+const identifier = z.preprocess((value) => (typeof value === 'number' && Number.isInteger(value) ? String(value) : value), nonEmpty);
 
 /** number | path: e.g. thickness (a number must be > 0) and recharge (any finite number). */
 function numberOrPath(numberSchema: z.ZodType<number>, expected: string) {
@@ -84,7 +86,7 @@ export const aquiferSchema = strict({
 export const edgeNames = ['west', 'east', 'north', 'south'] as const;
 export type EdgeName = (typeof edgeNames)[number];
 
-const groupName = identifier.optional();
+const groupName = nonEmpty.optional();
 
 export const fixedHeadRasterSchema = strict({ raster: filePath, name: groupName });
 export const fixedHeadEdgeSchema = strict({ edge: z.enum(edgeNames), head: finite, name: groupName });
