@@ -141,6 +141,62 @@ export function heterogeneousCase(nx: number, ny: number, seed: number): TestCas
   return { nx, ny, dx: 10, dy: 25, k, thickness: 20, anisotropy: 10, fixedHead, source };
 }
 
+/**
+ * A spatially correlated field: log10 K = z clipped to [-3, 3] (contrast up to 1e6), z Gaussian-filtered white
+ * noise with correlation length `sigma` cells scaled to standard deviation 1.5; inactive holes where a second
+ * field is high; fixed heads on the west and east columns; anisotropy 10 and 10 x 25 m cells.
+ */
+export function correlatedCase(nx: number, ny: number, seed: number, sigma = 4): TestCase {
+  const z = smoothNoise(nx, ny, sigma, seed);
+  const holes = smoothNoise(nx, ny, sigma, seed + 1);
+  const n = nx * ny;
+  const k = new Float64Array(n);
+  const fixedHead = new Float64Array(n).fill(NaN);
+  const source = new Float64Array(n);
+  for (let p = 0; p < n; p++) {
+    k[p] = Math.pow(10, Math.min(3, Math.max(-3, 1.5 * z[p]!)));
+    if (holes[p]! > 1.8 && p % nx > 1 && p % nx < nx - 2) k[p] = NaN;
+  }
+  for (let i = 0; i < ny; i++) {
+    fixedHead[i * nx] = 100;
+    fixedHead[i * nx + nx - 1] = 90;
+  }
+  const p = Math.floor(ny / 2) * nx + Math.floor(nx / 2);
+  if (k[p]! > 0) source[p] = -500;
+  return { nx, ny, dx: 10, dy: 25, k, thickness: 20, anisotropy: 10, fixedHead, source };
+}
+
+/** Gaussian white noise filtered by a Gaussian of `sigma` cells (edges clamped), scaled to unit variance. */
+function smoothNoise(nx: number, ny: number, sigma: number, seed: number): Float64Array {
+  const rnd = random(seed);
+  const n = nx * ny;
+  const a = new Float64Array(n);
+  for (let p = 0; p < n; p++) a[p] = Math.sqrt(-2 * Math.log(1 - rnd())) * Math.cos(2 * Math.PI * rnd());
+  const r = Math.ceil(3 * sigma);
+  const w = Array.from({ length: 2 * r + 1 }, (_, k) => Math.exp(-((k - r) ** 2) / (2 * sigma * sigma)));
+  const t = new Float64Array(n);
+  for (let i = 0; i < ny; i++)
+    for (let j = 0; j < nx; j++) {
+      let s = 0;
+      for (let k = -r; k <= r; k++) s += w[k + r]! * a[i * nx + Math.min(nx - 1, Math.max(0, j + k))]!;
+      t[i * nx + j] = s;
+    }
+  for (let i = 0; i < ny; i++)
+    for (let j = 0; j < nx; j++) {
+      let s = 0;
+      for (let k = -r; k <= r; k++) s += w[k + r]! * t[Math.min(ny - 1, Math.max(0, i + k)) * nx + j]!;
+      a[i * nx + j] = s;
+    }
+  let mean = 0;
+  for (let p = 0; p < n; p++) mean += a[p]!;
+  mean /= n;
+  let v = 0;
+  for (let p = 0; p < n; p++) v += (a[p]! - mean) ** 2;
+  const sd = Math.sqrt(v / n);
+  for (let p = 0; p < n; p++) a[p] = (a[p]! - mean) / sd;
+  return a;
+}
+
 /** Model Poisson problem: n x n unknowns with zero Dirichlet edges (a ring of fixed cells), unit conductances. */
 export function poissonCase(n: number): TestCase {
   const nx = n + 2;

@@ -2,7 +2,8 @@ import { describe, expect, it } from 'vitest';
 import { PiezomapError } from '../src/errors.js';
 import { BandedCholesky } from '../src/solvers/banded.js';
 import { chooseAutoMethod, createSolver, solverRegistry } from '../src/solvers/registry.js';
-import { buildSystem, denseSolve, heterogeneousCase, maxRelativeError } from './solvers-fixtures.js';
+import { EigenvalueDecomposition } from 'ml-matrix';
+import { buildSystem, denseMatrix, denseSolve, heterogeneousCase, maxRelativeError } from './solvers-fixtures.js';
 
 const methods = Object.keys(solverRegistry);
 
@@ -43,18 +44,41 @@ describe('createSolver', () => {
   });
 });
 
+const small = buildSystem(heterogeneousCase(24, 19, 3));
+const smallReference = denseSolve(small.op, small.b);
+// ||x - x*||_2 <= ||A^{-1}||_2 ||b - A x||_2 = ||r||_2 / lambda_min(A) for SPD A (standard perturbation bound,
+// Golub & Van Loan 2.6); lambda_min from ml-matrix's symmetric eigendecomposition.
+const smallLambdaMin = Math.min(...new EigenvalueDecomposition(denseMatrix(small.op), { assumeSymmetric: true }).realEigenvalues);
+
 describe.each(methods)('method %s', (method) => {
   it('reaches the direct reference heads on a 24x19 grid with K contrast 1e6, anisotropy 10, holes, 10x25 m cells', () => {
     // Reference: dense LU solve with ml-matrix of the system built from the discretisation spec.
-    const { op, b } = buildSystem(heterogeneousCase(24, 19, 3));
-    const ref = denseSolve(op, b);
+    const { op, b } = small;
+    const ref = smallReference;
     const solver = createSolver(method, op);
     const x = new Float64Array(op.n);
     const stationary = method === 'jacobi' || method === 'gauss-seidel' || method === 'sor';
     const stats = solver.solve(b, x, { tolerance: 1e-10, maxIterations: stationary ? 3_000_000 : 20_000 });
     expect(stats.stopReason).toBe('converged');
     expect(stats.relativeResidual).toBeLessThanOrEqual(1e-10);
-    // relative residual 1e-10 bounds the head error by cond(A) * 1e-10; the ratio to the reference is checked loosely
+    let err = 0;
+    for (let i = 0; i < op.n; i++) err += (x[i]! - ref[i]!) ** 2;
+    const bound = (stats.relativeResidual * Math.hypot(...b)) / smallLambdaMin;
+    expect(Math.sqrt(err)).toBeLessThanOrEqual(1.01 * bound + 1e-9);
+    expect(maxRelativeError(x, ref)).toBeLessThan(1e-5);
+  });
+});
+
+describe.each(methods.filter((m) => m.startsWith('pcg') || m === 'cg'))('method %s on a multilevel grid', (method) => {
+  it('reaches the banded Cholesky heads on a 70x52 grid with K contrast 1e6, anisotropy 10 and holes', () => {
+    // Reference: banded Cholesky, itself checked against ml-matrix above. 3640 cells: multigrid has 3 levels.
+    const { op, b } = buildSystem(heterogeneousCase(70, 52, 9));
+    const ref = new Float64Array(op.n);
+    new BandedCholesky(op).solve(b, ref);
+    const x = new Float64Array(op.n);
+    const stats = createSolver(method, op).solve(b, x, { tolerance: 1e-11, maxIterations: 50_000 });
+    expect(stats.stopReason).toBe('converged');
+    // measured errors 2e-8 .. 9e-8 of the head range; cond(A) ~ 1e6 x grid factor limits what 1e-11 buys
     expect(maxRelativeError(x, ref)).toBeLessThan(1e-6);
   });
 });

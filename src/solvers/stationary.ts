@@ -10,6 +10,8 @@ export type StationaryKind = 'jacobi' | 'gauss-seidel' | 'sor';
 const FIRST_VERDICT = 64;
 /** The verdict is revisited every so many iterations. */
 const VERDICT_EVERY = 16;
+/** Residual growth beyond transient amplification (non-normal SOR iteration matrices) that counts as divergence. */
+const DIVERGED_GROWTH = 1e4;
 
 /**
  * The classical splittings A = M - N iterated as x <- x + M^{-1}(b - A x):
@@ -112,7 +114,7 @@ export class StationarySolver implements Solver {
       }
       if (k >= FIRST_VERDICT && k % VERDICT_EVERY === 0 && k > anchorK) {
         rho = Math.pow(rNorm / anchorNorm, 1 / (k - anchorK));
-        if (rho >= 1 && rNorm > monitor.initialResidual) {
+        if (rho >= 1 && rNorm > DIVERGED_GROWTH * monitor.initialResidual) {
           stop = 'diverging';
           notes.push(
             `the residual grows: spectral radius estimate ${rho.toFixed(6)} >= 1, the iteration cannot converge; ` +
