@@ -8,7 +8,8 @@ import { join, resolve } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { PiezomapError } from '../src/errors.js';
 import { loadScenario, mergeVariant, resolveScenario } from '../src/scenario/load.js';
-import { writeArrayBuffer } from 'geotiff';
+import type { Crs } from '../src/grid.js';
+import { encodeFloat32GeoTiff } from '../src/raster/write.js';
 
 let dir: string;
 
@@ -27,21 +28,19 @@ interface TestGrid {
   epsg: number;
 }
 
-/** A single-band Float32 GeoTIFF on a north-up grid with an EPSG code and a GDAL nodata value. */
+/**
+ * A single-band Float32 GeoTIFF on a north-up grid with an EPSG code (32767: user-defined) and a GDAL nodata value,
+ * written with the project's encoder (its values and tags are checked against GDAL in the raster tests).
+ */
 function writeTestRaster(path: string, g: TestGrid, values: number[], noData: number): void {
   const geographic = g.epsg === 4326;
-  const metadata: Record<string, unknown> = {
-    width: g.nx,
-    height: g.ny,
-    ModelPixelScale: [g.transform[1], -g.transform[5], 0],
-    ModelTiepoint: [0, 0, 0, g.transform[0], g.transform[3], 0],
-    GTModelTypeGeoKey: geographic ? 2 : 1,
-    GTRasterTypeGeoKey: 1,
-    GDAL_NODATA: `${noData}`,
-    ...(geographic ? { GeographicTypeGeoKey: g.epsg } : { ProjectedCSTypeGeoKey: g.epsg }),
-  };
+  const crs: Crs =
+    g.epsg === 32767
+      ? { epsg: null, geographic: false, geoKeys: { GTModelTypeGeoKey: 1, GTRasterTypeGeoKey: 1, ProjectedCSTypeGeoKey: 32767, PCSCitationGeoKey: 'invented local grid' } }
+      : { epsg: g.epsg, geographic, geoKeys: {} };
   mkdirSync(resolve(path, '..'), { recursive: true });
-  writeFileSync(path, Buffer.from(writeArrayBuffer(Float32Array.from(values), metadata)));
+  const cells = values.map((v) => (v === noData ? NaN : v));
+  writeFileSync(path, encodeFloat32GeoTiff({ nx: g.nx, ny: g.ny, transform: g.transform, crs }, cells, { nodata: noData, tileSize: 16 }));
 }
 
 function write(name: string, text: string): string {
@@ -151,6 +150,12 @@ describe('loadScenario', () => {
     expect(model.observations).toEqual([]);
     expect(model.solver).toEqual({ method: 'auto', tolerance: 1e-8, maxIterations: 20000 });
     expect(model.warnings).toEqual([]);
+  });
+
+  it('warns when units.length disagrees with the linear unit of the raster CRS', async () => {
+    const { model } = await loadScenario(scenario('feet.json', { ...base, units: { length: 'ft' } }));
+    expect(model.units).toEqual({ length: 'ft', time: 'd' });
+    expect(model.warnings).toEqual(['units.length is "ft" but the CRS of "k.tif" measures in metre: cell sizes are taken in metre; keep the other inputs consistent']);
   });
 
   it('fixes every cell of the named outer row or column', async () => {

@@ -6,7 +6,7 @@
 import { execFileSync } from 'node:child_process';
 import { describe, expect, it } from 'vitest';
 import { PiezomapError } from '../src/errors.js';
-import { makeTransform, parseEpsg, projectionFor } from '../src/scenario/crs.js';
+import { linearUnitOf, makeTransform, parseEpsg, projectionFor } from '../src/scenario/crs.js';
 import { mergeVariant } from '../src/scenario/merge.js';
 import { closest, parseScenarioJson, type ScenarioJson } from '../src/scenario/schema.js';
 import { findJsonSyntaxError, lineColumn, parseCsv } from '../src/scenario/text.js';
@@ -311,6 +311,14 @@ describe('crs', () => {
     const shift = thrownBy(() => projectionFor(27700));
     expect(shift.code).toBe('input');
     expect(shift.message).toMatch(/needs the datum grid-shift file "OSTN15_NTv2_OSGBtoETRS.gsb"/);
+  });
+
+  it('knows the linear unit of projected codes (epsg-index "unit" field) and none for geographic ones', () => {
+    expect(linearUnitOf(32633)).toBe('metre');
+    expect(linearUnitOf(2154)).toBe('metre');
+    expect(linearUnitOf(2227)).toMatch(/US survey foot/i); // NAD83 / California zone 3 (ftUS)
+    expect(linearUnitOf(4326)).toBeUndefined();
+    expect(linearUnitOf(99999)).toBeUndefined();
   });
 
   it('refuses coordinates that are not lon/lat for a geographic source instead of returning nonsense', () => {

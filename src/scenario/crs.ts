@@ -113,7 +113,22 @@ export function makeTransform(fromEpsg: number, toEpsg: number): PointTransform 
   return { from, to, forward };
 }
 
+/**
+ * The linear unit of a projected EPSG CRS ("metre", "US survey foot", ...), or undefined when unknown or geographic.
+ * Never throws: it only feeds a warning.
+ */
+export function linearUnitOf(epsg: number): string | undefined {
+  if ((epsg > 32600 && epsg <= 32660) || (epsg > 32700 && epsg <= 32760) || epsg === 3857) return 'metre';
+  try {
+    const entry = readEpsgIndexEntry(epsg);
+    return entry.kind === 'CRS-PROJCRS' && typeof entry.unit === 'string' ? entry.unit : undefined;
+  } catch {
+    return undefined;
+  }
+}
+
 interface EpsgIndexEntry {
+  unit?: string;
   code?: string;
   kind?: string;
   name?: string;

@@ -16,7 +16,7 @@ import { crsLabel, gridBounds, gridDifference, type Grid } from '../grid.js';
 import { describeThrown, inputError, PiezomapError } from '../errors.js';
 import { readRaster } from '../raster/read.js';
 import type { RasterData } from '../raster/types.js';
-import { makeTransform, parseEpsg, type PointTransform } from './crs.js';
+import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from './crs.js';
 import {
   parseScenarioJson,
   solverSchema,
@@ -244,10 +244,11 @@ class Loader {
         { file: this.path(given), key: 'aquifer.conductivity', hint: 'reproject the rasters to a projected CRS in metres or feet, e.g. gdalwarp -t_srs EPSG:326zz (WGS 84 / UTM zone zz north)' },
       );
     }
-    const unit = grid.crs?.linearUnit;
+    const epsg = grid.crs?.epsg;
+    const unit = grid.crs?.linearUnit ?? (epsg != null ? linearUnitOf(epsg) : undefined);
     if (unit) {
       const metres = /met(er|re)/i.test(unit);
-      const feet = /\b(foot|feet|ft)\b/i.test(unit);
+      const feet = /(foot|feet|\bft\b)/i.test(unit);
       if ((metres && lengthUnit === 'ft') || (feet && lengthUnit === 'm')) {
         this.warn(`units.length is "${lengthUnit}" but the CRS of "${given}" measures in ${unit}: cell sizes are taken in ${unit}; keep the other inputs consistent`);
       }
