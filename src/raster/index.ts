@@ -1,0 +1,5 @@
+export { readRaster, MAX_CELLS } from './read.js';
+export type { ReadRasterOptions } from './read.js';
+export { encodeFloat32GeoTiff } from './write.js';
+export type { EncodeOptions } from './write.js';
+export type { RasterData, WriteRasterOptions } from './types.js';
