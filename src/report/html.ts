@@ -269,7 +269,8 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   const s = run.solver;
   const facts: string[] = [];
   facts.push(row('Method', e(s.method)));
-  facts.push(row('Outcome', s.converged ? `converged${s.stopReason ? ` (${e(s.stopReason)})` : ''}` : `<span class="bad">not converged${s.stopReason ? ` (${e(s.stopReason)})` : ''}</span>`));
+  const reason = s.stopReason && s.stopReason !== 'converged' ? ` (${e(s.stopReason)})` : '';
+  facts.push(row('Outcome', s.converged ? `converged${reason}` : `<span class="bad">not converged${reason}</span>`));
   facts.push(row('Iterations', String(s.iterations)));
   facts.push(row('Relative residual', formatSignificant(s.relativeResidual, 3)));
   if (s.tolerance !== undefined) facts.push(row('Tolerance', formatSignificant(s.tolerance, 3)));
@@ -355,10 +356,10 @@ h3 { font-size: 16px; margin: 20px 0 8px; }
 .meta, .quiet { color: var(--muted); font-size: 13px; margin: 4px 0; }
 code { font-family: 'DejaVu Sans Mono', 'Liberation Mono', monospace; font-size: .92em; overflow-wrap: anywhere; }
 .caution { border-left: 5px solid var(--warm); background: #fbf3ea; padding: 10px 14px; margin: 12px 0 20px; }
-.glance { display: grid; grid-template-columns: repeat(auto-fit, minmax(170px, 1fr)); gap: 12px; }
+.glance { display: grid; grid-template-columns: repeat(auto-fit, minmax(190px, 1fr)); gap: 12px; }
 .card { border: 1px solid var(--line); border-radius: 6px; padding: 10px 12px; background: var(--paper); }
 .card .label { color: var(--muted); font-size: 12px; text-transform: uppercase; letter-spacing: .05em; }
-.card .value { font-size: 20px; font-weight: bold; margin: 2px 0; }
+.card .value { font-size: 19px; font-weight: bold; margin: 2px 0; }
 .card .note { color: var(--muted); font-size: 12px; overflow-wrap: anywhere; }
 .card.bad { border-color: #a1262b; } .card.bad .value, .bad { color: #a1262b; font-weight: bold; }
 .card.warn { border-color: var(--warm); }
@@ -374,8 +375,8 @@ table.data th, table.data td { padding: 5px 10px; border-bottom: 1px solid var(-
 table.data thead th { border-bottom: 2px solid var(--ink); font-size: 13px; vertical-align: bottom; }
 table.data tfoot th, table.data tfoot td { border-top: 2px solid var(--ink); font-weight: bold; }
 table.facts th { text-align: left; font-weight: normal; color: var(--muted); padding: 3px 18px 3px 0; vertical-align: top; }
-table.facts td { padding: 3px 0; overflow-wrap: anywhere; }
-th, td { overflow-wrap: anywhere; }
+table.facts td { padding: 3px 0; overflow-wrap: break-word; }
+th, td { overflow-wrap: break-word; }
 .num { text-align: right !important; font-variant-numeric: tabular-nums; white-space: nowrap; }
 .scroll { overflow-x: auto; }
 ul.warnings li { margin: 4px 0; } ul.notes { color: var(--muted); font-size: 13px; }
