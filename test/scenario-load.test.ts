@@ -203,6 +203,12 @@ describe('loadScenario', () => {
     expect(error.message).toBe(`${path} line 3, column 20: invalid JSON: trailing comma before "}"`);
   });
 
+  it('refuses a key given twice, which JSON.parse would silently resolve', async () => {
+    const path = write('twice.json', JSON.stringify(base, null, 2).replace('"title"', '"recharge": 0.001,\n  "recharge": 0.002,\n  "title"'));
+    const error = await loadError(path);
+    expect(error.message).toBe(`${path} line 3, column 3: the key "recharge" appears twice in the same object`);
+  });
+
   it('reads paths relative to the scenario file, not to the working folder', async () => {
     writeTestRaster(join(dir, 'rasters', 'k.tif'), grid, new Array(12).fill(2), nodata);
     const path = scenario('scenarios/relative.json', { ...base, aquifer: { conductivity: '../rasters/k.tif', thickness: 10 } });

@@ -201,7 +201,9 @@ describe('closest', () => {
 describe('findJsonSyntaxError', () => {
   it('gives the line and column of the first syntax error', () => {
     const text = '{\n  "title": "x",\n  "recharge": 0.001\n  "wells": []\n}';
-    expect(findJsonSyntaxError(text)).toEqual({ line: 4, column: 3, problem: 'expected "," or "}" after a value, found "\\"wells\\": []"' });
+    expect(findJsonSyntaxError(text)).toEqual({ line: 4, column: 3, problem: 'expected "," or "}" after a value, found the string "wells"' });
+    expect(findJsonSyntaxError('[1 2]')?.problem).toBe('expected "," or "]" after a value, found "2"');
+    expect(findJsonSyntaxError('{"a" 1}')?.problem).toBe('expected ":" after a key, found "1"');
     expect(findJsonSyntaxError('{\n  "a": 1,\n}')).toEqual({ line: 2, column: 9, problem: 'trailing comma before "}"' });
     expect(findJsonSyntaxError('{"a": tru}')?.column).toBe(7);
     expect(findJsonSyntaxError('{"path": "C:\\data\\k.tif"}')?.problem).toMatch(/bad escape/);
@@ -209,6 +211,13 @@ describe('findJsonSyntaxError', () => {
     expect(findJsonSyntaxError('')?.problem).toBe('the file is empty (expected a JSON object)');
     expect(findJsonSyntaxError("{'a': 1}")?.problem).toBe('keys need double quotes ("), not single quotes');
     expect(findJsonSyntaxError('{"a": 01}')?.problem).toMatch(/malformed number/);
+  });
+
+  it('finds a key repeated in one object only when asked', () => {
+    const text = '{\n  "wells": [],\n  "aquifer": {"a": 1, "b": {"a": 2}},\n  "wells": "w.csv"\n}';
+    expect(findJsonSyntaxError(text)).toBeNull();
+    expect(findJsonSyntaxError(text, { duplicateKeys: true })).toEqual({ line: 4, column: 3, problem: 'the key "wells" appears twice in the same object' });
+    expect(findJsonSyntaxError('{"a": {"x": 1}, "b": {"x": 1}, "\\u0061": 2}', { duplicateKeys: true })?.problem).toBe('the key "a" appears twice in the same object');
   });
 
   it('agrees with JSON.parse on what is valid (RFC 8259 grammar)', () => {

@@ -156,14 +156,23 @@ function countActive(conductivity: Float64Array, thickness: Float64Array | numbe
 
 /** JSON text to a value; a syntax error names the file, line and column. */
 function parseJsonText(text: string, label: string, absolute: string): unknown {
+  let value: unknown;
   try {
-    return JSON.parse(text.charCodeAt(0) === 0xfeff ? text.slice(1) : text);
+    value = JSON.parse(text.charCodeAt(0) === 0xfeff ? text.slice(1) : text);
   } catch (thrown) {
     const problem = findJsonSyntaxError(text);
     const where = problem ? ` line ${problem.line}, column ${problem.column}` : '';
     const what = problem ? problem.problem : describeThrown(thrown);
     throw inputError(`${label}${where}: invalid JSON: ${what}`, { file: absolute, hint: 'fix the JSON syntax (a JSON validator or editor will point at the same place)' });
   }
+  const duplicate = findJsonSyntaxError(text, { duplicateKeys: true });
+  if (duplicate) {
+    throw inputError(`${label} line ${duplicate.line}, column ${duplicate.column}: ${duplicate.problem}`, {
+      file: absolute,
+      hint: 'keep one of them: otherwise the last one would silently win',
+    });
+  }
+  return value;
 }
 
 function fileProblem(thrown: unknown, given: string, absolute: string, what: string, key?: string): PiezomapError {
@@ -414,7 +423,7 @@ class Loader {
       throw fileProblem(thrown, given, absolute, 'CSV file', key);
     }
     this.inputFiles.add(absolute);
-    const name = basename(given);
+    const name = given;
     let records;
     try {
       records = parseCsv(text);
@@ -469,7 +478,7 @@ class Loader {
         throw inputError(`${name} line ${record.line}: duplicate id "${id}" (also on line ${earlier})`, { file: absolute, key, hint: 'ids must be unique within a list' });
       }
       firstLine.set(id, record.line);
-      result.push({ source: `${name} line ${record.line}`, file: absolute, values });
+      result.push({ source: `${given} line ${record.line}`, file: absolute, values });
     }
     return result;
   }

@@ -89,9 +89,11 @@ export interface JsonSyntaxProblem {
 /**
  * Where JSON text first breaks the grammar and why, in words a user can act on, or null when it is valid JSON.
  * (JSON.parse's messages differ between Node versions and do not always give a position.)
+ * With `duplicateKeys`, a key repeated within one object counts as a problem too (RFC 8259 section 4 leaves
+ * that case's meaning open; JSON.parse keeps the last value).
  */
-export function findJsonSyntaxError(text: string): JsonSyntaxProblem | null {
-  const scanner = new JsonScanner(text);
+export function findJsonSyntaxError(text: string, options: { duplicateKeys?: boolean } = {}): JsonSyntaxProblem | null {
+  const scanner = new JsonScanner(text, options.duplicateKeys ?? false);
   try {
     scanner.document();
     return null;
@@ -128,7 +130,10 @@ class JsonStop extends Error {
 class JsonScanner {
   private i = 0;
 
-  constructor(private readonly text: string) {
+  constructor(
+    private readonly text: string,
+    private readonly duplicateKeys: boolean,
+  ) {
     if (text.charCodeAt(0) === 0xfeff) this.i = 1;
   }
 
@@ -167,6 +172,7 @@ class JsonScanner {
       this.i++;
       return;
     }
+    const keys = new Set<string>();
     for (;;) {
       this.space();
       const ch = this.text[this.i];
@@ -175,7 +181,14 @@ class JsonScanner {
         if (ch === undefined) this.stop('the file ends inside an object (missing "}")');
         this.stop(ch === "'" ? 'keys need double quotes ("), not single quotes' : `expected a key in double quotes, found ${this.shown()}`);
       }
+      const keyStart = this.i;
       this.string();
+      // JSON.parse keeps the last of two equal keys silently; in a scenario that hides an edit, so it is an error.
+      if (this.duplicateKeys) {
+        const key = JSON.parse(this.text.slice(keyStart, this.i)) as string;
+        if (keys.has(key)) this.stop(`the key ${JSON.stringify(key)} appears twice in the same object`, keyStart);
+        keys.add(key);
+      }
       this.space();
       if (this.text[this.i] !== ':') this.stop(`expected ":" after a key, found ${this.shown()}`);
       this.i++;
@@ -271,10 +284,14 @@ class JsonScanner {
     }
   }
 
+  /** What stands at the current position, for messages: a string, a word or number, or one character. */
   private shown(): string {
-    const ch = this.text[this.i];
-    if (ch === undefined) return 'the end of the file';
-    return JSON.stringify(this.text.slice(this.i, this.i + 12).split(/[\r\n]/)[0]);
+    const rest = this.text.slice(this.i, this.i + 40);
+    if (rest === '') return 'the end of the file';
+    const quoted = /^"[^"\\\r\n]{0,24}"/.exec(rest);
+    if (quoted) return `the string ${quoted[0]}`;
+    const word = /^[\w.+-]{1,24}/.exec(rest);
+    return `"${word ? word[0] : rest[0]}"`;
   }
 
   private stop(message: string, offset: number = this.i): never {
