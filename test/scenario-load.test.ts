@@ -344,7 +344,7 @@ describe('pointCrs', () => {
   it('names an unknown EPSG code and a code needing a grid-shift file', async () => {
     const unknown = await loadError(scenario('crs-unknown.json', { ...base, pointCrs: 'EPSG:99999', wells: [{ id: 'W1', x: 1, y: 2, rate: -1 }] }));
     expect(unknown.code).toBe('input');
-    expect(unknown.message).toContain('pointCrs EPSG:99999 to the raster CRS EPSG:32633: EPSG:99999 is not a known EPSG code');
+    expect(unknown.message).toContain("pointCrs: reprojecting points from EPSG:99999 to the rasters' EPSG:32633: EPSG:99999 is not a known EPSG code");
     const grid = await loadError(scenario('crs-grid.json', { ...base, pointCrs: 'EPSG:27700', wells: [{ id: 'W1', x: 1, y: 2, rate: -1 }] }));
     expect(grid.message).toContain('needs the datum grid-shift file');
   });

@@ -339,7 +339,7 @@ class Loader {
       return makeTransform(from, to);
     } catch (thrown) {
       if (thrown instanceof PiezomapError) {
-        throw new PiezomapError(thrown.code, `${this.label}: pointCrs ${pointCrs} to the raster CRS EPSG:${to}: ${thrown.message}`, { ...thrown.detail, key: 'pointCrs' });
+        throw new PiezomapError(thrown.code, `${this.label}: pointCrs: reprojecting points from EPSG:${from} to the rasters' EPSG:${to}: ${thrown.message}`, { ...thrown.detail, key: 'pointCrs' });
       }
       throw thrown;
     }
