@@ -128,6 +128,27 @@ describe('renderMapSvg', () => {
   });
 });
 
+describe('renderMapSvg on other grids', () => {
+  it('draws no scale bar on a lon/lat grid and turns the north arrow for rows that run north', () => {
+    const values = Float64Array.from({ length: 12 }, (_, k) => k);
+    const geographic: Grid = { nx: 4, ny: 3, transform: [10, 0.01, 0, 45, 0, -0.01], crs: { epsg: 4326, geographic: true, geoKeys: {} } };
+    const lonLat = renderMapSvg({ grid: geographic, values, quantity: 'head', units: { length: 'm', time: 'd' }, title: 't', caution: CAUTION });
+    expect(lonLat.svg).not.toContain('class="scale-bar"');
+    expect(lonLat.svg).toContain('rotate(0)');
+    const southUp: Grid = { nx: 4, ny: 3, transform: [0, 10, 0, 0, 0, 10], crs: null };
+    const flipped = renderMapSvg({ grid: southUp, values, quantity: 'head', units: { length: 'ft', time: 'd' }, title: 't', caution: CAUTION });
+    expect(flipped.svg).toContain('rotate(180)');
+    expect(flipped.svg).toMatch(/class="scale-bar"[\s\S]*? ft</);
+  });
+
+  it('copes with a field that has no active cell', () => {
+    const grid: Grid = { nx: 3, ny: 2, transform: [0, 1, 0, 0, 0, -1], crs: null };
+    const { svg } = renderMapSvg({ grid, values: new Float64Array(6).fill(NaN), quantity: 'drawdown', units: { length: 'm', time: 'd' }, title: 'empty', caution: CAUTION });
+    expect(svg).toContain('Inactive (no flow)');
+    expect(svg).not.toContain('data-level=');
+  });
+});
+
 describe('renderMapPng', () => {
   const input = inventedCase();
 

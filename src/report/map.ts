@@ -236,7 +236,9 @@ function fixedHeadPath(
     }
   }
   if (d.length === 0) return '';
-  return `<path d="${d.join('')}" fill="url(#fixedhead)" stroke="#0c2340" stroke-width="0.6" stroke-opacity="0.7"/>`;
+  // Cells narrower than a few px would vanish under the hatching: outline them more strongly instead.
+  const outline = Math.min(cellPx, cellPy) < 3 ? 1.8 : 0.6;
+  return `<path d="${d.join('')}" fill="url(#fixedhead)" stroke="#0c2340" stroke-width="${outline}" stroke-opacity="0.8"/>`;
 }
 
 function contourDecimals(set: ContourSet): number {
