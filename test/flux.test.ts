@@ -1,5 +1,8 @@
 import { describe, expect, it } from 'vitest';
+import { waterBudget } from '../src/analysis/budget.js';
 import { darcyFlux, faceFlows, linearVelocity } from '../src/analysis/flux.js';
+import { assembleSystem } from '../src/discretisation/assemble.js';
+import type { ModelInput } from '../src/scenario/types.js';
 import { cellCentre, type Grid } from '../src/grid.js';
 
 /** An invented north-up grid (made-up coordinates). */
@@ -165,5 +168,58 @@ describe('linearVelocity', () => {
     expect(() => linearVelocity(grid, flux, 0)).toThrowError(expect.objectContaining({ code: 'input', detail: expect.objectContaining({ key: 'porosity' }) }));
     expect(() => linearVelocity(grid, flux, 25)).toThrow(/porosity must lie in \(0, 1\]/);
     expect(() => linearVelocity(grid, flux, Float64Array.from([0.2, 1.5, 0.2]))).toThrow(/row 0, column 1/);
+  });
+});
+
+describe('darcyFlux with the assembled system', () => {
+  it('carries the same flow as the water budget of the fixed-head boundaries', () => {
+    // Layers parallel to the flow (K by row) between a fixed head of 100 on the west column and 90 on the east
+    // column: the linear head along each row is the exact steady solution (no cross flow), Q_row = K b dy dh / L.
+    const nx = 16;
+    const ny = 4;
+    const grid = makeGrid(nx, ny, 50, 20);
+    const conductivity = new Float64Array(nx * ny);
+    const head = new Float64Array(nx * ny);
+    const kByRow = [2, 5, 0.5, 9];
+    const west: number[] = [];
+    const east: number[] = [];
+    for (let i = 0; i < ny; i++) {
+      for (let j = 0; j < nx; j++) {
+        conductivity[i * nx + j] = kByRow[i]!;
+        head[i * nx + j] = 100 - (10 * j) / (nx - 1);
+      }
+      west.push(i * nx);
+      east.push(i * nx + nx - 1);
+    }
+    const model: ModelInput = {
+      title: 'invented layered strip',
+      units: { length: 'm', time: 'd' },
+      scenarioPath: '<inline>',
+      grid,
+      conductivity,
+      thickness: 8,
+      anisotropy: 1,
+      fixedHeads: [
+        { name: 'west', source: 'fixedHeads[0]', cells: Int32Array.from(west), heads: new Float64Array(ny).fill(100) },
+        { name: 'east', source: 'fixedHeads[1]', cells: Int32Array.from(east), heads: new Float64Array(ny).fill(90) },
+      ],
+      recharge: 0,
+      wells: [],
+      observations: [],
+      solver: { method: 'auto', tolerance: 1e-10, maxIterations: 100 },
+      inputFiles: [],
+      warnings: [],
+    };
+    const system = assembleSystem(model);
+    const budget = waterBudget(system, head);
+    const westTerm = budget.terms.find((t) => t.term === 'west')!;
+    const flux = darcyFlux({ grid, head, eastConductance: system.conductanceEast, southConductance: system.conductanceSouth, thickness: 8 });
+    const darcy = kByRow.reduce((sum, k) => sum + k * 8 * 20 * (10 / ((nx - 1) * 50)), 0);
+    expect(westTerm.inflow).toBeCloseTo(darcy, 9);
+    for (let j = 1; j < nx - 1; j++) {
+      let through = 0;
+      for (let i = 0; i < ny; i++) through += flux.qx[i * nx + j]! * 8 * 20; // q * face area
+      expect(through).toBeCloseTo(westTerm.inflow, 9);
+    }
   });
 });
