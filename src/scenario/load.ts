@@ -210,8 +210,11 @@ class Loader {
     this.warnings.push(text);
   }
 
-  /** Read a raster a key names; with `reference`, it must lie on the reference's grid. */
-  async raster(key: string, given: string, reference: RasterData | null, referenceKey = 'aquifer.conductivity'): Promise<RasterData> {
+  /** The conductivity raster as the scenario names it: every other raster must share its grid. */
+  private reference: { key: string; given: string } | null = null;
+
+  /** Read a raster a key names; with `reference` (the conductivity raster), it must lie on the same grid. */
+  async raster(key: string, given: string, reference: RasterData | null): Promise<RasterData> {
     const absolute = this.path(given);
     await this.requireFile(key, given, absolute, 'raster');
     let raster: RasterData;
@@ -224,11 +227,14 @@ class Loader {
     }
     this.inputFiles.add(absolute);
     if (raster.bandCount > 1) this.warn(`${key} "${given}" has ${raster.bandCount} bands; only band 1 is used`);
-    if (reference) {
+    if (!reference) {
+      this.reference = { key, given };
+    } else {
       const difference = gridDifference(reference.grid, raster.grid);
       if (difference !== null) {
+        const named = this.reference ?? { key: 'the reference raster', given: basename(reference.path) };
         throw inputError(
-          `${this.label}: ${key} "${given}" is not on the grid of ${referenceKey} "${basename(reference.path)}": ${difference} (${basename(reference.path)} vs ${basename(given)})`,
+          `${this.label}: ${key} "${given}" is not on the grid of ${named.key} "${named.given}": ${difference} (${named.given} vs ${given})`,
           { file: absolute, key, hint: resampleHint(reference.grid, given) },
         );
       }
