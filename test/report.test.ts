@@ -349,7 +349,7 @@ describe('HTML report in headless Chromium', () => {
         const problems: string[] = [];
         const outside: string[] = [];
         page.on('console', (msg) => {
-          if (msg.type() === 'error' || msg.type() === 'warning') problems.push(`${msg.type()}: ${msg.text()}`);
+          if (msg.type() === 'error') problems.push(`${msg.type()}: ${msg.text()}`);
         });
         page.on('pageerror', (error) => problems.push(`page error: ${error.message}`));
         page.on('dialog', async (dialog) => {
