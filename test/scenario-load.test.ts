@@ -178,6 +178,18 @@ describe('loadScenario', () => {
     ]);
   });
 
+  it('finds the north row by map direction on a grid stored south-up', async () => {
+    writeTestRaster(join(dir, 'k_southup.tif'), { ...grid, transform: [x0, 100, 0, y0 - 300, 0, 100] }, new Array(12).fill(1), nodata);
+    const { model } = await loadScenario(
+      scenario('southup.json', { ...base, aquifer: { conductivity: 'k_southup.tif', thickness: 10 }, fixedHeads: [{ edge: 'north', head: 1 }, { edge: 'west', head: 2 }] }),
+    );
+    expect(model.grid.transform[5]).toBe(100);
+    expect(model.fixedHeads.map((g) => [g.name, [...g.cells]])).toEqual([
+      ['north', [8, 9, 10, 11]],
+      ['west', [0, 4, 8]],
+    ]);
+  });
+
   it('refuses two fixed-head groups with the same name', async () => {
     const error = await loadError(scenario('dupnames.json', { ...base, fixedHeads: [{ edge: 'west', head: 1 }, { raster: 'river_stage.tif', name: 'west' }] }));
     expect(error.message).toContain('fixedHeads[1]: the fixed-head group name "west" is already used by fixedHeads[0]');
