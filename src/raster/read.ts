@@ -357,11 +357,9 @@ async function readNodata(image: GeoTIFFImage, label: string): Promise<number | 
   return value;
 }
 
-// Scratch words to reinterpret integer bits as floats (little-endian host checked below).
+// Scratch word to reinterpret integer bits as a float (little-endian host checked below).
 const F32 = new Float32Array(1);
 const F32_BITS = new Uint32Array(F32.buffer);
-const F64 = new Float64Array(1);
-const F64_WORDS = new Uint32Array(F64.buffer);
 const HOST_LITTLE_ENDIAN = new Uint8Array(new Uint16Array([1]).buffer)[0] === 1;
 
 async function decodeBand(bytes: Uint8Array, layout: Layout, sample: number, nodata: number | null, label: string): Promise<Float64Array> {
@@ -379,6 +377,7 @@ async function decodeBand(bytes: Uint8Array, layout: Layout, sample: number, nod
   const planeFirstBlock = planar === 2 ? sample * blocksAcross * blocksDown : 0;
   const decompress = await decompressorFor(layout);
   const what = layout.tiled ? 'tile' : 'strip';
+  const scratch = floatRowScratch(layout.predictor === 3 ? blockWidth : 0);
 
   for (let by = 0; by < blocksDown; by++) {
     const rows = Math.min(blockHeight, height - by * blockHeight);
@@ -416,7 +415,7 @@ async function decodeBand(bytes: Uint8Array, layout: Layout, sample: number, nod
         } else if (layout.predictor === 2) {
           readDifferencedRow(view, layout, rowStart + sampleByte, sampleStride * bytesPerSample, cols, values, out, nodataMatch);
         } else {
-          readFloatPredictedRow(block, layout, rowStart, blockWidth * sampleStride, sampleStride, planar === 1 ? sample : 0, cols, values, out, nodataMatch);
+          readFloatPredictedRow(block, layout, rowStart, blockWidth * sampleStride, sampleStride, planar === 1 ? sample : 0, cols, values, out, nodataMatch, scratch);
         }
       }
     }
@@ -529,31 +528,47 @@ function readDifferencedRow(view: DataView, layout: Layout, start: number, step:
   }
 }
 
+/** A row of one sample gathered back into little-endian floats, allocated once per band. */
+interface FloatRowScratch {
+  bytes: Uint8Array;
+  f32: Float32Array;
+  f64: Float64Array;
+}
+
+function floatRowScratch(width: number): FloatRowScratch {
+  const bytes = new Uint8Array(8 * width);
+  return { bytes, f32: new Float32Array(bytes.buffer), f64: new Float64Array(bytes.buffer) };
+}
+
 /**
  * Floating-point predictor (Adobe Photoshop TIFF Technical Note 3, predictor 3): a row of `words` samples is stored
  * as byte planes, most significant byte first, then byte-wise differenced with a stride of the samples per pixel.
- * Undo the differencing in place over the whole row, then gather each wanted sample's bytes from the planes.
+ * Undo the differencing in place over the whole row, then gather each wanted sample's bytes from the planes into
+ * little-endian order and read them as floats.
  */
 function readFloatPredictedRow(
   block: Uint8Array, layout: Layout, rowStart: number, words: number, stride: number, sampleInPixel: number,
-  cols: number, out: Float64Array, at: number, nd: number,
+  cols: number, out: Float64Array, at: number, nd: number, scratch: FloatRowScratch,
 ): void {
   const bps = layout.bytesPerSample;
   const rowEnd = rowStart + words * bps;
   for (let i = rowStart + stride; i < rowEnd; i++) block[i] = (block[i]! + block[i - stride]!) & 0xff;
+  const gathered = scratch.bytes;
+  const first = rowStart + sampleInPixel;
+  for (let c = 0, k = first, o = 0; c < cols; c++, k += stride, o += bps) {
+    // plane j holds byte j counted from the most significant one
+    for (let j = 0; j < bps; j++) gathered[o + bps - 1 - j] = block[k + j * words]!;
+  }
   if (bps === 4) {
+    const f32 = scratch.f32;
     for (let c = 0; c < cols; c++) {
-      const k = rowStart + c * stride + sampleInPixel;
-      F32_BITS[0] = ((block[k]! << 24) | (block[k + words]! << 16) | (block[k + 2 * words]! << 8) | block[k + 3 * words]!) >>> 0;
-      const v = F32[0]!;
+      const v = f32[c]!;
       out[at + c] = v !== v || v === nd ? Number.NaN : v;
     }
   } else {
+    const f64 = scratch.f64;
     for (let c = 0; c < cols; c++) {
-      const k = rowStart + c * stride + sampleInPixel;
-      F64_WORDS[1] = ((block[k]! << 24) | (block[k + words]! << 16) | (block[k + 2 * words]! << 8) | block[k + 3 * words]!) >>> 0;
-      F64_WORDS[0] = ((block[k + 4 * words]! << 24) | (block[k + 5 * words]! << 16) | (block[k + 6 * words]! << 8) | block[k + 7 * words]!) >>> 0;
-      const v = F64[0]!;
+      const v = f64[c]!;
       out[at + c] = v !== v || v === nd ? Number.NaN : v;
     }
   }
