@@ -9,7 +9,7 @@
 import * as z from 'zod';
 import { describeIssues } from './issues.js';
 
-/** Keys of an object schema and the error text for unknown ones (see unknownKeyText). */
+/** A strict object: each unknown key is refused with a suggestion (see unknownKeyText). */
 function strict<S extends z.ZodRawShape>(shape: S) {
   const known = Object.keys(shape);
   return z.strictObject(shape, {
@@ -41,6 +41,7 @@ function dispatch<T>(expected: string, pick: (value: unknown) => z.ZodType<T> | 
   });
 }
 
+/** zod 4's number refuses NaN and +-Infinity. */
 const finite = z.number();
 const filePath = z.string().trim().min(1, { error: 'must be a file path, not empty' });
 const nonEmpty = z.string().trim().min(1, { error: 'must not be empty' });
