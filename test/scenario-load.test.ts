@@ -158,6 +158,13 @@ describe('loadScenario', () => {
     expect(model.warnings).toEqual(['units.length is "ft" but the CRS of "k.tif" measures in metre: cell sizes are taken in metre; keep the other inputs consistent']);
   });
 
+  it('resolves an inline scenario against a given folder', async () => {
+    const model = await resolveScenario({ ...base, aquifer: { conductivity: 'k.tif', thickness: 10, anisotropy: 1 }, title: undefined }, dir, '<inline>');
+    expect(model.title).toBe('Untitled scenario');
+    expect(model.scenarioPath).toBe('<inline>');
+    expect(model.inputFiles).toEqual([join(dir, 'k.tif')]);
+  });
+
   it('fixes every cell of the named outer row or column', async () => {
     const { model } = await loadScenario(
       scenario('edges.json', {

@@ -111,6 +111,13 @@ describe('parseScenarioJson', () => {
     }
   });
 
+  it('refuses non-finite numbers (JSON.parse turns 1e400 into Infinity)', () => {
+    expect(errorsOf(JSON.parse(`{"aquifer": {"conductivity": "k.tif", "thickness": 1e400}, "fixedHeads": [{"edge": "west", "head": -1e400}]}`))).toEqual([
+      'scenario.json: aquifer.thickness: expected a number, got Infinity',
+      'scenario.json: fixedHeads[0].head: expected a number, got -Infinity',
+    ]);
+  });
+
   it('refuses a top level that is not an object', () => {
     expect(errorsOf([minimal])).toEqual(['scenario.json: top level: expected an object { ... }, got a list']);
   });
