@@ -154,7 +154,7 @@ describe('linearVelocity', () => {
   const grid = makeGrid(3, 1, 1, 1);
   const flux = { qx: Float64Array.from([0.3, 0.6, NaN]), qy: Float64Array.from([0, 0.2, NaN]), magnitude: Float64Array.from([0.3, Math.hypot(0.6, 0.2), NaN]) };
 
-  it('divides the Darcy flux by the effective porosity, v = q / n_e (Freeze & Cherry 1979, sec. 2.13)', () => {
+  it('divides the Darcy flux by the effective porosity, v = q / n_e (Freeze & Cherry 1979; from memory)', () => {
     const v = linearVelocity(grid, flux, 0.25);
     expect(v.vx[0]).toBeCloseTo(1.2, 12);
     expect(v.vy[1]).toBeCloseTo(0.8, 12);

@@ -10,13 +10,13 @@
  * direction, divided by the face area,
  *   q_col = (Q_e[p-1] + Q_e[p]) / 2 / (b_p * dy),     q_row = (Q_s[p-nx] + Q_s[p]) / 2 / (b_p * dx),
  * which is the cell-centre value of the velocity field that varies linearly between opposite faces, as in
- * Pollock's semi-analytical particle tracking (Pollock 1988, Ground Water 26(6)). A no-flow face counts as
+ * Pollock's semi-analytical particle tracking (Pollock 1988, Ground Water 26(6); citation from memory). A no-flow face counts as
  * zero flow, so a cell against a closed face shows half the flow through its open face. For uniform K and a
  * uniform gradient it equals Darcy's law q = -K dh/dx exactly (Darcy 1856); see test/flux.test.ts.
  * Map directions: qx is east-positive, qy north-positive; the signs of the geotransform's pixel width and
  * height say which way columns and rows run.
  *
- * Average linear (seepage) velocity v = q / n_e with effective porosity n_e (Freeze & Cherry 1979, sec. 2.13).
+ * Average linear (seepage) velocity v = q / n_e with effective porosity n_e (Freeze & Cherry 1979, "Groundwater"; citation from memory).
  */
 import { cellHeight, cellWidth, type Grid } from '../grid.js';
 import { inputError } from '../errors.js';

@@ -2,7 +2,7 @@
  * Colour ramps for the quick-look maps, as 256-entry RGB lookup tables built once from published open colour maps
  * (d3-scale-chromatic), so that colouring a grid is a typed-array lookup per cell.
  *  - head: cividis, a perceptually uniform ramp optimised for colour-vision deficiency
- *    (Nunez, Anderton & Renslow 2018, PLOS ONE 13(7) e0199239).
+ *    (Nunez, Anderton & Renslow 2018, PLOS ONE 13(7) e0199239; citation from memory).
  *  - drawdown: brown-to-blue-green diverging scheme BrBG (Brewer, ColorBrewer 2.0; listed there as colour-blind safe),
  *    centred on zero so that zero is the lightest colour: brown = lowered, blue-green = raised.
  */
