@@ -7,7 +7,7 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { PiezomapError } from '../src/errors.js';
-import { loadScenario, mergeVariant, resolveScenario } from '../src/scenario/load.js';
+import { loadScenario, mergeVariant, resolveScenario, type ScenarioJson } from '../src/scenario/load.js';
 import type { Crs } from '../src/grid.js';
 import { encodeFloat32GeoTiff } from '../src/raster/write.js';
 
@@ -159,7 +159,8 @@ describe('loadScenario', () => {
   });
 
   it('resolves an inline scenario against a given folder', async () => {
-    const model = await resolveScenario({ ...base, aquifer: { conductivity: 'k.tif', thickness: 10, anisotropy: 1 }, title: undefined }, dir, '<inline>');
+    const inline: ScenarioJson = { aquifer: { conductivity: 'k.tif', thickness: 10, anisotropy: 1 }, fixedHeads: [{ edge: 'west', head: 100 }] };
+    const model = await resolveScenario(inline, dir, '<inline>');
     expect(model.title).toBe('Untitled scenario');
     expect(model.scenarioPath).toBe('<inline>');
     expect(model.inputFiles).toEqual([join(dir, 'k.tif')]);
