@@ -17,7 +17,7 @@ export interface Grid {
   nx: number;
   ny: number;
   /**
-   * GDAL-style affine geotransform without rotation: [originX, pixelWidth, 0, originY, pixelHeight, 0],
+   * GDAL-style affine geotransform without rotation: [originX, pixelWidth, 0, originY, 0, pixelHeight],
    * origin at the outer corner of cell (0,0) (PixelIsArea convention). pixelHeight is negative for north-up.
    */
   transform: readonly [number, number, number, number, number, number];

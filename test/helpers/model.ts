@@ -6,7 +6,7 @@ export function testGrid(nx: number, ny: number, dx: number, dy = dx, x0 = 50000
   return {
     nx,
     ny,
-    transform: [x0, dx, 0, y0, -dy, 0],
+    transform: [x0, dx, 0, y0, 0, -dy],
     crs: { epsg: 32633, geographic: false, geoKeys: { GTModelTypeGeoKey: 1, GTRasterTypeGeoKey: 1, ProjectedCSTypeGeoKey: 32633 } },
   };
 }
