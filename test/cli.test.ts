@@ -1,0 +1,167 @@
+/**
+ * The command-line contract (../shared/spec/interface.md): exit codes, result files, messages without stack
+ * traces, no partial results. Runs the built program (`npm test` builds first) in a child process.
+ */
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { spawnSync } from 'node:child_process';
+import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync, mkdirSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join, resolve } from 'node:path';
+import { fromArrayBuffer } from 'geotiff';
+import { encodeFloat32GeoTiff } from '../src/raster/write.js';
+import { CAUTION } from '../src/caution.js';
+import { testGrid } from './helpers/model.js';
+
+const BIN = resolve(__dirname, '../bin/piezomap.js');
+
+function run(args: string[], cwd?: string) {
+  const r = spawnSync(process.execPath, [BIN, ...args], { encoding: 'utf8', cwd, env: { ...process.env, FORCE_COLOR: '0' } });
+  return { code: r.status, stdout: r.stdout, stderr: r.stderr };
+}
+
+let dir: string;
+
+/** A 30 x 20 aquifer, 100 m cells: west edge fixed at 50 m, east edge at 45 m, one well, two observations. */
+function writeScenario(name: string, overrides: Record<string, unknown> = {}, editK?: (k: Float64Array) => void): string {
+  const grid = testGrid(30, 20, 100);
+  const k = new Float64Array(600).fill(8);
+  for (let i = 8; i < 12; i++) for (let j = 14; j < 17; j++) k[i * 30 + j] = NaN; // an inactive outcrop
+  editK?.(k);
+  writeFileSync(join(dir, `${name}.k.tif`), encodeFloat32GeoTiff(grid, k));
+  const scenario = {
+    title: 'CLI test aquifer',
+    units: { length: 'm', time: 'd' },
+    aquifer: { conductivity: `${name}.k.tif`, thickness: 25 },
+    fixedHeads: [{ edge: 'west', head: 50 }, { edge: 'east', head: 45, name: 'outlet' }],
+    recharge: 0.0002,
+    wells: [{ id: 'PW-1', x: 501050, y: 4098950, rate: -400 }],
+    observations: [{ id: 'OB-1', x: 502050, y: 4099050, head: 48.1 }],
+    solver: { method: 'auto', tolerance: 1e-10, maxIterations: 5000 },
+    ...overrides,
+  };
+  const path = join(dir, name);
+  writeFileSync(path, JSON.stringify(scenario, null, 2));
+  return path;
+}
+
+beforeAll(() => {
+  dir = mkdtempSync(join(tmpdir(), 'piezomap-cli-'));
+});
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
+
+describe('piezomap CLI', () => {
+  it('prints the version and help with exit 0', () => {
+    const pkg = JSON.parse(readFileSync(resolve(__dirname, '../package.json'), 'utf8'));
+    expect(run(['--version'])).toMatchObject({ code: 0, stdout: `${pkg.version}\n` });
+    const help = run(['solve', '--help']);
+    expect(help.code).toBe(0);
+    expect(help.stdout).toMatch(/--method/);
+    expect(help.stdout).toMatch(/pcg-ic0/);
+  });
+
+  it('exits 2 on usage errors', () => {
+    expect(run(['frobnicate']).code).toBe(2);
+    expect(run(['solve', 'x.json']).code).toBe(2); // -o missing
+    expect(run(['solve', 'x.json', '-o', join(dir, 'o'), '--tolerance', 'abc']).code).toBe(2);
+    const bad = run(['solve', writeScenario('m.json'), '-o', join(dir, 'o-method'), '--method', 'magic']);
+    expect(bad.code).toBe(2);
+    expect(bad.stderr).toMatch(/unknown solver method "magic"/);
+  });
+
+  it('solves a scenario: result files, summary fields, budget closure and the caution', () => {
+    const out = join(dir, 'result');
+    const r = run(['solve', writeScenario('ok.json'), '-o', out]);
+    expect(r.stderr).toBe('');
+    expect(r.code).toBe(0);
+    expect(readdirSync(out).sort()).toEqual(['budget.csv', 'convergence.csv', 'head.tif', 'summary.json']);
+    expect(r.stdout.trimEnd().endsWith(CAUTION)).toBe(true);
+    const summary = JSON.parse(readFileSync(join(out, 'summary.json'), 'utf8'));
+    expect(summary.grid).toMatchObject({ nx: 30, ny: 20, dx: 100, dy: 100, crs: 'EPSG:32633', activeCells: 588, fixedHeadCells: 40 });
+    expect(summary.solver.converged).toBe(true);
+    expect(summary.solver.requested).toBe('auto');
+    expect(summary.solver.relativeResidual).toBeLessThanOrEqual(1e-10);
+    expect(Math.abs(summary.budget.discrepancyPercent)).toBeLessThan(0.01);
+    expect(summary.wells[0]).toMatchObject({ id: 'PW-1', row: 10, col: 10 });
+    expect(summary.observations[0].id).toBe('OB-1');
+    expect(summary.caution).toBe(CAUTION);
+    const csv = readFileSync(join(out, 'budget.csv'), 'utf8').trim().split('\n');
+    expect(csv[0]).toBe('term,inflow,outflow');
+    expect(csv.map((l) => l.split(',')[0])).toEqual(['term', 'west', 'outlet', 'wells', 'recharge', 'total']);
+  });
+
+  it('writes head.tif on the input grid with nodata -9999 on inactive cells', async () => {
+    const out = join(dir, 'result-tif');
+    expect(run(['solve', writeScenario('tif.json'), '-o', out]).code).toBe(0);
+    const bytes = readFileSync(join(out, 'head.tif'));
+    const tiff = await fromArrayBuffer(bytes.buffer.slice(bytes.byteOffset, bytes.byteOffset + bytes.byteLength));
+    const image = await tiff.getImage();
+    expect([image.getWidth(), image.getHeight()]).toEqual([30, 20]);
+    expect(image.getGDALNoData()).toBe(-9999);
+    const [band] = (await image.readRasters()) as unknown as Float32Array[];
+    expect(band![9 * 30 + 15]).toBe(-9999);
+    expect(band![0]).toBeCloseTo(50, 5);
+    expect(band![29]).toBeCloseTo(45, 5);
+  });
+
+  it('--json prints the summary as JSON on stdout', () => {
+    const r = run(['solve', writeScenario('json.json'), '-o', join(dir, 'result-json'), '--json']);
+    expect(r.code).toBe(0);
+    const summary = JSON.parse(r.stdout);
+    expect(summary.caution).toBe(CAUTION);
+    expect(summary.solver.converged).toBe(true);
+  });
+
+  it('refuses a folder that already holds results unless --overwrite, and never mixes old and new', () => {
+    const out = join(dir, 'result-twice');
+    const scenario = writeScenario('twice.json');
+    expect(run(['solve', scenario, '-o', out]).code).toBe(0);
+    const again = run(['solve', scenario, '-o', out]);
+    expect(again.code).toBe(2);
+    expect(again.stderr).toMatch(/already holds results/);
+    expect(again.stderr).toMatch(/--overwrite/);
+    expect(run(['solve', scenario, '-o', out, '--overwrite']).code).toBe(0);
+  });
+
+  it('exits 3 when the solver does not reach the tolerance, without presenting a head.tif', () => {
+    const out = join(dir, 'result-slow');
+    const r = run(['solve', writeScenario('slow.json'), '-o', out, '--method', 'jacobi', '--max-iterations', '20']);
+    expect(r.code).toBe(3);
+    expect(r.stderr).toMatch(/did not reach the tolerance/);
+    expect(r.stderr).not.toMatch(/\n\s+at /);
+    expect(existsSync(join(out, 'head.tif'))).toBe(false);
+    const summary = JSON.parse(readFileSync(join(out, 'summary.json'), 'utf8'));
+    expect(summary.solver.converged).toBe(false);
+  });
+
+  it('exits 2 naming the culprit, with no stack trace and no result files, for bad input', () => {
+    const cases: Array<[string, RegExp]> = [
+      [join(dir, 'missing.json'), /missing\.json/],
+      [writeScenario('badkey.json', { recharg: 0.1 }), /recharg/],
+      [writeScenario('badwell.json', { wells: [{ id: 'FAR', x: 0, y: 0, rate: -1 }] }), /well "FAR"/],
+      [writeScenario('badraster.json', { aquifer: { conductivity: 'nope.tif', thickness: 25 } }), /nope\.tif/],
+      [writeScenario('nofixed.json', { fixedHeads: [] }), /fixedHeads.*without a fixed head/],
+      // An inactive wall cuts off the east: that region has no fixed head (caught by the assembly).
+      [writeScenario('floating.json', { fixedHeads: [{ edge: 'west', head: 50 }] }, (k) => { for (let i = 0; i < 20; i++) k[i * 30 + 5] = NaN; }), /no fixed head/],
+    ];
+    cases.forEach(([scenario, message], k) => {
+      const out = join(dir, `bad-${k}`);
+      const r = run(['solve', scenario, '-o', out]);
+      expect(r.code, r.stderr).toBe(2);
+      expect(r.stderr).toMatch(message);
+      expect(r.stderr).not.toMatch(/\n\s+at /);
+      expect(r.stderr.trim().split('\n').length).toBeLessThanOrEqual(8);
+      const files = existsSync(out) ? readdirSync(out) : [];
+      expect(files).toEqual([]);
+    });
+  });
+
+  it('inspect validates and counts without solving', () => {
+    const r = run(['inspect', writeScenario('inspect.json')]);
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/30 x 20 cells/);
+    expect(r.stdout).toMatch(/588 active/);
+    expect(r.stdout).toMatch(/PW-1: row 10, col 10/);
+    const json = JSON.parse(run(['inspect', writeScenario('inspect2.json'), '--json']).stdout);
+    expect(json.cells.fixedHead).toBe(40);
+  });
+});
