@@ -1,0 +1,353 @@
+/**
+ * Generate the bundled demo in data/: an invented valley aquifer (the "Talvorin valley", a made-up name) with
+ * heterogeneous conductivity, variable thickness, a river as fixed heads, a fixed-head downstream edge, areal
+ * recharge, two supply wells and three observation wells, plus a variant with a third well.
+ *
+ * Deterministic: a seeded generator makes the same files on every run. Run with `npm run make-demo-data`
+ * (optionally `node dist/scripts/make-demo-data.js OUTDIR`).
+ *
+ * Observed heads are invented too: the baseline is solved with piezomap itself and each observation gets the
+ * simulated head plus a seeded deviation of a few decimetres, so that the residuals look like a real calibration.
+ */
+import { mkdirSync, writeFileSync } from 'node:fs';
+import { dirname, join, resolve } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { CAUTION } from '../src/caution.js';
+import type { Grid } from '../src/grid.js';
+import { solveScenarioFile } from '../src/pipeline.js';
+import { encodeFloat32GeoTiff } from '../src/raster/write.js';
+
+const NX = 240;
+const NY = 180;
+const CELL = 50; // m
+const X0 = 500000; // invented origin, EPSG:32633 (UTM zone 33N, metres)
+const Y0 = 4110000;
+const SEED = 20240611;
+
+const RIVER_STAGE_UPSTREAM = 112.0; // m, where the river enters at the west edge
+const RIVER_STAGE_DOWNSTREAM = 100.4; // m, at its last cell before the east edge
+const EAST_EDGE_HEAD = 99.0; // m
+const RECHARGE = 0.0004; // m/d
+
+const grid: Grid = {
+  nx: NX,
+  ny: NY,
+  transform: [X0, CELL, 0, Y0, 0, -CELL],
+  crs: { epsg: 32633, geographic: false, geoKeys: {} },
+};
+
+/** mulberry32: a small seeded generator (public-domain algorithm by Tommy Ettinger), uniform in [0, 1). */
+function seeded(seed: number): () => number {
+  let a = seed >>> 0;
+  return () => {
+    a = (a + 0x6d2b79f5) >>> 0;
+    let t = a;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+}
+
+/** Standard normal deviates by Box–Muller. */
+function normal(random: () => number): () => number {
+  return () => Math.sqrt(-2 * Math.log(1 - random())) * Math.cos(2 * Math.PI * random());
+}
+
+/**
+ * A spatially correlated standard-normal field: white noise smoothed by three passes of a separable box filter
+ * (close to a Gaussian kernel; `radius` cells sets the correlation length), then rescaled to mean 0, variance 1.
+ */
+function correlatedField(nx: number, ny: number, radius: number, gauss: () => number): Float64Array {
+  const field = new Float64Array(nx * ny);
+  for (let i = 0; i < field.length; i++) field[i] = gauss();
+  const work = new Float64Array(nx * ny);
+  for (let pass = 0; pass < 3; pass++) {
+    boxBlur(field, work, nx, ny, radius, 1, nx); // along rows
+    boxBlur(work, field, ny, nx, radius, nx, 1); // along columns
+  }
+  let mean = 0;
+  for (const v of field) mean += v;
+  mean /= field.length;
+  let variance = 0;
+  for (const v of field) variance += (v - mean) ** 2;
+  const sd = Math.sqrt(variance / field.length);
+  for (let i = 0; i < field.length; i++) field[i] = (field[i]! - mean) / sd;
+  return field;
+}
+
+/** Moving average of half-width `radius` along lines of length `n` (`step` apart inside a line, `lineStep` between lines), edges clamped. */
+function boxBlur(src: Float64Array, dst: Float64Array, n: number, lines: number, radius: number, step: number, lineStep: number): void {
+  const width = 2 * radius + 1;
+  for (let line = 0; line < lines; line++) {
+    const base = line * lineStep;
+    let sum = 0;
+    for (let k = -radius; k <= radius; k++) sum += src[base + Math.min(n - 1, Math.max(0, k)) * step]!;
+    for (let i = 0; i < n; i++) {
+      dst[base + i * step] = sum / width;
+      const leaving = Math.max(0, i - radius);
+      const entering = Math.min(n - 1, i + radius + 1);
+      sum += src[base + entering * step]! - src[base + leaving * step]!;
+    }
+  }
+}
+
+/** Row (fractional) of the valley axis at a column: a gentle bend across the map. */
+function valleyAxis(col: number): number {
+  return 88 + 16 * Math.sin((2 * Math.PI * col) / 300 + 0.6) + 4 * Math.sin((2 * Math.PI * col) / 95);
+}
+
+/** Half-width of the valley floor in rows: narrower upstream (west), wider downstream. */
+function valleyHalfWidth(col: number): number {
+  return 52 + 0.06 * col + 5 * Math.sin((2 * Math.PI * col) / 70 + 1.3);
+}
+
+/** Row (fractional) of the river at a column: meanders around the valley axis. */
+function riverRow(col: number): number {
+  return valleyAxis(col) + 11 * Math.sin((2 * Math.PI * col) / 62 + 0.4);
+}
+
+const round = (v: number, decimals: number): number => Math.round(v * 10 ** decimals) / 10 ** decimals;
+
+interface DemoRasters {
+  conductivity: Float64Array;
+  thickness: Float64Array;
+  riverStage: Float64Array;
+  riverCells: Uint8Array;
+  active: Uint8Array;
+}
+
+function buildRasters(): DemoRasters {
+  const random = seeded(SEED);
+  const gauss = normal(random);
+  const n = NX * NY;
+  const logNoise = correlatedField(NX, NY, 6, gauss); // correlation length about 6 cells = 300 m
+  const thicknessNoise = correlatedField(NX, NY, 10, gauss);
+  const conductivity = new Float64Array(n).fill(Number.NaN);
+  const thickness = new Float64Array(n).fill(Number.NaN);
+  const active = new Uint8Array(n);
+
+  // Bedrock outcrop: an inactive knoll inside the valley, north of the axis.
+  const knollCol = 150;
+  const knollRow = valleyAxis(knollCol) - 24;
+  for (let row = 0; row < NY; row++) {
+    for (let col = 0; col < NX; col++) {
+      const p = row * NX + col;
+      const offAxis = (row - valleyAxis(col)) / valleyHalfWidth(col); // -1..1 across the valley floor
+      if (Math.abs(offAxis) > 1) continue; // valley side: bedrock, inactive
+      if (((col - knollCol) / 9) ** 2 + ((row - knollRow) / 6) ** 2 <= 1) continue;
+      active[p] = 1;
+      // sand and gravel channel along the valley axis (about 30-80 m/d), silty margins (about 1-5 m/d)
+      const channel = Math.exp(-((offAxis / 0.38) ** 2));
+      const lnK = Math.log(2.5) + (Math.log(50) - Math.log(2.5)) * channel + 0.35 * logNoise[p]!;
+      conductivity[p] = round(Math.min(120, Math.max(0.5, Math.exp(lnK))), 2);
+      // thicker along the axis: 15 m at the margins to 40 m in the middle
+      const b = 15 + 25 * (1 - offAxis * offAxis) + 1.5 * thicknessNoise[p]!;
+      thickness[p] = round(Math.min(40, Math.max(15, b)), 1);
+    }
+  }
+
+  // River: a 4-connected line of cells from the west edge to four cells short of the east edge, stage falling
+  // linearly with the distance travelled along it.
+  const riverCells = new Uint8Array(n);
+  const path: number[] = [];
+  let previous = Math.round(riverRow(0));
+  for (let col = 0; col < NX - 4; col++) {
+    const row = Math.round(riverRow(col));
+    const stepRows = row >= previous ? 1 : -1;
+    // the vertical run joining the previous column's row to this one sits in this column (4-connected line)
+    for (let r = col === 0 ? row : previous; ; r += stepRows) {
+      path.push(r * NX + col);
+      if (r === row) break;
+    }
+    previous = row;
+  }
+  const riverStage = new Float64Array(n).fill(Number.NaN);
+  path.forEach((p, k) => {
+    if (!active[p]) throw new Error(`demo generator: river cell ${p} is outside the valley floor`);
+    riverCells[p] = 1;
+    const t = k / (path.length - 1);
+    riverStage[p] = round(RIVER_STAGE_UPSTREAM + (RIVER_STAGE_DOWNSTREAM - RIVER_STAGE_UPSTREAM) * t, 2);
+  });
+  return { conductivity, thickness, riverStage, riverCells, active };
+}
+
+/** Whether every cell within `clearance` cells (a square) of (row, col) is active and not a river cell. */
+function clearOfRiver(d: DemoRasters, row: number, col: number, clearance: number): boolean {
+  for (let r = row - clearance; r <= row + clearance; r++) {
+    for (let c = col - clearance; c <= col + clearance; c++) {
+      if (r < 0 || c < 0 || r >= NY || c >= NX) return false;
+      if (d.riverCells[r * NX + c] || !d.active[r * NX + c]) return false;
+    }
+  }
+  return true;
+}
+
+/** The most permeable cell between two columns that is at least `clearance` cells from the river and the valley sides. */
+function bestSite(d: DemoRasters, fromCol: number, toCol: number, clearance: number): { row: number; col: number } {
+  let best: { row: number; col: number } | null = null;
+  let bestK = -Infinity;
+  for (let col = fromCol; col <= toCol; col++) {
+    for (let row = 0; row < NY; row++) {
+      const k = d.conductivity[row * NX + col]!;
+      if (k > bestK && clearOfRiver(d, row, col, clearance)) {
+        best = { row, col };
+        bestK = k;
+      }
+    }
+  }
+  if (!best) throw new Error(`demo generator: no site between columns ${fromCol} and ${toCol}`);
+  return best;
+}
+
+/** The cell nearest to (row, col), searching outwards, that is at least `clearance` cells from the river and the valley sides. */
+function siteNear(d: DemoRasters, row: number, col: number, clearance: number): { row: number; col: number } {
+  for (let radius = 0; radius < 40; radius++) {
+    for (let r = row - radius; r <= row + radius; r++) {
+      for (let c = col - radius; c <= col + radius; c++) {
+        if (Math.max(Math.abs(r - row), Math.abs(c - col)) !== radius) continue;
+        if (clearOfRiver(d, r, c, clearance)) return { row: r, col: c };
+      }
+    }
+  }
+  throw new Error(`demo generator: no clear site near row ${row}, col ${col}`);
+}
+
+/** Map coordinates inside a cell, a little off its centre (as real well positions are), rounded to the metre. */
+function pointIn(cell: { row: number; col: number }, dx: number, dy: number): { x: number; y: number } {
+  return { x: X0 + (cell.col + 0.5) * CELL + dx, y: Y0 - (cell.row + 0.5) * CELL + dy };
+}
+
+async function main(): Promise<void> {
+  const here = dirname(fileURLToPath(import.meta.url));
+  const outDir = resolve(process.argv[2] ?? join(here, '..', '..', 'data'));
+  mkdirSync(outDir, { recursive: true });
+  const d = buildRasters();
+
+  const description = 'Talvorin valley demo (invented data)';
+  writeFileSync(join(outDir, 'conductivity.tif'), encodeFloat32GeoTiff(grid, d.conductivity, { description: `${description}: hydraulic conductivity, m/d` }));
+  writeFileSync(join(outDir, 'thickness.tif'), encodeFloat32GeoTiff(grid, d.thickness, { description: `${description}: saturated thickness, m` }));
+  writeFileSync(join(outDir, 'river_stage.tif'), encodeFloat32GeoTiff(grid, d.riverStage, { description: `${description}: river stage, m` }));
+
+  // Supply wells where the channel is most permeable, at least 8 cells (400 m) from the river; observation wells
+  // a few hundred metres from them, and one upstream away from pumping.
+  const pw1 = bestSite(d, 55, 85, 8);
+  const pw2 = bestSite(d, 150, 180, 8);
+  const pw3 = bestSite(d, 105, 130, 8);
+  const ob1 = siteNear(d, pw1.row - 5, pw1.col + 4, 3);
+  const ob2 = siteNear(d, pw2.row + 6, pw2.col - 6, 3);
+  const ob3 = siteNear(d, Math.round(valleyAxis(30)) - 25, 30, 3);
+  const at = (cell: { row: number; col: number }, dx: number, dy: number) => pointIn(cell, dx, dy);
+  const wells = [
+    { id: 'PW-1', ...at(pw1, 7, -4), rate: -1200 },
+    { id: 'PW-2', ...at(pw2, -6, 9), rate: -800 },
+  ];
+  const observationPoints = [
+    { id: 'OB-1', ...at(ob1, 3, 5) },
+    { id: 'OB-2', ...at(ob2, -8, -2) },
+    { id: 'OB-3', ...at(ob3, 11, 6) },
+  ];
+
+  const scenario = (observed: number[]) => ({
+    title: 'Talvorin valley wellfield (invented demo), baseline',
+    units: { length: 'm', time: 'd' },
+    aquifer: { conductivity: 'conductivity.tif', thickness: 'thickness.tif', anisotropy: 1.0 },
+    fixedHeads: [
+      { raster: 'river_stage.tif', name: 'river' },
+      { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
+    ],
+    recharge: RECHARGE,
+    wells,
+    observations: observationPoints.map((o, k) => ({ ...o, head: observed[k]! })),
+    solver: { method: 'auto', tolerance: 1e-10 },
+    variants: [
+      {
+        name: 'expanded',
+        title: 'Talvorin valley wellfield (invented demo), expanded abstraction',
+        wells: [
+          { id: 'PW-1', rate: -1600 },
+          { id: 'PW-3', ...at(pw3, -3, -7), rate: -1500 },
+        ],
+      },
+    ],
+  });
+
+  // Solve the baseline once to invent observed heads that a field campaign could plausibly have measured.
+  const scenarioPath = join(outDir, 'valley.json');
+  writeFileSync(scenarioPath, `${JSON.stringify(scenario([100, 100, 100]), null, 2)}\n`);
+  const result = await solveScenarioFile(scenarioPath);
+  if (!result.stats.converged) throw new Error('demo generator: the baseline did not converge');
+  const deviation = normal(seeded(SEED + 1));
+  const observed = result.observations.map((o) => round(o.simulated + 0.25 * deviation(), 2));
+  writeFileSync(scenarioPath, `${JSON.stringify(scenario(observed), null, 2)}\n`);
+
+  let activeCells = 0;
+  let riverCells = 0;
+  for (let p = 0; p < NX * NY; p++) {
+    activeCells += d.active[p]!;
+    riverCells += d.riverCells[p]!;
+  }
+  writeFileSync(join(outDir, 'README.md'), readme(activeCells, riverCells, result.head));
+  process.stdout.write(
+    `make-demo-data: wrote conductivity.tif, thickness.tif, river_stage.tif, valley.json, README.md to ${outDir}\n` +
+      `  ${activeCells} active cells, ${riverCells} river cells; baseline head ${range(result.head)} m; ` +
+      `observed heads ${observed.join(', ')} m\n`,
+  );
+}
+
+function range(values: Float64Array): string {
+  let min = Infinity;
+  let max = -Infinity;
+  for (const v of values) {
+    if (v < min) min = v;
+    if (v > max) max = v;
+  }
+  return `${min.toFixed(2)} to ${max.toFixed(2)}`;
+}
+
+function readme(activeCells: number, riverCells: number, head: Float64Array): string {
+  return `# Demo data: the Talvorin valley (invented)
+
+Everything here is invented for demonstration: the valley, its name, the wells and the measurements. No real place,
+aquifer or data set is depicted. The files are generated by \`scripts/make-demo-data.ts\` (\`npm run make-demo-data\`)
+from a fixed random seed, so they are the same on every run.
+
+## The scenario (\`valley.json\`)
+
+A confined sand-and-gravel aquifer fills a valley floor 12 km long, draining from west to east.
+
+| item | value |
+| --- | --- |
+| grid | 240 columns x 180 rows, 50 m cells, EPSG:32633 (UTM zone 33N), upper-left corner x = 500000, y = 4110000 (invented position) |
+| active cells | ${activeCells} (valley floor); the valley sides and a bedrock knoll inside the valley are inactive (nodata) |
+| \`conductivity.tif\` | hydraulic conductivity K, m/d: a spatially correlated log-normal field, about 30-80 m/d in the sand and gravel channel along the valley axis, about 1-5 m/d on the silty margins |
+| \`thickness.tif\` | aquifer thickness, m: 15 m at the valley margins to 40 m along the axis |
+| \`river_stage.tif\` | the river as fixed heads: ${riverCells} cells meandering along the valley, stage falling from ${RIVER_STAGE_UPSTREAM.toFixed(1)} m where it enters at the west edge to ${RIVER_STAGE_DOWNSTREAM.toFixed(1)} m near the east edge; nodata elsewhere |
+| downstream edge | fixed head ${EAST_EDGE_HEAD.toFixed(1)} m on the active cells of the east edge |
+| recharge | ${RECHARGE} m/d over the whole valley floor |
+| supply wells | PW-1 (-1200 m3/d) and PW-2 (-800 m3/d) in the channel, at least 400 m from the river |
+| observation wells | OB-1 near PW-1, OB-2 near PW-2, OB-3 upstream, away from pumping |
+| variant \`expanded\` | PW-1 raised to -1600 m3/d and a new well PW-3 at -1500 m3/d |
+
+The observed heads in \`valley.json\` are invented as well: the baseline was solved with piezomap and each
+observation received the simulated head plus a seeded random deviation (standard deviation 0.25 m), rounded to the
+centimetre. The baseline head ranges ${range(head)} m.
+
+## Try it
+
+\`\`\`
+piezomap inspect data/valley.json
+piezomap solve data/valley.json -o out/
+piezomap compare data/valley.json -o out/
+piezomap demo
+\`\`\`
+
+## Caution
+
+${CAUTION}
+`;
+}
+
+main().catch((thrown: unknown) => {
+  process.stderr.write(`make-demo-data: ${thrown instanceof Error ? thrown.message : String(thrown)}\n`);
+  process.exitCode = 1;
+});
