@@ -36,7 +36,7 @@ const grid: Grid = {
   crs: { epsg: 32633, geographic: false, geoKeys: {} },
 };
 
-/** mulberry32: a small seeded generator (public-domain algorithm by Tommy Ettinger), uniform in [0, 1). */
+/** mulberry32, a small public-domain seeded generator (attributed to Tommy Ettinger, from memory), uniform in [0, 1). */
 function seeded(seed: number): () => number {
   let a = seed >>> 0;
   return () => {
