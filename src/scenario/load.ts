@@ -114,6 +114,27 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     recharge = raw.recharge ?? 0;
   }
 
+  let porosity: Float64Array | number | undefined;
+  if (typeof raw.aquifer.porosity === 'string') {
+    const raster = await loader.raster('aquifer.porosity', raw.aquifer.porosity, conductivityRaster);
+    porosity = raster.values;
+    let missing = 0;
+    for (let p = 0; p < porosity.length; p++) {
+      const n = porosity[p]!;
+      if (!isActive(conductivity, thickness, p)) continue;
+      if (Number.isNaN(n)) missing++;
+      else if (!(n > 0 && n <= 1)) {
+        throw inputError(
+          `${loader.label}: aquifer.porosity "${raw.aquifer.porosity}": value ${n} at row ${Math.floor(p / grid.nx)}, col ${p % grid.nx} is not a porosity in (0, 1]`,
+          { file: raw.aquifer.porosity, key: 'aquifer.porosity', hint: 'give porosity as a fraction (0.25, not 25); use nodata where it is unknown' },
+        );
+      }
+    }
+    if (missing > 0) loader.warn(`aquifer.porosity "${raw.aquifer.porosity}": ${missing} active cell(s) have no porosity; no velocity is given there`);
+  } else {
+    porosity = raw.aquifer.porosity;
+  }
+
   const transform = loader.pointTransform(raw.pointCrs, grid, conductivityPath);
   const wells = await loader.wells(raw.wells, transform);
   const observations = await loader.observations(raw.observations, transform);
@@ -129,6 +150,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     conductivity,
     thickness,
     anisotropy: raw.aquifer.anisotropy,
+    ...(porosity === undefined ? {} : { porosity }),
     fixedHeads,
     recharge,
     wells,

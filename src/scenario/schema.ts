@@ -82,6 +82,8 @@ export const aquiferSchema = strict({
   conductivity: filePath,
   thickness: numberOrPath(finite.gt(0), 'a thickness > 0 or the path of a GeoTIFF'),
   anisotropy: finite.gt(0).default(1),
+  /** Effective porosity, for the average linear velocity; number in (0, 1] or a GeoTIFF. Optional. */
+  porosity: numberOrPath(finite.gt(0).lte(1), 'a porosity in (0, 1] or the path of a GeoTIFF').optional(),
 });
 
 export const edgeNames = ['west', 'east', 'north', 'south'] as const;

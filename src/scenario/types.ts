@@ -56,6 +56,8 @@ export interface ModelInput {
   /** Thickness per cell, or one number. */
   thickness: Float64Array | number;
   anisotropy: number;
+  /** Effective porosity per cell or one number, when given (for average linear velocities). */
+  porosity?: Float64Array | number;
   fixedHeads: FixedHeadInput[];
   /** Recharge per cell (length/time), or one number. */
   recharge: Float64Array | number;
