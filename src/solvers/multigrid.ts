@@ -1,5 +1,5 @@
 import { BandedCholesky } from './banded.js';
-import { applyDot, dot, gaussSeidelSweep, type Bands } from './kernels.js';
+import { dot } from './kernels.js';
 import type { VariablePreconditioner } from './pcg.js';
 import type { StencilOperator } from './types.js';
 
@@ -8,17 +8,19 @@ const COARSEST_CELLS = 1024;
 /** K-cycle: skip the second inner Krylov step when the first reduced the coarse residual below this fraction. */
 const K_CYCLE_THRESHOLD = 0.25;
 
-/** One level of the hierarchy: a five-point operator on a grid plus the workspaces its cycle needs. */
-interface Level extends Bands {
+/**
+ * One level of the hierarchy: a five-point operator on a grid plus the workspaces its cycle needs.
+ * Coefficients are stored in single precision (they only shape the preconditioner; the outer CG works with
+ * the exact double-precision operator), vectors in double precision.
+ */
+interface Level {
   readonly nx: number;
   readonly ny: number;
   readonly n: number;
-  readonly diag: Float64Array;
-  readonly east: Float64Array;
-  readonly south: Float64Array;
-  readonly invDiag: Float64Array;
-  /** Residual after pre-smoothing. */
-  readonly res: Float64Array;
+  readonly diag: Float32Array;
+  readonly east: Float32Array;
+  readonly south: Float32Array;
+  readonly invDiag: Float32Array;
   /** Right-hand side of this level (restricted residual of the finer one); unused on level 0. */
   readonly rhs: Float64Array;
   /** K-cycle vectors (unused on level 0). */
@@ -29,68 +31,76 @@ interface Level extends Bands {
   readonly w2: Float64Array;
 }
 
-function makeLevel(nx: number, ny: number, diag: Float64Array, east: Float64Array, south: Float64Array, fine: boolean): Level {
+function makeLevel(nx: number, ny: number, diag: Float32Array, east: Float32Array, south: Float32Array, fine: boolean): Level {
   const n = nx * ny;
-  const invDiag = new Float64Array(n);
+  const invDiag = new Float32Array(n);
   for (let p = 0; p < n; p++) invDiag[p] = 1 / diag[p]!;
-  const empty = new Float64Array(0);
-  return {
-    nx,
-    ny,
-    n,
-    diag,
-    east,
-    south,
-    invDiag,
-    res: new Float64Array(n),
-    rhs: fine ? empty : new Float64Array(n),
-    v1: fine ? empty : new Float64Array(n),
-    w1: fine ? empty : new Float64Array(n),
-    r2: fine ? empty : new Float64Array(n),
-    v2: fine ? empty : new Float64Array(n),
-    w2: fine ? empty : new Float64Array(n),
-  };
+  const vector = () => (fine ? new Float64Array(0) : new Float64Array(n));
+  return { nx, ny, n, diag, east, south, invDiag, rhs: vector(), v1: vector(), w1: vector(), r2: vector(), v2: vector(), w2: vector() };
 }
 
 /**
  * Galerkin coarse operator P^T A P for aggregates of 2x2 cells with piecewise-constant interpolation:
  * the coarse grid is again a five-point operator whose couplings are the sums of the fine conductances
- * crossing between aggregates, and whose diagonal is the sum of the children's diagonals minus twice their
- * internal couplings (so every fixed-head and no-flow condition of the fine grid carries over exactly).
- * Only unknown children belong to an aggregate; an aggregate without unknowns is an identity row.
+ * crossing between aggregates. Its diagonal is built as (sum of the children's "excess" — the part of the
+ * diagonal not coupled to unknown neighbours, i.e. fixed-head conductances) + (sum of the coarse couplings),
+ * which equals sum(diag) - 2 sum(internal couplings) without the cancellation that formula suffers where an
+ * aggregate is strongly coupled inside and weakly outside. Only unknown children belong to an aggregate; an
+ * aggregate without unknowns is an identity row.
  */
-function coarsen(fine: Level, unknown: Uint8Array): { level: Level; unknown: Uint8Array } {
-  const { nx, ny, diag, east, south } = fine;
+function coarsen(
+  fine: { nx: number; ny: number; east: ArrayLike<number>; south: ArrayLike<number> },
+  unknown: Uint8Array,
+  excess: Float64Array,
+): { level: Level; unknown: Uint8Array; excess: Float64Array } {
+  const { nx, ny, east, south } = fine;
   const cx = (nx + 1) >> 1;
   const cy = (ny + 1) >> 1;
   const cn = cx * cy;
-  const cd = new Float64Array(cn);
   const ce = new Float64Array(cn);
   const cs = new Float64Array(cn);
+  const cExcess = new Float64Array(cn);
   const cu = new Uint8Array(cn);
   for (let i = 0; i < ny; i++) {
-    const ci = i >> 1;
+    const crow = (i >> 1) * cx;
     for (let j = 0; j < nx; j++) {
       const p = i * nx + j;
-      const c = ci * cx + (j >> 1);
+      const c = crow + (j >> 1);
       if (unknown[p]) {
-        cd[c] += diag[p]!;
+        cExcess[c] += excess[p]!;
         cu[c] = 1;
       }
-      const e = east[p]!;
-      if (e !== 0) {
-        if (j & 1) ce[c] += e; // crosses into the next aggregate
-        else cd[c] -= 2 * e; // internal to the aggregate
-      }
-      const s = south[p]!;
-      if (s !== 0) {
-        if (i & 1) cs[c] += s;
-        else cd[c] -= 2 * s;
-      }
+      if (j & 1) ce[c] += east[p]!; // crosses into the next aggregate (zero on the last column)
+      if (i & 1) cs[c] += south[p]!;
     }
   }
-  for (let c = 0; c < cn; c++) if (!cu[c]) cd[c] = 1;
-  return { level: makeLevel(cx, cy, cd, ce, cs, false), unknown: cu };
+  const cd = new Float32Array(cn);
+  for (let c = 0; c < cn; c++) {
+    if (!cu[c]) {
+      cd[c] = 1;
+      continue;
+    }
+    let d = cExcess[c]! + ce[c]! + cs[c]!;
+    if (c % cx !== 0) d += ce[c - 1]!;
+    if (c >= cx) d += cs[c - cx]!;
+    cd[c] = d;
+  }
+  return { level: makeLevel(cx, cy, cd, Float32Array.from(ce), Float32Array.from(cs), false), unknown: cu, excess: cExcess };
+}
+
+/** Per unknown cell, the diagonal minus its couplings to unknown neighbours (the fixed-head conductances). */
+function diagonalExcess(op: StencilOperator): Float64Array {
+  const { nx, n, diag, east, south, unknown } = op;
+  const excess = new Float64Array(n);
+  for (let p = 0; p < n; p++) {
+    if (!unknown[p]) continue;
+    let s = east[p]!;
+    if (p % nx !== 0) s += east[p - 1]!;
+    if (p + nx < n) s += south[p]!;
+    if (p >= nx) s += south[p - nx]!;
+    excess[p] = Math.max(0, diag[p]! - s);
+  }
+  return excess;
 }
 
 /**
@@ -108,17 +118,23 @@ export class AggregationMultigrid implements VariablePreconditioner {
   private readonly direct: BandedCholesky;
 
   constructor(op: StencilOperator) {
-    const levels: Level[] = [makeLevel(op.nx, op.ny, op.diag, op.east, op.south, true)];
+    const levels: Level[] = [
+      makeLevel(op.nx, op.ny, Float32Array.from(op.diag), Float32Array.from(op.east), Float32Array.from(op.south), true),
+    ];
     let unknown = op.unknown;
+    let excess = diagonalExcess(op);
+    // the first coarsening reads the exact double-precision couplings
+    let finer: { nx: number; ny: number; east: ArrayLike<number>; south: ArrayLike<number> } = op;
     while (levels[levels.length - 1]!.n > COARSEST_CELLS) {
-      const finer = levels[levels.length - 1]!;
       if (finer.nx === 1 && finer.ny === 1) break;
-      const next = coarsen(finer, unknown);
+      const next = coarsen(finer, unknown, excess);
       levels.push(next.level);
       unknown = next.unknown;
+      excess = next.excess;
+      finer = next.level;
     }
     this.levels = levels;
-    this.direct = new BandedCholesky(levels[levels.length - 1]!);
+    this.direct = new BandedCholesky(levels.length === 1 ? op : levels[levels.length - 1]!);
   }
 
   /** Notes for the solve statistics. */
@@ -143,17 +159,14 @@ export class AggregationMultigrid implements VariablePreconditioner {
       return;
     }
     const C = levels[l + 1]!;
-    forwardFromZero(L, b, x);
-    upperResidual(L, x, L.res);
-    restrict(L, L.res, C);
+    smoothAndRestrict(L, b, x, C.rhs);
     // coarse correction into C.v1
     if (l + 1 === levels.length - 1) {
       this.direct.solve(C.rhs, C.v1);
     } else {
       this.krylovCorrection(l + 1);
     }
-    prolongAdd(L, C.v1, x);
-    gaussSeidelSweep(L, L.invDiag, b, x, true, 1);
+    prolongAndSmooth(L, C.v1, b, x);
   }
 
   /** Two flexible-CG steps on level c for A_c e = C.rhs, preconditioned by the cycle on c; e lands in C.v1. */
@@ -161,7 +174,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
     const C = this.levels[c]!;
     const { rhs, v1, w1, r2, v2, w2 } = C;
     this.cycle(c, rhs, v1);
-    const rho1 = applyDot(C, v1, w1);
+    const rho1 = applyDot32(C, v1, w1);
     const alpha1 = dot(v1, rhs);
     const step1 = alpha1 / rho1;
     const n = C.n;
@@ -179,7 +192,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
       return;
     }
     this.cycle(c, r2, v2);
-    const beta = applyDot(C, v2, w2);
+    const beta = applyDot32(C, v2, w2);
     const gamma = dot(v2, w1);
     const alpha2 = dot(v2, r2);
     const rho2 = beta - (gamma * gamma) / rho1;
@@ -193,46 +206,100 @@ export class AggregationMultigrid implements VariablePreconditioner {
   }
 }
 
-/** Forward Gauss–Seidel from a zero start: solves (D + L) x = b. */
-function forwardFromZero(a: Level, b: Float64Array, x: Float64Array): void {
-  const { nx, n, east, south, invDiag } = a;
-  x[0] = b[0]! * invDiag[0]!;
-  const firstEnd = Math.min(nx, n);
-  for (let p = 1; p < firstEnd; p++) x[p] = (b[p]! + east[p - 1]! * x[p - 1]!) * invDiag[p]!;
-  for (let p = nx; p < n; p++) {
-    x[p] = (b[p]! + east[p - 1]! * x[p - 1]! + south[p - nx]! * x[p - nx]!) * invDiag[p]!;
-  }
-}
-
-/** After a forward sweep from zero, b - A x = -U x: r_p = east_p x_{p+1} + south_p x_{p+nx}. */
-function upperResidual(a: Level, x: Float64Array, r: Float64Array): void {
-  const { nx, n, east, south } = a;
-  const lastStart = Math.max(n - nx, 0);
-  for (let p = 0; p < lastStart; p++) r[p] = east[p]! * x[p + 1]! + south[p]! * x[p + nx]!;
-  for (let p = lastStart; p < n - 1; p++) r[p] = east[p]! * x[p + 1]!;
-  r[n - 1] = 0;
-}
-
-/** Coarse right-hand side: sum of the fine residual over each aggregate (P^T r). */
-function restrict(fine: Level, r: Float64Array, coarse: Level): void {
-  const { nx, ny } = fine;
-  const cx = coarse.nx;
-  const out = coarse.rhs;
-  out.fill(0);
-  for (let i = 0; i < ny; i++) {
-    const row = i * nx;
-    const crow = (i >> 1) * cx;
-    for (let j = 0; j < nx; j++) out[crow + (j >> 1)] += r[row + j]!;
-  }
-}
-
-/** x += P e: every fine cell gets its aggregate's correction (identity rows are reset by the post-smoother). */
-function prolongAdd(fine: Level, e: Float64Array, x: Float64Array): void {
-  const { nx, ny } = fine;
+/**
+ * Pre-smoothing fused with the restriction: one forward Gauss–Seidel sweep from a zero start, (D + L) x = b,
+ * row by row; one row behind, the residual b - A x = -U x of the finished row (east and south neighbours are
+ * final by then) is summed straight into the coarse right-hand side, so no residual vector is stored.
+ */
+function smoothAndRestrict(a: Level, b: Float64Array, x: Float64Array, coarseRhs: Float64Array): void {
+  const { nx, ny, east, south, invDiag } = a;
   const cx = (nx + 1) >> 1;
-  for (let i = 0; i < ny; i++) {
+  coarseRhs.fill(0);
+  x[0] = b[0]! * invDiag[0]!;
+  for (let p = 1; p < nx; p++) x[p] = (b[p]! + east[p - 1]! * x[p - 1]!) * invDiag[p]!;
+  for (let i = 1; i < ny; i++) {
+    const row = i * nx;
+    const end = row + nx;
+    // west neighbour of the first column is read through east[row - 1], which is zero (last column)
+    for (let p = row; p < end; p++) {
+      x[p] = (b[p]! + east[p - 1]! * x[p - 1]! + south[p - nx]! * x[p - nx]!) * invDiag[p]!;
+    }
+    // residual of row i - 1: its east neighbours and south neighbours (row i) are final
+    const prev = row - nx;
+    const crow = ((i - 1) >> 1) * cx;
+    for (let j = 0; j < nx; j++) {
+      const p = prev + j;
+      coarseRhs[crow + (j >> 1)] += east[p]! * x[p + 1]! + south[p]! * x[p + nx]!;
+    }
+  }
+  // last row: only east neighbours
+  const last = (ny - 1) * nx;
+  const crow = ((ny - 1) >> 1) * cx;
+  for (let j = 0; j < nx - 1; j++) {
+    const p = last + j;
+    coarseRhs[crow + (j >> 1)] += east[p]! * x[p + 1]!;
+  }
+}
+
+/**
+ * Prolongation fused with post-smoothing: x += P e row by row just ahead of one backward Gauss–Seidel sweep
+ * (bottom row first), so each row is touched while it is in cache. Identity rows come out exact (x = b / 1).
+ */
+function prolongAndSmooth(a: Level, e: Float64Array, b: Float64Array, x: Float64Array): void {
+  const { nx, ny, east, south, invDiag } = a;
+  const n = nx * ny;
+  const cx = (nx + 1) >> 1;
+  const prolongRow = (i: number): void => {
     const row = i * nx;
     const crow = (i >> 1) * cx;
     for (let j = 0; j < nx; j++) x[row + j] += e[crow + (j >> 1)]!;
+  };
+  prolongRow(ny - 1);
+  for (let i = ny - 1; i >= 0; i--) {
+    if (i > 0) prolongRow(i - 1);
+    const row = i * nx;
+    if (i > 0 && i < ny - 1) {
+      for (let p = row + nx - 1; p >= row; p--) {
+        x[p] =
+          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) *
+          invDiag[p]!;
+      }
+    } else {
+      for (let p = row + nx - 1; p >= row; p--) {
+        let s = b[p]!;
+        if (p > 0) s += east[p - 1]! * x[p - 1]!;
+        if (p + 1 < n) s += east[p]! * x[p + 1]!;
+        if (p >= nx) s += south[p - nx]! * x[p - nx]!;
+        if (p + nx < n) s += south[p]! * x[p + nx]!;
+        x[p] = s * invDiag[p]!;
+      }
+    }
   }
+}
+
+/** out = A x on a level (single-precision coefficients); returns x·out. */
+function applyDot32(a: Level, x: Float64Array, out: Float64Array): number {
+  const { nx, n, diag, east, south } = a;
+  let s = 0;
+  for (let p = 0; p < n; p++) {
+    if (p === nx) {
+      // interior rows: no guards (see smoothAndRestrict for the west-neighbour argument)
+      const interiorEnd = n - nx;
+      for (; p < interiorEnd; p++) {
+        const v =
+          diag[p]! * x[p]! - east[p - 1]! * x[p - 1]! - east[p]! * x[p + 1]! - south[p - nx]! * x[p - nx]! - south[p]! * x[p + nx]!;
+        out[p] = v;
+        s += v * x[p]!;
+      }
+      if (p >= n) break;
+    }
+    let v = diag[p]! * x[p]!;
+    if (p > 0) v -= east[p - 1]! * x[p - 1]!;
+    if (p + 1 < n) v -= east[p]! * x[p + 1]!;
+    if (p >= nx) v -= south[p - nx]! * x[p - nx]!;
+    if (p + nx < n) v -= south[p]! * x[p + nx]!;
+    out[p] = v;
+    s += v * x[p]!;
+  }
+  return s;
 }

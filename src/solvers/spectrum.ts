@@ -16,7 +16,7 @@ export interface JacobiRadiusEstimate {
  * about 1 (the grid graph is bipartite). Ritz values approach lambda_min from above, so rho is estimated
  * from below; iteration stops when lambda_min changes by less than `relativeChange` over 10 steps.
  */
-export function estimateJacobiRadius(op: StencilOperator, maxSteps = 3000, relativeChange = 1e-4): JacobiRadiusEstimate {
+export function estimateJacobiRadius(op: StencilOperator, maxSteps = 1500, relativeChange = 1e-3): JacobiRadiusEstimate {
   const n = op.n;
   const { unknown, diag } = op;
   const r = new Float64Array(n);

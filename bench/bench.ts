@@ -1,0 +1,229 @@
+/**
+ * Solver benchmark: every practical method on the synthetic benchmark case (bench/case.ts) at several sizes,
+ * each solve in its own child process so that its peak memory is its own.
+ *
+ *   npm run bench -- [--sizes 512,1024,2048] [--methods auto,pcg-multigrid,...] [--out bench-results]
+ *                    [--tolerance 1e-10] [--time-limit 240] [--write-case DIR --size N]
+ *
+ * Prints a table and writes bench-results/bench-<stamp>.json. Heads are compared with a tighter multigrid
+ * solve (relative residual 1e-12) of the same size: max |h - h_ref| / max |h_ref| over active cells.
+ */
+import { spawnSync } from 'node:child_process';
+import { mkdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { cpus, totalmem } from 'node:os';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { waterBudget } from '../src/analysis/budget.js';
+import { assembleSystem, headsFromSolution } from '../src/discretisation/assemble.js';
+import { chooseAutoMethod, createSolver } from '../src/solvers/registry.js';
+import { benchCase } from './case.js';
+
+interface ChildResult {
+  size: number;
+  cells: number;
+  unknowns: number;
+  method: string;
+  resolvedMethod: string;
+  caseSeconds: number;
+  assembleSeconds: number;
+  setupSeconds: number;
+  solveSeconds: number;
+  iterations: number;
+  relativeResidual: number;
+  stopReason: string;
+  converged: boolean;
+  budgetDiscrepancyPercent: number;
+  peakRssMiB: number;
+  notes: string[];
+  headsFile: string;
+}
+
+interface Row extends ChildResult {
+  maxRelativeHeadError: number | null;
+  nsPerCell: number;
+  nsPerCellIteration: number | null;
+}
+
+/** Default method set per size: slow single-level methods only where they finish in minutes. */
+const DEFAULT_METHODS: Record<number, string[]> = {
+  512: ['auto', 'pcg-multigrid', 'pcg-ic0', 'pcg-ssor', 'pcg-jacobi', 'cg', 'sor', 'gauss-seidel', 'jacobi'],
+  1024: ['auto', 'pcg-multigrid', 'pcg-ic0', 'pcg-jacobi'],
+  2048: ['auto', 'pcg-multigrid'],
+};
+
+function parseArgs(argv: string[]): Map<string, string> {
+  const args = new Map<string, string>();
+  for (let i = 0; i < argv.length; i++) {
+    const a = argv[i]!;
+    if (!a.startsWith('--')) throw new Error(`unexpected argument "${a}"`);
+    const next = argv[i + 1];
+    if (next === undefined || next.startsWith('--')) args.set(a.slice(2), 'true');
+    else {
+      args.set(a.slice(2), next);
+      i++;
+    }
+  }
+  return args;
+}
+
+/** Runs one solve in this process (child mode) and prints its result as JSON on stdout. */
+function runChild(size: number, method: string, tolerance: number, timeLimit: number, headsFile: string): void {
+  let t = performance.now();
+  const { model } = benchCase(size);
+  const caseSeconds = (performance.now() - t) / 1000;
+  t = performance.now();
+  const system = assembleSystem(model);
+  const assembleSeconds = (performance.now() - t) / 1000;
+  // drop the case's inputs before the solve, as the CLI would after assembly
+  (model as { conductivity: Float64Array | null }).conductivity = null;
+  (globalThis as { gc?: () => void }).gc?.();
+  const resolvedMethod = method === 'auto' ? chooseAutoMethod(system.operator) : method;
+  const solver = createSolver(method, system.operator);
+  const x = new Float64Array(system.operator.n);
+  const stats = solver.solve(system.rhs, x, { tolerance, maxIterations: 50_000, timeLimitSeconds: timeLimit });
+  const head = headsFromSolution(system, x);
+  const budget = waterBudget(system, head);
+  if (headsFile) writeFileSync(headsFile, new Uint8Array(head.buffer, head.byteOffset, head.byteLength));
+  const result: ChildResult = {
+    size,
+    cells: system.counts.cells,
+    unknowns: system.counts.unknowns,
+    method,
+    resolvedMethod,
+    caseSeconds,
+    assembleSeconds,
+    setupSeconds: stats.setupSeconds,
+    solveSeconds: stats.solveSeconds,
+    iterations: stats.iterations,
+    relativeResidual: stats.relativeResidual,
+    stopReason: stats.stopReason,
+    converged: stats.converged,
+    budgetDiscrepancyPercent: budget.discrepancyPercent,
+    peakRssMiB: process.resourceUsage().maxRSS / 1024,
+    notes: stats.notes,
+    headsFile,
+  };
+  process.stdout.write(JSON.stringify(result) + '\n');
+}
+
+function spawnChild(size: number, method: string, tolerance: number, timeLimit: number, headsFile: string): ChildResult | null {
+  const script = fileURLToPath(import.meta.url);
+  const args = ['--expose-gc', '--max-old-space-size=4096', script, '--child', '--size', String(size), '--method', method];
+  args.push('--tolerance', String(tolerance), '--time-limit', String(timeLimit), '--heads', headsFile);
+  const run = spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 1 << 24 });
+  if (run.status !== 0) {
+    process.stderr.write(`  ${method} at ${size}: child failed (status ${run.status})\n${run.stderr}\n`);
+    return null;
+  }
+  const line = run.stdout.trim().split('\n').pop()!;
+  return JSON.parse(line) as ChildResult;
+}
+
+function readHeads(file: string): Float64Array {
+  const buf = readFileSync(file);
+  return new Float64Array(buf.buffer.slice(buf.byteOffset, buf.byteOffset + buf.byteLength));
+}
+
+function maxRelativeDifference(h: Float64Array, ref: Float64Array): number {
+  let scale = 0;
+  let err = 0;
+  for (let i = 0; i < ref.length; i++) {
+    const r = ref[i]!;
+    if (Number.isNaN(r)) continue;
+    scale = Math.max(scale, Math.abs(r));
+    err = Math.max(err, Math.abs(h[i]! - r));
+  }
+  return err / scale;
+}
+
+function fmt(v: number | null, digits: number): string {
+  return v === null || !Number.isFinite(v) ? '-' : v.toFixed(digits);
+}
+
+function exp(v: number | null): string {
+  return v === null || !Number.isFinite(v) ? '-' : v.toExponential(1);
+}
+
+function printTable(rows: Row[]): void {
+  const header = ['cells', 'unknowns', 'method', 'setup s', 'solve s', 'iters', 'rel.res', 'stop', 'budget %', 'head err', 'RSS MiB', 'ns/cell', 'ns/cell/it'];
+  const lines = rows.map((r) => [
+    String(r.cells),
+    String(r.unknowns),
+    r.method === r.resolvedMethod ? r.method : `${r.method}→${r.resolvedMethod}`,
+    fmt(r.setupSeconds, 3),
+    fmt(r.solveSeconds, 3),
+    String(r.iterations),
+    exp(r.relativeResidual),
+    r.stopReason,
+    exp(r.budgetDiscrepancyPercent),
+    exp(r.maxRelativeHeadError),
+    fmt(r.peakRssMiB, 0),
+    fmt(r.nsPerCell, 0),
+    fmt(r.nsPerCellIteration, 1),
+  ]);
+  const widths = header.map((h, c) => Math.max(h.length, ...lines.map((l) => l[c]!.length)));
+  const show = (cols: string[]) => '| ' + cols.map((v, c) => v.padStart(widths[c]!)).join(' | ') + ' |';
+  console.log(show(header));
+  console.log('| ' + widths.map((w) => '-'.repeat(w)).join(' | ') + ' |');
+  for (const l of lines) console.log(show(l));
+}
+
+async function main(): Promise<void> {
+  const args = parseArgs(process.argv.slice(2));
+  const tolerance = Number(args.get('tolerance') ?? 1e-10);
+  const timeLimit = Number(args.get('time-limit') ?? 240);
+  if (args.has('child')) {
+    runChild(Number(args.get('size')), args.get('method')!, tolerance, timeLimit, args.get('heads') ?? '');
+    return;
+  }
+  if (args.has('write-case')) {
+    const { writeCase } = await import('./write-case.js');
+    await writeCase(Number(args.get('size') ?? 512), args.get('write-case')!);
+    return;
+  }
+  const sizes = (args.get('sizes') ?? '512,1024,2048').split(',').map(Number);
+  const methodsArg = args.get('methods');
+  const out = args.get('out') ?? 'bench-results';
+  mkdirSync(out, { recursive: true });
+  const scratch = join(out, 'tmp-heads');
+  mkdirSync(scratch, { recursive: true });
+  const machine = `${cpus().length} x ${cpus()[0]?.model ?? 'unknown CPU'}, ${(totalmem() / 2 ** 30).toFixed(0)} GiB, Node ${process.version}`;
+  console.log(`piezomap solver benchmark — ${machine}; tolerance ${tolerance}`);
+  const rows: Row[] = [];
+  for (const size of sizes) {
+    const methods = methodsArg ? methodsArg.split(',') : (DEFAULT_METHODS[size] ?? ['auto', 'pcg-multigrid']);
+    process.stderr.write(`size ${size}: reference solve (pcg-multigrid to 1e-12)\n`);
+    const refFile = join(scratch, `ref-${size}.f64`);
+    const reference = spawnChild(size, 'pcg-multigrid', 1e-12, 3 * timeLimit, refFile);
+    const refHeads = reference ? readHeads(refFile) : null;
+    for (const method of methods) {
+      process.stderr.write(`size ${size}: ${method}\n`);
+      const headsFile = join(scratch, `${method}-${size}.f64`);
+      const result = spawnChild(size, method, tolerance, timeLimit, headsFile);
+      if (!result) continue;
+      const total = result.setupSeconds + result.solveSeconds;
+      const row: Row = {
+        ...result,
+        maxRelativeHeadError: refHeads ? maxRelativeDifference(readHeads(headsFile), refHeads) : null,
+        nsPerCell: (total / result.cells) * 1e9,
+        nsPerCellIteration: result.iterations > 0 ? (result.solveSeconds / result.iterations / result.cells) * 1e9 : null,
+      };
+      rmSync(headsFile, { force: true });
+      rows.push(row);
+      const notes = result.notes.length ? ` (${result.notes.join('; ')})` : '';
+      process.stderr.write(`  ${result.stopReason} in ${result.iterations} iterations, ${total.toFixed(2)} s${notes}\n`);
+    }
+    rmSync(refFile, { force: true });
+  }
+  rmSync(scratch, { recursive: true, force: true });
+  printTable(rows);
+  const stamp = new Date().toISOString().replace(/[:.]/g, '-');
+  const file = join(out, `bench-${stamp}.json`);
+  writeFileSync(file, JSON.stringify({ machine, tolerance, rows }, null, 2));
+  console.log(`written ${file}`);
+}
+
+main().catch((error: unknown) => {
+  console.error(error instanceof Error ? error.message : String(error));
+  process.exit(1);
+});
