@@ -118,7 +118,7 @@ export function assembleSystem(model: ModelInput): FlowSystem {
       const p = cells[k]!;
       const h = heads[k]!;
       if (!active[p]) {
-        fixedOnInactive[g]!++;
+        if (!entry.activeOnly) fixedOnInactive[g]!++;
         continue;
       }
       if (!Number.isFinite(h)) {

@@ -347,7 +347,7 @@ class Loader {
       const row = edge === 'north' ? northRow : ny - 1 - northRow;
       for (let col = 0; col < nx; col++) cells[col] = row * nx + col;
     }
-    return { name: name ?? edge, source, cells, heads: new Float64Array(count).fill(head) };
+    return { name: name ?? edge, source, cells, heads: new Float64Array(count).fill(head), activeOnly: true };
   }
 
   /** The transform from `pointCrs` to the raster CRS, or null when points are already in the raster CRS. */

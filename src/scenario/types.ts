@@ -35,6 +35,11 @@ export interface FixedHeadInput {
   /** Cell indices this entry fixes (before removing inactive cells) and the head at each. */
   cells: Int32Array;
   heads: Float64Array;
+  /**
+   * True when the entry by definition fixes only active cells (an edge: "the active cells of that outer
+   * column/row"), so its cells on inactive ground are not reported as ignored.
+   */
+  activeOnly?: boolean;
 }
 
 export interface SolverSettings {
