@@ -6,6 +6,7 @@
  * Everything comes from a fixed seed, so a size always gives the same case.
  */
 import type { Grid } from '../src/grid.js';
+import { geoKeysForEpsg } from '../src/raster/geokeys.js';
 import type { FixedHeadInput, ModelInput, WellInput } from '../src/scenario/types.js';
 
 export const CELL_SIZE = 10;
@@ -153,7 +154,7 @@ export function benchCase(size: number, seed = 20240601): BenchCase {
     crs: {
       epsg: EPSG,
       geographic: false,
-      geoKeys: { GTModelTypeGeoKey: 1, GTRasterTypeGeoKey: 1, ProjectedCSTypeGeoKey: EPSG },
+      geoKeys: geoKeysForEpsg(EPSG, false),
       linearUnit: 'metre',
     },
   };
