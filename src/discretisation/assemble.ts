@@ -142,43 +142,7 @@ export function assembleSystem(model: ModelInput): FlowSystem {
   }
   const datum = fixedCount > 0 ? headSum / fixedCount : 0;
 
-  // Sources: wells summed per cell; recharge on unknown cells only (on a fixed cell it leaves at once).
-  const wellRate = new Float64Array(n);
-  const wellCells = new Int32Array(model.wells.length);
-  model.wells.forEach((well, w) => {
-    const cell = cellAt(grid, well.x, well.y);
-    if (!cell) {
-      throw inputError(`well "${well.id}" (${well.source}) at x=${well.x}, y=${well.y} lies outside the grid`, {
-        key: well.source,
-        hint: 'check the coordinates and pointCrs: points are in the raster CRS unless pointCrs names another',
-      });
-    }
-    const p = cell.row * nx + cell.col;
-    if (!active[p]) {
-      throw inputError(`well "${well.id}" (${well.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, {
-        key: well.source,
-        cell,
-        hint: 'move the well into the active aquifer or check the conductivity raster there',
-      });
-    }
-    if (fixed[p]) {
-      throw inputError(
-        `well "${well.id}" (${well.source}) lies in a fixed-head cell of "${groups[fixedGroup[p]!]}" (row ${cell.row}, col ${cell.col}): its water would come straight from the boundary`,
-        { key: well.source, cell, hint: 'move the well off the fixed-head cells' },
-      );
-    }
-    wellRate[p] += well.rate;
-    wellCells[w] = p;
-  });
-  const rechargeRate = new Float64Array(n);
-  const recharge = model.recharge;
-  const cellArea = dx * dy;
-  for (let p = 0; p < n; p++) {
-    if (active[p] && !fixed[p]) {
-      const r = typeof recharge === 'number' ? recharge : recharge[p]!;
-      if (Number.isFinite(r)) rechargeRate[p] = r * cellArea;
-    }
-  }
+  const { wellRate, wellCells, rechargeRate } = placeSources(model, active, fixed, fixedGroup, groups);
 
   const regions = checkRegions(grid, active, fixed, conductanceEast, conductanceSouth);
 
@@ -250,6 +214,86 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     rhs,
     counts: { cells: n, active: activeCount, fixed: fixedCount, unknowns: unknownCount, fixedOnInactive, regions },
   };
+}
+
+/**
+ * Sources of a model on a grid whose active and fixed cells are known: wells summed per cell (a well outside
+ * the grid, in an inactive or in a fixed-head cell is an input error naming it), recharge as a volume rate on
+ * unknown cells only (on a fixed cell it would leave at once).
+ */
+export function placeSources(
+  model: ModelInput,
+  active: Uint8Array,
+  fixed: Uint8Array,
+  fixedGroup: Int32Array,
+  groups: string[],
+): { wellRate: Float64Array; wellCells: Int32Array; rechargeRate: Float64Array } {
+  const { grid } = model;
+  const nx = grid.nx;
+  const n = nx * grid.ny;
+  const wellRate = new Float64Array(n);
+  const wellCells = new Int32Array(model.wells.length);
+  model.wells.forEach((well, w) => {
+    const cell = cellAt(grid, well.x, well.y);
+    if (!cell) {
+      throw inputError(`well "${well.id}" (${well.source}) at x=${well.x}, y=${well.y} lies outside the grid`, {
+        key: well.source,
+        hint: 'check the coordinates and pointCrs: points are in the raster CRS unless pointCrs names another',
+      });
+    }
+    const p = cell.row * nx + cell.col;
+    if (!active[p]) {
+      throw inputError(`well "${well.id}" (${well.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, {
+        key: well.source,
+        cell,
+        hint: 'move the well into the active aquifer or check the conductivity raster there',
+      });
+    }
+    if (fixed[p]) {
+      throw inputError(
+        `well "${well.id}" (${well.source}) lies in a fixed-head cell of "${groups[fixedGroup[p]!]}" (row ${cell.row}, col ${cell.col}): its water would come straight from the boundary`,
+        { key: well.source, cell, hint: 'move the well off the fixed-head cells' },
+      );
+    }
+    wellRate[p] += well.rate;
+    wellCells[w] = p;
+  });
+  const rechargeRate = new Float64Array(n);
+  const recharge = model.recharge;
+  const cellArea = cellWidth(grid) * cellHeight(grid);
+  for (let p = 0; p < n; p++) {
+    if (active[p] && !fixed[p]) {
+      const r = typeof recharge === 'number' ? recharge : recharge[p]!;
+      if (Number.isFinite(r)) rechargeRate[p] = r * cellArea;
+    }
+  }
+  return { wellRate, wellCells, rechargeRate };
+}
+
+/**
+ * The system of `model` on the operator of `base`, for a model that differs from base's only in its sources
+ * (wells, recharge): conductances, fixed heads, datum and operator are shared (not copied); only the sources
+ * and the right-hand side are new. The caller guarantees that the aquifer and fixed heads are the same.
+ */
+export function withSources(base: FlowSystem, model: ModelInput): FlowSystem {
+  const { grid, active, fixed, fixedGroup, groups, fixedHead, conductanceEast, conductanceSouth, datum } = base;
+  const { nx, ny } = grid;
+  const { wellRate, wellCells, rechargeRate } = placeSources(model, active, fixed, fixedGroup, groups);
+  const unknown = base.operator.unknown;
+  const rhs = new Float64Array(nx * ny);
+  for (let p = 0; p < rhs.length; p++) {
+    if (!unknown[p]) continue;
+    const row = Math.floor(p / nx);
+    const col = p - row * nx;
+    // The same right-hand side as assembleSystem: sources plus the fixed neighbours' heads times conductance.
+    let b = wellRate[p]! + rechargeRate[p]!;
+    if (col < nx - 1 && fixed[p + 1]) b += conductanceEast[p]! * (fixedHead[p + 1]! - datum);
+    if (col > 0 && fixed[p - 1]) b += conductanceEast[p - 1]! * (fixedHead[p - 1]! - datum);
+    if (row < ny - 1 && fixed[p + nx]) b += conductanceSouth[p]! * (fixedHead[p + nx]! - datum);
+    if (row > 0 && fixed[p - nx]) b += conductanceSouth[p - nx]! * (fixedHead[p - nx]! - datum);
+    rhs[p] = b;
+  }
+  return { ...base, grid: model.grid, wellRate, wellCells, rechargeRate, rhs };
 }
 
 /**
