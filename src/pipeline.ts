@@ -16,6 +16,8 @@ import { encodeFloat32GeoTiff } from './raster/write.js';
 import { buildSummary, budgetCsv, convergenceCsv, type SummaryJson } from './output/summary.js';
 import { prepareResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './output/resultFolder.js';
 import { CAUTION } from './caution.js';
+import { reportRun, solveProducts, type ProductOptions, type RenderedMap } from './output/products.js';
+import { renderReportHtml } from './report/index.js';
 import { VERSION } from './version.js';
 
 /** Above this budget discrepancy a run fails loudly even when the residual criterion was met. */
@@ -164,8 +166,18 @@ export function resultProblem(result: SolveResult): PiezomapError | null {
   return null;
 }
 
-/** Result files of one solve, as bytes; `head.tif` only for a sound result. */
-export function resultFiles(result: SolveResult, prefix = ''): OutputFile[] {
+/** The files of one solve, with the rendered maps kept for the report. */
+export interface ResultBundle {
+  files: OutputFile[];
+  maps: RenderedMap[];
+}
+
+/**
+ * Result files of one solve, as bytes: `head.tif` only for a sound result (else `head-not-converged.tif`),
+ * budget and convergence tables, and (unless `maps: false`) contours, flux rasters and the head map.
+ * Product warnings are appended to `result.warnings`. `prefix` places them in a sub-folder, e.g. `NAME/`.
+ */
+export function resultBundle(result: SolveResult, prefix = '', options: ProductOptions = {}): ResultBundle {
   const sound = resultProblem(result) === null;
   const files: OutputFile[] = [];
   const description = `piezomap ${VERSION} head (${result.model.units.length}): ${result.model.title}. ${CAUTION}`;
@@ -173,24 +185,58 @@ export function resultFiles(result: SolveResult, prefix = ''): OutputFile[] {
   files.push({ name: prefix + (sound ? 'head.tif' : 'head-not-converged.tif'), bytes: headBytes });
   files.push({ name: prefix + 'budget.csv', bytes: budgetCsv(result.budget) });
   files.push({ name: prefix + 'convergence.csv', bytes: convergenceCsv(result.stats.history) });
-  return files;
+  if (!sound) return { files, maps: [] };
+  const products = solveProducts(result, options, prefix);
+  for (const w of products.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
+  files.push(...products.files);
+  return { files, maps: products.maps };
+}
+
+export function resultFiles(result: SolveResult, prefix = '', options: ProductOptions = {}): OutputFile[] {
+  return resultBundle(result, prefix, options).files;
+}
+
+/** The HTML report of one solve. */
+export function solveReport(result: SolveResult, summary: SummaryJson, maps: RenderedMap[]): string {
+  const g = summary.grid as { nx: number; ny: number; dx: number; dy: number; crs: string; activeCells: number; fixedHeadCells: number };
+  return renderReportHtml({
+    kind: 'solve',
+    title: result.model.title,
+    units: result.model.units,
+    grid: { nx: g.nx, ny: g.ny, dx: g.dx, dy: g.dy, crs: g.crs, activeCells: g.activeCells, fixedHeadCells: g.fixedHeadCells },
+    runs: [reportRun('baseline', result, maps)],
+    warnings: result.warnings,
+    caution: CAUTION,
+    scenarioFile: result.model.scenarioPath,
+    program: `piezomap ${VERSION}`,
+    timings: Object.entries(result.timings).map(([stage, seconds]) => ({ stage, seconds })),
+    files: summary.files,
+  });
 }
 
 /**
  * Write the result folder of one solve. Refuses a folder holding earlier results unless `overwrite`.
  * Returns the summary that was written.
  */
-export async function writeSolveResults(result: SolveResult, outDir: string, options: { overwrite?: boolean } = {}): Promise<SummaryJson> {
+export async function writeSolveResults(
+  result: SolveResult,
+  outDir: string,
+  options: { overwrite?: boolean } & ProductOptions = {},
+): Promise<SummaryJson> {
   const t = now();
   const previous = await previousResultFiles(outDir);
-  const files = resultFiles(result);
-  const names = [...files.map((f) => f.name), RESULT_MARKER];
+  const { files, maps } = resultBundle(result, '', options);
+  const withReport = maps.length > 0;
+  const names = [...files.map((f) => f.name), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
   result.timings.write = now() - t;
   const summary = buildSummary(result, names, VERSION);
+  if (withReport) files.push({ name: REPORT_FILE, bytes: solveReport(result, summary, maps) });
   files.push({ name: RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
   await writeResultFiles(outDir, files, options.overwrite ? previous : []);
   return summary;
 }
+
+export const REPORT_FILE = 'report.html';
 
 export { prepareResultFolder };
 
