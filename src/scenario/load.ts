@@ -21,6 +21,7 @@ import {
   parseScenarioJson,
   solverSchema,
   type FixedHeadEntry,
+  type ReceptorEntry,
   type ScenarioJson,
   type WellChange,
   type WellEntry,
@@ -28,7 +29,7 @@ import {
 } from './schema.js';
 import { wellLayers } from './merge.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
-import type { FixedHeadInput, ModelInput, ObservationInput, WellInput } from './types.js';
+import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
 
 export type { ScenarioJson, VariantJson } from './schema.js';
 export { mergeVariant } from './merge.js';
@@ -138,6 +139,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   const transform = loader.pointTransform(raw.pointCrs, grid, conductivityPath);
   const wells = await loader.wells(raw.wells, transform);
   const observations = await loader.observations(raw.observations, transform);
+  const receptors = await loader.receptors(raw.receptors, transform, grid, conductivityPath);
 
   const solver = raw.solver ?? solverSchema.parse({});
   const title = raw.title ?? (inline ? 'Untitled scenario' : basename(scenarioPath, extname(scenarioPath)));
@@ -155,6 +157,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     recharge,
     wells,
     observations,
+    receptors,
     solver: { ...solver },
     inputFiles: [...loader.inputFiles],
     warnings: loader.warnings,
@@ -351,15 +354,15 @@ class Loader {
   }
 
   /** The transform from `pointCrs` to the raster CRS, or null when points are already in the raster CRS. */
-  pointTransform(pointCrs: string | undefined, grid: Grid, conductivityPath: string): PointTransform | null {
+  pointTransform(pointCrs: string | undefined, grid: Grid, conductivityPath: string, key = 'pointCrs'): PointTransform | null {
     if (pointCrs === undefined) return null;
     const from = parseEpsg(pointCrs);
-    if (from === null) throw inputError(`${this.label}: pointCrs: "${pointCrs}" is not an EPSG code such as "EPSG:4326"`, { key: 'pointCrs' });
+    if (from === null) throw inputError(`${this.label}: ${key}: "${pointCrs}" is not an EPSG code such as "EPSG:4326"`, { key });
     const to = grid.crs?.epsg ?? null;
     if (to === null) {
       throw inputError(
-        `${this.label}: pointCrs is ${pointCrs}, but aquifer.conductivity "${conductivityPath}" has no EPSG code (${crsLabel(grid.crs)} CRS), so points cannot be reprojected into it`,
-        { key: 'pointCrs', hint: 'give the points in the raster CRS and drop "pointCrs", or assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)' },
+        `${this.label}: ${key} is ${pointCrs}, but aquifer.conductivity "${conductivityPath}" has no EPSG code (${crsLabel(grid.crs)} CRS), so points cannot be reprojected into it`,
+        { key, hint: 'give the points in the raster CRS and drop "pointCrs", or assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)' },
       );
     }
     if (from === to) return null;
@@ -367,7 +370,7 @@ class Loader {
       return makeTransform(from, to);
     } catch (thrown) {
       if (thrown instanceof PiezomapError) {
-        throw new PiezomapError(thrown.code, `${this.label}: pointCrs: reprojecting points from EPSG:${from} to the rasters' EPSG:${to}: ${thrown.message}`, { ...thrown.detail, key: 'pointCrs' });
+        throw new PiezomapError(thrown.code, `${this.label}: ${key}: reprojecting points from EPSG:${from} to the rasters' EPSG:${to}: ${thrown.message}`, { ...thrown.detail, key });
       }
       throw thrown;
     }
@@ -378,7 +381,7 @@ class Loader {
     for (const layer of wellLayers(spec)) {
       const changes: { change: WellChange; source: string }[] =
         typeof layer.wells === 'string'
-          ? (await this.pointCsv(`${layer.source}`, layer.wells, ['id', 'x', 'y', 'rate'], ['radius'])).map((record) => ({
+          ? (await this.pointCsv(`${layer.source}`, layer.wells, ['id', 'x', 'y', 'rate'], ['radius', 'minimumhead'])).map((record) => ({
               change: wellFromRecord(record),
               source: record.source,
             }))
@@ -403,6 +406,7 @@ class Loader {
       const point = this.project(transform, change.x!, change.y!, `well "${id}" (${source})`);
       const well: WellInput = { id, x: point.x, y: point.y, rate: change.rate!, source };
       if (change.radius !== undefined) well.radius = change.radius;
+      if (change.minimumHead !== undefined) well.minimumHead = change.minimumHead;
       wells.push(well);
     }
     return wells;
@@ -423,6 +427,29 @@ class Loader {
     return entries.map((entry) => {
       const point = this.project(transform, entry.x, entry.y, `observation "${entry.id}" (${entry.source})`);
       return { id: entry.id, x: point.x, y: point.y, head: entry.head, source: entry.source };
+    });
+  }
+
+  /** Receptors: in pointCrs (or the raster CRS), unless an entry names its own `crs`. */
+  async receptors(spec: ScenarioJson['receptors'], transform: PointTransform | null, grid: Grid, conductivityPath: string): Promise<ReceptorInput[]> {
+    if (spec === undefined) return [];
+    const entries: Array<ReceptorEntry & { source: string }> =
+      typeof spec === 'string'
+        ? (await this.pointCsv('receptors', spec, ['id', 'x', 'y'], ['crs'])).map((record) => {
+            const crs = record.values.get('crs');
+            return {
+              id: record.values.get('id')!,
+              x: csvNumber(record, 'x'),
+              y: csvNumber(record, 'y'),
+              ...(crs ? { crs } : {}),
+              source: record.source,
+            };
+          })
+        : spec.map((entry, index) => ({ ...entry, source: `receptors[${index}]` }));
+    return entries.map((entry) => {
+      const own = entry.crs === undefined ? transform : this.pointTransform(entry.crs, grid, conductivityPath, `${entry.source}.crs`);
+      const point = this.project(own, entry.x, entry.y, `receptor "${entry.id}" (${entry.source})`);
+      return { id: entry.id, x: point.x, y: point.y, source: entry.source };
     });
   }
 
@@ -525,6 +552,8 @@ function wellFromRecord(record: PointRecord): WellChange {
     if (!(value > 0)) throw inputError(`${record.source}: radius ${value} must be > 0 (or left empty)`, { file: record.file });
     well.radius = value;
   }
+  const minimumHead = record.values.get('minimumhead');
+  if (minimumHead !== undefined && minimumHead !== '') well.minimumHead = csvNumber(record, 'minimumhead');
   return well;
 }
 

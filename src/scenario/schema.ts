@@ -120,6 +120,8 @@ export const wellSchema = strict({
   y: finite,
   rate: finite,
   radius: finite.gt(0).optional(),
+  /** Lowest acceptable well-bore head (e.g. pump intake or aquifer top); a warning when the well-bore head falls below. */
+  minimumHead: finite.optional(),
 });
 
 /** In a variant, a well entry with the id of a baseline well changes only the fields it gives. */
@@ -129,6 +131,7 @@ export const wellChangeSchema = strict({
   y: finite.optional(),
   rate: finite.optional(),
   radius: finite.gt(0).optional(),
+  minimumHead: finite.optional(),
 });
 
 export const observationSchema = strict({
@@ -136,6 +139,14 @@ export const observationSchema = strict({
   x: finite,
   y: finite,
   head: finite,
+});
+
+/** Points where drawdown matters to others (neighbours' wells, springs, wetland edges); `crs` overrides pointCrs for this point. */
+export const receptorSchema = strict({
+  id: identifier,
+  x: finite,
+  y: finite,
+  crs: z.string().regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' }).optional(),
 });
 
 export const solverSchema = strict({
@@ -162,6 +173,7 @@ const replaceableFields = {
   wells: listOrCsv(wellSchema, 'well').optional(),
   pointCrs: pointCrsSchema.optional(),
   observations: listOrCsv(observationSchema, 'observation').optional(),
+  receptors: listOrCsv(receptorSchema, 'receptor').optional(),
   solver: solverSchema.optional(),
 };
 
@@ -204,6 +216,7 @@ export type FixedHeadEntry = FixedHeadRasterEntry | FixedHeadEdgeEntry;
 export type WellEntry = z.output<typeof wellSchema>;
 export type WellChange = z.output<typeof wellChangeSchema>;
 export type ObservationEntry = z.output<typeof observationSchema>;
+export type ReceptorEntry = z.output<typeof receptorSchema>;
 export type SolverJson = z.output<typeof solverSchema>;
 export type VariantJson = z.output<typeof variantSchema>;
 type ParsedScenario = z.output<typeof scenarioSchema>;

@@ -15,6 +15,8 @@ export interface WellInput {
   rate: number;
   /** Well-bore radius, length units, when given. */
   radius?: number;
+  /** Lowest acceptable well-bore head (pump intake, aquifer top), when given: a warning below it. */
+  minimumHead?: number;
   /** Where it came from, for messages: e.g. `wells[2]` or `wells.csv line 4`. */
   source: string;
 }
@@ -24,6 +26,14 @@ export interface ObservationInput {
   x: number;
   y: number;
   head: number;
+  source: string;
+}
+
+/** A point where drawdown is reported (neighbour's well, spring, wetland edge), in the raster CRS. */
+export interface ReceptorInput {
+  id: string;
+  x: number;
+  y: number;
   source: string;
 }
 
@@ -68,6 +78,8 @@ export interface ModelInput {
   recharge: Float64Array | number;
   wells: WellInput[];
   observations: ObservationInput[];
+  /** Receptors (optional key; absent = none). */
+  receptors?: ReceptorInput[];
   solver: SolverSettings;
   /** Input files read, for the summary. */
   inputFiles: string[];
