@@ -21,6 +21,7 @@ import {
   parseScenarioJson,
   solverSchema,
   type FixedHeadEntry,
+  type FixedHeadShapeEntry,
   type ReceptorEntry,
   type ScenarioJson,
   type WellChange,
@@ -28,6 +29,8 @@ import {
   type WellLayers,
 } from './schema.js';
 import { wellLayers } from './merge.js';
+import { readShapes, reprojectShapes, type ShapeCollection } from './geojson.js';
+import { markShapeCells, shapeFixedHeads } from './shapes.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
 
@@ -88,6 +91,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
       loader.warn(`aquifer.thickness "${raw.aquifer.thickness}": ${lost} cell(s) with a conductivity have no thickness > 0 there and are inactive`);
     }
   }
+  if (raw.aquifer.inactiveShapes?.length) await loader.inactiveShapes(raw.aquifer.inactiveShapes, grid, conductivity);
   const activeCells = countActive(conductivity, thickness);
   if (activeCells === 0) {
     throw inputError(
@@ -301,7 +305,12 @@ class Loader {
     for (let index = 0; index < entries.length; index++) {
       const entry = entries[index]!;
       const source = `fixedHeads[${index}]`;
-      const group = 'raster' in entry ? await this.fixedHeadRaster(entry.raster, entry.name, source, reference) : this.fixedHeadEdge(entry.edge, entry.head, entry.name, source, reference.grid);
+      const group =
+        'raster' in entry
+          ? await this.fixedHeadRaster(entry.raster, entry.name, source, reference)
+          : 'shape' in entry
+            ? await this.fixedHeadShape(entry, source, reference.grid)
+            : this.fixedHeadEdge(entry.edge, entry.head, entry.name, source, reference.grid);
       const earlier = names.get(group.name);
       if (earlier !== undefined) {
         throw inputError(`${this.label}: ${source}: the fixed-head group name "${group.name}" is already used by ${earlier}`, {
@@ -351,6 +360,84 @@ class Loader {
       for (let col = 0; col < nx; col++) cells[col] = row * nx + col;
     }
     return { name: name ?? edge, source, cells, heads: new Float64Array(count).fill(head), activeOnly: true };
+  }
+
+  /** A GeoJSON shape entry (docs/scenario-shapes.md): polygons fix the cells whose centre lies inside, lines the cells they cross. */
+  private async fixedHeadShape(entry: FixedHeadShapeEntry, source: string, grid: Grid): Promise<FixedHeadInput> {
+    const key = `${source}.shape`;
+    const { collection, where, file } = await this.shapes(key, entry.shape, grid);
+    const spec = entry.head !== undefined ? { head: entry.head } : { headProperty: entry.headProperty! };
+    let result: ReturnType<typeof shapeFixedHeads>;
+    try {
+      result = shapeFixedHeads(grid, collection, spec, where);
+    } catch (thrown) {
+      throw withPlace(thrown, file, entry.head !== undefined ? key : `${source}.headProperty`);
+    }
+    this.warnOutside(where, result.outside, collection.features.length, 'it fixes no head');
+    return { name: entry.name ?? basename(entry.shape, extname(entry.shape)), source, cells: result.cells, heads: result.heads };
+  }
+
+  /** Make the cells that `aquifer.inactiveShapes` cover inactive (conductivity NaN), in place. */
+  async inactiveShapes(files: string[], grid: Grid, conductivity: Float64Array): Promise<void> {
+    const mask = new Uint8Array(conductivity.length);
+    for (let i = 0; i < files.length; i++) {
+      const key = `aquifer.inactiveShapes[${i}]`;
+      const { collection, where, file } = await this.shapes(key, files[i]!, grid);
+      let outside: string[];
+      try {
+        outside = markShapeCells(grid, collection, mask, where);
+      } catch (thrown) {
+        throw withPlace(thrown, file, key);
+      }
+      this.warnOutside(where, outside, collection.features.length, 'it makes no cell inactive');
+    }
+    for (let p = 0; p < mask.length; p++) if (mask[p]) conductivity[p] = NaN;
+  }
+
+  /** Read a GeoJSON file a key names, check it and reproject it into the raster CRS. */
+  private async shapes(key: string, given: string, grid: Grid): Promise<{ collection: ShapeCollection; where: string; file: string }> {
+    const absolute = this.path(given);
+    await this.requireFile(key, given, absolute, 'GeoJSON');
+    let text: string;
+    try {
+      text = await readFile(absolute, 'utf8');
+    } catch (thrown) {
+      throw fileProblem(thrown, given, absolute, 'GeoJSON file', key);
+    }
+    this.inputFiles.add(absolute);
+    const where = `${this.label}: ${key} "${given}"`;
+    try {
+      const collection = readShapes(parseJsonText(text, where, absolute), where);
+      const to = grid.crs?.epsg ?? null;
+      if (to === null) {
+        throw inputError(`${where} is in EPSG:${collection.epsg}, but the rasters have no EPSG code (${crsLabel(grid.crs)} CRS), so the shapes cannot be reprojected into them`, {
+          hint: 'assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)',
+        });
+      }
+      let transform: PointTransform | null = null;
+      if (collection.epsg !== to) {
+        try {
+          transform = makeTransform(collection.epsg, to);
+        } catch (thrown) {
+          if (thrown instanceof PiezomapError) throw inputError(`${where}: reprojecting from EPSG:${collection.epsg} to the rasters' EPSG:${to}: ${thrown.message}`, thrown.detail);
+          throw thrown;
+        }
+      }
+      reprojectShapes(collection, transform, where);
+      return { collection, where, file: absolute };
+    } catch (thrown) {
+      throw withPlace(thrown, absolute, key);
+    }
+  }
+
+  private warnOutside(where: string, outside: string[], total: number, consequence: string): void {
+    if (outside.length === 0) return;
+    if (outside.length === total) {
+      this.warn(`${where}: no feature covers a cell of the grid (all lie outside it, or are too small to hold a cell centre), so ${consequence}`);
+      return;
+    }
+    const listed = outside.length > 5 ? `${outside.slice(0, 5).join(', ')} and ${outside.length - 5} more` : outside.join(', ');
+    this.warn(`${where}: ${listed} cover${outside.length === 1 ? 's' : ''} no cell of the grid (outside it, or too small to hold a cell centre) and ${outside.length === 1 ? 'is' : 'are'} ignored`);
   }
 
   /** The transform from `pointCrs` to the raster CRS, or null when points are already in the raster CRS. */
@@ -570,6 +657,12 @@ function csvNumber(record: PointRecord, column: string): number {
     });
   }
   return value;
+}
+
+/** A PiezomapError with the file and scenario key at fault added to its detail (other throws pass unchanged). */
+function withPlace(thrown: unknown, file: string, key: string): unknown {
+  if (thrown instanceof PiezomapError) return new PiezomapError(thrown.code, thrown.message, { ...thrown.detail, file: thrown.detail.file ?? file, key: thrown.detail.key ?? key });
+  return thrown;
 }
 
 /** A gdalwarp command that puts a raster on the reference grid. */

@@ -82,6 +82,8 @@ export const aquiferSchema = strict({
   conductivity: filePath,
   thickness: numberOrPath(finite.gt(0), 'a thickness > 0 or the path of a GeoTIFF'),
   anisotropy: finite.gt(0).default(1),
+  /** GeoJSON files whose shapes mark inactive cells (polygons: cells whose centre lies inside; lines: cells crossed). */
+  inactiveShapes: z.array(filePath).optional(),
   /** Effective porosity, for the average linear velocity; number in (0, 1] or a GeoTIFF. Optional. */
   porosity: numberOrPath(finite.gt(0).lte(1), 'a porosity in (0, 1] or the path of a GeoTIFF').optional(),
 });
@@ -93,6 +95,24 @@ const groupName = nonEmpty.optional();
 
 export const fixedHeadRasterSchema = strict({ raster: filePath, name: groupName });
 export const fixedHeadEdgeSchema = strict({ edge: z.enum(edgeNames), head: finite, name: groupName });
+/** GeoJSON polygons/lines (docs/scenario-shapes.md): one head for all features, or a property per feature. */
+export const fixedHeadShapeSchema = strict({
+  shape: filePath,
+  head: finite.optional(),
+  headProperty: nonEmpty.optional(),
+  name: groupName,
+}).superRefine((entry, ctx) => {
+  if ((entry.head === undefined) === (entry.headProperty === undefined)) {
+    ctx.addIssue({
+      code: 'custom',
+      path: [entry.head === undefined ? 'head' : 'headProperty'],
+      message:
+        entry.head === undefined
+          ? 'a shape needs "head" (one head for every feature) or "headProperty" (the feature property holding each head)'
+          : 'give either "head" or "headProperty", not both',
+    });
+  }
+});
 
 /**
  * A fixed-head entry is told apart by the key it has; a later kind (e.g. a GeoJSON shape) is one more line here.
@@ -101,10 +121,11 @@ export const fixedHeadEdgeSchema = strict({ edge: z.enum(edgeNames), head: finit
 const fixedHeadKinds = {
   raster: fixedHeadRasterSchema,
   edge: fixedHeadEdgeSchema,
+  shape: fixedHeadShapeSchema,
 } as const;
 
 export const fixedHeadSchema = dispatch<FixedHeadEntry>(
-  '{ "raster": PATH } or { "edge": "west"|"east"|"north"|"south", "head": H }',
+  '{ "raster": PATH }, { "edge": "west"|"east"|"north"|"south", "head": H } or { "shape": GEOJSON, "head": H | "headProperty": NAME }',
   (value) => {
     if (typeof value !== 'object' || value === null || Array.isArray(value)) return undefined;
     for (const [key, schema] of Object.entries(fixedHeadKinds)) {
@@ -212,7 +233,8 @@ export type Units = z.output<typeof unitsSchema>;
 export type AquiferJson = z.output<typeof aquiferSchema>;
 export type FixedHeadRasterEntry = z.output<typeof fixedHeadRasterSchema>;
 export type FixedHeadEdgeEntry = z.output<typeof fixedHeadEdgeSchema>;
-export type FixedHeadEntry = FixedHeadRasterEntry | FixedHeadEdgeEntry;
+export type FixedHeadShapeEntry = z.output<typeof fixedHeadShapeSchema>;
+export type FixedHeadEntry = FixedHeadRasterEntry | FixedHeadEdgeEntry | FixedHeadShapeEntry;
 export type WellEntry = z.output<typeof wellSchema>;
 export type WellChange = z.output<typeof wellChangeSchema>;
 export type ObservationEntry = z.output<typeof observationSchema>;
