@@ -73,7 +73,18 @@ describe('piezomap CLI', () => {
     const r = run(['solve', writeScenario('ok.json'), '-o', out]);
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
-    expect(readdirSync(out).sort()).toEqual(['budget.csv', 'convergence.csv', 'head.tif', 'summary.json']);
+    expect(readdirSync(out).sort()).toEqual([
+      'budget.csv',
+      'convergence.csv',
+      'darcy-flux-x.tif',
+      'darcy-flux-y.tif',
+      'darcy-flux.tif',
+      'head-contours.geojson',
+      'head-map.png',
+      'head.tif',
+      'report.html',
+      'summary.json',
+    ]);
     expect(r.stdout.trimEnd().endsWith(CAUTION)).toBe(true);
     const summary = JSON.parse(readFileSync(join(out, 'summary.json'), 'utf8'));
     expect(summary.grid).toMatchObject({ nx: 30, ny: 20, dx: 100, dy: 100, crs: 'EPSG:32633', activeCells: 588, fixedHeadCells: 40 });
@@ -84,6 +95,7 @@ describe('piezomap CLI', () => {
     expect(summary.wells[0]).toMatchObject({ id: 'PW-1', row: 10, col: 10 });
     expect(summary.observations[0].id).toBe('OB-1');
     expect(summary.caution).toBe(CAUTION);
+    expect([...summary.files].sort()).toEqual(readdirSync(out).sort());
     const csv = readFileSync(join(out, 'budget.csv'), 'utf8').trim().split('\n');
     expect(csv[0]).toBe('term,inflow,outflow');
     expect(csv.map((l) => l.split(',')[0])).toEqual(['term', 'west', 'outlet', 'wells', 'recharge', 'total']);
