@@ -7,6 +7,8 @@ import { join } from 'node:path';
 import { assembleSystem, headsFromSolution, type FlowSystem } from './discretisation/assemble.js';
 import { waterBudget, type WaterBudget } from './analysis/budget.js';
 import { observationResults, wellResults, locateObservations, type ObservationResult, type WellResult } from './analysis/points.js';
+import { wellboreHeads, wellboreWarnings, type WellboreResult } from './analysis/wellbore.js';
+import { calibrationStatistics, type CalibrationStatistics } from './analysis/calibration.js';
 import { PiezomapError } from './errors.js';
 import { loadScenario } from './scenario/load.js';
 import type { ModelInput } from './scenario/types.js';
@@ -46,6 +48,10 @@ export interface SolveResult {
   budget: WaterBudget;
   wells: WellResult[];
   observations: ObservationResult[];
+  /** Well-bore heads (Peaceman), in well order. */
+  wellbore: WellboreResult[];
+  /** Simulated vs observed statistics; null without observations. */
+  calibration: CalibrationStatistics | null;
   warnings: string[];
   /** Wall seconds per stage. */
   timings: Record<string, number>;
@@ -117,6 +123,9 @@ export function solveSystem(
   ignored.forEach((count, g) => {
     if (count > 0) warnings.push(`${count} fixed-head cell(s) of "${system.groups[g]}" fall on inactive cells and were ignored`);
   });
+  const observations = observationResults(system, model.observations, head);
+  const wellbore = wellboreHeads(model, system, head);
+  warnings.push(...wellboreWarnings(wellbore, model.units.length));
   const result: SolveResult = {
     model,
     system,
@@ -124,7 +133,9 @@ export function solveSystem(
     stats,
     budget,
     wells: wellResults(system, model.wells, head),
-    observations: observationResults(system, model.observations, head),
+    observations,
+    wellbore,
+    calibration: calibrationStatistics(observations),
     warnings,
     timings,
     peakMemoryMiB: peakMemoryMiB(),

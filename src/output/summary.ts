@@ -2,6 +2,7 @@ import { CAUTION } from '../caution.js';
 import { cellHeight, cellWidth, crsLabel } from '../grid.js';
 import type { SolveResult } from '../pipeline.js';
 import type { WaterBudget } from '../analysis/budget.js';
+import type { CalibrationStatistics } from '../analysis/calibration.js';
 
 /** Round to 12 significant digits so files are stable and readable (float noise beyond that is meaningless here). */
 export function tidy(v: number): number {
@@ -80,7 +81,27 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
     },
     budget: budgetJson(budget),
     head: { min: tidy(range.min), max: tidy(range.max), mean: tidy(range.mean) },
-    wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, row: w.row, col: w.col, rate: w.rate, cellHead: tidy(w.cellHead) })),
+    wells: result.wells.map((w, k) => {
+      const bore = result.wellbore[k];
+      return {
+        id: w.id,
+        x: w.x,
+        y: w.y,
+        row: w.row,
+        col: w.col,
+        rate: w.rate,
+        cellHead: tidy(w.cellHead),
+        ...(bore
+          ? {
+              wellboreHead: tidy(bore.wellboreHead),
+              radius: bore.radius,
+              radiusDefaulted: bore.radiusDefaulted,
+              equivalentRadius: tidy(bore.equivalentRadius),
+              ...(bore.minimumHead !== null ? { minimumHead: bore.minimumHead, belowMinimum: bore.belowMinimum } : {}),
+            }
+          : {}),
+      };
+    }),
     observations: result.observations.map((o) => ({
       id: o.id,
       x: o.x,
@@ -91,10 +112,24 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
       observed: o.observed,
       residual: tidy(o.residual),
     })),
+    calibration: calibrationJson(result.calibration),
     warnings: result.warnings,
     files,
     timings: Object.fromEntries(Object.entries(result.timings).map(([k, v]) => [k, tidy(v)])),
     caution: CAUTION,
+  };
+}
+
+/** Calibration statistics for summary.json (rounded), or null without observations. */
+export function calibrationJson(stats: CalibrationStatistics | null): Record<string, number | null> | null {
+  if (!stats) return null;
+  return {
+    count: stats.count,
+    meanError: tidy(stats.meanError),
+    meanAbsoluteError: tidy(stats.meanAbsoluteError),
+    rmsError: tidy(stats.rmsError),
+    observedRange: tidy(stats.observedRange),
+    scaledRmsPercent: stats.scaledRmsPercent === null ? null : tidy(stats.scaledRmsPercent),
   };
 }
 
@@ -138,6 +173,12 @@ function table(rows: string[][], alignRight: boolean[]): string[] {
   return rows.map((r) => '  ' + r.map((cell, c) => (alignRight[c] ? cell.padStart(widths[c]!) : cell.padEnd(widths[c]!))).join('  ').trimEnd());
 }
 
+/** One line of calibration statistics, e.g. for the printed summaries of solve and compare. */
+export function calibrationLine(c: Record<string, number | null>, L: string): string {
+  const scaled = c.scaledRmsPercent === null || c.scaledRmsPercent === undefined ? '' : `, RMS/range ${num(c.scaledRmsPercent, 1)} %`;
+  return `  ${c.count} observation(s): mean error ${num(c.meanError!, 3)} ${L}, mean absolute error ${num(c.meanAbsoluteError!, 3)} ${L}, RMS error ${num(c.rmsError!, 3)} ${L}${scaled}`;
+}
+
 /** The human-readable summary printed after `solve`; ends with the caution. */
 export function formatSummary(summary: SummaryJson, outDir: string | null): string {
   const L = summary.units.length;
@@ -160,16 +201,23 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
   out.push(`  discrepancy ${summary.budget.discrepancyPercent.toExponential(2)} %`);
   if (summary.wells.length) {
     out.push('Wells');
-    const rows = [['id', 'row', 'col', `rate ${L}³/${T}`, `cell head ${L}`]];
-    for (const w of summary.wells) rows.push([String(w.id), String(w.row), String(w.col), num(w.rate as number, 2), num(w.cellHead as number, 3)]);
-    out.push(...table(rows, [false, true, true, true, true]));
+    const rows = [['id', 'row', 'col', `rate ${L}³/${T}`, `cell head ${L}`, `well-bore head ${L}`]];
+    for (const w of summary.wells) {
+      const bore = typeof w.wellboreHead === 'number' ? num(w.wellboreHead, 3) + (w.belowMinimum ? ' (below minimum)' : '') : '';
+      rows.push([String(w.id), String(w.row), String(w.col), num(w.rate as number, 2), num(w.cellHead as number, 3), bore]);
+    }
+    out.push(...table(rows, [false, true, true, true, true, true]));
   }
   if (summary.observations.length) {
     out.push('Observations');
     const rows = [['id', `observed ${L}`, `simulated ${L}`, `residual ${L}`]];
     for (const o of summary.observations) rows.push([String(o.id), num(o.observed as number, 3), num(o.simulated as number, 3), num(o.residual as number, 3)]);
     out.push(...table(rows, [false, true, true, true]));
+    const c = summary.calibration as ReturnType<typeof calibrationJson> | undefined;
+    if (c) out.push(calibrationLine(c, L));
   }
+  const stages = Object.entries(summary.timings);
+  if (stages.length) out.push(`Time     ${stages.map(([stage, seconds]) => `${stage} ${seconds.toFixed(2)} s`).join(' · ')}`);
   for (const w of summary.warnings) out.push(`warning: ${w}`);
   if (outDir) out.push(`Results  ${outDir}: ${summary.files.join(', ')}`);
   out.push('');
