@@ -1,0 +1,462 @@
+/**
+ * A corpus of malformed inputs for the command line: each case is a set of files (scenario JSON, rasters, CSVs)
+ * plus the command to run, the exit code it must give and a fragment its message must contain.
+ * Deterministic: the same bytes on every run. `npm test` (test/bad-inputs.test.ts) writes the corpus into a temporary
+ * folder and runs every case through `node bin/piezomap.js`; to look at the files, run
+ * `node dist/scripts/make-bad-inputs.js OUTDIR` (prints the list of cases).
+ *
+ * Bad rasters that our own Float32 encoder cannot make (strips, several bands, integer or complex samples, rotated
+ * georeferencing, unknown compression) come from the small strip TIFF writer below (TIFF 6.0 layout, one IFD).
+ */
+import { mkdirSync, writeFileSync } from 'node:fs';
+import { join, resolve } from 'node:path';
+import { fileURLToPath, pathToFileURL } from 'node:url';
+import { encodeFloat32GeoTiff } from '../src/raster/write.js';
+import type { Grid } from '../src/grid.js';
+
+export interface BadInputCase {
+  /** Short name; also the scenario file name stem. */
+  name: string;
+  /** What is wrong, in words. */
+  what: string;
+  /** Arguments after `node bin/piezomap.js` (absolute paths). */
+  args: string[];
+  /** The result folder the command is given (checked for leftovers). */
+  out: string;
+  /** Exit status the contract requires. */
+  code: number;
+  /** Text the message on stderr must contain (a regular expression). */
+  message: RegExp;
+  /** Result files allowed to remain: none for input errors; the diagnostics for a solver failure. */
+  allowedFiles: string[];
+  /** Extra environment for the run. */
+  env?: Record<string, string>;
+}
+
+// The valid base model: 12 x 8 cells of 100 m, EPSG:32633 (a label; the frame is invented), west edge 50 m, east 45 m.
+const NX = 12;
+const NY = 8;
+const CELL = 100;
+const X0 = 500000;
+const Y0 = 4100000;
+const EPSG = 32633;
+
+export const baseGrid: Grid = {
+  nx: NX,
+  ny: NY,
+  transform: [X0, CELL, 0, Y0, 0, -CELL],
+  crs: { epsg: EPSG, geographic: false, geoKeys: { GTModelTypeGeoKey: 1, GTRasterTypeGeoKey: 1, ProjectedCSTypeGeoKey: EPSG } },
+};
+
+/** Centre of a cell in map coordinates. */
+export function centre(row: number, col: number): { x: number; y: number } {
+  return { x: X0 + (col + 0.5) * CELL, y: Y0 - (row + 0.5) * CELL };
+}
+
+/** Conductivity 5 m/d with an inactive block (rows 3-4, cols 5-6). */
+export function baseConductivity(): Float64Array {
+  const k = new Float64Array(NX * NY).fill(5);
+  for (let r = 3; r <= 4; r++) for (let c = 5; c <= 6; c++) k[r * NX + c] = Number.NaN;
+  return k;
+}
+
+export function baseScenario(conductivity = 'k.tif'): Record<string, unknown> {
+  const w = centre(2, 3);
+  const o = centre(6, 8);
+  return {
+    title: 'Robustness corpus base (invented)',
+    units: { length: 'm', time: 'd' },
+    aquifer: { conductivity, thickness: 20 },
+    fixedHeads: [
+      { edge: 'west', head: 50 },
+      { edge: 'east', head: 45 },
+    ],
+    recharge: 0.0001,
+    wells: [{ id: 'W1', x: w.x, y: w.y, rate: -200 }],
+    observations: [{ id: 'OB1', x: o.x, y: o.y, head: 47 }],
+    solver: { method: 'auto', tolerance: 1e-10, maxIterations: 5000 },
+  };
+}
+
+// ---------------------------------------------------------------------------------------------------------------
+// A minimal little-endian strip TIFF writer (TIFF 6.0: header, one IFD, strips), for rasters our encoder refuses to make.
+
+const SHORT = 3;
+const LONG = 4;
+const DOUBLE = 12;
+const ASCII = 2;
+
+interface TiffEntry {
+  tag: number;
+  type: number;
+  values: number[] | string;
+}
+
+export interface StripTiffSpec {
+  width: number;
+  height: number;
+  /** Pixel bytes, chunky, row-major, uncompressed (written as is whatever `compression` says). */
+  pixels: Uint8Array;
+  samplesPerPixel?: number;
+  bitsPerSample?: number;
+  /** 1 unsigned, 2 signed, 3 float, 5/6 complex. */
+  sampleFormat?: number;
+  compression?: number;
+  rowsPerStrip?: number;
+  /** Georeferencing: north-up pixel scale + tie point (default), a 4x4 model transformation, or none. */
+  georef?: { kind: 'scale' } | { kind: 'matrix'; matrix: number[] } | { kind: 'none' };
+  /** CRS GeoKeys: projected (default EPSG:32633), geographic, or none. */
+  crs?: { epsg: number; geographic: boolean } | null;
+  nodata?: string;
+}
+
+export function stripTiff(spec: StripTiffSpec): Uint8Array {
+  const spp = spec.samplesPerPixel ?? 1;
+  const bits = spec.bitsPerSample ?? 32;
+  const rowsPerStrip = spec.rowsPerStrip ?? spec.height;
+  const rowBytes = (spec.width * spp * bits) / 8;
+  const strips: Array<[number, number]> = [];
+  for (let r = 0; r < spec.height; r += rowsPerStrip) {
+    const start = r * rowBytes;
+    strips.push([start, Math.min(spec.height - r, rowsPerStrip) * rowBytes]);
+  }
+  const entries: TiffEntry[] = [
+    { tag: 256, type: LONG, values: [spec.width] },
+    { tag: 257, type: LONG, values: [spec.height] },
+    { tag: 258, type: SHORT, values: new Array(spp).fill(bits) },
+    { tag: 259, type: SHORT, values: [spec.compression ?? 1] },
+    { tag: 262, type: SHORT, values: [1] },
+    { tag: 273, type: LONG, values: strips.map((s) => 8 + s[0]) },
+    { tag: 277, type: SHORT, values: [spp] },
+    { tag: 278, type: LONG, values: [rowsPerStrip] },
+    { tag: 279, type: LONG, values: strips.map((s) => s[1]) },
+    { tag: 284, type: SHORT, values: [1] },
+    { tag: 339, type: SHORT, values: new Array(spp).fill(spec.sampleFormat ?? 3) },
+  ];
+  const georef = spec.georef ?? { kind: 'scale' };
+  if (georef.kind === 'scale') {
+    entries.push({ tag: 33550, type: DOUBLE, values: [CELL, CELL, 0] });
+    entries.push({ tag: 33922, type: DOUBLE, values: [0, 0, 0, X0, Y0, 0] });
+  } else if (georef.kind === 'matrix') {
+    entries.push({ tag: 34264, type: DOUBLE, values: georef.matrix });
+  }
+  const crs = spec.crs === undefined ? { epsg: EPSG, geographic: false } : spec.crs;
+  if (crs) {
+    const keys = crs.geographic
+      ? [1, 1, 0, 3, 1024, 0, 1, 2, 1025, 0, 1, 1, 2048, 0, 1, crs.epsg]
+      : [1, 1, 0, 3, 1024, 0, 1, 1, 1025, 0, 1, 1, 3072, 0, 1, crs.epsg];
+    entries.push({ tag: 34735, type: SHORT, values: keys });
+  }
+  if (spec.nodata !== undefined) entries.push({ tag: 42113, type: ASCII, values: spec.nodata });
+  entries.sort((a, b) => a.tag - b.tag);
+
+  const size = (e: TiffEntry) => (typeof e.values === 'string' ? e.values.length + 1 : e.values.length * (e.type === DOUBLE ? 8 : e.type === LONG ? 4 : 2));
+  const ifdAt = 8 + spec.pixels.length + (spec.pixels.length % 2);
+  let extraAt = ifdAt + 2 + entries.length * 12 + 4;
+  const total = extraAt + entries.reduce((sum, e) => sum + (size(e) > 4 ? size(e) + (size(e) % 2) : 0), 0);
+  const bytes = new Uint8Array(total);
+  const view = new DataView(bytes.buffer);
+  bytes[0] = 0x49;
+  bytes[1] = 0x49;
+  view.setUint16(2, 42, true);
+  view.setUint32(4, ifdAt, true);
+  bytes.set(spec.pixels, 8);
+  view.setUint16(ifdAt, entries.length, true);
+  entries.forEach((e, k) => {
+    const at = ifdAt + 2 + 12 * k;
+    const count = typeof e.values === 'string' ? e.values.length + 1 : e.values.length;
+    view.setUint16(at, e.tag, true);
+    view.setUint16(at + 2, e.type, true);
+    view.setUint32(at + 4, count, true);
+    const n = size(e);
+    let p = at + 8;
+    if (n > 4) {
+      view.setUint32(at + 8, extraAt, true);
+      p = extraAt;
+      extraAt += n + (n % 2);
+    }
+    if (typeof e.values === 'string') {
+      for (let i = 0; i < e.values.length; i++) bytes[p + i] = e.values.charCodeAt(i);
+    } else {
+      for (const v of e.values) {
+        if (e.type === DOUBLE) { view.setFloat64(p, v, true); p += 8; }
+        else if (e.type === LONG) { view.setUint32(p, v, true); p += 4; }
+        else { view.setUint16(p, v, true); p += 2; }
+      }
+    }
+  });
+  return bytes;
+}
+
+/** Float32 pixel bytes of `bands` interleaved copies of the values (band b gets values + b). */
+export function float32Pixels(values: ArrayLike<number>, bands = 1): Uint8Array {
+  const out = new Float32Array(values.length * bands);
+  for (let p = 0; p < values.length; p++) for (let b = 0; b < bands; b++) out[p * bands + b] = values[p]! + b;
+  return new Uint8Array(out.buffer);
+}
+
+// ---------------------------------------------------------------------------------------------------------------
+
+/** Write the corpus into `dir` and return its cases. */
+export function writeBadInputs(dir: string): BadInputCase[] {
+  mkdirSync(dir, { recursive: true });
+  const file = (name: string, bytes: Uint8Array | string) => {
+    writeFileSync(join(dir, name), bytes);
+    return join(dir, name);
+  };
+  const k = baseConductivity();
+  const kBytes = encodeFloat32GeoTiff(baseGrid, k, { tileSize: 16 });
+  file('k.tif', kBytes);
+  // The same values in strips, for damage that needs the strip layout.
+  const kStrip = stripTiff({ width: NX, height: NY, pixels: float32Pixels(k.map((v) => (Number.isNaN(v) ? -9999 : v))), rowsPerStrip: 2, nodata: '-9999' });
+  file('k-strip.tif', kStrip);
+
+  const cases: BadInputCase[] = [];
+  const outFor = (name: string) => join(dir, 'out', name);
+  /** A case running `solve` on a scenario = base with `overrides` (keys set to undefined are removed). */
+  const solveCase = (
+    name: string,
+    what: string,
+    overrides: Record<string, unknown>,
+    code: number,
+    message: RegExp,
+    extra: Partial<BadInputCase> = {},
+  ) => {
+    const scenario: Record<string, unknown> = { ...baseScenario(), ...overrides };
+    for (const key of Object.keys(scenario)) if (scenario[key] === undefined) delete scenario[key];
+    const path = file(`${name}.json`, JSON.stringify(scenario, null, 2));
+    const out = outFor(name);
+    cases.push({ name, what, args: ['solve', path, '-o', out], out, code, message, allowedFiles: [], ...extra });
+  };
+  const aquifer = (conductivity: string, more: Record<string, unknown> = {}) => ({ aquifer: { conductivity, thickness: 20, ...more } });
+  const rasterCase = (name: string, what: string, bytes: Uint8Array | string, message: RegExp) => {
+    file(`${name}.tif`, bytes);
+    solveCase(name, what, aquifer(`${name}.tif`), 2, message);
+  };
+
+  // --- rasters -----------------------------------------------------------------------------------------------
+  rasterCase('raster-not-tiff', 'a PNG signature under a .tif name', new Uint8Array([0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a, 0, 0, 0, 13]), /not a TIFF file/);
+  rasterCase('raster-text', 'an ASCII grid under a .tif name', 'ncols 12\nnrows 8\nxllcorner 500000\n', /not a TIFF file/);
+  rasterCase('raster-empty', 'an empty file', new Uint8Array(0), /empty \(0 bytes\)/);
+  rasterCase('raster-header-only', 'only the 8-byte TIFF header', kBytes.slice(0, 8), /damaged|unreadable/);
+  rasterCase('raster-truncated-strips', 'a strip TIFF cut in the middle of its pixel data', cutStripFile(kStrip), /cut short|damaged/);
+  rasterCase('raster-truncated-tiles', 'a tiled DEFLATE TIFF cut short', kBytes.slice(0, Math.floor(kBytes.length * 0.6)), /cut short|damaged/);
+  rasterCase('raster-corrupt-tiles', 'tile data overwritten with noise', corruptTiles(kBytes), /cannot be decompressed|damaged/);
+  rasterCase('raster-bad-ifd-offset', 'IFD offset past the end of the file', withIfdOffset(kBytes, 0x7ffffff0), /damaged|unreadable/);
+  rasterCase('raster-rotated', 'a rotated grid (ModelTransformation with rotation terms)',
+    stripTiff({ width: NX, height: NY, pixels: float32Pixels(k), georef: { kind: 'matrix', matrix: [86.6, 50, 0, X0, 50, -86.6, 0, Y0, 0, 0, 0, 0, 0, 0, 0, 1] } }),
+    /rotated or sheared/);
+  rasterCase('raster-two-bands', 'two bands and no way to tell which is meant', stripTiff({ width: NX, height: NY, pixels: float32Pixels(k, 2), samplesPerPixel: 2 }), /2 bands/);
+  rasterCase('raster-complex', 'complex floating-point samples', stripTiff({ width: NX, height: NY, pixels: new Uint8Array(NX * NY * 8), bitsPerSample: 64, sampleFormat: 6 }), /unsupported sample type/);
+  const oneBit = stripTiff({ width: NX, height: NY, pixels: new Uint8Array(NX * NY), bitsPerSample: 8, sampleFormat: 1 });
+  oneBit[findShortTag(oneBit, 258)] = 1; // BitsPerSample 1, as a bilevel mask would have
+  rasterCase('raster-1bit', '1-bit samples', oneBit, /unsupported sample type/);
+  rasterCase('raster-jpeg', 'JPEG compression (not supported)', stripTiff({ width: NX, height: NY, pixels: float32Pixels(k), compression: 7 }), /unsupported compression/);
+  rasterCase('raster-no-georef', 'no georeferencing tags', stripTiff({ width: NX, height: NY, pixels: float32Pixels(k), georef: { kind: 'none' } }), /no georeferencing/);
+  rasterCase('raster-huge-header', 'a header claiming 1,000,000 x 1,000,000 cells', stripTiff({ width: 1_000_000, height: 1_000_000, pixels: new Uint8Array(16), rowsPerStrip: 1 }).slice(), /more than|cells/);
+  rasterCase('raster-geographic', 'EPSG:4326 (degrees are not lengths)', stripTiff({ width: NX, height: NY, pixels: float32Pixels(k), crs: { epsg: 4326, geographic: true } }), /geographic CRS/);
+  rasterCase('raster-infinite-k', '+Infinity conductivity values', encodeFloat32GeoTiff(baseGrid, k.map((v, p) => (p === 13 ? Infinity : v))), /infinite|Infinity/);
+  rasterCase('raster-all-inactive', 'every conductivity cell is nodata or <= 0', encodeFloat32GeoTiff(baseGrid, k.map((_, p) => (p % 2 ? Number.NaN : -1))), /no active cell/);
+
+  // --- rasters given together ------------------------------------------------------------------------------
+  file('thick-other-size.tif', encodeFloat32GeoTiff({ ...baseGrid, nx: NX + 1 }, new Float64Array((NX + 1) * NY).fill(20)));
+  solveCase('grid-size-differs', 'thickness raster one column wider', aquifer('k.tif', { thickness: 'thick-other-size.tif' }), 2, /not on the grid.*size 12x8 vs 13x8/);
+  file('thick-other-crs.tif', encodeFloat32GeoTiff({ ...baseGrid, crs: { epsg: 32634, geographic: false, geoKeys: { GTModelTypeGeoKey: 1, GTRasterTypeGeoKey: 1, ProjectedCSTypeGeoKey: 32634 } } }, new Float64Array(NX * NY).fill(20)));
+  solveCase('grid-crs-differs', 'thickness raster in another CRS', aquifer('k.tif', { thickness: 'thick-other-crs.tif' }), 2, /CRS EPSG:32633 vs EPSG:32634/);
+  file('recharge-shifted.tif', encodeFloat32GeoTiff({ ...baseGrid, transform: [X0 + 50, CELL, 0, Y0, 0, -CELL] }, new Float64Array(NX * NY).fill(1e-4)));
+  solveCase('grid-shifted', 'recharge raster shifted by half a cell', { recharge: 'recharge-shifted.tif' }, 2, /recharge.*not on the grid.*geotransform/);
+  file('recharge-infinite.tif', encodeFloat32GeoTiff(baseGrid, new Float64Array(NX * NY).fill(1e-4).map((v, p) => (p === 30 ? -Infinity : v))));
+  solveCase('recharge-infinite', 'a -Infinity recharge cell', { recharge: 'recharge-infinite.tif' }, 2, /recharge.*infinite/);
+  file('stage-infinite.tif', encodeFloat32GeoTiff(baseGrid, new Float64Array(NX * NY).fill(Number.NaN).map((v, p) => (p % NX === 0 ? (p === 24 ? Infinity : 50) : v))));
+  solveCase('fixed-head-infinite', 'a fixed-head raster with +Infinity in one cell', { fixedHeads: [{ raster: 'stage-infinite.tif' }, { edge: 'east', head: 45 }] }, 2, /fixedHeads\[0\].*infinite/);
+
+  // --- singular systems --------------------------------------------------------------------------------------
+  solveCase('no-fixed-head', 'no fixed-head entry at all', { fixedHeads: [] }, 2, /without a fixed head/);
+  file('k-wall.tif', encodeFloat32GeoTiff(baseGrid, k.map((v, p) => (p % NX === 8 ? Number.NaN : v))));
+  solveCase('isolated-region', 'an inactive wall cuts off the east; only the west is fixed', { ...aquifer('k-wall.tif'), fixedHeads: [{ edge: 'west', head: 50 }], wells: [] , observations: [] }, 2, /no fixed head/);
+  file('stage-on-inactive.tif', encodeFloat32GeoTiff(baseGrid, k.map((v, p) => (Number.isNaN(v) ? 48 : Number.NaN))));
+  solveCase('fixed-head-only-inactive', 'the only fixed heads fall on inactive cells', { fixedHeads: [{ raster: 'stage-on-inactive.tif' }] }, 2, /no fixed head/);
+
+  // --- points ------------------------------------------------------------------------------------------------
+  const inside = centre(1, 1);
+  const hole = centre(3, 5);
+  solveCase('well-outside', 'a well 10 km east of the grid', { wells: [{ id: 'FAR-1', x: X0 + 10000, y: inside.y, rate: -10 }] }, 2, /well "FAR-1".*outside the grid/);
+  solveCase('well-inactive', 'a well in the inactive block', { wells: [{ id: 'DRY-1', ...hole, rate: -10 }] }, 2, /well "DRY-1".*inactive cell/);
+  solveCase('well-fixed-cell', 'a well in a fixed-head cell', { wells: [{ id: 'EDGE-1', ...centre(4, 0), rate: -10 }] }, 2, /well "EDGE-1".*fixed-head cell/);
+  solveCase('observation-outside', 'an observation south of the grid', { observations: [{ id: 'OB-S', x: inside.x, y: Y0 - 5000, head: 40 }] }, 2, /observation "OB-S".*outside the grid/);
+  solveCase('observation-inactive', 'an observation in the inactive block', { observations: [{ id: 'OB-H', ...hole, head: 40 }] }, 2, /observation "OB-H".*inactive cell/);
+  solveCase('duplicate-well-ids', 'two wells with id W1', { wells: [{ id: 'W1', ...inside, rate: -1 }, { id: 'W1', ...centre(6, 2), rate: -1 }] }, 2, /duplicate well id "W1"/);
+  file('wells-dup.csv', `id,x,y,rate\nP1,${inside.x},${inside.y},-5\nP1,${centre(6, 2).x},${centre(6, 2).y},-5\n`);
+  solveCase('csv-duplicate-ids', 'a CSV with one id twice', { wells: 'wells-dup.csv' }, 2, /wells-dup\.csv line 3: duplicate id "P1"/);
+  file('wells-badnum.csv', `id,x,y,rate\nP1,${inside.x},${inside.y},-5\nP2,${inside.x},${inside.y},lots\n`);
+  solveCase('csv-bad-number', 'a CSV rate that is not a number', { wells: 'wells-badnum.csv' }, 2, /wells-badnum\.csv line 3: rate "lots" is not a number/);
+  file('wells-fields.csv', `id,x,y,rate\nP1,${inside.x},${inside.y}\n`);
+  solveCase('csv-missing-field', 'a CSV row with three fields under a four-column header', { wells: 'wells-fields.csv' }, 2, /wells-fields\.csv line 2: 3 field\(s\) where the header has 4/);
+  file('obs-header.csv', `name;x;y;level\nA;1;2;3\n`);
+  solveCase('csv-bad-header', 'a semicolon-separated CSV header', { observations: 'obs-header.csv' }, 2, /obs-header\.csv line 1: the header .* not separated by commas/);
+  file('obs-comma-decimal.csv', `id,x,y,head\nA,${inside.x},${inside.y},"47,5"\n`);
+  solveCase('csv-decimal-comma', 'a decimal comma in a quoted field', { observations: 'obs-comma-decimal.csv' }, 2, /head "47,5" is not a number/);
+
+  // --- scenario JSON -----------------------------------------------------------------------------------------
+  const rawCase = (name: string, what: string, text: string, message: RegExp) => {
+    const path = file(`${name}.json`, text);
+    const out = outFor(name);
+    cases.push({ name, what, args: ['solve', path, '-o', out], out, code: 2, message, allowedFiles: [] });
+  };
+  const valid = JSON.stringify(baseScenario(), null, 2);
+  rawCase('json-syntax', 'a missing comma', valid.replace('"units"', '"units" "x"'), /json-syntax\.json line \d+, column \d+: invalid JSON/);
+  rawCase('json-trailing-comma', 'a trailing comma', valid.replace(/\n}$/, ',\n}'), /invalid JSON/);
+  rawCase('json-empty', 'an empty scenario file', '', /invalid JSON/);
+  rawCase('json-array', 'a list instead of an object', '[1, 2, 3]', /expected object|object/);
+  rawCase('json-duplicate-key', 'the key "recharge" twice', valid.replace('"recharge": 0.0001', '"recharge": 0.0001, "recharge": 0.5'), /"recharge".*(twice|repeated|again|duplicate)/i);
+  solveCase('json-type-error', 'thickness as true', aquifer('k.tif', { thickness: true }), 2, /aquifer\.thickness/);
+  solveCase('json-negative-thickness', 'a negative thickness', aquifer('k.tif', { thickness: -5 }), 2, /aquifer\.thickness/);
+  solveCase('json-unknown-key', 'a misspelt key', { recharj: 0.1 }, 2, /recharj.*did you mean "recharge"/);
+  solveCase('json-huge-number', 'a head of 1e999 (Infinity after parsing)', { fixedHeads: [{ edge: 'west', head: 1e400 }, { edge: 'east', head: 45 }] }, 2, /fixedHeads\[0\]\.head/);
+  rawCase('json-huge-number-text', 'a head written as 1e999', valid.replace('"head": 50', '"head": 1e999'), /fixedHeads\[0\]\.head/);
+  solveCase('json-bad-tolerance', 'a tolerance of 5', { solver: { tolerance: 5 } }, 2, /solver\.tolerance/);
+  solveCase('json-unknown-method', 'an unknown solver method', { solver: { method: 'magic' } }, 2, /unknown solver method "magic"/);
+
+  // --- CRS codes ---------------------------------------------------------------------------------------------
+  solveCase('epsg-unknown', 'pointCrs EPSG:99999 (no such code)', { pointCrs: 'EPSG:99999' }, 2, /pointCrs.*EPSG:99999/);
+  solveCase('epsg-not-horizontal', 'pointCrs names a vertical CRS (EPSG:5703)', { pointCrs: 'EPSG:5703' }, 2, /pointCrs.*not a horizontal/);
+  solveCase('epsg-malformed', 'pointCrs "WGS84"', { pointCrs: 'WGS84' }, 2, /pointCrs.*EPSG code/);
+  file('k-nocrs.tif', stripTiff({ width: NX, height: NY, pixels: float32Pixels(k.map((v) => (Number.isNaN(v) ? -9999 : v))), nodata: '-9999', crs: null }));
+  solveCase('epsg-raster-without-code', 'pointCrs given but the raster has no CRS', { ...aquifer('k-nocrs.tif'), pointCrs: 'EPSG:4326' }, 2, /pointCrs.*no EPSG code/);
+
+  // --- files and folders -------------------------------------------------------------------------------------
+  {
+    const out = outFor('missing-scenario');
+    cases.push({ name: 'missing-scenario', what: 'the scenario file does not exist', args: ['solve', join(dir, 'nowhere.json'), '-o', out], out, code: 2, message: /nowhere\.json/, allowedFiles: [] });
+  }
+  {
+    mkdirSync(join(dir, 'a-folder.json'), { recursive: true });
+    const out = outFor('scenario-is-folder');
+    cases.push({ name: 'scenario-is-folder', what: 'the scenario path is a folder', args: ['solve', join(dir, 'a-folder.json'), '-o', out], out, code: 2, message: /a-folder\.json.*folder/, allowedFiles: [] });
+  }
+  mkdirSync(join(dir, 'folder.tif'), { recursive: true });
+  solveCase('raster-is-folder', 'the conductivity path is a folder', aquifer('folder.tif'), 2, /folder\.tif.*folder/);
+  solveCase('raster-missing', 'the conductivity raster does not exist', aquifer('gone.tif'), 2, /gone\.tif.*not found/);
+  {
+    const blocker = file('plain-file', 'not a folder\n');
+    const path = file('out-under-file.json', JSON.stringify(baseScenario(), null, 2));
+    const out = join(blocker, 'results');
+    cases.push({ name: 'out-under-file', what: 'output folder below a regular file (unwritable, even for root)', args: ['solve', path, '-o', out], out, code: 2, message: /cannot create output folder/, allowedFiles: [] });
+  }
+  {
+    const path = file('out-proc.json', JSON.stringify(baseScenario(), null, 2));
+    const out = '/proc/piezomap-results';
+    cases.push({ name: 'out-in-proc', what: 'output folder in /proc (not writable, even for root)', args: ['solve', path, '-o', out], out, code: 2, message: /output folder/, allowedFiles: [] });
+  }
+  {
+    const path = file('out-is-file.json', JSON.stringify(baseScenario(), null, 2));
+    const out = file('results-file', 'x\n');
+    cases.push({ name: 'out-is-file', what: 'the output path is a regular file', args: ['solve', path, '-o', out], out, code: 2, message: /exists and is not a folder/, allowedFiles: [] });
+  }
+  {
+    const path = file('out-holds-results.json', JSON.stringify(baseScenario(), null, 2));
+    const out = outFor('out-holds-results');
+    mkdirSync(out, { recursive: true });
+    writeFileSync(join(out, 'summary.json'), '{"files":["head.tif","summary.json"]}\n');
+    writeFileSync(join(out, 'head.tif'), 'earlier result\n');
+    cases.push({
+      name: 'out-holds-results', what: 'the output folder holds earlier results (no --overwrite)', args: ['solve', path, '-o', out], out, code: 2,
+      message: /already holds results/, allowedFiles: ['summary.json', 'head.tif'],
+    });
+  }
+
+  // --- resources and solver ----------------------------------------------------------------------------------
+  // 200 x 200 cells: the raster itself reads within 1 MiB, the run does not.
+  const bigGrid: Grid = { ...baseGrid, nx: 200, ny: 200 };
+  file('k-200.tif', encodeFloat32GeoTiff(bigGrid, new Float64Array(200 * 200).fill(5)));
+  solveCase('memory-limit', 'a memory limit of 1 MiB for a 200 x 200 run', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /memory/i, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '1' } });
+  {
+    const path = file('not-converged.json', JSON.stringify(baseScenario(), null, 2));
+    const out = outFor('not-converged');
+    cases.push({
+      name: 'not-converged', what: 'Jacobi capped at 5 iterations', args: ['solve', path, '-o', out, '--method', 'jacobi', '--max-iterations', '5'], out, code: 3,
+      message: /did not reach the tolerance.*relative residual .* convergence factor/s, allowedFiles: ['head-not-converged.tif', 'budget.csv', 'convergence.csv', 'summary.json'],
+    });
+  }
+  {
+    const path = file('budget-open.json', JSON.stringify({ ...baseScenario(), solver: { method: 'cg', tolerance: 0.5, maxIterations: 100 } }, null, 2));
+    const out = outFor('budget-open');
+    cases.push({
+      name: 'budget-open', what: 'a loose tolerance met while the water budget does not close', args: ['solve', path, '-o', out], out, code: 3,
+      message: /water budget does not close/, allowedFiles: ['head-not-converged.tif', 'budget.csv', 'convergence.csv', 'summary.json'],
+    });
+  }
+  return cases;
+}
+
+/** Cut a strip file inside its pixel data (the IFD, at the end of our layout, is kept by moving it first). */
+function cutStripFile(bytes: Uint8Array): Uint8Array {
+  // Our strip writer puts pixels first and the IFD after them; drop the second half of the pixels by
+  // rewriting the strip byte counts to claim more bytes than the file holds.
+  const out = bytes.slice();
+  const view = new DataView(out.buffer);
+  const ifd = view.getUint32(4, true);
+  const n = view.getUint16(ifd, true);
+  for (let k = 0; k < n; k++) {
+    const at = ifd + 2 + 12 * k;
+    if (view.getUint16(at, true) !== 273) continue;
+    const count = view.getUint32(at + 4, true);
+    const offsets = count === 1 ? at + 8 : view.getUint32(at + 8, true);
+    // move the last strip's offset near the end of the file so its bytes run past it
+    view.setUint32(offsets + 4 * (count - 1), out.length - 10, true);
+  }
+  return out;
+}
+
+/** Overwrite the middle of every tile's DEFLATE stream with a fixed byte pattern. */
+function corruptTiles(bytes: Uint8Array): Uint8Array {
+  const out = bytes.slice();
+  const view = new DataView(out.buffer);
+  const ifd = view.getUint32(4, true);
+  const n = view.getUint16(ifd, true);
+  let offsets: number[] = [];
+  let counts: number[] = [];
+  const list = (at: number) => {
+    const count = view.getUint32(at + 4, true);
+    const type = view.getUint16(at + 2, true);
+    const size = type === 3 ? 2 : 4;
+    const base = count * size > 4 ? view.getUint32(at + 8, true) : at + 8;
+    return Array.from({ length: count }, (_, i) => (size === 2 ? view.getUint16(base + 2 * i, true) : view.getUint32(base + 4 * i, true)));
+  };
+  for (let k = 0; k < n; k++) {
+    const at = ifd + 2 + 12 * k;
+    const tag = view.getUint16(at, true);
+    if (tag === 324) offsets = list(at);
+    if (tag === 325) counts = list(at);
+  }
+  offsets.forEach((offset, i) => {
+    for (let b = 2; b < counts[i]! - 4; b++) out[offset + b] = (b * 37 + 11) & 0xff;
+  });
+  return out;
+}
+
+function withIfdOffset(bytes: Uint8Array, offset: number): Uint8Array {
+  const out = bytes.slice();
+  new DataView(out.buffer).setUint32(4, offset, true);
+  return out;
+}
+
+/** Byte position of the inline value of a SHORT tag in the first IFD (for patching BitsPerSample). */
+function findShortTag(bytes: Uint8Array, tag: number): number {
+  const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  const ifd = view.getUint32(4, true);
+  const n = view.getUint16(ifd, true);
+  for (let k = 0; k < n; k++) {
+    const at = ifd + 2 + 12 * k;
+    if (view.getUint16(at, true) === tag) return at + 8;
+  }
+  return -1;
+}
+
+if (process.argv[1] && import.meta.url === pathToFileURL(resolve(process.argv[1])).href) {
+  const here = fileURLToPath(new URL('.', import.meta.url));
+  const dir = resolve(process.argv[2] ?? join(here, 'bad-inputs'));
+  const cases = writeBadInputs(dir);
+  for (const c of cases) process.stdout.write(`${c.name}\texit ${c.code}\t${c.what}\n`);
+  process.stdout.write(`${cases.length} cases written to ${dir}\n`);
+}
