@@ -28,6 +28,8 @@ interface ChildResult {
   assembleSeconds: number;
   setupSeconds: number;
   solveSeconds: number;
+  /** CPU time (user + system) of setup + solve: less sensitive than wall time to other load on the machine. */
+  cpuSeconds: number;
   iterations: number;
   relativeResidual: number;
   stopReason: string;
@@ -78,9 +80,11 @@ function runChild(size: number, method: string, tolerance: number, timeLimit: nu
   (model as { conductivity: Float64Array | null }).conductivity = null;
   (globalThis as { gc?: () => void }).gc?.();
   const resolvedMethod = method === 'auto' ? chooseAutoMethod(system.operator) : method;
+  const cpuStart = process.cpuUsage();
   const solver = createSolver(method, system.operator);
   const x = new Float64Array(system.operator.n);
   const stats = solver.solve(system.rhs, x, { tolerance, maxIterations: 50_000, timeLimitSeconds: timeLimit });
+  const cpu = process.cpuUsage(cpuStart);
   const head = headsFromSolution(system, x);
   const budget = waterBudget(system, head);
   if (headsFile) writeFileSync(headsFile, new Uint8Array(head.buffer, head.byteOffset, head.byteLength));
@@ -94,6 +98,7 @@ function runChild(size: number, method: string, tolerance: number, timeLimit: nu
     assembleSeconds,
     setupSeconds: stats.setupSeconds,
     solveSeconds: stats.solveSeconds,
+    cpuSeconds: (cpu.user + cpu.system) / 1e6,
     iterations: stats.iterations,
     relativeResidual: stats.relativeResidual,
     stopReason: stats.stopReason,
@@ -145,13 +150,14 @@ function exp(v: number | null): string {
 }
 
 function printTable(rows: Row[]): void {
-  const header = ['cells', 'unknowns', 'method', 'setup s', 'solve s', 'iters', 'rel.res', 'stop', 'budget %', 'head err', 'RSS MiB', 'ns/cell', 'ns/cell/it'];
+  const header = ['cells', 'unknowns', 'method', 'setup s', 'solve s', 'cpu s', 'iters', 'rel.res', 'stop', 'budget %', 'head err', 'RSS MiB', 'ns/cell', 'ns/cell/it'];
   const lines = rows.map((r) => [
     String(r.cells),
     String(r.unknowns),
     r.method === r.resolvedMethod ? r.method : `${r.method}→${r.resolvedMethod}`,
     fmt(r.setupSeconds, 3),
     fmt(r.solveSeconds, 3),
+    fmt(r.cpuSeconds, 3),
     String(r.iterations),
     exp(r.relativeResidual),
     r.stopReason,

@@ -74,7 +74,7 @@ export class BandedCholesky {
   }
 
   /** x = A^{-1} b (x may alias b). */
-  solve(b: ArrayLike<number>, x: Float64Array): void {
+  solve(b: ArrayLike<number>, x: Float64Array | Float32Array): void {
     const { n, width: w, factor: f, order, work: y } = this;
     const stride = w + 1;
     for (let p = 0; p < n; p++) y[order[p]!] = b[p]!;

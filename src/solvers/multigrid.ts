@@ -249,14 +249,9 @@ function prolongAndSmooth(a: Level, e: Float64Array, b: Float64Array, x: Float64
   const { nx, ny, east, south, invDiag } = a;
   const n = nx * ny;
   const cx = (nx + 1) >> 1;
-  const prolongRow = (i: number): void => {
-    const row = i * nx;
-    const crow = (i >> 1) * cx;
-    for (let j = 0; j < nx; j++) x[row + j] += e[crow + (j >> 1)]!;
-  };
-  prolongRow(ny - 1);
+  prolongRow(nx, cx, ny - 1, e, x);
   for (let i = ny - 1; i >= 0; i--) {
-    if (i > 0) prolongRow(i - 1);
+    if (i > 0) prolongRow(nx, cx, i - 1, e, x);
     const row = i * nx;
     if (i > 0 && i < ny - 1) {
       for (let p = row + nx - 1; p >= row; p--) {
@@ -275,6 +270,13 @@ function prolongAndSmooth(a: Level, e: Float64Array, b: Float64Array, x: Float64
       }
     }
   }
+}
+
+/** x += P e on row i: every cell gets its aggregate's correction. */
+function prolongRow(nx: number, cx: number, i: number, e: Float64Array, x: Float64Array): void {
+  const row = i * nx;
+  const crow = (i >> 1) * cx;
+  for (let j = 0; j < nx; j++) x[row + j] += e[crow + (j >> 1)]!;
 }
 
 /** out = A x on a level (single-precision coefficients); returns x·out. */
