@@ -82,3 +82,46 @@ describe.each(methods.filter((m) => m.startsWith('pcg') || m === 'cg'))('method 
     expect(maxRelativeError(x, ref)).toBeLessThan(1e-6);
   });
 });
+
+describe('stopping rules', () => {
+  const { op, b } = buildSystem(heterogeneousCase(40, 30, 4));
+
+  it('stops with reason time-limit when the time budget is spent', () => {
+    const stats = createSolver('pcg-jacobi', op).solve(b, new Float64Array(op.n), { tolerance: 1e-14, maxIterations: 100_000, timeLimitSeconds: 0 });
+    expect(stats.stopReason).toBe('time-limit');
+    expect(stats.converged).toBe(false);
+  });
+
+  it('stops with reason interrupted when the progress callback returns false', () => {
+    let calls = 0;
+    const stats = createSolver('cg', op).solve(b, new Float64Array(op.n), {
+      tolerance: 1e-14,
+      maxIterations: 100_000,
+      onProgress: () => {
+        calls++;
+        return false;
+      },
+    });
+    expect(stats.stopReason).toBe('interrupted');
+    expect(calls).toBe(1);
+  });
+
+  it('stops with reason iteration-limit and reports the true residual', () => {
+    const x = new Float64Array(op.n);
+    const stats = createSolver('pcg-ssor', op).solve(b, x, { tolerance: 1e-14, maxIterations: 3 });
+    expect(stats.stopReason).toBe('iteration-limit');
+    expect(stats.iterations).toBe(3);
+    const r = new Float64Array(op.n);
+    op.apply(x, r);
+    let rr = 0;
+    for (let i = 0; i < op.n; i++) rr += (b[i]! - r[i]!) ** 2;
+    expect(stats.relativeResidual).toBeCloseTo(Math.sqrt(rr) / Math.hypot(...b), 12);
+    expect(stats.criterion).toContain('1e-14');
+  });
+
+  it('refuses an operator with a non-positive diagonal, naming the cell', () => {
+    const bad = buildSystem(heterogeneousCase(6, 5, 2)).op;
+    bad.diag[7] = 0;
+    expect(() => createSolver('pcg-ic0', bad)).toThrow(/row 1, col 1/);
+  });
+});
