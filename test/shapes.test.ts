@@ -112,17 +112,19 @@ describe('rasterisePolygon', () => {
           const got = new Set(cells);
           expect(got.size).toBe(cells.length); // no cell twice
           for (let k = 1; k < cells.length; k++) expect(cells[k]!).toBeGreaterThan(cells[k - 1]!);
+          const wrong: string[] = [];
           for (let row = 0; row < g.ny; row++) {
             for (let col = 0; col < g.nx; col++) {
               const cx = x0 + (col + 0.5) * dx;
               const cy = y0 + (row + 0.5) * dy;
+              const inside = insideRings(rings, cx, cy);
               // A centre on (or within rounding of) an edge may go either way; the convention is tested above.
-              if (distanceToRings(rings, cx, cy) < 1e-9 * dx) continue;
-              expect(got.has(row * g.nx + col), `cell (${row}, ${col})`).toBe(insideRings(rings, cx, cy));
+              if (got.has(row * g.nx + col) !== inside && distanceToRings(rings, cx, cy) >= 1e-9 * dx) wrong.push(`(${row}, ${col})`);
             }
           }
+          expect(wrong, 'cells where the fill and ray casting disagree').toEqual([]);
         }),
-        { numRuns: 300, seed: 51 },
+        { numRuns: 200, seed: 51 },
       );
     });
   }
@@ -147,6 +149,9 @@ describe('rasteriseLine', () => {
     const g = grid(4, 4, [0, 1, 0, 4, 0, -1]);
     const pieces = rasteriseLine(g, xy([[0, 4], [4, 0]]));
     expect(Array.from(pieces.cells)).toEqual([0, 5, 10, 15]);
+    // Passing a rounding error away from the corners (as after a reprojection) changes nothing.
+    const nearly = rasteriseLine(g, xy([[0, 4 + 1e-13], [4, 1e-13]]));
+    expect(Array.from(nearly.cells)).toEqual([0, 5, 10, 15]);
   });
 
   it('puts a line along a cell edge in the cells south of it (the rule of cellAt)', () => {
@@ -471,7 +476,9 @@ describe('shape errors name the file and the feature', () => {
     const bad = { type: 'Polygon', coordinates: [[[lon, lat], [lon + 1e-3, 'x'], [lon, lat + 1e-3]]] };
     expect((await shapeError('coords', collection([feature(square(lon, lat), { stage: 1 }), feature(bad, { stage: 1 })]))).message).toContain('feature 1: coordinates[0][1] is not a position');
     const degenerate = { type: 'LineString', coordinates: [[lon, lat], [lon, lat]] };
-    expect((await shapeError('zero', collection([feature(degenerate, { stage: 1 })]))).message).toContain('feature 0: the line has zero length');
+    const zero = await shapeError('zero', collection([feature(degenerate, { stage: 1 })]));
+    expect(zero.message).toContain('feature 0: the line has zero length');
+    expect(zero.detail.key).toBe('fixedHeads[0].shape');
   });
 
   it('projected coordinates without a crs member, with a hint about RFC 7946 longitude/latitude', async () => {
@@ -497,7 +504,7 @@ describe('shape errors name the file and the feature', () => {
     for (const entry of [{ shape: 'ok.geojson', head: 1, headProperty: 'stage' }, { shape: 'ok.geojson' }]) {
       const error = await loadError(writeJson('both.json', { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [entry] }));
       expect(error.code).toBe('input');
-      expect(error.message).toMatch(/fixedHeads\.0\.(head|headProperty)|fixedHeads\[0\]\.(head|headProperty)/);
+      expect(error.message).toMatch(/fixedHeads\[0\]\.(head|headProperty): /);
     }
   });
 

@@ -30,7 +30,7 @@ import {
 } from './schema.js';
 import { wellLayers } from './merge.js';
 import { readShapes, reprojectShapes, type ShapeCollection } from './geojson.js';
-import { markShapeCells, shapeFixedHeads } from './shapes.js';
+import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
 
@@ -371,6 +371,7 @@ class Loader {
     try {
       result = shapeFixedHeads(grid, collection, spec, where);
     } catch (thrown) {
+      // Geometry was checked when read: what fails here is a feature's head.
       throw withPlace(thrown, file, entry.head !== undefined ? key : `${source}.headProperty`);
     }
     this.warnOutside(where, result.outside, collection.features.length, 'it fixes no head');
@@ -424,6 +425,7 @@ class Loader {
         }
       }
       reprojectShapes(collection, transform, where);
+      checkLineLengths(collection, where);
       return { collection, where, file: absolute };
     } catch (thrown) {
       throw withPlace(thrown, absolute, key);

@@ -352,7 +352,7 @@ export function markShapeCells(grid: Grid, collection: ShapeCollection, mask: Ui
 }
 
 /** A line whose vertices all coincide (after reprojection) crosses nothing: an error rather than a silent no-op. */
-function checkLineLengths(collection: ShapeCollection, where: string): void {
+export function checkLineLengths(collection: ShapeCollection, where: string): void {
   for (const feature of collection.features) {
     if (feature.geometry.type !== 'line') continue;
     feature.geometry.lines.forEach((line, i) => {
