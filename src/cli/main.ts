@@ -15,6 +15,8 @@ import { locateObservations } from '../analysis/points.js';
 import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
 import { solveModel, writeSolveResults, prepareResultFolder, resultProblem, type RunOptions } from '../pipeline.js';
 import { formatSummary } from '../output/summary.js';
+import { formatComparison } from '../output/comparison.js';
+import { comparisonProblem, compareScenario, writeComparisonResults } from '../compare.js';
 import { removeTemporaryFilesSync } from '../output/resultFolder.js';
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
@@ -115,6 +117,45 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
   return 0;
 }
 
+function runOptions(flags: SolveFlags): { options: RunOptions; progress: ReturnType<typeof makeProgress> } {
+  if (flags.method && !solverMethodNames().includes(flags.method)) {
+    throw new PiezomapError('usage', `unknown solver method "${flags.method}"`, { hint: `choose one of: ${solverMethodNames().join(', ')}` });
+  }
+  const progress = makeProgress(Boolean(flags.quiet));
+  const options: RunOptions = { onProgress: progress };
+  if (flags.method) options.method = flags.method;
+  if (flags.tolerance !== undefined) options.tolerance = flags.tolerance;
+  if (flags.maxIterations !== undefined) options.maxIterations = flags.maxIterations;
+  if (flags.relaxation !== undefined) options.relaxation = flags.relaxation;
+  return { options, progress };
+}
+
+async function runCompare(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  const { options, progress } = runOptions(flags);
+  progress?.({ stage: 'load', message: `reading ${scenario}` });
+  const loaded = await loadScenario(scenario);
+  if (!loaded.raw.variants?.length) {
+    throw new PiezomapError('input', `${scenario}: the scenario has no "variants", so there is nothing to compare`, {
+      key: 'variants',
+      hint: 'add e.g. "variants": [{ "name": "more-pumping", "wells": [{ "id": "W1", "rate": -800 }] }], or use "piezomap solve"',
+    });
+  }
+  // Check the output folder before the long work.
+  await prepareResultFolder(outDir, Boolean(flags.overwrite));
+  const comparison = await compareScenario(loaded, options);
+  progress?.({ stage: 'write', message: `writing results to ${outDir}` });
+  const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite) });
+  clearProgress();
+  if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');
+  else io.stdout(formatComparison(summary, outDir));
+  const problem = comparisonProblem(comparison);
+  if (problem) {
+    io.stderr(`piezomap: ${problem.describe()}\n  no head.tif or drawdown.tif was written for it; diagnostics are in ${outDir}\n`);
+    return exitCodeFor(problem);
+  }
+  return 0;
+}
+
 async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Promise<number> {
   const { model } = await loadScenario(scenario);
   const system = assembleSystem(model);
@@ -150,6 +191,18 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
     ),
   ).action(async (scenario: string, flags: SolveFlags) => {
     await run(() => runSolve(scenario, flags.out!, flags, io))();
+  });
+
+  addSolverOptions(
+    addCommon(
+      program
+        .command('compare')
+        .description('solve the baseline and every variant of a scenario; write each one\'s results, drawdown.tif per variant, comparison.csv and summary.json into OUTDIR')
+        .argument('<scenario>', 'scenario JSON file with "variants"')
+        .requiredOption('-o, --out <dir>', 'result folder'),
+    ),
+  ).action(async (scenario: string, flags: SolveFlags) => {
+    await run(() => runCompare(scenario, flags.out!, flags, io))();
   });
 
   addCommon(

@@ -1,0 +1,283 @@
+/**
+ * The files and texts of a comparison: comparison.csv (one row per variant), the comparison summary.json and the
+ * printed table. Pure functions: the folder is written by compare.ts through resultFolder.ts.
+ */
+import { CAUTION } from '../caution.js';
+import type { ComparisonResult, VariantComparison } from '../compare.js';
+import { calibrationJson, csvField, tidy } from './summary.js';
+
+/** A number for a CSV cell: rounded, empty when not a finite number. */
+function cell(v: number | null | undefined): string {
+  return v === null || v === undefined || !Number.isFinite(v) ? '' : String(tidy(v));
+}
+
+/** Budget terms other than wells over all variants, baseline order first. */
+function sourceTerms(c: ComparisonResult): string[] {
+  const names: string[] = [];
+  for (const v of c.variants) for (const t of v.sources.terms) if (!names.includes(t.term)) names.push(t.term);
+  return names;
+}
+
+/** Well ids over all variants, in order of first appearance. */
+function wellIds(c: ComparisonResult): string[] {
+  const ids: string[] = [];
+  for (const v of c.variants) for (const w of v.wellbores) if (!ids.includes(w.id)) ids.push(w.id);
+  return ids;
+}
+
+export function variantStatus(v: VariantComparison): string {
+  if (!v.problem) return 'ok';
+  return v.result.stats.converged ? 'budget-not-closed' : 'not-converged';
+}
+
+/**
+ * comparison.csv: one row per variant. Drawdowns (baseline head - variant head, positive = lowered) in length
+ * units; rates in length^3/time; `source_TERM_volume` is the term's net change (more inflow or less outflow =
+ * positive) and `source_TERM_percent` that change as a percentage of the added pumping.
+ */
+export function comparisonCsv(c: ComparisonResult): string {
+  const observations = c.baseline.model.observations.map((o) => o.id);
+  const receptors = c.receptors.map((r) => r.id);
+  const terms = sourceTerms(c);
+  const wells = wellIds(c);
+  const header = [
+    'variant',
+    'status',
+    'shared_operator',
+    'max_drawdown',
+    'max_drawdown_x',
+    'max_drawdown_y',
+    'max_rise',
+    ...observations.map((id) => `drawdown_obs_${id}`),
+    ...receptors.map((id) => `drawdown_receptor_${id}`),
+    ...wells.map((id) => `drawdown_wellbore_${id}`),
+    'well_withdrawal',
+    'added_pumping',
+    'discrepancy_percent',
+    ...terms.flatMap((t) => [`source_${t}_volume`, `source_${t}_percent`]),
+    'source_total_percent',
+  ];
+  const lines = [header.map(csvField).join(',')];
+  for (const v of c.variants) {
+    const byTerm = new Map(v.sources.terms.map((t) => [t.term, t]));
+    const byWell = new Map(v.wellbores.map((w) => [w.id, w]));
+    const sound = v.problem === null;
+    const row = [
+      csvField(v.name),
+      variantStatus(v),
+      v.sharedOperator ? 'yes' : 'no',
+      cell(v.maxDrawdown?.value),
+      cell(v.maxDrawdown?.x),
+      cell(v.maxDrawdown?.y),
+      sound ? cell(v.maxRise) : '',
+      ...v.observations.map((o) => cell(o.drawdown)),
+      ...v.receptors.map((r) => cell(r.drawdown)),
+      ...wells.map((id) => cell(byWell.get(id)?.drawdown)),
+      cell(v.withdrawal),
+      sound ? cell(v.sources.addedPumping) : '',
+      cell(v.result.budget.discrepancyPercent),
+      ...terms.flatMap((t) => {
+        const s = byTerm.get(t);
+        return sound && s ? [cell(s.netChange), cell(s.percentOfAddedPumping)] : ['', ''];
+      }),
+      sound ? cell(v.sources.totalPercent) : '',
+    ];
+    lines.push(row.join(','));
+  }
+  return lines.join('\n') + '\n';
+}
+
+export interface ComparisonSummaryJson {
+  title: string;
+  piezomap: string;
+  scenario: string;
+  units: { length: string; time: string };
+  baseline: Record<string, unknown>;
+  variants: Array<Record<string, unknown>>;
+  receptors: Array<{ id: string; x: number; y: number }>;
+  warnings: string[];
+  files: string[];
+  caution: string;
+  [extra: string]: unknown;
+}
+
+function budgetBrief(v: { budget: { totalIn: number; totalOut: number; discrepancyPercent: number } }) {
+  return { totalIn: tidy(v.budget.totalIn), totalOut: tidy(v.budget.totalOut), discrepancyPercent: tidy(v.budget.discrepancyPercent) };
+}
+
+function nullable(v: number): number | null {
+  return Number.isFinite(v) ? tidy(v) : null;
+}
+
+export function comparisonSummary(c: ComparisonResult, files: string[], version: string): ComparisonSummaryJson {
+  const base = c.baseline;
+  return {
+    title: base.model.title,
+    piezomap: version,
+    scenario: base.model.scenarioPath,
+    units: base.model.units,
+    baseline: {
+      folder: 'baseline',
+      converged: base.stats.converged,
+      sound: c.baselineProblem === null,
+      solver: { method: base.stats.method, iterations: base.stats.iterations, setupSeconds: tidy(base.stats.setupSeconds), seconds: tidy(base.stats.solveSeconds) },
+      budget: budgetBrief(base),
+      withdrawal: tidy(base.model.wells.reduce((sum, w) => sum + (w.rate < 0 ? -w.rate : 0), 0)),
+      wells: base.wellbore.map((w) => ({ id: w.id, rate: w.rate, cellHead: tidy(w.cellHead), wellboreHead: tidy(w.wellboreHead), belowMinimum: w.belowMinimum })),
+      calibration: calibrationJson(base.calibration),
+    },
+    variants: c.variants.map((v) => ({
+      name: v.name,
+      title: v.result.model.title,
+      folder: v.name,
+      status: variantStatus(v),
+      sharedOperator: v.sharedOperator,
+      sharing: v.sharing,
+      solver: {
+        method: v.result.stats.method,
+        converged: v.result.stats.converged,
+        iterations: v.result.stats.iterations,
+        relativeResidual: v.result.stats.relativeResidual,
+        setupSeconds: tidy(v.result.stats.setupSeconds),
+        seconds: tidy(v.result.stats.solveSeconds),
+      },
+      maxDrawdown: v.maxDrawdown ? { ...v.maxDrawdown, value: tidy(v.maxDrawdown.value) } : null,
+      maxRise: v.problem ? null : tidy(v.maxRise),
+      observations: v.observations.map((o) => ({ id: o.id, drawdown: nullable(o.drawdown) })),
+      receptors: v.receptors.map((r) => ({ id: r.id, drawdown: nullable(r.drawdown) })),
+      wells: v.wellbores.map((w) => ({
+        id: w.id,
+        rate: w.rate,
+        baselineHead: nullable(w.baselineHead),
+        wellboreHead: nullable(w.wellboreHead),
+        wellboreDrawdown: nullable(w.drawdown),
+        ...(w.minimumHead !== null ? { minimumHead: w.minimumHead, belowMinimum: w.belowMinimum } : {}),
+      })),
+      withdrawal: tidy(v.withdrawal),
+      budget: budgetBrief(v.result),
+      sourcesOfWater: v.problem
+        ? null
+        : {
+            addedPumping: tidy(v.sources.addedPumping),
+            terms: v.sources.terms.map((t) => ({
+              term: t.term,
+              inflowChange: tidy(t.inflowChange),
+              outflowChange: tidy(t.outflowChange),
+              netChange: tidy(t.netChange),
+              percentOfAddedPumping: t.percentOfAddedPumping === null ? null : tidy(t.percentOfAddedPumping),
+            })),
+            totalPercent: v.sources.totalPercent === null ? null : tidy(v.sources.totalPercent),
+          },
+      calibration: calibrationJson(v.result.calibration),
+      warnings: v.result.warnings.filter((w) => !base.warnings.includes(w)),
+      problem: v.problem ? v.problem.message : null,
+    })),
+    receptors: c.receptors.map((r) => ({ id: r.id, x: r.x, y: r.y })),
+    warnings: [...base.warnings, ...c.warnings],
+    files,
+    caution: CAUTION,
+  };
+}
+
+function num(v: number | null | undefined, digits: number): string {
+  if (v === null || v === undefined || !Number.isFinite(v)) return '-';
+  const a = Math.abs(v);
+  if (a !== 0 && (a >= 1e7 || a < 10 ** -digits)) return v.toExponential(2);
+  return v.toLocaleString('en-US', { maximumFractionDigits: digits, minimumFractionDigits: digits });
+}
+
+function table(rows: string[][], alignRight: (c: number) => boolean): string[] {
+  const widths = rows[0]!.map((_, c) => Math.max(...rows.map((r) => r[c]!.length)));
+  return rows.map((r) => '  ' + r.map((text, c) => (alignRight(c) ? text.padStart(widths[c]!) : text.padEnd(widths[c]!))).join('  ').trimEnd());
+}
+
+type VariantJson = {
+  name: string;
+  status: string;
+  sharedOperator: boolean;
+  solver: { method: string; iterations: number; setupSeconds: number; seconds: number };
+  maxDrawdown: { value: number } | null;
+  observations: Array<{ id: string; drawdown: number | null }>;
+  receptors: Array<{ id: string; drawdown: number | null }>;
+  wells: Array<{ id: string; rate: number; wellboreHead: number | null; wellboreDrawdown: number | null; belowMinimum?: boolean }>;
+  withdrawal: number;
+  budget: { discrepancyPercent: number };
+  sourcesOfWater: { addedPumping: number; terms: Array<{ term: string; percentOfAddedPumping: number | null }>; totalPercent: number | null } | null;
+  calibration: Record<string, number | null> | null;
+  problem: string | null;
+};
+
+/** The printed comparison: one row per variant, then well bores, sources of water, warnings and the caution. */
+export function formatComparison(summary: ComparisonSummaryJson, outDir: string | null): string {
+  const L = summary.units.length;
+  const T = summary.units.time;
+  const variants = summary.variants as VariantJson[];
+  const base = summary.baseline as { sound: boolean; solver: { method: string; iterations: number; setupSeconds: number; seconds: number }; budget: { discrepancyPercent: number }; withdrawal: number };
+  const out: string[] = [];
+  out.push(`piezomap compare: ${summary.title}`);
+  out.push(
+    `Baseline   ${base.sound ? 'converged' : 'NOT a sound result'}: ${base.solver.method}, ${base.solver.iterations} iterations ` +
+      `(setup ${base.solver.setupSeconds.toFixed(2)} s, solve ${base.solver.seconds.toFixed(2)} s); withdrawal ${num(base.withdrawal, 1)} ${L}³/${T}`,
+  );
+  for (const v of variants) {
+    out.push(
+      `Variant    ${v.name}: ${v.status === 'ok' ? 'converged' : v.status.toUpperCase()}: ${v.solver.iterations} iterations, ` +
+        (v.sharedOperator ? 'baseline operator and solver set-up reused' : `own set-up ${v.solver.setupSeconds.toFixed(2)} s`) +
+        `, solve ${v.solver.seconds.toFixed(2)} s`,
+    );
+  }
+  if (variants.length) {
+    const obsIds = variants[0]!.observations.map((o) => o.id);
+    const recIds = variants[0]!.receptors.map((r) => r.id);
+    const terms: string[] = [];
+    for (const v of variants) for (const t of v.sourcesOfWater?.terms ?? []) if (!terms.includes(t.term)) terms.push(t.term);
+    out.push(`Drawdown (${L}, positive = lowered) and where the added pumping comes from (% of it)`);
+    const header = [
+      'variant',
+      'max s',
+      ...obsIds.map((id) => `s ${id}`),
+      ...recIds.map((id) => `s ${id}`),
+      `withdrawal ${L}³/${T}`,
+      'discrepancy %',
+      ...terms.map((t) => `${t} %`),
+    ];
+    const rows = [header];
+    for (const v of variants) {
+      const pct = new Map((v.sourcesOfWater?.terms ?? []).map((t) => [t.term, t.percentOfAddedPumping]));
+      rows.push([
+        v.name,
+        num(v.maxDrawdown?.value, 3),
+        ...v.observations.map((o) => num(o.drawdown, 3)),
+        ...v.receptors.map((r) => num(r.drawdown, 3)),
+        num(v.withdrawal, 1),
+        v.budget.discrepancyPercent.toExponential(1),
+        ...terms.map((t) => num(pct.get(t), 1)),
+      ]);
+    }
+    out.push(...table(rows, (c) => c > 0));
+    if (recIds.length) out.push(`  receptors: ${recIds.join(', ')}`);
+    const wellRows = [['variant', 'well', `rate ${L}³/${T}`, `well-bore head ${L}`, `well-bore drawdown ${L}`]];
+    for (const v of variants) {
+      for (const w of v.wells) {
+        wellRows.push([v.name, w.id, num(w.rate, 1), num(w.wellboreHead, 3) + (w.belowMinimum ? ' (below minimum)' : ''), num(w.wellboreDrawdown, 3)]);
+      }
+    }
+    if (wellRows.length > 1) {
+      out.push('Well bores (Peaceman well-block radius)');
+      out.push(...table(wellRows, (c) => c > 1));
+    }
+    for (const v of variants) {
+      const s = v.sourcesOfWater;
+      if (s && s.totalPercent !== null) {
+        out.push(`  ${v.name}: added pumping ${num(s.addedPumping, 1)} ${L}³/${T}; the sources sum to ${num(s.totalPercent, 3)} %`);
+      }
+      if (v.problem) out.push(`  ${v.name}: ${v.problem.split('\n')[0]}`);
+    }
+  }
+  for (const w of summary.warnings) out.push(`warning: ${w}`);
+  for (const v of variants as Array<VariantJson & { warnings?: string[] }>) for (const w of v.warnings ?? []) out.push(`warning (${v.name}): ${w}`);
+  if (outDir) out.push(`Results    ${outDir}: baseline/, ${variants.map((v) => `${v.name}/`).join(', ')}${variants.length ? ', ' : ''}comparison.csv, summary.json`);
+  out.push('');
+  out.push(summary.caution);
+  return out.join('\n') + '\n';
+}
