@@ -164,14 +164,12 @@ class PieceList {
  * not drift.
  */
 function traverseSegment(u0: number, v0: number, du: number, dv: number, nx: number, ny: number, start: number, length: number, out: PieceList): void {
-  // Liang-Barsky clip against [0, nx] x [0, ny].
+  // Liang-Barsky clip against [0, nx] x [0, ny]: boundary i has p_i t <= q_i.
   let tIn = 0;
   let tOut = 1;
-  const p = [-du, du, -dv, dv];
-  const q = [u0, nx - u0, v0, ny - v0];
   for (let i = 0; i < 4; i++) {
-    const pi = p[i]!;
-    const qi = q[i]!;
+    const pi = i === 0 ? -du : i === 1 ? du : i === 2 ? -dv : dv;
+    const qi = i === 0 ? u0 : i === 1 ? nx - u0 : i === 2 ? v0 : ny - v0;
     if (pi === 0) {
       // Parallel to this boundary: outside when beyond it, or exactly on the far (east/south) one, which belongs to no cell.
       if (qi < 0 || (qi === 0 && (i === 1 || i === 3))) return;
