@@ -336,7 +336,7 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   }
   mkdirSync(join(dir, 'folder.tif'), { recursive: true });
   solveCase('raster-is-folder', 'the conductivity path is a folder', aquifer('folder.tif'), 2, /folder\.tif.*folder/);
-  solveCase('raster-missing', 'the conductivity raster does not exist', aquifer('gone.tif'), 2, /gone\.tif.*not found/);
+  solveCase('raster-missing', 'the conductivity raster does not exist', aquifer('gone.tif'), 2, /not found: "gone\.tif"/);
   {
     const blocker = file('plain-file', 'not a folder\n');
     const path = file('out-under-file.json', JSON.stringify(baseScenario(), null, 2));
@@ -366,10 +366,12 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   }
 
   // --- resources and solver ----------------------------------------------------------------------------------
-  // 200 x 200 cells: the raster itself reads within 1 MiB, the run does not.
+  // 200 x 200 cells: the raster reads within a 4 MiB limit, the run does not.
   const bigGrid: Grid = { ...baseGrid, nx: 200, ny: 200 };
   file('k-200.tif', encodeFloat32GeoTiff(bigGrid, new Float64Array(200 * 200).fill(5)));
-  solveCase('memory-limit', 'a memory limit of 1 MiB for a 200 x 200 run', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /memory/i, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '1' } });
+  solveCase('memory-limit', 'a memory limit of 4 MiB for a 200 x 200 run (the raster alone reads within it)', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /run needs about .* memory limit is 4\.0 MiB/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '4' } });
+  solveCase('memory-limit-raster', 'a memory limit of 1 MiB: the 200 x 200 raster is refused as it is read', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /k-200\.tif.*more than half of the memory/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '1' } });
+  solveCase('memory-limit-unusable', 'PIEZOMAP_MEMORY_LIMIT_MB=lots', {}, 2, /PIEZOMAP_MEMORY_LIMIT_MB="lots"/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: 'lots' } });
   {
     const path = file('not-converged.json', JSON.stringify(baseScenario(), null, 2));
     const out = outFor('not-converged');

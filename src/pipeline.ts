@@ -12,7 +12,8 @@ import { calibrationStatistics, type CalibrationStatistics } from './analysis/ca
 import { PiezomapError } from './errors.js';
 import { loadScenario } from './scenario/load.js';
 import type { ModelInput } from './scenario/types.js';
-import { createSolver, chooseAutoMethod } from './solvers/registry.js';
+import { createSolver, chooseAutoMethod, leanestMethod, solverBytesPerCell } from './solvers/registry.js';
+import { checkMemoryBudget } from './memory.js';
 import type { Solver, SolveStats } from './solvers/types.js';
 import { encodeFloat32GeoTiff } from './raster/write.js';
 import { buildSummary, budgetCsv, convergenceCsv, type SummaryJson } from './output/summary.js';
@@ -78,6 +79,9 @@ export function prepareSolver(system: FlowSystem, model: ModelInput, options: Ru
 /** Assemble, solve and analyse a loaded model. Does not throw on non-convergence: check `stats.converged`. */
 export function solveModel(model: ModelInput, options: RunOptions = {}, timings: Record<string, number> = {}): SolveResult {
   const t = now();
+  // Refuse a grid too large for this machine before the large allocations start.
+  const requested = options.method ?? model.solver.method;
+  checkMemoryBudget(model.grid, { method: requested, bytesPerCell: solverBytesPerCell(requested) }, leanestMethod());
   options.onProgress?.({ stage: 'assemble', message: 'assembling the flow system' });
   const system = assembleSystem(model);
   // Points are checked before the long solve so bad input fails fast.

@@ -1,5 +1,5 @@
 import { mkdir, readdir, rename, rm, stat, writeFile, access, constants } from 'node:fs/promises';
-import { join, resolve } from 'node:path';
+import { dirname, join, resolve } from 'node:path';
 import { PiezomapError, describeThrown, inputError } from '../errors.js';
 
 /** Files piezomap writes into a result folder; their presence marks a folder as holding earlier results. */
@@ -35,13 +35,17 @@ export async function prepareResultFolder(outDir: string, overwrite: boolean): P
     }
   } catch (error) {
     if (error instanceof PiezomapError) throw error;
-    if ((error as NodeJS.ErrnoException).code !== 'ENOENT') {
-      throw inputError(`cannot use output folder ${outDir}: ${describeThrown(error)}`, { file: outDir });
+    const code = (error as NodeJS.ErrnoException).code;
+    if (code !== 'ENOENT' && code !== 'ENOTDIR') {
+      throw inputError(`cannot use output folder ${outDir}: ${fileSystemReason(error)}`, { file: outDir });
     }
     try {
-      await mkdir(dir, { recursive: true });
+      await makeFolders(dir);
     } catch (mkdirError) {
-      throw inputError(`cannot create output folder ${outDir}: ${describeThrown(mkdirError)}`, { file: outDir });
+      throw inputError(`cannot create output folder ${outDir}: ${fileSystemReason(mkdirError)}`, {
+        file: outDir,
+        hint: 'choose a folder you can write to with -o',
+      });
     }
   }
   try {
@@ -63,7 +67,7 @@ export async function writeResultFiles(outDir: string, files: OutputFile[], prev
     for (const file of files) {
       const final = join(dir, file.name);
       const folder = join(final, '..');
-      await mkdir(folder, { recursive: true });
+      await makeFolders(folder);
       const temp = join(folder, `${TEMP_PREFIX}${process.pid}-${staged.length}`);
       liveTemporaries.add(temp);
       staged.push({ temp, final });
@@ -81,6 +85,59 @@ export async function writeResultFiles(outDir: string, files: OutputFile[], prev
     throw new PiezomapError('internal', `could not write results into ${outDir}: ${describeThrown(error)}`, { file: outDir });
   }
   return staged.map((s) => s.final);
+}
+
+/**
+ * Create a folder and its missing parents. Not `mkdir(dir, { recursive: true })`: on Node 20 that call never
+ * returns for a path below /proc (it keeps retrying), so the parents are walked and created one by one here.
+ */
+export async function makeFolders(dir: string): Promise<void> {
+  const missing: string[] = [];
+  for (let at = resolve(dir); ; ) {
+    let isFolder: boolean;
+    try {
+      isFolder = (await stat(at)).isDirectory();
+    } catch (error) {
+      // ENOTDIR: some ancestor is a file; walk up to it so that the message names it.
+      const code = (error as NodeJS.ErrnoException).code;
+      if (code !== 'ENOENT' && code !== 'ENOTDIR') throw error;
+      missing.push(at);
+      const parent = dirname(at);
+      if (parent === at) break;
+      at = parent;
+      continue;
+    }
+    if (!isFolder) throw Object.assign(new Error(`${at} is a file, not a folder`), { code: 'ENOTDIR', path: at });
+    break;
+  }
+  for (let i = missing.length - 1; i >= 0; i--) {
+    try {
+      await mkdir(missing[i]!);
+    } catch (error) {
+      if ((error as NodeJS.ErrnoException).code !== 'EEXIST') throw error;
+    }
+  }
+}
+
+/** A file-system failure in words (the Node message names the system call, which users need not see). */
+function fileSystemReason(error: unknown): string {
+  const e = error as NodeJS.ErrnoException;
+  const where = e.path ? ` (${e.path})` : '';
+  switch (e.code) {
+    case 'EACCES':
+    case 'EPERM':
+      return `permission denied${where}`;
+    case 'EROFS':
+      return `read-only file system${where}`;
+    case 'ENOSPC':
+      return `no space left on the device${where}`;
+    case 'ENOTDIR':
+      return `${e.path ?? 'a part of the path'} is a file, not a folder`;
+    case 'ENOENT':
+      return `the file system does not allow a folder there${where}`;
+    default:
+      return describeThrown(error);
+  }
 }
 
 /** Remove temporary files of this process (used on failure and on SIGINT/SIGTERM). */

@@ -8,11 +8,11 @@
  * Everything a user can get wrong ends as PiezomapError('input') naming the file.
  */
 import { readFile, stat } from 'node:fs/promises';
-import { totalmem } from 'node:os';
 import { inflateSync } from 'node:zlib';
 import { fromArrayBuffer, getDecoder } from 'geotiff';
 import type { GeoTIFFImage } from 'geotiff';
 import { PiezomapError, describeThrown, inputError } from '../errors.js';
+import { memoryLimit } from '../memory.js';
 import type { Grid } from '../grid.js';
 import { RASTER_PIXEL_IS_POINT, crsFromGeoKeys, parseGeoKeyDirectory } from './geokeys.js';
 import type { GeoKeyRecord } from './geokeys.js';
@@ -82,9 +82,9 @@ export async function readRaster(path: string, options: ReadRasterOptions = {}):
   }
 }
 
-/** Half the machine's memory: what one raster may take once decoded. */
+/** Half the memory a run may use (src/memory.ts): what one raster may take once decoded. */
 function memoryBudget(): number {
-  return totalmem() / 2;
+  return memoryLimit().bytes / 2;
 }
 
 async function readBytes(path: string, label: string): Promise<Uint8Array> {
@@ -99,7 +99,7 @@ async function readBytes(path: string, label: string): Promise<Uint8Array> {
   }
   if (size === 0) throw inputError(`${label}: the file is empty (0 bytes)`, { file: label, hint: 'export the raster again' });
   if (size > memoryBudget()) {
-    throw inputError(`${label}: the file is ${formatBytes(size)}, more than half of this machine's memory`, {
+    throw inputError(`${label}: the file is ${formatBytes(size)}, more than half of the memory a run may use`, {
       file: label,
       hint: 'clip the raster to the model area or coarsen it before modelling',
     });
@@ -225,7 +225,7 @@ async function readLayout(image: GeoTIFFImage, label: string, fileSize: number):
   }
   const needed = cells * 8 + blockBytes + fileSize;
   if (needed > memoryBudget()) {
-    throw refuse(`${width} x ${height} cells need about ${formatBytes(needed)} to read, more than half of this machine's memory`,
+    throw refuse(`${width} x ${height} cells need about ${formatBytes(needed)} to read, more than half of the memory a run may use`,
       'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)');
   }
 

@@ -168,6 +168,15 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   };
 }
 
+/** Index of the first +-Infinity in `values`, or -1. */
+function firstInfinite(values: Float64Array): number {
+  for (let p = 0; p < values.length; p++) {
+    const v = values[p]!;
+    if (v === Infinity || v === -Infinity) return p;
+  }
+  return -1;
+}
+
 /** Conductivity (or thickness) value that makes a cell active: finite and > 0 (NaN compares false). */
 function isActiveValue(value: number): boolean {
   return value > 0 && value < Infinity;
@@ -255,7 +264,25 @@ class Loader {
       throw inputError(`${this.label}: ${key}: "${given}" cannot be read as a GeoTIFF: ${describeThrown(thrown)}`, { file: absolute, key });
     }
     this.inputFiles.add(absolute);
-    if (raster.bandCount > 1) this.warn(`${key} "${given}" has ${raster.bandCount} bands; only band 1 is used`);
+    // Several bands: which one holds the values cannot be guessed, and a wrong guess gives a plausible-looking result.
+    if (raster.bandCount > 1) {
+      throw inputError(`${this.label}: ${key} "${given}" has ${raster.bandCount} bands; piezomap reads single-band rasters only`, {
+        file: absolute,
+        key,
+        hint: `extract the band that holds the values, e.g. gdal_translate -b 2 ${given} single-band.tif`,
+      });
+    }
+    // Infinity is no nodata marker (GDAL would not mask it either): it would reach the equations as a value.
+    const infinite = firstInfinite(raster.values);
+    if (infinite >= 0) {
+      const cell = { row: Math.floor(infinite / raster.grid.nx), col: infinite % raster.grid.nx };
+      throw inputError(`${this.label}: ${key} "${given}" holds an infinite value at row ${cell.row}, col ${cell.col}`, {
+        file: absolute,
+        key,
+        cell,
+        hint: 'mark cells without data with the nodata value (gdalinfo -stats shows the range; gdal_calc.py can replace them)',
+      });
+    }
     if (!reference) {
       this.reference = { key, given };
     } else {

@@ -14,36 +14,53 @@ function pcgFactory(method: string, build: ((op: StencilOperator, config: Solver
   };
 }
 
+export interface SolverEntry {
+  factory: SolverFactory;
+  description: string;
+  /**
+   * Workspace bytes per grid cell (vectors, preconditioner, hierarchy), for the memory budget checked before a run
+   * (src/memory.ts). Counted from the allocations in the solver's source; optional (a default is used).
+   */
+  bytesPerCell?: number;
+}
+
 /** Every solver method by the name users give in `solver.method`. */
-export const solverRegistry: Record<string, { factory: SolverFactory; description: string }> = {
+export const solverRegistry: Record<string, SolverEntry> = {
   jacobi: {
     factory: (op) => new StationarySolver('jacobi', op, 'jacobi', undefined),
     description: 'Jacobi iteration (classical; slow on large grids, reports its spectral radius)',
+    bytesPerCell: 48, // inverse diagonal, residual, next iterate, spectral-radius estimate
   },
   'gauss-seidel': {
     factory: (op) => new StationarySolver('gauss-seidel', op, 'gauss-seidel', undefined),
     description: 'Gauss-Seidel iteration, lexicographic order (classical; reports its spectral radius)',
+    bytesPerCell: 48, // as Jacobi
   },
   sor: {
     factory: (op, config) => new StationarySolver('sor', op, 'sor', config.relaxation),
     description:
       'successive over-relaxation, red-black order; relaxation factor given or optimal from the estimated Jacobi spectral radius (Young 1950)',
+    bytesPerCell: 48, // as Jacobi
   },
   cg: {
     factory: pcgFactory('cg', null),
     description: 'conjugate gradient without preconditioner',
+    bytesPerCell: 32, // r, p, q
   },
   'pcg-jacobi': {
     factory: pcgFactory('pcg-jacobi', (op) => new JacobiPreconditioner(op)),
     description: 'conjugate gradient with diagonal (Jacobi) preconditioner',
+    bytesPerCell: 48, // r, z, p, q, inverse diagonal
   },
   'pcg-ssor': {
     factory: pcgFactory('pcg-ssor', (op, config) => new SsorPreconditioner(op, config.relaxation ?? 1)),
     description: 'conjugate gradient with symmetric Gauss-Seidel (SSOR) preconditioner',
+    bytesPerCell: 56, // r, z, p, q, inverse diagonal, sweep vector
   },
   'pcg-ic0': {
     factory: pcgFactory('pcg-ic0', (op) => new IncompleteCholeskyPreconditioner(op)),
     description: 'conjugate gradient with incomplete Cholesky IC(0) preconditioner',
+    bytesPerCell: 56, // r, z, p, q, inverse pivots, sweep vector
   },
   'pcg-multigrid': {
     factory: (op) => {
@@ -52,6 +69,7 @@ export const solverRegistry: Record<string, { factory: SolverFactory; descriptio
       return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, [`multigrid ${mg.describe()}`]);
     },
     description: 'conjugate gradient preconditioned by aggregation multigrid (K-cycle); fast on large grids',
+    bytesPerCell: 128, // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands and K-cycle vectors)
   },
 };
 
@@ -65,6 +83,30 @@ export const solverRegistry: Record<string, { factory: SolverFactory; descriptio
  */
 export function chooseAutoMethod(_op: StencilOperator): string {
   return 'pcg-multigrid';
+}
+
+/** Used for the memory budget of a method whose entry gives no estimate. */
+const DEFAULT_BYTES_PER_CELL = 128;
+
+/** Workspace bytes per cell of a method; `auto` counts as the largest entry, as it may pick any. */
+export function solverBytesPerCell(method: string): number {
+  if (method === 'auto') {
+    let most = 0;
+    for (const entry of Object.values(solverRegistry)) most = Math.max(most, entry.bytesPerCell ?? DEFAULT_BYTES_PER_CELL);
+    return most;
+  }
+  const entry = Object.prototype.hasOwnProperty.call(solverRegistry, method) ? solverRegistry[method] : undefined;
+  return entry?.bytesPerCell ?? DEFAULT_BYTES_PER_CELL;
+}
+
+/** The method with the smallest workspace (for suggestions when memory is short). */
+export function leanestMethod(): { method: string; bytesPerCell: number } {
+  let best = { method: 'cg', bytesPerCell: Infinity };
+  for (const [method, entry] of Object.entries(solverRegistry)) {
+    const bytes = entry.bytesPerCell ?? DEFAULT_BYTES_PER_CELL;
+    if (bytes < best.bytesPerCell) best = { method, bytesPerCell: bytes };
+  }
+  return best;
 }
 
 /** All names accepted by createSolver, `auto` included. */

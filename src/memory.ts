@@ -1,0 +1,83 @@
+/**
+ * Memory budget of a run, checked before anything large is allocated, so that a grid too large for the machine is
+ * refused with a clear message instead of ending in an out-of-memory crash part-way through.
+ *
+ * The limit is 80 % of the machine's memory (or of the container's, when Node reports a cgroup limit), or
+ * PIEZOMAP_MEMORY_LIMIT_MB when set (for tests, shared machines and batch queues).
+ */
+import { totalmem } from 'node:os';
+import { inputError } from './errors.js';
+import type { Grid } from './grid.js';
+
+/** Environment variable that sets the memory limit in MiB. */
+export const MEMORY_LIMIT_ENV = 'PIEZOMAP_MEMORY_LIMIT_MB';
+
+/**
+ * Bytes per cell of everything but the solver: the input rasters as doubles (conductivity, thickness, recharge,
+ * fixed heads, porosity: about 40), the assembled system (conductances, bands, masks, sources, right-hand side,
+ * region labels: about 110, counted from assemble.ts), the copy of bands, right-hand side and solution a solve
+ * worker holds (about 41), the solution and head (16), and the analysis and output (fluxes, encoded head: about 40).
+ * Rounded up. The solver's own workspace comes from its registry entry (bytesPerCell).
+ */
+export const BASE_BYTES_PER_CELL = 260;
+
+
+export interface MemoryLimit {
+  bytes: number;
+  /** Where the limit comes from, for messages. */
+  source: string;
+}
+
+/** The memory one run may use. An unusable PIEZOMAP_MEMORY_LIMIT_MB is a usage error naming the variable. */
+export function memoryLimit(env: NodeJS.ProcessEnv = process.env): MemoryLimit {
+  const given = env[MEMORY_LIMIT_ENV];
+  if (given !== undefined && given.trim() !== '') {
+    const mb = Number(given);
+    if (!Number.isFinite(mb) || mb <= 0) {
+      throw inputError(`${MEMORY_LIMIT_ENV}="${given}" is not a positive number of MiB`, {
+        hint: `unset it or give a number, e.g. ${MEMORY_LIMIT_ENV}=4096`,
+      });
+    }
+    return { bytes: mb * 1024 * 1024, source: `${MEMORY_LIMIT_ENV}=${given}` };
+  }
+  // process.constrainedMemory(): the cgroup limit when there is one (0 or undefined otherwise; Node >= 19.6).
+  const constrained = (process as { constrainedMemory?: () => number | undefined }).constrainedMemory?.() ?? 0;
+  const machine = constrained > 0 && constrained < totalmem() ? constrained : totalmem();
+  return { bytes: 0.8 * machine, source: `80 % of this machine's ${formatBytes(machine)}` };
+}
+
+/** Estimated peak bytes of a run on `cells` cells whose solver needs `solverBytesPerCell` more per cell. */
+export function estimateRunBytes(cells: number, solverBytesPerCell: number): number {
+  return cells * (BASE_BYTES_PER_CELL + solverBytesPerCell);
+}
+
+export interface SolverFootprint {
+  method: string;
+  bytesPerCell: number;
+}
+
+/**
+ * Refuse a run that would not fit the memory limit, before assembling it. `leaner`: a method needing less memory,
+ * suggested in the hint when given.
+ */
+export function checkMemoryBudget(grid: Grid, solver: SolverFootprint, leaner: SolverFootprint | null = null, limit: MemoryLimit = memoryLimit()): void {
+  const cells = grid.nx * grid.ny;
+  const needed = estimateRunBytes(cells, solver.bytesPerCell);
+  if (needed <= limit.bytes) return;
+  const cellsThatFit = Math.max(1, Math.floor(limit.bytes / (BASE_BYTES_PER_CELL + solver.bytesPerCell)));
+  const factor = Math.ceil(Math.sqrt(cells / cellsThatFit) * 10) / 10;
+  const alternative =
+    leaner && leaner.bytesPerCell < solver.bytesPerCell
+      ? `; solver "${leaner.method}" needs less (about ${formatBytes(estimateRunBytes(cells, leaner.bytesPerCell))}) but converges more slowly`
+      : '';
+  throw inputError(
+    `the run needs about ${formatBytes(needed)} (${grid.nx} x ${grid.ny} cells, solver ${solver.method}) but the memory limit is ${formatBytes(limit.bytes)} (${limit.source})`,
+    { hint: `coarsen the rasters about ${factor}x per side (gdalwarp -tr) or clip them to the model area${alternative}` },
+  );
+}
+
+export function formatBytes(n: number): string {
+  if (n >= 2 ** 30) return `${(n / 2 ** 30).toFixed(1)} GiB`;
+  if (n >= 2 ** 20) return `${(n / 2 ** 20).toFixed(1)} MiB`;
+  return `${Math.max(1, Math.round(n / 1024))} KiB`;
+}
