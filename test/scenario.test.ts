@@ -130,7 +130,7 @@ describe('parseScenarioJson', () => {
     expect(lines).toEqual([
       'scenario.json: fixedHeads[0].edge: expected one of "west", "east", "north", "south", got the string "wst"',
       'scenario.json: fixedHeads[1].raster: expected a string, got 5',
-      'scenario.json: fixedHeads[2]: expected { "raster": PATH } or { "edge": "west"|"east"|"north"|"south", "head": H }, got an object',
+      'scenario.json: fixedHeads[2]: expected { "raster": PATH }, { "edge": "west"|"east"|"north"|"south", "head": H } or { "shape": GEOJSON, "head": H | "headProperty": NAME }, got an object',
       'scenario.json: fixedHeads[3].head: unknown key (allowed here: raster, name)',
       'scenario.json: fixedHeads[4].head: required key is missing (expected a number)',
     ]);
