@@ -354,6 +354,31 @@ describe('fixedHeads shape entries', () => {
     expect(group.heads[group.cells.indexOf(first)]).toBeCloseTo(101 - (2 * middle) / length, 6);
   });
 
+  it('reads the legacy crs member GDAL writes: the river in lon/lat and as reprojected by ogr2ogr give the same cells and stages', async () => {
+    const lonLat = [[16.39, 44.355], [16.4, 44.35], [16.405, 44.348]];
+    writeJson('river-lonlat.geojson', collection([feature({ type: 'LineString', coordinates: lonLat }, { stage: [101, null, 99] })]));
+    // Output of GDAL 3.6.2: ogr2ogr -f GeoJSON -t_srs EPSG:32633 river-utm.geojson river-lonlat.geojson (verbatim).
+    writeFileSync(
+      join(dir, 'river-utm.geojson'),
+      `{
+"type": "FeatureCollection",
+"name": "in",
+"crs": { "type": "name", "properties": { "name": "urn:ogc:def:crs:EPSG::32633" } },
+"features": [
+{ "type": "Feature", "properties": { "stage": [ 101, null, 99 ] }, "geometry": { "type": "LineString", "coordinates": [ [ 610775.651362973032519, 4912242.624866549856961 ], [ 611582.090892973123118, 4911700.815276828594506 ], [ 611984.409052055329084, 4911485.484798914752901 ] ] } }
+]
+}
+`,
+    );
+    const load = async (file: string) =>
+      (await loadScenario(writeJson(`${file}.json`, { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ shape: `${file}.geojson`, headProperty: 'stage' }] }))).model.fixedHeads[0]!;
+    const a = await load('river-lonlat');
+    const b = await load('river-utm');
+    expect(a.cells.length).toBeGreaterThan(10);
+    expect(Array.from(a.cells)).toEqual(Array.from(b.cells));
+    for (let k = 0; k < a.heads.length; k++) expect(a.heads[k]).toBeCloseTo(b.heads[k]!, 6);
+  });
+
   it('gives a river cell the mean of the linearly interpolated stage over the line inside it', async () => {
     // 10 x 3 cells of 10 m, in the raster CRS through a legacy crs member. The river runs along the middle row from
     // x = 0 to 100 with stages 50 (x = 0), unknown (x = 30), 48 (x = 45), 40 (x = 100).
