@@ -447,6 +447,45 @@ describe('fixedHeads shape entries', () => {
   });
 });
 
+describe('aquifer.inactiveShapes', () => {
+  it('makes the cells a line crosses inactive, a barrier the five-point stencil cannot cross', async () => {
+    // 6 x 4 cells of 10 m; a line from (600005, 4900040) to (600055, 4900000) in the raster CRS.
+    const g = grid(6, 4, [600000, 10, 0, 4900040, 0, -10]);
+    writeRaster('k-wall.tif', g, new Float64Array(24).fill(5));
+    const line = [[600005, 4900040], [600055, 4900000]];
+    writeJson('wall.geojson', collection([feature({ type: 'LineString', coordinates: line })], 'EPSG:32633'));
+    const path = writeJson('wall.json', { aquifer: { conductivity: 'k-wall.tif', thickness: 10, inactiveShapes: ['wall.geojson'] }, fixedHeads: [{ edge: 'west', head: 1 }] });
+    const { model } = await loadScenario(path);
+    const expected = new Set(rasteriseLine(g, xy(line as [number, number][])).cells);
+    expect(expected.size).toBeGreaterThan(4);
+    for (let p = 0; p < 24; p++) expect(Number.isNaN(model.conductivity[p]!), `cell ${p}`).toBe(expected.has(p));
+    // A barrier for the five-point stencil: the active cells fall apart into the two sides of the line (4-connected
+    // components by breadth-first search), even where the line steps through a cell corner (at x = 600030, y = 4900020).
+    const component = new Int32Array(24).fill(-1);
+    let components = 0;
+    for (let start = 0; start < 24; start++) {
+      if (Number.isNaN(model.conductivity[start]!) || component[start] !== -1) continue;
+      const queue = [start];
+      component[start] = components;
+      while (queue.length) {
+        const p = queue.pop()!;
+        const row = Math.floor(p / 6);
+        const col = p % 6;
+        const neighbours = [col > 0 ? p - 1 : -1, col < 5 ? p + 1 : -1, row > 0 ? p - 6 : -1, row < 3 ? p + 6 : -1];
+        for (const q of neighbours) {
+          if (q >= 0 && !Number.isNaN(model.conductivity[q]!) && component[q] === -1) {
+            component[q] = components;
+            queue.push(q);
+          }
+        }
+      }
+      components++;
+    }
+    expect(components).toBe(2);
+    expect(component[5]).not.toBe(component[18]); // north-east corner vs south-west corner
+  });
+});
+
 describe('shape errors name the file and the feature', () => {
   async function shapeError(name: string, geojson: unknown, entry: Record<string, unknown> = { headProperty: 'stage' }): Promise<PiezomapError> {
     writeJson(`${name}.geojson`, geojson);
