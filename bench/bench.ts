@@ -3,7 +3,8 @@
  * each solve in its own child process so that its peak memory is its own.
  *
  *   npm run bench -- [--sizes 512,1024,2048] [--methods auto,pcg-multigrid,...] [--out bench-results]
- *                    [--tolerance 1e-10] [--time-limit 240] [--write-case DIR --size N]
+ *                    [--tolerance 1e-10] [--max-iterations 20000] [--time-limit 240] [--write-case DIR --size N]
+ *   npm run bench -- --table FILE.json   (prints the table of an earlier run)
  *
  * Prints a table and writes bench-results/bench-<stamp>.json. Heads are compared with a tighter multigrid
  * solve (relative residual 1e-12) of the same size: max |h - h_ref| / max |h_ref| over active cells.
@@ -69,7 +70,7 @@ function parseArgs(argv: string[]): Map<string, string> {
 }
 
 /** Runs one solve in this process (child mode) and prints its result as JSON on stdout. */
-function runChild(size: number, method: string, tolerance: number, timeLimit: number, headsFile: string): void {
+function runChild(size: number, method: string, tolerance: number, timeLimit: number, maxIterations: number, headsFile: string): void {
   let t = performance.now();
   const { model } = benchCase(size);
   const caseSeconds = (performance.now() - t) / 1000;
@@ -83,7 +84,7 @@ function runChild(size: number, method: string, tolerance: number, timeLimit: nu
   const cpuStart = process.cpuUsage();
   const solver = createSolver(method, system.operator);
   const x = new Float64Array(system.operator.n);
-  const stats = solver.solve(system.rhs, x, { tolerance, maxIterations: 50_000, timeLimitSeconds: timeLimit });
+  const stats = solver.solve(system.rhs, x, { tolerance, maxIterations, timeLimitSeconds: timeLimit });
   const cpu = process.cpuUsage(cpuStart);
   const head = headsFromSolution(system, x);
   const budget = waterBudget(system, head);
@@ -111,10 +112,17 @@ function runChild(size: number, method: string, tolerance: number, timeLimit: nu
   process.stdout.write(JSON.stringify(result) + '\n');
 }
 
-function spawnChild(size: number, method: string, tolerance: number, timeLimit: number, headsFile: string): ChildResult | null {
+function spawnChild(
+  size: number,
+  method: string,
+  tolerance: number,
+  timeLimit: number,
+  maxIterations: number,
+  headsFile: string,
+): ChildResult | null {
   const script = fileURLToPath(import.meta.url);
   const args = ['--expose-gc', '--max-old-space-size=4096', script, '--child', '--size', String(size), '--method', method];
-  args.push('--tolerance', String(tolerance), '--time-limit', String(timeLimit), '--heads', headsFile);
+  args.push('--tolerance', String(tolerance), '--time-limit', String(timeLimit), '--max-iterations', String(maxIterations), '--heads', headsFile);
   const run = spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 1 << 24 });
   if (run.status !== 0) {
     process.stderr.write(`  ${method} at ${size}: child failed (status ${run.status})\n${run.stderr}\n`);
@@ -178,8 +186,13 @@ async function main(): Promise<void> {
   const args = parseArgs(process.argv.slice(2));
   const tolerance = Number(args.get('tolerance') ?? 1e-10);
   const timeLimit = Number(args.get('time-limit') ?? 240);
+  const maxIterations = Number(args.get('max-iterations') ?? 20_000);
   if (args.has('child')) {
-    runChild(Number(args.get('size')), args.get('method')!, tolerance, timeLimit, args.get('heads') ?? '');
+    runChild(Number(args.get('size')), args.get('method')!, tolerance, timeLimit, maxIterations, args.get('heads') ?? '');
+    return;
+  }
+  if (args.has('table')) {
+    printTable((JSON.parse(readFileSync(args.get('table')!, 'utf8')) as { rows: Row[] }).rows);
     return;
   }
   if (args.has('write-case')) {
@@ -196,16 +209,20 @@ async function main(): Promise<void> {
   const machine = `${cpus().length} x ${cpus()[0]?.model ?? 'unknown CPU'}, ${(totalmem() / 2 ** 30).toFixed(0)} GiB, Node ${process.version}`;
   console.log(`piezomap solver benchmark — ${machine}; tolerance ${tolerance}`);
   const rows: Row[] = [];
+  const stamp = new Date().toISOString().replace(/[:.]/g, '-');
+  const file = join(out, `bench-${stamp}.json`);
+  // rewritten after every solve, so a long run interrupted midway keeps what it measured
+  const save = () => writeFileSync(file, JSON.stringify({ machine, tolerance, maxIterations, rows }, null, 2) + '\n');
   for (const size of sizes) {
     const methods = methodsArg ? methodsArg.split(',') : (DEFAULT_METHODS[size] ?? ['auto', 'pcg-multigrid']);
     process.stderr.write(`size ${size}: reference solve (pcg-multigrid to 1e-12)\n`);
     const refFile = join(scratch, `ref-${size}.f64`);
-    const reference = spawnChild(size, 'pcg-multigrid', 1e-12, 3 * timeLimit, refFile);
+    const reference = spawnChild(size, 'pcg-multigrid', 1e-12, 3 * timeLimit, 1000, refFile);
     const refHeads = reference ? readHeads(refFile) : null;
     for (const method of methods) {
       process.stderr.write(`size ${size}: ${method}\n`);
       const headsFile = join(scratch, `${method}-${size}.f64`);
-      const result = spawnChild(size, method, tolerance, timeLimit, headsFile);
+      const result = spawnChild(size, method, tolerance, timeLimit, maxIterations, headsFile);
       if (!result) continue;
       const total = result.setupSeconds + result.solveSeconds;
       const row: Row = {
@@ -216,6 +233,7 @@ async function main(): Promise<void> {
       };
       rmSync(headsFile, { force: true });
       rows.push(row);
+      save();
       const notes = result.notes.length ? ` (${result.notes.join('; ')})` : '';
       process.stderr.write(`  ${result.stopReason} in ${result.iterations} iterations, ${total.toFixed(2)} s${notes}\n`);
     }
@@ -223,9 +241,7 @@ async function main(): Promise<void> {
   }
   rmSync(scratch, { recursive: true, force: true });
   printTable(rows);
-  const stamp = new Date().toISOString().replace(/[:.]/g, '-');
-  const file = join(out, `bench-${stamp}.json`);
-  writeFileSync(file, JSON.stringify({ machine, tolerance, rows }, null, 2));
+  save();
   console.log(`written ${file}`);
 }
 
