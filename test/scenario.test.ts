@@ -145,7 +145,7 @@ describe('parseScenarioJson', () => {
     expect(errorsOf({ ...minimal, wells: [{ id: 'W1', x: 0, y: 0, rate: -1, radius: 0 }] })).toEqual([
       'scenario.json: wells[0].radius: must be > 0 (got 0)',
     ]);
-    expect(errorsOf({ ...minimal, wells: 12 })).toEqual(['scenario.json: wells: expected a list of wells or the path of a CSV file, got 12']);
+    expect(errorsOf({ ...minimal, wells: 12 })).toEqual(['scenario.json: wells: expected a list of wells or the path of a CSV or GeoJSON file, got 12']);
   });
 
   it('takes a whole-number id as text, and refuses an empty one', () => {

@@ -31,6 +31,7 @@ import {
 import { wellLayers } from './merge.js';
 import { readShapes, reprojectShapes, type ShapeCollection } from './geojson.js';
 import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
+import { numberProperty, readPointFeatures, type PointFeature } from './pointFeatures.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
 
@@ -141,6 +142,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   }
 
   const transform = loader.pointTransform(raw.pointCrs, grid, conductivityPath);
+  loader.pointFrame = { grid, conductivityPath };
   const wells = await loader.wells(raw.wells, transform);
   const observations = await loader.observations(raw.observations, transform);
   const receptors = await loader.receptors(raw.receptors, transform, grid, conductivityPath);
@@ -493,24 +495,32 @@ class Loader {
   }
 
   async wells(spec: WellEntry[] | string | WellLayers | undefined, transform: PointTransform | null): Promise<WellInput[]> {
-    const byId = new Map<string, { change: Partial<WellChange>; source: string }>();
+    // `projected`: the well's x, y are already in the raster CRS (GeoJSON points are reprojected when read).
+    const byId = new Map<string, { change: Partial<WellChange>; source: string; projected: boolean }>();
     for (const layer of wellLayers(spec)) {
-      const changes: { change: WellChange; source: string }[] =
-        typeof layer.wells === 'string'
+      const changes: { change: WellChange; source: string; projected?: boolean }[] =
+        typeof layer.wells === 'string' && isGeoJsonPath(layer.wells)
+          ? (await this.pointGeoJson(layer.source, layer.wells, 'well')).map(({ feature, source, x, y }) => ({
+              change: wellFromFeature(feature, source, x, y),
+              source,
+              projected: true,
+            }))
+          : typeof layer.wells === 'string'
           ? (await this.pointCsv(`${layer.source}`, layer.wells, ['id', 'x', 'y', 'rate'], ['radius', 'minimumhead'])).map((record) => ({
               change: wellFromRecord(record),
               source: record.source,
             }))
           : layer.wells.map((change, index) => ({ change, source: `${layer.source}[${index}]` }));
-      for (const { change, source } of changes) {
+      for (const { change, source, projected } of changes) {
         const existing = byId.get(change.id);
         const mergedChange: Partial<WellChange> = { ...(existing?.change ?? {}) };
         for (const [key, value] of Object.entries(change)) if (value !== undefined) (mergedChange as Record<string, unknown>)[key] = value;
-        byId.set(change.id, { change: mergedChange, source });
+        const moved = change.x !== undefined || change.y !== undefined;
+        byId.set(change.id, { change: mergedChange, source, projected: moved ? Boolean(projected) : (existing?.projected ?? false) });
       }
     }
     const wells: WellInput[] = [];
-    for (const [id, { change, source }] of byId) {
+    for (const [id, { change, source, projected }] of byId) {
       const missing = (['x', 'y', 'rate'] as const).filter((key) => change[key] === undefined);
       if (missing.length) {
         throw inputError(`${this.label}: ${source}: well "${id}" is new here, so it needs ${missing.join(', ')} (no earlier well has this id)`, {
@@ -519,7 +529,7 @@ class Loader {
         });
       }
       if (change.rate === 0) continue;
-      const point = this.project(transform, change.x!, change.y!, `well "${id}" (${source})`);
+      const point = projected ? { x: change.x!, y: change.y! } : this.project(transform, change.x!, change.y!, `well "${id}" (${source})`);
       const well: WellInput = { id, x: point.x, y: point.y, rate: change.rate!, source };
       if (change.radius !== undefined) well.radius = change.radius;
       if (change.minimumHead !== undefined) well.minimumHead = change.minimumHead;
@@ -530,6 +540,13 @@ class Loader {
 
   async observations(spec: ScenarioJson['observations'], transform: PointTransform | null): Promise<ObservationInput[]> {
     if (spec === undefined) return [];
+    if (typeof spec === 'string' && isGeoJsonPath(spec)) {
+      return (await this.pointGeoJson('observations', spec, 'observation')).map(({ feature, source, x, y }) => {
+        const head = numberProperty(feature, source, 'head');
+        if (head === undefined) throw inputError(`${source} (id "${feature.id}"): has no "head" property (the observed head)`, { key: 'observations' });
+        return { id: feature.id, x, y, head, source };
+      });
+    }
     const entries =
       typeof spec === 'string'
         ? (await this.pointCsv('observations', spec, ['id', 'x', 'y', 'head'], [])).map((record) => ({
@@ -549,6 +566,9 @@ class Loader {
   /** Receptors: in pointCrs (or the raster CRS), unless an entry names its own `crs`. */
   async receptors(spec: ScenarioJson['receptors'], transform: PointTransform | null, grid: Grid, conductivityPath: string): Promise<ReceptorInput[]> {
     if (spec === undefined) return [];
+    if (typeof spec === 'string' && isGeoJsonPath(spec)) {
+      return (await this.pointGeoJson('receptors', spec, 'receptor')).map(({ feature, source, x, y }) => ({ id: feature.id, x, y, source }));
+    }
     const entries: Array<ReceptorEntry & { source: string }> =
       typeof spec === 'string'
         ? (await this.pointCsv('receptors', spec, ['id', 'x', 'y'], ['crs'])).map((record) => {
@@ -566,6 +586,37 @@ class Loader {
       const own = entry.crs === undefined ? transform : this.pointTransform(entry.crs, grid, conductivityPath, `${entry.source}.crs`);
       const point = this.project(own, entry.x, entry.y, `receptor "${entry.id}" (${entry.source})`);
       return { id: entry.id, x: point.x, y: point.y, source: entry.source };
+    });
+  }
+
+  /** Grid and conductivity path, for reprojecting GeoJSON points (set before the point lists are read). */
+  pointFrame: { grid: Grid; conductivityPath: string } | null = null;
+
+  /** Point features of a GeoJSON file, reprojected from WGS 84 (or its legacy `crs`) into the raster CRS. */
+  async pointGeoJson(key: string, given: string, what: string): Promise<Array<{ feature: PointFeature; source: string; x: number; y: number }>> {
+    const absolute = this.path(given);
+    await this.requireFile(key, given, absolute, 'GeoJSON');
+    let text: string;
+    try {
+      text = await readFile(absolute, 'utf8');
+    } catch (thrown) {
+      throw fileProblem(thrown, given, absolute, 'GeoJSON file', key);
+    }
+    this.inputFiles.add(absolute);
+    const json = parseJsonText(text, given, absolute);
+    let collection;
+    try {
+      collection = readPointFeatures(json, given, what);
+    } catch (thrown) {
+      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${key}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
+      throw thrown;
+    }
+    const frame = this.pointFrame!;
+    const transform = this.pointTransform(`EPSG:${collection.epsg}`, frame.grid, frame.conductivityPath, `${key} "${given}"`);
+    return collection.features.map((feature) => {
+      const source = `${given} feature ${feature.index}`;
+      const point = this.project(transform, feature.x, feature.y, `${what} "${feature.id}" (${source})`);
+      return { feature, source, x: point.x, y: point.y };
     });
   }
 
@@ -653,6 +704,25 @@ class Loader {
     }
     return result;
   }
+}
+
+/** Point lists given as GeoJSON files are told apart from CSV files by the extension. */
+function isGeoJsonPath(given: string): boolean {
+  return /\.(geo)?json$/i.test(given.trim());
+}
+
+function wellFromFeature(feature: PointFeature, source: string, x: number, y: number): WellChange {
+  const well: WellChange = { id: feature.id, x, y };
+  const rate = numberProperty(feature, source, 'rate');
+  if (rate !== undefined) well.rate = rate;
+  const radius = numberProperty(feature, source, 'radius');
+  if (radius !== undefined) {
+    if (!(radius > 0)) throw inputError(`${source} (id "${feature.id}"): radius ${radius} must be > 0 (or left out)`);
+    well.radius = radius;
+  }
+  const minimumHead = numberProperty(feature, source, 'minimumHead');
+  if (minimumHead !== undefined) well.minimumHead = minimumHead;
+  return well;
 }
 
 function wellFromRecord(record: PointRecord): WellChange {

@@ -68,7 +68,7 @@ function listOrCsv<T extends { id: string }>(entry: z.ZodType<T>, what: string) 
       }
     });
   });
-  return dispatch<T[] | string>(`a list of ${what}s or the path of a CSV file`, (value) =>
+  return dispatch<T[] | string>(`a list of ${what}s or the path of a CSV or GeoJSON file`, (value) =>
     Array.isArray(value) ? list : typeof value === 'string' ? filePath : undefined,
   );
 }
