@@ -17,6 +17,8 @@ import { inputError, PiezomapError } from './errors.js';
 import { loadScenario, mergeVariant, resolveScenario, type ScenarioJson } from './scenario/load.js';
 import type { ModelInput, ReceptorInput } from './scenario/types.js';
 import type { Solver } from './solvers/types.js';
+import { leanestMethod, solverBytesPerCell } from './solvers/registry.js';
+import { checkMemoryBudget } from './memory.js';
 import {
   prepareSolver,
   previousResultFiles,
@@ -145,6 +147,9 @@ export function compareModels(
     names.add(key);
   }
 
+  // Refuse a grid too large for this machine before the large allocations start (as solveModel does).
+  const requested = options.method ?? baseline.solver.method;
+  checkMemoryBudget(baseline.grid, { method: requested, bytesPerCell: solverBytesPerCell(requested) }, leanestMethod());
   // Everything is assembled and checked before the first solve.
   options.onProgress?.({ stage: 'assemble', message: 'assembling the baseline' });
   const baseSystem = assembleSystem(baseline);
