@@ -1,0 +1,42 @@
+/**
+ * Library example: try several rates for a planned well without writing a variant per rate into the scenario
+ * file. test/library-example.test.ts runs it on the demo scenario; in your own scripts import from 'piezomap'
+ * instead of '../src/index.js'.
+ */
+import { compareScenario, loadScenario, writeComparisonResults, type VariantJson } from '../src/index.js';
+
+export interface RateOutcome {
+  name: string;
+  rate: number;
+  /** Largest drawdown anywhere, length units. */
+  maxDrawdown: number;
+  /** Drawdown at each observation point, by id. */
+  atObservations: Record<string, number>;
+  /** Share of the added pumping taken from each fixed-head group and recharge, percent. */
+  sources: Record<string, number | null>;
+  /** True when the variant reused the baseline's operator and solver set-up. */
+  sharedOperator: boolean;
+  drawdown: Float64Array | null;
+}
+
+/** Compare the baseline of `scenarioPath` with one variant per rate of a new well at (x, y). */
+export async function compareWellRates(
+  scenarioPath: string,
+  well: { id: string; x: number; y: number },
+  rates: number[],
+  outDir?: string,
+): Promise<RateOutcome[]> {
+  const { model, raw } = await loadScenario(scenarioPath);
+  const variants: VariantJson[] = rates.map((rate) => ({ name: `${well.id}-${Math.abs(rate)}`, wells: [{ ...well, rate }] }));
+  const comparison = await compareScenario({ model, raw: { ...raw, variants } });
+  if (outDir) await writeComparisonResults(comparison, outDir, { overwrite: true, maps: false });
+  return comparison.variants.map((v, k) => ({
+    name: v.name,
+    rate: rates[k]!,
+    maxDrawdown: v.maxDrawdown?.value ?? NaN,
+    atObservations: Object.fromEntries(v.observations.map((o) => [o.id, o.drawdown])),
+    sources: Object.fromEntries(v.sources.terms.map((t) => [t.term, t.percentOfAddedPumping])),
+    sharedOperator: v.sharedOperator,
+    drawdown: v.drawdown,
+  }));
+}
