@@ -4,7 +4,7 @@
  */
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare.js';
-import { calibrationJson, csvField, tidy } from './summary.js';
+import { calibrationJson, calibrationLine, csvField, tidy } from './summary.js';
 
 /** A number for a CSV cell: rounded, empty when not a finite number. */
 function cell(v: number | null | undefined): string {
@@ -219,6 +219,8 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
     `Baseline   ${base.sound ? 'converged' : 'NOT a sound result'}: ${base.solver.method}, ${base.solver.iterations} iterations ` +
       `(setup ${base.solver.setupSeconds.toFixed(2)} s, solve ${base.solver.seconds.toFixed(2)} s); withdrawal ${num(base.withdrawal, 1)} ${L}³/${T}`,
   );
+  const calibration = (summary.baseline as { calibration: Record<string, number | null> | null }).calibration;
+  if (calibration) out.push(`Calibration (baseline against observed heads)`, calibrationLine(calibration, L));
   for (const v of variants) {
     out.push(
       `Variant    ${v.name}: ${v.status === 'ok' ? 'converged' : v.status.toUpperCase()}: ${v.solver.iterations} iterations, ` +
