@@ -15,6 +15,7 @@ import { locateObservations } from '../analysis/points.js';
 import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
 import { solveModel, writeSolveResults, prepareResultFolder, resultProblem, type RunOptions } from '../pipeline.js';
 import { formatSummary } from '../output/summary.js';
+import type { ProductOptions } from '../output/products.js';
 import { formatComparison } from '../output/comparison.js';
 import { comparisonProblem, compareScenario, writeComparisonResults } from '../compare.js';
 import { removeTemporaryFilesSync } from '../output/resultFolder.js';
@@ -34,6 +35,10 @@ interface SolveFlags extends CommonFlags {
   maxIterations?: number;
   relaxation?: number;
   overwrite?: boolean;
+  /** commander's negated --no-maps: false when given. */
+  maps?: boolean;
+  nativeContours?: boolean;
+  contourInterval?: number;
 }
 
 export interface CliIO {
@@ -77,13 +82,22 @@ function addCommon(cmd: Command): Command {
     .option('--debug', 'show stack traces for errors');
 }
 
+function productOptions(flags: SolveFlags): ProductOptions {
+  const options: ProductOptions = { maps: flags.maps !== false, nativeContours: Boolean(flags.nativeContours) };
+  if (flags.contourInterval !== undefined) options.contourInterval = flags.contourInterval;
+  return options;
+}
+
 function addSolverOptions(cmd: Command): Command {
   return cmd
     .addOption(new Option('--method <name>', `solver method (overrides the scenario): ${solverMethodNames().join(', ')}`))
     .option('--tolerance <number>', 'relative residual to reach (overrides the scenario)', positiveNumber('--tolerance'))
     .option('--max-iterations <n>', 'iteration cap (overrides the scenario)', positiveInteger('--max-iterations'))
     .option('--relaxation <omega>', 'relaxation factor for SOR (default: chosen automatically)', positiveNumber('--relaxation'))
-    .option('--overwrite', 'replace results already in the output folder');
+    .option('--overwrite', 'replace results already in the output folder')
+    .option('--no-maps', 'write only rasters, tables and the summary: no contours, flux rasters, map or report')
+    .option('--native-contours', "also write contours in the raster's own CRS (*.native.geojson)")
+    .option('--contour-interval <number>', 'contour interval in length units (default: a round interval)', positiveNumber('--contour-interval'));
 }
 
 async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
@@ -105,7 +119,7 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
   await prepareResultFolder(outDir, Boolean(flags.overwrite));
   const result = solveModel(model, options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
-  const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite) });
+  const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();
   const problem = resultProblem(result);
   if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');
@@ -144,7 +158,7 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
   await prepareResultFolder(outDir, Boolean(flags.overwrite));
   const comparison = await compareScenario(loaded, options);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
-  const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite) });
+  const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();
   if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');
   else io.stdout(formatComparison(summary, outDir));
