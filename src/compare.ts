@@ -12,7 +12,7 @@ import { dirname } from 'node:path';
 import { assembleSystem, withSources, type FlowSystem } from './discretisation/assemble.js';
 import { headAtPoint, locateObservations } from './analysis/points.js';
 import { sourcesOfWater, type SourcesOfWater } from './analysis/sources.js';
-import { cellAt, gridDifference } from './grid.js';
+import { cellAt, crsLabel, gridDifference } from './grid.js';
 import { inputError, PiezomapError } from './errors.js';
 import { loadScenario, mergeVariant, resolveScenario, type ScenarioJson } from './scenario/load.js';
 import type { ModelInput, ReceptorInput } from './scenario/types.js';
@@ -33,7 +33,8 @@ import {
 import { buildSummary } from './output/summary.js';
 import { comparisonCsv, comparisonSummary, type ComparisonSummaryJson } from './output/comparison.js';
 import { prepareResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './output/resultFolder.js';
-import type { ProductOptions } from './output/products.js';
+import { contourFiles, reportRun, type ProductOptions, type RenderedMap } from './output/products.js';
+import { renderMapPng, renderReportHtml, type ReportRun } from './report/index.js';
 import { encodeFloat32GeoTiff } from './raster/write.js';
 import { CAUTION } from './caution.js';
 import { VERSION } from './version.js';
@@ -327,37 +328,115 @@ function analyseVariant(
 
 /**
  * All files of a comparison, relative to OUTDIR: baseline/ and NAME/ as for `solve` (each with its summary.json),
- * NAME/drawdown.tif for every sound variant, comparison.csv and the comparison summary.json (last).
+ * NAME/drawdown.tif for every sound variant (with drawdown contours and map unless `maps: false`), the comparison
+ * report.html, comparison.csv and the comparison summary.json (last).
  */
 export function comparisonFiles(c: ComparisonResult, options: ProductOptions = {}): { files: OutputFile[]; summary: ComparisonSummaryJson } {
   const files: OutputFile[] = [];
-  const runFolder = (name: string, result: SolveResult, extra: OutputFile[]) => {
+  const { grid, units } = c.baseline.model;
+  const runs: ReportRun[] = [];
+  const runFolder = (name: string, result: SolveResult, extra: OutputFile[], extraMaps: RenderedMap[], reportExtra: Partial<ReportRun>) => {
     const prefix = `${name}/`;
     const bundle = resultBundle(result, prefix, options);
     const own = [...bundle.files, ...extra];
-    const withReport = bundle.maps.length > 0;
+    const allMaps = [...extraMaps, ...bundle.maps];
+    const withReport = allMaps.length > 0;
     const names = [...own.map((f) => f.name.slice(prefix.length)), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
     const summary = buildSummary(result, names, VERSION);
-    // The report's map paths are relative to OUTDIR; inside the folder they are not prefixed.
-    const maps = bundle.maps.map((m) => ({ ...m, file: m.file.startsWith(prefix) ? m.file.slice(prefix.length) : m.file }));
-    if (withReport) own.push({ name: prefix + REPORT_FILE, bytes: solveReport(result, summary, maps) });
+    // Map paths are relative to OUTDIR; inside the run's folder they are not prefixed.
+    const local = allMaps.map((m) => ({ ...m, file: m.file.startsWith(prefix) ? m.file.slice(prefix.length) : m.file }));
+    if (withReport) own.push({ name: prefix + REPORT_FILE, bytes: solveReport(result, summary, local) });
     own.push({ name: prefix + RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
     files.push(...own);
+    runs.push(reportRun(name, result, allMaps, reportExtra));
   };
-  runFolder('baseline', c.baseline, []);
+  runFolder('baseline', c.baseline, [], [], {});
   for (const v of c.variants) {
     const extra: OutputFile[] = [];
+    const maps: RenderedMap[] = [];
     if (v.drawdown) {
-      const description = `piezomap ${VERSION} drawdown (${c.baseline.model.units.length}, baseline head - variant head, positive = lowered): ${v.result.model.title}. ${CAUTION}`;
-      extra.push({ name: `${v.name}/drawdown.tif`, bytes: encodeFloat32GeoTiff(c.baseline.model.grid, v.drawdown, { nodata: -9999, description }) });
+      const description = `piezomap ${VERSION} drawdown (${units.length}, baseline head - variant head, positive = lowered): ${v.result.model.title}. ${CAUTION}`;
+      extra.push({ name: `${v.name}/drawdown.tif`, bytes: encodeFloat32GeoTiff(grid, v.drawdown, { nodata: -9999, description }) });
+      if (options.maps !== false) {
+        const contours = contourFiles(grid, v.drawdown, 'drawdown', units.length, options, `${v.name}/`);
+        extra.push(...contours.files);
+        for (const w of contours.warnings) if (!v.result.warnings.includes(w)) v.result.warnings.push(w);
+        const map = renderMapPng({
+          grid,
+          values: v.drawdown,
+          quantity: 'drawdown',
+          units,
+          title: v.result.model.title,
+          caution: CAUTION,
+          contours: contours.contours,
+          fixedHead: v.result.system.fixed,
+          wells: v.result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
+          observations: [...v.observations, ...v.receptors].map((o) => ({ id: o.id, x: o.x, y: o.y })),
+          footnote: `piezomap ${VERSION}`,
+        });
+        const file = `${v.name}/drawdown-map.png`;
+        extra.push({ name: file, bytes: map.png });
+        maps.push({ caption: `Drawdown against the baseline, ${units.length} (positive = lowered)`, file, png: map.png });
+      }
     }
-    runFolder(v.name, v.result, extra);
+    const obsDrawdown = new Map(v.observations.map((o) => [o.id, o.drawdown]));
+    const boreDrawdown = new Map(v.wellbores.map((w) => [w.id, w.drawdown]));
+    const reportExtra: Partial<ReportRun> = {};
+    if (v.maxDrawdown) reportExtra.maxDrawdown = v.maxDrawdown.value;
+    runFolder(v.name, v.result, extra, maps, reportExtra);
+    const run = runs[runs.length - 1]!;
+    for (const w of run.wells) {
+      const s = boreDrawdown.get(w.id);
+      if (s !== undefined && Number.isFinite(s)) w.drawdown = s;
+    }
+    for (const o of run.observations) {
+      const s = obsDrawdown.get(o.id);
+      if (s !== undefined && Number.isFinite(s)) o.drawdown = s;
+    }
   }
   files.push({ name: 'comparison.csv', bytes: comparisonCsv(c) });
-  const names = [...files.map((f) => f.name), RESULT_MARKER];
+  const withReport = options.maps !== false;
+  const names = [...files.map((f) => f.name), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
   const summary = comparisonSummary(c, names, VERSION);
+  if (withReport) files.push({ name: REPORT_FILE, bytes: comparisonReport(c, runs, summary) });
   files.push({ name: RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
   return { files, summary };
+}
+
+/** The comparison's HTML report: the variants table, then the baseline and each variant with their maps. */
+function comparisonReport(c: ComparisonResult, runs: ReportRun[], summary: ComparisonSummaryJson): string {
+  const base = c.baseline;
+  const { grid, units } = base.model;
+  const observationIds = base.model.observations.map((o) => o.id);
+  return renderReportHtml({
+    kind: 'compare',
+    title: base.model.title,
+    units,
+    grid: {
+      nx: grid.nx,
+      ny: grid.ny,
+      dx: base.system.dx,
+      dy: base.system.dy,
+      crs: crsLabel(grid.crs),
+      activeCells: base.system.counts.active,
+      fixedHeadCells: base.system.counts.fixed,
+    },
+    runs,
+    variants: c.variants.map((v) => ({
+      name: v.name,
+      maxDrawdown: v.maxDrawdown?.value ?? NaN,
+      totalWithdrawal: v.withdrawal,
+      discrepancyPercent: v.result.budget.discrepancyPercent,
+      converged: v.problem === null,
+      observationDrawdowns: v.observations.map((o) => o.drawdown),
+    })),
+    observationIds,
+    warnings: summary.warnings,
+    caution: CAUTION,
+    scenarioFile: base.model.scenarioPath,
+    program: `piezomap ${VERSION}`,
+    files: summary.files,
+  });
 }
 
 /**

@@ -83,7 +83,8 @@ describe('piezomap compare', () => {
     const r = run(['compare', scenario, '-o', out]);
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
-    expect(readdirSync(out).sort()).toEqual(['baseline', 'comparison.csv', 'more', 'summary.json', 'thin']);
+    expect(readdirSync(out).sort()).toEqual(['baseline', 'comparison.csv', 'more', 'report.html', 'summary.json', 'thin']);
+    expect(readdirSync(join(out, 'more'))).toEqual(expect.arrayContaining(['drawdown.tif', 'drawdown-contours.geojson', 'drawdown-map.png', 'report.html']));
     expect(existsSync(join(out, 'baseline', 'drawdown.tif'))).toBe(false);
     for (const folder of ['baseline', 'more', 'thin']) {
       for (const file of ['head.tif', 'budget.csv', 'summary.json']) expect(existsSync(join(out, folder, file))).toBe(true);

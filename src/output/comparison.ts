@@ -278,7 +278,10 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
   }
   for (const w of summary.warnings) out.push(`warning: ${w}`);
   for (const v of variants as Array<VariantJson & { warnings?: string[] }>) for (const w of v.warnings ?? []) out.push(`warning (${v.name}): ${w}`);
-  if (outDir) out.push(`Results    ${outDir}: baseline/, ${variants.map((v) => `${v.name}/`).join(', ')}${variants.length ? ', ' : ''}comparison.csv, summary.json`);
+  if (outDir) {
+    const top = summary.files.filter((f) => !f.includes('/'));
+    out.push(`Results    ${outDir}: baseline/, ${variants.map((v) => `${v.name}/`).join(', ')}${variants.length ? ', ' : ''}${top.join(', ')}`);
+  }
   out.push('');
   out.push(summary.caution);
   return out.join('\n') + '\n';
