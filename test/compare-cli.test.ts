@@ -136,7 +136,10 @@ describe('piezomap compare', () => {
     const again = run(['compare', scenario, '-o', out]);
     expect(again.code).toBe(2);
     expect(again.stderr).toMatch(/already holds results/);
-    const json = run(['compare', scenario, '-o', out, '--overwrite', '--json']);
+    const json = run(['compare', scenario, '-o', out, '--overwrite', '--json', '--no-maps']);
+    // The overwrite removed the earlier run's maps: old and new results never mix.
+    expect(existsSync(join(out, 'more', 'drawdown-map.png'))).toBe(false);
+    expect(existsSync(join(out, 'report.html'))).toBe(false);
     expect(json.code).toBe(0);
     expect(JSON.parse(json.stdout).variants.map((v: { name: string }) => v.name)).toEqual(['more', 'thin']);
   });
@@ -147,7 +150,7 @@ describe('piezomap compare', () => {
       { name: 'stuck', wells: [{ id: 'PW-1', rate: -500 }], solver: { method: 'jacobi', maxIterations: 3 } },
     ]);
     const out = join(dir, 'slow');
-    const r = run(['compare', scenario, '-o', out]);
+    const r = run(['compare', scenario, '-o', out, '--no-maps']);
     expect(r.code).toBe(3);
     expect(r.stderr).toMatch(/variant "stuck": solver jacobi did not reach the tolerance/);
     expect(existsSync(join(out, 'fine', 'drawdown.tif'))).toBe(true);
@@ -158,10 +161,10 @@ describe('piezomap compare', () => {
   });
 
   it('exits 2 for a scenario without variants and for a receptor outside the grid', () => {
-    const none = run(['compare', writeScenario('none.json', []), '-o', join(dir, 'none')]);
+    const none = run(['compare', writeScenario('none.json', []), '-o', join(dir, 'none'), '--no-maps']);
     expect(none.code).toBe(2);
     expect(none.stderr).toMatch(/no "variants"/);
-    const far = run(['compare', writeScenario('far.json', [{ name: 'v', recharge: 0.0003 }], { receptors: [{ id: 'spring-9', x: 10, y: 10 }] }), '-o', join(dir, 'far')]);
+    const far = run(['compare', writeScenario('far.json', [{ name: 'v', recharge: 0.0003 }], { receptors: [{ id: 'spring-9', x: 10, y: 10 }] }), '-o', join(dir, 'far'), '--no-maps']);
     expect(far.code).toBe(2);
     expect(far.stderr).toMatch(/receptor "spring-9" \(receptors\[0\]\).*outside the grid/);
     expect(far.stderr).not.toMatch(/\n\s+at /);
