@@ -131,6 +131,10 @@ describe('piezomap compare', () => {
     expect(variantSummary.wells.map((w: { id: string; radius: number }) => [w.id, w.radius])).toEqual([['PW-1', 0.1], ['PW-2', 0.2]]);
     expect(variantSummary.calibration.count).toBe(2);
     expect(r.stdout.trimEnd().endsWith(CAUTION)).toBe(true);
+    const report = readFileSync(join(out, 'report.html'), 'utf8');
+    expect(report).toMatch(/Scenario comparison/);
+    expect(report).toMatch(/Variant more/);
+    expect(report).toContain(CAUTION);
 
     // Existing results are refused without --overwrite, replaced with it.
     const again = run(['compare', scenario, '-o', out]);
@@ -158,6 +162,17 @@ describe('piezomap compare', () => {
     expect(existsSync(join(out, 'stuck', 'head.tif'))).toBe(false);
     const rows = parseCsv(readFileSync(join(out, 'comparison.csv'), 'utf8'));
     expect(rows[1]).toMatchObject({ variant: 'stuck', status: 'not-converged', max_drawdown: '', 'drawdown_obs_OB-1': '' });
+  });
+
+  it('exits 3 without solving the variants when the baseline does not converge', () => {
+    const scenario = writeScenario('stuck-base.json', [{ name: 'v', wells: [{ id: 'PW-1', rate: -500 }] }], { solver: { method: 'jacobi', maxIterations: 3 } });
+    const out = join(dir, 'stuck-base');
+    const r = run(['compare', scenario, '-o', out, '--no-maps']);
+    expect(r.code).toBe(3);
+    expect(r.stderr).toMatch(/solver jacobi did not reach the tolerance/);
+    expect(existsSync(join(out, 'baseline', 'head.tif'))).toBe(false);
+    expect(existsSync(join(out, 'v'))).toBe(false);
+    expect(readFileSync(join(out, 'comparison.csv'), 'utf8').trim().split('\n')).toHaveLength(1);
   });
 
   it('exits 2 for a scenario without variants and for a receptor outside the grid', () => {
