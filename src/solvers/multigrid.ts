@@ -85,7 +85,7 @@ function coarsen(
     if (c >= cx) d += cs[c - cx]!;
     cd[c] = d;
   }
-  return { level: makeLevel(cx, cy, cd, Float32Array.from(ce), Float32Array.from(cs), false), unknown: cu, excess: cExcess };
+  return { level: makeLevel(cx, cy, cd, new Float32Array(ce), new Float32Array(cs), false), unknown: cu, excess: cExcess };
 }
 
 /** Per unknown cell, the diagonal minus its couplings to unknown neighbours (the fixed-head conductances). */
@@ -119,7 +119,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
 
   constructor(op: StencilOperator) {
     const levels: Level[] = [
-      makeLevel(op.nx, op.ny, Float32Array.from(op.diag), Float32Array.from(op.east), Float32Array.from(op.south), true),
+      makeLevel(op.nx, op.ny, new Float32Array(op.diag), new Float32Array(op.east), new Float32Array(op.south), true),
     ];
     let unknown = op.unknown;
     let excess = diagonalExcess(op);

@@ -3,6 +3,10 @@ import { AggregationMultigrid } from './multigrid.js';
 import { PcgSolver } from './pcg.js';
 import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
 import { StationarySolver } from './stationary.js';
+import { warmUpKernels } from './warmup.js';
+
+/** Grids with more cells than this get a kernel warm-up before the multigrid setup (see warmup.ts). */
+const WARM_UP_ABOVE = 100_000;
 import type { Preconditioner, Solver, SolverConfig, SolverFactory, StencilOperator } from './types.js';
 
 /** Wraps a preconditioner constructor as a PCG factory that times the setup. */
@@ -65,6 +69,7 @@ export const solverRegistry: Record<string, SolverEntry> = {
   'pcg-multigrid': {
     factory: (op) => {
       const t0 = performance.now();
+      if (op.n > WARM_UP_ABOVE) warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
       const mg = new AggregationMultigrid(op);
       return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, [`multigrid ${mg.describe()}`]);
     },
