@@ -1,8 +1,9 @@
 /**
  * Read one band of a GeoTIFF into doubles, with its grid (size, geotransform as GDAL reports it, CRS) and nodata.
  *
- * geotiff.js parses the TIFF structure (classic and BigTIFF IFDs, tags) and supplies the LZW, PackBits and ZSTD
- * decompressors; DEFLATE goes through node:zlib. Block assembly, predictors, byte order, sample conversion and
+ * geotiff.js parses the TIFF structure (classic and BigTIFF IFDs, tags) and supplies the PackBits decompressor;
+ * DEFLATE goes through node:zlib, ZSTD through zstddec with the output bounded by the block size, LZW through our own
+ * bounded decoder (lzw.ts). Block assembly, predictors, byte order, sample conversion and
  * nodata masking are done here, in one pass per block row, because geotiff 3.0.5 gets several of them wrong
  * (horizontal differencing on big-endian files, Float64 with predictor 2, silently zero-filled truncated blocks).
  * Everything a user can get wrong ends as PiezomapError('input') naming the file.
@@ -13,6 +14,8 @@ import { fromArrayBuffer, getDecoder } from 'geotiff';
 import type { GeoTIFFImage } from 'geotiff';
 import { PiezomapError, describeThrown, inputError } from '../errors.js';
 import { memoryLimit } from '../memory.js';
+import { ZSTDDecoder } from 'zstddec/stream';
+import { decodeLzw } from './lzw.js';
 import type { Grid } from '../grid.js';
 import { RASTER_PIXEL_IS_POINT, crsFromGeoKeys, parseGeoKeyDirectory } from './geokeys.js';
 import type { GeoKeyRecord } from './geokeys.js';
@@ -27,6 +30,9 @@ export interface ReadRasterOptions {
 
 /** Cells beyond this are refused outright (typed-array lengths and index arithmetic stay in int32 range). */
 export const MAX_CELLS = 2 ** 31 - 1;
+
+/** One ZSTD decoder (a WebAssembly instance) for every file, made on first use. */
+const zstd = new ZSTDDecoder();
 
 /** TIFF Compression codes we decode (TIFF 6.0 section 3, 5, 9; Adobe DEFLATE; ZSTD as registered by GDAL/libtiff). */
 const COMPRESSION_NAMES: ReadonlyMap<number, string> = new Map([
@@ -167,6 +173,10 @@ async function numbersTag(image: GeoTIFFImage, name: string): Promise<number[] |
   return null;
 }
 
+function nonEmpty(list: number[] | null): number[] | null {
+  return list && list.length > 0 ? list : null;
+}
+
 async function numberTag(image: GeoTIFFImage, name: string, fallback: number): Promise<number> {
   const v = await numbersTag(image, name);
   return v && v.length ? v[0]! : fallback;
@@ -178,8 +188,9 @@ async function readLayout(image: GeoTIFFImage, label: string, fileSize: number):
   const height = await numberTag(image, 'ImageLength', 0);
   if (!(width >= 1 && height >= 1)) throw refuse(`image size ${width}x${height} is empty`);
   const samplesPerPixel = await numberTag(image, 'SamplesPerPixel', 1);
-  const bits = (await numbersTag(image, 'BitsPerSample')) ?? [1];
-  const formats = (await numbersTag(image, 'SampleFormat')) ?? [1];
+  // An empty list (a damaged count) counts as absent, so bits[0] and formats[0] always exist.
+  const bits = nonEmpty(await numbersTag(image, 'BitsPerSample')) ?? [1];
+  const formats = nonEmpty(await numbersTag(image, 'SampleFormat')) ?? [1];
   if (bits.some((b) => b !== bits[0]) || formats.some((f) => f !== formats[0])) {
     throw refuse('bands of different sample types are not supported');
   }
@@ -430,7 +441,30 @@ async function decodeBand(bytes: Uint8Array, layout: Layout, sample: number, nod
 async function decompressorFor(layout: Layout): Promise<(data: Uint8Array) => Uint8Array> {
   const { compression } = layout;
   if (compression === 1) return layout.predictor === 3 ? (data) => data.slice() : (data) => data;
-  if (compression === 8 || compression === 32946) return (data) => inflateSync(data);
+  // A block never holds more than its full size; a larger output is damage (or a decompression bomb), refused
+  // before it fills memory.
+  const pixelBytes = layout.planar === 1 ? layout.samplesPerPixel * layout.bytesPerSample : layout.bytesPerSample;
+  const blockBytes = layout.blockWidth * layout.blockHeight * pixelBytes;
+  if (compression === 8 || compression === 32946) {
+    return (data) => {
+      try {
+        return inflateSync(data, { maxOutputLength: blockBytes + 4096 });
+      } catch (thrown) {
+        if ((thrown as { code?: string }).code === 'ERR_BUFFER_TOO_LARGE') throw new Error(`it expands to more than the ${blockBytes} bytes a block holds`);
+        throw thrown;
+      }
+    };
+  }
+  if (compression === 5) return (data) => decodeLzw(data, blockBytes);
+  if (compression === 50000) {
+    await zstd.init();
+    return (data) => {
+      // With the block size given, the decoder never writes more than that; an error comes back as a huge size.
+      const out = zstd.decode(data, blockBytes);
+      if (out.byteLength > blockBytes) throw new Error('the ZSTD data is damaged');
+      return out;
+    };
+  }
   const decoder = await getDecoder(compression, {
     tileWidth: layout.blockWidth,
     tileHeight: layout.blockHeight,
@@ -441,7 +475,21 @@ async function decompressorFor(layout: Layout): Promise<(data: Uint8Array) => Ui
   return (data) => {
     const copy = data.slice();
     // geotiff.js decoders are synchronous underneath (decodeBlock); the async wrapper is only for worker pools.
-    const out = (decoder as unknown as { decodeBlock(b: ArrayBuffer): ArrayBufferLike }).decodeBlock(copy.buffer);
+    // Its LZW decoder reports a block that ends without its end code by console.warn and carries on: catch the
+    // warning (so nothing reaches the user's terminal) and treat the block as damaged.
+    const warn = console.warn;
+    let warned: string | null = null;
+    console.warn = (...args: unknown[]) => {
+      warned ??= args.map(String).join(' ');
+    };
+    let out: ArrayBufferLike;
+    try {
+      out = (decoder as unknown as { decodeBlock(b: ArrayBuffer): ArrayBufferLike }).decodeBlock(copy.buffer);
+    } finally {
+      console.warn = warn;
+    }
+    if (warned !== null) throw new Error(warned);
+    if (out.byteLength > blockBytes + 4096) throw new Error(`it expands to more than the ${blockBytes} bytes a block holds`);
     return new Uint8Array(out);
   };
 }
