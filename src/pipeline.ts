@@ -78,6 +78,13 @@ export function prepareSolver(system: FlowSystem, model: ModelInput, options: Ru
 
 /** Assemble, solve and analyse a loaded model. Does not throw on non-convergence: check `stats.converged`. */
 export function solveModel(model: ModelInput, options: RunOptions = {}, timings: Record<string, number> = {}): SolveResult {
+  const system = assembleModel(model, options, timings);
+  const { solver, setupSeconds } = prepareSolver(system, model, options);
+  return solveSystem(model, system, solver, options, timings, setupSeconds);
+}
+
+/** Everything before the solver: the memory budget check, the assembly, and the observation points located. */
+export function assembleModel(model: ModelInput, options: RunOptions = {}, timings: Record<string, number> = {}): FlowSystem {
   const t = now();
   // Refuse a grid too large for this machine before the large allocations start.
   const requested = options.method ?? model.solver.method;
@@ -87,9 +94,7 @@ export function solveModel(model: ModelInput, options: RunOptions = {}, timings:
   // Points are checked before the long solve so bad input fails fast.
   locateObservations(system, model.observations);
   timings.assemble = now() - t;
-
-  const { solver, setupSeconds } = prepareSolver(system, model, options);
-  return solveSystem(model, system, solver, options, timings, setupSeconds);
+  return system;
 }
 
 /**
@@ -105,7 +110,7 @@ export function solveSystem(
   timings: Record<string, number> = {},
   setupSeconds = 0,
 ): SolveResult {
-  let t = now();
+  const t = now();
   const x = new Float64Array(system.operator.n);
   const tolerance = options.tolerance ?? model.solver.tolerance;
   const maxIterations = options.maxIterations ?? model.solver.maxIterations;
@@ -118,8 +123,21 @@ export function solveSystem(
   });
   stats.setupSeconds = setupSeconds;
   timings.solve = now() - t + setupSeconds;
+  return analyseSolution(model, system, x, stats, timings);
+}
 
-  t = now();
+/**
+ * Everything after the solver: heads from the solution x = h - datum, the water budget, point results and warnings.
+ * Separate so that a solve run elsewhere (e.g. in a worker thread, src/robustness/solveInWorker.ts) ends the same way.
+ */
+export function analyseSolution(
+  model: ModelInput,
+  system: FlowSystem,
+  x: Float64Array,
+  stats: SolveStats,
+  timings: Record<string, number> = {},
+): SolveResult {
+  const t = now();
   const head = headsFromSolution(system, x);
   const budget = waterBudget(system, head);
   const warnings = [...model.warnings];
