@@ -31,12 +31,13 @@ interface Level {
   readonly w2: Float64Array;
 }
 
-function makeLevel(nx: number, ny: number, diag: Float32Array, east: Float32Array, south: Float32Array, fine: boolean): Level {
+/** A coarse level with its K-cycle workspaces. */
+function makeLevel(nx: number, ny: number, diag: Float32Array, east: Float32Array, south: Float32Array): Level {
   const n = nx * ny;
   const invDiag = new Float32Array(n);
   for (let p = 0; p < n; p++) invDiag[p] = 1 / diag[p]!;
-  const vector = () => (fine ? new Float64Array(0) : new Float64Array(n));
-  return { nx, ny, n, diag, east, south, invDiag, rhs: vector(), v1: vector(), w1: vector(), r2: vector(), v2: vector(), w2: vector() };
+  const v = () => new Float64Array(n);
+  return { nx, ny, n, diag, east, south, invDiag, rhs: v(), v1: v(), w1: v(), r2: v(), v2: v(), w2: v() };
 }
 
 /**
@@ -49,7 +50,7 @@ function makeLevel(nx: number, ny: number, diag: Float32Array, east: Float32Arra
  * aggregate without unknowns is an identity row.
  */
 function coarsen(
-  fine: { nx: number; ny: number; east: ArrayLike<number>; south: ArrayLike<number> },
+  fine: Level,
   unknown: Uint8Array,
   excess: Float64Array,
 ): { level: Level; unknown: Uint8Array; excess: Float64Array } {
@@ -74,6 +75,12 @@ function coarsen(
       if (i & 1) cs[c] += south[p]!;
     }
   }
+  return { level: coarseLevel(cx, cy, ce, cs, cExcess, cu), unknown: cu, excess: cExcess };
+}
+
+/** Coarse level from summed couplings and excess: diagonal = excess + couplings (identity row without unknowns). */
+function coarseLevel(cx: number, cy: number, ce: Float64Array, cs: Float64Array, cExcess: Float64Array, cu: Uint8Array): Level {
+  const cn = cx * cy;
   const cd = new Float32Array(cn);
   for (let c = 0; c < cn; c++) {
     if (!cu[c]) {
@@ -85,22 +92,57 @@ function coarsen(
     if (c >= cx) d += cs[c - cx]!;
     cd[c] = d;
   }
-  return { level: makeLevel(cx, cy, cd, new Float32Array(ce), new Float32Array(cs), false), unknown: cu, excess: cExcess };
+  return makeLevel(cx, cy, cd, new Float32Array(ce), new Float32Array(cs));
 }
 
-/** Per unknown cell, the diagonal minus its couplings to unknown neighbours (the fixed-head conductances). */
-function diagonalExcess(op: StencilOperator): Float64Array {
-  const { nx, n, diag, east, south, unknown } = op;
-  const excess = new Float64Array(n);
-  for (let p = 0; p < n; p++) {
-    if (!unknown[p]) continue;
-    let s = east[p]!;
-    if (p % nx !== 0) s += east[p - 1]!;
-    if (p + nx < n) s += south[p]!;
-    if (p >= nx) s += south[p - nx]!;
-    excess[p] = Math.max(0, diag[p]! - s);
+/**
+ * Level 0 and the first coarsening in one pass over the fine grid: single-precision copies of the bands and the
+ * inverse diagonal, and the first coarse level built from the exact double-precision operator. The "excess" of
+ * a fine cell is its diagonal minus its couplings to unknown neighbours (its fixed-head conductances).
+ */
+function finestLevels(op: StencilOperator): { fine: Level; coarse: { level: Level; unknown: Uint8Array; excess: Float64Array } | null } {
+  const { nx, ny, n, diag, east, south, unknown } = op;
+  const d32 = new Float32Array(n);
+  const e32 = new Float32Array(n);
+  const s32 = new Float32Array(n);
+  const inv = new Float32Array(n);
+  const cx = (nx + 1) >> 1;
+  const cy = (ny + 1) >> 1;
+  const cn = cx * cy;
+  const build = n > COARSEST_CELLS && !(nx === 1 && ny === 1);
+  const ce = new Float64Array(build ? cn : 0);
+  const cs = new Float64Array(build ? cn : 0);
+  const cExcess = new Float64Array(build ? cn : 0);
+  const cu = new Uint8Array(build ? cn : 0);
+  for (let i = 0; i < ny; i++) {
+    const row = i * nx;
+    const crow = (i >> 1) * cx;
+    for (let j = 0; j < nx; j++) {
+      const p = row + j;
+      const d = diag[p]!;
+      const e = east[p]!;
+      const s = south[p]!;
+      d32[p] = d;
+      e32[p] = e;
+      s32[p] = s;
+      inv[p] = 1 / d;
+      if (!build) continue;
+      const c = crow + (j >> 1);
+      if (unknown[p]) {
+        let coupled = e + s;
+        if (j > 0) coupled += east[p - 1]!;
+        if (i > 0) coupled += south[p - nx]!;
+        cExcess[c] += Math.max(0, d - coupled);
+        cu[c] = 1;
+      }
+      if (j & 1) ce[c] += e;
+      if (i & 1) cs[c] += s;
+    }
   }
-  return excess;
+  const empty = new Float64Array(0);
+  const fine: Level = { nx, ny, n, diag: d32, east: e32, south: s32, invDiag: inv, rhs: empty, v1: empty, w1: empty, r2: empty, v2: empty, w2: empty };
+  if (!build) return { fine, coarse: null };
+  return { fine, coarse: { level: coarseLevel(cx, cy, ce, cs, cExcess, cu), unknown: cu, excess: cExcess } };
 }
 
 /**
@@ -118,20 +160,19 @@ export class AggregationMultigrid implements VariablePreconditioner {
   private readonly direct: BandedCholesky;
 
   constructor(op: StencilOperator) {
-    const levels: Level[] = [
-      makeLevel(op.nx, op.ny, new Float32Array(op.diag), new Float32Array(op.east), new Float32Array(op.south), true),
-    ];
-    let unknown = op.unknown;
-    let excess = diagonalExcess(op);
-    // the first coarsening reads the exact double-precision couplings
-    let finer: { nx: number; ny: number; east: ArrayLike<number>; south: ArrayLike<number> } = op;
-    while (levels[levels.length - 1]!.n > COARSEST_CELLS) {
-      if (finer.nx === 1 && finer.ny === 1) break;
-      const next = coarsen(finer, unknown, excess);
-      levels.push(next.level);
-      unknown = next.unknown;
-      excess = next.excess;
-      finer = next.level;
+    const first = finestLevels(op);
+    const levels: Level[] = [first.fine];
+    if (first.coarse) {
+      levels.push(first.coarse.level);
+      let { unknown, excess } = first.coarse;
+      for (;;) {
+        const finer = levels[levels.length - 1]!;
+        if (finer.n <= COARSEST_CELLS || (finer.nx === 1 && finer.ny === 1)) break;
+        const next = coarsen(finer, unknown, excess);
+        levels.push(next.level);
+        unknown = next.unknown;
+        excess = next.excess;
+      }
     }
     this.levels = levels;
     this.direct = new BandedCholesky(levels.length === 1 ? op : levels[levels.length - 1]!);
