@@ -125,3 +125,19 @@ describe('stopping rules', () => {
     expect(() => createSolver('pcg-ic0', bad)).toThrow(/row 1, col 1/);
   });
 });
+
+describe('determinism', () => {
+  it('pcg-multigrid gives bit-identical heads for identical inputs, with fresh and with reused solvers', () => {
+    // Common practice for reproducible model runs: same input, same bytes.
+    const { op, b } = buildSystem(heterogeneousCase(90, 70, 21));
+    const first = new Float64Array(op.n);
+    const solver = createSolver('pcg-multigrid', op);
+    solver.solve(b, first, { tolerance: 1e-10, maxIterations: 500 });
+    const again = new Float64Array(op.n);
+    solver.solve(b, again, { tolerance: 1e-10, maxIterations: 500 });
+    const fresh = new Float64Array(op.n);
+    createSolver('pcg-multigrid', op).solve(b, fresh, { tolerance: 1e-10, maxIterations: 500 });
+    expect(Buffer.from(again.buffer).equals(Buffer.from(first.buffer))).toBe(true);
+    expect(Buffer.from(fresh.buffer).equals(Buffer.from(first.buffer))).toBe(true);
+  });
+});
