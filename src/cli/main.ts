@@ -15,6 +15,7 @@ import { locateObservations } from '../analysis/points.js';
 import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
 import { solveModel, writeSolveResults, prepareResultFolder, resultProblem, type RunOptions } from '../pipeline.js';
 import { formatSummary } from '../output/summary.js';
+import { solveModelInWorker, workerAvailable } from '../robustness/solveInWorker.js';
 import type { ProductOptions } from '../output/products.js';
 import { formatComparison } from '../output/comparison.js';
 import { comparisonProblem, compareScenario, writeComparisonResults } from '../compare.js';
@@ -117,7 +118,8 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
   const timings: Record<string, number> = { load: (performance.now() - t0) / 1000 };
   // Check the output folder before the long work.
   await prepareResultFolder(outDir, Boolean(flags.overwrite));
-  const result = solveModel(model, options, timings);
+  // The solver runs in a worker thread so that Ctrl-C / SIGTERM are answered at once (see installSignalHandlers).
+  const result = workerAvailable() ? await solveModelInWorker(model, options, timings) : solveModel(model, options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();

@@ -76,10 +76,14 @@ export async function writeResultFiles(outDir: string, files: OutputFile[], prev
     for (const old of previous) {
       if (!files.some((f) => f.name === old)) await rm(join(dir, old), { force: true });
     }
+    // A signal during the renames must not leave a partial set: the files already renamed count as temporaries
+    // until the last one is in place.
     for (const { temp, final } of staged) {
+      liveTemporaries.add(final);
       await rename(temp, final);
       liveTemporaries.delete(temp);
     }
+    for (const { final } of staged) liveTemporaries.delete(final);
   } catch (error) {
     await removeTemporaryFiles();
     throw new PiezomapError('internal', `could not write results into ${outDir}: ${describeThrown(error)}`, { file: outDir });
