@@ -110,6 +110,23 @@ describe('compareModels', () => {
     expect(Array.from(v.drawdown!).every((s, p) => Number.isNaN(s) || Math.abs(s - (c.baseline.head[p]! - alone.head[p]!)) < 1e-8)).toBe(true);
   });
 
+  it('operatorDifference: shares only when the aquifer, fixed heads and solver method are the same', () => {
+    const base = patchyModel();
+    const grid = base.grid;
+    // Same values in new arrays (as a variant re-reads its rasters): still shared; nodata (NaN) equals nodata.
+    expect(operatorDifference(base, { ...base, conductivity: Float64Array.from(base.conductivity), wells: [well(grid, 'A', 1, 1, -5)] })).toBeNull();
+    expect(operatorDifference(base, { ...base, solver: { ...base.solver, tolerance: 1e-6 } })).toBeNull();
+    const k = Float64Array.from(base.conductivity);
+    k[5] = 6;
+    expect(operatorDifference(base, { ...base, conductivity: k })).toBe('aquifer.conductivity differs');
+    expect(operatorDifference(base, { ...base, anisotropy: 2 })).toBe('aquifer.anisotropy differs');
+    const stage = fixedColumn(grid, 0, 100.5, 'river');
+    expect(operatorDifference(base, { ...base, fixedHeads: [stage, base.fixedHeads[1]!] })).toBe('fixedHeads differ');
+    expect(operatorDifference(base, { ...base, solver: { ...base.solver, method: 'pcg-ic0' } })).toBe('solver.method differs');
+    // A method given for the whole run overrides both, so they share again.
+    expect(operatorDifference(base, { ...base, solver: { ...base.solver, method: 'pcg-ic0' } }, { method: 'cg' })).toBeNull();
+  });
+
   it('refuses variant names that cannot name a folder, and duplicates', () => {
     const base = patchyModel();
     expect(() => compareModels(base, [{ name: 'a/b', model: base }])).toThrow(/cannot name a result folder/);
