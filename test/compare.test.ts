@@ -164,6 +164,7 @@ describe('well-bore heads (Peaceman)', () => {
     // Peaceman 1978 (square) and Peaceman 1983 (rectangular: r0 = 0.14 (dx^2 + dy^2)^(1/2)), both from memory.
     expect(equivalentBlockRadius(10, 10, 1)).toBeCloseTo(2.08, 12);
     expect(equivalentBlockRadius(10, 20, 1)).toBeCloseTo(0.14 * Math.sqrt(500), 12);
+    expect(equivalentBlockRadius(10, 10 * (1 + 1e-12), 1)).toBeCloseTo(2.08, 9);
     // Anisotropy and cell shape trade places: Ty/Tx = 4 on 10 x 20 cells equals isotropy on 10 x 10 cells scaled.
     const r = equivalentBlockRadius(10, 20, 4);
     expect(r).toBeCloseTo((0.28 * Math.sqrt(2 * 100 + 0.5 * 400)) / (Math.SQRT2 + Math.SQRT1_2), 12);

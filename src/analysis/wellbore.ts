@@ -42,7 +42,8 @@ export interface WellboreResult {
  * isotropic cells (Peaceman 1978), the rectangular/anisotropic form otherwise (Peaceman 1983).
  */
 export function equivalentBlockRadius(dx: number, dy: number, anisotropy: number): number {
-  if (dx === dy && anisotropy === 1) return 0.208 * dx;
+  // Square within rounding of the geotransform (e.g. 50.0000000001 m): the rectangular form would jump ~5 % lower.
+  if (Math.abs(dx - dy) <= 1e-9 * Math.max(dx, dy) && anisotropy === 1) return 0.208 * dx;
   const ratio = anisotropy; // Ty/Tx
   const a = Math.sqrt(ratio);
   const b = Math.sqrt(1 / ratio);
