@@ -8,6 +8,7 @@ import { assembleSystem, headsFromSolution, type FlowSystem } from './discretisa
 import { waterBudget, type WaterBudget } from './analysis/budget.js';
 import { observationResults, wellResults, locateObservations, type ObservationResult, type WellResult } from './analysis/points.js';
 import { wellboreHeads, wellboreWarnings, type WellboreResult } from './analysis/wellbore.js';
+import { sanityWarnings } from './analysis/sanity.js';
 import { calibrationStatistics, type CalibrationStatistics } from './analysis/calibration.js';
 import { PiezomapError } from './errors.js';
 import { loadScenario } from './scenario/load.js';
@@ -148,6 +149,7 @@ export function analyseSolution(
   const observations = observationResults(system, model.observations, head);
   const wellbore = wellboreHeads(model, system, head);
   warnings.push(...wellboreWarnings(wellbore, model.units.length));
+  warnings.push(...sanityWarnings(model, system, head, wellbore));
   const result: SolveResult = {
     model,
     system,

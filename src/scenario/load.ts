@@ -141,6 +141,18 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     porosity = raw.aquifer.porosity;
   }
 
+  // Optional elevations for the sanity warnings: numbers, or rasters on the conductivity grid (nodata = not known).
+  const elevations: { aquiferTop?: Float64Array | number; aquiferBottom?: Float64Array | number; groundSurface?: Float64Array | number } = {};
+  const elevationKeys = [
+    ['aquiferTop', 'aquifer.top', raw.aquifer.top],
+    ['aquiferBottom', 'aquifer.bottom', raw.aquifer.bottom],
+    ['groundSurface', 'groundSurface', raw.groundSurface],
+  ] as const;
+  for (const [field, key, given] of elevationKeys) {
+    if (typeof given === 'number') elevations[field] = given;
+    else if (typeof given === 'string') elevations[field] = (await loader.raster(key, given, conductivityRaster)).values;
+  }
+
   const transform = loader.pointTransform(raw.pointCrs, grid, conductivityPath);
   loader.pointFrame = { grid, conductivityPath };
   const wells = await loader.wells(raw.wells, transform);
@@ -159,6 +171,9 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     thickness,
     anisotropy: raw.aquifer.anisotropy,
     ...(porosity === undefined ? {} : { porosity }),
+    ...(elevations.aquiferTop === undefined ? {} : { aquiferTop: elevations.aquiferTop }),
+    ...(elevations.aquiferBottom === undefined ? {} : { aquiferBottom: elevations.aquiferBottom }),
+    ...(elevations.groundSurface === undefined ? {} : { groundSurface: elevations.groundSurface }),
     fixedHeads,
     recharge,
     wells,

@@ -86,6 +86,10 @@ export const aquiferSchema = strict({
   inactiveShapes: z.array(filePath).optional(),
   /** Effective porosity, for the average linear velocity; number in (0, 1] or a GeoTIFF. Optional. */
   porosity: numberOrPath(finite.gt(0).lte(1), 'a porosity in (0, 1] or the path of a GeoTIFF').optional(),
+  /** Elevation of the aquifer top (base of the confining layer), for the sanity warnings. Optional. */
+  top: numberOrPath(finite, 'an elevation (length) or the path of a GeoTIFF').optional(),
+  /** Elevation of the aquifer bottom, for the sanity warnings. Optional. */
+  bottom: numberOrPath(finite, 'an elevation (length) or the path of a GeoTIFF').optional(),
 });
 
 export const edgeNames = ['west', 'east', 'north', 'south'] as const;
@@ -193,6 +197,8 @@ const replaceableFields = {
   recharge: numberOrPath(finite, 'a recharge rate (length/time) or the path of a GeoTIFF').optional(),
   wells: listOrCsv(wellSchema, 'well').optional(),
   pointCrs: pointCrsSchema.optional(),
+  /** Elevation of the ground surface, for the sanity warnings (heads above it are flowing artesian). Optional. */
+  groundSurface: numberOrPath(finite, 'an elevation (length) or the path of a GeoTIFF').optional(),
   observations: listOrCsv(observationSchema, 'observation').optional(),
   receptors: listOrCsv(receptorSchema, 'receptor').optional(),
   solver: solverSchema.optional(),

@@ -73,6 +73,10 @@ export interface ModelInput {
   anisotropy: number;
   /** Effective porosity per cell or one number, when given (for average linear velocities). */
   porosity?: Float64Array | number;
+  /** Elevations (length units; NaN where a raster has no data), when given: for the physical sanity warnings only. */
+  aquiferTop?: Float64Array | number;
+  aquiferBottom?: Float64Array | number;
+  groundSurface?: Float64Array | number;
   fixedHeads: FixedHeadInput[];
   /** Recharge per cell (length/time), or one number. */
   recharge: Float64Array | number;
