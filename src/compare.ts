@@ -124,20 +124,32 @@ export async function resolveVariants(
   return result;
 }
 
-interface PreparedVariant {
+/** What compareModels builds before its first solve: every system assembled and every point located. */
+export interface PreparedComparison {
+  baseSystem: FlowSystem;
+  receptors: ReceptorInput[];
+  receptorCells: Int32Array;
+  variants: PreparedVariant[];
+}
+
+export interface PreparedVariant {
   name: string;
   model: ModelInput;
   system: FlowSystem;
+  /** True when the variant will be solved on the baseline's operator and solver set-up. */
   shared: boolean;
   sharing: string;
 }
 
-/** Compare a baseline model with variant models (already resolved). */
-export function compareModels(
+/**
+ * Check a comparison without solving: variant names, the memory budget, every system (assembled, or sources on the
+ * baseline's operator), wells, observations and receptors. Throws the input error a comparison would throw.
+ */
+export function prepareComparison(
   baseline: ModelInput,
   variants: ReadonlyArray<{ name: string; model: ModelInput }>,
   options: RunOptions = {},
-): ComparisonResult {
+): PreparedComparison {
   const names = new Set<string>();
   for (const v of variants) {
     const key = v.name.toLowerCase();
@@ -147,11 +159,9 @@ export function compareModels(
     if (names.has(key)) throw inputError(`duplicate variant name "${v.name}"`, { hint: 'variant names must be unique (case is ignored)' });
     names.add(key);
   }
-
   // Refuse a grid too large for this machine before the large allocations start (as solveModel does).
   const requested = options.method ?? baseline.solver.method;
   checkMemoryBudget(baseline.grid, { method: requested, bytesPerCell: solverBytesPerCell(requested) }, leanestMethod());
-  // Everything is assembled and checked before the first solve.
   options.onProgress?.({ stage: 'assemble', message: 'assembling the baseline' });
   const baseSystem = assembleSystem(baseline);
   locateObservations(baseSystem, baseline.observations);
@@ -170,6 +180,16 @@ export function compareModels(
       sharing: difference === null ? 'same aquifer, fixed heads and solver: baseline operator and solver set-up reused' : `solved afresh: ${difference}`,
     };
   });
+  return { baseSystem, receptors, receptorCells, variants: prepared };
+}
+
+/** Compare a baseline model with variant models (already resolved). Everything is checked before the first solve. */
+export function compareModels(
+  baseline: ModelInput,
+  variants: ReadonlyArray<{ name: string; model: ModelInput }>,
+  options: RunOptions = {},
+): ComparisonResult {
+  const { baseSystem, receptors, receptorCells, variants: prepared } = prepareComparison(baseline, variants, options);
 
   const { solver, setupSeconds } = prepareSolver(baseSystem, baseline, options);
   const baseResult = solveSystem(baseline, baseSystem, solver, options, {}, setupSeconds);

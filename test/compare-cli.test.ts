@@ -175,6 +175,17 @@ describe('piezomap compare', () => {
     expect(readFileSync(join(out, 'comparison.csv'), 'utf8').trim().split('\n')).toHaveLength(1);
   });
 
+  it('inspect checks the variants as compare would, without solving', () => {
+    const ok = run(['inspect', writeScenario('inspect.json', [{ name: 'more', wells: [{ id: 'PW-1', rate: -600 }] }, { name: 'thin', aquifer: { conductivity: 'k.tif', thickness: 15 } }])]);
+    expect(ok.code).toBe(0);
+    expect(ok.stdout).toMatch(/Receptors +2/);
+    expect(ok.stdout).toMatch(/Variant +more: 1 well\(s\); same aquifer, fixed heads and solver/);
+    expect(ok.stdout).toMatch(/Variant +thin: 1 well\(s\); solved afresh: aquifer\.thickness differs/);
+    const bad = run(['inspect', writeScenario('inspect-bad.json', [{ name: 'far', wells: [{ id: 'PW-9', x: 10, y: 10, rate: -5 }] }])]);
+    expect(bad.code).toBe(2);
+    expect(bad.stderr).toMatch(/well "PW-9" \(variants "far"\.wells\[0\]\) at x=10, y=10 lies outside the grid/);
+  });
+
   it('exits 2 for a scenario without variants and for a receptor outside the grid', () => {
     const none = run(['compare', writeScenario('none.json', []), '-o', join(dir, 'none'), '--no-maps']);
     expect(none.code).toBe(2);

@@ -12,13 +12,21 @@ export interface InspectReport {
   conductivity: { min: number; max: number };
   wells: Array<{ id: string; row: number; col: number; rate: number }>;
   observations: number;
+  receptors: number;
+  /** Variants, checked as compare would check them (resolved and assembled, not solved). */
+  variants: Array<{ name: string; wells: number; sharedOperator: boolean; sharing: string }>;
   solver: { method: string; autoChoice: string; tolerance: number; maxIterations: number };
   inputFiles: string[];
   warnings: string[];
   caution: string;
 }
 
-export function inspectReport(model: ModelInput, system: FlowSystem, autoChoice: string): InspectReport {
+export function inspectReport(
+  model: ModelInput,
+  system: FlowSystem,
+  autoChoice: string,
+  variants: ReadonlyArray<{ name: string; model: ModelInput; shared: boolean; sharing: string }> = [],
+): InspectReport {
   const { grid } = model;
   let kMin = Infinity, kMax = -Infinity;
   for (let p = 0; p < system.active.length; p++) {
@@ -55,6 +63,8 @@ export function inspectReport(model: ModelInput, system: FlowSystem, autoChoice:
       return { id: w.id, row: Math.floor(p / grid.nx), col: p % grid.nx, rate: w.rate };
     }),
     observations: model.observations.length,
+    receptors: model.receptors?.length ?? 0,
+    variants: variants.map((v) => ({ name: v.name, wells: v.model.wells.length, sharedOperator: v.shared, sharing: v.sharing })),
     solver: { method: model.solver.method, autoChoice, tolerance: model.solver.tolerance, maxIterations: model.solver.maxIterations },
     inputFiles: model.inputFiles,
     warnings,
@@ -78,6 +88,8 @@ export function formatInspect(r: InspectReport): string {
   }
   for (const w of r.wells) out.push(`Well         ${w.id}: row ${w.row}, col ${w.col}, rate ${w.rate}`);
   out.push(`Observations ${r.observations}`);
+  if (r.receptors) out.push(`Receptors    ${r.receptors}`);
+  for (const v of r.variants) out.push(`Variant      ${v.name}: ${v.wells} well(s); ${v.sharing}`);
   out.push(
     `Solver       ${r.solver.method}${r.solver.method === 'auto' ? ` (would use ${r.solver.autoChoice})` : ''}, tolerance ${r.solver.tolerance}, at most ${L(r.solver.maxIterations)} iterations`,
   );

@@ -18,7 +18,7 @@ import { formatSummary } from '../output/summary.js';
 import { solveModelInWorker, workerAvailable } from '../robustness/solveInWorker.js';
 import type { ProductOptions } from '../output/products.js';
 import { formatComparison } from '../output/comparison.js';
-import { comparisonProblem, compareScenario, writeComparisonResults } from '../compare.js';
+import { comparisonProblem, compareScenario, prepareComparison, resolveVariants, writeComparisonResults } from '../compare.js';
 import { removeTemporaryFilesSync } from '../output/resultFolder.js';
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
@@ -173,10 +173,12 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
 }
 
 async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Promise<number> {
-  const { model } = await loadScenario(scenario);
+  const { model, raw } = await loadScenario(scenario);
   const system = assembleSystem(model);
   locateObservations(system, model.observations);
-  const report = inspectReport(model, system, chooseAutoMethod(system.operator));
+  // Variants are resolved and checked as compare would, without solving.
+  const prepared = prepareComparison(model, await resolveVariants(model, raw));
+  const report = inspectReport(model, system, chooseAutoMethod(system.operator), prepared.variants);
   io.stdout(flags.json ? JSON.stringify(report, null, 2) + '\n' : formatInspect(report));
   return 0;
 }
