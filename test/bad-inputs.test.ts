@@ -5,7 +5,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { spawn } from 'node:child_process';
-import { existsSync, mkdtempSync, readdirSync, rmSync, statSync } from 'node:fs';
+import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { writeBadInputs, type BadInputCase } from '../scripts/make-bad-inputs.js';
@@ -40,7 +40,7 @@ beforeAll(async () => {
     for (let c = queue.shift(); c; c = queue.shift()) outcomes.set(c.name, await run(c));
   };
   await Promise.all([worker(), worker()]);
-}, 180_000);
+}, 600_000);
 
 afterAll(() => rmSync(dir, { recursive: true, force: true }));
 
@@ -75,4 +75,21 @@ describe('malformed inputs through the command line', () => {
       if (c.code === 3) expect(left).not.toContain('head.tif');
     });
   }
+
+  it('not-converged: the summary records the failure and the message gives residual, factor and a suggestion', () => {
+    const c = cases.find((x) => x.name === 'not-converged')!;
+    const r = outcomes.get(c.name)!;
+    expect(r.stderr).toMatch(/relative residual \d\.\d+e[-+]\d+ after 5 iterations, convergence factor 0\.\d+/);
+    expect(r.stderr).toMatch(/hint: .*(raise solver\.maxIterations|pcg-multigrid)/);
+    const summary = JSON.parse(readFileSync(join(c.out, 'summary.json'), 'utf8'));
+    expect(summary.solver.converged).toBe(false);
+  });
+
+  it('budget-open: the residual criterion was met, yet the open water budget fails the run', () => {
+    const c = cases.find((x) => x.name === 'budget-open')!;
+    const summary = JSON.parse(readFileSync(join(c.out, 'summary.json'), 'utf8'));
+    expect(summary.solver.converged).toBe(true);
+    expect(Math.abs(summary.budget.discrepancyPercent)).toBeGreaterThan(0.1);
+    expect(outcomes.get(c.name)!.stderr).toMatch(/exceeds 0\.1 % although the residual criterion was met/);
+  });
 });
