@@ -144,11 +144,13 @@ export interface PreparedVariant {
 /**
  * Check a comparison without solving: variant names, the memory budget, every system (assembled, or sources on the
  * baseline's operator), wells, observations and receptors. Throws the input error a comparison would throw.
+ * `assembled`: the baseline's system when the caller has already built it (then the memory budget is not checked).
  */
 export function prepareComparison(
   baseline: ModelInput,
   variants: ReadonlyArray<{ name: string; model: ModelInput }>,
   options: RunOptions = {},
+  assembled?: FlowSystem,
 ): PreparedComparison {
   const names = new Set<string>();
   for (const v of variants) {
@@ -159,11 +161,13 @@ export function prepareComparison(
     if (names.has(key)) throw inputError(`duplicate variant name "${v.name}"`, { hint: 'variant names must be unique (case is ignored)' });
     names.add(key);
   }
-  // Refuse a grid too large for this machine before the large allocations start (as solveModel does).
-  const requested = options.method ?? baseline.solver.method;
-  checkMemoryBudget(baseline.grid, { method: requested, bytesPerCell: solverBytesPerCell(requested) }, leanestMethod());
-  options.onProgress?.({ stage: 'assemble', message: 'assembling the baseline' });
-  const baseSystem = assembleSystem(baseline);
+  if (!assembled) {
+    // Refuse a grid too large for this machine before the large allocations start (as solveModel does).
+    const requested = options.method ?? baseline.solver.method;
+    checkMemoryBudget(baseline.grid, { method: requested, bytesPerCell: solverBytesPerCell(requested) }, leanestMethod());
+    options.onProgress?.({ stage: 'assemble', message: 'assembling the baseline' });
+  }
+  const baseSystem = assembled ?? assembleSystem(baseline);
   locateObservations(baseSystem, baseline.observations);
   const receptors = baseline.receptors ?? [];
   const receptorCells = locateReceptors(baseSystem, receptors);

@@ -33,6 +33,7 @@ export {
 export {
   compareScenario,
   compareModels,
+  prepareComparison,
   resolveVariants,
   operatorDifference,
   drawdownField,
@@ -42,6 +43,8 @@ export {
   type CompareOptions,
   type ComparisonResult,
   type VariantComparison,
+  type PreparedComparison,
+  type PreparedVariant,
   type PointDrawdown,
   type WellboreDrawdown,
 } from './compare.js';

@@ -177,7 +177,7 @@ async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Prom
   const system = assembleSystem(model);
   locateObservations(system, model.observations);
   // Variants are resolved and checked as compare would, without solving.
-  const prepared = prepareComparison(model, await resolveVariants(model, raw));
+  const prepared = prepareComparison(model, await resolveVariants(model, raw), {}, system);
   const report = inspectReport(model, system, chooseAutoMethod(system.operator), prepared.variants);
   io.stdout(flags.json ? JSON.stringify(report, null, 2) + '\n' : formatInspect(report));
   return 0;
