@@ -1,7 +1,8 @@
 /**
  * `piezomap compare` as users run it (../shared/spec/interface.md): result folders, drawdown rasters, comparison.csv,
  * summary.json and the printed table agree with each other; exit codes; no misleading files for a failed variant.
- * Runs the built program (`npm test` builds first) in a child process.
+ * The main case runs the built program (`npm test` builds first) in a child process; the failure cases call the
+ * same CLI entry point in this process.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { spawnSync } from 'node:child_process';
@@ -13,14 +14,24 @@ import proj4 from 'proj4';
 import { encodeFloat32GeoTiff } from '../src/raster/write.js';
 import { CAUTION } from '../src/caution.js';
 import { testGrid } from './helpers/model.js';
+import { main } from '../src/cli/main.js';
 
 const BIN = resolve(__dirname, '../bin/piezomap.js');
 const NX = 30;
 const NY = 20;
 
+/** The built program in a child process, as users run it. */
 function run(args: string[]) {
   const r = spawnSync(process.execPath, [BIN, ...args], { encoding: 'utf8', env: { ...process.env, FORCE_COLOR: '0' } });
   return { code: r.status, stdout: r.stdout, stderr: r.stderr };
+}
+
+/** The same CLI in this process (no start-up cost), for the cases that need no second look at the binary. */
+async function runHere(args: string[]) {
+  let stdout = '';
+  let stderr = '';
+  const code = await main(args, { stdout: (t) => (stdout += t), stderr: (t) => (stderr += t) });
+  return { code, stdout, stderr };
 }
 
 let dir: string;
@@ -148,13 +159,13 @@ describe('piezomap compare', () => {
     expect(JSON.parse(json.stdout).variants.map((v: { name: string }) => v.name)).toEqual(['more', 'thin']);
   });
 
-  it('exits 3 when a variant does not converge and writes no drawdown or head.tif for it', () => {
+  it('exits 3 when a variant does not converge and writes no drawdown or head.tif for it', async () => {
     const scenario = writeScenario('slow.json', [
       { name: 'fine', wells: [{ id: 'PW-1', rate: -500 }] },
       { name: 'stuck', wells: [{ id: 'PW-1', rate: -500 }], solver: { method: 'jacobi', maxIterations: 3 } },
     ]);
     const out = join(dir, 'slow');
-    const r = run(['compare', scenario, '-o', out, '--no-maps']);
+    const r = await runHere(['compare', scenario, '-o', out, '--no-maps']);
     expect(r.code).toBe(3);
     expect(r.stderr).toMatch(/variant "stuck": solver jacobi did not reach the tolerance/);
     expect(existsSync(join(out, 'fine', 'drawdown.tif'))).toBe(true);
@@ -164,10 +175,10 @@ describe('piezomap compare', () => {
     expect(rows[1]).toMatchObject({ variant: 'stuck', status: 'not-converged', max_drawdown: '', 'drawdown_obs_OB-1': '' });
   });
 
-  it('exits 3 without solving the variants when the baseline does not converge', () => {
+  it('exits 3 without solving the variants when the baseline does not converge', async () => {
     const scenario = writeScenario('stuck-base.json', [{ name: 'v', wells: [{ id: 'PW-1', rate: -500 }] }], { solver: { method: 'jacobi', maxIterations: 3 } });
     const out = join(dir, 'stuck-base');
-    const r = run(['compare', scenario, '-o', out, '--no-maps']);
+    const r = await runHere(['compare', scenario, '-o', out, '--no-maps']);
     expect(r.code).toBe(3);
     expect(r.stderr).toMatch(/solver jacobi did not reach the tolerance/);
     expect(existsSync(join(out, 'baseline', 'head.tif'))).toBe(false);
@@ -175,22 +186,22 @@ describe('piezomap compare', () => {
     expect(readFileSync(join(out, 'comparison.csv'), 'utf8').trim().split('\n')).toHaveLength(1);
   });
 
-  it('inspect checks the variants as compare would, without solving', () => {
-    const ok = run(['inspect', writeScenario('inspect.json', [{ name: 'more', wells: [{ id: 'PW-1', rate: -600 }] }, { name: 'thin', aquifer: { conductivity: 'k.tif', thickness: 15 } }])]);
+  it('inspect checks the variants as compare would, without solving', async () => {
+    const ok = await runHere(['inspect', writeScenario('inspect.json', [{ name: 'more', wells: [{ id: 'PW-1', rate: -600 }] }, { name: 'thin', aquifer: { conductivity: 'k.tif', thickness: 15 } }])]);
     expect(ok.code).toBe(0);
     expect(ok.stdout).toMatch(/Receptors +2/);
     expect(ok.stdout).toMatch(/Variant +more: 1 well\(s\); same aquifer, fixed heads and solver/);
     expect(ok.stdout).toMatch(/Variant +thin: 1 well\(s\); solved afresh: aquifer\.thickness differs/);
-    const bad = run(['inspect', writeScenario('inspect-bad.json', [{ name: 'far', wells: [{ id: 'PW-9', x: 10, y: 10, rate: -5 }] }])]);
+    const bad = await runHere(['inspect', writeScenario('inspect-bad.json', [{ name: 'far', wells: [{ id: 'PW-9', x: 10, y: 10, rate: -5 }] }])]);
     expect(bad.code).toBe(2);
     expect(bad.stderr).toMatch(/well "PW-9" \(variants "far"\.wells\[0\]\) at x=10, y=10 lies outside the grid/);
   });
 
-  it('exits 2 for a scenario without variants and for a receptor outside the grid', () => {
-    const none = run(['compare', writeScenario('none.json', []), '-o', join(dir, 'none'), '--no-maps']);
+  it('exits 2 for a scenario without variants and for a receptor outside the grid', async () => {
+    const none = await runHere(['compare', writeScenario('none.json', []), '-o', join(dir, 'none'), '--no-maps']);
     expect(none.code).toBe(2);
     expect(none.stderr).toMatch(/no "variants"/);
-    const far = run(['compare', writeScenario('far.json', [{ name: 'v', recharge: 0.0003 }], { receptors: [{ id: 'spring-9', x: 10, y: 10 }] }), '-o', join(dir, 'far'), '--no-maps']);
+    const far = await runHere(['compare', writeScenario('far.json', [{ name: 'v', recharge: 0.0003 }], { receptors: [{ id: 'spring-9', x: 10, y: 10 }] }), '-o', join(dir, 'far'), '--no-maps']);
     expect(far.code).toBe(2);
     expect(far.stderr).toMatch(/receptor "spring-9" \(receptors\[0\]\).*outside the grid/);
     expect(far.stderr).not.toMatch(/\n\s+at /);
