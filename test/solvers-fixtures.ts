@@ -197,6 +197,32 @@ function smoothNoise(nx: number, ny: number, sigma: number, seed: number): Float
   return a;
 }
 
+/**
+ * Any shape, thin strips included: K = 10^u, u uniform in [-1, 1] per cell (contrast up to 1e2), no holes,
+ * fixed heads 100 and 90 m at the two ends of the longer side, one well in the middle.
+ */
+export function stripCase(nx: number, ny: number, seed: number): TestCase {
+  const rnd = random(seed);
+  const n = nx * ny;
+  const k = new Float64Array(n);
+  for (let p = 0; p < n; p++) k[p] = Math.pow(10, -1 + 2 * rnd());
+  const fixedHead = new Float64Array(n).fill(NaN);
+  const source = new Float64Array(n);
+  if (nx >= ny) {
+    for (let i = 0; i < ny; i++) {
+      fixedHead[i * nx] = 100;
+      fixedHead[i * nx + nx - 1] = 90;
+    }
+  } else {
+    for (let j = 0; j < nx; j++) {
+      fixedHead[j] = 100;
+      fixedHead[(ny - 1) * nx + j] = 90;
+    }
+  }
+  source[Math.floor(ny / 2) * nx + Math.floor(nx / 2)] = -5;
+  return { nx, ny, dx: 10, dy: 25, k, thickness: 20, anisotropy: 10, fixedHead, source };
+}
+
 /** Model Poisson problem: n x n unknowns with zero Dirichlet edges (a ring of fixed cells), unit conductances. */
 export function poissonCase(n: number): TestCase {
   const nx = n + 2;
