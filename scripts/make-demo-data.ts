@@ -16,6 +16,7 @@ import { CAUTION } from '../src/caution.js';
 import type { Grid } from '../src/grid.js';
 import { solveScenarioFile } from '../src/pipeline.js';
 import { encodeFloat32GeoTiff } from '../src/raster/write.js';
+import { makeTransform } from '../src/scenario/crs.js';
 
 const NX = 240;
 const NY = 180;
@@ -27,6 +28,7 @@ const SEED = 20240611;
 const RIVER_STAGE_UPSTREAM = 112.0; // m, where the river enters at the west edge
 const RIVER_STAGE_DOWNSTREAM = 100.4; // m, at its last cell before the east edge
 const EAST_EDGE_HEAD = 99.0; // m
+const PIT_LAKE_LEVEL = 103.2; // m, surveyed water level of the invented gravel pit
 const RECHARGE = 0.0004; // m/d
 
 const grid: Grid = {
@@ -247,6 +249,33 @@ async function main(): Promise<void> {
     { id: 'OB-3', ...at(ob3, 11, 6) },
   ];
 
+  // Receptors: a neighbour's farm well between the new well PW-3 and the river, and the edge of a wetland
+  // downstream; compare reports the drawdown there.
+  const farm = siteNear(d, pw3.row + 7, pw3.col + 9, 2);
+  const wetland = siteNear(d, Math.round(valleyAxis(215)) + 18, 215, 2);
+  const receptors = [
+    { id: 'farm-well', ...at(farm, 4, -6) },
+    { id: 'wetland-edge', ...at(wetland, -10, 12) },
+  ];
+
+  // A flooded gravel pit on the south side of the valley, drawn as a GeoJSON polygon (WGS 84, RFC 7946) and held
+  // at its surveyed water level: a fixed head from a shape.
+  const pit = siteNear(d, Math.round(valleyAxis(185)) + 30, 185, 6);
+  const centre = pointIn(pit, 0, 0);
+  const toLonLat = makeTransform(32633, 4326);
+  const ring: number[][] = [];
+  for (let k = 0; k <= 12; k++) {
+    const angle = (2 * Math.PI * (k % 12)) / 12;
+    const radius = k % 2 === 0 ? 190 : 150; // a lobed outline, as pits are dug
+    const v = toLonLat.forward(centre.x + radius * 1.4 * Math.cos(angle), centre.y + radius * Math.sin(angle), 'gravel pit');
+    ring.push([round(v.x, 7), round(v.y, 7)]);
+  }
+  const pitLake = {
+    type: 'FeatureCollection',
+    features: [{ type: 'Feature', id: 'pit-1', properties: { name: 'gravel pit lake', level: PIT_LAKE_LEVEL }, geometry: { type: 'Polygon', coordinates: [ring] } }],
+  };
+  writeFileSync(join(outDir, 'gravel_pit.geojson'), `${JSON.stringify(pitLake, null, 2)}\n`);
+
   const scenario = (observed: number[]) => ({
     title: 'Talvorin valley wellfield (invented demo), baseline',
     units: { length: 'm', time: 'd' },
@@ -254,10 +283,12 @@ async function main(): Promise<void> {
     fixedHeads: [
       { raster: 'river_stage.tif', name: 'river' },
       { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
+      { shape: 'gravel_pit.geojson', headProperty: 'level', name: 'gravel-pit' },
     ],
     recharge: RECHARGE,
     wells,
     observations: observationPoints.map((o, k) => ({ ...o, head: observed[k]! })),
+    receptors,
     solver: { method: 'auto', tolerance: 1e-10 },
     variants: [
       {
@@ -288,7 +319,7 @@ async function main(): Promise<void> {
   }
   writeFileSync(join(outDir, 'README.md'), readme(activeCells, riverCells, result.head));
   process.stdout.write(
-    `make-demo-data: wrote conductivity.tif, thickness.tif, river_stage.tif, valley.json, README.md to ${outDir}\n` +
+    `make-demo-data: wrote conductivity.tif, thickness.tif, river_stage.tif, gravel_pit.geojson, valley.json, README.md to ${outDir}\n` +
       `  ${activeCells} active cells, ${riverCells} river cells; baseline head ${range(result.head)} m; ` +
       `observed heads ${observed.join(', ')} m\n`,
   );
@@ -323,9 +354,11 @@ A confined sand-and-gravel aquifer fills a valley floor 12 km long, draining fro
 | \`thickness.tif\` | aquifer thickness, m: 15 m at the valley margins to 40 m along the axis |
 | \`river_stage.tif\` | the river as fixed heads: ${riverCells} cells meandering along the valley, stage falling from ${RIVER_STAGE_UPSTREAM.toFixed(1)} m where it enters at the west edge to ${RIVER_STAGE_DOWNSTREAM.toFixed(1)} m near the east edge; nodata elsewhere |
 | downstream edge | fixed head ${EAST_EDGE_HEAD.toFixed(1)} m on the active cells of the east edge |
+| \`gravel_pit.geojson\` | a flooded gravel pit on the south side of the valley (GeoJSON polygon in WGS 84), fixed at its water level ${PIT_LAKE_LEVEL.toFixed(1)} m (property \`level\`) |
 | recharge | ${RECHARGE} m/d over the whole valley floor |
 | supply wells | PW-1 (-1200 m3/d) and PW-2 (-800 m3/d) in the channel, at least 400 m from the river |
 | observation wells | OB-1 near PW-1, OB-2 near PW-2, OB-3 upstream, away from pumping |
+| receptors | \`farm-well\`, a neighbour's well between the planned PW-3 and the river, and \`wetland-edge\` downstream: \`compare\` reports the drawdown there |
 | variant \`expanded\` | PW-1 raised to -1600 m3/d and a new well PW-3 at -1500 m3/d |
 
 The observed heads in \`valley.json\` are invented as well: the baseline was solved with piezomap and each
