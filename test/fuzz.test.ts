@@ -190,6 +190,7 @@ function applyEdit(target: Record<string, unknown>, path: Array<string | number>
   }
   if (node === null || typeof node !== 'object') return;
   const last = path[path.length - 1]!;
+  if (Array.isArray(node) && typeof last !== 'number') return; // e.g. "length" of a list put where an object was
   if (value === undefined) delete (node as Record<string | number, unknown>)[last];
   else (node as Record<string | number, unknown>)[last] = value;
 }
