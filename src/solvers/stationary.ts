@@ -129,7 +129,7 @@ export class StationarySolver implements Solver {
           stop = 'too-slow';
           const count = Number.isFinite(predicted) ? `about ${Math.ceil(predicted)}` : 'unboundedly many';
           notes.push(
-            `spectral radius estimate ${rho.toFixed(6)}: reaching the tolerance needs ${count} iterations, ` +
+            `spectral radius estimate ${rho.toFixed(6)}: reaching the tolerance needs at least ${count} iterations (early estimates are optimistic), ` +
               `more than maxIterations = ${options.maxIterations}; stopped early after ${k}. ` +
               `Try solver method "pcg-multigrid" (or "auto")`,
           );
