@@ -297,6 +297,32 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   file('obs-comma-decimal.csv', `id,x,y,head\nA,${inside.x},${inside.y},"47,5"\n`);
   solveCase('csv-decimal-comma', 'a decimal comma in a quoted field', { observations: 'obs-comma-decimal.csv' }, 2, /head "47,5" is not a number/);
 
+  solveCase('receptor-outside', 'a receptor 10 km north of the grid', { receptors: [{ id: 'FARM-9', x: inside.x, y: Y0 + 10000 }] }, 2, /receptor "FARM-9".*outside the grid/);
+  solveCase('receptor-inactive', 'a receptor in the inactive block', { receptors: [{ id: 'SPRING-2', ...hole }] }, 2, /receptor "SPRING-2".*inactive/);
+
+  // --- GeoJSON shapes ----------------------------------------------------------------------------------------
+  // Coordinates in the raster CRS, declared by the older GeoJSON crs member (as GDAL writes it).
+  const crsMember = { type: 'name', properties: { name: 'urn:ogc:def:crs:EPSG::32633' } };
+  file('lake-broken.geojson', '{"type": "FeatureCollection", "features": [ {"type": "Feature", ');
+  solveCase('shape-json-syntax', 'a GeoJSON file cut short', { fixedHeads: [{ edge: 'west', head: 50 }, { shape: 'lake-broken.geojson', head: 46 }] }, 2, /lake-broken\.geojson.*(JSON|line)/);
+  file('lake-point.geojson', JSON.stringify({ type: 'FeatureCollection', crs: crsMember, features: [{ type: 'Feature', properties: {}, geometry: { type: 'Point', coordinates: [inside.x, inside.y] } }] }));
+  solveCase('shape-wrong-geometry', 'a Point where a lake polygon or river line is needed', { fixedHeads: [{ edge: 'west', head: 50 }, { shape: 'lake-point.geojson', head: 46 }] }, 2, /lake-point\.geojson.*Point/);
+  const ring = (x0: number, y0: number, size: number) => [[x0, y0], [x0 + size, y0], [x0 + size, y0 + size], [x0, y0 + size], [x0, y0]];
+  file('lake-nohead.geojson', JSON.stringify({ type: 'FeatureCollection', crs: crsMember, features: [{ type: 'Feature', properties: { level: 'high' }, geometry: { type: 'Polygon', coordinates: [ring(X0 + 300, Y0 - 500, 200)] } }] }));
+  solveCase('shape-bad-head-property', 'headProperty "level" holds text', { fixedHeads: [{ edge: 'west', head: 50 }, { shape: 'lake-nohead.geojson', headProperty: 'level' }] }, 2, /lake-nohead\.geojson.*level/);
+
+  // --- compare -----------------------------------------------------------------------------------------------
+  {
+    const path = file('compare-bad-variant.json', JSON.stringify({ ...baseScenario(), variants: [{ name: 'deeper', wells: [{ id: 'NEW-1', ...hole, rate: -50 }] }] }, null, 2));
+    const out = outFor('compare-bad-variant');
+    cases.push({ name: 'compare-bad-variant', what: 'compare: a variant adds a well in the inactive block', args: ['compare', path, '-o', out], out, code: 2, message: /deeper[^]*well "NEW-1".*inactive cell|well "NEW-1"[^]*deeper/, allowedFiles: [] });
+  }
+  {
+    const path = file('compare-variant-baseline.json', JSON.stringify({ ...baseScenario(), variants: [{ name: 'Baseline', recharge: 0 }] }, null, 2));
+    const out = outFor('compare-variant-baseline');
+    cases.push({ name: 'compare-variant-baseline', what: 'compare: a variant named "Baseline"', args: ['compare', path, '-o', out], out, code: 2, message: /variants\[0\]\.name.*reserved/, allowedFiles: [] });
+  }
+
   // --- scenario JSON -----------------------------------------------------------------------------------------
   const rawCase = (name: string, what: string, text: string, message: RegExp) => {
     const path = file(`${name}.json`, text);

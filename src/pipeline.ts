@@ -6,7 +6,7 @@ import { readFile } from 'node:fs/promises';
 import { join } from 'node:path';
 import { assembleSystem, headsFromSolution, type FlowSystem } from './discretisation/assemble.js';
 import { waterBudget, type WaterBudget } from './analysis/budget.js';
-import { observationResults, wellResults, locateObservations, type ObservationResult, type WellResult } from './analysis/points.js';
+import { observationResults, wellResults, locateObservations, locateReceptors, type ObservationResult, type WellResult } from './analysis/points.js';
 import { wellboreHeads, wellboreWarnings, type WellboreResult } from './analysis/wellbore.js';
 import { sanityWarnings } from './analysis/sanity.js';
 import { calibrationStatistics, type CalibrationStatistics } from './analysis/calibration.js';
@@ -94,6 +94,7 @@ export function assembleModel(model: ModelInput, options: RunOptions = {}, timin
   const system = assembleSystem(model);
   // Points are checked before the long solve so bad input fails fast.
   locateObservations(system, model.observations);
+  locateReceptors(system, model.receptors ?? []);
   timings.assemble = now() - t;
   return system;
 }

@@ -1,7 +1,7 @@
 import { cellAt, type Grid } from '../grid.js';
 import { inputError } from '../errors.js';
 import type { FlowSystem } from '../discretisation/assemble.js';
-import type { ObservationInput, WellInput } from '../scenario/types.js';
+import type { ObservationInput, ReceptorInput, WellInput } from '../scenario/types.js';
 
 export interface WellResult {
   id: string;
@@ -54,6 +54,26 @@ export function locateObservations(system: FlowSystem, observations: Observation
         cell,
       });
     }
+    cells[k] = p;
+  });
+  return cells;
+}
+
+/**
+ * Locate every receptor (outside the grid or in an inactive cell is an input error). `solve` makes no use of
+ * receptors, but checks them as `compare` and `inspect` do, so that a scenario is refused or accepted the same way
+ * by every command.
+ */
+export function locateReceptors(system: FlowSystem, receptors: ReceptorInput[]): Int32Array {
+  const { grid, active } = system;
+  const cells = new Int32Array(receptors.length);
+  receptors.forEach((r, k) => {
+    const cell = cellAt(grid, r.x, r.y);
+    if (!cell) {
+      throw inputError(`receptor "${r.id}" (${r.source}) at x=${r.x}, y=${r.y} lies outside the grid`, { key: r.source, hint: "check the coordinates, pointCrs and the receptor's crs" });
+    }
+    const p = cell.row * grid.nx + cell.col;
+    if (!active[p]) throw inputError(`receptor "${r.id}" (${r.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, { key: r.source, cell });
     cells[k] = p;
   });
   return cells;
