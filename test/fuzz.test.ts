@@ -153,7 +153,7 @@ describe('fuzzing the GeoTIFF reader', () => {
             }
           });
         }),
-        { seed: 20240601 + s + SEED_OFFSET, numRuns: Math.round(120 * RUN_SCALE) },
+        { seed: 20240601 + s + SEED_OFFSET, numRuns: Math.round(80 * RUN_SCALE) },
       );
     }, 120_000);
   });
@@ -229,7 +229,7 @@ describe('fuzzing the scenario loader', () => {
           }
         });
       }),
-      { seed: 7351 + SEED_OFFSET, numRuns: Math.round(500 * RUN_SCALE) },
+      { seed: 7351 + SEED_OFFSET, numRuns: Math.round(300 * RUN_SCALE) },
     );
     expect(loaded).toBeGreaterThan(0);
     expect(refused).toBeGreaterThan(0);
@@ -254,7 +254,7 @@ describe('fuzzing the scenario loader', () => {
           }
         });
       }),
-      { seed: 9127 + SEED_OFFSET, numRuns: Math.round(400 * RUN_SCALE) },
+      { seed: 9127 + SEED_OFFSET, numRuns: Math.round(250 * RUN_SCALE) },
     );
   }, 120_000);
 });
@@ -264,8 +264,8 @@ describe('fuzzing the scenario loader', () => {
 describe('fuzzed inputs through the command line', () => {
   it('a sample of mutated rasters and scenarios exits 0 or 2, with no stack trace', () => {
     writeFileSync(join(dir, 'k.tif'), encodeFloat32GeoTiff(baseGrid, k));
-    const rasters = fc.sample(fc.array(mutation, { minLength: 1, maxLength: 6 }), { seed: 4242, numRuns: 4 });
-    const edits = fc.sample(fc.array(edit, { minLength: 1, maxLength: 3 }), { seed: 4343, numRuns: 4 });
+    const rasters = fc.sample(fc.array(mutation, { minLength: 1, maxLength: 6 }), { seed: 4242, numRuns: 3 });
+    const edits = fc.sample(fc.array(edit, { minLength: 1, maxLength: 3 }), { seed: 4343, numRuns: 3 });
     const scenarios: string[] = [];
     rasters.forEach((mutations, i) => {
       writeFileSync(join(dir, `cli-${i}.tif`), mutate(seeds[i % 2]!.bytes, mutations));
