@@ -396,6 +396,14 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   const bigGrid: Grid = { ...baseGrid, nx: 200, ny: 200 };
   file('k-200.tif', encodeFloat32GeoTiff(bigGrid, new Float64Array(200 * 200).fill(5)));
   solveCase('memory-limit', 'a memory limit of 100 MiB for a 200 x 200 run (the raster alone reads within it)', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /run needs about .* memory limit is 100\.0 MiB[^]*coarsen the rasters about 2\.\dx per side/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '100' } });
+  {
+    const path = file('inspect-memory-limit.json', JSON.stringify({ ...baseScenario('k-200.tif'), wells: [], observations: [] }, null, 2));
+    const out = outFor('inspect-memory-limit');
+    cases.push({
+      name: 'inspect-memory-limit', what: 'inspect refuses, as solve would, a run that does not fit the memory limit', args: ['inspect', path], out, code: 2,
+      message: /run needs about .* memory limit is 100\.0 MiB/, allowedFiles: [], env: { PIEZOMAP_MEMORY_LIMIT_MB: '100' },
+    });
+  }
   solveCase('memory-limit-tiny', 'a memory limit of 4 MiB, below what the program itself takes', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /memory limit is 4\.0 MiB[^]*raise it/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '4' } });
   solveCase('memory-limit-raster', 'a memory limit of 1 MiB: the 200 x 200 raster is refused as it is read', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /k-200\.tif.*more than half of the memory/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '1' } });
   solveCase('memory-limit-unusable', 'PIEZOMAP_MEMORY_LIMIT_MB=lots', {}, 2, /PIEZOMAP_MEMORY_LIMIT_MB="lots"/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: 'lots' } });

@@ -10,10 +10,8 @@ import { PiezomapError, describeThrown, exitCodeFor } from '../errors.js';
 import { VERSION } from '../version.js';
 import { CAUTION } from '../caution.js';
 import { loadScenario } from '../scenario/load.js';
-import { assembleSystem } from '../discretisation/assemble.js';
-import { locateObservations } from '../analysis/points.js';
 import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
-import { solveModel, writeSolveResults, prepareResultFolder, resultProblem, type RunOptions } from '../pipeline.js';
+import { assembleModel, solveModel, writeSolveResults, prepareResultFolder, resultProblem, type RunOptions } from '../pipeline.js';
 import { formatSummary } from '../output/summary.js';
 import { solveModelInWorker, workerAvailable } from '../robustness/solveInWorker.js';
 import type { ProductOptions } from '../output/products.js';
@@ -174,8 +172,8 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
 
 async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Promise<number> {
   const { model, raw } = await loadScenario(scenario);
-  const system = assembleSystem(model);
-  locateObservations(system, model.observations);
+  // As a solve would: the memory budget, the assembly, and every point located.
+  const system = assembleModel(model);
   // Variants are resolved and checked as compare would, without solving.
   const prepared = prepareComparison(model, await resolveVariants(model, raw), {}, system);
   const report = inspectReport(model, system, chooseAutoMethod(system.operator), prepared.variants);
