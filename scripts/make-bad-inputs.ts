@@ -338,7 +338,7 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   solveCase('json-type-error', 'thickness as true', aquifer('k.tif', { thickness: true }), 2, /aquifer\.thickness/);
   solveCase('json-negative-thickness', 'a negative thickness', aquifer('k.tif', { thickness: -5 }), 2, /aquifer\.thickness/);
   solveCase('json-unknown-key', 'a misspelt key', { recharj: 0.1 }, 2, /recharj.*did you mean "recharge"/);
-  solveCase('json-huge-number', 'a head of 1e999 (Infinity after parsing)', { fixedHeads: [{ edge: 'west', head: 1e400 }, { edge: 'east', head: 45 }] }, 2, /fixedHeads\[0\]\.head/);
+  solveCase('json-null-number', 'a head that a script computed as Infinity (JSON.stringify writes null)', { fixedHeads: [{ edge: 'west', head: 1e400 }, { edge: 'east', head: 45 }] }, 2, /fixedHeads\[0\]\.head/);
   rawCase('json-huge-number-text', 'a head written as 1e999', valid.replace('"head": 50', '"head": 1e999'), /fixedHeads\[0\]\.head/);
   solveCase('json-bad-tolerance', 'a tolerance of 5', { solver: { tolerance: 5 } }, 2, /solver\.tolerance/);
   solveCase('json-unknown-method', 'an unknown solver method', { solver: { method: 'magic' } }, 2, /unknown solver method "magic"/);
