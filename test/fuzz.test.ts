@@ -259,6 +259,42 @@ describe('fuzzing the scenario loader', () => {
   }, 120_000);
 });
 
+describe('fuzzing GeoJSON shapes', () => {
+  it('a lake polygon file with characters damaged or values replaced loads or fails cleanly', async () => {
+    writeFileSync(join(dir, 'k.tif'), encodeFloat32GeoTiff(baseGrid, k));
+    // A lake in the raster CRS (the older crs member, as GDAL writes it), heads from a property.
+    const x0 = 500300;
+    const y0 = 4099500;
+    const lake = {
+      type: 'FeatureCollection',
+      crs: { type: 'name', properties: { name: 'urn:ogc:def:crs:EPSG::32633' } },
+      features: [{ type: 'Feature', properties: { level: 46.5 }, geometry: { type: 'Polygon', coordinates: [[[x0, y0], [x0 + 250, y0], [x0 + 250, y0 + 250], [x0, y0 + 250], [x0, y0]]] } }],
+    };
+    const text = JSON.stringify(lake);
+    const scenario = join(dir, 'lake-scenario.json');
+    writeFileSync(scenario, JSON.stringify({ ...baseScenario(), fixedHeads: [{ edge: 'west', head: 50 }, { shape: 'lake.geojson', headProperty: 'level' }] }));
+    await fc.assert(
+      fc.asyncProperty(fc.array(textEdit, { minLength: 1, maxLength: 3 }), fc.option(oddValue, { nil: undefined }), async (edits, value) => {
+        let damaged = text;
+        if (value !== undefined) damaged = damaged.replace('46.5', JSON.stringify(value) ?? 'null');
+        for (const e of edits) {
+          const at = e.at % (damaged.length + 1);
+          damaged = damaged.slice(0, at) + e.insert + damaged.slice(at + e.remove);
+        }
+        writeFileSync(join(dir, 'lake.geojson'), damaged);
+        await timed(async () => {
+          try {
+            await loadAndAssemble(scenario);
+          } catch (thrown) {
+            expectCleanInputError(thrown);
+          }
+        });
+      }),
+      { seed: 5501 + SEED_OFFSET, numRuns: Math.round(200 * RUN_SCALE) },
+    );
+  }, 120_000);
+});
+
 // --- a sample through the command line -------------------------------------------------------------------------
 
 describe('fuzzed inputs through the command line', () => {

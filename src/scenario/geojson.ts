@@ -288,6 +288,7 @@ function isObject(value: unknown): value is Record<string, unknown> {
 }
 
 function kindOf(value: unknown): string {
+  if (value === undefined) return 'no value: the member is missing';
   if (value === null) return 'null';
   if (Array.isArray(value)) return 'a list';
   return typeof value === 'object' ? 'an object' : `${typeof value} ${JSON.stringify(value)}`;
