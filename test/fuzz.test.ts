@@ -290,7 +290,34 @@ describe('fuzzing GeoJSON shapes', () => {
           }
         });
       }),
-      { seed: 5501 + SEED_OFFSET, numRuns: Math.round(200 * RUN_SCALE) },
+      { seed: 5501 + SEED_OFFSET, numRuns: Math.round(120 * RUN_SCALE) },
+    );
+  }, 120_000);
+});
+
+describe('fuzzing CSV point lists', () => {
+  it('a wells CSV with characters damaged loads or fails cleanly', async () => {
+    writeFileSync(join(dir, 'k.tif'), encodeFloat32GeoTiff(baseGrid, k));
+    const text = 'id,x,y,rate,radius\nW1,500350,4099750,-200,0.15\n"W 2",500850,4099350,-50,\n';
+    const scenario = join(dir, 'csv-scenario.json');
+    writeFileSync(scenario, JSON.stringify({ ...baseScenario(), wells: 'wells.csv' }));
+    await fc.assert(
+      fc.asyncProperty(fc.array(textEdit, { minLength: 1, maxLength: 3 }), async (edits) => {
+        let damaged = text;
+        for (const e of edits) {
+          const at = e.at % (damaged.length + 1);
+          damaged = damaged.slice(0, at) + e.insert + damaged.slice(at + e.remove);
+        }
+        writeFileSync(join(dir, 'wells.csv'), damaged);
+        await timed(async () => {
+          try {
+            await loadAndAssemble(scenario);
+          } catch (thrown) {
+            expectCleanInputError(thrown);
+          }
+        });
+      }),
+      { seed: 6601 + SEED_OFFSET, numRuns: Math.round(120 * RUN_SCALE) },
     );
   }, 120_000);
 });
