@@ -8,6 +8,7 @@
 import type { Grid } from '../src/grid.js';
 import { geoKeysForEpsg } from '../src/raster/geokeys.js';
 import type { FixedHeadInput, ModelInput, WellInput } from '../src/scenario/types.js';
+import { seededUniform } from '../src/random.js';
 
 export const CELL_SIZE = 10;
 export const THICKNESS = 20;
@@ -17,17 +18,7 @@ const ORIGIN_Y = 5200000;
 /** WGS 84 / UTM zone 33N: an open-standard projected CRS in metres for the written GeoTIFF. */
 const EPSG = 32633;
 
-/** Deterministic uniform numbers in [0, 1) (mulberry32). */
-function uniform(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+const uniform = seededUniform;
 
 /** Gaussian white noise (Box–Muller), filtered separably with a Gaussian of `sigma` cells, normalised to mean 0, variance 1. */
 export function correlatedField(nx: number, ny: number, sigma: number, seed: number): Float64Array {

@@ -17,6 +17,7 @@ import type { Grid } from '../src/grid.js';
 import { solveScenarioFile } from '../src/pipeline.js';
 import { encodeFloat32GeoTiff } from '../src/raster/write.js';
 import { makeTransform } from '../src/scenario/crs.js';
+import { seededUniform } from '../src/random.js';
 
 const NX = 240;
 const NY = 180;
@@ -38,17 +39,7 @@ const grid: Grid = {
   crs: { epsg: 32633, geographic: false, geoKeys: {} },
 };
 
-/** mulberry32, a small public-domain seeded generator (attributed to Tommy Ettinger, from memory), uniform in [0, 1). */
-function seeded(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+const seeded = seededUniform;
 
 /** Standard normal deviates by Box–Muller. */
 function normal(random: () => number): () => number {

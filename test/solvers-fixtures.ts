@@ -5,6 +5,7 @@
  */
 import { Matrix, solve } from 'ml-matrix';
 import { GridOperator } from '../src/discretisation/operator.js';
+import { seededUniform } from '../src/random.js';
 
 export interface TestCase {
   nx: number;
@@ -27,17 +28,8 @@ export interface TestSystem {
   b: Float64Array;
 }
 
-/** Deterministic uniform numbers in [0, 1) (mulberry32). */
-export function random(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** Deterministic uniform numbers in [0, 1). */
+export const random = seededUniform;
 
 export function buildSystem(c: TestCase): TestSystem {
   const { nx, ny, dx, dy } = c;

@@ -1,5 +1,6 @@
 import type { Grid } from '../../src/grid.js';
 import type { FixedHeadInput, ModelInput, WellInput } from '../../src/scenario/types.js';
+import { seededUniform } from '../../src/random.js';
 
 /** A north-up test grid in an invented projected CRS frame (EPSG:32633 label only). */
 export function testGrid(nx: number, ny: number, dx: number, dy = dx, x0 = 500000, y0 = 4100000): Grid {
@@ -50,14 +51,5 @@ export function makeModel(grid: Grid, parts: Partial<ModelInput> & { conductivit
   };
 }
 
-/** Deterministic pseudo-random numbers (mulberry32), so test fields are the same on every run. */
-export function seededRandom(seed: number): () => number {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+/** Deterministic pseudo-random numbers, so test fields are the same on every run. */
+export const seededRandom = seededUniform;
