@@ -125,7 +125,23 @@ export function solveSystem(
   });
   stats.setupSeconds = setupSeconds;
   timings.solve = now() - t + setupSeconds;
-  return analyseSolution(model, system, x, stats, timings);
+  return analyseSolution(withSolverOverrides(model, options), system, x, stats, timings);
+}
+
+/**
+ * The model with the solver settings a run actually used (RunOptions override the scenario's), so that the
+ * summary reports the tolerance, cap and method that applied. Shares every array with `model`.
+ */
+export function withSolverOverrides(model: ModelInput, options: RunOptions): ModelInput {
+  if (options.method === undefined && options.tolerance === undefined && options.maxIterations === undefined && options.relaxation === undefined) {
+    return model;
+  }
+  const solver = { ...model.solver };
+  if (options.method !== undefined) solver.method = options.method;
+  if (options.tolerance !== undefined) solver.tolerance = options.tolerance;
+  if (options.maxIterations !== undefined) solver.maxIterations = options.maxIterations;
+  if (options.relaxation !== undefined) solver.relaxation = options.relaxation;
+  return { ...model, solver };
 }
 
 /**

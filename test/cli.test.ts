@@ -116,9 +116,11 @@ describe('piezomap CLI', () => {
   });
 
   it('--json prints the summary as JSON on stdout', () => {
-    const r = run(['solve', writeScenario('json.json'), '-o', join(dir, 'result-json'), '--json']);
+    const r = run(['solve', writeScenario('json.json'), '-o', join(dir, 'result-json'), '--json', '--tolerance', '1e-9', '--max-iterations', '4321']);
     expect(r.code).toBe(0);
     const summary = JSON.parse(r.stdout);
+    // The summary reports the settings that applied: command-line overrides win over the scenario's.
+    expect(summary.solver).toMatchObject({ tolerance: 1e-9, maxIterations: 4321 });
     expect(summary.caution).toBe(CAUTION);
     expect(summary.solver.converged).toBe(true);
   });

@@ -8,7 +8,7 @@ import { Worker } from 'node:worker_threads';
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { PiezomapError, type ErrorCode, type ErrorDetail } from '../errors.js';
-import { analyseSolution, assembleModel, type RunOptions, type SolveResult } from '../pipeline.js';
+import { analyseSolution, assembleModel, withSolverOverrides, type RunOptions, type SolveResult } from '../pipeline.js';
 import type { ModelInput } from '../scenario/types.js';
 import type { SolveStats } from '../solvers/types.js';
 
@@ -64,7 +64,7 @@ export async function solveModelInWorker(model: ModelInput, options: RunOptions 
   );
   stats.setupSeconds = setupSeconds;
   timings.solve = (performance.now() - t) / 1000;
-  return analyseSolution(model, system, x, stats, timings);
+  return analyseSolution(withSolverOverrides(model, options), system, x, stats, timings);
 }
 
 function runWorker(
