@@ -439,17 +439,23 @@ class Loader {
     for (let p = 0; p < mask.length; p++) if (mask[p]) conductivity[p] = NaN;
   }
 
-  /** Read a GeoJSON file a key names, check it and reproject it into the raster CRS. */
-  private async shapes(key: string, given: string, grid: Grid): Promise<{ collection: ShapeCollection; where: string; file: string }> {
+  /** The text of a file a key names (GeoJSON or CSV), recorded as an input; missing or unreadable files are named. */
+  private async readText(key: string, given: string, kind: 'GeoJSON' | 'CSV'): Promise<{ absolute: string; text: string }> {
     const absolute = this.path(given);
-    await this.requireFile(key, given, absolute, 'GeoJSON');
+    await this.requireFile(key, given, absolute, kind);
     let text: string;
     try {
       text = await readFile(absolute, 'utf8');
     } catch (thrown) {
-      throw fileProblem(thrown, given, absolute, 'GeoJSON file', key);
+      throw fileProblem(thrown, given, absolute, `${kind} file`, key);
     }
     this.inputFiles.add(absolute);
+    return { absolute, text };
+  }
+
+  /** Read a GeoJSON file a key names, check it and reproject it into the raster CRS. */
+  private async shapes(key: string, given: string, grid: Grid): Promise<{ collection: ShapeCollection; where: string; file: string }> {
+    const { absolute, text } = await this.readText(key, given, 'GeoJSON');
     const where = `${this.label}: ${key} "${given}"`;
     try {
       const collection = readShapes(parseJsonText(text, where, absolute), where);
@@ -609,15 +615,7 @@ class Loader {
 
   /** Point features of a GeoJSON file, reprojected from WGS 84 (or its legacy `crs`) into the raster CRS. */
   async pointGeoJson(key: string, given: string, what: string): Promise<Array<{ feature: PointFeature; source: string; x: number; y: number }>> {
-    const absolute = this.path(given);
-    await this.requireFile(key, given, absolute, 'GeoJSON');
-    let text: string;
-    try {
-      text = await readFile(absolute, 'utf8');
-    } catch (thrown) {
-      throw fileProblem(thrown, given, absolute, 'GeoJSON file', key);
-    }
-    this.inputFiles.add(absolute);
+    const { absolute, text } = await this.readText(key, given, 'GeoJSON');
     const json = parseJsonText(text, given, absolute);
     let collection;
     try {
@@ -651,15 +649,7 @@ class Loader {
    * duplicate id is an error naming the file and line.
    */
   async pointCsv(key: string, given: string, required: string[], optional: string[]): Promise<PointRecord[]> {
-    const absolute = this.path(given);
-    await this.requireFile(key, given, absolute, 'CSV');
-    let text: string;
-    try {
-      text = await readFile(absolute, 'utf8');
-    } catch (thrown) {
-      throw fileProblem(thrown, given, absolute, 'CSV file', key);
-    }
-    this.inputFiles.add(absolute);
+    const { absolute, text } = await this.readText(key, given, 'CSV');
     const name = given;
     let records;
     try {
