@@ -10,7 +10,7 @@
  */
 import { dirname } from 'node:path';
 import { assembleSystem, withSources, type FlowSystem } from './discretisation/assemble.js';
-import { headAtPoint, locateObservations } from './analysis/points.js';
+import { headAtPoint, locateObservations, locateReceptors } from './analysis/points.js';
 import { sourcesOfWater, type SourcesOfWater } from './analysis/sources.js';
 import { cellAt, crsLabel, gridDifference } from './grid.js';
 import { inputError, PiezomapError } from './errors.js';
@@ -246,22 +246,6 @@ function sameField(a: ArrayLike<number> | number, b: ArrayLike<number> | number)
     if (x !== y && !(x !== x && y !== y)) return false;
   }
   return true;
-}
-
-/** Receptors must lie on an active cell of the baseline (like observations); an input error names the one that does not. */
-function locateReceptors(system: FlowSystem, receptors: ReceptorInput[]): Int32Array {
-  const { grid, active } = system;
-  const cells = new Int32Array(receptors.length);
-  receptors.forEach((r, k) => {
-    const cell = cellAt(grid, r.x, r.y);
-    if (!cell) {
-      throw inputError(`receptor "${r.id}" (${r.source}) at x=${r.x}, y=${r.y} lies outside the grid`, { key: r.source, hint: 'check the coordinates, pointCrs and the receptor\'s crs' });
-    }
-    const p = cell.row * grid.nx + cell.col;
-    if (!active[p]) throw inputError(`receptor "${r.id}" (${r.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, { key: r.source, cell });
-    cells[k] = p;
-  });
-  return cells;
 }
 
 /** baseline - variant head, NaN where either is inactive. */

@@ -37,26 +37,7 @@ export function wellResults(system: FlowSystem, wells: WellInput[], head: Float6
 
 /** Locate every observation point up front (outside the grid or in an inactive cell is an input error). */
 export function locateObservations(system: FlowSystem, observations: ObservationInput[]): Int32Array {
-  const { grid, active } = system;
-  const cells = new Int32Array(observations.length);
-  observations.forEach((o, k) => {
-    const cell = cellAt(grid, o.x, o.y);
-    if (!cell) {
-      throw inputError(`observation "${o.id}" (${o.source}) at x=${o.x}, y=${o.y} lies outside the grid`, {
-        key: o.source,
-        hint: 'check the coordinates and pointCrs',
-      });
-    }
-    const p = cell.row * grid.nx + cell.col;
-    if (!active[p]) {
-      throw inputError(`observation "${o.id}" (${o.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, {
-        key: o.source,
-        cell,
-      });
-    }
-    cells[k] = p;
-  });
-  return cells;
+  return locatePoints(system, observations, 'observation', 'check the coordinates and pointCrs');
 }
 
 /**
@@ -65,15 +46,27 @@ export function locateObservations(system: FlowSystem, observations: Observation
  * by every command.
  */
 export function locateReceptors(system: FlowSystem, receptors: ReceptorInput[]): Int32Array {
+  return locatePoints(system, receptors, 'receptor', "check the coordinates, pointCrs and the receptor's crs");
+}
+
+/** The cell of each point; a point outside the grid or on an inactive cell is an input error naming it. */
+function locatePoints(
+  system: FlowSystem,
+  points: ReadonlyArray<{ id: string; x: number; y: number; source: string }>,
+  kind: string,
+  hint: string,
+): Int32Array {
   const { grid, active } = system;
-  const cells = new Int32Array(receptors.length);
-  receptors.forEach((r, k) => {
-    const cell = cellAt(grid, r.x, r.y);
+  const cells = new Int32Array(points.length);
+  points.forEach((point, k) => {
+    const cell = cellAt(grid, point.x, point.y);
     if (!cell) {
-      throw inputError(`receptor "${r.id}" (${r.source}) at x=${r.x}, y=${r.y} lies outside the grid`, { key: r.source, hint: "check the coordinates, pointCrs and the receptor's crs" });
+      throw inputError(`${kind} "${point.id}" (${point.source}) at x=${point.x}, y=${point.y} lies outside the grid`, { key: point.source, hint });
     }
     const p = cell.row * grid.nx + cell.col;
-    if (!active[p]) throw inputError(`receptor "${r.id}" (${r.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, { key: r.source, cell });
+    if (!active[p]) {
+      throw inputError(`${kind} "${point.id}" (${point.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, { key: point.source, cell });
+    }
     cells[k] = p;
   });
   return cells;
