@@ -13,6 +13,7 @@ import { renderMapPng, type MapInput } from '../report/index.js';
 import type { ReportRun, ReportMap } from '../report/index.js';
 import type { SolveResult } from '../pipeline.js';
 import type { OutputFile } from './resultFolder.js';
+import { headRange } from './summary.js';
 
 export interface ProductOptions {
   /** Write contours, flux rasters, the quick-look map and the report (default true). */
@@ -130,12 +131,7 @@ export function solveProducts(result: SolveResult, options: ProductOptions = {},
 /** The report's view of one run. */
 export function reportRun(name: string, result: SolveResult, maps: RenderedMap[], extra: Partial<ReportRun> = {}): ReportRun {
   const { stats, model } = result;
-  let min = Infinity;
-  let max = -Infinity;
-  for (const h of result.head) {
-    if (h < min) min = h;
-    if (h > max) max = h;
-  }
+  const { min, max } = headRange(result.head);
   return {
     name,
     solver: {
