@@ -1,6 +1,6 @@
 /**
  * Library example: try several rates for a planned well without writing a variant per rate into the scenario
- * file. test/library-example.test.ts runs it on the demo scenario; in your own scripts import from 'piezomap'
+ * file. test/e2e/library-example.test.ts runs it on the demo scenario; in your own scripts import from 'piezomap'
  * instead of '../src/index.js'.
  */
 import { compareScenario, loadScenario, writeComparisonResults, type VariantJson } from '../src/index.js';

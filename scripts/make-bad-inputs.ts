@@ -1,7 +1,7 @@
 /**
  * A corpus of malformed inputs for the command line: each case is a set of files (scenario JSON, rasters, CSVs)
  * plus the command to run, the exit code it must give and a fragment its message must contain.
- * Deterministic: the same bytes on every run. `npm test` (test/bad-inputs.test.ts) writes the corpus into a temporary
+ * Deterministic: the same bytes on every run. `npm test` (test/e2e/bad-inputs.test.ts) writes the corpus into a temporary
  * folder and runs every case through `node bin/piezomap.js`; to look at the files, run
  * `node dist/scripts/make-bad-inputs.js OUTDIR` (prints the list of cases).
  *

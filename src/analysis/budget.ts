@@ -41,8 +41,8 @@ export function waterBudget(system: FlowSystem, head: Float64Array): WaterBudget
       if (row < ny - 1 && !fixed[p + nx] && cs[p]! > 0) f += cs[p]! * (h - head[p + nx]!);
       if (row > 0 && !fixed[p - nx] && cs[p - nx]! > 0) f += cs[p - nx]! * (h - head[p - nx]!);
       const g = fixedGroup[p]!;
-      if (f > 0) groupIn[g] += f;
-      else groupOut[g] -= f;
+      if (f > 0) groupIn[g]! += f;
+      else groupOut[g]! -= f;
     } else {
       const w = wellRate[p]!;
       if (w > 0) wellIn += w;

@@ -12,7 +12,7 @@
  * which is the cell-centre value of the velocity field that varies linearly between opposite faces, as in
  * Pollock's semi-analytical particle tracking (Pollock 1988, Ground Water 26(6); citation from memory). A no-flow face counts as
  * zero flow, so a cell against a closed face shows half the flow through its open face. For uniform K and a
- * uniform gradient it equals Darcy's law q = -K dh/dx exactly (Darcy 1856); see test/flux.test.ts.
+ * uniform gradient it equals Darcy's law q = -K dh/dx exactly (Darcy 1856); see test/analysis/flux.test.ts.
  * Map directions: qx is east-positive, qy north-positive; the signs of the geotransform's pixel width and
  * height say which way columns and rows run.
  *

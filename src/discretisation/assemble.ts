@@ -255,7 +255,7 @@ export function placeSources(
         { key: well.source, cell, hint: 'move the well off the fixed-head cells' },
       );
     }
-    wellRate[p] += well.rate;
+    wellRate[p]! += well.rate;
     wellCells[w] = p;
   });
   const rechargeRate = new Float64Array(n);

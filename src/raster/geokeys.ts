@@ -2,7 +2,7 @@
  * GeoTIFF GeoKeys: the key table, reading the GeoKeyDirectory into a name -> value record, writing one back, and
  * the CRS they describe. Key ids, names and value types from the OGC GeoTIFF standard (OGC 19-008r4, section 7 and
  * annex B; the names are those of GeoTIFF 1.0). Ids and names agree with geotiff.js's table; the SHORT/DOUBLE split is
- * from memory of the standard and is checked by a GDAL round trip of a user-defined CRS (test/raster-write.test.ts).
+ * from memory of the standard and is checked by a GDAL round trip of a user-defined CRS (test/raster/raster-write.test.ts).
  */
 import type { Crs } from '../grid.js';
 

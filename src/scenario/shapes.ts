@@ -295,8 +295,8 @@ export function shapeFixedHeads(grid: Grid, collection: ShapeCollection, spec: H
         for (let k = 0; k < pieces.cells.length; k++) {
           const length = pieces.to[k]! - pieces.from[k]!;
           const middle = 0.5 * (pieces.from[k]! + pieces.to[k]!);
-          sum![pieces.cells[k]!] += length * interpolateAlong(pieces.vertexDistance, vertexHeads, middle);
-          weight![pieces.cells[k]!] += length;
+          sum![pieces.cells[k]!]! += length * interpolateAlong(pieces.vertexDistance, vertexHeads, middle);
+          weight![pieces.cells[k]!]! += length;
         }
         return pieces.cells;
       });

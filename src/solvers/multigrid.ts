@@ -68,11 +68,11 @@ function coarsen(
       const p = i * nx + j;
       const c = crow + (j >> 1);
       if (unknown[p]) {
-        cExcess[c] += excess[p]!;
+        cExcess[c]! += excess[p]!;
         cu[c] = 1;
       }
-      if (j & 1) ce[c] += east[p]!; // crosses into the next aggregate (zero on the last column)
-      if (i & 1) cs[c] += south[p]!;
+      if (j & 1) ce[c]! += east[p]!; // crosses into the next aggregate (zero on the last column)
+      if (i & 1) cs[c]! += south[p]!;
     }
   }
   return { level: coarseLevel(cx, cy, ce, cs, cExcess, cu), unknown: cu, excess: cExcess };
@@ -132,11 +132,11 @@ function finestLevels(op: StencilOperator): { fine: Level; coarse: { level: Leve
         let coupled = e + s;
         if (j > 0) coupled += east[p - 1]!;
         if (i > 0) coupled += south[p - nx]!;
-        cExcess[c] += Math.max(0, d - coupled);
+        cExcess[c]! += Math.max(0, d - coupled);
         cu[c] = 1;
       }
-      if (j & 1) ce[c] += e;
-      if (i & 1) cs[c] += s;
+      if (j & 1) ce[c]! += e;
+      if (i & 1) cs[c]! += s;
     }
   }
   const empty = new Float64Array(0);
@@ -270,7 +270,7 @@ function smoothAndRestrict(a: Level, b: Float64Array, x: Float64Array, coarseRhs
     const crow = ((i - 1) >> 1) * cx;
     for (let j = 0; j < nx; j++) {
       const p = prev + j;
-      coarseRhs[crow + (j >> 1)] += east[p]! * x[p + 1]! + south[p]! * x[p + nx]!;
+      coarseRhs[crow + (j >> 1)]! += east[p]! * x[p + 1]! + south[p]! * x[p + nx]!;
     }
   }
   // last row: only east neighbours
@@ -278,7 +278,7 @@ function smoothAndRestrict(a: Level, b: Float64Array, x: Float64Array, coarseRhs
   const crow = ((ny - 1) >> 1) * cx;
   for (let j = 0; j < nx - 1; j++) {
     const p = last + j;
-    coarseRhs[crow + (j >> 1)] += east[p]! * x[p + 1]!;
+    coarseRhs[crow + (j >> 1)]! += east[p]! * x[p + 1]!;
   }
 }
 
@@ -317,7 +317,7 @@ function prolongAndSmooth(a: Level, e: Float64Array, b: Float64Array, x: Float64
 function prolongRow(nx: number, cx: number, i: number, e: Float64Array, x: Float64Array): void {
   const row = i * nx;
   const crow = (i >> 1) * cx;
-  for (let j = 0; j < nx; j++) x[row + j] += e[crow + (j >> 1)]!;
+  for (let j = 0; j < nx; j++) x[row + j]! += e[crow + (j >> 1)]!;
 }
 
 /** out = A x on a level (single-precision coefficients); returns x·out. */

@@ -72,7 +72,7 @@ export class PcgSolver implements Solver {
       const alpha = rz / pq;
       let rr = 0;
       for (let i = 0; i < n; i++) {
-        x[i] += alpha * p[i]!;
+        x[i]! += alpha * p[i]!;
         const ri = r[i]! - alpha * q[i]!;
         r[i] = ri;
         rr += ri * ri;

@@ -42,7 +42,7 @@ export function estimateJacobiRadius(op: StencilOperator, maxSteps = 1500, relat
     const pq = applyDot(op, p, q);
     if (!(pq > 0) || !(rz > 0)) break;
     const alpha = rz / pq;
-    for (let i = 0; i < n; i++) r[i] -= alpha * q[i]!;
+    for (let i = 0; i < n; i++) r[i]! -= alpha * q[i]!;
     for (let i = 0; i < n; i++) z[i] = r[i]! / diag[i]!;
     const rzNew = dot(r, z);
     const beta = rzNew / rz;

@@ -94,7 +94,7 @@ export class StationarySolver implements Solver {
       }
       if (kind === 'jacobi') {
         // r holds b - A x of the current iterate
-        for (let i = 0; i < n; i++) x[i] += r[i]! * invDiag[i]!;
+        for (let i = 0; i < n; i++) x[i]! += r[i]! * invDiag[i]!;
       } else if (kind === 'gauss-seidel') {
         gaussSeidelSweep(op, invDiag, b, x, false, 1);
       } else {

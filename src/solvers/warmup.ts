@@ -33,20 +33,20 @@ export function warmUpKernels(build: (op: StencilOperator) => Solver): void {
       const c = 1 + ((i * 7 + j * 13) % 10);
       if (j + 1 < nx) {
         if (unknown[p + 1]) east[p] = c;
-        diag[p] += c;
-        if (unknown[p + 1]) diag[p + 1] += c;
+        diag[p]! += c;
+        if (unknown[p + 1]) diag[p + 1]! += c;
       }
       if (i + 1 < ny) {
         south[p] = c;
-        diag[p] += c;
-        diag[p + nx] += c;
+        diag[p]! += c;
+        diag[p + nx]! += c;
       }
       b[p] = ((i + j) % 5) - 2;
     }
   }
   for (let p = 0; p < n; p++) if (!unknown[p]) diag[p] = 1;
   // the west/east couplings to fixed cells stay in the diagonal (Dirichlet), as in the real operator
-  for (let i = 0; i < ny; i++) diag[i * nx + 1] += 1;
+  for (let i = 0; i < ny; i++) diag[i * nx + 1]! += 1;
   const op = new GridOperator(nx, ny, diag, east, south, unknown);
   const solver = build(op);
   const x = new Float64Array(n);

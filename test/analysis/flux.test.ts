@@ -1,9 +1,9 @@
 import { describe, expect, it } from 'vitest';
-import { waterBudget } from '../src/analysis/budget.js';
-import { darcyFlux, faceFlows, linearVelocity } from '../src/analysis/flux.js';
-import { assembleSystem } from '../src/discretisation/assemble.js';
-import type { ModelInput } from '../src/scenario/types.js';
-import { cellCentre, type Grid } from '../src/grid.js';
+import { waterBudget } from '../../src/analysis/budget.js';
+import { darcyFlux, faceFlows, linearVelocity } from '../../src/analysis/flux.js';
+import { assembleSystem } from '../../src/discretisation/assemble.js';
+import type { ModelInput } from '../../src/scenario/types.js';
+import { cellCentre, type Grid } from '../../src/grid.js';
 
 /** An invented north-up grid (made-up coordinates). */
 function makeGrid(nx: number, ny: number, dx: number, dy: number): Grid {

@@ -1,9 +1,9 @@
 import { describe, expect, it } from 'vitest';
-import { PiezomapError } from '../src/errors.js';
-import { BandedCholesky } from '../src/solvers/banded.js';
-import { chooseAutoMethod, createSolver, solverRegistry } from '../src/solvers/registry.js';
+import { PiezomapError } from '../../src/errors.js';
+import { BandedCholesky } from '../../src/solvers/banded.js';
+import { chooseAutoMethod, createSolver, solverRegistry } from '../../src/solvers/registry.js';
 import { EigenvalueDecomposition } from 'ml-matrix';
-import { buildSystem, denseMatrix, denseSolve, stripCase, heterogeneousCase, maxRelativeError } from './solvers-fixtures.js';
+import { buildSystem, denseMatrix, denseSolve, stripCase, heterogeneousCase, maxRelativeError } from './fixtures.js';
 
 const methods = Object.keys(solverRegistry);
 

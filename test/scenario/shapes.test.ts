@@ -7,12 +7,12 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import fc from 'fast-check';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { cellAt, type Grid } from '../src/grid.js';
-import { PiezomapError } from '../src/errors.js';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { loadScenario } from '../src/scenario/load.js';
-import { interpolateAlong, rasteriseLine, rasterisePolygon } from '../src/scenario/shapes.js';
-import { solveModel } from '../src/pipeline.js';
+import { cellAt, type Grid } from '../../src/grid.js';
+import { PiezomapError } from '../../src/errors.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { loadScenario } from '../../src/scenario/load.js';
+import { interpolateAlong, rasteriseLine, rasterisePolygon } from '../../src/scenario/shapes.js';
+import { solveModel } from '../../src/pipeline.js';
 
 function grid(nx: number, ny: number, transform: [number, number, number, number, number, number], epsg = 32633): Grid {
   return { nx, ny, transform, crs: { epsg, geographic: false, geoKeys: {} } };

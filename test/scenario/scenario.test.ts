@@ -5,11 +5,11 @@
  */
 import { execFileSync } from 'node:child_process';
 import { describe, expect, it } from 'vitest';
-import { PiezomapError } from '../src/errors.js';
-import { linearUnitOf, makeTransform, parseEpsg, projectionFor } from '../src/scenario/crs.js';
-import { mergeVariant } from '../src/scenario/merge.js';
-import { closest, parseScenarioJson, type ScenarioJson } from '../src/scenario/schema.js';
-import { findJsonSyntaxError, lineColumn, parseCsv } from '../src/scenario/text.js';
+import { PiezomapError } from '../../src/errors.js';
+import { linearUnitOf, makeTransform, parseEpsg, projectionFor } from '../../src/scenario/crs.js';
+import { mergeVariant } from '../../src/scenario/merge.js';
+import { closest, parseScenarioJson, type ScenarioJson } from '../../src/scenario/schema.js';
+import { findJsonSyntaxError, lineColumn, parseCsv } from '../../src/scenario/text.js';
 
 const minimal = {
   aquifer: { conductivity: 'k.tif', thickness: 20 },

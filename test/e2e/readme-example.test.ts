@@ -6,7 +6,7 @@ import { afterAll, expect, it, vi } from 'vitest';
 import { mkdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { join, resolve } from 'node:path';
 
-const root = resolve(__dirname, '..');
+const root = resolve(__dirname, '../..');
 const scratch = join(root, 'test', 'tmp', 'readme-example');
 
 afterAll(() => rmSync(scratch, { recursive: true, force: true }));

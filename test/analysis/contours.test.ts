@@ -12,8 +12,8 @@ import {
   decimalsOf,
   roundInterval,
   type ContourSet,
-} from '../src/analysis/contours.js';
-import { cellCentre, type Grid } from '../src/grid.js';
+} from '../../src/analysis/contours.js';
+import { cellCentre, type Grid } from '../../src/grid.js';
 
 /** An invented north-up grid in a UTM zone (coordinates are made up, no real place). */
 function makeGrid(nx: number, ny: number, dx = 10, dy = 10, originX = 500000, originY = 4100000): Grid {

@@ -8,12 +8,12 @@ import { describe, expect, it } from 'vitest';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { solveModel } from '../src/pipeline.js';
-import { metresPerSecond } from '../src/analysis/sanity.js';
-import { loadScenario } from '../src/scenario/load.js';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { fixedColumn, makeModel, testGrid, well } from './helpers/model.js';
-import type { ModelInput } from '../src/scenario/types.js';
+import { solveModel } from '../../src/pipeline.js';
+import { metresPerSecond } from '../../src/analysis/sanity.js';
+import { loadScenario } from '../../src/scenario/load.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { fixedColumn, makeModel, testGrid, well } from '../helpers/model.js';
+import type { ModelInput } from '../../src/scenario/types.js';
 
 /** 11 x 3 cells, heads fixed at 50 (west column) and 45 (east column): the head falls 0.5 per column. */
 function strip(parts: Partial<ModelInput> = {}, k = 5): ModelInput {

@@ -3,13 +3,13 @@
  * boundary, the steady water balance, a fresh solve, and the Thiem equation at the well bore.
  */
 import { describe, expect, it } from 'vitest';
-import { compareModels, drawdownField, operatorDifference } from '../src/compare.js';
-import { assembleSystem, withSources } from '../src/discretisation/assemble.js';
-import { solveModel } from '../src/pipeline.js';
-import { equivalentBlockRadius, peacemanWellboreHead, wellboreHeads } from '../src/analysis/wellbore.js';
-import { sourcesOfWater } from '../src/analysis/sources.js';
-import type { FixedHeadInput, ModelInput } from '../src/scenario/types.js';
-import { fixedCells, fixedColumn, makeModel, seededRandom, testGrid, well } from './helpers/model.js';
+import { compareModels, drawdownField, operatorDifference } from '../../src/compare.js';
+import { assembleSystem, withSources } from '../../src/discretisation/assemble.js';
+import { solveModel } from '../../src/pipeline.js';
+import { equivalentBlockRadius, peacemanWellboreHead, wellboreHeads } from '../../src/analysis/wellbore.js';
+import { sourcesOfWater } from '../../src/analysis/sources.js';
+import type { FixedHeadInput, ModelInput } from '../../src/scenario/types.js';
+import { fixedCells, fixedColumn, makeModel, seededRandom, testGrid, well } from '../helpers/model.js';
 
 /** A 40 x 30 aquifer with log-normal-ish K, recharge, a river (west) and a lake (east, varying head). */
 function patchyModel(): ModelInput {

@@ -9,14 +9,14 @@ import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { fromArrayBuffer } from 'geotiff';
 import { describe, expect, it } from 'vitest';
-import { PiezomapError } from '../src/errors.js';
-import type { Grid } from '../src/grid.js';
-import { readRaster } from '../src/raster/read.js';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
+import { PiezomapError } from '../../src/errors.js';
+import type { Grid } from '../../src/grid.js';
+import { readRaster } from '../../src/raster/read.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
 
 const here = dirname(fileURLToPath(import.meta.url));
-const fixtures = join(here, 'fixtures', 'rasters');
-const tmp = join(here, 'tmp', 'raster-write');
+const fixtures = join(here, '..', 'fixtures', 'rasters');
+const tmp = join(here, '..', 'tmp', 'raster-write');
 mkdirSync(tmp, { recursive: true });
 
 const UTM33: Grid['crs'] = { epsg: 32633, geographic: false, geoKeys: {} };

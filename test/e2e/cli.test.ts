@@ -8,11 +8,11 @@ import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSy
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { fromArrayBuffer } from 'geotiff';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { CAUTION } from '../src/caution.js';
-import { testGrid } from './helpers/model.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { CAUTION } from '../../src/caution.js';
+import { testGrid } from '../helpers/model.js';
 
-const BIN = resolve(__dirname, '../bin/piezomap.js');
+const BIN = resolve(__dirname, '../../bin/piezomap.js');
 
 function run(args: string[], cwd?: string) {
   const r = spawnSync(process.execPath, [BIN, ...args], { encoding: 'utf8', cwd, env: { ...process.env, FORCE_COLOR: '0' } });
@@ -51,7 +51,7 @@ afterAll(() => rmSync(dir, { recursive: true, force: true }));
 
 describe('piezomap CLI', () => {
   it('prints the version and help with exit 0', () => {
-    const pkg = JSON.parse(readFileSync(resolve(__dirname, '../package.json'), 'utf8'));
+    const pkg = JSON.parse(readFileSync(resolve(__dirname, '../../package.json'), 'utf8'));
     expect(run(['--version'])).toMatchObject({ code: 0, stdout: `${pkg.version}\n` });
     const help = run(['solve', '--help']);
     expect(help.code).toBe(0);

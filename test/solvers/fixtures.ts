@@ -4,8 +4,8 @@
  * and fixed-head cells as identity rows with their couplings moved to the right-hand side.
  */
 import { Matrix, solve } from 'ml-matrix';
-import { GridOperator } from '../src/discretisation/operator.js';
-import { seededUniform } from '../src/random.js';
+import { GridOperator } from '../../src/discretisation/operator.js';
+import { seededUniform } from '../../src/random.js';
 
 export interface TestCase {
   nx: number;
@@ -45,10 +45,10 @@ export function buildSystem(c: TestCase): TestSystem {
   const harmonic = (ratio: number, tp: number, tq: number) => (ratio * 2 * tp * tq) / (tp + tq);
   const couple = (p: number, q: number, conductance: number, band: Float64Array) => {
     if (unknown[p] && unknown[q]) band[p] = conductance;
-    if (unknown[p]) diag[p] += conductance;
-    if (unknown[q]) diag[q] += conductance;
-    if (unknown[p] && fixed(q)) b[p] += conductance * c.fixedHead[q]!;
-    if (unknown[q] && fixed(p)) b[q] += conductance * c.fixedHead[p]!;
+    if (unknown[p]) diag[p]! += conductance;
+    if (unknown[q]) diag[q]! += conductance;
+    if (unknown[p] && fixed(q)) b[p]! += conductance * c.fixedHead[q]!;
+    if (unknown[q] && fixed(p)) b[q]! += conductance * c.fixedHead[p]!;
   };
   for (let i = 0; i < ny; i++) {
     for (let j = 0; j < nx; j++) {
@@ -62,7 +62,7 @@ export function buildSystem(c: TestCase): TestSystem {
     }
   }
   for (let p = 0; p < n; p++) {
-    if (unknown[p]) b[p] += c.source[p]!;
+    if (unknown[p]) b[p]! += c.source[p]!;
     else diag[p] = 1;
   }
   return { op: new GridOperator(nx, ny, diag, east, south, unknown), b };
@@ -128,7 +128,7 @@ export function heterogeneousCase(nx: number, ny: number, seed: number): TestCas
   }
   for (let w = 0; w < 4; w++) {
     const p = Math.floor(ny / 2 + (w - 2)) * nx + Math.floor(nx / 2) + w;
-    if (k[p]! > 0) source[p] -= 50;
+    if (k[p]! > 0) source[p]! -= 50;
   }
   return { nx, ny, dx: 10, dy: 25, k, thickness: 20, anisotropy: 10, fixedHead, source };
 }

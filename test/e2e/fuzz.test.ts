@@ -13,15 +13,15 @@ import { spawnSync } from 'node:child_process';
 import { mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { PiezomapError } from '../src/errors.js';
-import { readRaster } from '../src/raster/read.js';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { loadScenario } from '../src/scenario/load.js';
-import { assembleSystem } from '../src/discretisation/assemble.js';
-import { locateObservations } from '../src/analysis/points.js';
-import { baseConductivity, baseGrid, baseScenario, float32Pixels, stripTiff } from '../scripts/make-bad-inputs.js';
+import { PiezomapError } from '../../src/errors.js';
+import { readRaster } from '../../src/raster/read.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { loadScenario } from '../../src/scenario/load.js';
+import { assembleSystem } from '../../src/discretisation/assemble.js';
+import { locateObservations } from '../../src/analysis/points.js';
+import { baseConductivity, baseGrid, baseScenario, float32Pixels, stripTiff } from '../../scripts/make-bad-inputs.js';
 
-const BIN = resolve(__dirname, '../bin/piezomap.js');
+const BIN = resolve(__dirname, '../../bin/piezomap.js');
 const CASE_SECONDS = 5;
 /** Fixed seeds and run counts keep `npm test` reproducible; FUZZ_SEED / FUZZ_RUNS explore further by hand. */
 const SEED_OFFSET = Number(process.env.FUZZ_SEED ?? 0);
@@ -65,7 +65,7 @@ const seeds: Array<{ name: string; bytes: Uint8Array }> = [
 ];
 
 // GDAL-made files of the raster reader's tests: LZW, ZSTD, big-endian, band-interleaved, BigTIFF.
-const FIXTURES = resolve(__dirname, 'fixtures/rasters');
+const FIXTURES = resolve(__dirname, '../fixtures/rasters');
 for (const name of ['f32-strip-lzw-pred3.tif', 'f32-bigendian-lzw.tif', 'f32-tiled-zstd-nan.tif', 'f32-3band-band.tif', 'f32-bigtiff.tif', 'i16-strip-lzw-pred2.tif']) {
   seeds.push({ name, bytes: new Uint8Array(readFileSync(join(FIXTURES, name))) });
 }

@@ -6,12 +6,12 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { loadScenario } from '../src/scenario/load.js';
-import { resolveVariants } from '../src/compare.js';
-import { calibrationStatistics } from '../src/analysis/calibration.js';
-import type { ObservationResult } from '../src/analysis/points.js';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { testGrid } from './helpers/model.js';
+import { loadScenario } from '../../src/scenario/load.js';
+import { resolveVariants } from '../../src/compare.js';
+import { calibrationStatistics } from '../../src/analysis/calibration.js';
+import type { ObservationResult } from '../../src/analysis/points.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { testGrid } from '../helpers/model.js';
 
 let dir: string;
 

@@ -9,13 +9,13 @@ import { spawnSync } from 'node:child_process';
 import { mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { loadScenario } from '../src/scenario/load.js';
-import { solveModel, resultBundle } from '../src/pipeline.js';
-import { baseScenario, centre } from '../scripts/make-bad-inputs.js';
-import { seededRandom, testGrid } from './helpers/model.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { loadScenario } from '../../src/scenario/load.js';
+import { solveModel, resultBundle } from '../../src/pipeline.js';
+import { baseScenario, centre } from '../../scripts/make-bad-inputs.js';
+import { seededRandom, testGrid } from '../helpers/model.js';
 
-const BIN = resolve(__dirname, '../bin/piezomap.js');
+const BIN = resolve(__dirname, '../../bin/piezomap.js');
 let dir: string;
 let scenario: string;
 

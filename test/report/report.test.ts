@@ -6,13 +6,13 @@ import { interpolateBrBG, interpolateCividis } from 'd3-scale-chromatic';
 import { chromium } from 'playwright-core';
 import { PNG } from 'pngjs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { darcyFlux } from '../src/analysis/flux.js';
-import { cellCentre, type Grid } from '../src/grid.js';
-import { parseColour } from '../src/report/colour.js';
-import { renderReportHtml, type ReportInput } from '../src/report/html.js';
-import { renderMapPng, renderMapSvg, type MapInput } from '../src/report/map.js';
-import { convergencePlotSvg } from '../src/report/plot.js';
-import { escapeMarkup, formatSignificant, niceTicks, wrapText } from '../src/report/text.js';
+import { darcyFlux } from '../../src/analysis/flux.js';
+import { cellCentre, type Grid } from '../../src/grid.js';
+import { parseColour } from '../../src/report/colour.js';
+import { renderReportHtml, type ReportInput } from '../../src/report/html.js';
+import { renderMapPng, renderMapSvg, type MapInput } from '../../src/report/map.js';
+import { convergencePlotSvg } from '../../src/report/plot.js';
+import { escapeMarkup, formatSignificant, niceTicks, wrapText } from '../../src/report/text.js';
 
 const CAUTION =
   'Screening-level result. Outputs need review by a qualified hydrogeologist before any decision; local regulations and licensed practice govern.';

@@ -10,12 +10,12 @@ import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { fromArrayBuffer } from 'geotiff';
 import { describe, expect, it } from 'vitest';
-import { PiezomapError } from '../src/errors.js';
-import { readRaster } from '../src/raster/read.js';
+import { PiezomapError } from '../../src/errors.js';
+import { readRaster } from '../../src/raster/read.js';
 
 const here = dirname(fileURLToPath(import.meta.url));
-const fixtures = join(here, 'fixtures', 'rasters');
-const tmp = join(here, 'tmp', 'raster-read');
+const fixtures = join(here, '..', 'fixtures', 'rasters');
+const tmp = join(here, '..', 'tmp', 'raster-read');
 
 interface BandRecord {
   band: number;

@@ -11,12 +11,12 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { fromArrayBuffer } from 'geotiff';
 import proj4 from 'proj4';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { CAUTION } from '../src/caution.js';
-import { testGrid } from './helpers/model.js';
-import { main } from '../src/cli/main.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { CAUTION } from '../../src/caution.js';
+import { testGrid } from '../helpers/model.js';
+import { main } from '../../src/cli/main.js';
 
-const BIN = resolve(__dirname, '../bin/piezomap.js');
+const BIN = resolve(__dirname, '../../bin/piezomap.js');
 const NX = 30;
 const NY = 20;
 

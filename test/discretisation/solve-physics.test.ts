@@ -4,9 +4,9 @@
  */
 import { describe, expect, it } from 'vitest';
 import { Matrix, solve as denseSolve } from 'ml-matrix';
-import { solveModel } from '../src/pipeline.js';
-import { assembleSystem } from '../src/discretisation/assemble.js';
-import { fixedCells, fixedColumn, makeModel, seededRandom, testGrid, well } from './helpers/model.js';
+import { solveModel } from '../../src/pipeline.js';
+import { assembleSystem } from '../../src/discretisation/assemble.js';
+import { fixedCells, fixedColumn, makeModel, seededRandom, testGrid, well } from '../helpers/model.js';
 
 describe('solveModel on analytical cases', () => {
   it('gives a linear head and Darcy flux between two fixed-head columns (Darcy 1856)', () => {
@@ -157,7 +157,7 @@ describe('solveModel against a dense direct solve (ml-matrix, general-purpose li
     for (let p = 0; p < nx * ny; p++) source[p] = 0.0005 * dx * dy;
     for (const w of wells) {
       const col = Math.floor((w.x - 500000) / dx), row = Math.floor((4100000 - w.y) / dy);
-      source[row * nx + col] += w.rate;
+      source[row * nx + col]! += w.rate;
     }
     const reference = denseReference(nx, ny, dx, dy, K, b, a, fixedMap, source);
     let maxRel = 0;

@@ -6,10 +6,10 @@ import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { PiezomapError } from '../src/errors.js';
-import { loadScenario, mergeVariant, resolveScenario, type ScenarioJson } from '../src/scenario/load.js';
-import type { Crs } from '../src/grid.js';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
+import { PiezomapError } from '../../src/errors.js';
+import { loadScenario, mergeVariant, resolveScenario, type ScenarioJson } from '../../src/scenario/load.js';
+import type { Crs } from '../../src/grid.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
 
 let dir: string;
 

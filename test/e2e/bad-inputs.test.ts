@@ -12,10 +12,10 @@ import { spawn } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { writeBadInputs, type BadInputCase } from '../scripts/make-bad-inputs.js';
+import { writeBadInputs, type BadInputCase } from '../../scripts/make-bad-inputs.js';
 
-const BIN = resolve(__dirname, '../bin/piezomap.js');
-const ENTRY = resolve(__dirname, '../dist/src/cli/main.js');
+const BIN = resolve(__dirname, '../../bin/piezomap.js');
+const ENTRY = resolve(__dirname, '../../dist/src/cli/main.js');
 const dir = mkdtempSync(join(tmpdir(), 'piezomap-bad-'));
 const cases = writeBadInputs(dir);
 const PROCESS_CASES = new Set(['out-in-proc', 'out-under-file', 'memory-limit', 'not-converged', 'budget-open', 'raster-huge-header']);

@@ -8,14 +8,14 @@ import { execFileSync, spawnSync } from 'node:child_process';
 import { mkdtempSync, readdirSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { solveScenarioFile, writeSolveResults } from '../src/pipeline.js';
-import { compareScenario, writeComparisonResults } from '../src/compare.js';
+import { solveScenarioFile, writeSolveResults } from '../../src/pipeline.js';
+import { compareScenario, writeComparisonResults } from '../../src/compare.js';
 
 const gdalPresent = spawnSync('gdalinfo', ['--version'], { encoding: 'utf8' }).status === 0 && spawnSync('ogrinfo', ['--version']).status === 0;
 const onCi = process.env.CI === 'true';
 if (!gdalPresent && !onCi) console.warn('gis-outputs.test.ts: gdalinfo/ogrinfo not on PATH; skipped (install gdal-bin to run it)');
 
-const demo = resolve(__dirname, '../data/valley.json');
+const demo = resolve(__dirname, '../../data/valley.json');
 let dir: string;
 
 function walk(folder: string): string[] {

@@ -1,8 +1,8 @@
 import { describe, expect, it } from 'vitest';
-import { BandedCholesky } from '../src/solvers/banded.js';
-import { createSolver, solverRegistry } from '../src/solvers/registry.js';
-import { estimateJacobiRadius, optimalRelaxation } from '../src/solvers/spectrum.js';
-import { buildSystem, correlatedCase, heterogeneousCase, maxRelativeError, poissonCase } from './solvers-fixtures.js';
+import { BandedCholesky } from '../../src/solvers/banded.js';
+import { createSolver, solverRegistry } from '../../src/solvers/registry.js';
+import { estimateJacobiRadius, optimalRelaxation } from '../../src/solvers/spectrum.js';
+import { buildSystem, correlatedCase, heterogeneousCase, maxRelativeError, poissonCase } from './fixtures.js';
 
 const methods = Object.keys(solverRegistry);
 const stationary = new Set(['jacobi', 'gauss-seidel', 'sor']);

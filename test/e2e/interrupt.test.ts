@@ -9,10 +9,10 @@ import { spawn } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { testGrid } from './helpers/model.js';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { testGrid } from '../helpers/model.js';
 
-const BIN = resolve(__dirname, '../bin/piezomap.js');
+const BIN = resolve(__dirname, '../../bin/piezomap.js');
 let dir: string;
 let scenario: string;
 
