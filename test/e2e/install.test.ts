@@ -143,10 +143,20 @@ it('bin/piezomap.js says in one line, without a stack trace, when dist/ has not 
   mkdirSync(join(bare, 'bin'), { recursive: true });
   writeFileSync(join(bare, 'package.json'), JSON.stringify({ name: 'piezomap', type: 'module' }));
   cpSync(join(root, 'bin', 'piezomap.js'), join(bare, 'bin', 'piezomap.js'));
-  const r = run(process.execPath, [join(bare, 'bin', 'piezomap.js'), '--help'], bare);
-  expect(r.code).toBe(1);
-  expect(r.stdout).toBe('');
-  expect(r.stderr.trim().split('\n')).toHaveLength(1);
-  expect(r.stderr).toMatch(/^piezomap: not built \(.*dist\/src\/cli\/main\.js is missing\); run "npm run build" in /);
-  expect(r.stderr).not.toMatch(/\n\s+at /);
+  const notBuilt = /^piezomap: not built \(.*dist\/src\/cli\/main\.js is missing\); /;
+  // An installed copy (no sources beside it): reinstalling is the way out.
+  const installed = run(process.execPath, [join(bare, 'bin', 'piezomap.js'), '--help'], bare);
+  expect(installed.code).toBe(1);
+  expect(installed.stdout).toBe('');
+  expect(installed.stderr.trim().split('\n')).toHaveLength(1);
+  expect(installed.stderr).toMatch(notBuilt);
+  expect(installed.stderr).toContain('reinstall piezomap');
+  // A clone (sources beside it): building it is.
+  mkdirSync(join(bare, 'src'));
+  const clone = run(process.execPath, [join(bare, 'bin', 'piezomap.js'), '--help'], bare);
+  expect(clone.code).toBe(1);
+  expect(clone.stderr.trim().split('\n')).toHaveLength(1);
+  expect(clone.stderr).toMatch(notBuilt);
+  expect(clone.stderr).toContain(`"npm run build" in ${bare}`);
+  expect(clone.stderr + installed.stderr).not.toMatch(/\n\s+at /);
 });
