@@ -1,7 +1,7 @@
 /**
  * Library example: try several rates for a planned well without writing a variant per rate into the scenario
- * file. test/e2e/library-example.test.ts runs it on the demo scenario; in your own scripts import from 'piezomap'
- * instead of '../src/index.js'.
+ * file. test/e2e/library-example.test.ts runs it on the bundled demo, `compareWellRates(demoScenarioPath(), …)`;
+ * in your own scripts import from 'piezomap' instead of '../src/index.js' and pass your scenario's path.
  */
 import { compareScenario, loadScenario, writeComparisonResults, type VariantJson } from '../src/index.js';
 

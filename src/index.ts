@@ -7,10 +7,12 @@
  *   compare variants     compareScenario, compareModels, resolveVariants, writeComparisonResults
  *   analyse              waterBudget, sourcesOfWater, wellboreHeads, calibrationStatistics, headAtPoint
  *   rasters              readRaster, encodeFloat32GeoTiff
+ *   the bundled demo     demoScenarioPath
  */
 export { PiezomapError, inputError, exitCodeFor, type ErrorCode, type ErrorDetail } from './errors.js';
 export { CAUTION } from './caution.js';
 export { VERSION } from './version.js';
+export { demoScenarioPath } from './demoPath.js';
 export { cellAt, cellCentre, cellWidth, cellHeight, crsLabel, type Grid, type Crs } from './grid.js';
 
 export { loadScenario, resolveScenario, mergeVariant, type ScenarioJson, type VariantJson } from './scenario/load.js';

@@ -2,13 +2,12 @@
  * The command-line shell: parse arguments, call the library, format its result, return an exit code.
  * Exit codes (../shared/spec/interface.md): 0 done, 2 bad input or usage, 3 solver did not reach the tolerance, 1 anything else.
  */
-import { existsSync, rmSync } from 'node:fs';
-import { dirname, resolve } from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { rmSync } from 'node:fs';
 import { Command, CommanderError, Option } from 'commander';
 import { PiezomapError, describeThrown, exitCodeFor } from '../errors.js';
 import { VERSION } from '../version.js';
 import { CAUTION } from '../caution.js';
+import { demoScenarioPath } from '../demoPath.js';
 import { loadScenario } from '../scenario/load.js';
 import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
 import { assembleModel, solveModel, writeSolveResults, prepareResultFolder, resultProblem, type RunOptions } from '../pipeline.js';
@@ -49,14 +48,6 @@ const defaultIO: CliIO = {
   stdout: (t) => process.stdout.write(t),
   stderr: (t) => process.stderr.write(t),
 };
-
-/** The bundled demo scenario (data/valley.json beside the package). */
-export function demoScenarioPath(): string {
-  // dist/src/cli/main.js or src/cli/main.ts -> package root
-  const here = dirname(fileURLToPath(import.meta.url));
-  const candidates = [resolve(here, '../../data/valley.json'), resolve(here, '../../../data/valley.json')];
-  return candidates.find((c) => existsSync(c)) ?? candidates[0]!;
-}
 
 function positiveNumber(name: string) {
   return (value: string): number => {

@@ -5,16 +5,16 @@
 import { afterAll, describe, expect, it } from 'vitest';
 import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
-import { join, resolve } from 'node:path';
+import { join } from 'node:path';
 import { compareWellRates } from '../../examples/compare-wells.js';
+import { demoScenarioPath } from '../../src/index.js';
 
 const out = mkdtempSync(join(tmpdir(), 'piezomap-example-'));
 afterAll(() => rmSync(out, { recursive: true, force: true }));
 
 describe('examples/compare-wells.ts', () => {
   it('compares two rates of a planned well on the demo scenario', async () => {
-    const scenario = resolve(__dirname, '../../data/valley.json');
-    const [half, full] = await compareWellRates(scenario, { id: 'PW-3', x: 505272, y: 4105068 }, [-500, -1000], join(out, 'rates'));
+    const [half, full] = await compareWellRates(demoScenarioPath(), { id: 'PW-3', x: 505272, y: 4105068 }, [-500, -1000], join(out, 'rates'));
     expect(half!.sharedOperator && full!.sharedOperator).toBe(true);
     // Linearity of confined steady flow (common practice: superposition): twice the rate, twice the drawdown, everywhere.
     let worst = 0;
