@@ -14,7 +14,8 @@ import { readFile, stat } from 'node:fs/promises';
 import { basename, dirname, extname, resolve } from 'node:path';
 import { crsLabel, gridBounds, gridDifference, type Grid } from '../grid.js';
 import { describeThrown, inputError, PiezomapError } from '../errors.js';
-import { readRaster } from '../raster/read.js';
+import { readRaster, readRasterHeader } from '../raster/read.js';
+import { checkRasterMemory, rasterBudget, type RasterFootprint } from '../memory.js';
 import type { RasterData } from '../raster/types.js';
 import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from './crs.js';
 import {
@@ -69,6 +70,9 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   if (!inline) loader.inputFiles.add(resolve(scenarioPath));
 
   const units = { length: raw.units?.length ?? 'm', time: raw.units?.time ?? 'd' } as const;
+
+  // Every raster's size from its header, checked together against the memory budget before any is decoded.
+  await loader.checkRasterMemory(raw);
 
   // The conductivity raster defines the grid and the CRS.
   const conductivityPath = raw.aquifer.conductivity;
@@ -274,13 +278,16 @@ class Loader {
     await this.requireFile(key, given, absolute, 'raster');
     let raster: RasterData;
     try {
-      raster = await readRaster(absolute, { label: `${key} "${given}"` });
+      raster = await readRaster(absolute, { label: `${key} "${given}"`, maxBytes: rasterBudget() });
     } catch (thrown) {
       // The reader names the raster by the label given; add the scenario file, the path and the key.
       if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
       throw inputError(`${this.label}: ${key}: "${given}" cannot be read as a GeoTIFF: ${describeThrown(thrown)}`, { file: absolute, key });
     }
     this.inputFiles.add(absolute);
+    if (raster.unit !== null) {
+      this.warn(`${key} "${given}" declares its values in "${raster.unit}"; piezomap does not convert units: they are taken in the scenario's units`);
+    }
     // Several bands: which one holds the values cannot be guessed, and a wrong guess gives a plausible-looking result.
     if (raster.bandCount > 1) {
       throw inputError(`${this.label}: ${key} "${given}" has ${raster.bandCount} bands; piezomap reads single-band rasters only`, {
@@ -313,6 +320,39 @@ class Loader {
       }
     }
     return raster;
+  }
+
+  /** The rasters the scenario names, sized from their headers and checked together against the memory budget. */
+  async checkRasterMemory(raw: ScenarioJson): Promise<void> {
+    const named: Array<[string, string | number | undefined]> = [
+      ['aquifer.conductivity', raw.aquifer.conductivity],
+      ['aquifer.thickness', raw.aquifer.thickness],
+      ['aquifer.porosity', raw.aquifer.porosity],
+      ['aquifer.top', raw.aquifer.top],
+      ['aquifer.bottom', raw.aquifer.bottom],
+      ['groundSurface', raw.groundSurface],
+      ['recharge', raw.recharge],
+      ...raw.fixedHeads.map((entry, i): [string, string | undefined] => [`fixedHeads[${i}].raster`, 'raster' in entry ? entry.raster : undefined]),
+    ];
+    const footprints: RasterFootprint[] = [];
+    for (const [key, given] of named) {
+      if (typeof given !== 'string') continue;
+      const absolute = this.path(given);
+      await this.requireFile(key, given, absolute, 'raster');
+      try {
+        const header = await readRasterHeader(absolute, { label: `${key} "${given}"` });
+        footprints.push({ key, given, width: header.width, height: header.height, valueBytes: header.valueBytes, readBytes: header.readBytes });
+      } catch (thrown) {
+        if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
+        throw thrown;
+      }
+    }
+    try {
+      checkRasterMemory(footprints);
+    } catch (thrown) {
+      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: thrown.detail.file && this.path(thrown.detail.file) });
+      throw thrown;
+    }
   }
 
   async requireFile(key: string, given: string, absolute: string, what: string): Promise<void> {

@@ -11,9 +11,11 @@ import { fileURLToPath } from 'node:url';
 import { fromArrayBuffer } from 'geotiff';
 import { describe, expect, it } from 'vitest';
 import { PiezomapError } from '../../src/errors.js';
-import { readRaster } from '../../src/raster/read.js';
+import { readRaster, readRasterHeader } from '../../src/raster/read.js';
 
 const here = dirname(fileURLToPath(import.meta.url));
+/** What a caller (the scenario loader) lets one raster take: half the machine's memory. */
+const memoryBudget = totalmem() / 2;
 const fixtures = join(here, '..', 'fixtures', 'rasters');
 const tmp = join(here, '..', 'tmp', 'raster-read');
 
@@ -37,6 +39,12 @@ interface GoodRecord {
   geographic: boolean | null;
   nodata: number | 'nan' | null;
   float32Values: boolean;
+  /** GDAL's per-band scale and offset (null when unset) and unit type. */
+  scale: number | null;
+  offset: number | null;
+  unit: string | null;
+  /** Whether GDAL reports a per-dataset mask band (an internal mask). */
+  masked: boolean;
   bands: BandRecord[];
 }
 interface BadRecord {
@@ -131,6 +139,34 @@ describe('readRaster reads every GDAL-written layout as GDAL does', () => {
     });
   }
 
+  it('readRaster reports the scale, offset and unit GDAL reports, and applies them to the values (checked above)', async () => {
+    for (const record of expected.good) {
+      const raster = await readRaster(join(fixtures, record.file));
+      expect(raster.scale, record.file).toBe(record.scale ?? 1);
+      expect(raster.offset, record.file).toBe(record.offset ?? 0);
+      expect(raster.unit, record.file).toBe(record.unit);
+      expect(raster.masked, record.file).toBe(record.masked);
+    }
+    // the fixtures include the cases of the issue: UInt16 scaled by 0.001 (mm/d as m/d) and Int16 with an offset
+    const u16 = expected.good.find((r) => r.file === 'u16-scale.tif')!;
+    expect([u16.gdalType, u16.scale, u16.offset]).toEqual(['UInt16', 0.001, 0]);
+    const i16 = expected.good.find((r) => r.file === 'i16-scale-offset.tif')!;
+    expect([i16.gdalType, i16.scale, i16.offset, i16.unit]).toEqual(['Int16', 0.004, 100, 'm']);
+  });
+
+  it('readRaster counts the cells of an internal mask as missing, as GDAL\'s mask band does', async () => {
+    const masked = expected.good.filter((r) => r.masked);
+    expect(masked.map((r) => r.file).sort()).toEqual(['f32-mask-strip-ovr.tif', 'f32-mask-tiled.tif', 'f32-translate-mask.tif']);
+    for (const record of masked) {
+      // the script masks 4 x 11 + 37 + 1 = 82 cells; f32-mask-tiled.tif has 14 nodata cells besides, 1 of them masked too
+      expect(record.bands[0]!.missing, record.file).toBe(record.file === 'f32-mask-tiled.tif' ? 95 : 82);
+      const raster = await readRaster(join(fixtures, record.file));
+      let missing = 0;
+      for (const v of raster.values) if (Number.isNaN(v)) missing++;
+      expect(missing, record.file).toBe(record.bands[0]!.missing);
+    }
+  });
+
   it('readRaster selects further bands with `band`, in both interleavings, as GDAL reads them', async () => {
     for (const file of ['f32-3band-pixel.tif', 'f32-3band-band.tif']) {
       const record = expected.good.find((r) => r.file === file)!;
@@ -184,6 +220,9 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     'truncated-tile.tif': /cut short: tile \d+ ends at byte \d+/,
     'huge-cells.tif': /100000 x 100000.*2\^31/,
     'huge-memory.tif': /46000 x 46000 cells need about .* memory/,
+    'palette.tif': /colour table.*class/,
+    'pam-scale.tif': /pam-scale\.tif\.aux\.xml.*Scale/,
+    'external-mask.tif': /external-mask\.tif\.msk.*mask/,
   };
 
   it('covers every bad fixture the script wrote', () => {
@@ -192,9 +231,9 @@ describe('readRaster refuses bad files with an input error naming the file', () 
 
   for (const record of expected.bad) {
     // the memory refusal depends on the machine: with more than ~34 GB it would be read (and take 17 GB)
-    const needsSmallMachine = record.file === 'huge-memory.tif' && totalmem() / 2 > 46000 * 46000 * 8;
+    const needsSmallMachine = record.file === 'huge-memory.tif' && memoryBudget > 46000 * 46000 * 8;
     it.skipIf(needsSmallMachine)(`readRaster(${record.file}) is refused: ${record.why}`, async () => {
-      const error = await readError(join(fixtures, record.file), { label: `rasters/${record.file}` });
+      const error = await readError(join(fixtures, record.file), { label: `rasters/${record.file}`, maxBytes: memoryBudget });
       expect(error.code).toBe('input');
       expect(error.message).toContain(`rasters/${record.file}`);
       expect(error.detail.file).toBe(`rasters/${record.file}`);
@@ -230,5 +269,60 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     expect(error.code).toBe('input');
     expect(error.message).toContain(path);
     expect(error.message).toMatch(/tile \d+ cannot be decompressed|holds \d+ bytes where/);
+  });
+
+  it('readRaster refuses block offsets into the header, an IFD or another block, naming the file and the block', async () => {
+    mkdirSync(tmp, { recursive: true });
+    const source = new Uint8Array(readFileSync(join(fixtures, 'f32-strip-none.tif')));
+    // the strips of this uncompressed file (classic little-endian TIFF 6.0 layout: header, IFD entries of 12 bytes)
+    const view = new DataView(source.buffer);
+    const ifd = view.getUint32(4, true);
+    const entries = view.getUint16(ifd, true);
+    let offsetsAt = -1;
+    for (let k = 0; k < entries; k++) {
+      const at = ifd + 2 + 12 * k;
+      if (view.getUint16(at, true) === 273) offsetsAt = view.getUint32(at + 8, true);
+    }
+    expect(offsetsAt).toBeGreaterThan(0);
+    const strip = (bytes: Uint8Array, i: number) => new DataView(bytes.buffer).getUint32(offsetsAt + 4 * i, true);
+    const cases: Array<[string, (bytes: Uint8Array) => void, RegExp]> = [
+      ['strip-in-header', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 2, 0, true), /strip 2 .*overlaps the TIFF header/],
+      ['strip-in-ifd', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 1, ifd, true), /strip 1 .*overlaps the image file directory 0/],
+      ['strip-in-offsets', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 3, offsetsAt, true), /strip 3 .*overlaps the values of tag 273/],
+      ['strips-overlap', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 4, strip(b, 3) + 8, true), /strip 4 .*overlaps strip 3/],
+    ];
+    for (const [name, damage, message] of cases) {
+      const bytes = source.slice();
+      damage(bytes);
+      const path = join(tmp, `${name}.tif`);
+      writeFileSync(path, bytes);
+      const error = await readError(path, { label: `rasters/${name}.tif` });
+      expect(error.code, name).toBe('input');
+      expect(error.message, name).toMatch(/^rasters\/.*\.tif: the file is damaged: /);
+      expect(error.message, name).toMatch(message);
+    }
+  });
+});
+
+describe('readRasterHeader reads size and sample type without decoding', () => {
+  it('readRasterHeader reports what GDAL reports for the size, bands and type, and what reading would take', async () => {
+    for (const record of expected.good) {
+      const header = await readRasterHeader(join(fixtures, record.file));
+      expect([header.width, header.height, header.bandCount], record.file).toEqual([record.width, record.height, record.bandCount]);
+      expect(gdalTypeName(header.sampleType, record.signedByte), record.file).toBe(record.gdalType);
+      // the decoded band as doubles is held; the file and one block only while reading
+      expect(header.valueBytes).toBe(record.width * record.height * 8);
+      expect(header.readBytes).toBeGreaterThan(header.valueBytes);
+    }
+  });
+
+  it('readRasterHeader sizes a file claiming 46000 x 46000 Float64 cells from its few bytes, and readRaster refuses it under a budget', async () => {
+    const path = join(fixtures, 'huge-memory.tif');
+    const header = await readRasterHeader(path);
+    expect([header.width, header.height, header.sampleType]).toEqual([46000, 46000, 'Float64']);
+    expect(header.valueBytes).toBe(46000 * 46000 * 8);
+    // 16.9 GB of doubles, one 23000 x 23000 Float64 tile (4.2 GB) and the file
+    const error = await readError(path, { label: 'rasters/huge-memory.tif', maxBytes: 1e9 });
+    expect(error.message).toMatch(/rasters\/huge-memory\.tif: 46000 x 46000 cells need about 21\.2 GB to read, more than the 1\.0 GB/);
   });
 });
