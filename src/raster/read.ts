@@ -32,7 +32,7 @@ import type { Grid } from '../grid.js';
 import { RASTER_PIXEL_IS_POINT, crsFromGeoKeys, parseGeoKeyDirectory } from './geokeys.js';
 import type { GeoKeyRecord } from './geokeys.js';
 import type { RasterData } from './types.js';
-import { findBlockOverlap, tiffStructure } from './structure.js';
+import { findBlockOverlap, findValueOverlap, tiffStructure } from './structure.js';
 
 export interface ReadRasterOptions {
   /** 1-based band number, default 1. */
@@ -274,6 +274,10 @@ async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, ban
   const structure = tiffStructure(bytes);
   if (structure.loops) {
     throw inputError(`${label}: the file is damaged: its chain of image file directories loops back on itself`, { file: label, hint: DAMAGE_HINT });
+  }
+  const misplaced = findValueOverlap(structure.ranges);
+  if (misplaced) {
+    throw inputError(`${label}: the file is damaged: ${misplaced.values} overlap ${misplaced.overlaps}`, { file: label, hint: DAMAGE_HINT });
   }
   const buffer = bytes.buffer.slice(bytes.byteOffset, bytes.byteOffset + bytes.byteLength) as ArrayBuffer;
   const tiff = await fromArrayBuffer(buffer);

@@ -12,6 +12,8 @@ export interface ByteRange {
   start: number;
   end: number;
   what: string;
+  /** The header or an IFD's entry table ('table'), or a tag's values stored apart ('values'). */
+  kind: 'table' | 'values';
 }
 
 /** Bytes per value of each TIFF field type (TIFF 6.0 section 2; 16-18 are BigTIFF's 8-byte types). */
@@ -37,7 +39,7 @@ export function tiffStructure(bytes: Uint8Array): TiffStructure {
   const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
   const little = bytes[0] === 0x49;
   const big = view.getUint16(2, little) === 43;
-  const ranges: ByteRange[] = [{ start: 0, end: big ? 16 : 8, what: 'the TIFF header' }];
+  const ranges: ByteRange[] = [{ start: 0, end: big ? 16 : 8, what: 'the TIFF header', kind: 'table' }];
   const size = bytes.length;
   const offsetAt = (at: number): number => (big ? Number(view.getBigUint64(at, little)) : view.getUint32(at, little));
   let ifd = big ? (size >= 16 ? offsetAt(8) : 0) : offsetAt(4);
@@ -51,7 +53,7 @@ export function tiffStructure(bytes: Uint8Array): TiffStructure {
     const entryBytes = big ? 20 : 12;
     const end = ifd + countBytes + entries * entryBytes + (big ? 8 : 4);
     if (end > size) return { ranges, ifdCount: index, loops: false };
-    ranges.push({ start: ifd, end, what: `the image file directory ${index}` });
+    ranges.push({ start: ifd, end, what: `the image file directory ${index}`, kind: 'table' });
     const inline = big ? 8 : 4;
     for (let k = 0; k < entries; k++) {
       const at = ifd + countBytes + k * entryBytes;
@@ -62,7 +64,7 @@ export function tiffStructure(bytes: Uint8Array): TiffStructure {
       const length = count * typeSize;
       if (length <= inline) continue;
       const start = offsetAt(at + (big ? 12 : 8));
-      ranges.push({ start, end: Math.min(start + length, size), what: `the values of tag ${tag} (image file directory ${index})` });
+      ranges.push({ start, end: Math.min(start + length, size), what: `the values of tag ${tag} (image file directory ${index})`, kind: 'values' });
     }
     ifd = offsetAt(end - (big ? 8 : 4));
   }
@@ -110,6 +112,27 @@ export function findBlockOverlap(
     } else {
       if (blockReach >= 0 && start[i]! < end[blockReach]!) return { block: name(blockReach), overlaps: name(i) };
       if (structureReach < 0 || end[i]! > end[structureReach]!) structureReach = i;
+    }
+  }
+  return null;
+}
+
+/**
+ * The first tag value range that overlaps the header or an IFD's entry table, with what it overlaps; null when none
+ * does. Such values would be read from the structure's own bytes (e.g. a tie point made of IFD entries). Values
+ * overlapping each other are left alone: some writers share one array between tags.
+ */
+export function findValueOverlap(structure: ByteRange[]): { values: string; overlaps: string } | null {
+  const sorted = structure.filter((r) => r.end > r.start).sort((a, b) => a.start - b.start || (a.kind === 'table' ? -1 : 1));
+  let tableReach: ByteRange | null = null;
+  let valueReach: ByteRange | null = null;
+  for (const r of sorted) {
+    if (r.kind === 'values') {
+      if (tableReach && r.start < tableReach.end) return { values: r.what, overlaps: tableReach.what };
+      if (!valueReach || r.end > valueReach.end) valueReach = r;
+    } else {
+      if (valueReach && r.start < valueReach.end) return { values: valueReach.what, overlaps: r.what };
+      if (!tableReach || r.end > tableReach.end) tableReach = r;
     }
   }
   return null;

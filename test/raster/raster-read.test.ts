@@ -278,11 +278,11 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     const view = new DataView(source.buffer);
     const ifd = view.getUint32(4, true);
     const entries = view.getUint16(ifd, true);
-    let offsetsAt = -1;
-    for (let k = 0; k < entries; k++) {
-      const at = ifd + 2 + 12 * k;
-      if (view.getUint16(at, true) === 273) offsetsAt = view.getUint32(at + 8, true);
-    }
+    const entryOf = (tag: number) => {
+      for (let k = 0; k < entries; k++) if (view.getUint16(ifd + 2 + 12 * k, true) === tag) return ifd + 2 + 12 * k;
+      throw new Error(`no tag ${tag}`);
+    };
+    const offsetsAt = view.getUint32(entryOf(273) + 8, true);
     expect(offsetsAt).toBeGreaterThan(0);
     const strip = (bytes: Uint8Array, i: number) => new DataView(bytes.buffer).getUint32(offsetsAt + 4 * i, true);
     const cases: Array<[string, (bytes: Uint8Array) => void, RegExp]> = [
@@ -290,6 +290,8 @@ describe('readRaster refuses bad files with an input error naming the file', () 
       ['strip-in-ifd', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 1, ifd, true), /strip 1 .*overlaps the image file directory 0/],
       ['strip-in-offsets', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 3, offsetsAt, true), /strip 3 .*overlaps the values of tag 273/],
       ['strips-overlap', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 4, strip(b, 3) + 8, true), /strip 4 .*overlaps strip 3/],
+      // the same class of damage in the tags: the tie point's doubles read from the IFD's own entries
+      ['tiepoint-in-ifd', (b) => new DataView(b.buffer).setUint32(entryOf(33922) + 8, ifd + 2, true), /the values of tag 33922 .*overlap the image file directory 0/],
     ];
     for (const [name, damage, message] of cases) {
       const bytes = source.slice();
