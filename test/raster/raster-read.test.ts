@@ -304,7 +304,64 @@ describe('readRaster refuses bad files with an input error naming the file', () 
       expect(error.message, name).toMatch(message);
     }
   });
+
+  it('readRaster refuses what changes the meaning of the samples and is not applied: a second page, bit order, orientation', async () => {
+    mkdirSync(tmp, { recursive: true });
+    const source = new Uint8Array(readFileSync(join(fixtures, 'f32-strip-none.tif')));
+    const view = new DataView(source.buffer);
+    const ifd = view.getUint32(4, true);
+    const entries = view.getUint16(ifd, true);
+    const tableBytes = 2 + 12 * entries + 4;
+    // a second page: a copy of the IFD (same tags, no NewSubfileType: a full-resolution image) appended to the file,
+    // with its own copy of the strips so that no block is shared
+    const paged = new Uint8Array(source.length + tableBytes + 4096);
+    paged.set(source);
+    const pv = new DataView(paged.buffer);
+    const copyAt = source.length + (source.length % 2);
+    paged.set(source.subarray(ifd, ifd + tableBytes), copyAt);
+    pv.setUint32(ifd + 2 + 12 * entries, copyAt, true); // first IFD -> copy
+    pv.setUint32(copyAt + 2 + 12 * entries, 0, true);
+    const entryIn = (at: number, tag: number) => {
+      for (let k = 0; k < entries; k++) if (pv.getUint16(at + 2 + 12 * k, true) === tag) return at + 2 + 12 * k;
+      throw new Error(`no tag ${tag}`);
+    };
+    // the copy's strip offsets: a new array after the copy, pointing at a copy of the pixel data
+    const stripsAt = copyAt + tableBytes;
+    const pixelsAt = stripsAt + 20;
+    const firstStrip = view.getUint32(view.getUint32(entryIn(ifd, 273) + 8, true), true);
+    const pixelBytes = 37 * 23 * 4;
+    const grown = new Uint8Array(pixelsAt + pixelBytes);
+    grown.set(paged.subarray(0, pixelsAt));
+    grown.set(source.subarray(firstStrip, firstStrip + pixelBytes), pixelsAt);
+    const gv = new DataView(grown.buffer);
+    for (let i = 0; i < 5; i++) gv.setUint32(stripsAt + 4 * i, pixelsAt + i * 5 * 37 * 4, true);
+    gv.setUint32(entryIn(copyAt, 273) + 8, stripsAt, true);
+
+    // FillOrder 2 and Orientation 3 in place of the PlanarConfiguration entry (default 1 when absent)
+    const retagged = (tag: number, value: number) => {
+      const bytes = source.slice();
+      const at = entryIn(ifd, 284);
+      const v = new DataView(bytes.buffer);
+      v.setUint16(at, tag, true);
+      v.setUint16(at + 8, value, true);
+      return bytes;
+    };
+    const cases: Array<[string, Uint8Array, RegExp]> = [
+      ['two-pages', grown, /further full-resolution images \(pages\)/],
+      ['fill-order', retagged(266, 2), /bits of each byte are stored in reverse order \(FillOrder 2\)/],
+      ['orientation', retagged(274, 3), /another order than top-left first \(Orientation 3\)/],
+    ];
+    for (const [name, bytes, message] of cases) {
+      const path = join(tmp, `${name}.tif`);
+      writeFileSync(path, bytes);
+      const error = await readError(path, { label: `rasters/${name}.tif` });
+      expect(error.code, name).toBe('input');
+      expect(error.message, name).toMatch(new RegExp(`^rasters/${name}\\.tif: `));
+      expect(error.message, name).toMatch(message);
+    }
+  });
 });
+
 
 describe('readRasterHeader reads size and sample type without decoding', () => {
   it('readRasterHeader reports what GDAL reports for the size, bands and type, and what reading would take', async () => {
