@@ -241,7 +241,7 @@ async function refuseSideFiles(path: string, label: string): Promise<void> {
   const name = basename(path);
   const aux = await readFile(`${path}.aux.xml`, 'utf8').catch(() => null);
   if (aux !== null) {
-    const found = PAM_ELEMENTS.filter((name) => new RegExp(`<${name}[\\s>/]`).test(aux));
+    const found = PAM_ELEMENTS.filter((element) => new RegExp(`<${element}[\\s>/]`).test(aux));
     if (found.length > 0) {
       throw inputError(`${label}: its side file ${name}.aux.xml sets ${found.join(', ')}, which GDAL applies when reading; piezomap reads the GeoTIFF alone`, {
         file: label,
@@ -372,8 +372,9 @@ async function readMaskLayout(image: GeoTIFFImage, label: string, fileSize: numb
   const height = await numberTag(image, 'ImageLength', 0);
   if (width !== main.width || height !== main.height) throw refuse(`is ${width} x ${height} cells where the image is ${main.width} x ${main.height}`);
   if ((await numberTag(image, 'SamplesPerPixel', 1)) !== 1) throw refuse('has more than one sample per cell');
+  // A transparency mask holds 1 bit per cell (TIFF 6.0 section 8, PhotometricInterpretation 4), as GDAL writes it.
   const bits = await numberTag(image, 'BitsPerSample', 1);
-  if (bits !== 1 && bits !== 8) throw refuse(`has ${bits}-bit samples (1 or 8 expected)`);
+  if (bits !== 1) throw refuse(`has ${bits}-bit samples (1 expected)`);
   const compression = await numberTag(image, 'Compression', 1);
   if (!COMPRESSION_NAMES.has(compression)) throw refuse(`uses an unsupported compression (TIFF code ${compression})`);
   if ((await numberTag(image, 'Predictor', 1)) !== 1) throw refuse('uses a predictor');
@@ -567,11 +568,11 @@ function xmlText(text: string): string {
 }
 
 /**
- * Set the cells the internal mask marks as missing (0) to NaN. A 1-bit mask packs 8 cells per byte, most significant
- * bit first, each block row starting on a new byte (TIFF 6.0 section 3); an 8-bit mask holds one byte per cell.
+ * Set the cells the internal mask marks as missing (0) to NaN. The mask packs 8 cells per byte, most significant bit
+ * first, each block row starting on a new byte (TIFF 6.0 sections 3 and 8).
  */
 async function applyMask(bytes: Uint8Array, mask: Layout, values: Float64Array, label: string): Promise<void> {
-  const { width, height, blockWidth, blockHeight, blocksAcross, blocksDown, rowBytes, bits } = mask;
+  const { width, height, blockWidth, blockHeight, blocksAcross, blocksDown, rowBytes } = mask;
   const decompress = await decompressorFor(mask);
   const what = mask.tiled ? 'tile' : 'strip';
   for (let by = 0; by < blocksDown; by++) {
@@ -595,11 +596,7 @@ async function applyMask(bytes: Uint8Array, mask: Layout, values: Float64Array, 
       for (let r = 0; r < rows; r++) {
         const start = r * rowBytes;
         const out = firstCell + r * width;
-        if (bits === 1) {
-          for (let c = 0; c < cols; c++) if (((block[start + (c >> 3)]! >> (7 - (c & 7))) & 1) === 0) values[out + c] = Number.NaN;
-        } else {
-          for (let c = 0; c < cols; c++) if (block[start + c] === 0) values[out + c] = Number.NaN;
-        }
+        for (let c = 0; c < cols; c++) if (((block[start + (c >> 3)]! >> (7 - (c & 7))) & 1) === 0) values[out + c] = Number.NaN;
       }
     }
   }

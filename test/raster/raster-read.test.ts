@@ -360,6 +360,57 @@ describe('readRaster refuses bad files with an input error naming the file', () 
       expect(error.message, name).toMatch(message);
     }
   });
+
+  it('readRaster refuses a damaged internal mask: a missing mask block, a mask block over an image block', async () => {
+    mkdirSync(tmp, { recursive: true });
+    const source = new Uint8Array(readFileSync(join(fixtures, 'f32-mask-strip-ovr.tif')));
+    const view = new DataView(source.buffer);
+    // walk the IFDs (classic little-endian TIFF 6.0) and find the image's strips and the mask's (NewSubfileType 4)
+    const tagsOf = (ifd: number) => {
+      const tags = new Map<number, { at: number; count: number; value: number }>();
+      const n = view.getUint16(ifd, true);
+      for (let k = 0; k < n; k++) {
+        const at = ifd + 2 + 12 * k;
+        tags.set(view.getUint16(at, true), { at, count: view.getUint32(at + 4, true), value: view.getUint32(at + 8, true) });
+      }
+      return { tags, next: view.getUint32(ifd + 2 + 12 * n, true) };
+    };
+    const first = tagsOf(view.getUint32(4, true));
+    let maskTags: Map<number, { at: number; count: number; value: number }> | null = null;
+    for (let ifd = first.next; ifd > 0; ) {
+      const { tags, next } = tagsOf(ifd);
+      if (tags.get(254)?.value === 4) maskTags = tags;
+      ifd = next;
+    }
+    expect(maskTags).not.toBeNull();
+    // an array of LONGs or SHORTs: stored apart when longer than 4 bytes
+    const list = (entry: { at: number; count: number; value: number }, type: number) =>
+      entry.count * (type === 3 ? 2 : 4) > 4 ? entry.value : entry.at + 8;
+    const maskCounts = maskTags!.get(279)!;
+    const maskOffsets = maskTags!.get(273)!;
+    const imageOffsets = first.tags.get(273)!;
+    const typeOf = (entry: { at: number }) => view.getUint16(entry.at + 2, true);
+    const write = (bytes: Uint8Array, entry: { at: number; count: number; value: number }, index: number, value: number) => {
+      const v = new DataView(bytes.buffer);
+      const at = list(entry, typeOf(entry));
+      if (typeOf(entry) === 3) v.setUint16(at + 2 * index, value, true);
+      else v.setUint32(at + 4 * index, value, true);
+    };
+    const imageStrip1 = new DataView(source.buffer).getUint32(list(imageOffsets, typeOf(imageOffsets)) + 4, true);
+    const cases: Array<[string, (b: Uint8Array) => void, RegExp]> = [
+      ['mask-missing-block', (b) => write(b, maskCounts, 0, 0), /mask strip 0 is missing/],
+      ['mask-over-image', (b) => write(b, maskOffsets, 0, imageStrip1), /the file is damaged: (mask strip 0 .*overlaps strip 1|strip 1 .*overlaps mask strip 0)/],
+    ];
+    for (const [name, damage, message] of cases) {
+      const bytes = source.slice();
+      damage(bytes);
+      const path = join(tmp, `${name}.tif`);
+      writeFileSync(path, bytes);
+      const error = await readError(path, { label: `rasters/${name}.tif` });
+      expect(error.code, name).toBe('input');
+      expect(error.message, name).toMatch(message);
+    }
+  });
 });
 
 
