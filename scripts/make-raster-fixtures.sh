@@ -263,6 +263,18 @@ create('i16-scale-offset.tif', with_holes(I, -32768), gdal.GDT_Int16,
        scale=0.004, offset=100.0, unit='m')
 good.append('i16-scale-offset.tif')
 
+# A compound CRS whose vertical part is in US survey feet: GDAL gives the band that unit (from the vertical CRS's
+# GeoKey) when no unit item is set.
+ds = gdal.GetDriverByName('GTiff').Create(path('f32-vertical-ftus.tif'), NX, NY, 1, gdal.GDT_Float32, ['COMPRESS=DEFLATE'])
+ds.SetGeoTransform(GT)
+compound = osr.SpatialReference()
+compound.SetFromUserInput('EPSG:32633+6360')
+ds.SetSpatialRef(compound)
+ds.GetRasterBand(1).SetNoDataValue(-9999.0)
+ds.GetRasterBand(1).WriteArray(with_holes(F, -9999.0))
+ds = None
+good.append('f32-vertical-ftus.tif')
+
 # Internal nodata masks (a second IFD with the NewSubfileType mask bit): masked cells are missing, as GDAL's mask
 # band says. One tiled with DEFLATE, one in LZW strips with an internal overview (whose own mask must be ignored),
 # and one made by `gdal_translate -mask` from a second band.
@@ -498,6 +510,8 @@ def describe(name):
         geographic = bool(srs.IsGeographic())
         if srs.GetAuthorityName(None) == 'EPSG':
             epsg = int(srs.GetAuthorityCode(None))
+        elif srs.IsCompound() and srs.GetAuthorityName('PROJCS') == 'EPSG':
+            epsg = int(srs.GetAuthorityCode('PROJCS'))  # the horizontal part of a compound CRS
     band1 = ds.GetRasterBand(1)
     entry = {
         'file': name,

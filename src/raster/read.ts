@@ -21,6 +21,7 @@
  * Everything a user can get wrong ends as PiezomapError('input') naming the file.
  */
 import { open, readFile, stat } from 'node:fs/promises';
+import { createRequire } from 'node:module';
 import { basename } from 'node:path';
 import { inflateSync } from 'node:zlib';
 import { fromArrayBuffer, fromFile, getDecoder } from 'geotiff';
@@ -29,7 +30,7 @@ import { PiezomapError, describeThrown, inputError } from '../errors.js';
 import { ZSTDDecoder } from 'zstddec/stream';
 import { decodeLzw } from './lzw.js';
 import type { Grid } from '../grid.js';
-import { RASTER_PIXEL_IS_POINT, crsFromGeoKeys, parseGeoKeyDirectory } from './geokeys.js';
+import { RASTER_PIXEL_IS_POINT, crsFromGeoKeys, linearUnitName, parseGeoKeyDirectory } from './geokeys.js';
 import type { GeoKeyRecord } from './geokeys.js';
 import type { RasterData } from './types.js';
 import { findBlockOverlap, findValueOverlap, tiffStructure } from './structure.js';
@@ -312,8 +313,27 @@ async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, ban
   }
   return {
     path, grid, values, nodata, bandCount: layout.samplesPerPixel, sampleType: layout.kind,
-    scale, offset, unit: metadata.unit, masked: maskLayout !== null,
+    scale, offset, unit: metadata.unit ?? verticalUnit(geoKeys), masked: maskLayout !== null,
   };
+}
+
+const require = createRequire(import.meta.url);
+
+/**
+ * The unit GDAL gives a band from the GeoKeys when the file sets none: that of VerticalUnitsGeoKey, else that of the
+ * vertical CRS (VerticalCSTypeGeoKey, looked up in the offline EPSG index). Null when neither is known.
+ */
+function verticalUnit(geoKeys: GeoKeyRecord | null): string | null {
+  const unitCode = geoKeys?.VerticalUnitsGeoKey;
+  if (typeof unitCode === 'number') return linearUnitName(unitCode) ?? `EPSG unit ${unitCode}`;
+  const crsCode = geoKeys?.VerticalCSTypeGeoKey;
+  if (typeof crsCode !== 'number' || crsCode === 32767) return null;
+  try {
+    const entry = require(`epsg-index/s/${crsCode}.json`) as { unit?: unknown };
+    return typeof entry.unit === 'string' ? entry.unit : null;
+  } catch {
+    return null; // an unknown code: no unit we could name
+  }
 }
 
 const DAMAGE_HINT = 'the file is damaged; copy or export it again from the original';
