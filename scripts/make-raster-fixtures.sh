@@ -361,6 +361,10 @@ ds.GetRasterBand(1).SetColorTable(table)
 ds = None
 bad['palette.tif'] = 'palette (colour table) raster: values are class indices'
 
+# A value band with an alpha band (ExtraSamples = unassociated alpha): GDAL masks the values with it.
+create('alpha.tif', None, gdal.GDT_Byte, ['ALPHA=YES', 'COMPRESS=DEFLATE'], wkt=UTM, bands=[with_holes(U8, 255), M])
+bad['alpha.tif'] = 'an alpha band, which GDAL uses as a mask'
+
 # GDAL keeps what it cannot write into the file in side files, and applies them when reading: a scale and offset
 # in a .aux.xml (set on a file opened read-only), a mask in a .msk file. Neither may be ignored.
 create('pam-scale.tif', np.round(F * 40.0), gdal.GDT_UInt16, ['COMPRESS=DEFLATE'], wkt=UTM)

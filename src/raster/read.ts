@@ -358,6 +358,17 @@ async function refuseIgnoredTags(image: GeoTIFFImage, label: string): Promise<vo
   if (orientation !== 1) {
     throw inputError(`${label}: the rows or columns are stored in another order than top-left first (Orientation ${orientation})`, { file: label, hint: CONVERT_HINT });
   }
+  // ExtraSamples 1 and 2: an alpha sample, which GDAL uses as the mask of the other bands (TIFF 6.0 section 18)
+  const extra = (await numbersTag(image, 'ExtraSamples')) ?? [];
+  if (extra.some((kind) => kind === 1 || kind === 2)) {
+    throw inputError(`${label}: the file has an alpha band, which GDAL applies as a mask to the others; piezomap does not`, {
+      file: label,
+      hint: 'turn the alpha into nodata and keep the value band, e.g. `gdal_translate -b 1 -mask 2 -a_nodata -9999 in.tif out.tif`, or mark missing cells with nodata',
+    });
+  }
+  if (image.getFileDirectory().hasTag('SubIFDs' as never)) {
+    throw inputError(`${label}: the file holds sub-images (SubIFDs), which may be masks or further images; piezomap does not read them`, { file: label, hint: CONVERT_HINT });
+  }
 }
 
 /**

@@ -221,6 +221,7 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     'huge-cells.tif': /100000 x 100000.*2\^31/,
     'huge-memory.tif': /46000 x 46000 cells need about .* memory/,
     'palette.tif': /colour table.*class/,
+    'alpha.tif': /alpha band.*mask/,
     'pam-scale.tif': /pam-scale\.tif\.aux\.xml.*Scale/,
     'external-mask.tif': /external-mask\.tif\.msk.*mask/,
   };
@@ -305,7 +306,7 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     }
   });
 
-  it('readRaster refuses what changes the meaning of the samples and is not applied: a second page, bit order, orientation', async () => {
+  it('readRaster refuses what changes the meaning of the samples and is not applied: a second page, bit order, orientation, sub-images', async () => {
     mkdirSync(tmp, { recursive: true });
     const source = new Uint8Array(readFileSync(join(fixtures, 'f32-strip-none.tif')));
     const view = new DataView(source.buffer);
@@ -350,6 +351,7 @@ describe('readRaster refuses bad files with an input error naming the file', () 
       ['two-pages', grown, /further full-resolution images \(pages\)/],
       ['fill-order', retagged(266, 2), /bits of each byte are stored in reverse order \(FillOrder 2\)/],
       ['orientation', retagged(274, 3), /another order than top-left first \(Orientation 3\)/],
+      ['sub-images', retagged(330, 8), /sub-images \(SubIFDs\)/],
     ];
     for (const [name, bytes, message] of cases) {
       const path = join(tmp, `${name}.tif`);
