@@ -274,7 +274,7 @@ function fileSystemError(thrown: unknown, label: string): PiezomapError {
 async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, band: number, maxBytes: number): Promise<RasterData> {
   const structure = tiffStructure(bytes);
   if (structure.loops) {
-    throw inputError(`${label}: the file is damaged: its chain of image file directories loops back on itself`, { file: label, hint: DAMAGE_HINT });
+    throw inputError(`${label}: the file is damaged: its image file directories loop back or overlap one another`, { file: label, hint: DAMAGE_HINT });
   }
   const misplaced = findValueOverlap(structure.ranges);
   if (misplaced) {

@@ -30,7 +30,7 @@ export interface TiffStructure {
   ranges: ByteRange[];
   /** How many IFDs the main chain holds (up to the first one outside the file). */
   ifdCount: number;
-  /** The chain points back to an IFD already visited (a loop: damage). */
+  /** The chain points back to an IFD already visited, or its IFDs overlap one another (damage). */
   loops: boolean;
 }
 
@@ -44,6 +44,9 @@ export function tiffStructure(bytes: Uint8Array): TiffStructure {
   const offsetAt = (at: number): number => (big ? Number(view.getBigUint64(at, little)) : view.getUint32(at, little));
   let ifd = big ? (size >= 16 ? offsetAt(8) : 0) : offsetAt(4);
   const seen = new Set<number>();
+  // IFD tables that lie apart cannot add up to more than the file: more means overlapping tables (damage), and
+  // stopping there bounds the walk on a hostile file
+  let tableBytes = 0;
   let index = 0;
   for (; ifd > 0 && index < MAX_IFDS && !seen.has(ifd); index++) {
     seen.add(ifd);
@@ -53,6 +56,8 @@ export function tiffStructure(bytes: Uint8Array): TiffStructure {
     const entryBytes = big ? 20 : 12;
     const end = ifd + countBytes + entries * entryBytes + (big ? 8 : 4);
     if (end > size) return { ranges, ifdCount: index, loops: false };
+    tableBytes += end - ifd;
+    if (tableBytes > size) return { ranges, ifdCount: index, loops: true };
     ranges.push({ start: ifd, end, what: `the image file directory ${index}`, kind: 'table' });
     const inline = big ? 8 : 4;
     for (let k = 0; k < entries; k++) {

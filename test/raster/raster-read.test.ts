@@ -306,7 +306,7 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     }
   });
 
-  it('readRaster refuses what changes the meaning of the samples and is not applied: a second page, bit order, orientation, sub-images', async () => {
+  it('readRaster refuses what changes the meaning of the samples and is not applied: a second page, bit order, orientation, sub-images, a looping IFD chain', async () => {
     mkdirSync(tmp, { recursive: true });
     const source = new Uint8Array(readFileSync(join(fixtures, 'f32-strip-none.tif')));
     const view = new DataView(source.buffer);
@@ -352,6 +352,11 @@ describe('readRaster refuses bad files with an input error naming the file', () 
       ['fill-order', retagged(266, 2), /bits of each byte are stored in reverse order \(FillOrder 2\)/],
       ['orientation', retagged(274, 3), /another order than top-left first \(Orientation 3\)/],
       ['sub-images', retagged(330, 8), /sub-images \(SubIFDs\)/],
+      ['ifd-loop', (() => {
+        const bytes = source.slice();
+        new DataView(bytes.buffer).setUint32(ifd + 2 + 12 * entries, ifd, true); // the next IFD is this one
+        return bytes;
+      })(), /the file is damaged: its image file directories loop back or overlap/],
     ];
     for (const [name, bytes, message] of cases) {
       const path = join(tmp, `${name}.tif`);
