@@ -262,6 +262,9 @@ create('i16-scale-offset.tif', with_holes(I, -32768), gdal.GDT_Int16,
        ['TILED=YES', 'BLOCKXSIZE=16', 'BLOCKYSIZE=16', 'COMPRESS=LZW', 'PREDICTOR=2'], nodata=-32768, wkt=UTM,
        scale=0.004, offset=100.0, unit='m')
 good.append('i16-scale-offset.tif')
+create('f32-scale-offset.tif', with_holes(F, -9999.0), gdal.GDT_Float32, ['COMPRESS=DEFLATE', 'PREDICTOR=3'],
+       nodata=-9999.0, wkt=UTM, scale=0.3048, offset=-12.5)  # e.g. heads stored in feet above another datum
+good.append('f32-scale-offset.tif')
 
 # A compound CRS whose vertical part is in US survey feet: GDAL gives the band that unit (from the vertical CRS's
 # GeoKey) when no unit item is set.
@@ -517,6 +520,9 @@ def describe(name):
         elif srs.IsCompound() and srs.GetAuthorityName('PROJCS') == 'EPSG':
             epsg = int(srs.GetAuthorityCode('PROJCS'))  # the horizontal part of a compound CRS
     band1 = ds.GetRasterBand(1)
+    # unscaled values are doubles (stored x scale + offset), whatever the stored type
+    scaled = (band1.GetScale() not in (None, 1.0)) or (band1.GetOffset() not in (None, 0.0))
+    float32_values = band1.DataType == gdal.GDT_Float32 and not scaled
     entry = {
         'file': name,
         'width': ds.RasterXSize,
@@ -528,7 +534,7 @@ def describe(name):
         'epsg': epsg,
         'geographic': geographic,
         'nodata': None,
-        'float32Values': band1.DataType == gdal.GDT_Float32,
+        'float32Values': float32_values,
         'scale': band1.GetScale(),
         'offset': band1.GetOffset(),
         'unit': band1.GetUnitType() or None,
@@ -546,7 +552,7 @@ def describe(name):
                 entry['bands'].append(record)  # further bands: checksum only
                 continue
             # Float32 values as their shortest float32 text (read back with Math.fround), others exactly
-            if band1.DataType == gdal.GDT_Float32:
+            if float32_values:
                 record['values'] = [None if math.isnan(x) else float(str(np.float32(x))) for x in v]
             else:
                 record['values'] = [None if math.isnan(x) else float(x) for x in v]
