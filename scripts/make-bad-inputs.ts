@@ -272,6 +272,9 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   rasterCase('raster-scale-zero', 'a band scale of 0 (every value would become the offset)',
     stripTiff({ width: NX, height: NY, pixels: kValues, nodata: '-9999', gdalMetadata: metadata('<Item name="SCALE" sample="0" role="scale">0</Item>') }),
     /raster-scale-zero\.tif.*scale "0".*not a usable number/);
+  rasterCase('raster-unit-mismatch', 'conductivity declared in mm/d where the scenario takes m/d',
+    stripTiff({ width: NX, height: NY, pixels: kValues, nodata: '-9999', gdalMetadata: metadata('<Item name="UNITTYPE" sample="0" role="unittype">mm/d</Item>') }),
+    /declares its values in "mm\/d", but aquifer\.conductivity is taken in m\/d/);
   rasterCase('raster-palette', 'a palette raster (colour-class codes)',
     stripTiff({ width: NX, height: NY, pixels: new Uint8Array(NX * NY).fill(3), bitsPerSample: 8, sampleFormat: 1, photometric: 3 }),
     /raster-palette\.tif.*colour table/);

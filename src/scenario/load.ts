@@ -17,6 +17,7 @@ import { describeThrown, inputError, PiezomapError } from '../errors.js';
 import { readRaster, readRasterHeader } from '../raster/read.js';
 import { checkRasterMemory, rasterBudget, type RasterFootprint } from '../memory.js';
 import type { RasterData } from '../raster/types.js';
+import { describeExpectedUnit, unitMatches, type Quantity, type ValueUnits } from '../raster/units.js';
 import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from './crs.js';
 import {
   parseScenarioJson,
@@ -70,6 +71,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   if (!inline) loader.inputFiles.add(resolve(scenarioPath));
 
   const units = { length: raw.units?.length ?? 'm', time: raw.units?.time ?? 'd' } as const;
+  loader.units = units;
 
   // Every raster's size from its header, checked together against the memory budget before any is decoded.
   await loader.checkRasterMemory(raw);
@@ -189,6 +191,13 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   };
 }
 
+/** What the values of a raster key measure, for checking a unit the raster declares. */
+function quantityOf(key: string): Quantity {
+  if (key === 'aquifer.conductivity' || key === 'recharge') return 'velocity';
+  if (key === 'aquifer.porosity') return 'fraction';
+  return 'length'; // thickness, top, bottom, ground surface, fixed heads
+}
+
 /** Index of the first +-Infinity in `values`, or -1. */
 function firstInfinite(values: Float64Array): number {
   for (let p = 0; p < values.length; p++) {
@@ -269,6 +278,9 @@ class Loader {
     this.warnings.push(text);
   }
 
+  /** The scenario's units, which raster values are taken in. */
+  units: ValueUnits = { length: 'm', time: 'd' };
+
   /** The conductivity raster as the scenario names it: every other raster must share its grid. */
   private reference: { key: string; given: string } | null = null;
 
@@ -285,8 +297,15 @@ class Loader {
       throw inputError(`${this.label}: ${key}: "${given}" cannot be read as a GeoTIFF: ${describeThrown(thrown)}`, { file: absolute, key });
     }
     this.inputFiles.add(absolute);
-    if (raster.unit !== null) {
-      this.warn(`${key} "${given}" declares its values in "${raster.unit}"; piezomap does not convert units: they are taken in the scenario's units`);
+    // A declared unit must be the one the key's values are taken in: piezomap converts no units.
+    const quantity = quantityOf(key);
+    if (raster.unit !== null && !unitMatches(raster.unit, quantity, this.units)) {
+      const expected = describeExpectedUnit(quantity, this.units);
+      throw inputError(`${this.label}: ${key} "${given}" declares its values in "${raster.unit}", but ${key} is taken in ${expected} (units in the scenario); piezomap converts no units`, {
+        file: absolute,
+        key,
+        hint: `convert the values to ${expected} and declare that unit (e.g. gdal_calc.py, then gdal_edit.py -units), or set "units" in the scenario to match`,
+      });
     }
     // Several bands: which one holds the values cannot be guessed, and a wrong guess gives a plausible-looking result.
     if (raster.bandCount > 1) {

@@ -455,7 +455,28 @@ describe('variants', () => {
       expect((model.thickness as Float64Array)[p]).toBe(b[p]);
     }
     expect(k[40]).toBeLessThan(10); // about 4 m/d, not the stored 4000
-    expect(model.warnings).toContain('aquifer.thickness "i16-scale-offset.tif" declares its values in "m"; piezomap does not convert units: they are taken in the scenario\'s units');
+    // the thickness raster declares "m", the scenario's length unit: accepted
+    expect(model.warnings).toEqual([]);
+  });
+
+  it('refuses a raster whose declared unit is not the one its key is taken in; accepts it when the scenario units match', async () => {
+    const fixtures = resolve(__dirname, '../fixtures/rasters');
+    // f32-vertical-ftus.tif: GDAL gives its band the unit of its vertical CRS, the US survey foot
+    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'f32-vertical-ftus.tif' }, fixedHeads: [{ edge: 'west', head: 10 }] };
+    let error: unknown;
+    try {
+      await resolveScenario(raw as unknown as ScenarioJson, fixtures, '<inline>');
+    } catch (thrown) {
+      error = thrown;
+    }
+    expect(error).toBeInstanceOf(PiezomapError);
+    expect((error as PiezomapError).code).toBe('input');
+    expect((error as PiezomapError).message).toBe(
+      '<inline scenario>: aquifer.thickness "f32-vertical-ftus.tif" declares its values in "US survey foot", but aquifer.thickness is taken in m (units in the scenario); piezomap converts no units',
+    );
+    expect((error as PiezomapError).detail.key).toBe('aquifer.thickness');
+    const inFeet = await resolveScenario({ ...raw, units: { length: 'ft', time: 'd' } } as unknown as ScenarioJson, fixtures, '<inline>');
+    expect(inFeet.thickness).toBeInstanceOf(Float64Array);
   });
 });
 
