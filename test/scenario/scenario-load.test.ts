@@ -440,7 +440,7 @@ describe('variants', () => {
     expect((error as PiezomapError).message).toContain('variants "typo".wells[0]: well "w1" is new here, so it needs x, y (no earlier well has this id)');
   });
 
-  it('takes scaled rasters in GDAL unscaled values and accepts a declared unit that is the key'\''s (GDAL-written fixtures)', async () => {
+  it('takes scaled rasters in GDAL unscaled values and accepts a declared unit that matches its key (GDAL-written fixtures)', async () => {
     // u16-scale.tif: UInt16 with scale 0.001 (e.g. mm/d stored, m/d meant); i16-scale-offset.tif: Int16 x 0.004 + 100,
     // unit "m". expected.json holds GDAL 3.6's unscaled values (scripts/make-raster-fixtures.sh).
     const fixtures = resolve(__dirname, '../fixtures/rasters');
