@@ -108,6 +108,10 @@ export interface StripTiffSpec {
   /** CRS GeoKeys: projected (default EPSG:32633), geographic, or none. */
   crs?: { epsg: number; geographic: boolean } | null;
   nodata?: string;
+  /** GDAL's metadata XML (TIFF tag 42112), e.g. band scale and offset items. */
+  gdalMetadata?: string;
+  /** PhotometricInterpretation (default 1, min-is-black; 3 = palette). */
+  photometric?: number;
 }
 
 export function stripTiff(spec: StripTiffSpec): Uint8Array {
@@ -125,7 +129,7 @@ export function stripTiff(spec: StripTiffSpec): Uint8Array {
     { tag: 257, type: LONG, values: [spec.height] },
     { tag: 258, type: SHORT, values: new Array(spp).fill(bits) },
     { tag: 259, type: SHORT, values: [spec.compression ?? 1] },
-    { tag: 262, type: SHORT, values: [1] },
+    { tag: 262, type: SHORT, values: [spec.photometric ?? 1] },
     { tag: 273, type: LONG, values: strips.map((s) => 8 + s[0]) },
     { tag: 277, type: SHORT, values: [spp] },
     { tag: 278, type: LONG, values: [rowsPerStrip] },
@@ -147,6 +151,7 @@ export function stripTiff(spec: StripTiffSpec): Uint8Array {
       : [1, 1, 0, 3, 1024, 0, 1, 1, 1025, 0, 1, 1, 3072, 0, 1, crs.epsg];
     entries.push({ tag: 34735, type: SHORT, values: keys });
   }
+  if (spec.gdalMetadata !== undefined) entries.push({ tag: 42112, type: ASCII, values: spec.gdalMetadata });
   if (spec.nodata !== undefined) entries.push({ tag: 42113, type: ASCII, values: spec.nodata });
   entries.sort((a, b) => a.tag - b.tag);
 
@@ -257,6 +262,37 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   rasterCase('raster-geographic', 'EPSG:4326 (degrees are not lengths)', stripTiff({ width: NX, height: NY, pixels: float32Pixels(k), crs: { epsg: 4326, geographic: true } }), /geographic CRS/);
   rasterCase('raster-infinite-k', '+Infinity conductivity values', encodeFloat32GeoTiff(baseGrid, k.map((v, p) => (p === 13 ? Infinity : v))), /infinite|Infinity/);
   rasterCase('raster-all-inactive', 'every conductivity cell is nodata or <= 0', encodeFloat32GeoTiff(baseGrid, k.map((_, p) => (p % 2 ? Number.NaN : -1))), /no active cell/);
+
+  // What GDAL applies when reading must be applied or refused, never ignored (scale and offset, masks, palettes).
+  const kValues = float32Pixels(k.map((v) => (Number.isNaN(v) ? -9999 : v)));
+  const metadata = (items: string) => `<GDALMetadata>\n${items}\n</GDALMetadata>`;
+  rasterCase('raster-metadata-role', 'a band metadata item with a role we do not know how to apply',
+    stripTiff({ width: NX, height: NY, pixels: kValues, nodata: '-9999', gdalMetadata: metadata('<Item name="GAIN" sample="0" role="gain">1000</Item>') }),
+    /raster-metadata-role\.tif.*role "gain"/);
+  rasterCase('raster-scale-zero', 'a band scale of 0 (every value would become the offset)',
+    stripTiff({ width: NX, height: NY, pixels: kValues, nodata: '-9999', gdalMetadata: metadata('<Item name="SCALE" sample="0" role="scale">0</Item>') }),
+    /raster-scale-zero\.tif.*scale "0".*not a usable number/);
+  rasterCase('raster-unit-mismatch', 'conductivity declared in mm/d where the scenario takes m/d',
+    stripTiff({ width: NX, height: NY, pixels: kValues, nodata: '-9999', gdalMetadata: metadata('<Item name="UNITTYPE" sample="0" role="unittype">mm/d</Item>') }),
+    /declares its values in "mm\/d", but aquifer\.conductivity is taken in m\/d/);
+  rasterCase('raster-palette', 'a palette raster (colour-class codes)',
+    stripTiff({ width: NX, height: NY, pixels: new Uint8Array(NX * NY).fill(3), bitsPerSample: 8, sampleFormat: 1, photometric: 3 }),
+    /raster-palette\.tif.*colour table/);
+  file('k-side-mask.tif', kStrip);
+  file('k-side-mask.tif.msk', stripTiff({ width: NX, height: NY, pixels: new Uint8Array(NX * NY).fill(255), bitsPerSample: 8, sampleFormat: 1 }));
+  solveCase('raster-external-mask', 'an external mask file (.msk) beside the raster, which GDAL would apply', aquifer('k-side-mask.tif'), 2, /k-side-mask\.tif\.msk/);
+  file('k-side-scale.tif', kStrip);
+  file('k-side-scale.tif.aux.xml', '<PAMDataset>\n  <PAMRasterBand band="1">\n    <Scale>0.001</Scale>\n  </PAMRasterBand>\n</PAMDataset>\n');
+  solveCase('raster-side-scale', 'a scale in a .aux.xml side file, which GDAL would apply', aquifer('k-side-scale.tif'), 2, /k-side-scale\.tif\.aux\.xml sets Scale/);
+
+  // Damaged block offsets that a lenient reader decodes: into the IFD, into the header, into another block.
+  const ifdOfStrip = new DataView(kStrip.buffer).getUint32(4, true);
+  rasterCase('raster-strip-into-ifd', 'a strip offset pointing into the image file directory',
+    withBlockOffset(kStrip, 273, 0, () => ifdOfStrip), /raster-strip-into-ifd\.tif"?: the file is damaged: strip 0 .*overlaps the image file directory 0/);
+  rasterCase('raster-strips-overlap', 'two strips sharing bytes',
+    withBlockOffset(kStrip, 273, 2, (offsets) => offsets[1]! + 8), /raster-strips-overlap\.tif"?: the file is damaged: strip 2 .*overlaps strip 1/);
+  rasterCase('raster-tile-into-header', 'a tile offset pointing at the TIFF header',
+    withBlockOffset(kBytes, 324, 0, () => 0), /raster-tile-into-header\.tif"?: the file is damaged: tile 0 .*overlaps the TIFF header/);
 
   // --- rasters given together ------------------------------------------------------------------------------
   file('thick-other-size.tif', encodeFloat32GeoTiff({ ...baseGrid, nx: NX + 1 }, new Float64Array((NX + 1) * NY).fill(20)));
@@ -405,7 +441,24 @@ export function writeBadInputs(dir: string): BadInputCase[] {
     });
   }
   solveCase('memory-limit-tiny', 'a memory limit of 4 MiB, below what the program itself takes', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /memory limit is 4\.0 MiB[^]*raise it/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '4' } });
-  solveCase('memory-limit-raster', 'a memory limit of 1 MiB: the 200 x 200 raster is refused as it is read', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /k-200\.tif.*more than half of the memory/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '1' } });
+  solveCase('memory-limit-raster', 'a memory limit of 1 MiB: the 200 x 200 raster is refused from its header, before it is decoded', { ...aquifer('k-200.tif'), wells: [], observations: [] }, 2, /k-200\.tif.*more than half of the memory/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: '1' } });
+  {
+    // A few hundred bytes claiming 3000 x 3000 Float32 cells, all in one missing ("sparse") strip, named by seven keys:
+    // 72 MB each as doubles, 504 MB together; each alone would fit half of the 800 MiB limit, all together do not.
+    const sparse = stripTiff({ width: 3000, height: 3000, pixels: new Uint8Array(16), rowsPerStrip: 3000, nodata: '-9999' });
+    file('sparse-big.tif', withBlockCounts(sparse, 279, 0));
+    const path = file('memory-seven-keys.json', JSON.stringify({
+      ...baseScenario('sparse-big.tif'),
+      aquifer: { conductivity: 'sparse-big.tif', thickness: 'sparse-big.tif', porosity: 'sparse-big.tif', top: 'sparse-big.tif', bottom: 'sparse-big.tif' },
+      groundSurface: 'sparse-big.tif', recharge: 'sparse-big.tif', wells: [], observations: [],
+    }, null, 2));
+    const out = outFor('memory-seven-keys');
+    cases.push({
+      name: 'memory-seven-keys', what: 'a tiny sparse raster claiming 3000 x 3000 cells, named by seven keys: refused from the headers, before decoding', args: ['solve', path, '-o', out], out, code: 2,
+      message: /7 rasters need about 5\d\d\.\d MiB once read \(aquifer\.conductivity "sparse-big\.tif" 3000 x 3000 \(68\.7 MiB\)[^]*nothing was decoded/,
+      allowedFiles: [], env: { PIEZOMAP_MEMORY_LIMIT_MB: '800' },
+    });
+  }
   solveCase('memory-limit-unusable', 'PIEZOMAP_MEMORY_LIMIT_MB=lots', {}, 2, /PIEZOMAP_MEMORY_LIMIT_MB="lots"/, { env: { PIEZOMAP_MEMORY_LIMIT_MB: 'lots' } });
   {
     const path = file('not-converged.json', JSON.stringify(baseScenario(), null, 2));
@@ -469,6 +522,45 @@ function corruptTiles(bytes: Uint8Array): Uint8Array {
   offsets.forEach((offset, i) => {
     for (let b = 2; b < counts[i]! - 4; b++) out[offset + b] = (b * 37 + 11) & 0xff;
   });
+  return out;
+}
+
+/** The values of a LONG (or SHORT) list tag of the first IFD, and where they are stored. */
+function longList(bytes: Uint8Array, tag: number): { at: number; size: number; values: number[] } {
+  const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  const ifd = view.getUint32(4, true);
+  const n = view.getUint16(ifd, true);
+  for (let k = 0; k < n; k++) {
+    const entry = ifd + 2 + 12 * k;
+    if (view.getUint16(entry, true) !== tag) continue;
+    const size = view.getUint16(entry + 2, true) === 3 ? 2 : 4;
+    const count = view.getUint32(entry + 4, true);
+    const at = count * size > 4 ? view.getUint32(entry + 8, true) : entry + 8;
+    const values = Array.from({ length: count }, (_, i) => (size === 2 ? view.getUint16(at + 2 * i, true) : view.getUint32(at + 4 * i, true)));
+    return { at, size, values };
+  }
+  throw new Error(`tag ${tag} not found`);
+}
+
+function setListValue(bytes: Uint8Array, list: { at: number; size: number }, index: number, value: number): void {
+  const view = new DataView(bytes.buffer, bytes.byteOffset, bytes.byteLength);
+  if (list.size === 2) view.setUint16(list.at + 2 * index, value, true);
+  else view.setUint32(list.at + 4 * index, value, true);
+}
+
+/** A copy with block `index` of the offsets tag (273 strips, 324 tiles) moved to `offset(current offsets)`. */
+function withBlockOffset(bytes: Uint8Array, tag: number, index: number, offset: (offsets: number[]) => number): Uint8Array {
+  const out = bytes.slice();
+  const list = longList(out, tag);
+  setListValue(out, list, index, offset(list.values));
+  return out;
+}
+
+/** A copy with every block byte count (279 strips, 325 tiles) set to `count` (0: missing, "sparse" blocks). */
+function withBlockCounts(bytes: Uint8Array, tag: number, count: number): Uint8Array {
+  const out = bytes.slice();
+  const list = longList(out, tag);
+  list.values.forEach((_, i) => setListValue(out, list, i, count));
   return out;
 }
 

@@ -26,7 +26,7 @@ if [ -z "$python" ]; then
   exit 1
 fi
 
-rm -f "$out"/*.tif "$out"/expected.json
+rm -f "$out"/*.tif "$out"/*.tif.aux.xml "$out"/*.tif.msk "$out"/expected.json
 
 "$python" - "$out" <<'PY'
 import hashlib
@@ -77,8 +77,10 @@ def with_holes(a, fill):
     return a
 
 
-def create(name, data, dtype, options=(), nodata=None, gt=GT, wkt=None, metadata=None, bands=None, check=True):
-    """Write with the GTiff driver; `bands` is a list of 2-D arrays for multi-band files."""
+def create(name, data, dtype, options=(), nodata=None, gt=GT, wkt=None, metadata=None, bands=None, check=True,
+           scale=None, offset=None, unit=None, mask=None, overviews=None):
+    """Write with the GTiff driver; `bands` is a list of 2-D arrays for multi-band files; `mask` (0 = masked) as an
+    internal per-dataset mask band."""
     arrays = bands if bands is not None else [data]
     ny, nx = arrays[0].shape
     ds = gdal.GetDriverByName('GTiff').Create(path(name), nx, ny, len(arrays), dtype, list(options))
@@ -89,12 +91,26 @@ def create(name, data, dtype, options=(), nodata=None, gt=GT, wkt=None, metadata
     if metadata:
         for k, v in metadata.items():
             ds.SetMetadataItem(k, v)
+    if mask is not None:
+        gdal.SetConfigOption('GDAL_TIFF_INTERNAL_MASK', 'YES')
+        ds.CreateMaskBand(gdal.GMF_PER_DATASET)
     for i, a in enumerate(arrays):
         band = ds.GetRasterBand(i + 1)
         if nodata is not None:
             band.SetNoDataValue(nodata)
+        if scale is not None:
+            band.SetScale(scale)
+        if offset is not None:
+            band.SetOffset(offset)
+        if unit is not None:
+            band.SetUnitType(unit)
         band.WriteArray(a)
+    if mask is not None:
+        ds.GetRasterBand(1).GetMaskBand().WriteArray(mask)
+    if overviews:
+        ds.BuildOverviews('NEAREST', overviews)
     ds = None
+    gdal.SetConfigOption('GDAL_TIFF_INTERNAL_MASK', None)
     if check:
         # GDAL must read back exactly what it was given (this caught GDAL 3.6 misreading big-endian PREDICTOR=3)
         ds = gdal.Open(path(name))
@@ -237,6 +253,52 @@ create('f32-userdefined-crs.tif', with_holes(F, -9999.0), gdal.GDT_Float32, ['CO
                          '+units=m +no_defs'))
 good.append('f32-userdefined-crs.tif')
 
+# Per-band scale and offset (GDAL_METADATA items with role "scale"/"offset"): GDAL's unscaled value is
+# stored x scale + offset, with the nodata value compared with the stored value first.
+create('u16-scale.tif', with_holes(np.round(F * 40.0), 0), gdal.GDT_UInt16, ['COMPRESS=DEFLATE', 'BLOCKYSIZE=5'],
+       nodata=0, wkt=UTM, scale=0.001)  # e.g. conductivity stored in mm/d
+good.append('u16-scale.tif')
+create('i16-scale-offset.tif', with_holes(I, -32768), gdal.GDT_Int16,
+       ['TILED=YES', 'BLOCKXSIZE=16', 'BLOCKYSIZE=16', 'COMPRESS=LZW', 'PREDICTOR=2'], nodata=-32768, wkt=UTM,
+       scale=0.004, offset=100.0, unit='m')
+good.append('i16-scale-offset.tif')
+create('f32-scale-offset.tif', with_holes(F, -9999.0), gdal.GDT_Float32, ['COMPRESS=DEFLATE', 'PREDICTOR=3'],
+       nodata=-9999.0, wkt=UTM, scale=0.3048, offset=-12.5)  # e.g. heads stored in feet above another datum
+good.append('f32-scale-offset.tif')
+
+# A compound CRS whose vertical part is in US survey feet: GDAL gives the band that unit (from the vertical CRS's
+# GeoKey) when no unit item is set.
+ds = gdal.GetDriverByName('GTiff').Create(path('f32-vertical-ftus.tif'), NX, NY, 1, gdal.GDT_Float32, ['COMPRESS=DEFLATE'])
+ds.SetGeoTransform(GT)
+compound = osr.SpatialReference()
+compound.SetFromUserInput('EPSG:32633+6360')
+ds.SetSpatialRef(compound)
+ds.GetRasterBand(1).SetNoDataValue(-9999.0)
+ds.GetRasterBand(1).WriteArray(with_holes(F, -9999.0))
+ds = None
+good.append('f32-vertical-ftus.tif')
+
+# Internal nodata masks (a second IFD with the NewSubfileType mask bit): masked cells are missing, as GDAL's mask
+# band says. One tiled with DEFLATE, one in LZW strips with an internal overview (whose own mask must be ignored),
+# and one made by `gdal_translate -mask` from a second band.
+M = np.full((NY, NX), 255, dtype=np.uint8)
+M[2:6, 20:31] = 0
+M[NY - 1, :] = 0
+M[10, 3] = 0
+create('f32-mask-tiled.tif', with_holes(F, -9999.0), gdal.GDT_Float32,
+       ['TILED=YES', 'BLOCKXSIZE=16', 'BLOCKYSIZE=16', 'COMPRESS=DEFLATE'], nodata=-9999.0, wkt=UTM, mask=M)
+good.append('f32-mask-tiled.tif')
+create('f32-mask-strip-ovr.tif', F, gdal.GDT_Float32, ['COMPRESS=LZW', 'BLOCKYSIZE=4'], wkt=UTM, mask=M,
+       overviews=[2])
+good.append('f32-mask-strip-ovr.tif')
+create('mask-source.tif', None, gdal.GDT_Float32, ['COMPRESS=NONE'], wkt=UTM, bands=[F, M.astype(np.float32)])
+gdal.SetConfigOption('GDAL_TIFF_INTERNAL_MASK', 'YES')
+gdal.Translate(path('f32-translate-mask.tif'), path('mask-source.tif'), bandList=[1], maskBand=2,
+               creationOptions=['COMPRESS=ZSTD', 'TILED=YES', 'BLOCKXSIZE=16', 'BLOCKYSIZE=16'])
+gdal.SetConfigOption('GDAL_TIFF_INTERNAL_MASK', None)
+os.remove(path('mask-source.tif'))
+good.append('f32-translate-mask.tif')
+
 # ---- files the reader must refuse with an input error naming the file ------------------------------------------
 bad = {}
 
@@ -291,6 +353,38 @@ with open(path('truncated-tile.tif'), 'r+b') as f:
     f.truncate(size - 40)
 bad['truncated-tile.tif'] = 'tile data cut short'
 
+
+# A colour table (palette photometric): the values are colour indices of classes, not measurements.
+create('palette.tif', with_holes(U8, 255), gdal.GDT_Byte, ['COMPRESS=DEFLATE'], wkt=UTM)
+ds = gdal.Open(path('palette.tif'), gdal.GA_Update)
+table = gdal.ColorTable()
+for i in range(256):
+    table.SetColorEntry(i, (i, 255 - i, (3 * i) % 256, 255))
+ds.GetRasterBand(1).SetColorTable(table)
+ds = None
+bad['palette.tif'] = 'palette (colour table) raster: values are class indices'
+
+# A value band with an alpha band (ExtraSamples = unassociated alpha): GDAL masks the values with it.
+create('alpha.tif', None, gdal.GDT_Byte, ['ALPHA=YES', 'COMPRESS=DEFLATE'], wkt=UTM, bands=[with_holes(U8, 255), M])
+bad['alpha.tif'] = 'an alpha band, which GDAL uses as a mask'
+
+# GDAL keeps what it cannot write into the file in side files, and applies them when reading: a scale and offset
+# in a .aux.xml (set on a file opened read-only), a mask in a .msk file. Neither may be ignored.
+create('pam-scale.tif', np.round(F * 40.0), gdal.GDT_UInt16, ['COMPRESS=DEFLATE'], wkt=UTM)
+ds = gdal.Open(path('pam-scale.tif'))  # read-only: GDAL writes the scale into pam-scale.tif.aux.xml
+ds.GetRasterBand(1).SetScale(0.001)
+ds = None
+assert os.path.exists(path('pam-scale.tif.aux.xml'))
+bad['pam-scale.tif'] = 'scale kept in a .aux.xml side file'
+gdal.SetConfigOption('GDAL_TIFF_INTERNAL_MASK', 'NO')
+create('external-mask.tif', F, gdal.GDT_Float32, ['COMPRESS=DEFLATE'], wkt=UTM)
+ds = gdal.Open(path('external-mask.tif'), gdal.GA_Update)
+ds.CreateMaskBand(gdal.GMF_PER_DATASET)
+ds.GetRasterBand(1).GetMaskBand().WriteArray(M)
+ds = None
+gdal.SetConfigOption('GDAL_TIFF_INTERNAL_MASK', None)
+assert os.path.exists(path('external-mask.tif.msk'))
+bad['external-mask.tif'] = 'mask kept in a .msk side file'
 
 def patch_double_tag(name, tag, index, value):
     """Overwrite one double of a classic little-endian TIFF tag stored out of line (GDAL writes those)."""
@@ -403,6 +497,14 @@ def band_values(band):
         if band.DataType == gdal.GDT_Float32:
             nodata = float(np.float32(nodata))
         a[a == nodata] = np.nan
+    # GDAL's unscaled value (as `gdal_translate -unscale` computes it): stored x scale + offset, nodata excluded first
+    scale = band.GetScale()
+    offset = band.GetOffset()
+    if (scale is not None and scale != 1.0) or (offset is not None and offset != 0.0):
+        a = a * (1.0 if scale is None else scale) + (0.0 if offset is None else offset)
+    # a per-dataset mask band (internal mask): 0 = no data
+    if band.GetMaskFlags() == gdal.GMF_PER_DATASET:
+        a[band.GetMaskBand().ReadAsArray() == 0] = np.nan
     return a.ravel()
 
 
@@ -415,7 +517,12 @@ def describe(name):
         geographic = bool(srs.IsGeographic())
         if srs.GetAuthorityName(None) == 'EPSG':
             epsg = int(srs.GetAuthorityCode(None))
+        elif srs.IsCompound() and srs.GetAuthorityName('PROJCS') == 'EPSG':
+            epsg = int(srs.GetAuthorityCode('PROJCS'))  # the horizontal part of a compound CRS
     band1 = ds.GetRasterBand(1)
+    # unscaled values are doubles (stored x scale + offset), whatever the stored type
+    scaled = (band1.GetScale() not in (None, 1.0)) or (band1.GetOffset() not in (None, 0.0))
+    float32_values = band1.DataType == gdal.GDT_Float32 and not scaled
     entry = {
         'file': name,
         'width': ds.RasterXSize,
@@ -427,7 +534,11 @@ def describe(name):
         'epsg': epsg,
         'geographic': geographic,
         'nodata': None,
-        'float32Values': band1.DataType == gdal.GDT_Float32,
+        'float32Values': float32_values,
+        'scale': band1.GetScale(),
+        'offset': band1.GetOffset(),
+        'unit': band1.GetUnitType() or None,
+        'masked': band1.GetMaskFlags() == gdal.GMF_PER_DATASET,
         'bands': [],
     }
     nd = band1.GetNoDataValue()
@@ -441,7 +552,7 @@ def describe(name):
                 entry['bands'].append(record)  # further bands: checksum only
                 continue
             # Float32 values as their shortest float32 text (read back with Math.fround), others exactly
-            if band1.DataType == gdal.GDT_Float32:
+            if float32_values:
                 record['values'] = [None if math.isnan(x) else float(str(np.float32(x))) for x in v]
             else:
                 record['values'] = [None if math.isnan(x) else float(x) for x in v]

@@ -83,6 +83,56 @@ export function checkMemoryBudget(grid: Grid, solver: SolverFootprint, leaner: S
   );
 }
 
+/** Share of the memory limit that a scenario's rasters may take together once decoded; the rest is for the run. */
+export const RASTER_SHARE = 0.5;
+
+/** Bytes the rasters of a run may take: what the loader lets the reader use (the reader's `maxBytes`). */
+export function rasterBudget(limit: MemoryLimit = memoryLimit()): number {
+  return limit.bytes * RASTER_SHARE;
+}
+
+/** One raster a scenario key names, sized from its header (src/raster/read.ts, readRasterHeader). */
+export interface RasterFootprint {
+  /** Scenario key and the path as given, for messages. */
+  key: string;
+  given: string;
+  width: number;
+  height: number;
+  /** The band as doubles, held for the whole run. */
+  valueBytes: number;
+  /** The peak while it is read: the values, the file's bytes and one decoded block. */
+  readBytes: number;
+}
+
+/**
+ * Refuse a scenario whose rasters do not fit together, before any is decoded: every key's raster is held as doubles
+ * (a file named by several keys is read once per key), and one is being read at a time on top of those.
+ * The budget is the raster share of the limit (`rasterBudget`).
+ */
+export function checkRasterMemory(rasters: RasterFootprint[], limit: MemoryLimit = memoryLimit()): void {
+  let held = 0;
+  let reading = 0;
+  for (const r of rasters) {
+    held += r.valueBytes;
+    reading = Math.max(reading, r.readBytes - r.valueBytes);
+  }
+  const needed = held + reading;
+  const budget = rasterBudget(limit);
+  if (needed <= budget) return;
+  const largest = [...rasters].sort((a, b) => b.valueBytes - a.valueBytes);
+  const listed = largest.slice(0, 4).map((r) => `${r.key} "${r.given}" ${r.width} x ${r.height} (${formatBytes(r.valueBytes)})`);
+  if (largest.length > 4) listed.push(`${largest.length - 4} more`);
+  const repeated = new Set(rasters.map((r) => r.given)).size < rasters.length;
+  throw inputError(
+    `the scenario's ${rasters.length === 1 ? 'raster needs' : `${rasters.length} rasters need`} about ${formatBytes(needed)} once read (${listed.join(', ')}), more than half of the memory a run may use (limit ${formatBytes(limit.bytes)}, ${limit.source}); nothing was decoded`,
+    {
+      file: largest[0]?.given,
+      key: largest[0]?.key,
+      hint: `clip the rasters to the model area or coarsen them (gdalwarp -te / -tr)${repeated ? '; a file named by several keys is read once for each' : ''}`,
+    },
+  );
+}
+
 export function formatBytes(n: number): string {
   if (n >= 2 ** 30) return `${(n / 2 ** 30).toFixed(1)} GiB`;
   if (n >= 2 ** 20) return `${(n / 2 ** 20).toFixed(1)} MiB`;

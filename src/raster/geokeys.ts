@@ -224,7 +224,8 @@ function numberKey(keys: GeoKeyRecord, name: string): number | null {
 }
 
 /** EPSG unit-of-measure codes used by ProjLinearUnitsGeoKey (EPSG dataset: 9001 metre, 9002 foot, 9003 US survey foot). */
-function linearUnitName(code: number | null): string | undefined {
+/** The name of an EPSG linear unit code (9001-9003), as GDAL names it. */
+export function linearUnitName(code: number | null): string | undefined {
   switch (code) {
     case 9001:
       return 'metre';

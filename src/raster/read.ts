@@ -6,26 +6,61 @@
  * bounded decoder (lzw.ts). Block assembly, predictors, byte order, sample conversion and
  * nodata masking are done here, in one pass per block row, because geotiff 3.0.5 gets several of them wrong
  * (horizontal differencing on big-endian files, Float64 with predictor 2, silently zero-filled truncated blocks).
+ *
+ * What GDAL applies when it reads a file is applied here too, or the file is refused; nothing is ignored:
+ * - per-band scale and offset (GDAL_METADATA items with role "scale"/"offset"): value = stored x scale + offset,
+ *   nodata compared with the stored value first;
+ * - an internal mask (an IFD with the NewSubfileType mask bit, as GDAL_TIFF_INTERNAL_MASK and `gdal_translate -mask`
+ *   write): masked cells are missing;
+ * - side files GDAL reads (`.aux.xml` with scale, offset, nodata or georeferencing; `.msk` masks), colour tables,
+ *   further pages, bit-reversed fill order and orientations other than top-left: refused.
+ * Block offsets into the file's own structure or into other blocks are refused as damage (structure.ts).
+ *
+ * Memory: the reader enforces only the limit its caller passes (`maxBytes`); the memory policy (src/memory.ts) and
+ * the scenario loader decide it, from `readRasterHeader` of every raster before any is decoded.
  * Everything a user can get wrong ends as PiezomapError('input') naming the file.
  */
-import { readFile, stat } from 'node:fs/promises';
+import { open, readFile, stat } from 'node:fs/promises';
+import { createRequire } from 'node:module';
+import { basename } from 'node:path';
 import { inflateSync } from 'node:zlib';
-import { fromArrayBuffer, getDecoder } from 'geotiff';
-import type { GeoTIFFImage } from 'geotiff';
+import { fromArrayBuffer, fromFile, getDecoder } from 'geotiff';
+import type { GeoTIFF, GeoTIFFImage } from 'geotiff';
 import { PiezomapError, describeThrown, inputError } from '../errors.js';
-import { memoryLimit } from '../memory.js';
 import { ZSTDDecoder } from 'zstddec/stream';
 import { decodeLzw } from './lzw.js';
 import type { Grid } from '../grid.js';
-import { RASTER_PIXEL_IS_POINT, crsFromGeoKeys, parseGeoKeyDirectory } from './geokeys.js';
+import { RASTER_PIXEL_IS_POINT, crsFromGeoKeys, linearUnitName, parseGeoKeyDirectory } from './geokeys.js';
 import type { GeoKeyRecord } from './geokeys.js';
 import type { RasterData } from './types.js';
+import { findBlockOverlap, findValueOverlap, tiffStructure } from './structure.js';
 
 export interface ReadRasterOptions {
   /** 1-based band number, default 1. */
   band?: number;
   /** How messages name the file, default the path. */
   label?: string;
+  /**
+   * Bytes the read may take at its peak (the band as doubles, the file's bytes, one decoded block); a larger raster
+   * is refused from its header, before anything is allocated. No limit when absent: the caller's memory policy
+   * decides (src/memory.ts).
+   */
+  maxBytes?: number;
+}
+
+/** What reading a raster will take, from its header alone (nothing decoded). */
+export interface RasterHeader {
+  path: string;
+  width: number;
+  height: number;
+  bandCount: number;
+  /** e.g. "Float32", "Int16". */
+  sampleType: string;
+  fileBytes: number;
+  /** The band as doubles: held once read. */
+  valueBytes: number;
+  /** The peak while reading: the values, the file's bytes and one decoded block. */
+  readBytes: number;
 }
 
 /** Cells beyond this are refused outright (typed-array lengths and index arithmetic stay in int32 range). */
@@ -65,6 +100,11 @@ interface Layout {
   blockHeight: number;
   blocksAcross: number;
   blocksDown: number;
+  /** Bytes of one row of a decoded block, and of a whole decoded block. */
+  rowBytes: number;
+  blockBytes: number;
+  /** Bits per sample: 8 to 64, or 1 for a mask. */
+  bits: number;
   offsets: number[];
   byteCounts: number[];
 }
@@ -75,25 +115,84 @@ export async function readRaster(path: string, options: ReadRasterOptions = {}):
   if (!Number.isInteger(band) || band < 1) {
     throw inputError(`${label}: band must be a whole number from 1, got ${String(band)}`, { file: label });
   }
+  const maxBytes = options.maxBytes ?? Infinity;
+  const size = await fileSize(path, label);
+  if (size > maxBytes) {
+    throw inputError(`${label}: the file is ${formatBytes(size)}, more than the ${formatBytes(maxBytes)} of memory a raster may take`, {
+      file: label,
+      hint: 'clip the raster to the model area or coarsen it before modelling',
+    });
+  }
+  await refuseSideFiles(path, label);
   const bytes = await readBytes(path, label);
   try {
-    return await decodeGeoTiff(path, label, bytes, band);
+    return await decodeGeoTiff(path, label, bytes, band, maxBytes);
   } catch (thrown) {
-    if (thrown instanceof PiezomapError) throw thrown;
-    // geotiff.js and the decompressors throw Errors, RangeErrors and sometimes plain strings
-    throw inputError(`${label}: the TIFF structure is damaged or unreadable (${describeThrown(thrown)})`, {
-      file: label,
-      hint: 'check that the file was copied completely; re-export it from the GIS if it still fails',
-    });
+    throw asDamage(thrown, label);
   }
 }
 
-/** Half the memory a run may use (src/memory.ts): what one raster may take once decoded. */
-function memoryBudget(): number {
-  return memoryLimit().bytes / 2;
+/**
+ * Size and sample type of a raster from its header, reading only the TIFF structure (not the image data), so that a
+ * caller can check what a set of rasters will take before decoding any of them.
+ */
+export async function readRasterHeader(path: string, options: { label?: string } = {}): Promise<RasterHeader> {
+  const label = options.label ?? path;
+  const size = await fileSize(path, label);
+  const handle = await open(path, 'r').catch((thrown: unknown) => {
+    throw fileSystemError(thrown, label);
+  });
+  try {
+    const start = new Uint8Array(16);
+    await handle.read(start, 0, 16, 0);
+    checkTiffSignature(start.subarray(0, Math.min(16, size)), label);
+    // Reads past the end of a file come back short, not as errors: check that the first IFD lies in the file.
+    const view = new DataView(start.buffer);
+    const little = start[0] === 0x49;
+    const big = view.getUint16(2, little) === 43;
+    const ifd = big ? Number(view.getBigUint64(8, little)) : view.getUint32(4, little);
+    const entries = new Uint8Array(8);
+    const got = ifd >= 8 ? (await handle.read(entries, 0, big ? 8 : 2, ifd)).bytesRead : 0;
+    const count = big ? Number(new DataView(entries.buffer).getBigUint64(0, little)) : new DataView(entries.buffer).getUint16(0, little);
+    if (got < (big ? 8 : 2) || ifd + count * (big ? 20 : 12) > size) {
+      throw inputError(`${label}: the TIFF structure is damaged or unreadable (its first image file directory at byte ${ifd} lies outside the ${size}-byte file)`, {
+        file: label,
+        hint: 'check that the file was copied completely; re-export it from the GIS if it still fails',
+      });
+    }
+  } finally {
+    await handle.close();
+  }
+  let tiff: GeoTIFF | null = null;
+  try {
+    tiff = await fromFile(path);
+    const layout = await readLayout(await tiff.getImage(0), label, size);
+    return headerOf(path, layout, size);
+  } catch (thrown) {
+    throw asDamage(thrown, label);
+  } finally {
+    await tiff?.close();
+  }
 }
 
-async function readBytes(path: string, label: string): Promise<Uint8Array> {
+function headerOf(path: string, layout: Layout, fileBytes: number): RasterHeader {
+  const valueBytes = layout.width * layout.height * 8;
+  return {
+    path, width: layout.width, height: layout.height, bandCount: layout.samplesPerPixel, sampleType: layout.kind, fileBytes,
+    valueBytes, readBytes: valueBytes + layout.blockBytes + fileBytes,
+  };
+}
+
+/** geotiff.js and the decompressors throw Errors, RangeErrors and sometimes plain strings: all are damage here. */
+function asDamage(thrown: unknown, label: string): PiezomapError {
+  if (thrown instanceof PiezomapError) return thrown;
+  return inputError(`${label}: the TIFF structure is damaged or unreadable (${describeThrown(thrown)})`, {
+    file: label,
+    hint: 'check that the file was copied completely; re-export it from the GIS if it still fails',
+  });
+}
+
+async function fileSize(path: string, label: string): Promise<number> {
   let size: number;
   try {
     const info = await stat(path);
@@ -104,12 +203,10 @@ async function readBytes(path: string, label: string): Promise<Uint8Array> {
     throw fileSystemError(thrown, label);
   }
   if (size === 0) throw inputError(`${label}: the file is empty (0 bytes)`, { file: label, hint: 'export the raster again' });
-  if (size > memoryBudget()) {
-    throw inputError(`${label}: the file is ${formatBytes(size)}, more than half of the memory a run may use`, {
-      file: label,
-      hint: 'clip the raster to the model area or coarsen it before modelling',
-    });
-  }
+  return size;
+}
+
+async function readBytes(path: string, label: string): Promise<Uint8Array> {
   let bytes: Uint8Array;
   try {
     const buffer = await readFile(path);
@@ -118,6 +215,11 @@ async function readBytes(path: string, label: string): Promise<Uint8Array> {
   } catch (thrown) {
     throw fileSystemError(thrown, label);
   }
+  checkTiffSignature(bytes, label);
+  return bytes;
+}
+
+function checkTiffSignature(bytes: Uint8Array, label: string): void {
   const magic = bytes.length >= 4 ? `${String.fromCharCode(bytes[0]!, bytes[1]!)}${bytes[2]},${bytes[3]}` : '';
   const tiff = magic === 'II42,0' || magic === 'MM0,42' || magic === 'II43,0' || magic === 'MM0,43';
   if (!tiff || bytes.length < 8) {
@@ -126,7 +228,35 @@ async function readBytes(path: string, label: string): Promise<Uint8Array> {
       hint: 'the rasters must be GeoTIFF (.tif); convert other formats with `gdal_translate -of GTiff`',
     });
   }
-  return bytes;
+}
+
+/** Elements of a GDAL side file (.aux.xml) that change what GDAL reads from the raster. */
+const PAM_ELEMENTS = ['Scale', 'Offset', 'NoDataValue', 'UnitType', 'GeoTransform', 'SRS', 'GCPList', 'ColorTable', 'CategoryNames'];
+
+/**
+ * GDAL reads two side files beside a GeoTIFF and applies them: `NAME.aux.xml` (scale, offset, nodata, georeferencing
+ * set on a file opened read-only) and `NAME.msk` (an external mask). Refuse the raster when they would change its
+ * values or position; statistics and plain metadata in a .aux.xml change nothing and are accepted.
+ */
+async function refuseSideFiles(path: string, label: string): Promise<void> {
+  const name = basename(path);
+  const aux = await readFile(`${path}.aux.xml`, 'utf8').catch(() => null);
+  if (aux !== null) {
+    const found = PAM_ELEMENTS.filter((element) => new RegExp(`<${element}[\\s>/]`).test(aux));
+    if (found.length > 0) {
+      throw inputError(`${label}: its side file ${name}.aux.xml sets ${found.join(', ')}, which GDAL applies when reading; piezomap reads the GeoTIFF alone`, {
+        file: label,
+        hint: 'write them into the GeoTIFF (`gdal_translate in.tif out.tif` copies them in), or delete the side file if it is out of date',
+      });
+    }
+  }
+  const mask = await stat(`${path}.msk`).then(() => true, () => false);
+  if (mask) {
+    throw inputError(`${label}: has an external mask ${name}.msk, whose masked cells GDAL reads as missing; piezomap reads internal masks only`, {
+      file: label,
+      hint: 'make the mask internal: `gdal_translate --config GDAL_TIFF_INTERNAL_MASK YES in.tif out.tif`, or delete the .msk if it is not wanted',
+    });
+  }
 }
 
 function fileSystemError(thrown: unknown, label: string): PiezomapError {
@@ -141,22 +271,168 @@ function fileSystemError(thrown: unknown, label: string): PiezomapError {
   return inputError(`${label}: cannot be read (${describeThrown(thrown)})`, { file: label });
 }
 
-async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, band: number): Promise<RasterData> {
+async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, band: number, maxBytes: number): Promise<RasterData> {
+  const structure = tiffStructure(bytes);
+  if (structure.loops) {
+    throw inputError(`${label}: the file is damaged: its image file directories loop back or overlap one another`, { file: label, hint: DAMAGE_HINT });
+  }
+  const misplaced = findValueOverlap(structure.ranges);
+  if (misplaced) {
+    throw inputError(`${label}: the file is damaged: ${misplaced.values} overlap ${misplaced.overlaps}`, { file: label, hint: DAMAGE_HINT });
+  }
   const buffer = bytes.buffer.slice(bytes.byteOffset, bytes.byteOffset + bytes.byteLength) as ArrayBuffer;
   const tiff = await fromArrayBuffer(buffer);
   const image = await tiff.getImage(0);
   const layout = await readLayout(image, label, bytes.length);
+  const needed = layout.width * layout.height * 8 + layout.blockBytes + bytes.length;
+  if (needed > maxBytes) {
+    throw inputError(`${label}: ${layout.width} x ${layout.height} cells need about ${formatBytes(needed)} to read, more than the ${formatBytes(maxBytes)} of memory a raster may take`, {
+      file: label,
+      hint: 'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)',
+    });
+  }
   if (band > layout.samplesPerPixel) {
     throw inputError(`${label}: band ${band} requested but the file has ${layout.samplesPerPixel} band(s)`, {
       file: label,
     });
   }
+  await refuseIgnoredTags(image, label);
+  const maskLayout = await findMask(tiff, structure.ifdCount, layout, label, bytes.length);
+  refuseOverlappingBlocks(structure.ranges, layout, maskLayout, label);
+  const metadata = await readBandMetadata(image, band - 1, label);
   const geoKeys = await readGeoKeys(image, label);
   const transform = await readGeotransform(image, label, geoKeys);
   const nodata = await readNodata(image, label);
   const grid: Grid = { nx: layout.width, ny: layout.height, transform, crs: crsFromGeoKeys(geoKeys) };
   const values = await decodeBand(bytes, layout, band - 1, nodata, label);
-  return { path, grid, values, nodata, bandCount: layout.samplesPerPixel, sampleType: layout.kind };
+  if (maskLayout) await applyMask(bytes, maskLayout, values, label);
+  const { scale, offset } = metadata;
+  if (scale !== 1 || offset !== 0) {
+    // GDAL's unscaled value; nodata and masked cells are NaN already and stay NaN
+    for (let p = 0; p < values.length; p++) values[p] = values[p]! * scale + offset;
+  }
+  return {
+    path, grid, values, nodata, bandCount: layout.samplesPerPixel, sampleType: layout.kind,
+    scale, offset, unit: metadata.unit ?? verticalUnit(geoKeys), masked: maskLayout !== null,
+  };
+}
+
+const require = createRequire(import.meta.url);
+
+/**
+ * The unit GDAL gives a band from the GeoKeys when the file sets none: that of VerticalUnitsGeoKey, else that of the
+ * vertical CRS (VerticalCSTypeGeoKey, looked up in the offline EPSG index). Null when neither is known.
+ */
+function verticalUnit(geoKeys: GeoKeyRecord | null): string | null {
+  const unitCode = geoKeys?.VerticalUnitsGeoKey;
+  if (typeof unitCode === 'number') return linearUnitName(unitCode) ?? `EPSG unit ${unitCode}`;
+  const crsCode = geoKeys?.VerticalCSTypeGeoKey;
+  if (typeof crsCode !== 'number' || crsCode === 32767) return null;
+  try {
+    const entry = require(`epsg-index/s/${crsCode}.json`) as { unit?: unknown };
+    return typeof entry.unit === 'string' ? entry.unit : null;
+  } catch {
+    return null; // an unknown code: no unit we could name
+  }
+}
+
+const DAMAGE_HINT = 'the file is damaged; copy or export it again from the original';
+
+/**
+ * Baseline TIFF tags that change what the stored samples mean and that we do not apply: refuse the file rather than
+ * read it differently from GDAL (TIFF 6.0 sections 3, 8; palette colour, bit order, orientation).
+ */
+async function refuseIgnoredTags(image: GeoTIFFImage, label: string): Promise<void> {
+  const photometric = await numberTag(image, 'PhotometricInterpretation', 1);
+  if (photometric === 3) {
+    throw inputError(`${label}: the raster has a colour table (palette): its values are codes of colour classes, not the quantity itself`, {
+      file: label,
+      hint: 'convert the class codes into the values they stand for (e.g. with gdal_calc.py) and save a plain GeoTIFF without a colour table',
+    });
+  }
+  const fillOrder = await numberTag(image, 'FillOrder', 1);
+  if (fillOrder !== 1) {
+    throw inputError(`${label}: the bits of each byte are stored in reverse order (FillOrder ${fillOrder})`, { file: label, hint: CONVERT_HINT });
+  }
+  const orientation = await numberTag(image, 'Orientation', 1);
+  if (orientation !== 1) {
+    throw inputError(`${label}: the rows or columns are stored in another order than top-left first (Orientation ${orientation})`, { file: label, hint: CONVERT_HINT });
+  }
+  // ExtraSamples 1 and 2: an alpha sample, which GDAL uses as the mask of the other bands (TIFF 6.0 section 18)
+  const extra = (await numbersTag(image, 'ExtraSamples')) ?? [];
+  if (extra.some((kind) => kind === 1 || kind === 2)) {
+    throw inputError(`${label}: the file has an alpha band, which GDAL applies as a mask to the others; piezomap does not`, {
+      file: label,
+      hint: 'turn the alpha into nodata and keep the value band, e.g. `gdal_translate -b 1 -mask 2 -a_nodata -9999 in.tif out.tif`, or mark missing cells with nodata',
+    });
+  }
+  if (image.getFileDirectory().hasTag('SubIFDs' as never)) {
+    throw inputError(`${label}: the file holds sub-images (SubIFDs), which may be masks or further images; piezomap does not read them`, { file: label, hint: CONVERT_HINT });
+  }
+}
+
+/**
+ * The layout of the internal mask of the full-resolution image, or null without one. Every further IFD must be an
+ * overview (NewSubfileType bit 0, with or without its own mask) or that mask (bit 2, TIFF 6.0 section 8); another
+ * full-resolution page is refused, since which page is meant cannot be told.
+ */
+async function findMask(tiff: GeoTIFF, ifdCount: number, layout: Layout, label: string, fileSize: number): Promise<Layout | null> {
+  let mask: Layout | null = null;
+  for (let i = 1; i < ifdCount; i++) {
+    const image = await tiff.getImage(i);
+    const subfileType = await numberTag(image, 'NewSubfileType', 0);
+    if (subfileType & 1) continue; // a reduced-resolution copy (overview) or its mask: never read
+    if (!(subfileType & 4)) {
+      throw inputError(`${label}: the file holds further full-resolution images (pages) besides the first; which one is meant cannot be told`, {
+        file: label,
+        hint: 'save the wanted image alone, e.g. `gdal_translate in.tif out.tif` (the first image)',
+      });
+    }
+    if (mask) throw inputError(`${label}: the file holds two masks for its image`, { file: label, hint: DAMAGE_HINT });
+    mask = await readMaskLayout(image, label, fileSize, layout);
+  }
+  return mask;
+}
+
+async function readMaskLayout(image: GeoTIFFImage, label: string, fileSize: number, main: Layout): Promise<Layout> {
+  const refuse = (problem: string): PiezomapError => inputError(`${label}: the internal mask ${problem}`, {
+    file: label,
+    hint: 'rewrite the file with its mask as GDAL writes it: `gdal_translate --config GDAL_TIFF_INTERNAL_MASK YES in.tif out.tif`, or set a nodata value instead',
+  });
+  const width = await numberTag(image, 'ImageWidth', 0);
+  const height = await numberTag(image, 'ImageLength', 0);
+  if (width !== main.width || height !== main.height) throw refuse(`is ${width} x ${height} cells where the image is ${main.width} x ${main.height}`);
+  if ((await numberTag(image, 'SamplesPerPixel', 1)) !== 1) throw refuse('has more than one sample per cell');
+  // A transparency mask holds 1 bit per cell (TIFF 6.0 section 8, PhotometricInterpretation 4), as GDAL writes it.
+  const bits = await numberTag(image, 'BitsPerSample', 1);
+  if (bits !== 1) throw refuse(`has ${bits}-bit samples (1 expected)`);
+  const compression = await numberTag(image, 'Compression', 1);
+  if (!COMPRESSION_NAMES.has(compression)) throw refuse(`uses an unsupported compression (TIFF code ${compression})`);
+  if ((await numberTag(image, 'Predictor', 1)) !== 1) throw refuse('uses a predictor');
+  if ((await numberTag(image, 'FillOrder', 1)) !== 1) throw refuse('stores its bits in reverse order');
+  const blocks = await readBlocks(image, width, height, 1, label, fileSize, 'mask ');
+  const rowBytes = Math.ceil((blocks.blockWidth * bits) / 8);
+  return {
+    width, height, samplesPerPixel: 1, planar: 1, kind: 'UInt8', bytesPerSample: 1, littleEndian: image.littleEndian,
+    compression, predictor: 1, ...blocks, rowBytes, blockBytes: rowBytes * blocks.blockHeight, bits,
+  };
+}
+
+/** Block offsets into the header, an IFD, a tag's values or another block: damage that some readers decode anyway. */
+function refuseOverlappingBlocks(structure: ReturnType<typeof tiffStructure>['ranges'], layout: Layout, mask: Layout | null, label: string): void {
+  const count = layout.blocksAcross * layout.blocksDown * (layout.planar === 2 ? layout.samplesPerPixel : 1);
+  const maskCount = mask ? mask.blocksAcross * mask.blocksDown : 0;
+  // concat, not push(...): block lists can be longer than the call stack allows arguments
+  const offsets = layout.offsets.slice(0, count).concat(mask ? mask.offsets.slice(0, maskCount) : []);
+  const counts = layout.byteCounts.slice(0, count).concat(mask ? mask.byteCounts.slice(0, maskCount) : []);
+  const what = layout.tiled ? 'tile' : 'strip';
+  const maskWhat = mask?.tiled ? 'tile' : 'strip';
+  const name = (i: number) =>
+    `${i < count ? `${what} ${i}` : `mask ${maskWhat} ${i - count}`} (bytes ${offsets[i]}-${offsets[i]! + counts[i]!})`;
+  const overlap = findBlockOverlap(structure, offsets, counts, name);
+  if (overlap) {
+    throw inputError(`${label}: the file is damaged: ${overlap.block} overlaps ${overlap.overlaps}`, { file: label, hint: DAMAGE_HINT });
+  }
 }
 
 async function tagValue(image: GeoTIFFImage, name: string): Promise<unknown> {
@@ -219,31 +495,37 @@ async function readLayout(image: GeoTIFFImage, label: string, fileSize: number):
   const planarTag = await numberTag(image, 'PlanarConfiguration', 1);
   const planar: 1 | 2 = planarTag === 2 && samplesPerPixel > 1 ? 2 : 1;
 
+  // Size limit before anything is allocated (the memory budget is the caller's: see `maxBytes`).
+  const cells = width * height;
+  if (cells > MAX_CELLS) {
+    throw refuse(`${width} x ${height} = ${cells.toExponential(2)} cells is more than this program handles (2^31)`,
+      'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)');
+  }
+  const pixelBytes = planar === 1 ? samplesPerPixel * bytesPerSample : bytesPerSample;
+  const blocks = await readBlocks(image, width, height, planar === 2 ? samplesPerPixel : 1, label, fileSize, '');
+  const rowBytes = blocks.blockWidth * pixelBytes;
+  return {
+    width, height, samplesPerPixel, planar, kind, bytesPerSample, littleEndian, compression,
+    predictor: predictor as 1 | 2 | 3, ...blocks, rowBytes, blockBytes: rowBytes * blocks.blockHeight, bits: bits[0]!,
+  };
+}
+
+/**
+ * Block size, count and byte ranges of an image (tiles or strips; `planes` separate sample planes), each block checked
+ * to end within the file. `prefix` names the image in messages ('' for the image, 'mask ' for its mask).
+ */
+async function readBlocks(image: GeoTIFFImage, width: number, height: number, planes: number, label: string, fileSize: number, prefix: string) {
   const tiled = image.getFileDirectory().hasTag('TileWidth' as never);
   const blockWidth = tiled ? await numberTag(image, 'TileWidth', 0) : width;
   const blockHeight = tiled
     ? await numberTag(image, 'TileLength', 0)
     : Math.min(await numberTag(image, 'RowsPerStrip', height), height);
-  if (!(blockWidth >= 1 && blockHeight >= 1)) throw refuse(`invalid ${tiled ? 'tile' : 'strip'} size ${blockWidth}x${blockHeight}`);
-
-  // Size limits before anything is allocated: the output doubles, plus one decoded block.
-  const cells = width * height;
-  const pixelBytes = planar === 1 ? samplesPerPixel * bytesPerSample : bytesPerSample;
-  const blockBytes = blockWidth * blockHeight * pixelBytes;
-  if (cells > MAX_CELLS) {
-    throw refuse(`${width} x ${height} = ${cells.toExponential(2)} cells is more than this program handles (2^31)`,
-      'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)');
-  }
-  const needed = cells * 8 + blockBytes + fileSize;
-  if (needed > memoryBudget()) {
-    throw refuse(`${width} x ${height} cells need about ${formatBytes(needed)} to read, more than half of the memory a run may use`,
-      'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)');
-  }
-
+  const refuse = (problem: string): PiezomapError => inputError(`${label}: ${problem}`, { file: label, hint: CONVERT_HINT });
+  if (!(blockWidth >= 1 && blockHeight >= 1)) throw refuse(`invalid ${prefix}${tiled ? 'tile' : 'strip'} size ${blockWidth}x${blockHeight}`);
   const blocksAcross = Math.ceil(width / blockWidth);
   const blocksDown = Math.ceil(height / blockHeight);
-  const blockCount = blocksAcross * blocksDown * (planar === 2 ? samplesPerPixel : 1);
-  const what = tiled ? 'tile' : 'strip';
+  const blockCount = blocksAcross * blocksDown * planes;
+  const what = `${prefix}${tiled ? 'tile' : 'strip'}`;
   const offsets = await numbersTag(image, tiled ? 'TileOffsets' : 'StripOffsets');
   const byteCounts = await numbersTag(image, tiled ? 'TileByteCounts' : 'StripByteCounts');
   if (!offsets || !byteCounts) throw refuse(`the ${what} offsets or byte counts are missing`);
@@ -260,10 +542,95 @@ async function readLayout(image: GeoTIFFImage, label: string, fileSize: number):
       });
     }
   }
-  return {
-    width, height, samplesPerPixel, planar, kind, bytesPerSample, littleEndian, compression,
-    predictor: predictor as 1 | 2 | 3, tiled, blockWidth, blockHeight, blocksAcross, blocksDown, offsets, byteCounts,
-  };
+  return { tiled, blockWidth, blockHeight, blocksAcross, blocksDown, offsets, byteCounts };
+}
+
+/** Per-band metadata that changes the values: scale and offset (identity when absent), and the unit, if declared. */
+interface BandMetadata {
+  scale: number;
+  offset: number;
+  unit: string | null;
+}
+
+/** Roles of GDAL band metadata items that do not change the values (names and colours for display). */
+const DISPLAY_ROLES = new Set(['description', 'colorinterp']);
+
+/**
+ * GDAL's band metadata (TIFF tag 42112, an XML list of `<Item name= sample= role=>value</Item>`, as GDAL's GTiff
+ * driver writes it): "scale" and "offset" are applied (GDAL's unscaled value is stored x scale + offset), "unittype"
+ * is reported, display roles are irrelevant; an item with a role we do not know is refused rather than ignored.
+ * Items without a role are free metadata (statistics, notes) and change nothing.
+ */
+async function readBandMetadata(image: GeoTIFFImage, sample: number, label: string): Promise<BandMetadata> {
+  const result: BandMetadata = { scale: 1, offset: 0, unit: null };
+  const raw = await tagValue(image, 'GDAL_METADATA');
+  if (typeof raw !== 'string') return result;
+  const refuse = (problem: string, hint: string): PiezomapError => inputError(`${label}: ${problem}`, { file: label, hint });
+  for (const match of raw.matchAll(/<Item\b([^>]*?)(?:\/>|>([^<]*)<\/Item>)/g)) {
+    const attributes = new Map<string, string>();
+    for (const a of match[1]!.matchAll(/([A-Za-z_]+)\s*=\s*"([^"]*)"/g)) attributes.set(a[1]!, xmlText(a[2]!));
+    const role = attributes.get('role');
+    const band = attributes.get('sample');
+    if (role === undefined || band === undefined || Number(band) !== sample) continue;
+    const text = xmlText(match[2] ?? '').trim();
+    if (role === 'scale' || role === 'offset') {
+      const value = Number(text);
+      if (text === '' || !Number.isFinite(value) || (role === 'scale' && value === 0)) {
+        throw refuse(`the band's ${role} "${text}" (GDAL metadata) is not a usable number`,
+          `set it again, e.g. \`gdal_edit.py -${role} 1 file.tif\`, or write the values unscaled (\`gdal_translate -unscale -ot Float32 in.tif out.tif\`)`);
+      }
+      result[role] = value;
+    } else if (role === 'unittype') {
+      result.unit = text === '' ? null : text;
+    } else if (!DISPLAY_ROLES.has(role)) {
+      throw refuse(`the band carries GDAL metadata "${attributes.get('name') ?? '?'}" with role "${role}", which piezomap does not know how to apply`,
+        'write the values as they are meant, e.g. `gdal_translate -ot Float32 in.tif out.tif` and check the result with gdalinfo');
+    }
+  }
+  return result;
+}
+
+/** XML character references and the five predefined entities to text. */
+function xmlText(text: string): string {
+  return text.replace(/&(#x[0-9a-fA-F]+|#[0-9]+|amp|lt|gt|quot|apos);/g, (_, ref: string) => {
+    if (ref[0] === '#') return String.fromCodePoint(ref[1] === 'x' ? parseInt(ref.slice(2), 16) : parseInt(ref.slice(1), 10));
+    return { amp: '&', lt: '<', gt: '>', quot: '"', apos: "'" }[ref]!;
+  });
+}
+
+/**
+ * Set the cells the internal mask marks as missing (0) to NaN. The mask packs 8 cells per byte, most significant bit
+ * first, each block row starting on a new byte (TIFF 6.0 sections 3 and 8).
+ */
+async function applyMask(bytes: Uint8Array, mask: Layout, values: Float64Array, label: string): Promise<void> {
+  const { width, height, blockWidth, blockHeight, blocksAcross, blocksDown, rowBytes } = mask;
+  const decompress = await decompressorFor(mask);
+  const what = mask.tiled ? 'tile' : 'strip';
+  for (let by = 0; by < blocksDown; by++) {
+    const rows = Math.min(blockHeight, height - by * blockHeight);
+    for (let bx = 0; bx < blocksAcross; bx++) {
+      const cols = Math.min(blockWidth, width - bx * blockWidth);
+      const index = by * blocksAcross + bx;
+      const count = mask.byteCounts[index]!;
+      // GDAL writes every mask block; a missing one could mean "all valid" or "all masked": do not guess
+      if (count === 0) throw inputError(`${label}: mask ${what} ${index} is missing from the file`, { file: label, hint: DAMAGE_HINT });
+      let block: Uint8Array;
+      try {
+        block = decompress(bytes.subarray(mask.offsets[index]!, mask.offsets[index]! + count));
+      } catch (thrown) {
+        throw inputError(`${label}: mask ${what} ${index} cannot be decompressed (${describeThrown(thrown)})`, { file: label, hint: DAMAGE_HINT });
+      }
+      if (block.length < rows * rowBytes) {
+        throw inputError(`${label}: mask ${what} ${index} holds ${block.length} bytes where ${rows * rowBytes} are needed`, { file: label, hint: DAMAGE_HINT });
+      }
+      const firstCell = by * blockHeight * width + bx * blockWidth;
+      for (let r = 0; r < rows; r++) {
+        const start = r * rowBytes;
+        const out = firstCell + r * width;
+        for (let c = 0; c < cols; c++) if (((block[start + (c >> 3)]! >> (7 - (c & 7))) & 1) === 0) values[out + c] = Number.NaN;
+      }
+    }
+  }
 }
 
 function sampleKind(format: number, bits: number): SampleKind | null {
@@ -443,8 +810,7 @@ async function decompressorFor(layout: Layout): Promise<(data: Uint8Array) => Ui
   if (compression === 1) return layout.predictor === 3 ? (data) => data.slice() : (data) => data;
   // A block never holds more than its full size; a larger output is damage (or a decompression bomb), refused
   // before it fills memory.
-  const pixelBytes = layout.planar === 1 ? layout.samplesPerPixel * layout.bytesPerSample : layout.bytesPerSample;
-  const blockBytes = layout.blockWidth * layout.blockHeight * pixelBytes;
+  const blockBytes = layout.blockBytes;
   if (compression === 8 || compression === 32946) {
     return (data) => {
       try {
@@ -469,7 +835,7 @@ async function decompressorFor(layout: Layout): Promise<(data: Uint8Array) => Ui
     tileWidth: layout.blockWidth,
     tileHeight: layout.blockHeight,
     planarConfiguration: layout.planar,
-    bitsPerSample: [layout.bytesPerSample * 8],
+    bitsPerSample: [layout.bits],
     predictor: 1, // predictors are undone here, not by geotiff.js
   });
   return (data) => {

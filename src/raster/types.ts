@@ -10,8 +10,15 @@ export interface RasterData {
   nodata: number | null;
   /** Number of bands in the file (only band 1 is read unless asked). */
   bandCount: number;
-  /** e.g. "Float32", "Int16". */
+  /** e.g. "Float32", "Int16" (the stored type; `values` hold stored x scale + offset). */
   sampleType: string;
+  /** GDAL's per-band scale and offset, applied to `values` (1 and 0 when the file sets none). */
+  scale: number;
+  offset: number;
+  /** The unit the file declares for the values (GDAL's unit type), or null. Not converted: callers decide. */
+  unit: string | null;
+  /** Whether an internal mask marked cells as missing (NaN in `values`). */
+  masked: boolean;
 }
 
 export interface WriteRasterOptions {

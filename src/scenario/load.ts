@@ -14,8 +14,10 @@ import { readFile, stat } from 'node:fs/promises';
 import { basename, dirname, extname, resolve } from 'node:path';
 import { crsLabel, gridBounds, gridDifference, type Grid } from '../grid.js';
 import { describeThrown, inputError, PiezomapError } from '../errors.js';
-import { readRaster } from '../raster/read.js';
+import { readRaster, readRasterHeader } from '../raster/read.js';
+import { checkRasterMemory, rasterBudget, type RasterFootprint } from '../memory.js';
 import type { RasterData } from '../raster/types.js';
+import { describeExpectedUnit, unitMatches, type Quantity, type ValueUnits } from '../raster/units.js';
 import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from './crs.js';
 import {
   parseScenarioJson,
@@ -69,6 +71,10 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   if (!inline) loader.inputFiles.add(resolve(scenarioPath));
 
   const units = { length: raw.units?.length ?? 'm', time: raw.units?.time ?? 'd' } as const;
+  loader.units = units;
+
+  // Every raster's size from its header, checked together against the memory budget before any is decoded.
+  await loader.checkRasterMemory(raw);
 
   // The conductivity raster defines the grid and the CRS.
   const conductivityPath = raw.aquifer.conductivity;
@@ -185,6 +191,13 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   };
 }
 
+/** What the values of a raster key measure, for checking a unit the raster declares. */
+function quantityOf(key: string): Quantity {
+  if (key === 'aquifer.conductivity' || key === 'recharge') return 'velocity';
+  if (key === 'aquifer.porosity') return 'fraction';
+  return 'length'; // thickness, top, bottom, ground surface, fixed heads
+}
+
 /** Index of the first +-Infinity in `values`, or -1. */
 function firstInfinite(values: Float64Array): number {
   for (let p = 0; p < values.length; p++) {
@@ -265,6 +278,9 @@ class Loader {
     this.warnings.push(text);
   }
 
+  /** The scenario's units, which raster values are taken in. */
+  units: ValueUnits = { length: 'm', time: 'd' };
+
   /** The conductivity raster as the scenario names it: every other raster must share its grid. */
   private reference: { key: string; given: string } | null = null;
 
@@ -274,13 +290,23 @@ class Loader {
     await this.requireFile(key, given, absolute, 'raster');
     let raster: RasterData;
     try {
-      raster = await readRaster(absolute, { label: `${key} "${given}"` });
+      raster = await readRaster(absolute, { label: `${key} "${given}"`, maxBytes: rasterBudget() });
     } catch (thrown) {
       // The reader names the raster by the label given; add the scenario file, the path and the key.
       if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
       throw inputError(`${this.label}: ${key}: "${given}" cannot be read as a GeoTIFF: ${describeThrown(thrown)}`, { file: absolute, key });
     }
     this.inputFiles.add(absolute);
+    // A declared unit must be the one the key's values are taken in: piezomap converts no units.
+    const quantity = quantityOf(key);
+    if (raster.unit !== null && !unitMatches(raster.unit, quantity, this.units)) {
+      const expected = describeExpectedUnit(quantity, this.units);
+      throw inputError(`${this.label}: ${key} "${given}" declares its values in "${raster.unit}", but ${key} is taken in ${expected} (units in the scenario); piezomap converts no units`, {
+        file: absolute,
+        key,
+        hint: `convert the values to ${expected} and declare that unit (e.g. gdal_calc.py, then gdal_edit.py -units), or set "units" in the scenario to match`,
+      });
+    }
     // Several bands: which one holds the values cannot be guessed, and a wrong guess gives a plausible-looking result.
     if (raster.bandCount > 1) {
       throw inputError(`${this.label}: ${key} "${given}" has ${raster.bandCount} bands; piezomap reads single-band rasters only`, {
@@ -313,6 +339,39 @@ class Loader {
       }
     }
     return raster;
+  }
+
+  /** The rasters the scenario names, sized from their headers and checked together against the memory budget. */
+  async checkRasterMemory(raw: ScenarioJson): Promise<void> {
+    const named: Array<[string, string | number | undefined]> = [
+      ['aquifer.conductivity', raw.aquifer.conductivity],
+      ['aquifer.thickness', raw.aquifer.thickness],
+      ['aquifer.porosity', raw.aquifer.porosity],
+      ['aquifer.top', raw.aquifer.top],
+      ['aquifer.bottom', raw.aquifer.bottom],
+      ['groundSurface', raw.groundSurface],
+      ['recharge', raw.recharge],
+      ...raw.fixedHeads.map((entry, i): [string, string | undefined] => [`fixedHeads[${i}].raster`, 'raster' in entry ? entry.raster : undefined]),
+    ];
+    const footprints: RasterFootprint[] = [];
+    for (const [key, given] of named) {
+      if (typeof given !== 'string') continue;
+      const absolute = this.path(given);
+      await this.requireFile(key, given, absolute, 'raster');
+      try {
+        const header = await readRasterHeader(absolute, { label: `${key} "${given}"` });
+        footprints.push({ key, given, width: header.width, height: header.height, valueBytes: header.valueBytes, readBytes: header.readBytes });
+      } catch (thrown) {
+        if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
+        throw thrown;
+      }
+    }
+    try {
+      checkRasterMemory(footprints);
+    } catch (thrown) {
+      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: thrown.detail.file && this.path(thrown.detail.file) });
+      throw thrown;
+    }
   }
 
   async requireFile(key: string, given: string, absolute: string, what: string): Promise<void> {

@@ -2,7 +2,7 @@
  * loadScenario / resolveScenario from files: tiny GeoTIFFs and CSVs written into a temporary folder per test file.
  * The contract checked is ../shared/spec/interface.md, section "Scenario file".
  */
-import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -439,4 +439,44 @@ describe('variants', () => {
     expect(error).toBeInstanceOf(PiezomapError);
     expect((error as PiezomapError).message).toContain('variants "typo".wells[0]: well "w1" is new here, so it needs x, y (no earlier well has this id)');
   });
+
+  it('takes scaled rasters in GDAL unscaled values and accepts a declared unit that matches its key (GDAL-written fixtures)', async () => {
+    // u16-scale.tif: UInt16 with scale 0.001 (e.g. mm/d stored, m/d meant); i16-scale-offset.tif: Int16 x 0.004 + 100,
+    // unit "m". expected.json holds GDAL 3.6's unscaled values (scripts/make-raster-fixtures.sh).
+    const fixtures = resolve(__dirname, '../fixtures/rasters');
+    const expected = JSON.parse(readFileSync(join(fixtures, 'expected.json'), 'utf8')) as { good: Array<{ file: string; bands: Array<{ values: Array<number | null> }> }> };
+    const gdalValues = (file: string) => expected.good.find((r) => r.file === file)!.bands[0]!.values;
+    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'i16-scale-offset.tif' }, fixedHeads: [{ edge: 'west', head: 10 }] } as unknown as ScenarioJson;
+    const model = await resolveScenario(raw, fixtures, '<inline>');
+    const k = gdalValues('u16-scale.tif');
+    const b = gdalValues('i16-scale-offset.tif');
+    for (const p of [1, 40, 500]) {
+      expect(model.conductivity[p]).toBe(k[p]);
+      expect((model.thickness as Float64Array)[p]).toBe(b[p]);
+    }
+    expect(k[40]).toBeLessThan(10); // about 4 m/d, not the stored 4000
+    // the thickness raster declares "m", the scenario's length unit: accepted
+    expect(model.warnings).toEqual([]);
+  });
+
+  it('refuses a raster whose declared unit is not the one its key is taken in; accepts it when the scenario units match', async () => {
+    const fixtures = resolve(__dirname, '../fixtures/rasters');
+    // f32-vertical-ftus.tif: GDAL gives its band the unit of its vertical CRS, the US survey foot
+    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'f32-vertical-ftus.tif' }, fixedHeads: [{ edge: 'west', head: 10 }] };
+    let error: unknown;
+    try {
+      await resolveScenario(raw as unknown as ScenarioJson, fixtures, '<inline>');
+    } catch (thrown) {
+      error = thrown;
+    }
+    expect(error).toBeInstanceOf(PiezomapError);
+    expect((error as PiezomapError).code).toBe('input');
+    expect((error as PiezomapError).message).toBe(
+      '<inline scenario>: aquifer.thickness "f32-vertical-ftus.tif" declares its values in "US survey foot", but aquifer.thickness is taken in m (units in the scenario); piezomap converts no units',
+    );
+    expect((error as PiezomapError).detail.key).toBe('aquifer.thickness');
+    const inFeet = await resolveScenario({ ...raw, units: { length: 'ft', time: 'd' } } as unknown as ScenarioJson, fixtures, '<inline>');
+    expect(inFeet.thickness).toBeInstanceOf(Float64Array);
+  });
 });
+
