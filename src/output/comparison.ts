@@ -3,7 +3,7 @@
  * printed table. Pure functions: the folder is written by compare.ts through resultFolder.ts.
  */
 import { CAUTION } from '../caution.js';
-import type { ComparisonResult, VariantComparison } from '../compare.js';
+import type { ComparisonResult, VariantComparison } from '../compare/types.js';
 import { calibrationJson, calibrationLine, csvField, tidy } from './summary.js';
 
 /** A number for a CSV cell: rounded, empty when not a finite number. */

@@ -11,7 +11,7 @@ import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { makeTransform } from '../scenario/crs.js';
 import { renderMapPng, type MapInput } from '../report/index.js';
 import type { ReportRun, ReportMap } from '../report/index.js';
-import type { SolveResult } from '../pipeline.js';
+import type { SolveResult } from '../analysis/result.js';
 import type { OutputFile } from './resultFolder.js';
 import { headRange } from './summary.js';
 

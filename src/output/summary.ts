@@ -1,6 +1,6 @@
 import { CAUTION } from '../caution.js';
 import { cellHeight, cellWidth, crsLabel } from '../grid.js';
-import type { SolveResult } from '../pipeline.js';
+import type { SolveResult } from '../analysis/result.js';
 import type { WaterBudget } from '../analysis/budget.js';
 import type { CalibrationStatistics } from '../analysis/calibration.js';
 

@@ -11,7 +11,8 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
 import { loadScenario } from '../../src/scenario/load.js';
-import { solveModel, resultBundle } from '../../src/pipeline.js';
+import { solveModel } from '../../src/pipeline.js';
+import { resultBundle } from '../../src/output/solveFiles.js';
 import { baseScenario, centre } from '../../scripts/make-bad-inputs.js';
 import { seededRandom, testGrid } from '../helpers/model.js';
 

@@ -1,6 +1,6 @@
 /**
  * Interruption: SIGINT or SIGTERM during a long solve ends the run at once with a clear message and leaves no
- * partial result and no temporary file. The solver runs in a worker thread (src/robustness/solveInWorker.ts), so the
+ * partial result and no temporary file. The solver runs in a worker thread (src/executor/worker.ts), so the
  * main thread is free to answer the signal. The slow solve is Jacobi on 300 x 300 cells with a tolerance it cannot
  * reach for minutes; the run must end well before that.
  */
