@@ -106,3 +106,8 @@ export function formatBytes(n: number): string {
   if (n >= 2 ** 20) return `${(n / 2 ** 20).toFixed(1)} MiB`;
   return `${Math.max(1, Math.round(n / 1024))} KiB`;
 }
+
+/** What one raster may take while it is read: half the memory a run may use (given to the raster reader). */
+export function rasterSizeLimit(limit: MemoryLimit = memoryLimit()): { bytes: number; description: string } {
+  return { bytes: limit.bytes / 2, description: 'half of the memory a run may use' };
+}

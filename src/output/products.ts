@@ -8,7 +8,7 @@ import { crsLabel, type Grid } from '../grid.js';
 import { CAUTION } from '../caution.js';
 import { VERSION } from '../version.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
-import { makeTransform } from '../scenario/crs.js';
+import { makeTransform } from '../crs.js';
 import { renderMapPng, type MapInput } from '../report/index.js';
 import type { ReportRun, ReportMap } from '../report/index.js';
 import type { SolveResult } from '../analysis/result.js';

@@ -13,7 +13,6 @@ import { inflateSync } from 'node:zlib';
 import { fromArrayBuffer, getDecoder } from 'geotiff';
 import type { GeoTIFFImage } from 'geotiff';
 import { PiezomapError, describeThrown, inputError } from '../errors.js';
-import { memoryLimit } from '../memory.js';
 import { ZSTDDecoder } from 'zstddec/stream';
 import { decodeLzw } from './lzw.js';
 import type { Grid } from '../grid.js';
@@ -26,7 +25,20 @@ export interface ReadRasterOptions {
   band?: number;
   /** How messages name the file, default the path. */
   label?: string;
+  /**
+   * Most bytes one raster may take while it is read (the file, the decoded values as doubles, one block), and how
+   * messages describe that limit; default no limit beyond MAX_CELLS. The caller's memory policy sets it.
+   */
+  sizeLimit?: SizeLimit;
 }
+
+export interface SizeLimit {
+  bytes: number;
+  /** E.g. "half of the memory a run may use". */
+  description: string;
+}
+
+const NO_LIMIT: SizeLimit = { bytes: Infinity, description: 'the size limit' };
 
 /** Cells beyond this are refused outright (typed-array lengths and index arithmetic stay in int32 range). */
 export const MAX_CELLS = 2 ** 31 - 1;
@@ -75,9 +87,10 @@ export async function readRaster(path: string, options: ReadRasterOptions = {}):
   if (!Number.isInteger(band) || band < 1) {
     throw inputError(`${label}: band must be a whole number from 1, got ${String(band)}`, { file: label });
   }
-  const bytes = await readBytes(path, label);
+  const limit = options.sizeLimit ?? NO_LIMIT;
+  const bytes = await readBytes(path, label, limit);
   try {
-    return await decodeGeoTiff(path, label, bytes, band);
+    return await decodeGeoTiff(path, label, bytes, band, limit);
   } catch (thrown) {
     if (thrown instanceof PiezomapError) throw thrown;
     // geotiff.js and the decompressors throw Errors, RangeErrors and sometimes plain strings
@@ -88,12 +101,7 @@ export async function readRaster(path: string, options: ReadRasterOptions = {}):
   }
 }
 
-/** Half the memory a run may use (src/memory.ts): what one raster may take once decoded. */
-function memoryBudget(): number {
-  return memoryLimit().bytes / 2;
-}
-
-async function readBytes(path: string, label: string): Promise<Uint8Array> {
+async function readBytes(path: string, label: string, limit: SizeLimit): Promise<Uint8Array> {
   let size: number;
   try {
     const info = await stat(path);
@@ -104,8 +112,8 @@ async function readBytes(path: string, label: string): Promise<Uint8Array> {
     throw fileSystemError(thrown, label);
   }
   if (size === 0) throw inputError(`${label}: the file is empty (0 bytes)`, { file: label, hint: 'export the raster again' });
-  if (size > memoryBudget()) {
-    throw inputError(`${label}: the file is ${formatBytes(size)}, more than half of the memory a run may use`, {
+  if (size > limit.bytes) {
+    throw inputError(`${label}: the file is ${formatBytes(size)}, more than ${limit.description}`, {
       file: label,
       hint: 'clip the raster to the model area or coarsen it before modelling',
     });
@@ -141,11 +149,11 @@ function fileSystemError(thrown: unknown, label: string): PiezomapError {
   return inputError(`${label}: cannot be read (${describeThrown(thrown)})`, { file: label });
 }
 
-async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, band: number): Promise<RasterData> {
+async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, band: number, limit: SizeLimit): Promise<RasterData> {
   const buffer = bytes.buffer.slice(bytes.byteOffset, bytes.byteOffset + bytes.byteLength) as ArrayBuffer;
   const tiff = await fromArrayBuffer(buffer);
   const image = await tiff.getImage(0);
-  const layout = await readLayout(image, label, bytes.length);
+  const layout = await readLayout(image, label, bytes.length, limit);
   if (band > layout.samplesPerPixel) {
     throw inputError(`${label}: band ${band} requested but the file has ${layout.samplesPerPixel} band(s)`, {
       file: label,
@@ -182,7 +190,7 @@ async function numberTag(image: GeoTIFFImage, name: string, fallback: number): P
   return v && v.length ? v[0]! : fallback;
 }
 
-async function readLayout(image: GeoTIFFImage, label: string, fileSize: number): Promise<Layout> {
+async function readLayout(image: GeoTIFFImage, label: string, fileSize: number, limit: SizeLimit): Promise<Layout> {
   const refuse = (problem: string, hint = CONVERT_HINT): PiezomapError => inputError(`${label}: ${problem}`, { file: label, hint });
   const width = await numberTag(image, 'ImageWidth', 0);
   const height = await numberTag(image, 'ImageLength', 0);
@@ -235,8 +243,8 @@ async function readLayout(image: GeoTIFFImage, label: string, fileSize: number):
       'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)');
   }
   const needed = cells * 8 + blockBytes + fileSize;
-  if (needed > memoryBudget()) {
-    throw refuse(`${width} x ${height} cells need about ${formatBytes(needed)} to read, more than half of the memory a run may use`,
+  if (needed > limit.bytes) {
+    throw refuse(`${width} x ${height} cells need about ${formatBytes(needed)} to read, more than ${limit.description}`,
       'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)');
   }
 

@@ -15,8 +15,9 @@ import { basename, dirname, extname, resolve } from 'node:path';
 import { crsLabel, gridBounds, gridDifference, type Grid } from '../grid.js';
 import { describeThrown, inputError, PiezomapError } from '../errors.js';
 import { readRaster } from '../raster/read.js';
+import { rasterSizeLimit } from '../memory.js';
 import type { RasterData } from '../raster/types.js';
-import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from './crs.js';
+import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from '../crs.js';
 import {
   parseScenarioJson,
   solverSchema,
@@ -275,7 +276,7 @@ class Loader {
     await this.requireFile(key, given, absolute, 'raster');
     let raster: RasterData;
     try {
-      raster = await readRaster(absolute, { label: `${key} "${given}"` });
+      raster = await readRaster(absolute, { label: `${key} "${given}"`, sizeLimit: rasterSizeLimit() });
     } catch (thrown) {
       // The reader names the raster by the label given; add the scenario file, the path and the key.
       if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
