@@ -10,6 +10,7 @@ import { crsLabel } from '../grid.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderMapPng, renderReportHtml, type ReportRun } from '../report/index.js';
 import { VERSION } from '../version.js';
+import { mapCellLayers } from '../discretisation/terms/types.js';
 import { comparisonCsv, comparisonSummary, type ComparisonSummaryJson } from './comparison.js';
 import { contourFiles, reportRun, type ProductOptions, type RenderedMap } from './products.js';
 import { prepareResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './resultFolder.js';
@@ -48,7 +49,7 @@ export function comparisonFiles(c: ComparisonResult, options: ProductOptions = {
           title: v.result.model.title,
           caution: CAUTION,
           contours: contours.contours,
-          fixedHead: v.result.system.fixed,
+          cellLayers: mapCellLayers(v.result.system.terms, v.result.system.active.length),
           wells: v.result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
           observations: [...v.observations, ...v.receptors].map((o) => ({ id: o.id, x: o.x, y: o.y })),
           footnote: `piezomap ${VERSION}`,

@@ -36,8 +36,12 @@ function check(key: keyof SolverSettings, value: unknown, label: string): void {
 
 /** A setting's value from command-line text, checked as the scenario key is. */
 export function parseSolverOption(key: keyof SolverSettings, text: string): string | number {
+  const flag = SOLVER_OPTION_FLAGS[key];
   const value = key === 'method' ? text : text.trim() === '' ? NaN : Number(text);
-  check(key, value, SOLVER_OPTION_FLAGS[key]);
+  if (typeof value === 'number' && Number.isNaN(value)) {
+    throw new PiezomapError('usage', `${flag}: expected a number, got "${text}"`, { key: `solver.${key}` });
+  }
+  check(key, value, flag);
   return value;
 }
 

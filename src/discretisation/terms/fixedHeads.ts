@@ -58,6 +58,7 @@ function fixedHeadTerm(label: string, cells: Int32Array, heads: Float64Array, ig
     prescribedHeads: heads,
     anchors: true,
     nonlinear: false,
+    mapLegend: 'Fixed-head cells',
     pumping: false,
     ignoredCells,
     // Eliminated: nothing to add; assembly moves the prescribed heads to the neighbours' right-hand side.

@@ -26,6 +26,8 @@ export interface FlowTerm {
   readonly anchors: boolean;
   /** True when the term's linearisation depends on the heads (switches, head-dependent conductance). */
   readonly nonlinear: boolean;
+  /** Map legend of the term's cells when maps draw them (hatched), null when they are not drawn as cells. */
+  readonly mapLegend: string | null;
   /** True when this term's flow is the pumping whose change `compare` splits into sources of water. */
   readonly pumping: boolean;
   /**
@@ -95,3 +97,18 @@ export const linearTerm = {
   updateState: (): number => 0,
   stateKey: (): string => '',
 } as const;
+
+/**
+ * The cells of the terms drawn on maps, one layer per legend label (terms sharing a label, e.g. every fixed-head
+ * group, form one layer), in term order.
+ */
+export function mapCellLayers(terms: readonly FlowTerm[], cellCount: number): Array<{ legend: string; cells: Uint8Array }> {
+  const layers = new Map<string, Uint8Array>();
+  for (const term of terms) {
+    if (term.mapLegend === null) continue;
+    let mask = layers.get(term.mapLegend);
+    if (!mask) layers.set(term.mapLegend, (mask = new Uint8Array(cellCount)));
+    for (let k = 0; k < term.cells.length; k++) mask[term.cells[k]!] = 1;
+  }
+  return [...layers].map(([legend, cells]) => ({ legend, cells }));
+}

@@ -47,6 +47,7 @@ function build(model: ModelInput, context: TermContext): FlowTerm[] {
       cells,
       prescribedHeads: null,
       anchors: false,
+      mapLegend: null,
       pumping: true,
       linearise(_head, _diag, rhs) {
         for (let k = 0; k < cells.length; k++) rhs[cells[k]!]! += rates[k]!;
