@@ -7,8 +7,9 @@ import type { ModelInput } from '../scenario/types.js';
 import { GridOperator } from '../solvers/operator.js';
 
 /**
- * The discretised flow problem of one scenario: the physical conductances (for budgets and fluxes),
- * the fixed-head cells and their groups, the sources, and the linear system A x = b the solvers see.
+ * The discretised flow problem of one scenario: the physical conductances (for budgets and fluxes), the flow
+ * terms (./terms: fixed heads, wells, recharge), the prescribed cells they fix, and the linear system A x = b the
+ * solvers see, linearised about the starting heads.
  * See ../shared/spec/discretisation.md. Everything is full-grid (nx*ny), indexed `row * nx + col`.
  */
 export interface FlowSystem {

@@ -1,6 +1,6 @@
 /**
  * The files and texts of a comparison: comparison.csv (one row per variant), the comparison summary.json and the
- * printed table. Pure functions: the folder is written by compare.ts through resultFolder.ts.
+ * printed table. Pure functions: the folder is written by comparisonFiles.ts through resultFolder.ts.
  */
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare/types.js';
