@@ -12,6 +12,7 @@ import { fromArrayBuffer } from 'geotiff';
 import { describe, expect, it } from 'vitest';
 import { PiezomapError } from '../../src/errors.js';
 import { readRaster } from '../../src/raster/read.js';
+import { rasterSizeLimit } from '../../src/memory.js';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const fixtures = join(here, '..', 'fixtures', 'rasters');
@@ -194,7 +195,8 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     // the memory refusal depends on the machine: with more than ~34 GB it would be read (and take 17 GB)
     const needsSmallMachine = record.file === 'huge-memory.tif' && totalmem() / 2 > 46000 * 46000 * 8;
     it.skipIf(needsSmallMachine)(`readRaster(${record.file}) is refused: ${record.why}`, async () => {
-      const error = await readError(join(fixtures, record.file), { label: `rasters/${record.file}` });
+      // The size limit the scenario loader gives the reader (half the run's memory limit).
+      const error = await readError(join(fixtures, record.file), { label: `rasters/${record.file}`, sizeLimit: rasterSizeLimit() });
       expect(error.code).toBe('input');
       expect(error.message).toContain(`rasters/${record.file}`);
       expect(error.detail.file).toBe(`rasters/${record.file}`);
