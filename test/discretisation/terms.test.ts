@@ -9,6 +9,10 @@ import { DEFAULT_OUTER, solveOuter, type OuterSettings } from '../../src/discret
 import { TERM_KINDS } from '../../src/discretisation/terms/registry.js';
 import type { FlowTerm } from '../../src/discretisation/terms/types.js';
 import { waterBudget } from '../../src/analysis/budget.js';
+import { buildSummary } from '../../src/output/summary.js';
+import { solveModel } from '../../src/pipeline.js';
+import { resultProblem } from '../../src/analysis/result.js';
+import { exitCodeFor } from '../../src/errors.js';
 import { closeSession, openSession, runInline } from '../../src/executor/plan.js';
 import { fixedCells, fixedColumn, makeModel, testGrid, well } from '../helpers/model.js';
 
@@ -105,9 +109,18 @@ describe('flow term registry', () => {
 });
 
 describe('outer iteration', () => {
-  it('runs one linear solve when every term is linear', () => {
+  it('runs one linear solve when every term is linear, and the summary stays as it was', () => {
     const r = solve(chain());
     expect(r.outer).toEqual({ iterations: 1, stopReason: 'linear', history: [] });
+    const system = chain();
+    const result = solveModel(makeModel(system.grid, { conductivity: new Float64Array(3).fill(2), thickness: 5, fixedHeads: [fixedCells('left', [[0, 10]])], recharge: 0.1 }));
+    expect(result.outer.iterations).toBe(1);
+    expect(buildSummary(result, [], 'test').solver).not.toHaveProperty('outerIterations');
+    expect(resultProblem(result)).toBeNull();
+    // An outer loop that did not settle is not a result (exit 3, as a linear solve that did not converge).
+    const unsettled = { ...result, outer: { iterations: 3, stopReason: 'cycle' as const, history: [] } };
+    expect(exitCodeFor(resultProblem(unsettled)!)).toBe(3);
+    expect(buildSummary(unsettled, [], 'test').solver).toMatchObject({ outerIterations: 3, outerStopReason: 'cycle' });
   });
 
   it('switches a drain on and settles on the heads worked by hand', () => {
