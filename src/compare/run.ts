@@ -156,14 +156,23 @@ export function* comparePlan(prepared: PreparedComparison, options: RunOptions =
   if (baselineProblem) warnings.push('the baseline is not a sound result, so no variant was solved and no drawdown computed');
 
   const compared: VariantComparison[] = [];
+  // The baseline's session is kept while a later variant shares it, then closed (not held beside fresh set-ups).
+  const lastShared = baselineProblem ? -1 : prepared.variants.map((v) => v.shared).lastIndexOf(true);
+  let open = true;
+  const release = function* () {
+    if (open) yield* closeSession(session);
+    open = false;
+  };
+  if (lastShared < 0) yield* release();
   if (!baselineProblem) {
-    for (const v of prepared.variants) {
+    for (const [k, v] of prepared.variants.entries()) {
       options.onProgress?.({ stage: 'analyse', message: `solving variant "${v.name}"${v.shared ? ' on the baseline operator' : ''}` });
       const result = yield* solvePlan(v.model, v.system, options, {}, v.shared ? session : undefined);
+      if (k === lastShared) yield* release();
       compared.push(analyseVariant(v, result, baseResult, receptors, receptorCells));
     }
   }
-  yield* closeSession(session);
+  yield* release();
   return { baseline: baseResult, baselineProblem, variants: compared, receptors, warnings };
 }
 
