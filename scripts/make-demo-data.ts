@@ -16,7 +16,7 @@ import { CAUTION } from '../src/caution.js';
 import type { Grid } from '../src/grid.js';
 import { solveScenarioFile } from '../src/pipeline.js';
 import { encodeFloat32GeoTiff } from '../src/raster/write.js';
-import { makeTransform } from '../src/scenario/crs.js';
+import { makeTransform } from '../src/crs.js';
 import { seededUniform } from '../src/random.js';
 
 const NX = 240;

@@ -3,8 +3,8 @@
  * Re-exports only: each function lives in the module of its one job (see DEVELOPERS.md).
  *
  *   load a scenario      loadScenario, resolveScenario, mergeVariant, parseScenarioJson
- *   solve it             solveScenarioFile, solveModel, prepareSolver + solveSystem, writeSolveResults
- *   compare variants     compareScenario, compareModels, resolveVariants, writeComparisonResults
+ *   solve it             solveScenarioFile, solveModel (inline) or solveModelWith (an executor), writeSolveResults
+ *   compare variants     compareScenario, compareModels, compareModelsWith, resolveVariants, writeComparisonResults
  *   analyse              waterBudget, sourcesOfWater, wellboreHeads, calibrationStatistics, headAtPoint
  *   rasters              readRaster, encodeFloat32GeoTiff
  *   the bundled demo     demoScenarioPath
@@ -22,36 +22,43 @@ export type { ModelInput, WellInput, ObservationInput, ReceptorInput, FixedHeadI
 export {
   solveScenarioFile,
   solveModel,
-  solveSystem,
-  prepareSolver,
-  resultProblem,
-  resultFiles,
-  writeSolveResults,
-  BUDGET_DISCREPANCY_LIMIT_PERCENT,
+  solveModelWith,
+  assembleModel,
+  solvePlan,
   type RunOptions,
   type ProgressEvent,
-  type SolveResult,
 } from './pipeline.js';
+export { resultProblem, BUDGET_DISCREPANCY_LIMIT_PERCENT, type SolveResult } from './analysis/result.js';
+export { resultFiles, writeSolveResults } from './output/solveFiles.js';
+export { resolveSolverSettings, parseSolverOption, type SolverOverrides } from './scenario/solverSettings.js';
+export { inlineExecutor } from './executor/inline.js';
+export { workerExecutor, workerAvailable } from './executor/worker.js';
+export { runInline, runOn, type Plan } from './executor/plan.js';
+export type { Executor, SolverSession, SolverChoice } from './executor/types.js';
 export {
   compareScenario,
   compareModels,
+  compareModelsWith,
   prepareComparison,
   resolveVariants,
   operatorDifference,
-  drawdownField,
-  comparisonFiles,
-  writeComparisonResults,
-  comparisonProblem,
   type CompareOptions,
+} from './compare/run.js';
+export {
+  comparisonProblem,
   type ComparisonResult,
   type VariantComparison,
   type PreparedComparison,
   type PreparedVariant,
   type PointDrawdown,
   type WellboreDrawdown,
-} from './compare.js';
+} from './compare/types.js';
+export { drawdownField } from './analysis/drawdown.js';
+export { comparisonFiles, writeComparisonResults } from './output/comparisonFiles.js';
 
 export { assembleSystem, withSources, headsFromSolution, type FlowSystem } from './discretisation/assemble.js';
+export { TERM_KINDS } from './discretisation/terms/registry.js';
+export type { FlowTerm, TermKind } from './discretisation/terms/types.js';
 export { createSolver, solverMethodNames, chooseAutoMethod } from './solvers/registry.js';
 export type { Solver, SolveStats, SolveOptions, StopReason } from './solvers/types.js';
 

@@ -21,6 +21,16 @@ export const MEMORY_LIMIT_ENV = 'PIEZOMAP_MEMORY_LIMIT_MB';
  */
 export const BASE_BYTES_PER_CELL = 360;
 
+/**
+ * Bytes per cell that `compare` holds per variant until its files are written: head, drawdown, right-hand side and
+ * terms, budget inputs and the variant's share of the encoded outputs. From a measurement: 30 variants at 1500^2
+ * peaked at 3.6 GB, about 53 bytes per cell and variant; rounded up.
+ */
+export const COMPARE_VARIANT_BYTES_PER_CELL = 64;
+
+/** Bytes per cell more for a variant that cannot share the baseline's operator: its own conductances, bands and masks. */
+export const COMPARE_FRESH_VARIANT_BYTES_PER_CELL = 120;
+
 /** The Node runtime and the loaded modules, before any grid-sized array (measured about 80 MiB). */
 export const FIXED_OVERHEAD_BYTES = 96 * 2 ** 20;
 
@@ -63,22 +73,30 @@ export interface SolverFootprint {
  * Refuse a run that would not fit the memory limit, before assembling it. `leaner`: a method needing less memory,
  * suggested in the hint when given.
  */
-export function checkMemoryBudget(grid: Grid, solver: SolverFootprint, leaner: SolverFootprint | null = null, limit: MemoryLimit = memoryLimit()): void {
+export function checkMemoryBudget(
+  grid: Grid,
+  solver: SolverFootprint,
+  leaner: SolverFootprint | null = null,
+  limit: MemoryLimit = memoryLimit(),
+  held: { bytesPerCell: number; what: string } | null = null,
+): void {
   const cells = grid.nx * grid.ny;
-  const needed = estimateRunBytes(cells, solver.bytesPerCell);
+  const heldBytes = held ? held.bytesPerCell : 0;
+  const needed = estimateRunBytes(cells, solver.bytesPerCell + heldBytes);
   if (needed <= limit.bytes) return;
-  const cellsThatFit = Math.max(1, Math.floor((limit.bytes - FIXED_OVERHEAD_BYTES) / (BASE_BYTES_PER_CELL + solver.bytesPerCell)));
+  const cellsThatFit = Math.max(1, Math.floor((limit.bytes - FIXED_OVERHEAD_BYTES) / (BASE_BYTES_PER_CELL + solver.bytesPerCell + heldBytes)));
   const factor = Math.ceil(Math.sqrt(cells / cellsThatFit) * 10) / 10;
   const alternative =
-    leaner && leaner.bytesPerCell < solver.bytesPerCell && estimateRunBytes(cells, leaner.bytesPerCell) <= limit.bytes
-      ? `; solver "${leaner.method}" needs less (about ${formatBytes(estimateRunBytes(cells, leaner.bytesPerCell))}) but converges more slowly`
+    leaner && leaner.bytesPerCell < solver.bytesPerCell && estimateRunBytes(cells, leaner.bytesPerCell + heldBytes) <= limit.bytes
+      ? `; solver "${leaner.method}" needs less (about ${formatBytes(estimateRunBytes(cells, leaner.bytesPerCell + heldBytes))}) but converges more slowly`
       : '';
   const hint =
     limit.bytes <= FIXED_OVERHEAD_BYTES
       ? `the limit is below the ${formatBytes(FIXED_OVERHEAD_BYTES)} the program itself takes: raise it`
-      : `coarsen the rasters about ${factor}x per side (gdalwarp -tr) or clip them to the model area${alternative}`;
+      : `coarsen the rasters about ${factor}x per side (gdalwarp -tr) or clip them to the model area${alternative}` +
+        (held && held.bytesPerCell > 0 ? ', or compare fewer variants per run' : '');
   throw inputError(
-    `the run needs about ${formatBytes(needed)} (${grid.nx} x ${grid.ny} cells, solver ${solver.method}) but the memory limit is ${formatBytes(limit.bytes)} (${limit.source})`,
+    `the run needs about ${formatBytes(needed)} (${grid.nx} x ${grid.ny} cells, solver ${solver.method}${held && held.bytesPerCell > 0 ? `, ${held.what}` : ''}) but the memory limit is ${formatBytes(limit.bytes)} (${limit.source})`,
     { hint },
   );
 }

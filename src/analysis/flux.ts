@@ -20,6 +20,7 @@
  */
 import { cellHeight, cellWidth, type Grid } from '../grid.js';
 import { inputError } from '../errors.js';
+import { fieldAt } from '../field.js';
 
 export interface FaceFlows {
   /** Eastward (column + 1) flow through the face between p and p+1, length^3/time; 0 on the last column. */
@@ -105,12 +106,10 @@ export function darcyFlux(input: FluxInput): DarcyFlux {
   const magnitude = new Float64Array(n);
   const fe = flows.east;
   const fs = flows.south;
-  const uniformB = typeof thickness === 'number' ? thickness : 0;
-  const bandB = typeof thickness === 'number' ? null : thickness;
   for (let i = 0; i < ny; i++) {
     for (let j = 0; j < nx; j++) {
       const p = i * nx + j;
-      const b = bandB ? bandB[p]! : uniformB;
+      const b = fieldAt(thickness, p);
       if (!Number.isFinite(head[p]!) || !(b > 0)) {
         qx[p] = NaN;
         qy[p] = NaN;
@@ -158,10 +157,8 @@ export function linearVelocity(grid: Grid, flux: DarcyFlux, porosity: number | F
   const vx = new Float64Array(n);
   const vy = new Float64Array(n);
   const speed = new Float64Array(n);
-  const uniform = typeof porosity === 'number' ? porosity : 0;
-  const band = typeof porosity === 'number' ? null : porosity;
   for (let p = 0; p < n; p++) {
-    const ne = band ? band[p]! : uniform;
+    const ne = fieldAt(porosity, p);
     // NaN porosity or NaN flux propagate to NaN velocity.
     vx[p] = flux.qx[p]! / ne;
     vy[p] = flux.qy[p]! / ne;

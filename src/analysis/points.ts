@@ -27,10 +27,22 @@ export interface ObservationResult {
   residual: number;
 }
 
+/**
+ * The cell of each well, in input order. Wells are checked when the system is assembled (outside the grid or on
+ * an inactive or fixed cell is an input error there), so every well lies in a cell here.
+ */
+export function wellCells(grid: Grid, wells: readonly WellInput[]): Int32Array {
+  return Int32Array.from(wells, (w) => {
+    const cell = cellAt(grid, w.x, w.y);
+    return cell ? cell.row * grid.nx + cell.col : -1;
+  });
+}
+
 export function wellResults(system: FlowSystem, wells: WellInput[], head: Float64Array): WellResult[] {
   const nx = system.grid.nx;
+  const cells = wellCells(system.grid, wells);
   return wells.map((w, k) => {
-    const p = system.wellCells[k]!;
+    const p = cells[k]!;
     return { id: w.id, x: w.x, y: w.y, row: Math.floor(p / nx), col: p % nx, rate: w.rate, cellHead: head[p]! };
   });
 }

@@ -10,6 +10,7 @@
  *   given aquifer top (the aquifer drains: no longer confined; common practice for the confined-model check).
  */
 import type { FlowSystem } from '../discretisation/assemble.js';
+import { fieldAt as at } from '../field.js';
 import type { ModelInput, Units } from '../scenario/types.js';
 import type { WellboreResult } from './wellbore.js';
 
@@ -21,10 +22,6 @@ export function metresPerSecond(units: Units): number {
   const metres = units.length === 'ft' ? 0.3048 : 1; // international foot, exact
   const seconds = units.time === 'd' ? 86400 : 1;
   return metres / seconds;
-}
-
-function at(field: Float64Array | number, p: number): number {
-  return typeof field === 'number' ? field : field[p]!;
 }
 
 function cellText(p: number, nx: number): string {

@@ -24,7 +24,7 @@ export interface SourceOfWater {
 export interface SourcesOfWater {
   /** Increase of net well withdrawal (variant - baseline), L^3/T; positive when the variant pumps more. */
   addedPumping: number;
-  /** Every non-well term, baseline order first, then terms only the variant has. */
+  /** Every term but the pumping, baseline order first, then terms only the variant has. */
   terms: SourceOfWater[];
   /** Sum of the terms' percentages (100 % up to the budget discrepancies); null when the pumping did not change. */
   totalPercent: number | null;
@@ -39,16 +39,20 @@ export function sourcesOfWater(baseline: WaterBudget, variant: WaterBudget): Sou
   for (const t of variant.terms) if (!names.includes(t.term)) names.push(t.term);
   const find = (budget: WaterBudget, name: string) => budget.terms.find((t) => t.term === name) ?? { term: name, inflow: 0, outflow: 0 };
 
-  const baseWells = find(baseline, 'wells');
-  const varWells = find(variant, 'wells');
-  const addedPumping = varWells.outflow - varWells.inflow - (baseWells.outflow - baseWells.inflow);
+  const pumped = new Set([...baseline.terms, ...variant.terms].filter((t) => t.pumping).map((t) => t.term));
+  let addedPumping = 0;
+  for (const name of pumped) {
+    const b = find(baseline, name);
+    const v = find(variant, name);
+    addedPumping += v.outflow - v.inflow - (b.outflow - b.inflow);
+  }
   const scale = Math.max(baseline.totalIn, baseline.totalOut, variant.totalIn, variant.totalOut, 0);
   const meaningful = Math.abs(addedPumping) > NEGLIGIBLE * scale && addedPumping !== 0;
 
   const terms: SourceOfWater[] = [];
   let total = 0;
   for (const name of names) {
-    if (name === 'wells') continue;
+    if (pumped.has(name)) continue;
     const b = find(baseline, name);
     const v = find(variant, name);
     const inflowChange = v.inflow - b.inflow;

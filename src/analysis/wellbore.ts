@@ -12,6 +12,8 @@
  * several wells share a cell each one's own rate enters its log term (the cell head already holds them all).
  */
 import type { FlowSystem } from '../discretisation/assemble.js';
+import { fieldAt } from '../field.js';
+import { wellCells } from './points.js';
 import type { ModelInput } from '../scenario/types.js';
 
 /** Well-bore radius used when a well gives none, per length unit (0.1 m; 0.33 ft, about the same). */
@@ -60,9 +62,10 @@ export function wellboreHeads(model: ModelInput, system: FlowSystem, head: Float
   const nx = system.grid.nx;
   const r0 = equivalentBlockRadius(system.dx, system.dy, model.anisotropy);
   const defaultRadius = DEFAULT_WELL_RADIUS[model.units.length];
+  const cells = wellCells(system.grid, model.wells);
   return model.wells.map((well, k) => {
-    const p = system.wellCells[k]!;
-    const b = typeof model.thickness === 'number' ? model.thickness : model.thickness[p]!;
+    const p = cells[k]!;
+    const b = fieldAt(model.thickness, p);
     const tx = model.conductivity[p]! * b;
     const transmissivity = tx * Math.sqrt(model.anisotropy);
     const radius = well.radius ?? defaultRadius;

@@ -2,6 +2,7 @@ import { CAUTION } from '../caution.js';
 import { cellHeight, cellWidth, crsLabel, gridBounds } from '../grid.js';
 import type { FlowSystem } from '../discretisation/assemble.js';
 import type { ModelInput } from '../scenario/types.js';
+import { wellCells } from '../analysis/points.js';
 
 export interface InspectReport {
   title: string;
@@ -41,9 +42,8 @@ export function inspectReport(
     if (g >= 0) groupCells[g]!++;
   }
   const warnings = [...model.warnings];
-  system.counts.fixedOnInactive.forEach((count, g) => {
-    if (count > 0) warnings.push(`${count} fixed-head cell(s) of "${system.groups[g]}" fall on inactive cells and will be ignored`);
-  });
+  const cells = wellCells(grid, model.wells);
+  for (const term of system.terms) warnings.push(...term.notes(false));
   return {
     title: model.title,
     scenario: model.scenarioPath,
@@ -59,7 +59,7 @@ export function inspectReport(
     fixedHeads: system.groups.map((name, g) => ({ name, cells: groupCells[g]!, ignoredOnInactive: system.counts.fixedOnInactive[g]! })),
     conductivity: { min: kMin, max: kMax },
     wells: model.wells.map((w, k) => {
-      const p = system.wellCells[k]!;
+      const p = cells[k]!;
       return { id: w.id, row: Math.floor(p / grid.nx), col: p % grid.nx, rate: w.rate };
     }),
     observations: model.observations.length,

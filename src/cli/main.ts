@@ -10,13 +10,21 @@ import { CAUTION } from '../caution.js';
 import { demoScenarioPath } from '../demoPath.js';
 import { loadScenario } from '../scenario/load.js';
 import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
-import { assembleModel, solveModel, writeSolveResults, prepareResultFolder, resultProblem, type RunOptions } from '../pipeline.js';
+import { assembleModel, solveModelWith, withSolverSettings, type RunOptions } from '../pipeline.js';
+import { resultProblem } from '../analysis/result.js';
 import { formatSummary } from '../output/summary.js';
-import { solveModelInWorker, workerAvailable } from '../robustness/solveInWorker.js';
+import { writeSolveResults } from '../output/solveFiles.js';
+import { inlineExecutor } from '../executor/inline.js';
+import { workerAvailable, workerExecutor } from '../executor/worker.js';
+import type { Executor } from '../executor/types.js';
 import type { ProductOptions } from '../output/products.js';
 import { formatComparison } from '../output/comparison.js';
-import { comparisonProblem, compareScenario, prepareComparison, resolveVariants, writeComparisonResults } from '../compare.js';
-import { removeTemporaryFilesSync } from '../output/resultFolder.js';
+import { writeComparisonResults } from '../output/comparisonFiles.js';
+import { compareScenario, prepareComparison, resolveVariants } from '../compare/run.js';
+import { comparisonProblem } from '../compare/types.js';
+import { parseSolverOption } from '../scenario/solverSettings.js';
+import type { SolverSettings } from '../scenario/types.js';
+import { prepareResultFolder, removeTemporaryFilesSync } from '../output/resultFolder.js';
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
 
@@ -57,12 +65,14 @@ function positiveNumber(name: string) {
   };
 }
 
-function positiveInteger(name: string) {
-  return (value: string): number => {
-    const v = Number(value);
-    if (!Number.isInteger(v) || v <= 0) throw new PiezomapError('usage', `${name} must be a positive whole number, got "${value}"`);
-    return v;
-  };
+/** A solver setting on the command line, checked by the same code as the scenario's `solver` key. */
+function solverOption(key: keyof SolverSettings) {
+  return (value: string) => parseSolverOption(key, value);
+}
+
+/** Where the solves run: a worker thread (signals answered at once) when the compiled worker is there. */
+function executor(): Executor {
+  return workerAvailable() ? workerExecutor : inlineExecutor;
 }
 
 function addCommon(cmd: Command): Command {
@@ -80,35 +90,36 @@ function productOptions(flags: SolveFlags): ProductOptions {
 
 function addSolverOptions(cmd: Command): Command {
   return cmd
-    .addOption(new Option('--method <name>', `solver method (overrides the scenario): ${solverMethodNames().join(', ')}`))
-    .option('--tolerance <number>', 'relative residual to reach (overrides the scenario)', positiveNumber('--tolerance'))
-    .option('--max-iterations <n>', 'iteration cap (overrides the scenario)', positiveInteger('--max-iterations'))
-    .option('--relaxation <omega>', 'relaxation factor for SOR (default: chosen automatically)', positiveNumber('--relaxation'))
+    .addOption(new Option('--method <name>', `solver method (overrides the scenario): ${solverMethodNames().join(', ')}`).argParser(solverOption('method')))
+    .option('--tolerance <number>', 'relative residual to reach (overrides the scenario)', solverOption('tolerance'))
+    .option('--max-iterations <n>', 'iteration cap (overrides the scenario)', solverOption('maxIterations'))
+    .option('--relaxation <omega>', 'relaxation factor for SOR (default: chosen automatically)', solverOption('relaxation'))
     .option('--overwrite', 'replace results already in the output folder')
     .option('--no-maps', 'write only rasters, tables and the summary: no contours, flux rasters, map or report')
     .option('--native-contours', "also write contours in the raster's own CRS (*.native.geojson)")
     .option('--contour-interval <number>', 'contour interval in length units (default: a round interval)', positiveNumber('--contour-interval'));
 }
 
-async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
-  if (flags.method && !solverMethodNames().includes(flags.method)) {
-    throw new PiezomapError('usage', `unknown solver method "${flags.method}"`, { hint: `choose one of: ${solverMethodNames().join(', ')}` });
-  }
+/** The run options of the flags: solver overrides (already checked while parsing), progress. */
+function runOptions(flags: SolveFlags): { options: RunOptions; progress: ReturnType<typeof makeProgress> } {
   const progress = makeProgress(Boolean(flags.quiet));
   const options: RunOptions = { onProgress: progress };
   if (flags.method) options.method = flags.method;
   if (flags.tolerance !== undefined) options.tolerance = flags.tolerance;
   if (flags.maxIterations !== undefined) options.maxIterations = flags.maxIterations;
   if (flags.relaxation !== undefined) options.relaxation = flags.relaxation;
+  return { options, progress };
+}
 
+async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  const { options, progress } = runOptions(flags);
   const t0 = performance.now();
   progress?.({ stage: 'load', message: `reading ${scenario}` });
   const { model } = await loadScenario(scenario);
   const timings: Record<string, number> = { load: (performance.now() - t0) / 1000 };
   // Check the output folder before the long work.
   await prepareResultFolder(outDir, Boolean(flags.overwrite));
-  // The solver runs in a worker thread so that Ctrl-C / SIGTERM are answered at once (see installSignalHandlers).
-  const result = workerAvailable() ? await solveModelInWorker(model, options, timings) : solveModel(model, options, timings);
+  const result = await solveModelWith(model, executor(), options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();
@@ -120,19 +131,6 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
     return exitCodeFor(problem);
   }
   return 0;
-}
-
-function runOptions(flags: SolveFlags): { options: RunOptions; progress: ReturnType<typeof makeProgress> } {
-  if (flags.method && !solverMethodNames().includes(flags.method)) {
-    throw new PiezomapError('usage', `unknown solver method "${flags.method}"`, { hint: `choose one of: ${solverMethodNames().join(', ')}` });
-  }
-  const progress = makeProgress(Boolean(flags.quiet));
-  const options: RunOptions = { onProgress: progress };
-  if (flags.method) options.method = flags.method;
-  if (flags.tolerance !== undefined) options.tolerance = flags.tolerance;
-  if (flags.maxIterations !== undefined) options.maxIterations = flags.maxIterations;
-  if (flags.relaxation !== undefined) options.relaxation = flags.relaxation;
-  return { options, progress };
 }
 
 async function runCompare(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
@@ -147,7 +145,7 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
   }
   // Check the output folder before the long work.
   await prepareResultFolder(outDir, Boolean(flags.overwrite));
-  const comparison = await compareScenario(loaded, options);
+  const comparison = await compareScenario(loaded, options, executor());
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();
@@ -164,10 +162,11 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
 async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Promise<number> {
   const { model, raw } = await loadScenario(scenario);
   // As a solve would: the memory budget, the assembly, and every point located.
-  const system = assembleModel(model);
+  const settled = withSolverSettings(model, {});
+  const system = assembleModel(settled);
   // Variants are resolved and checked as compare would, without solving.
   const prepared = prepareComparison(model, await resolveVariants(model, raw), {}, system);
-  const report = inspectReport(model, system, chooseAutoMethod(system.operator), prepared.variants);
+  const report = inspectReport(settled, system, chooseAutoMethod(system.operator), prepared.variants);
   io.stdout(flags.json ? JSON.stringify(report, null, 2) + '\n' : formatInspect(report));
   return 0;
 }

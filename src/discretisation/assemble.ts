@@ -1,11 +1,15 @@
-import { cellAt, cellCentre, cellHeight, cellWidth, type Grid } from '../grid.js';
-import { inputError } from '../errors.js';
+import { cellCentre, cellHeight, cellWidth, type Grid } from '../grid.js';
+import { inputError, PiezomapError } from '../errors.js';
+import { fieldAt } from '../field.js';
+import { TERM_KINDS } from './terms/registry.js';
+import type { FlowTerm, TermContext } from './terms/types.js';
 import type { ModelInput } from '../scenario/types.js';
-import { GridOperator } from './operator.js';
+import { GridOperator } from '../solvers/operator.js';
 
 /**
- * The discretised flow problem of one scenario: the physical conductances (for budgets and fluxes),
- * the fixed-head cells and their groups, the sources, and the linear system A x = b the solvers see.
+ * The discretised flow problem of one scenario: the physical conductances (for budgets and fluxes), the flow
+ * terms (./terms: fixed heads, wells, recharge), the prescribed cells they fix, and the linear system A x = b the
+ * solvers see, linearised about the starting heads.
  * See ../shared/spec/discretisation.md. Everything is full-grid (nx*ny), indexed `row * nx + col`.
  */
 export interface FlowSystem {
@@ -14,24 +18,20 @@ export interface FlowSystem {
   dy: number;
   /** 1 = active cell. */
   active: Uint8Array;
-  /** 1 = fixed-head cell (always active). */
+  /** 1 = prescribed (Dirichlet, e.g. fixed-head) cell, always active. */
   fixed: Uint8Array;
   /** Prescribed head on fixed cells, NaN elsewhere. */
   fixedHead: Float64Array;
   /** Index into `groups` for fixed cells, -1 elsewhere. */
   fixedGroup: Int32Array;
-  /** Fixed-head group names, in scenario order. */
+  /** Labels of the Dirichlet terms (fixed-head groups), in scenario order. */
   groups: string[];
   /** Physical conductance between p and p+1 (both active), 0 otherwise. L^2/T. */
   conductanceEast: Float64Array;
   /** Physical conductance between p and p+nx (both active), 0 otherwise. */
   conductanceSouth: Float64Array;
-  /** Summed well rate per cell (L^3/T, negative = withdrawal). */
-  wellRate: Float64Array;
-  /** Recharge volume rate per unknown cell, R*dx*dy (L^3/T); zero on fixed and inactive cells. */
-  rechargeRate: Float64Array;
-  /** The well each input well landed in, in input order. */
-  wellCells: Int32Array;
+  /** Every source, sink and boundary, in budget order (./terms/registry.ts). */
+  terms: FlowTerm[];
   /**
    * Heads are solved as x = h - datum so that the right-hand side holds flows, not head levels:
    * with absolute heads a large fixed-head term dominates ||b|| and a small relative residual can still
@@ -46,7 +46,7 @@ export interface FlowSystem {
     active: number;
     fixed: number;
     unknowns: number;
-    /** Fixed-head data that fell on inactive cells and was ignored, per group. */
+    /** Prescribed-head data that fell on inactive cells and was ignored, per group. */
     fixedOnInactive: number[];
     regions: number;
   };
@@ -72,7 +72,7 @@ export function assembleSystem(model: ModelInput): FlowSystem {
   let activeCount = 0;
   for (let p = 0; p < n; p++) {
     const k = conductivity[p]!;
-    const b = typeof thickness === 'number' ? thickness : thickness[p]!;
+    const b = fieldAt(thickness, p);
     // NaN compares false, so nodata (already NaN) and NaN both land here as inactive.
     if (k > 0 && b > 0 && Number.isFinite(k) && Number.isFinite(b)) {
       active[p] = 1;
@@ -106,31 +106,32 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     }
   }
 
-  // Fixed heads: later entries win where they overlap; data on inactive cells is ignored and counted.
-  const fixed = new Uint8Array(n);
+  // Dirichlet terms first: their cells are prescribed and eliminated.
+  const context: TermContext = {
+    grid,
+    dx,
+    dy,
+    active,
+    fixed: new Uint8Array(n),
+    fixedGroup: new Int32Array(n).fill(-1),
+    groups: [],
+    datum: 0,
+    conductanceEast,
+    conductanceSouth,
+  };
+  const dirichlet = TERM_KINDS.filter((k) => k.dirichlet).flatMap((k) => k.build(model, context));
   const fixedHead = new Float64Array(n).fill(NaN);
-  const fixedGroup = new Int32Array(n).fill(-1);
-  const groups = model.fixedHeads.map((f) => f.name);
-  const fixedOnInactive = model.fixedHeads.map(() => 0);
-  model.fixedHeads.forEach((entry, g) => {
-    const { cells, heads } = entry;
-    for (let k = 0; k < cells.length; k++) {
-      const p = cells[k]!;
-      const h = heads[k]!;
-      if (!active[p]) {
-        if (!entry.activeOnly) fixedOnInactive[g]!++;
-        continue;
-      }
-      if (!Number.isFinite(h)) {
-        throw inputError(`${entry.source} (${entry.name}): fixed head at row ${Math.floor(p / nx)}, col ${p % nx} is not a finite number`, {
-          cell: { row: Math.floor(p / nx), col: p % nx },
-        });
-      }
+  const { fixed, fixedGroup } = context;
+  dirichlet.forEach((term, g) => {
+    const heads = term.prescribedHeads!;
+    for (let k = 0; k < term.cells.length; k++) {
+      const p = term.cells[k]!;
       fixed[p] = 1;
-      fixedHead[p] = h;
+      fixedHead[p] = heads[k]!;
       fixedGroup[p] = g;
     }
   });
+  context.groups = dirichlet.map((t) => t.label);
 
   let fixedCount = 0;
   let headSum = 0;
@@ -141,17 +142,17 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     }
   }
   const datum = fixedCount > 0 ? headSum / fixedCount : 0;
+  context.datum = datum;
 
-  const { wellRate, wellCells, rechargeRate } = placeSources(model, active, fixed, fixedGroup, groups);
+  const others = TERM_KINDS.filter((k) => !k.dirichlet).flatMap((k) => k.build(model, context));
+  // Budget order: the registry's, Dirichlet kinds included where the registry lists them.
+  const terms = TERM_KINDS.flatMap((k) => (k.dirichlet ? dirichlet.filter((t) => t.kind === k.kind) : others.filter((t) => t.kind === k.kind)));
 
-  const regions = checkRegions(grid, active, fixed, conductanceEast, conductanceSouth);
+  const anchor = new Uint8Array(n);
+  for (const term of terms) if (term.anchors) for (let k = 0; k < term.cells.length; k++) anchor[term.cells[k]!] = 1;
+  const regions = checkRegions(grid, active, anchor, conductanceEast, conductanceSouth);
 
-  // The linear system on unknown cells (active, not fixed); identity rows elsewhere.
-  const diag = new Float64Array(n);
-  const east = new Float64Array(n);
-  const south = new Float64Array(n);
   const unknown = new Uint8Array(n);
-  const rhs = new Float64Array(n);
   let unknownCount = 0;
   for (let p = 0; p < n; p++) {
     if (active[p] && !fixed[p]) {
@@ -159,21 +160,73 @@ export function assembleSystem(model: ModelInput): FlowSystem {
       unknownCount++;
     }
   }
+  // The couplings between unknowns depend on the aquifer only; diagonal and right-hand side also on the terms.
+  const east = new Float64Array(n);
+  const south = new Float64Array(n);
+  for (let p = 0; p < n; p++) {
+    if (!unknown[p]) continue;
+    if (unknown[p + 1] && (p + 1) % nx !== 0) east[p] = conductanceEast[p]!;
+    if (p + nx < n && unknown[p + nx]) south[p] = conductanceSouth[p]!;
+  }
+  const base: Omit<FlowSystem, 'operator' | 'rhs'> = {
+    grid,
+    dx,
+    dy,
+    active,
+    fixed,
+    fixedHead,
+    fixedGroup,
+    groups: context.groups,
+    conductanceEast,
+    conductanceSouth,
+    terms,
+    datum,
+    counts: { cells: n, active: activeCount, fixed: fixedCount, unknowns: unknownCount, fixedOnInactive: dirichlet.map((t) => t.ignoredCells), regions },
+  };
+  const initial = startingHeads(fixedHead, active, datum);
+  const { diag, rhs } = linearise(base, unknown, initial);
+  return { ...base, operator: new GridOperator(nx, ny, diag, east, south, unknown), rhs };
+}
+
+/** Heads to linearise about before any solve: the prescribed heads, the datum elsewhere on the active area. */
+export function startingHeads(fixedHead: Float64Array, active: Uint8Array, datum: number): Float64Array {
+  const head = new Float64Array(fixedHead.length);
+  for (let p = 0; p < head.length; p++) head[p] = !active[p] ? NaN : fixedHead[p] === fixedHead[p] ? fixedHead[p]! : datum;
+  return head;
+}
+
+/**
+ * The operator's diagonal and the right-hand side for x = h - datum, with every term linearised about `head`:
+ * on unknown cells the sum of the conductances to the neighbours plus the terms' diagonal, and the terms' right-hand
+ * side plus the prescribed neighbours' heads times conductance (Dirichlet elimination); identity rows elsewhere.
+ * The one place a right-hand side is built (assembly, variants on a shared operator, outer iterations).
+ */
+export function linearise(
+  system: Pick<FlowSystem, 'grid' | 'fixed' | 'fixedHead' | 'conductanceEast' | 'conductanceSouth' | 'terms' | 'datum'>,
+  unknown: Uint8Array,
+  head: Float64Array,
+): { diag: Float64Array; rhs: Float64Array } {
+  const { grid, fixed, fixedHead, conductanceEast, conductanceSouth, terms, datum } = system;
+  const { nx, ny } = grid;
+  const n = nx * ny;
+  const diag = new Float64Array(n);
+  const rhs = new Float64Array(n);
+  for (const term of terms) term.linearise(head, diag, rhs);
   for (let p = 0; p < n; p++) {
     if (!unknown[p]) {
       diag[p] = 1;
+      rhs[p] = 0;
       continue;
     }
     const row = Math.floor(p / nx);
     const col = p - row * nx;
     let d = 0;
-    let b = wellRate[p]! + rechargeRate[p]!;
-    // Each neighbour: add its conductance to the diagonal; couple to unknowns, move fixed heads to b.
+    let b = rhs[p]!;
+    // Each neighbour: add its conductance to the diagonal; move prescribed heads to b.
     if (col < nx - 1) {
       const c = conductanceEast[p]!;
       d += c;
-      if (unknown[p + 1]) east[p] = c;
-      else if (fixed[p + 1]) b += c * (fixedHead[p + 1]! - datum);
+      if (fixed[p + 1]) b += c * (fixedHead[p + 1]! - datum);
     }
     if (col > 0) {
       const c = conductanceEast[p - 1]!;
@@ -183,128 +236,57 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     if (row < ny - 1) {
       const c = conductanceSouth[p]!;
       d += c;
-      if (unknown[p + nx]) south[p] = c;
-      else if (fixed[p + nx]) b += c * (fixedHead[p + nx]! - datum);
+      if (fixed[p + nx]) b += c * (fixedHead[p + nx]! - datum);
     }
     if (row > 0) {
       const c = conductanceSouth[p - nx]!;
       d += c;
       if (fixed[p - nx]) b += c * (fixedHead[p - nx]! - datum);
     }
-    diag[p] = d;
+    diag[p] = d + diag[p]!;
     rhs[p] = b;
   }
-
-  return {
-    grid,
-    dx,
-    dy,
-    active,
-    fixed,
-    fixedHead,
-    fixedGroup,
-    groups,
-    conductanceEast,
-    conductanceSouth,
-    wellRate,
-    rechargeRate,
-    wellCells,
-    datum,
-    operator: new GridOperator(nx, ny, diag, east, south, unknown),
-    rhs,
-    counts: { cells: n, active: activeCount, fixed: fixedCount, unknowns: unknownCount, fixedOnInactive, regions },
-  };
+  return { diag, rhs };
 }
 
 /**
- * Sources of a model on a grid whose active and fixed cells are known: wells summed per cell (a well outside
- * the grid, in an inactive or in a fixed-head cell is an input error naming it), recharge as a volume rate on
- * unknown cells only (on a fixed cell it would leave at once).
- */
-export function placeSources(
-  model: ModelInput,
-  active: Uint8Array,
-  fixed: Uint8Array,
-  fixedGroup: Int32Array,
-  groups: string[],
-): { wellRate: Float64Array; wellCells: Int32Array; rechargeRate: Float64Array } {
-  const { grid } = model;
-  const nx = grid.nx;
-  const n = nx * grid.ny;
-  const wellRate = new Float64Array(n);
-  const wellCells = new Int32Array(model.wells.length);
-  model.wells.forEach((well, w) => {
-    const cell = cellAt(grid, well.x, well.y);
-    if (!cell) {
-      throw inputError(`well "${well.id}" (${well.source}) at x=${well.x}, y=${well.y} lies outside the grid`, {
-        key: well.source,
-        hint: 'check the coordinates and pointCrs: points are in the raster CRS unless pointCrs names another',
-      });
-    }
-    const p = cell.row * nx + cell.col;
-    if (!active[p]) {
-      throw inputError(`well "${well.id}" (${well.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, {
-        key: well.source,
-        cell,
-        hint: 'move the well into the active aquifer or check the conductivity raster there',
-      });
-    }
-    if (fixed[p]) {
-      throw inputError(
-        `well "${well.id}" (${well.source}) lies in a fixed-head cell of "${groups[fixedGroup[p]!]}" (row ${cell.row}, col ${cell.col}): its water would come straight from the boundary`,
-        { key: well.source, cell, hint: 'move the well off the fixed-head cells' },
-      );
-    }
-    wellRate[p]! += well.rate;
-    wellCells[w] = p;
-  });
-  const rechargeRate = new Float64Array(n);
-  const recharge = model.recharge;
-  const cellArea = cellWidth(grid) * cellHeight(grid);
-  for (let p = 0; p < n; p++) {
-    if (active[p] && !fixed[p]) {
-      const r = typeof recharge === 'number' ? recharge : recharge[p]!;
-      if (Number.isFinite(r)) rechargeRate[p] = r * cellArea;
-    }
-  }
-  return { wellRate, wellCells, rechargeRate };
-}
-
-/**
- * The system of `model` on the operator of `base`, for a model that differs from base's only in its sources
- * (wells, recharge): conductances, fixed heads, datum and operator are shared (not copied); only the sources
- * and the right-hand side are new. The caller guarantees that the aquifer and fixed heads are the same.
+ * The system of `model` on the operator of `base`, for a model that differs from base's only in terms that add
+ * to the right-hand side alone (wells, recharge): conductances, prescribed heads, datum and operator are shared
+ * (not copied); the terms and the right-hand side are new, built by the same code as assembleSystem's. The caller
+ * guarantees that the aquifer and the prescribed heads are the same.
  */
 export function withSources(base: FlowSystem, model: ModelInput): FlowSystem {
-  const { grid, active, fixed, fixedGroup, groups, fixedHead, conductanceEast, conductanceSouth, datum } = base;
-  const { nx, ny } = grid;
-  const { wellRate, wellCells, rechargeRate } = placeSources(model, active, fixed, fixedGroup, groups);
+  const context: TermContext = {
+    grid: base.grid,
+    dx: base.dx,
+    dy: base.dy,
+    active: base.active,
+    fixed: base.fixed,
+    fixedGroup: base.fixedGroup,
+    groups: base.groups,
+    datum: base.datum,
+    conductanceEast: base.conductanceEast,
+    conductanceSouth: base.conductanceSouth,
+  };
+  const terms = TERM_KINDS.flatMap((k) => (k.rhsOnly ? k.build(model, context) : base.terms.filter((t) => t.kind === k.kind)));
+  const system = { ...base, grid: model.grid, terms };
   const unknown = base.operator.unknown;
-  const rhs = new Float64Array(nx * ny);
-  for (let p = 0; p < rhs.length; p++) {
-    if (!unknown[p]) continue;
-    const row = Math.floor(p / nx);
-    const col = p - row * nx;
-    // The same right-hand side as assembleSystem: sources plus the fixed neighbours' heads times conductance.
-    let b = wellRate[p]! + rechargeRate[p]!;
-    if (col < nx - 1 && fixed[p + 1]) b += conductanceEast[p]! * (fixedHead[p + 1]! - datum);
-    if (col > 0 && fixed[p - 1]) b += conductanceEast[p - 1]! * (fixedHead[p - 1]! - datum);
-    if (row < ny - 1 && fixed[p + nx]) b += conductanceSouth[p]! * (fixedHead[p + nx]! - datum);
-    if (row > 0 && fixed[p - nx]) b += conductanceSouth[p - nx]! * (fixedHead[p - nx]! - datum);
-    rhs[p] = b;
+  const { diag, rhs } = linearise(system, unknown, startingHeads(base.fixedHead, base.active, base.datum));
+  for (let p = 0; p < diag.length; p++) {
+    if (diag[p] !== base.operator.diag[p]) throw new PiezomapError('internal', 'a variant on the shared operator changed its diagonal');
   }
-  return { ...base, grid: model.grid, wellRate, wellCells, rechargeRate, rhs };
+  return { ...system, rhs };
 }
 
 /**
- * Label the connected active regions (cells joined by a non-zero conductance). A region without a
- * fixed-head cell has no unique steady head (the matrix is singular): refuse it, saying where it is.
+ * Label the connected active regions (cells joined by a non-zero conductance). A region without an
+ * anchor (a cell of a term that fixes the level, e.g. a fixed head) has no unique steady head (the matrix is singular): refuse it, saying where it is.
  * Returns the number of regions.
  */
 export function checkRegions(
   grid: Grid,
   active: Uint8Array,
-  fixed: Uint8Array,
+  anchor: Uint8Array,
   conductanceEast: Float64Array,
   conductanceSouth: Float64Array,
 ): number {
@@ -326,7 +308,7 @@ export function checkRegions(
     while (head < tail) {
       const p = queue[head++]!;
       size++;
-      if (fixed[p]) hasFixed = true;
+      if (anchor[p]) hasFixed = true;
       const row = Math.floor(p / nx);
       const col = p - row * nx;
       if (row < minRow) minRow = row;

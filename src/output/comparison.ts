@@ -1,9 +1,9 @@
 /**
  * The files and texts of a comparison: comparison.csv (one row per variant), the comparison summary.json and the
- * printed table. Pure functions: the folder is written by compare.ts through resultFolder.ts.
+ * printed table. Pure functions: the folder is written by comparisonFiles.ts through resultFolder.ts.
  */
 import { CAUTION } from '../caution.js';
-import type { ComparisonResult, VariantComparison } from '../compare.js';
+import type { ComparisonResult, VariantComparison } from '../compare/types.js';
 import { calibrationJson, calibrationLine, csvField, tidy } from './summary.js';
 
 /** A number for a CSV cell: rounded, empty when not a finite number. */

@@ -8,11 +8,12 @@ import { crsLabel, type Grid } from '../grid.js';
 import { CAUTION } from '../caution.js';
 import { VERSION } from '../version.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
-import { makeTransform } from '../scenario/crs.js';
+import { makeTransform } from '../crs.js';
 import { renderMapPng, type MapInput } from '../report/index.js';
 import type { ReportRun, ReportMap } from '../report/index.js';
-import type { SolveResult } from '../pipeline.js';
+import type { SolveResult } from '../analysis/result.js';
 import type { OutputFile } from './resultFolder.js';
+import { mapCellLayers } from '../discretisation/terms/types.js';
 import { headRange } from './summary.js';
 
 export interface ProductOptions {
@@ -116,7 +117,7 @@ export function solveProducts(result: SolveResult, options: ProductOptions = {},
     title: model.title,
     caution: CAUTION,
     contours: headContours.contours,
-    fixedHead: system.fixed,
+    cellLayers: mapCellLayers(system.terms, system.active.length),
     wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
     observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y })),
     flux: { qx: flux.qx, qy: flux.qy },

@@ -1,6 +1,6 @@
 import { CAUTION } from '../caution.js';
 import { cellHeight, cellWidth, crsLabel } from '../grid.js';
-import type { SolveResult } from '../pipeline.js';
+import type { SolveResult } from '../analysis/result.js';
 import type { WaterBudget } from '../analysis/budget.js';
 import type { CalibrationStatistics } from '../analysis/calibration.js';
 
@@ -78,6 +78,8 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
       seconds: tidy(stats.solveSeconds),
       peakMemoryMiB: tidy(result.peakMemoryMiB),
       notes: stats.notes,
+      // Only when a term is nonlinear, so that linear runs keep their summary as it was.
+      ...(result.outer.stopReason === 'linear' ? {} : { outerIterations: result.outer.iterations, outerStopReason: result.outer.stopReason }),
     },
     budget: budgetJson(budget),
     head: { min: tidy(range.min), max: tidy(range.max), mean: tidy(range.mean) },

@@ -34,8 +34,8 @@ export interface MapInput {
   caution: string;
   /** Contours to draw; default: automatic round interval from the values. */
   contours?: ContourSet;
-  /** 1 = fixed-head cell. */
-  fixedHead?: Uint8Array;
+  /** Cells of flow terms drawn hatched (e.g. fixed heads), one legend row per layer; 1 = the term acts on the cell. */
+  cellLayers?: ReadonlyArray<{ legend: string; cells: Uint8Array }>;
   wells?: readonly MapPoint[];
   observations?: readonly MapPoint[];
   /** Cell-centred Darcy flux (east- and north-positive) for the flow-direction arrows. */
@@ -115,7 +115,8 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   parts.push(`<defs>${clip}</defs><g clip-path="url(#frame)">`);
   parts.push(`<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="url(#nodata)"/>`);
   parts.push(cellImage(values, nx, ny, ramp, frame));
-  if (input.fixedHead) parts.push(fixedHeadPath(input.fixedHead, values, nx, ny, frame.left, frame.top, cellPx, cellPy));
+  const layers = (input.cellLayers ?? []).filter((layer) => hasAny(layer.cells));
+  for (const layer of layers) parts.push(fixedHeadPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy));
   parts.push(contourLayer(contours, levelDecimals, px, py, input.quantity));
   if (input.flux) parts.push(arrowLayer(input.flux, values, grid, frame, cellPx, cellPy, options.arrowSpacing ?? 40));
   parts.push(pointLayer(input.observations ?? [], input.wells ?? [], px, py));
@@ -127,7 +128,7 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
 
   // Legend
   parts.push(
-    legend(input, ramp, contours, levelDecimals, frame.left + frame.width + 28, frame.top, Boolean(input.fixedHead && hasAny(input.fixedHead)), hasNaN(values)),
+    legend(input, ramp, contours, levelDecimals, frame.left + frame.width + 28, frame.top, layers.map((layer) => layer.legend), hasNaN(values)),
   );
 
   // Footer: caution in its own band.
@@ -207,7 +208,7 @@ function cellImage(values: Float64Array, nx: number, ny: number, ramp: ColourRam
   return `<image x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" preserveAspectRatio="none" image-rendering="optimizeSpeed" style="image-rendering:pixelated" href="${dataUrl('image/png', png)}"/>`;
 }
 
-/** Runs of fixed-head (active) cells per row as one hatched path. */
+/** Runs of a layer's (active) cells per row, e.g. fixed heads, as one hatched path. */
 function fixedHeadPath(
   fixed: Uint8Array,
   values: Float64Array,
@@ -487,7 +488,7 @@ function legend(
   decimals: number,
   x: number,
   top: number,
-  showFixed: boolean,
+  cellLegends: readonly string[],
   showInactive: boolean,
 ): string {
   const parts: string[] = ['<g class="legend">'];
@@ -546,7 +547,7 @@ function legend(
   if (wells.some((w) => w.rate !== undefined && w.rate > 0)) row(wellSymbol(x + 12, y, 1), 'Well, injecting');
   if (wells.some((w) => w.rate === 0)) row(wellSymbol(x + 12, y, 0), 'Well, switched off');
   if ((input.observations ?? []).length > 0) row(observationSymbol(x + 12, y + 1), 'Observation point');
-  if (showFixed) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#fixedhead)" stroke="#0c2340" stroke-width="0.8"/>`, 'Fixed-head cells');
+  for (const label of cellLegends) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#fixedhead)" stroke="#0c2340" stroke-width="0.8"/>`, label);
   if (showInactive) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#nodata)" stroke="${MUTED}" stroke-width="0.8"/>`, 'Inactive (no flow)');
   parts.push('</g>');
   return parts.join('');

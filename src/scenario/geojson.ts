@@ -12,7 +12,7 @@
  * - Points, a feature without geometry, an empty geometry and non-finite coordinates are errors naming the feature.
  */
 import { describeThrown, inputError, PiezomapError } from '../errors.js';
-import type { PointTransform } from './crs.js';
+import type { PointTransform } from '../crs.js';
 
 export type ShapeGeometry =
   /** polygons[i] = the rings of one polygon (outer ring, then holes), each as interleaved x, y. */

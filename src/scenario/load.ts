@@ -18,7 +18,7 @@ import { readRaster, readRasterHeader } from '../raster/read.js';
 import { checkRasterMemory, rasterBudget, type RasterFootprint } from '../memory.js';
 import type { RasterData } from '../raster/types.js';
 import { describeExpectedUnit, unitMatches, type Quantity, type ValueUnits } from '../raster/units.js';
-import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from './crs.js';
+import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from '../crs.js';
 import {
   parseScenarioJson,
   solverSchema,
@@ -36,6 +36,7 @@ import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
 import { numberProperty, readPointFeatures, type PointFeature } from './pointFeatures.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
+import { fieldAt } from '../field.js';
 
 export type { ScenarioJson, VariantJson } from './schema.js';
 export { mergeVariant } from './merge.js';
@@ -213,7 +214,7 @@ function isActiveValue(value: number): boolean {
 }
 
 function isActive(conductivity: Float64Array, thickness: Float64Array | number, p: number): boolean {
-  return isActiveValue(conductivity[p]!) && isActiveValue(typeof thickness === 'number' ? thickness : thickness[p]!);
+  return isActiveValue(conductivity[p]!) && isActiveValue(fieldAt(thickness, p));
 }
 
 function countActive(conductivity: Float64Array, thickness: Float64Array | number): number {

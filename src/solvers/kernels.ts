@@ -29,10 +29,6 @@ export function dot(a: Float64Array, b: Float64Array): number {
   return s0 + s1;
 }
 
-export function norm2(a: Float64Array): number {
-  return Math.sqrt(dot(a, a));
-}
-
 /** Value of (A x)_p at cell p with full guards; used on the first and last row only. */
 function stencilAtEdge(nx: number, n: number, a: Bands, x: Float64Array, p: number): number {
   const { diag, east, south } = a;

@@ -1,7 +1,6 @@
 import { BandedCholesky } from './banded.js';
-import { dot } from './kernels.js';
-import type { VariablePreconditioner } from './pcg.js';
-import type { StencilOperator } from './types.js';
+import { applyDot, dot } from './kernels.js';
+import type { StencilOperator, VariablePreconditioner } from './types.js';
 
 /** Coarsening stops once a level has at most this many cells; that level is solved directly. */
 const COARSEST_CELLS = 1024;
@@ -215,7 +214,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
     const C = this.levels[c]!;
     const { rhs, v1, w1, r2, v2, w2 } = C;
     this.cycle(c, rhs, v1);
-    const rho1 = applyDot32(C, v1, w1);
+    const rho1 = applyDot(C, v1, w1);
     const alpha1 = dot(v1, rhs);
     const step1 = alpha1 / rho1;
     const n = C.n;
@@ -233,7 +232,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
       return;
     }
     this.cycle(c, r2, v2);
-    const beta = applyDot32(C, v2, w2);
+    const beta = applyDot(C, v2, w2);
     const gamma = dot(v2, w1);
     const alpha2 = dot(v2, r2);
     const rho2 = beta - (gamma * gamma) / rho1;
@@ -318,31 +317,4 @@ function prolongRow(nx: number, cx: number, i: number, e: Float64Array, x: Float
   const row = i * nx;
   const crow = (i >> 1) * cx;
   for (let j = 0; j < nx; j++) x[row + j]! += e[crow + (j >> 1)]!;
-}
-
-/** out = A x on a level (single-precision coefficients); returns x·out. */
-function applyDot32(a: Level, x: Float64Array, out: Float64Array): number {
-  const { nx, n, diag, east, south } = a;
-  let s = 0;
-  for (let p = 0; p < n; p++) {
-    if (p === nx) {
-      // interior rows: no guards (see smoothAndRestrict for the west-neighbour argument)
-      const interiorEnd = n - nx;
-      for (; p < interiorEnd; p++) {
-        const v =
-          diag[p]! * x[p]! - east[p - 1]! * x[p - 1]! - east[p]! * x[p + 1]! - south[p - nx]! * x[p - nx]! - south[p]! * x[p + nx]!;
-        out[p] = v;
-        s += v * x[p]!;
-      }
-      if (p >= n) break;
-    }
-    let v = diag[p]! * x[p]!;
-    if (p > 0) v -= east[p - 1]! * x[p - 1]!;
-    if (p + 1 < n) v -= east[p]! * x[p + 1]!;
-    if (p >= nx) v -= south[p - nx]! * x[p - nx]!;
-    if (p + nx < n) v -= south[p]! * x[p + nx]!;
-    out[p] = v;
-    s += v * x[p]!;
-  }
-  return s;
 }

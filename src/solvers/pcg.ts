@@ -1,12 +1,6 @@
 import { applyDot, dot, residual } from './kernels.js';
 import { IterationMonitor, checkOperator, checkVectors } from './monitor.js';
-import type { Preconditioner, Solver, SolveOptions, SolveStats, StencilOperator, StopReason } from './types.js';
-
-/** A preconditioner that may vary between applications (e.g. a multigrid K-cycle with inner Krylov steps). */
-export interface VariablePreconditioner extends Preconditioner {
-  /** True when M^{-1} is not a fixed linear map: CG then uses the flexible (Polak–Ribière) beta. */
-  readonly variable: boolean;
-}
+import type { Preconditioner, Solver, SolveOptions, SolveStats, StencilOperator, StopReason, VariablePreconditioner } from './types.js';
 
 /** How many times a recurrence residual below the threshold may be refuted by the true residual. */
 const MAX_RESTARTS = 5;

@@ -14,7 +14,7 @@ export interface LinearOperator {
 }
 
 /**
- * The five-point operator on the full raster grid (see src/discretisation/operator.ts).
+ * The five-point operator on the full raster grid (see ./operator.ts).
  * Unknown cells (active and not fixed-head) carry the conductance stencil; every other cell is an
  * identity row with zero couplings, so vectors are always full-grid (nx*ny) and the right-hand side
  * and solution are zero there.
@@ -35,6 +35,12 @@ export interface StencilOperator extends LinearOperator {
 export interface Preconditioner {
   readonly name: string;
   apply(r: Float64Array, z: Float64Array): void;
+}
+
+/** A preconditioner that may vary between applications (e.g. a multigrid K-cycle with inner Krylov steps). */
+export interface VariablePreconditioner extends Preconditioner {
+  /** True when M^{-1} is not a fixed linear map: CG then uses the flexible (Polak–Ribière) beta. */
+  readonly variable: boolean;
 }
 
 /** Why an iteration stopped. */

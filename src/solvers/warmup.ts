@@ -1,4 +1,4 @@
-import { GridOperator } from '../discretisation/operator.js';
+import { GridOperator } from './operator.js';
 import type { Solver, StencilOperator } from './types.js';
 
 let warmedUp = false;

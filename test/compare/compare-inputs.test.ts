@@ -7,7 +7,7 @@ import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { loadScenario } from '../../src/scenario/load.js';
-import { resolveVariants } from '../../src/compare.js';
+import { resolveVariants } from '../../src/compare/run.js';
 import { calibrationStatistics } from '../../src/analysis/calibration.js';
 import type { ObservationResult } from '../../src/analysis/points.js';
 import { encodeFloat32GeoTiff } from '../../src/raster/write.js';

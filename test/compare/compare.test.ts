@@ -3,7 +3,8 @@
  * boundary, the steady water balance, a fresh solve, and the Thiem equation at the well bore.
  */
 import { describe, expect, it } from 'vitest';
-import { compareModels, drawdownField, operatorDifference } from '../../src/compare.js';
+import { compareModels, operatorDifference } from '../../src/compare/run.js';
+import { drawdownField } from '../../src/analysis/drawdown.js';
 import { assembleSystem, withSources } from '../../src/discretisation/assemble.js';
 import { solveModel } from '../../src/pipeline.js';
 import { equivalentBlockRadius, peacemanWellboreHead, wellboreHeads } from '../../src/analysis/wellbore.js';
@@ -256,7 +257,7 @@ describe('sourcesOfWater', () => {
       terms: [
         { term: 'river', inflow: 100, outflow: 200 },
         { term: 'edge', inflow: 0, outflow: 50 },
-        { term: 'wells', inflow: 0, outflow: 100 },
+        { term: 'wells', inflow: 0, outflow: 100, pumping: true },
         { term: 'recharge', inflow: 250, outflow: 0 },
       ],
       totalIn: 350,
@@ -267,7 +268,7 @@ describe('sourcesOfWater', () => {
       terms: [
         { term: 'river', inflow: 130, outflow: 150 },
         { term: 'edge', inflow: 0, outflow: 30 },
-        { term: 'wells', inflow: 0, outflow: 200 },
+        { term: 'wells', inflow: 0, outflow: 200, pumping: true },
         { term: 'recharge', inflow: 250, outflow: 0 },
       ],
       totalIn: 380,

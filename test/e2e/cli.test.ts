@@ -68,6 +68,20 @@ describe('piezomap CLI', () => {
     expect(bad.stderr).toMatch(/unknown solver method "magic"/);
   });
 
+  it('refuses a solver option outside its range with exit 2, as the same value in the scenario (issue 9, item 9)', () => {
+    // --tolerance 5 used to "converge" in 0 iterations and stop only at the budget check (exit 3).
+    const option = run(['solve', writeScenario('tol-option.json'), '-o', join(dir, 'o-tol'), '--tolerance', '5']);
+    expect(option.code).toBe(2);
+    expect(option.stderr).toMatch(/--tolerance: must be < 1 \(got 5\)/);
+    const json = run(['solve', writeScenario('tol-json.json', { solver: { tolerance: 5 } }), '-o', join(dir, 'o-tol-json')]);
+    expect(json.code).toBe(2);
+    expect(json.stderr).toMatch(/solver\.tolerance: must be < 1 \(got 5\)/);
+    expect(existsSync(join(dir, 'o-tol'))).toBe(false);
+    const compare = run(['compare', writeScenario('tol-compare.json'), '-o', join(dir, 'o-tol-compare'), '--max-iterations', '0']);
+    expect(compare.code).toBe(2);
+    expect(compare.stderr).toMatch(/--max-iterations: must be > 0 \(got 0\)/);
+  });
+
   it('solves a scenario: result files, summary fields, budget closure and the caution', () => {
     const out = join(dir, 'result');
     const r = run(['solve', writeScenario('ok.json'), '-o', out]);

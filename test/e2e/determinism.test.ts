@@ -11,7 +11,10 @@ import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
 import { loadScenario } from '../../src/scenario/load.js';
-import { solveModel, resultBundle } from '../../src/pipeline.js';
+import { solveModel } from '../../src/pipeline.js';
+import { resultBundle } from '../../src/output/solveFiles.js';
+import { comparisonFiles } from '../../src/output/comparisonFiles.js';
+import { compareScenario } from '../../src/compare/run.js';
 import { baseScenario, centre } from '../../scripts/make-bad-inputs.js';
 import { seededRandom, testGrid } from '../helpers/model.js';
 
@@ -84,6 +87,23 @@ describe('determinism', () => {
     for (const name of ['head.tif', 'budget.csv', 'convergence.csv']) {
       const mine = files.find((f) => f.name === name)!;
       expect(Buffer.compare(Buffer.from(mine.bytes), readFileSync(join(out, name))), name).toBe(0);
+    }
+  }, 60_000);
+
+  it('compare through the worker-thread executor gives the same files as the library comparison in-thread', async () => {
+    const withVariant = join(dir, 'compare.json');
+    writeFileSync(
+      withVariant,
+      JSON.stringify({ ...baseScenario(), variants: [{ name: 'more', wells: [{ id: 'W9', ...centre(3, 2), rate: -40 }] }, { name: 'wetter', recharge: 0.0005 }] }),
+    );
+    const out = join(dir, 'cli-compare');
+    const r = spawnSync(process.execPath, [BIN, 'compare', withVariant, '-o', out, '--quiet', '--no-maps'], { encoding: 'utf8' });
+    expect(r.status, r.stderr).toBe(0);
+    const { files } = comparisonFiles(await compareScenario(withVariant), { maps: false });
+    for (const name of ['baseline/head.tif', 'baseline/budget.csv', 'more/head.tif', 'more/drawdown.tif', 'more/budget.csv', 'wetter/head.tif', 'wetter/drawdown.tif', 'comparison.csv']) {
+      const mine = files.find((f) => f.name === name);
+      expect(mine, name).toBeDefined();
+      expect(Buffer.compare(Buffer.from(mine!.bytes), readFileSync(join(out, name))), name).toBe(0);
     }
   }, 60_000);
 });

@@ -8,8 +8,10 @@ import { execFileSync, spawnSync } from 'node:child_process';
 import { mkdtempSync, readdirSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
-import { solveScenarioFile, writeSolveResults } from '../../src/pipeline.js';
-import { compareScenario, writeComparisonResults } from '../../src/compare.js';
+import { solveScenarioFile } from '../../src/pipeline.js';
+import { writeSolveResults } from '../../src/output/solveFiles.js';
+import { compareScenario } from '../../src/compare/run.js';
+import { writeComparisonResults } from '../../src/output/comparisonFiles.js';
 
 const gdalPresent = spawnSync('gdalinfo', ['--version'], { encoding: 'utf8' }).status === 0 && spawnSync('ogrinfo', ['--version']).status === 0;
 const onCi = process.env.CI === 'true';

@@ -100,7 +100,7 @@ describe('the packed package installed into another project', () => {
 
     it('ships the built library, the command, its types and the demo data, and not the sources or tests', () => {
       const installed = join(consumer, 'node_modules', 'piezomap');
-      for (const file of ['bin/piezomap.js', 'dist/src/index.js', 'dist/src/index.d.ts', 'dist/src/robustness/solveWorker.js', 'data/valley.json']) {
+      for (const file of ['bin/piezomap.js', 'dist/src/index.js', 'dist/src/index.d.ts', 'dist/src/executor/solveWorker.js', 'data/valley.json']) {
         expect(existsSync(join(installed, file)), file).toBe(true);
       }
       for (const folder of ['src', 'test', 'dist/bench', 'dist/scripts', 'node_modules/typescript']) expect(existsSync(join(installed, folder)), folder).toBe(false);

@@ -36,7 +36,7 @@ export function makeModel(grid: Grid, parts: Partial<ModelInput> & { conductivit
   return {
     title: 'test',
     units: { length: 'm', time: 'd' },
-    scenarioPath: '<test>',
+    scenarioPath: '<inline>',
     grid,
     thickness: 1,
     anisotropy: 1,

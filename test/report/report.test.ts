@@ -70,7 +70,7 @@ function inventedCase(): MapInput & { drawdown: Float64Array } {
     units: { length: 'm', time: 'd' },
     title: HOSTILE_TITLE,
     caution: CAUTION,
-    fixedHead,
+    cellLayers: [{ legend: 'Fixed-head cells', cells: fixedHead }],
     wells,
     observations: [
       { id: 'OB-A', x: 430500, y: 5209400 },
@@ -164,7 +164,7 @@ describe('renderMapPng', () => {
 
   it('paints each active cell in the published cividis colour of its head and leaves inactive cells blank', () => {
     // No arrows, wells or contours here so that cell pixels are unobstructed.
-    const bare: MapInput = { ...input, flux: undefined, wells: [], observations: [], fixedHead: undefined, contours: { levels: [], interval: 1 } };
+    const bare: MapInput = { ...input, flux: undefined, wells: [], observations: [], cellLayers: [], contours: { levels: [], interval: 1 } };
     const drawing = renderMapPng(bare);
     const image = decode(drawing.png);
     const { grid, values } = bare;
@@ -198,7 +198,7 @@ describe('renderMapPng', () => {
     const dd = new Float64Array(drawdown.length);
     for (let p = 0; p < dd.length; p++) dd[p] = Number.isFinite(drawdown[p]!) ? (p % grid.nx < 45 ? 0 : 2) : NaN;
     dd[0] = -2; // symmetric limits -2..2
-    const drawing = renderMapPng({ ...input, values: dd, quantity: 'drawdown', flux: undefined, wells: [], observations: [], fixedHead: undefined, contours: { levels: [], interval: null } });
+    const drawing = renderMapPng({ ...input, values: dd, quantity: 'drawdown', flux: undefined, wells: [], observations: [], cellLayers: [], contours: { levels: [], interval: null } });
     const image = decode(drawing.png);
     const scale = Math.min((1100 - 40 - 250) / (grid.nx * 25), 720 / (grid.ny * 25));
     const at = (i: number, j: number) => {

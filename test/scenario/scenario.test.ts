@@ -6,7 +6,7 @@
 import { execFileSync } from 'node:child_process';
 import { describe, expect, it } from 'vitest';
 import { PiezomapError } from '../../src/errors.js';
-import { linearUnitOf, makeTransform, parseEpsg, projectionFor } from '../../src/scenario/crs.js';
+import { linearUnitOf, makeTransform, parseEpsg, projectionFor } from '../../src/crs.js';
 import { mergeVariant } from '../../src/scenario/merge.js';
 import { closest, parseScenarioJson, type ScenarioJson } from '../../src/scenario/schema.js';
 import { findJsonSyntaxError, lineColumn, parseCsv } from '../../src/scenario/text.js';

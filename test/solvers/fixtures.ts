@@ -4,7 +4,7 @@
  * and fixed-head cells as identity rows with their couplings moved to the right-hand side.
  */
 import { Matrix, solve } from 'ml-matrix';
-import { GridOperator } from '../../src/discretisation/operator.js';
+import { GridOperator } from '../../src/solvers/operator.js';
 import { seededUniform } from '../../src/random.js';
 
 export interface TestCase {

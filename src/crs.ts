@@ -9,7 +9,7 @@
 import { readFileSync } from 'node:fs';
 import { createRequire } from 'node:module';
 import proj4 from 'proj4';
-import { describeThrown, inputError } from '../errors.js';
+import { describeThrown, inputError } from './errors.js';
 
 export interface Projection {
   epsg: number;

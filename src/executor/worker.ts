@@ -1,0 +1,109 @@
+/**
+ * The executor that runs solver sessions in worker threads, so that the main thread stays free to answer SIGINT and
+ * SIGTERM at once (a synchronous solve in the main thread would hold the signal until it finished). Each session is
+ * one worker holding its copy of the operator and its solver set-up (e.g. the multigrid hierarchy) for as long as
+ * the session is open: variants and inner solves of outer iterations reuse it. The worker runs the same solver code
+ * on the same numbers as the inline executor, so results are bit-for-bit the same.
+ */
+import { Worker } from 'node:worker_threads';
+import { existsSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
+import { PiezomapError, type ErrorCode, type ErrorDetail } from '../errors.js';
+import type { SolveStats, StencilOperator } from '../solvers/types.js';
+import type { Executor, LinearAnswer, LinearSolve, SolverChoice, SolverSession } from './types.js';
+
+/** Main thread to worker. */
+export type WorkerRequest =
+  | { kind: 'open'; nx: number; ny: number; diag: Float64Array; east: Float64Array; south: Float64Array; unknown: Uint8Array; choice: SolverChoice }
+  | { kind: 'solve'; rhs: Float64Array; x: Float64Array; tolerance: number; maxIterations: number }
+  | { kind: 'diagonal'; diag: Float64Array };
+
+/** Worker to main thread. */
+export type WorkerMessage =
+  | { kind: 'ready'; method: string; setupSeconds: number }
+  | { kind: 'progress'; iteration: number; relativeResidual: number }
+  | { kind: 'done'; x: Float64Array; stats: SolveStats }
+  | { kind: 'error'; code: ErrorCode; message: string; detail?: ErrorDetail; stack?: string | undefined };
+
+const WORKER_URL = new URL('./solveWorker.js', import.meta.url);
+
+/** True when the compiled worker script is there (it is not when running from TypeScript sources). */
+export function workerAvailable(): boolean {
+  return existsSync(fileURLToPath(WORKER_URL));
+}
+
+class WorkerSession implements SolverSession {
+  method = '';
+  setupSeconds = 0;
+  private pending: { resolve: (m: WorkerMessage) => void; reject: (e: Error) => void; onProgress?: LinearSolve['onProgress'] } | null = null;
+  private failure: Error | null = null;
+
+  constructor(private readonly worker: Worker) {
+    worker.on('message', (message: WorkerMessage) => {
+      const pending = this.pending;
+      if (!pending) return;
+      if (message.kind === 'progress') {
+        pending.onProgress?.(message.iteration, message.relativeResidual);
+        return;
+      }
+      this.pending = null;
+      if (message.kind === 'error') {
+        const error = new PiezomapError(message.code, message.message, message.detail ?? {});
+        if (message.stack) error.stack = message.stack;
+        pending.reject(error);
+      } else pending.resolve(message);
+    });
+    const fail = (error: Error) => {
+      this.failure ??= error;
+      const pending = this.pending;
+      this.pending = null;
+      pending?.reject(error);
+    };
+    worker.on('error', (thrown) => fail(new PiezomapError('internal', `the solver thread failed: ${thrown.message}`)));
+    worker.on('exit', (code) => fail(new PiezomapError('internal', `the solver thread stopped unexpectedly (exit code ${code})`)));
+  }
+
+  /** Send a request and wait for its answer (one at a time). Arrays are copied (structured clone). */
+  request(message: WorkerRequest, onProgress?: LinearSolve['onProgress']): Promise<WorkerMessage> {
+    if (this.failure) return Promise.reject(this.failure);
+    return new Promise((resolve, reject) => {
+      this.pending = { resolve, reject, ...(onProgress ? { onProgress } : {}) };
+      this.worker.postMessage(message);
+    });
+  }
+
+  async solve(request: LinearSolve): Promise<LinearAnswer> {
+    const { rhs, x, tolerance, maxIterations } = request;
+    const answer = await this.request({ kind: 'solve', rhs, x, tolerance, maxIterations }, request.onProgress);
+    if (answer.kind !== 'done') throw new PiezomapError('internal', `the solver thread answered "${answer.kind}" to a solve`);
+    return { x: answer.x, stats: answer.stats };
+  }
+
+  async setDiagonal(diag: Float64Array): Promise<void> {
+    const answer = await this.request({ kind: 'diagonal', diag });
+    if (answer.kind === 'ready') this.setupSeconds = answer.setupSeconds;
+  }
+
+  close(): void {
+    this.failure ??= new PiezomapError('internal', 'the solver session is closed');
+    void this.worker.terminate();
+  }
+}
+
+export const workerExecutor: Executor = {
+  async open(operator: StencilOperator, choice: SolverChoice): Promise<SolverSession> {
+    const session = new WorkerSession(new Worker(WORKER_URL));
+    const { nx, ny, diag, east, south, unknown } = operator;
+    try {
+      const ready = await session.request({ kind: 'open', nx, ny, diag, east, south, unknown, choice });
+      if (ready.kind === 'ready') {
+        session.method = ready.method;
+        session.setupSeconds = ready.setupSeconds;
+      }
+    } catch (error) {
+      session.close();
+      throw error;
+    }
+    return session;
+  },
+};

@@ -1,0 +1,114 @@
+/**
+ * The result files of one solve, as bytes, and writing them into the result folder: `head.tif` only for a sound
+ * result (else `head-not-converged.tif`), budget and convergence tables, the products (contours, flux rasters,
+ * map), the HTML report and summary.json (last).
+ */
+import { readFile } from 'node:fs/promises';
+import { join } from 'node:path';
+import { resultProblem, type SolveResult } from '../analysis/result.js';
+import { CAUTION } from '../caution.js';
+import { encodeFloat32GeoTiff } from '../raster/write.js';
+import { renderReportHtml } from '../report/index.js';
+import { VERSION } from '../version.js';
+import { reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
+import { RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
+import { budgetCsv, buildSummary, convergenceCsv, type SummaryJson } from './summary.js';
+
+export const REPORT_FILE = 'report.html';
+
+/** The files of one solve, with the rendered maps kept for the report. */
+export interface ResultBundle {
+  files: OutputFile[];
+  maps: RenderedMap[];
+}
+
+/**
+ * Result files of one solve, as bytes: `head.tif` only for a sound result (else `head-not-converged.tif`),
+ * budget and convergence tables, and (unless `maps: false`) contours, flux rasters and the head map.
+ * Product warnings are appended to `result.warnings`. `prefix` places them in a sub-folder, e.g. `NAME/`.
+ */
+export function resultBundle(result: SolveResult, prefix = '', options: ProductOptions = {}): ResultBundle {
+  const sound = resultProblem(result) === null;
+  const files: OutputFile[] = [];
+  const description = `piezomap ${VERSION} head (${result.model.units.length}): ${result.model.title}. ${CAUTION}`;
+  const headBytes = encodeFloat32GeoTiff(result.model.grid, result.head, { nodata: -9999, description });
+  files.push({ name: prefix + (sound ? 'head.tif' : 'head-not-converged.tif'), bytes: headBytes });
+  files.push({ name: prefix + 'budget.csv', bytes: budgetCsv(result.budget) });
+  files.push({ name: prefix + 'convergence.csv', bytes: convergenceCsv(result.stats.history) });
+  if (!sound) return { files, maps: [] };
+  const products = solveProducts(result, options, prefix);
+  for (const w of products.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
+  files.push(...products.files);
+  return { files, maps: products.maps };
+}
+
+export function resultFiles(result: SolveResult, prefix = '', options: ProductOptions = {}): OutputFile[] {
+  return resultBundle(result, prefix, options).files;
+}
+
+/** The HTML report of one solve. */
+export function solveReport(result: SolveResult, summary: SummaryJson, maps: RenderedMap[]): string {
+  const g = summary.grid as { nx: number; ny: number; dx: number; dy: number; crs: string; activeCells: number; fixedHeadCells: number };
+  return renderReportHtml({
+    kind: 'solve',
+    title: result.model.title,
+    units: result.model.units,
+    grid: { nx: g.nx, ny: g.ny, dx: g.dx, dy: g.dy, crs: g.crs, activeCells: g.activeCells, fixedHeadCells: g.fixedHeadCells },
+    runs: [reportRun('baseline', result, maps)],
+    warnings: result.warnings,
+    caution: CAUTION,
+    scenarioFile: result.model.scenarioPath,
+    program: `piezomap ${VERSION}`,
+    timings: Object.entries(result.timings).map(([stage, seconds]) => ({ stage, seconds })),
+    files: summary.files,
+  });
+}
+
+/** The files of one solve's folder (under `prefix`), its summary last; `extra` files and maps are added (compare's drawdown). */
+export function solveFolderFiles(
+  result: SolveResult,
+  prefix: string,
+  options: ProductOptions,
+  extra: OutputFile[] = [],
+  extraMaps: RenderedMap[] = [],
+): { files: OutputFile[]; maps: RenderedMap[]; summary: SummaryJson } {
+  const t = performance.now();
+  const bundle = resultBundle(result, prefix, options);
+  const files = [...bundle.files, ...extra];
+  const maps = [...extraMaps, ...bundle.maps];
+  const withReport = maps.length > 0;
+  const names = [...files.map((f) => f.name.slice(prefix.length)), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
+  if (prefix === '') result.timings.write = (performance.now() - t) / 1000;
+  const summary = buildSummary(result, names, VERSION);
+  // Map paths are relative to OUTDIR; inside the run's folder they are not prefixed.
+  const local = maps.map((m) => ({ ...m, file: m.file.startsWith(prefix) ? m.file.slice(prefix.length) : m.file }));
+  if (withReport) files.push({ name: prefix + REPORT_FILE, bytes: solveReport(result, summary, local) });
+  files.push({ name: prefix + RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
+  return { files, maps, summary };
+}
+
+/**
+ * Write the result folder of one solve. Refuses a folder holding earlier results unless `overwrite`.
+ * Returns the summary that was written.
+ */
+export async function writeSolveResults(
+  result: SolveResult,
+  outDir: string,
+  options: { overwrite?: boolean } & ProductOptions = {},
+): Promise<SummaryJson> {
+  const previous = await previousResultFiles(outDir);
+  const { files, summary } = solveFolderFiles(result, '', options);
+  await writeResultFiles(outDir, files, options.overwrite ? previous : []);
+  return summary;
+}
+
+/** Files listed by an earlier summary.json in the folder (removed on overwrite so old and new never mix). */
+export async function previousResultFiles(outDir: string): Promise<string[]> {
+  try {
+    const text = await readFile(join(outDir, RESULT_MARKER), 'utf8');
+    const files = (JSON.parse(text) as { files?: unknown }).files;
+    return Array.isArray(files) ? files.filter((f): f is string => typeof f === 'string' && !f.includes('..')) : [];
+  } catch {
+    return [];
+  }
+}
