@@ -33,6 +33,7 @@ import { readShapes, reprojectShapes, type ShapeCollection } from './geojson.js'
 import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
 import { numberProperty, readPointFeatures, type PointFeature } from './pointFeatures.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
+import { checkMagnitudes } from './magnitudes.js';
 import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
 
 export type { ScenarioJson, VariantJson } from './schema.js';
@@ -162,7 +163,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   const solver = raw.solver ?? solverSchema.parse({});
   const title = raw.title ?? (inline ? 'Untitled scenario' : basename(scenarioPath, extname(scenarioPath)));
 
-  return {
+  const model: ModelInput = {
     title,
     units,
     scenarioPath: inline ? '<inline>' : resolve(scenarioPath),
@@ -183,6 +184,8 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     inputFiles: [...loader.inputFiles],
     warnings: loader.warnings,
   };
+  checkMagnitudes(model, loader.label, { conductivity: conductivityPath, thickness: raw.aquifer.thickness, ...(raw.recharge === undefined ? {} : { recharge: raw.recharge }) });
+  return model;
 }
 
 /** Index of the first +-Infinity in `values`, or -1. */
