@@ -335,6 +335,13 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   rawCase('json-empty', 'an empty scenario file', '', /invalid JSON/);
   rawCase('json-array', 'a list instead of an object', '[1, 2, 3]', /expected object|object/);
   rawCase('json-duplicate-key', 'the key "recharge" twice', valid.replace('"recharge": 0.0001', '"recharge": 0.0001, "recharge": 0.5'), /"recharge".*(twice|repeated|again|duplicate)/i);
+  {
+    // 200 000 nested lists: JSON.parse accepts them; the recursive walks after it overflowed the stack.
+    const deep = '['.repeat(200_000) + ']'.repeat(200_000);
+    rawCase('json-deep-nesting', 'a scenario with lists nested 200 000 deep', valid.replace('"title": ', `"nested": ${deep}, "title": `), /json-deep-nesting\.json line \d+, column \d+: .*nested more than 100 levels/);
+    file('lake-deep.geojson', `{"type": "FeatureCollection", "features": [{"type": "Feature", "properties": {}, "geometry": {"type": "Polygon", "coordinates": ${deep}}}]}`);
+    solveCase('geojson-deep-nesting', 'a GeoJSON shape whose coordinates nest 200 000 deep', { fixedHeads: [{ edge: 'west', head: 50 }, { shape: 'lake-deep.geojson', head: 46 }] }, 2, /lake-deep\.geojson.*nested more than 100 levels/);
+  }
   solveCase('json-type-error', 'thickness as true', aquifer('k.tif', { thickness: true }), 2, /aquifer\.thickness/);
   solveCase('json-negative-thickness', 'a negative thickness', aquifer('k.tif', { thickness: -5 }), 2, /aquifer\.thickness/);
   solveCase('json-unknown-key', 'a misspelt key', { recharj: 0.1 }, 2, /recharj.*did you mean "recharge"/);

@@ -261,16 +261,20 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
     for (const line of table(rows, (c) => c > 0)) out.push(line);
     if (recIds.length) out.push(`  receptors: ${recIds.join(', ')}`);
     const wellRows = [['variant', 'well', `rate ${L}³/${T}`, `well-bore head ${L}`, `well-bore drawdown ${L}`]];
+    let wellCount = 0;
     for (const v of variants) {
+      wellCount += v.wells.length;
+      // Only the rows printed are formatted.
       for (const w of v.wells) {
+        if (wellRows.length > MAX_PRINTED_ROWS) break;
         wellRows.push([v.name, w.id, num(w.rate, 1), num(w.wellboreHead, 3) + (w.belowMinimum ? ' (below minimum)' : ''), num(w.wellboreDrawdown, 3)]);
       }
     }
     if (wellRows.length > 1) {
       out.push('Well bores (Peaceman well-block radius)');
-      const shown = wellRows.length - 1 > MAX_PRINTED_ROWS ? wellRows.slice(0, MAX_PRINTED_ROWS + 1) : wellRows;
-      for (const line of table(shown, (c) => c > 1)) out.push(line);
-      if (shown !== wellRows) out.push(`  ... and ${(wellRows.length - shown.length).toLocaleString('en-US')} more well rows (all in each variant's summary.json)`);
+      for (const line of table(wellRows, (c) => c > 1)) out.push(line);
+      const more = wellCount - (wellRows.length - 1);
+      if (more > 0) out.push(`  ... and ${more.toLocaleString('en-US')} more well rows (all in each variant's summary.json)`);
     }
     for (const v of variants) {
       const s = v.sourcesOfWater;

@@ -221,13 +221,13 @@ function parseJsonText(text: string, label: string, absolute: string): unknown {
     const problem = findJsonSyntaxError(text);
     const where = problem ? ` line ${problem.line}, column ${problem.column}` : '';
     const what = problem ? problem.problem : describeThrown(thrown);
-    throw inputError(`${label}${where}: invalid JSON: ${what}`, { file: absolute, hint: 'fix the JSON syntax (a JSON validator or editor will point at the same place)' });
+    throw inputError(`${label}${where}: invalid JSON: ${what}`, { file: absolute, hint: problem?.hint ?? 'fix the JSON syntax (a JSON validator or editor will point at the same place)' });
   }
   const duplicate = findJsonSyntaxError(text, { duplicateKeys: true });
   if (duplicate) {
     throw inputError(`${label} line ${duplicate.line}, column ${duplicate.column}: ${duplicate.problem}`, {
       file: absolute,
-      hint: 'keep one of them: otherwise the last one would silently win',
+      hint: duplicate.hint ?? 'keep one of them: otherwise the last one would silently win',
     });
   }
   return value;
