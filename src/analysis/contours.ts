@@ -53,6 +53,16 @@ const MAX_AUTO_LEVELS = 25;
  * never ended. A requested interval that gives more is widened (contourField) or refused (contourLevels).
  */
 export const MAX_CONTOUR_LEVELS = 10 * MAX_AUTO_LEVELS;
+/**
+ * Levels × cells one contour set may trace (each level is a pass of d3-contour over the grid): on large grids the
+ * level bound shrinks so that contouring stays a matter of seconds, but never below the automatic 25 levels.
+ */
+const MAX_LEVEL_CELLS = 2e8;
+
+/** Most levels a requested interval may give on a grid of `cells` cells (see MAX_LEVEL_CELLS). */
+export function contourLevelLimit(cells: number): number {
+  return Math.max(MAX_AUTO_LEVELS, Math.min(MAX_CONTOUR_LEVELS, Math.floor(MAX_LEVEL_CELLS / Math.max(1, cells))));
+}
 
 /**
  * The smallest round interval (1, 2, 2.5 or 5 times a power of ten), at least `atLeast`, that gives at most
@@ -166,11 +176,12 @@ export function contourField(grid: Grid, values: Float64Array, options: ContourO
     levels = [];
   } else {
     const base = options.base ?? 0;
+    const limit = contourLevelLimit(nx * ny);
     interval = options.interval ?? roundInterval(range.min, range.max);
-    if (interval !== null && options.interval !== undefined && interval > 0 && !(countLevels(range.min, range.max, interval, base) <= MAX_CONTOUR_LEVELS)) {
-      const wider = roundInterval(range.min - base, range.max - base, MAX_CONTOUR_LEVELS, interval);
+    if (interval !== null && options.interval !== undefined && interval > 0 && !(countLevels(range.min, range.max, interval, base) <= limit)) {
+      const wider = roundInterval(range.min - base, range.max - base, limit, interval);
       if (wider !== null) {
-        note = `contour interval ${interval} would give ${countText(countLevels(range.min, range.max, interval, base))} levels across ${fmtRange(range)}; widened to ${wider} (at most ${MAX_CONTOUR_LEVELS} levels are drawn)`;
+        note = `contour interval ${interval} would give ${countText(countLevels(range.min, range.max, interval, base))} levels across ${fmtRange(range)}; widened to ${wider} (at most ${limit} levels are drawn on a grid of ${nx} x ${ny} cells)`;
         interval = wider;
       }
     }

@@ -7,6 +7,7 @@ import proj4 from 'proj4';
 import { describe, expect, it } from 'vitest';
 import {
   contourField,
+  contourLevelLimit,
   contourLevels,
   contoursToGeoJson,
   decimalsOf,
@@ -116,6 +117,12 @@ describe('contourField', () => {
     const kept = contourField(grid, head, { interval: 0.5 });
     expect(kept.interval).toBe(0.5);
     expect(kept.note ?? null).toBeNull();
+  });
+
+  it('allows fewer levels on large grids (levels x cells at most 2e8), never fewer than the automatic 25', () => {
+    expect(contourLevelLimit(30 * 20)).toBe(MAX_CONTOUR_LEVELS);
+    expect(contourLevelLimit(2000 * 2000)).toBe(50);
+    expect(contourLevelLimit(20000 * 20000)).toBe(25);
   });
 
   it('refuses more explicit levels than MAX_CONTOUR_LEVELS', () => {
