@@ -6,6 +6,7 @@
 import { describe, expect, it } from 'vitest';
 import type { Grid } from '../../src/grid.js';
 import { MAX_POINT_SYMBOLS, renderMapPng, renderMapSvg, type MapInput, type MapPoint } from '../../src/report/map.js';
+import { niceTicks } from '../../src/report/text.js';
 
 const CAUTION = 'Screening-level result. Outputs need review by a qualified hydrogeologist before any decision; local regulations and licensed practice govern.';
 
@@ -61,5 +62,17 @@ describe('renderMapSvg with dense points', () => {
     expect(svg).toContain('2,000 observation points');
     // PNG signature (PNG specification, section 5.2)
     expect([...png.slice(0, 8)]).toEqual([0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a]);
+  });
+});
+
+describe('map legend at extreme head ranges', () => {
+  it('draws fields spanning 1e-300, and a centimetre at 1e14, with ticks at both ends', () => {
+    // Before: niceTicks asked toFixed for 301 decimals (RangeError), and near 1e14 its tick counter stuck past 2^53.
+    const tiny = base([]);
+    tiny.values = tiny.values.map((_, p) => (p % 40) * 2.5e-302);
+    expect(renderMapSvg(tiny).svg).toContain('Head (m)');
+    const ticks = niceTicks(1e14, 1e14 + 0.01, 6);
+    expect(ticks.ticks).toEqual([1e14, 1e14 + 0.01]);
+    expect(niceTicks(93.2, 100.4, 6).ticks).toEqual([94, 95, 96, 97, 98, 99, 100]);
   });
 });
