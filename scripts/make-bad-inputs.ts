@@ -371,6 +371,13 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   rawCase('json-empty', 'an empty scenario file', '', /invalid JSON/);
   rawCase('json-array', 'a list instead of an object', '[1, 2, 3]', /expected object|object/);
   rawCase('json-duplicate-key', 'the key "recharge" twice', valid.replace('"recharge": 0.0001', '"recharge": 0.0001, "recharge": 0.5'), /"recharge".*(twice|repeated|again|duplicate)/i);
+  {
+    // 200 000 nested lists: JSON.parse accepts them; the recursive walks after it overflowed the stack.
+    const deep = '['.repeat(200_000) + ']'.repeat(200_000);
+    rawCase('json-deep-nesting', 'a scenario with lists nested 200 000 deep', valid.replace('"title": ', `"nested": ${deep}, "title": `), /json-deep-nesting\.json line \d+, column \d+: .*nested more than 100 levels/);
+    file('lake-deep.geojson', `{"type": "FeatureCollection", "features": [{"type": "Feature", "properties": {}, "geometry": {"type": "Polygon", "coordinates": ${deep}}}]}`);
+    solveCase('geojson-deep-nesting', 'a GeoJSON shape whose coordinates nest 200 000 deep', { fixedHeads: [{ edge: 'west', head: 50 }, { shape: 'lake-deep.geojson', head: 46 }] }, 2, /lake-deep\.geojson.*nested more than 100 levels/);
+  }
   solveCase('json-type-error', 'thickness as true', aquifer('k.tif', { thickness: true }), 2, /aquifer\.thickness/);
   solveCase('json-negative-thickness', 'a negative thickness', aquifer('k.tif', { thickness: -5 }), 2, /aquifer\.thickness/);
   solveCase('json-unknown-key', 'a misspelt key', { recharj: 0.1 }, 2, /recharj.*did you mean "recharge"/);
@@ -378,6 +385,25 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   rawCase('json-huge-number-text', 'a head written as 1e999', valid.replace('"head": 50', '"head": 1e999'), /fixedHeads\[0\]\.head/);
   solveCase('json-bad-tolerance', 'a tolerance of 5', { solver: { tolerance: 5 } }, 2, /solver\.tolerance/);
   solveCase('json-unknown-method', 'an unknown solver method', { solver: { method: 'magic' } }, 2, /unknown solver method "magic"/);
+
+  // --- magnitudes the arithmetic cannot carry (src/scenario/magnitudes.ts) ------------------------------------
+  solveCase('magnitude-fixed-head', 'fixed heads of +-1e300 (head.tif was written with infinities)', { fixedHeads: [{ edge: 'west', head: 1e300 }, { edge: 'east', head: -1e300 }] }, 2, /fixedHeads\[0\] \("west"\): head 1\.000e\+300 at row 0, col 0 exceeds 1e15/);
+  solveCase('magnitude-thickness-tiny', 'a thickness of 1e-300 (conductances underflowed to zero)', aquifer('k.tif', { thickness: 1e-300 }), 2, /aquifer\.thickness 1\.000e-300 lies outside 1e-100 to 1e100/);
+  solveCase('magnitude-transmissivity', 'K 3e38 (a Float32 raster) times a thickness of 1e70', { aquifer: { conductivity: 'k-3e38.tif', thickness: 1e70 } }, 2, /aquifer\.conductivity "k-3e38\.tif": transmissivity K·b = .* at row 0, col 0 \(and 91 more/);
+  file('k-3e38.tif', encodeFloat32GeoTiff(baseGrid, k.map((v) => (Number.isNaN(v) ? v : 3e38))));
+  {
+    // K = 1e200 needs a Float64 raster (BitsPerSample 64, SampleFormat 3).
+    const k64 = new Float64Array(k.map((v, p) => (p === 2 * NX + 3 ? 1e200 : Number.isNaN(v) ? -9999 : v)));
+    file('k-1e200.tif', stripTiff({ width: NX, height: NY, pixels: new Uint8Array(k64.buffer), bitsPerSample: 64, nodata: '-9999' }));
+    solveCase('magnitude-conductivity', 'a Float64 conductivity raster with 1e200 in one cell (pivot NaN before)', aquifer('k-1e200.tif'), 2, /aquifer\.conductivity "k-1e200\.tif": conductivity 1\.000e\+200 at row 2, col 3 lies outside/);
+  }
+  solveCase('magnitude-anisotropy', 'an anisotropy of 1e-200', aquifer('k.tif', { anisotropy: 1e-200 }), 2, /aquifer\.anisotropy 1\.000e-200/);
+  solveCase('magnitude-recharge', 'a recharge of 1e99 per day (1e103 per 100 m cell)', { recharge: 1e99 }, 2, /recharge 1\.000e\+99 \(1\.000e\+103 per cell\) exceeds 1e100/);
+  solveCase('magnitude-well-rate', 'a well rate of -1e150', { wells: [{ id: 'BIG-1', ...centre(2, 3), rate: -1e150 }] }, 2, /well "BIG-1" \(wells\[0\]\): rate -1\.000e\+150 exceeds 1e100/);
+  solveCase('magnitude-observation-head', 'an observed head of 1e20', { observations: [{ id: 'OB-X', ...centre(6, 8), head: 1e20 }] }, 2, /observation "OB-X".*head 1\.000e\+20 exceeds 1e15/);
+  file('k-tiny-cells.tif', encodeFloat32GeoTiff({ ...baseGrid, transform: [X0, 1e-120, 0, Y0, 0, -1e-120] }, k));
+  solveCase('magnitude-cell-size', 'cells 1e-120 m wide', { ...aquifer('k-tiny-cells.tif'), wells: [], observations: [] }, 2, /k-tiny-cells\.tif": cell width 1\.000e-120 lies outside/);
+  solveCase('magnitude-head-overflows-float32', 'a rate of -1e90 that draws heads beyond single precision (head.tif)', { wells: [{ id: 'DEEP-1', ...centre(2, 3), rate: -1e90 }] }, 2, /cannot write .*head.* as a Float32 GeoTIFF: the value -?\d\.\d+e\+\d+ at row \d+, col \d+ lies beyond single precision/);
 
   // --- CRS codes ---------------------------------------------------------------------------------------------
   solveCase('epsg-unknown', 'pointCrs EPSG:99999 (no such code)', { pointCrs: 'EPSG:99999' }, 2, /pointCrs.*EPSG:99999/);

@@ -2,7 +2,8 @@
  * piezomap as a library, for scripts that run many scenarios or variants without the CLI.
  * Re-exports only: each function lives in the module of its one job (see DEVELOPERS.md).
  *
- *   load a scenario      loadScenario, resolveScenario, mergeVariant, parseScenarioJson
+ *   load a scenario      loadScenario, resolveScenario, mergeVariant, parseScenarioJson,
+ *                        checkMagnitudes (what resolveScenario checks, for a ModelInput built by hand)
  *   solve it             solveScenarioFile, solveModel (inline) or solveModelWith (an executor), writeSolveResults
  *   compare variants     compareScenario, compareModels, compareModelsWith, resolveVariants, writeComparisonResults
  *   analyse              waterBudget, sourcesOfWater, wellboreHeads, calibrationStatistics, headAtPoint
@@ -17,6 +18,7 @@ export { cellAt, cellCentre, cellWidth, cellHeight, crsLabel, type Grid, type Cr
 
 export { loadScenario, resolveScenario, mergeVariant, type ScenarioJson, type VariantJson } from './scenario/load.js';
 export { parseScenarioJson } from './scenario/schema.js';
+export { checkMagnitudes, CARRIED_RANGE, HEAD_LIMIT } from './scenario/magnitudes.js';
 export type { ModelInput, WellInput, ObservationInput, ReceptorInput, FixedHeadInput, SolverSettings, Units } from './scenario/types.js';
 
 export {

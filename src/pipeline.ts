@@ -133,8 +133,9 @@ export function analyseSolution(
   for (const term of system.terms) warnings.push(...term.notes(true));
   const observations = observationResults(system, model.observations, head);
   const wellbore = wellboreHeads(model, system, head);
-  warnings.push(...wellboreWarnings(wellbore, model.units.length));
-  warnings.push(...sanityWarnings(model, system, head, wellbore));
+  // One warning per well is possible: appended by a loop, as spreading a long list into push overflows the stack.
+  for (const w of wellboreWarnings(wellbore, model.units.length)) warnings.push(w);
+  for (const w of sanityWarnings(model, system, head, wellbore)) warnings.push(w);
   const result: SolveResult = {
     model,
     system,

@@ -31,6 +31,8 @@ export interface ContourSet {
   levels: ContourLevel[];
   /** Spacing between levels when they are evenly spaced, else null. */
   interval: number | null;
+  /** Why the levels differ from those asked for (an interval widened to bound their number), when they do. */
+  note?: string | null;
 }
 
 export interface ContourOptions {
@@ -45,26 +47,50 @@ export interface ContourOptions {
 /** Steps tried for an automatic interval, times a power of ten. */
 const ROUND_STEPS = [1, 2, 2.5, 5] as const;
 const MAX_AUTO_LEVELS = 25;
+/**
+ * Most levels one contour set may have, whoever asks: ten times the automatic number. Each level costs a pass over
+ * the grid and its lines in the GeoJSON; without a bound an interval of 0.001 m wrote 121 MB in 41 s, and 1e-300
+ * never ended. A requested interval that gives more is widened (contourField) or refused (contourLevels).
+ */
+export const MAX_CONTOUR_LEVELS = 10 * MAX_AUTO_LEVELS;
+/**
+ * Levels × cells one contour set may trace (each level is a pass of d3-contour over the grid): on large grids the
+ * level bound shrinks so that contouring stays a matter of seconds, but never below the automatic 25 levels.
+ */
+const MAX_LEVEL_CELLS = 2e8;
+
+/** Most levels a requested interval may give on a grid of `cells` cells (see MAX_LEVEL_CELLS). */
+export function contourLevelLimit(cells: number): number {
+  return Math.max(MAX_AUTO_LEVELS, Math.min(MAX_CONTOUR_LEVELS, Math.floor(MAX_LEVEL_CELLS / Math.max(1, cells))));
+}
 
 /**
- * The smallest round interval (1, 2, 2.5 or 5 times a power of ten) that gives at most 25 levels across
- * [min, max]; since consecutive round steps differ by at most 2.5x, that gives about 10 to 25 levels.
- * Returns null when the range is empty or not finite.
+ * The smallest round interval (1, 2, 2.5 or 5 times a power of ten), at least `atLeast`, that gives at most
+ * `maxLevels` levels across [min, max]; since consecutive round steps differ by at most 2.5x, the automatic
+ * default (25 levels) gives about 10 to 25. Returns null when the range is empty or not finite.
  */
-export function roundInterval(min: number, max: number): number | null {
+export function roundInterval(min: number, max: number, maxLevels: number = MAX_AUTO_LEVELS, atLeast = 0): number | null {
   const range = max - min;
   if (!Number.isFinite(range) || range <= 0) return null;
-  let power = Math.pow(10, Math.floor(Math.log10(range / MAX_AUTO_LEVELS)) - 1);
-  for (;;) {
+  const start = Math.max(range / maxLevels, atLeast);
+  let power = Math.pow(10, Math.floor(Math.log10(start)) - 1);
+  // Bounded: each decade multiplies the interval by ten, and one interval of `range` gives no level at all;
+  // a power that underflows to zero (ranges near the smallest double) starts at the smallest positive one.
+  if (!(power > 0)) power = Number.MIN_VALUE;
+  for (let decade = 0; decade < 700; decade++) {
     for (const step of ROUND_STEPS) {
       const interval = step * power;
-      if (countLevels(min, max, interval, 0) <= MAX_AUTO_LEVELS) return interval;
+      if (interval >= atLeast && countLevels(min, max, interval, 0) <= maxLevels) return interval;
     }
     power *= 10;
   }
+  return null;
 }
 
-/** Multiples of `interval` (offset by `base`) strictly between min and max, ascending. */
+/**
+ * Multiples of `interval` (offset by `base`) strictly between min and max, ascending. More than
+ * MAX_CONTOUR_LEVELS of them is an input error (contourField widens the interval instead).
+ */
 export function contourLevels(min: number, max: number, interval: number, base = 0): number[] {
   if (!(interval > 0) || !Number.isFinite(interval)) {
     throw inputError(`contour interval must be a positive number, got ${interval}`, {
@@ -74,18 +100,27 @@ export function contourLevels(min: number, max: number, interval: number, base =
   }
   const levels: number[] = [];
   if (!(max > min)) return levels;
+  const count = countLevels(min, max, interval, base);
+  if (!(count <= MAX_CONTOUR_LEVELS)) {
+    throw inputError(
+      `contour interval ${interval} gives ${countText(count)} levels across ${min} to ${max}; at most ${MAX_CONTOUR_LEVELS} are drawn`,
+      { key: 'contours.interval', hint: `give an interval of at least ${roundInterval(min, max, MAX_CONTOUR_LEVELS) ?? (max - min) / MAX_CONTOUR_LEVELS}` },
+    );
+  }
   const first = Math.floor((min - base) / interval) + 1;
-  const last = Math.ceil((max - base) / interval) - 1;
-  for (let k = first; k <= last; k++) {
+  // The loop counts levels, not multiples: beyond 2^53 a multiple k + 1 equals k, and a loop over k never ends.
+  for (let i = 0; i < count; i++) {
     // Round to the interval's own decimals so that 0.1 * 3 prints and compares as 0.3.
-    const level = roundTo(base + k * interval, decimalsOf(interval) + decimalsOf(base));
-    if (level > min && level < max) levels.push(level);
+    const level = roundTo(base + (first + i) * interval, decimalsOf(interval) + decimalsOf(base));
+    if (level > min && level < max && level !== levels[levels.length - 1]) levels.push(level);
   }
   return levels;
 }
 
+/** Number of multiples of `interval` (offset by `base`) strictly between min and max (Infinity when not finite). */
 function countLevels(min: number, max: number, interval: number, base: number): number {
-  return Math.max(0, Math.ceil((max - base) / interval) - 1 - Math.floor((min - base) / interval));
+  const count = Math.ceil((max - base) / interval) - 1 - Math.floor((min - base) / interval);
+  return Number.isFinite(count) ? Math.max(0, count) : Infinity;
 }
 
 /** Number of decimals a round number needs to print exactly (0..9). */
@@ -128,13 +163,29 @@ export function contourField(grid: Grid, values: Float64Array, options: ContourO
   const range = finiteRange(values);
   let levels: number[];
   let interval: number | null = null;
+  let note: string | null = null;
   if (options.levels) {
     levels = [...options.levels].filter((l) => Number.isFinite(l)).sort((a, b) => a - b);
+    if (levels.length > MAX_CONTOUR_LEVELS) {
+      throw inputError(`${levels.length} contour levels given; at most ${MAX_CONTOUR_LEVELS} are drawn`, {
+        key: 'contours.levels',
+        hint: 'give fewer levels, or an interval',
+      });
+    }
   } else if (!range) {
     levels = [];
   } else {
+    const base = options.base ?? 0;
+    const limit = contourLevelLimit(nx * ny);
     interval = options.interval ?? roundInterval(range.min, range.max);
-    levels = interval === null ? [] : contourLevels(range.min, range.max, interval, options.base ?? 0);
+    if (interval !== null && options.interval !== undefined && interval > 0 && !(countLevels(range.min, range.max, interval, base) <= limit)) {
+      const wider = roundInterval(range.min - base, range.max - base, limit, interval);
+      if (wider !== null) {
+        note = `contour interval ${interval} would give ${countText(countLevels(range.min, range.max, interval, base))} levels across ${fmtRange(range)}; widened to ${wider} (at most ${limit} levels are drawn on a grid of ${nx} x ${ny} cells)`;
+        interval = wider;
+      }
+    }
+    levels = interval === null ? [] : contourLevels(range.min, range.max, interval, base);
   }
   const generator = d3Contours().size([nx, ny]).smooth(false);
   const array = values as unknown as number[];
@@ -149,7 +200,15 @@ export function contourField(grid: Grid, values: Float64Array, options: ContourO
     }
     result.push({ level, lines });
   }
-  return { levels: result, interval };
+  return { levels: result, interval, note };
+}
+
+function countText(count: number): string {
+  return !Number.isFinite(count) ? 'unboundedly many' : count < 1e9 ? String(count) : count.toExponential(1);
+}
+
+function fmtRange(range: { min: number; max: number }): string {
+  return `${range.min.toPrecision(6)} to ${range.max.toPrecision(6)}`;
 }
 
 /**

@@ -4,7 +4,7 @@
  */
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare/types.js';
-import { calibrationJson, calibrationLine, csvField, tidy } from './summary.js';
+import { calibrationJson, calibrationLine, csvField, MAX_PRINTED_ROWS, tidy } from './summary.js';
 
 /** A number for a CSV cell: rounded, empty when not a finite number. */
 function cell(v: number | null | undefined): string {
@@ -187,7 +187,9 @@ function num(v: number | null | undefined, digits: number): string {
 }
 
 function table(rows: string[][], alignRight: (c: number) => boolean): string[] {
-  const widths = rows[0]!.map((_, c) => Math.max(...rows.map((r) => r[c]!.length)));
+  // Widths by a loop: spreading a long list into Math.max overflows the stack.
+  const widths = rows[0]!.map(() => 0);
+  for (const r of rows) for (let c = 0; c < widths.length; c++) widths[c] = Math.max(widths[c]!, r[c]!.length);
   return rows.map((r) => '  ' + r.map((text, c) => (alignRight(c) ? text.padStart(widths[c]!) : text.padEnd(widths[c]!))).join('  ').trimEnd());
 }
 
@@ -256,17 +258,23 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
         ...terms.map((t) => num(pct.get(t), 1)),
       ]);
     }
-    out.push(...table(rows, (c) => c > 0));
+    for (const line of table(rows, (c) => c > 0)) out.push(line);
     if (recIds.length) out.push(`  receptors: ${recIds.join(', ')}`);
     const wellRows = [['variant', 'well', `rate ${L}³/${T}`, `well-bore head ${L}`, `well-bore drawdown ${L}`]];
+    let wellCount = 0;
     for (const v of variants) {
+      wellCount += v.wells.length;
+      // Only the rows printed are formatted.
       for (const w of v.wells) {
+        if (wellRows.length > MAX_PRINTED_ROWS) break;
         wellRows.push([v.name, w.id, num(w.rate, 1), num(w.wellboreHead, 3) + (w.belowMinimum ? ' (below minimum)' : ''), num(w.wellboreDrawdown, 3)]);
       }
     }
     if (wellRows.length > 1) {
       out.push('Well bores (Peaceman well-block radius)');
-      out.push(...table(wellRows, (c) => c > 1));
+      for (const line of table(wellRows, (c) => c > 1)) out.push(line);
+      const more = wellCount - (wellRows.length - 1);
+      if (more > 0) out.push(`  ... and ${more.toLocaleString('en-US')} more well rows (all in each variant's summary.json)`);
     }
     for (const v of variants) {
       const s = v.sourcesOfWater;

@@ -51,7 +51,7 @@ export function contourFiles(
 ): { files: OutputFile[]; contours: ContourSet; warnings: string[] } {
   const contours = contourField(grid, field, options.contourInterval ? { interval: options.contourInterval } : {});
   const files: OutputFile[] = [];
-  const warnings: string[] = [];
+  const warnings: string[] = contours.note ? [`${quantity} contours: ${contours.note}`] : [];
   const epsg = grid.crs?.epsg ?? null;
   if (epsg !== null) {
     const transform = makeTransform(epsg, WGS84);

@@ -175,7 +175,7 @@ export function encodeGeoKeys(keys: GeoKeyRecord): EncodedGeoKeys {
         throw new Error(`GeoKey ${geoKeyName(id)} has no numeric value`);
       }
       directory.set([GEO_DOUBLE_PARAMS_TAG, list.length, doubles.length], at + 1);
-      doubles.push(...list);
+      for (const value of list) doubles.push(value); // a tag may hold more values than a call has arguments
     }
   });
   return {

@@ -75,6 +75,7 @@ export function encodeFloat32GeoTiff(grid: Grid, values: ArrayLike<number>, opti
   const tileSize = options.tileSize ?? 256;
   const level = options.compressionLevel ?? 6;
   checkArguments(grid, values, options, nodata, tileSize, level);
+  checkSinglePrecisionRange(grid, values, options.description);
 
   const tiles = encodeTiles(grid.nx, grid.ny, values, tileSize, nodata, level);
   const entries = tagEntries(grid, tileSize, nodata, options.description);
@@ -87,6 +88,30 @@ export function encodeFloat32GeoTiff(grid: Grid, values: ArrayLike<number>, opti
     });
   }
   return assemble(entries, tiles, bigTiff);
+}
+
+/** Smallest double that rounds to infinity in single precision: 2^128 - 2^103, halfway between the largest float and 2^128 (IEEE 754 round-to-nearest-even). */
+const FLOAT32_LIMIT = 3.4028235677973366e38;
+
+/**
+ * A finite value that single precision cannot hold would be written as infinity without a word (a head of 1e300
+ * did). Refuse it, naming the cell; such magnitudes come from the inputs (units, a conductivity or rate far out
+ * of range), so it is an input error. Infinity and NaN given as such are written as they are (NaN as nodata).
+ */
+function checkSinglePrecisionRange(grid: Grid, values: ArrayLike<number>, description: string | undefined): void {
+  for (let p = 0; p < values.length; p++) {
+    const v = values[p]!;
+    if (Math.abs(v) >= FLOAT32_LIMIT && Math.abs(v) < Infinity) {
+      const what = description?.split(':')[0]?.replace(/^piezomap \S+ /, '').trim() || 'a raster';
+      const row = Math.floor(p / grid.nx);
+      const col = p % grid.nx;
+      throw new PiezomapError(
+        'input',
+        `cannot write ${what} as a Float32 GeoTIFF: the value ${v.toExponential(3)} at row ${row}, col ${col} lies beyond single precision (±3.4e38) and would become infinity`,
+        { cell: { row, col }, hint: 'such magnitudes come from the inputs: check the units of conductivity, thickness, well rates and heads' },
+      );
+    }
+  }
 }
 
 function usage(message: string): PiezomapError {

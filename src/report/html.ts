@@ -298,11 +298,12 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
       `<th scope="col">Id</th>${hasXY ? `<th scope="col" class="num">x</th><th scope="col" class="num">y</th>` : ''}` +
       `<th scope="col" class="num">Row</th><th scope="col" class="num">Column</th><th scope="col" class="num">Rate (${e(flowUnit)})</th>` +
       `<th scope="col" class="num">Cell head (${e(L)})</th>${hasDd ? `<th scope="col" class="num">Drawdown (${e(L)})</th>` : ''}`;
-    const rows = run.wells.map(
+    const rows = run.wells.slice(0, REPORT_TABLE_ROWS).map(
       (w) =>
         `<tr><th scope="row">${e(w.id)}</th>${hasXY ? num(w.x, 2) + num(w.y, 2) : ''}<td class="num">${w.row}</td><td class="num">${w.col}</td>${num(w.rate, 2)}${num(w.cellHead, 3)}${hasDd ? num(w.drawdown, 3) : ''}</tr>`,
     );
     parts.push(`<div class="scroll"><table class="data"><thead><tr>${head}</tr></thead><tbody>${rows.join('')}</tbody></table></div>`);
+    parts.push(moreRows(run.wells.length, 'wells'));
     parts.push('<p class="quiet">Cell head is the mean head of the well\u2019s cell, not the head inside the pumped well bore.</p>');
   }
 
@@ -311,7 +312,7 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   if (run.observations.length === 0) parts.push('<p class="quiet">No observation points.</p>');
   else {
     const hasDd = run.observations.some((o) => o.drawdown !== undefined);
-    const rows = run.observations.map(
+    const rows = run.observations.slice(0, REPORT_TABLE_ROWS).map(
       (o) => `<tr><th scope="row">${e(o.id)}</th>${num(o.observed, 3)}${num(o.simulated, 3)}${num(o.residual, 3)}${hasDd ? num(o.drawdown, 3) : ''}</tr>`,
     );
     let sum = 0;
@@ -327,6 +328,7 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
     parts.push(
       `<div class="scroll"><table class="data"><thead><tr><th scope="col">Id</th><th scope="col" class="num">Observed (${e(L)})</th><th scope="col" class="num">Simulated (${e(L)})</th><th scope="col" class="num">Residual (${e(L)})</th>${hasDd ? `<th scope="col" class="num">Drawdown (${e(L)})</th>` : ''}</tr></thead><tbody>${rows.join('')}</tbody></table></div>`,
     );
+    parts.push(moreRows(run.observations.length, 'observation points'));
     if (count > 0) {
       parts.push(
         `<p class="quiet">Residual = simulated \u2212 observed. Mean ${formatFixed(sum / count, 3)} ${e(L)}, root mean square ${formatFixed(Math.sqrt(sumSq / count), 3)} ${e(L)} over ${count} point${count === 1 ? '' : 's'}.</p>`,
@@ -383,3 +385,11 @@ ul.warnings li { margin: 4px 0; } ul.notes { color: var(--muted); font-size: 13p
 footer { margin-top: 40px; border-top: 1px solid var(--line); color: var(--muted); font-size: 13px; }
 @media print { body { background: #fff; } main { padding: 0; } figure, table { break-inside: avoid; } }
 `;
+
+/** Rows of a point table in the report; a longer list is counted, not shown (every row is in summary.json). */
+export const REPORT_TABLE_ROWS = 1000;
+
+function moreRows(count: number, what: string): string {
+  if (count <= REPORT_TABLE_ROWS) return '';
+  return `<p class="quiet">The first ${REPORT_TABLE_ROWS.toLocaleString('en-US')} of ${count.toLocaleString('en-US')} ${what} are listed; every one is in summary.json.</p>`;
+}

@@ -93,7 +93,9 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
 
   const parts: string[] = [];
   const footerLines = wrapText(input.caution, Math.floor((width - 2 * MARGIN) / 6.9));
-  const legendHeight = 520;
+  // Each kind of point drawn as a density takes five legend rows of 24 px instead of up to three.
+  const denseRows = (denseKinds(input).wells ? 5 : 0) + (denseKinds(input).observations ? 5 : 0);
+  const legendHeight = 520 + 24 * denseRows;
   const bodyHeight = Math.max(frame.height, legendHeight);
   const height = Math.round(frame.top + bodyHeight + 24 + footerLines.length * 16 + 26);
 
@@ -119,7 +121,10 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   for (const layer of layers) parts.push(fixedHeadPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy));
   parts.push(contourLayer(contours, levelDecimals, px, py, input.quantity));
   if (input.flux) parts.push(arrowLayer(input.flux, values, grid, frame, cellPx, cellPy, options.arrowSpacing ?? 40));
-  parts.push(pointLayer(input.observations ?? [], input.wells ?? [], px, py));
+  const dense = denseKinds(input);
+  parts.push(pointLayer(dense.observations ? [] : (input.observations ?? []), dense.wells ? [] : (input.wells ?? []), px, py));
+  if (dense.observations) parts.push(densityLayer(input.observations ?? [], px, py, frame, OBSERVATION_DENSITY_COLOUR, 'observation-density'));
+  if (dense.wells) parts.push(densityLayer(input.wells ?? [], px, py, frame, INK, 'well-density'));
   parts.push('</g>');
   parts.push(`<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="none" stroke="${INK}" stroke-width="1"/>`);
 
@@ -407,6 +412,71 @@ function arrowLayer(
   );
 }
 
+/**
+ * Above this many points of one kind (wells, observations) the map draws that kind as a density, not one symbol
+ * and label per point: a map of thousands of labelled symbols is unreadable, and hundreds of thousands passed the
+ * SVG rasteriser's node limit (200 000 wells ended in "nodes limit reached").
+ */
+export const MAX_POINT_SYMBOLS = 500;
+/** Side of a density square in px. */
+const DENSITY_SQUARE = 6;
+/** Density classes: at least this many points in a square, and the opacity it is drawn with. */
+const DENSITY_CLASSES = [
+  { from: 1, opacity: 0.3, label: '1' },
+  { from: 2, opacity: 0.55, label: '2–9' },
+  { from: 10, opacity: 0.85, label: '10 or more' },
+] as const;
+const OBSERVATION_DENSITY_COLOUR = '#1f5c99';
+
+function denseKinds(input: MapInput): { wells: boolean; observations: boolean } {
+  return { wells: (input.wells?.length ?? 0) > MAX_POINT_SYMBOLS, observations: (input.observations?.length ?? 0) > MAX_POINT_SYMBOLS };
+}
+
+/**
+ * Points counted in squares of DENSITY_SQUARE px over the map frame, drawn as one path per density class, so the
+ * drawing has a fixed number of nodes and a size bounded by the frame, however many points there are.
+ */
+function densityLayer(
+  points: readonly MapPoint[],
+  px: (x: number) => number,
+  py: (y: number) => number,
+  frame: Frame,
+  colour: string,
+  name: string,
+): string {
+  const columns = Math.max(1, Math.ceil(frame.width / DENSITY_SQUARE));
+  const rows = Math.max(1, Math.ceil(frame.height / DENSITY_SQUARE));
+  const counts = new Uint32Array(columns * rows);
+  for (const point of points) {
+    const c = Math.floor((px(point.x) - frame.left) / DENSITY_SQUARE);
+    const r = Math.floor((py(point.y) - frame.top) / DENSITY_SQUARE);
+    if (c >= 0 && c < columns && r >= 0 && r < rows) counts[r * columns + c]!++;
+  }
+  const paths: string[][] = DENSITY_CLASSES.map(() => []);
+  for (let k = 0; k < counts.length; k++) {
+    const count = counts[k]!;
+    if (count === 0) continue;
+    let cls = 0;
+    while (cls + 1 < DENSITY_CLASSES.length && count >= DENSITY_CLASSES[cls + 1]!.from) cls++;
+    const x = frame.left + (k % columns) * DENSITY_SQUARE;
+    const y = frame.top + Math.floor(k / columns) * DENSITY_SQUARE;
+    paths[cls]!.push(`M${r1(x)} ${r1(y)}h${DENSITY_SQUARE}v${DENSITY_SQUARE}h-${DENSITY_SQUARE}Z`);
+  }
+  const layers = paths
+    .map((d, cls) => (d.length ? `<path d="${d.join('')}" fill="${colour}" fill-opacity="${DENSITY_CLASSES[cls]!.opacity}" stroke="#ffffff" stroke-width="0.4"/>` : ''))
+    .join('');
+  return `<g class="${name}">${layers}</g>`;
+}
+
+/** Legend rows of a density layer: what it shows, and one square per class. */
+function densityLegend(what: string, count: number, colour: string, x: number, row: (symbol: string, label: string) => void): void {
+  row('', `${count.toLocaleString('en-US')} ${what}, too many to`);
+  row('', `draw: number per ${DENSITY_SQUARE} px square`);
+  for (const cls of DENSITY_CLASSES) {
+    row(`<rect x="${x + 6}" y="-6" width="12" height="12" fill="${colour}" fill-opacity="${cls.opacity}" stroke="${MUTED}" stroke-width="0.6"/>`, `${cls.label} per square`);
+  }
+}
+
 function wellSymbol(x: number, y: number, rate: number | undefined): string {
   if (rate !== undefined && rate > 0) {
     // Injection: open circle with a centre dot.
@@ -543,10 +613,19 @@ function legend(
     );
   }
   const wells = input.wells ?? [];
-  if (wells.some((w) => w.rate === undefined || w.rate < 0)) row(wellSymbol(x + 12, y, -1), 'Well, pumping');
-  if (wells.some((w) => w.rate !== undefined && w.rate > 0)) row(wellSymbol(x + 12, y, 1), 'Well, injecting');
-  if (wells.some((w) => w.rate === 0)) row(wellSymbol(x + 12, y, 0), 'Well, switched off');
-  if ((input.observations ?? []).length > 0) row(observationSymbol(x + 12, y + 1), 'Observation point');
+  const dense = denseKinds(input);
+  // Density squares are drawn at a row's height: the symbol is placed by a translate to the row.
+  const placed = (symbol: string, label: string) => row(symbol ? `<g transform="translate(0 ${r1(y)})">${symbol}</g>` : '', label);
+  if (dense.wells) {
+    densityLegend('wells', wells.length, INK, x, placed);
+  } else {
+    if (wells.some((w) => w.rate === undefined || w.rate < 0)) row(wellSymbol(x + 12, y, -1), 'Well, pumping');
+    if (wells.some((w) => w.rate !== undefined && w.rate > 0)) row(wellSymbol(x + 12, y, 1), 'Well, injecting');
+    if (wells.some((w) => w.rate === 0)) row(wellSymbol(x + 12, y, 0), 'Well, switched off');
+  }
+  const observations = input.observations ?? [];
+  if (dense.observations) densityLegend('observation points', observations.length, OBSERVATION_DENSITY_COLOUR, x, placed);
+  else if (observations.length > 0) row(observationSymbol(x + 12, y + 1), 'Observation point');
   for (const label of cellLegends) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#fixedhead)" stroke="#0c2340" stroke-width="0.8"/>`, label);
   if (showInactive) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#nodata)" stroke="${MUTED}" stroke-width="0.8"/>`, 'Inactive (no flow)');
   parts.push('</g>');

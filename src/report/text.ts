@@ -32,14 +32,19 @@ export function formatSignificant(value: number | null | undefined, digits = 4):
 
 /** Round tick values (1, 2, 5 x 10^k steps) covering [min, max] with about `target` ticks. */
 export function niceTicks(min: number, max: number, target = 5): { ticks: number[]; step: number; decimals: number } {
-  if (!(max > min)) return { ticks: [min], step: 1, decimals: 0 };
+  if (!(max > min) || !Number.isFinite(max - min)) return { ticks: [min], step: 1, decimals: 0 };
   const raw = (max - min) / target;
   const power = Math.pow(10, Math.floor(Math.log10(raw)));
   const mantissa = raw / power;
   const step = (mantissa < 1.5 ? 1 : mantissa < 3.5 ? 2 : mantissa < 7.5 ? 5 : 10) * power;
-  const decimals = Math.max(0, -Math.floor(Math.log10(step) + 1e-9));
+  // toFixed takes at most 100 decimals (a range of 1e-300 asked for 301).
+  const decimals = Math.min(100, Math.max(0, -Math.floor(Math.log10(step) + 1e-9)));
+  const first = Math.ceil(min / step - 1e-9);
+  // Where min / step passes 2^53 (heads near 1e14 over a centimetre, or 1000 over 1e-13), k + 1 === k and the
+  // loop below never ended: then the two ends are the ticks. The loop is bounded by a count in any case.
+  if (!Number.isSafeInteger(first)) return { ticks: [min, max], step: max - min, decimals };
   const ticks: number[] = [];
-  for (let k = Math.ceil(min / step - 1e-9); k * step <= max + 1e-9 * step; k++) ticks.push(Number((k * step).toFixed(decimals)));
+  for (let k = first; k * step <= max + 1e-9 * step && ticks.length <= 4 * target + 4; k++) ticks.push(Number((k * step).toFixed(decimals)));
   return { ticks, step, decimals };
 }
 

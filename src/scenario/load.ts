@@ -35,6 +35,7 @@ import { readShapes, reprojectShapes, type ShapeCollection } from './geojson.js'
 import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
 import { numberProperty, readPointFeatures, type PointFeature } from './pointFeatures.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
+import { checkMagnitudes } from './magnitudes.js';
 import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
 import { fieldAt } from '../field.js';
 
@@ -169,7 +170,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   const solver = raw.solver ?? solverSchema.parse({});
   const title = raw.title ?? (inline ? 'Untitled scenario' : basename(scenarioPath, extname(scenarioPath)));
 
-  return {
+  const model: ModelInput = {
     title,
     units,
     scenarioPath: inline ? '<inline>' : resolve(scenarioPath),
@@ -190,6 +191,8 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     inputFiles: [...loader.inputFiles],
     warnings: loader.warnings,
   };
+  checkMagnitudes(model, loader.label, { conductivity: conductivityPath, thickness: raw.aquifer.thickness, ...(raw.recharge === undefined ? {} : { recharge: raw.recharge }) });
+  return model;
 }
 
 /** What the values of a raster key measure, for checking a unit the raster declares. */
@@ -232,13 +235,13 @@ function parseJsonText(text: string, label: string, absolute: string): unknown {
     const problem = findJsonSyntaxError(text);
     const where = problem ? ` line ${problem.line}, column ${problem.column}` : '';
     const what = problem ? problem.problem : describeThrown(thrown);
-    throw inputError(`${label}${where}: invalid JSON: ${what}`, { file: absolute, hint: 'fix the JSON syntax (a JSON validator or editor will point at the same place)' });
+    throw inputError(`${label}${where}: invalid JSON: ${what}`, { file: absolute, hint: problem?.hint ?? 'fix the JSON syntax (a JSON validator or editor will point at the same place)' });
   }
   const duplicate = findJsonSyntaxError(text, { duplicateKeys: true });
   if (duplicate) {
     throw inputError(`${label} line ${duplicate.line}, column ${duplicate.column}: ${duplicate.problem}`, {
       file: absolute,
-      hint: 'keep one of them: otherwise the last one would silently win',
+      hint: duplicate.hint ?? 'keep one of them: otherwise the last one would silently win',
     });
   }
   return value;

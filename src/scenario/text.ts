@@ -84,7 +84,16 @@ export interface JsonSyntaxProblem {
   line: number;
   column: number;
   problem: string;
+  /** What to do about it, when the problem is not plain syntax (e.g. nesting too deep). */
+  hint?: string;
 }
+
+/**
+ * Deepest nesting of objects and lists accepted: a scenario needs about 5 levels and a GeoJSON MultiPolygon
+ * about 8. Deeper text is refused before anything walks it recursively: JSON.parse accepts 200 000 levels, and
+ * the recursive walks after it (this scanner, the schema check) then overflowed the stack.
+ */
+export const MAX_JSON_DEPTH = 100;
 
 /**
  * Where JSON text first breaks the grammar and why, in words a user can act on, or null when it is valid JSON.
@@ -100,7 +109,7 @@ export function findJsonSyntaxError(text: string, options: { duplicateKeys?: boo
   } catch (thrown) {
     if (!(thrown instanceof JsonStop)) throw thrown;
     const { line, column } = lineColumn(text, thrown.offset);
-    return { line, column, problem: thrown.message };
+    return { line, column, problem: thrown.message, ...(thrown.hint ? { hint: thrown.hint } : {}) };
   }
 }
 
@@ -122,6 +131,7 @@ class JsonStop extends Error {
   constructor(
     message: string,
     readonly offset: number,
+    readonly hint?: string,
   ) {
     super(message);
   }
@@ -129,6 +139,8 @@ class JsonStop extends Error {
 
 class JsonScanner {
   private i = 0;
+  /** Objects and lists open at the current position. */
+  private depth = 0;
 
   constructor(
     private readonly text: string,
@@ -148,8 +160,20 @@ class JsonScanner {
   private value(): void {
     const ch = this.text[this.i];
     if (ch === undefined) this.stop('the file ends in the middle of the JSON (a value is missing)');
-    if (ch === '{') return this.object();
-    if (ch === '[') return this.array();
+    if (ch === '{' || ch === '[') {
+      if (this.depth >= MAX_JSON_DEPTH) {
+        throw new JsonStop(
+          `objects and lists are nested more than ${MAX_JSON_DEPTH} levels deep here`,
+          this.i,
+          'a scenario needs about 5 levels and GeoJSON about 8: check how the file was generated',
+        );
+      }
+      this.depth++;
+      if (ch === '{') this.object();
+      else this.array();
+      this.depth--;
+      return;
+    }
     if (ch === '"') return this.string();
     if (ch === '-' || (ch >= '0' && ch <= '9')) return this.number();
     if (ch === "'") this.stop('strings need double quotes ("), not single quotes');

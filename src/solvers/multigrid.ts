@@ -8,18 +8,59 @@ const COARSEST_CELLS = 1024;
 const K_CYCLE_THRESHOLD = 0.25;
 
 /**
+ * Coefficient storage of the levels: single precision as a rule (they only shape the preconditioner; the outer CG
+ * works with the exact double-precision operator), double precision when the operator's range is too wide for it.
+ */
+type Coefficients = Float32Array | Float64Array;
+type CoefficientArray = Float32ArrayConstructor | Float64ArrayConstructor;
+
+/** Smallest positive normal single-precision number, 2^-126 (IEEE 754 binary32). */
+const FLOAT32_MIN_NORMAL = 2 ** -126;
+/**
+ * Widest ratio of the largest to the smallest diagonal of the unknown rows that single-precision levels carry once
+ * the operator is scaled so that its largest diagonal lies in [1, 2): the smallest diagonal then stays a normal
+ * number (>= 2^-126) with 2^6 to spare for rounding, and the coarse sums (at most 4 per level, over fewer than 64
+ * levels) stay far below the maximum, 2^128.
+ */
+const FLOAT32_DIAGONAL_SPREAD = 2 ** 120;
+
+/**
+ * The power of two that brings the operator's largest unknown-row diagonal into [1, 2), and the storage its
+ * levels need. Multiplying by a power of two is exact in binary floating point (IEEE 754), so the scaled
+ * preconditioner is the same one, divided by the factor; without it, conductances above about 8e37 or below about
+ * 1e-38 (K = 3.4e38 m/d, or a thickness of 1e-40 m) would overflow to infinity or flush to zero in single precision.
+ */
+function operatorScale(op: StencilOperator): { scale: number; precision: CoefficientArray } {
+  const { n, diag, unknown } = op;
+  let largest = 0;
+  let smallest = Infinity;
+  for (let p = 0; p < n; p++) {
+    if (!unknown[p]) continue;
+    const d = diag[p]!;
+    if (d > largest) largest = d;
+    if (d < smallest) smallest = d;
+  }
+  if (!(largest > 0) || !Number.isFinite(largest)) return { scale: 1, precision: Float32Array };
+  const exponent = Math.floor(Math.log2(largest));
+  // 2 ** k is exact for every integer k in the double range; split it so that neither half under- or overflows.
+  const half = Math.trunc(-exponent / 2);
+  const scale = 2 ** half * 2 ** (-exponent - half);
+  const precision = largest / smallest > FLOAT32_DIAGONAL_SPREAD || !(smallest * scale >= FLOAT32_MIN_NORMAL) ? Float64Array : Float32Array;
+  return { scale, precision };
+}
+
+/**
  * One level of the hierarchy: a five-point operator on a grid plus the workspaces its cycle needs.
- * Coefficients are stored in single precision (they only shape the preconditioner; the outer CG works with
- * the exact double-precision operator), vectors in double precision.
+ * Coefficients in single precision as a rule (see Coefficients), vectors in double precision.
  */
 interface Level {
   readonly nx: number;
   readonly ny: number;
   readonly n: number;
-  readonly diag: Float32Array;
-  readonly east: Float32Array;
-  readonly south: Float32Array;
-  readonly invDiag: Float32Array;
+  readonly diag: Coefficients;
+  readonly east: Coefficients;
+  readonly south: Coefficients;
+  readonly invDiag: Coefficients;
   /** Right-hand side of this level (restricted residual of the finer one); unused on level 0. */
   readonly rhs: Float64Array;
   /** K-cycle vectors (unused on level 0). */
@@ -31,9 +72,9 @@ interface Level {
 }
 
 /** A coarse level with its K-cycle workspaces. */
-function makeLevel(nx: number, ny: number, diag: Float32Array, east: Float32Array, south: Float32Array): Level {
+function makeLevel(nx: number, ny: number, diag: Coefficients, east: Coefficients, south: Coefficients): Level {
   const n = nx * ny;
-  const invDiag = new Float32Array(n);
+  const invDiag = new (diag instanceof Float64Array ? Float64Array : Float32Array)(n);
   for (let p = 0; p < n; p++) invDiag[p] = 1 / diag[p]!;
   const v = () => new Float64Array(n);
   return { nx, ny, n, diag, east, south, invDiag, rhs: v(), v1: v(), w1: v(), r2: v(), v2: v(), w2: v() };
@@ -74,13 +115,22 @@ function coarsen(
       if (i & 1) cs[c]! += south[p]!;
     }
   }
-  return { level: coarseLevel(cx, cy, ce, cs, cExcess, cu), unknown: cu, excess: cExcess };
+  const precision = fine.diag instanceof Float64Array ? Float64Array : Float32Array;
+  return { level: coarseLevel(cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess };
 }
 
 /** Coarse level from summed couplings and excess: diagonal = excess + couplings (identity row without unknowns). */
-function coarseLevel(cx: number, cy: number, ce: Float64Array, cs: Float64Array, cExcess: Float64Array, cu: Uint8Array): Level {
+function coarseLevel(
+  cx: number,
+  cy: number,
+  ce: Float64Array,
+  cs: Float64Array,
+  cExcess: Float64Array,
+  cu: Uint8Array,
+  precision: CoefficientArray,
+): Level {
   const cn = cx * cy;
-  const cd = new Float32Array(cn);
+  const cd = new precision(cn);
   for (let c = 0; c < cn; c++) {
     if (!cu[c]) {
       cd[c] = 1;
@@ -91,20 +141,25 @@ function coarseLevel(cx: number, cy: number, ce: Float64Array, cs: Float64Array,
     if (c >= cx) d += cs[c - cx]!;
     cd[c] = d;
   }
-  return makeLevel(cx, cy, cd, new Float32Array(ce), new Float32Array(cs));
+  return makeLevel(cx, cy, cd, new precision(ce), new precision(cs));
 }
 
 /**
- * Level 0 and the first coarsening in one pass over the fine grid: single-precision copies of the bands and the
- * inverse diagonal, and the first coarse level built from the exact double-precision operator. The "excess" of
- * a fine cell is its diagonal minus its couplings to unknown neighbours (its fixed-head conductances).
+ * Level 0 and the first coarsening in one pass over the fine grid: copies of the bands (times `scale`, see
+ * operatorScale; identity rows stay 1) and the inverse diagonal in the levels' precision, and the first coarse
+ * level built from the exact double-precision operator. The "excess" of a fine cell is its diagonal minus its
+ * couplings to unknown neighbours (its fixed-head conductances).
  */
-function finestLevels(op: StencilOperator): { fine: Level; coarse: { level: Level; unknown: Uint8Array; excess: Float64Array } | null } {
+function finestLevels(
+  op: StencilOperator,
+  scale: number,
+  precision: CoefficientArray,
+): { fine: Level; coarse: { level: Level; unknown: Uint8Array; excess: Float64Array } | null } {
   const { nx, ny, n, diag, east, south, unknown } = op;
-  const d32 = new Float32Array(n);
-  const e32 = new Float32Array(n);
-  const s32 = new Float32Array(n);
-  const inv = new Float32Array(n);
+  const d32 = new precision(n);
+  const e32 = new precision(n);
+  const s32 = new precision(n);
+  const inv = new precision(n);
   const cx = (nx + 1) >> 1;
   const cy = (ny + 1) >> 1;
   const cn = cx * cy;
@@ -118,9 +173,10 @@ function finestLevels(op: StencilOperator): { fine: Level; coarse: { level: Leve
     const crow = (i >> 1) * cx;
     for (let j = 0; j < nx; j++) {
       const p = row + j;
-      const d = diag[p]!;
-      const e = east[p]!;
-      const s = south[p]!;
+      // couplings are zero on identity rows, so only an unknown row's diagonal is scaled
+      const d = unknown[p] ? diag[p]! * scale : diag[p]!;
+      const e = east[p]! * scale;
+      const s = south[p]! * scale;
       d32[p] = d;
       e32[p] = e;
       s32[p] = s;
@@ -129,8 +185,8 @@ function finestLevels(op: StencilOperator): { fine: Level; coarse: { level: Leve
       const c = crow + (j >> 1);
       if (unknown[p]) {
         let coupled = e + s;
-        if (j > 0) coupled += east[p - 1]!;
-        if (i > 0) coupled += south[p - nx]!;
+        if (j > 0) coupled += east[p - 1]! * scale;
+        if (i > 0) coupled += south[p - nx]! * scale;
         cExcess[c]! += Math.max(0, d - coupled);
         cu[c] = 1;
       }
@@ -141,7 +197,7 @@ function finestLevels(op: StencilOperator): { fine: Level; coarse: { level: Leve
   const empty = new Float64Array(0);
   const fine: Level = { nx, ny, n, diag: d32, east: e32, south: s32, invDiag: inv, rhs: empty, v1: empty, w1: empty, r2: empty, v2: empty, w2: empty };
   if (!build) return { fine, coarse: null };
-  return { fine, coarse: { level: coarseLevel(cx, cy, ce, cs, cExcess, cu), unknown: cu, excess: cExcess } };
+  return { fine, coarse: { level: coarseLevel(cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess } };
 }
 
 /**
@@ -157,9 +213,16 @@ export class AggregationMultigrid implements VariablePreconditioner {
   readonly variable = true;
   readonly levels: Level[];
   private readonly direct: BandedCholesky;
+  /** The levels hold `scale` times the operator (a power of two); apply() multiplies the result back by it. */
+  private readonly scale: number;
+  /** Double-precision levels, for an operator whose range single precision cannot carry (see operatorScale). */
+  readonly doublePrecision: boolean;
 
   constructor(op: StencilOperator) {
-    const first = finestLevels(op);
+    const { scale, precision } = operatorScale(op);
+    this.scale = scale;
+    this.doublePrecision = precision === Float64Array;
+    const first = finestLevels(op, scale, precision);
     const levels: Level[] = [first.fine];
     if (first.coarse) {
       levels.push(first.coarse.level);
@@ -179,7 +242,8 @@ export class AggregationMultigrid implements VariablePreconditioner {
 
   /** Notes for the solve statistics. */
   describe(): string {
-    return `${this.levels.length} levels: ${this.levels.map((l) => `${l.nx}x${l.ny}`).join(', ')}`;
+    const precision = this.doublePrecision ? ' (double-precision levels: the conductances span too wide a range for single)' : '';
+    return `${this.levels.length} levels: ${this.levels.map((l) => `${l.nx}x${l.ny}`).join(', ')}${precision}`;
   }
 
   apply(r: Float64Array, z: Float64Array): void {
@@ -188,6 +252,9 @@ export class AggregationMultigrid implements VariablePreconditioner {
       return;
     }
     this.cycle(0, r, z);
+    // (scale A)^-1 = A^-1 * scale
+    const scale = this.scale;
+    if (scale !== 1) for (let p = 0; p < z.length; p++) z[p]! *= scale;
   }
 
   /** x ~= A_l^{-1} b on level l (x is overwritten). */

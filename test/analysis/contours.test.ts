@@ -7,9 +7,11 @@ import proj4 from 'proj4';
 import { describe, expect, it } from 'vitest';
 import {
   contourField,
+  contourLevelLimit,
   contourLevels,
   contoursToGeoJson,
   decimalsOf,
+  MAX_CONTOUR_LEVELS,
   roundInterval,
   type ContourSet,
 } from '../../src/analysis/contours.js';
@@ -79,12 +81,56 @@ describe('contourLevels', () => {
     expect(() => contourLevels(0, 1, -1)).toThrowError(expect.objectContaining({ code: 'input' }));
   });
 
+  it('refuses an interval that gives more than MAX_CONTOUR_LEVELS levels, naming the interval and the count', () => {
+    // 0.001 across 45..50 is 4999 levels (an interval of 0.001 m wrote 121 MB of GeoJSON in 41 s before).
+    expect(() => contourLevels(45, 50, 0.001)).toThrowError(expect.objectContaining({ code: 'input' }));
+    expect(() => contourLevels(45, 50, 0.001)).toThrow(/interval 0\.001 gives 4999 levels .* at most 250/);
+    expect(contourLevels(45, 50, 0.02)).toHaveLength(MAX_CONTOUR_LEVELS - 1);
+  });
+
+  it('ends for intervals and offsets where a level counter passes 2^53, and for ranges near the smallest double', () => {
+    // Before: 1e-300 looped forever (k + 1 === k beyond 2^53), as did levels near 1e17, and a range of 5e-324.
+    expect(() => contourLevels(45, 50, 1e-300)).toThrow(/unboundedly many|e\+300 levels/);
+    // Around 1e17 (beyond 2^53) doubles are 16 apart: the multiples 1e17 + 1, 1e17 + 2, ... of 1 round to 1e17 + 16k.
+    const far = contourLevels(1e17, 1e17 + 64, 1);
+    expect(far).toEqual([1e17 + 16, 1e17 + 32, 1e17 + 48]);
+    expect(roundInterval(0, 5e-324)).not.toBe(0);
+  });
+
   it('decimalsOf counts the decimals of a round step', () => {
     expect([decimalsOf(5), decimalsOf(0.25), decimalsOf(0.1), decimalsOf(2.5e-3)]).toEqual([0, 2, 1, 4]);
   });
 });
 
 describe('contourField', () => {
+  it('widens an interval that gives too many levels to a round one, with a note saying so', () => {
+    const grid = makeGrid(30, 20);
+    const head = linearField(grid, 50, 5 / 300); // 50 down to about 45
+    for (const asked of [0.001, 1e-300]) {
+      const set = contourField(grid, head, { interval: asked });
+      expect(set.levels.length).toBeLessThanOrEqual(MAX_CONTOUR_LEVELS);
+      expect(set.levels.length).toBeGreaterThan(MAX_CONTOUR_LEVELS / 2.5 - 2); // the smallest round interval that fits
+      expect(set.interval).toBeGreaterThan(asked);
+      expect(set.note).toMatch(new RegExp(`contour interval ${asked} would give .* levels .*; widened to ${set.interval}`));
+    }
+    // An interval within the bound is kept as asked, without a note.
+    const kept = contourField(grid, head, { interval: 0.5 });
+    expect(kept.interval).toBe(0.5);
+    expect(kept.note ?? null).toBeNull();
+  });
+
+  it('allows fewer levels on large grids (levels x cells at most 2e8), never fewer than the automatic 25', () => {
+    expect(contourLevelLimit(30 * 20)).toBe(MAX_CONTOUR_LEVELS);
+    expect(contourLevelLimit(2000 * 2000)).toBe(50);
+    expect(contourLevelLimit(20000 * 20000)).toBe(25);
+  });
+
+  it('refuses more explicit levels than MAX_CONTOUR_LEVELS', () => {
+    const grid = makeGrid(4, 3);
+    const levels = Array.from({ length: MAX_CONTOUR_LEVELS + 1 }, (_, i) => i);
+    expect(() => contourField(grid, new Float64Array(12).fill(1), { levels })).toThrow(/251 contour levels given; at most 250/);
+  });
+
   it('puts every automatic level within the head range', () => {
     const grid = makeGrid(30, 20);
     const head = linearField(grid, 112.34, 0.0137);

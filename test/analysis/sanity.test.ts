@@ -104,3 +104,36 @@ describe('sanity warnings', () => {
     }
   });
 });
+
+describe('input plausibility warnings', () => {
+  // Bounds: src/analysis/sanity.ts PLAUSIBLE (thickness 1 cm to 10 km and cell size 1 cm to 100 km, common practice;
+  // recharge below the greatest recorded annual rainfall, about 26.5 m, from memory; a well below 10 m3/s, from
+  // memory; heads within the Earth's relief, about -11 km to +8.85 km, from memory). Units: 1 ft = 0.3048 m exactly.
+  it('warns of a thickness above 10 km in the declared units (40 000 ft = 12.2 km; 30 000 ft = 9.1 km is not)', () => {
+    expect(matching(solveModel(strip({ units: { length: 'ft', time: 'd' }, thickness: 40000 })).warnings, /aquifer\.thickness: 40000\.00 ft .*aquifer thickness/)).toHaveLength(1);
+    expect(matching(solveModel(strip({ units: { length: 'ft', time: 'd' }, thickness: 30000 })).warnings, /aquifer\.thickness/)).toEqual([]);
+  });
+
+  it('warns of recharge above the greatest annual rainfall as a rate (0.1 m/d = 36.5 m/yr; 0.05 m/d = 18.3 m/yr is not)', () => {
+    expect(matching(solveModel(strip({ recharge: 0.1 })).warnings, /recharge: 0\.10 m\/d exceeds the greatest rainfall/)).toHaveLength(1);
+    expect(matching(solveModel(strip({ recharge: 0.05 })).warnings, /recharge:/)).toEqual([]);
+    // and nothing at all at ordinary values
+    const ordinary = solveModel(strip({ recharge: 0.001, thickness: 30, anisotropy: 2 }));
+    expect(matching(ordinary.warnings, /plausible|rainfall|water wells|relief|outside 1 cm/)).toEqual([]);
+  });
+
+  it('warns of a well above 10 m3/s (1e6 m3/d = 11.6 m3/s), of anisotropy 1000, and of heads beyond the relief', () => {
+    const grid = testGrid(11, 3, 100);
+    const result = solveModel(
+      strip({
+        wells: [well(grid, 'BIG', 1, 5, -1e6)],
+        anisotropy: 1000,
+        fixedHeads: [fixedColumn(grid, 0, 12000, 'west'), fixedColumn(grid, 10, 11995, 'east')],
+      }),
+    );
+    expect(matching(result.warnings, /well "BIG" .*rate -1\.00e\+6 m3\/d exceeds 864000\.00 m3\/d/)).toHaveLength(1);
+    expect(matching(result.warnings, /anisotropy 1000\.00 lies outside 0\.01 to 100/)).toHaveLength(1);
+    expect(matching(result.warnings, /"west"\): 3 head\(s\) outside .*relief/)).toHaveLength(1);
+    expect(matching(solveModel(strip({ wells: [well(grid, 'SMALL', 1, 5, -8e5)] })).warnings, /well "SMALL"/)).toEqual([]);
+  });
+});

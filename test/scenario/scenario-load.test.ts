@@ -446,7 +446,7 @@ describe('variants', () => {
     const fixtures = resolve(__dirname, '../fixtures/rasters');
     const expected = JSON.parse(readFileSync(join(fixtures, 'expected.json'), 'utf8')) as { good: Array<{ file: string; bands: Array<{ values: Array<number | null> }> }> };
     const gdalValues = (file: string) => expected.good.find((r) => r.file === file)!.bands[0]!.values;
-    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'i16-scale-offset.tif' }, fixedHeads: [{ edge: 'west', head: 10 }] } as unknown as ScenarioJson;
+    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'i16-scale-offset.tif', anisotropy: 1 }, fixedHeads: [{ edge: 'west', head: 10 }] } as unknown as ScenarioJson;
     const model = await resolveScenario(raw, fixtures, '<inline>');
     const k = gdalValues('u16-scale.tif');
     const b = gdalValues('i16-scale-offset.tif');
@@ -462,7 +462,7 @@ describe('variants', () => {
   it('refuses a raster whose declared unit is not the one its key is taken in; accepts it when the scenario units match', async () => {
     const fixtures = resolve(__dirname, '../fixtures/rasters');
     // f32-vertical-ftus.tif: GDAL gives its band the unit of its vertical CRS, the US survey foot
-    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'f32-vertical-ftus.tif' }, fixedHeads: [{ edge: 'west', head: 10 }] };
+    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'f32-vertical-ftus.tif', anisotropy: 1 }, fixedHeads: [{ edge: 'west', head: 10 }] };
     let error: unknown;
     try {
       await resolveScenario(raw as unknown as ScenarioJson, fixtures, '<inline>');
