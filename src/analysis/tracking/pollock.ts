@@ -71,6 +71,76 @@ function expRatio(w: number): number {
   return w === 0 ? 1 : Math.expm1(w) / w;
 }
 
+/**
+ * Where water crossing each part of each face ends up, filled from finished forward tracks, so that a later
+ * track that crosses the same part of a face can take over that track's end instead of retracing it.
+ *
+ * Faces are cut into parts of about equal flow, not equal length: a face gets ceil(partsPerFace x |v| L / mean)
+ * parts (|v| L its velocity times length, mean over flowing faces; at most 1024), so a fast channel that gathers
+ * the water of many cells is cut as finely as the water it carries. Streamlines keep their share of the flow, so
+ * two tracks crossing one part are never further apart, in flow, than about 1/partsPerFace of an average cell.
+ *
+ * When a track tracked to its end (label L at time T), every part it crossed that holds nothing yet records L and
+ * the remaining time T - t_crossing. A later track adopts a record only after it has crossed at least
+ * `exactCrossings` cells and travelled at least `exactTime`: its travel time is exact up to `exactTime` (time zones
+ * up to that time are exact), and beyond that its end is the end of a track that crossed the same part of a face.
+ * That end can differ from the exact one only for water within that part of a dividing streamline (below the
+ * resolution of a raster of cell centres); the adopted time differs by the travel-time difference across the
+ * part. Adopted tracks record nothing, so an estimate never feeds another. Records are written once, in the
+ * order tracks finish: results depend only on the seeds and their order.
+ */
+export class FaceCache {
+  readonly exactTime: number;
+  readonly exactCrossings: number;
+  /** First part of face f (east face of p: f = p; south face of p: f = n + p); parts of f end at start[f + 1]. */
+  readonly start: Int32Array;
+  /** Label index + 2 per face part: 0 = nothing recorded, 1 = ended without a label, >= 2 a label. */
+  readonly code: Int32Array;
+  readonly remaining: Float32Array;
+
+  constructor(field: TrackingField, options: { partsPerFace?: number; exactTime?: number; exactCrossings?: number } = {}) {
+    const partsPerFace = options.partsPerFace ?? 4;
+    this.exactTime = options.exactTime ?? 0;
+    this.exactCrossings = options.exactCrossings ?? 16;
+    const { nx, ny, dx, dy } = field;
+    const n = nx * ny;
+    const v = field.velocity;
+    const measure = (f: number): number => (f < n ? Math.abs(v[4 * f + 1]!) * dy : Math.abs(v[4 * (f - n) + 3]!) * dx);
+    let sum = 0;
+    let flowing = 0;
+    for (let f = 0; f < 2 * n; f++) {
+      const m = measure(f);
+      if (m > 0) {
+        sum += m;
+        flowing++;
+      }
+    }
+    const mean = flowing > 0 ? sum / flowing : 1;
+    this.start = new Int32Array(2 * n + 1);
+    let total = 0;
+    for (let f = 0; f < 2 * n; f++) {
+      this.start[f] = total;
+      const m = measure(f);
+      total += m > 0 ? Math.min(1024, Math.ceil((partsPerFace * m) / mean)) : 1;
+    }
+    this.start[2 * n] = total;
+    this.code = new Int32Array(total);
+    this.remaining = new Float32Array(total);
+  }
+
+  /** The part of face f at fraction `along` (0..1) of its length. */
+  part(f: number, along: number): number {
+    const first = this.start[f]!;
+    const count = this.start[f + 1]! - first;
+    const k = (along * count) | 0;
+    return first + (k < count ? k : count - 1);
+  }
+
+  reset(): void {
+    this.code.fill(0);
+  }
+}
+
 /** One particle at a time on one field; reuse the instance for many particles. */
 export class Tracker {
   readonly field: TrackingField;
@@ -84,7 +154,12 @@ export class Tracker {
   label = -1;
   /** Cells entered by the last track. */
   crossings = 0;
+  /** True when the last track's end was taken over from a FaceCache record. */
+  adopted = false;
   private readonly maxCrossings: number;
+  /** Face parts crossed by the current track and the time of each crossing (for FaceCache records). */
+  private crossedPart = new Int32Array(1024);
+  private crossedTime = new Float64Array(1024);
 
   constructor(field: TrackingField) {
     this.field = field;
@@ -96,15 +171,21 @@ export class Tracker {
    * Tracks one particle from (localX, localY) inside cell `start` (0 <= localX <= dx, 0 <= localY <= dy, y
    * southward) forward (direction 1) or backward (-1) until it ends or `maxTime` passes. Returns the END_* code;
    * the end state is in the tracker's fields. With `path`, records the start and every face crossing and the end
-   * point in map coordinates (the path is cleared first).
+   * point in map coordinates (the path is cleared first). With `cache` (forward only, no time limit), takes over
+   * recorded ends as the FaceCache comment says and records its own.
    */
-  track(start: number, startX: number, startY: number, direction: 1 | -1, maxTime = Infinity, path: PathBuffer | null = null): number {
+  track(
+    start: number,
+    startX: number,
+    startY: number,
+    direction: 1 | -1,
+    maxTime = Infinity,
+    path: PathBuffer | null = null,
+    cache: FaceCache | null = null,
+  ): number {
     const f = this.field;
     const { nx, ny, dx, dy, x0, y0, active } = f;
-    const vWest = f.velocityWest;
-    const vEast = f.velocityEast;
-    const vNorth = f.velocityNorth;
-    const vSouth = f.velocitySouth;
+    const velocity = f.velocity;
     const stop = direction === 1 ? f.stopForward : f.stopBackward;
     const s = direction;
     let p = start;
@@ -116,6 +197,10 @@ export class Tracker {
     let reason = -1;
     let label = -1;
     let crossings = 0;
+    let adopted = false;
+    const n = nx * ny;
+    const cacheTime = cache ? cache.exactTime : Infinity;
+    const cacheCrossings = cache ? cache.exactCrossings : 0;
     if (path) {
       path.clear();
       path.push(x0 + col * dx + x, y0 - (row * dy + y));
@@ -127,10 +212,10 @@ export class Tracker {
     }
     while (reason < 0) {
       // Face velocities in the tracking direction.
-      const v1x = s * vWest[p]!;
-      const v2x = s * vEast[p]!;
-      const v1y = s * vNorth[p]!;
-      const v2y = s * vSouth[p]!;
+      const v1x = s * velocity[4 * p]!;
+      const v2x = s * velocity[4 * p + 1]!;
+      const v1y = s * velocity[4 * p + 2]!;
+      const v2y = s * velocity[4 * p + 3]!;
       const ax = (v2x - v1x) / dx;
       const ay = (v2y - v1y) / dy;
       const vx = v1x + ax * x;
@@ -201,23 +286,41 @@ export class Tracker {
         break;
       }
       // Into the neighbour: the coordinate across the face flips to the neighbour's side.
+      let part = 0; // FaceCache index of the face part crossed: east faces first, then south faces
       if (next === p + 1) {
         col++;
         x = 0;
+        if (cache) part = cache.part(p, y / dy);
       } else if (next === p - 1) {
         col--;
         x = dx;
+        if (cache) part = cache.part(next, y / dy);
       } else if (next === p + nx) {
         row++;
         y = 0;
+        if (cache) part = cache.part(n + p, x / dx);
       } else {
         row--;
         y = dy;
+        if (cache) part = cache.part(n + next, x / dx);
       }
       p = next;
       if (++crossings > this.maxCrossings) {
         reason = END_STALLED;
         break;
+      }
+      if (cache) {
+        const code = cache.code[part]!;
+        if (code !== 0 && t >= cacheTime && crossings >= cacheCrossings) {
+          t += cache.remaining[part]!;
+          reason = code === 1 ? END_STAGNATION : END_LABEL;
+          label = code - 2;
+          adopted = true;
+          break;
+        }
+        if (crossings > this.crossedPart.length) this.growCrossed();
+        this.crossedPart[crossings - 1] = part;
+        this.crossedTime[crossings - 1] = t;
       }
       const l = stop[p]!;
       if (l >= 0) {
@@ -228,6 +331,18 @@ export class Tracker {
     if (path && (reason === END_STAGNATION || reason === END_TIME_LIMIT || reason === END_STALLED)) {
       path.push(x0 + col * dx + x, y0 - (row * dy + y));
     }
+    if (cache && reason !== END_TIME_LIMIT && reason !== END_STALLED && !adopted) {
+      const code = reason === END_LABEL ? label + 2 : 1;
+      const recorded = adopted ? crossings - 1 : crossings;
+      for (let c = 0; c < recorded; c++) {
+        const k = this.crossedPart[c]!;
+        if (cache.code[k] === 0) {
+          cache.code[k] = code;
+          cache.remaining[k] = t - this.crossedTime[c]!;
+        }
+      }
+    }
+    this.adopted = adopted;
     this.cell = p;
     this.localX = x;
     this.localY = y;
@@ -236,6 +351,15 @@ export class Tracker {
     this.label = label;
     this.crossings = crossings;
     return reason;
+  }
+
+  private growCrossed(): void {
+    const part = new Int32Array(2 * this.crossedPart.length);
+    part.set(this.crossedPart);
+    this.crossedPart = part;
+    const time = new Float64Array(2 * this.crossedTime.length);
+    time.set(this.crossedTime);
+    this.crossedTime = time;
   }
 
   /** The contract's name for the last track's end. A stalled track (a fault) reads as stagnation. */
