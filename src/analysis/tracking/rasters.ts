@@ -64,33 +64,40 @@ export interface EndRasterOptions {
 }
 
 /**
- * Cells of rows [rowStart, rowEnd) from the highest potential to the lowest (NaN last), by a counting sort on
- * 65536 levels (ties in index order): deterministic and O(n).
+ * Cells of rows [rowStart, rowEnd) in tracking order: tiles of 16 x 16 cells from the highest mean potential to
+ * the lowest (tiles without a finite value last), cells row by row inside a tile. Upstream tiles go first so that
+ * their tracks record the faces later tracks cross; whole tiles keep neighbouring cells (and their memory)
+ * together. Deterministic: ties keep tile order.
  */
 export function seedOrder(potential: Float64Array, nx: number, rowStart: number, rowEnd: number): Int32Array {
-  const first = rowStart * nx;
-  const count = (rowEnd - rowStart) * nx;
-  let min = Infinity;
-  let max = -Infinity;
-  for (let k = 0; k < count; k++) {
-    const v = potential[first + k]!;
-    if (v < min) min = v;
-    if (v > max) max = v;
+  const tile = 16;
+  const rows = rowEnd - rowStart;
+  const tilesX = Math.ceil(nx / tile);
+  const tilesY = Math.ceil(rows / tile);
+  const mean = new Float64Array(tilesX * tilesY);
+  const count = new Int32Array(tilesX * tilesY);
+  for (let i = 0; i < rows; i++) {
+    for (let j = 0; j < nx; j++) {
+      const v = potential[(rowStart + i) * nx + j]!;
+      if (v === v) {
+        const t = Math.floor(i / tile) * tilesX + Math.floor(j / tile);
+        mean[t]! += v;
+        count[t]!++;
+      }
+    }
   }
-  const levels = 65536;
-  const scale = max > min ? (levels - 1) / (max - min) : 0;
-  const bucketOf = new Int32Array(count);
-  const starts = new Int32Array(levels + 2);
-  for (let k = 0; k < count; k++) {
-    const v = potential[first + k]!;
-    // highest potential in bucket 0; NaN in the extra last bucket
-    const b = v === v ? levels - 1 - Math.floor((v - min) * scale) : levels;
-    bucketOf[k] = b;
-    starts[b + 1]!++;
+  const tiles = Array.from({ length: tilesX * tilesY }, (_, t) => t);
+  const key = (t: number) => (count[t]! > 0 ? mean[t]! / count[t]! : -Infinity);
+  tiles.sort((a, b) => key(b) - key(a) || a - b);
+  const order = new Int32Array(rows * nx);
+  let k = 0;
+  for (const t of tiles) {
+    const ti = Math.floor(t / tilesX);
+    const tj = t - ti * tilesX;
+    for (let i = ti * tile; i < Math.min(rows, (ti + 1) * tile); i++) {
+      for (let j = tj * tile; j < Math.min(nx, (tj + 1) * tile); j++) order[k++] = (rowStart + i) * nx + j;
+    }
   }
-  for (let b = 0; b <= levels; b++) starts[b + 1]! += starts[b]!;
-  const order = new Int32Array(count);
-  for (let k = 0; k < count; k++) order[starts[bucketOf[k]!]!++] = first + k;
   return order;
 }
 
