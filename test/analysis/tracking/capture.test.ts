@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { polygonContains } from 'd3-polygon';
-import { captureZones, type CaptureResult, type CaptureZoneFeature } from '../../../src/analysis/tracking/capture.js';
+import { captureZones, signedArea, type CaptureResult, type CaptureZoneFeature } from '../../../src/analysis/tracking/capture.js';
 import { endRasters, trackSeeds } from '../../../src/analysis/tracking/rasters.js';
 import { END_TIME_LIMIT, PathBuffer, Tracker } from '../../../src/analysis/tracking/pollock.js';
 import { trackPoints } from '../../../src/analysis/tracking/points.js';
@@ -106,6 +106,36 @@ describe('capture zone of one well in uniform flow', () => {
     expect(insideInner).toBeGreaterThan(100);
   });
 
+  it('holds within time t the water pumped in t: area n b = Q t (volume balance)', () => {
+    // Steady flow without recharge: the pore water inside the t-zone is what the well pumps in t, so
+    // area = Q t / (n b) whatever the flow field (the basis of the calculated-fixed-radius method,
+    // r = sqrt(Q t / (pi n b)), US EPA 1987 wellhead protection guidance; citation from memory).
+    const { capture } = uniformWithWell();
+    const n = 0.25;
+    for (const zone of capture.zones.filter((z) => z.properties.time !== null)) {
+      const t = zone.properties.time!;
+      const expected = (Q * t) / (n * b);
+      // Limit: the zone edge cells (cells the outline passes through) counted half, as in the recharge check;
+      // for a near-circular zone of area A that is about the perimeter sqrt(4 pi A) / dx cells.
+      const edgeCells = Math.sqrt(4 * Math.PI * expected) / dx;
+      expect(Math.abs(zone.properties.cellArea - expected)).toBeLessThanOrEqual((edgeCells / 2) * dx * dx);
+      expect(Math.abs(zone.properties.area - expected)).toBeLessThanOrEqual((edgeCells / 2) * dx * dx);
+    }
+  });
+
+  it('writes RFC 7946 rings (exterior counter-clockwise) through the caller\'s projection', () => {
+    const { solved } = uniformWithWell();
+    const shift = (x: number, y: number): [number, number] => [x - 500000, y - 4100000];
+    const capture = captureZones(solved.field, solved.input.stopLabel, { captureTimes: [2000], particlesPerWell: 4, project: shift }, uniformWithWell().capture.ends);
+    const zone = capture.zones[0]!;
+    expect(zone.geometry?.type).toBe('Polygon');
+    const rings = (zone.geometry as { coordinates: number[][][] }).coordinates;
+    expect(signedArea(rings[0]!)).toBeGreaterThan(0);
+    // The well sits at the local origin's (col 250.5, row 200.5) * 10 m: inside the projected ring.
+    expect(polygonContains(rings[0] as [number, number][], [(WELL_COL + 0.5) * dx, -(WELL_ROW + 0.5) * dx])).toBe(true);
+    expect(capture.pathlines[0]!.geometry.coordinates[0]![0]!).toBeLessThan(10000);
+  });
+
   it('lets a particle released in the well cell\'s upstream neighbour end in that well', () => {
     const { solved } = uniformWithWell();
     const { x0, y0 } = solved.field;
@@ -188,6 +218,37 @@ describe('capture zones fed by recharge only', () => {
       expect(fineError).toBeLessThanOrEqual((edgeCells / 8) * cellArea * R);
       expect(w.refined).toBe(false);
     });
+  });
+
+  it('outlines a well that captures few cells from sub-cell seeds, with its recharge balance', () => {
+    const grid = testGrid(NXR, NYR, DX);
+    const model = makeModel(grid, {
+      conductivity: new Float64Array(NXR * NYR).fill(5),
+      thickness: 20,
+      recharge: R,
+      fixedHeads: [fixedColumn(grid, NXR - 1, 50, 'river')],
+      // Near the west no-flow edge (a water divide), where little water passes.
+      wells: [well(grid, 'A', 12, 20, -rates.A), well(grid, 'small', 30, 1, -2)],
+    });
+    const solved = solveForTracking(model, 0.2);
+    const capture = captureZones(solved.field, solved.input.stopLabel, { particlesPerWell: 8, rasters: { exact: true } });
+    // Some water still passes the well cell (about a tenth): a weak sink, which by the default rule stops all water
+    // entering the cell. So the zone is the cell itself plus the area whose recharge enters it:
+    // (face inflow) / R = (water the well takes net of the cell's own recharge / fraction) / R.
+    const weak = solved.field.weakSinks.filter((w) => w.name === 'small' && w.direction === 'forward');
+    expect(weak).toHaveLength(1);
+    expect(weak[0]!.stops).toBe(true);
+    const faceInflow = -solved.field.netSource[weak[0]!.cell]! / weak[0]!.fraction;
+    const small = capture.wells.find((w) => w.id === 'small')!;
+    expect(small.capturedCells).toBeLessThan(64);
+    expect(small.refined).toBe(true);
+    const zone = capture.zones.find((z) => z.properties.well === 'small' && z.properties.time === null)!;
+    // About 2 m3/d at 0.001 m/d: some 2000 m2, 5 cells. Seeds 4 x 4 per cell: edge error within half a seed
+    // spacing along a perimeter of about sqrt(4 pi A) (as above, with the seed spacing in place of the cell size).
+    const expected = faceInflow / R + DX * DX;
+    const seedSpacing = DX / 4;
+    expect(Math.abs(zone.properties.cellArea - expected)).toBeLessThanOrEqual((Math.sqrt(4 * Math.PI * expected) / seedSpacing / 2) * seedSpacing * seedSpacing);
+    expect(zone.properties.area).toBeGreaterThan(0);
   });
 
   it('agrees with exact tracking when finished tracks are reused (FaceCache), apart from cells at a zone edge', () => {
