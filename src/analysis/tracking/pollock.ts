@@ -183,6 +183,8 @@ export class Tracker {
     path: PathBuffer | null = null,
     cache: FaceCache | null = null,
   ): number {
+    // Records hold remaining times to the end of forward tracks without a time limit: use them only for those.
+    if (direction !== 1 || maxTime !== Infinity) cache = null;
     const f = this.field;
     const { nx, ny, dx, dy, x0, y0, active } = f;
     const velocity = f.velocity;
