@@ -103,7 +103,7 @@ export interface CaptureResult {
   capturingWell: Int32Array;
   /** Per cell: travel time to that well; NaN where no well captures the cell. */
   travelTime: Float64Array;
-  /** Per cell: 1 where that travel time is tracked exactly, 0 where it is taken over from a FaceCache record. */
+  /** Per cell: 1 where that travel time is sure to be exact (at most `exactTime`), 0 where it may be a FaceCache estimate. */
   travelTimeExact: Uint8Array;
   /** The time up to which every travel time is exact. */
   exactTime: number;
