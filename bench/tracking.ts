@@ -10,11 +10,11 @@
  */
 import { assembleSystem, headsFromSolution } from '../src/discretisation/assemble.js';
 import { chooseAutoMethod, createSolver } from '../src/solvers/registry.js';
-import { faceFlows } from '../src/analysis/flux.js';
-import { buildTrackingField, type StopLabel } from '../src/analysis/tracking/field.js';
+import { buildTrackingField } from '../src/analysis/tracking/field.js';
+import { trackingInputFromSystem } from '../src/analysis/tracking/fromSystem.js';
 import { endRasters } from '../src/analysis/tracking/rasters.js';
 import { captureZones } from '../src/analysis/tracking/capture.js';
-import { benchCase, CELL_SIZE, THICKNESS } from './case.js';
+import { benchCase, THICKNESS } from './case.js';
 
 const args = process.argv.slice(2);
 const sizeAt = args.indexOf('--size');
@@ -41,20 +41,8 @@ function stage<T>(name: string, run: () => T): T {
 const n = size * size;
 const total = { c: process.cpuUsage(), t: performance.now() };
 const field = stage('face flows + tracking field', () => {
-  const flows = faceFlows(system.grid, head, system.conductanceEast, system.conductanceSouth);
-  const stopLabel = new Int32Array(n).fill(-1);
-  const labels: StopLabel[] = system.groups.map((name) => ({ kind: 'boundary' as const, name }));
-  for (let p = 0; p < n; p++) if (system.fixed[p]) stopLabel[p] = system.fixedGroup[p]!;
-  model.wells.forEach((w, k) => {
-    labels.push({ kind: 'well', name: w.id });
-    stopLabel[system.wellCells[k]!] = labels.length - 1;
-  });
-  const t = system.grid.transform;
-  const input = {
-    nx: size, ny: size, dx: CELL_SIZE, dy: CELL_SIZE, x0: t[0], y0: t[3], faceEast: flows.east, faceSouth: flows.south,
-    active: system.active, thickness: THICKNESS, porosity: 0.2, stopLabel, labels,
-  };
-  return { field: buildTrackingField(input), stopLabel };
+  const input = trackingInputFromSystem(system, head, { wellIds: model.wells.map((w) => w.id), thickness: THICKNESS, porosity: 0.2 });
+  return { field: buildTrackingField(input), stopLabel: input.stopLabel };
 });
 const ends = stage('end rasters (every active cell)', () => endRasters(field.field, { exactTime: captureTimes[1], potential: head }));
 const capture = stage('zones + 360 backward pathlines', () =>

@@ -29,3 +29,4 @@ export {
   type Project,
 } from './capture.js';
 export { trackPoints, locatePoint, type TrackPoint, type PointTrack, type PointTrackOptions } from './points.js';
+export { trackingInputFromSystem, type SystemTrackingOptions } from './fromSystem.js';
