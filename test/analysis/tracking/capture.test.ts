@@ -192,7 +192,13 @@ describe('capture zones fed by recharge only', () => {
     const capture = captureZones(field, solved.input.stopLabel, { particlesPerWell: 0, rasters: { exact: true } });
     const cellArea = DX * DX;
     capture.wells.forEach((w, k) => {
-      const rate = rates[w.id as 'A' | 'B'];
+      // Water the well's cell takes in: all of it is the well's where the cell is a strong sink (rate Q). Where
+      // some water passes the cell (a weak sink; by the default rule it stops everything entering) the zone holds
+      // all water entering the cell: its face inflow plus its own recharge, face inflow = taken / fraction.
+      const cell = solved.input.stopLabel.indexOf(w.label);
+      const weak = field.weakSinks.find((s) => s.cell === cell && s.direction === 'forward');
+      const ownRecharge = R * DX * DX;
+      const rate = weak ? -field.netSource[cell]! / weak.fraction + ownRecharge : rates[w.id as 'A' | 'B'];
       let cells = 0;
       let edgeCells = 0; // cells whose own or a neighbour's capture differs: the only ones a centre can misassign
       for (let r = 0; r < NYR; r++) {
