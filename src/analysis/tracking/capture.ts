@@ -19,8 +19,8 @@
  */
 import { contours as d3Contours } from 'd3-contour';
 import { inputError } from '../../errors.js';
-import type { TrackingField } from './field.js';
-import { PathBuffer, Tracker } from './pollock.js';
+import type { TrackingField, WeakSink } from './field.js';
+import { END_STALLED, PathBuffer, Tracker } from './pollock.js';
 import { endRasters, NO_LABEL, trackSeeds, type EndRasterOptions, type EndRasters } from './rasters.js';
 
 /** Map coordinates out: [x, y] for a point in the grid's map coordinates. */
@@ -109,6 +109,10 @@ export interface CaptureResult {
   exactTime: number;
   /** The rasters of every end (labels, not only wells). */
   ends: EndRasters;
+  /** Labelled cells that take only part of their inflow, and whether the rule stopped particles there (field.ts). */
+  weakSinks: WeakSink[];
+  /** Remarks for the summary: weak sinks met, stalled tracks (a fault). */
+  warnings: string[];
 }
 
 /** The capture times, checked: finite and > 0, ascending, duplicates removed. */
@@ -198,6 +202,7 @@ export function captureZones(field: TrackingField, stopLabel: Int32Array, option
 
   const zones: CaptureZoneFeature[] = [];
   const wells: WellCapture[] = [];
+  let stalled = rasters.stalled;
   const cellArea = dx * dy;
   for (let k = 0; k < wellLabels.length; k++) {
     const label = wellLabels[k]!;
@@ -215,8 +220,9 @@ export function captureZones(field: TrackingField, stopLabel: Int32Array, option
     let values: EndRasters;
     if (refined) {
       values = trackSeeds(field, window);
+      stalled += values.stalled;
     } else {
-      values = { label: new Int32Array(window.cols * window.rows), time: new Float64Array(window.cols * window.rows) };
+      values = { label: new Int32Array(window.cols * window.rows), time: new Float64Array(window.cols * window.rows), stalled: 0 };
       for (let i = 0; i < window.rows; i++) {
         const src = (row0 + i) * nx + col0;
         values.label.set(rasters.label.subarray(src, src + window.cols), i * window.cols);
@@ -249,12 +255,30 @@ export function captureZones(field: TrackingField, stopLabel: Int32Array, option
         const perCell = Math.ceil(particlesPerWell / cells.length);
         const along = ((Math.floor(m / cells.length) + 0.5) / perCell) * 2 * (dx + dy);
         const [x, y] = perimeterPoint(along, dx, dy);
-        tracker.track(cell, x, y, -1, options.maxTime ?? Infinity, path);
+        if (tracker.track(cell, x, y, -1, options.maxTime ?? Infinity, path) === END_STALLED) stalled++;
         pathlines.push(pathlineFeature(`${id}-${m + 1}`, 'backward', tracker, path, project));
       }
     }
   }
-  return { zones, pathlines, wells, capturingWell, travelTime, travelTimeExact, exactTime: exactUpTo, ends: rasters };
+  const warnings: string[] = [];
+  const weakWells = field.weakSinks.filter((w) => w.direction === 'forward' && w.stops && wellIndexOfLabel[w.label]! >= 0);
+  if (weakWells.length) {
+    const list = weakWells.map((w) => `${w.name} (takes ${(100 * w.fraction).toFixed(0)} % of the water entering its cell)`).join(', ');
+    warnings.push(`weak-sink well cells: ${list}; their capture zones hold all water entering the cell, so they may be drawn too large`);
+  }
+  if (stalled > 0) warnings.push(`${stalled} track(s) stopped by the safety limit on cell crossings; they count as captured by no well`);
+  return {
+    zones,
+    pathlines,
+    wells,
+    capturingWell,
+    travelTime,
+    travelTimeExact,
+    exactTime: exactUpTo,
+    ends: rasters,
+    weakSinks: field.weakSinks,
+    warnings,
+  };
 }
 
 /** A point at distance `along` around a cell's perimeter, clockwise from its north-west corner (y southward). */

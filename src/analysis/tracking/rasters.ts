@@ -4,7 +4,7 @@
  * These rasters are what capture zones are outlined from (capture.ts); the work is one independent track per
  * seed, so rows can be split between worker threads (workers.ts).
  */
-import { END_LABEL, FaceCache, Tracker } from './pollock.js';
+import { END_LABEL, END_STALLED, FaceCache, Tracker } from './pollock.js';
 import type { TrackingField } from './field.js';
 
 /** Marks a cell whose track ended without a stop label (edge, stagnation, time limit) or an inactive cell. */
@@ -15,11 +15,14 @@ export interface EndRasters {
   label: Int32Array;
   /** Travel time to that end (time units); NaN on inactive cells. */
   time: Float64Array;
+  /** Tracks stopped by the safety limit on cell crossings (a fault: should be 0; they count as ending nowhere). */
+  stalled: number;
 }
 
 /**
  * Forward tracks from the centre of every active cell in rows [rowStart, rowEnd), written into `out` at
- * index p - rowStart * nx (so `out` may hold just those rows). Allocates nothing per cell.
+ * index p - rowStart * nx (so `out` may hold just those rows). Allocates nothing per cell. Returns the number of
+ * stalled tracks.
  */
 export function trackCellCentres(
   field: TrackingField,
@@ -28,11 +31,12 @@ export function trackCellCentres(
   out: EndRasters,
   cache: FaceCache | null = null,
   order: Int32Array | null = null,
-): void {
+): number {
   const { nx, dx, dy, active } = field;
   const tracker = new Tracker(field);
   const offset = rowStart * nx;
   const count = (rowEnd - rowStart) * nx;
+  let stalled = 0;
   for (let s = 0; s < count; s++) {
     const p = order ? order[s]! : offset + s;
     const k = p - offset;
@@ -44,7 +48,9 @@ export function trackCellCentres(
     const reason = tracker.track(p, 0.5 * dx, 0.5 * dy, 1, Infinity, null, cache);
     out.label[k] = reason === END_LABEL ? tracker.label : NO_LABEL;
     out.time[k] = tracker.time;
+    if (reason === END_STALLED) stalled++;
   }
+  return stalled;
 }
 
 export interface EndRasterOptions {
@@ -104,10 +110,10 @@ export function seedOrder(potential: Float64Array, nx: number, rowStart: number,
 /** Forward tracks from every active cell centre of the grid, in this thread. */
 export function endRasters(field: TrackingField, options: EndRasterOptions = {}): EndRasters {
   const n = field.nx * field.ny;
-  const out: EndRasters = { label: new Int32Array(n), time: new Float64Array(n) };
+  const out: EndRasters = { label: new Int32Array(n), time: new Float64Array(n), stalled: 0 };
   const cache = options.exact ? null : new FaceCache(field, options);
   const order = options.potential ? seedOrder(options.potential, field.nx, 0, field.ny) : null;
-  trackCellCentres(field, 0, field.ny, out, cache, order);
+  out.stalled = trackCellCentres(field, 0, field.ny, out, cache, order);
   return out;
 }
 
@@ -129,7 +135,7 @@ export function trackSeeds(field: TrackingField, window: SeedWindow, maxTime = I
   const s = window.subdivisions;
   const width = window.cols * s;
   const height = window.rows * s;
-  const out: EndRasters = { label: new Int32Array(width * height), time: new Float64Array(width * height) };
+  const out: EndRasters = { label: new Int32Array(width * height), time: new Float64Array(width * height), stalled: 0 };
   const tracker = new Tracker(field);
   for (let fi = 0; fi < height; fi++) {
     const row = window.row0 + Math.floor(fi / s);
@@ -147,6 +153,7 @@ export function trackSeeds(field: TrackingField, window: SeedWindow, maxTime = I
       const reason = tracker.track(p, x, y, 1, maxTime, null);
       out.label[k] = reason === END_LABEL ? tracker.label : NO_LABEL;
       out.time[k] = tracker.time;
+      if (reason === END_STALLED) out.stalled++;
     }
   }
   return out;

@@ -190,6 +190,11 @@ describe('capture zones fed by recharge only', () => {
     const solved = rechargeModel();
     const { field } = solved;
     const capture = captureZones(field, solved.input.stopLabel, { particlesPerWell: 0, rasters: { exact: true } });
+    // B passes some water on (a weak sink), A takes all that reaches it: only B is named.
+    expect(capture.warnings.filter((w) => w.includes('weak-sink'))).toHaveLength(1);
+    expect(capture.warnings[0]).toMatch(/B \(takes \d+ % of the water entering its cell\)/);
+    expect(capture.warnings[0]).not.toMatch(/\bA \(/);
+    expect(capture.ends.stalled).toBe(0);
     const cellArea = DX * DX;
     capture.wells.forEach((w, k) => {
       // Water the well's cell takes in: all of it is the well's where the cell is a strong sink (rate Q). Where
