@@ -2,9 +2,9 @@
  * Tracking benchmark: capture zones of the 10 wells of the benchmark case (bench/case.ts), porosity 0.2,
  * capture times 365 and 3650 days, 36 backward pathlines per well, the steady zones.
  *
- *   npm run bench-tracking -- [--size 1024] [--compare]
+ *   npm run bench-tracking -- [--size 1024] [--workers 2] [--compare]
  *
- * Prints wall and CPU seconds of each stage (the head solve is not counted: it is the solver benchmark's).
+ * Prints wall and CPU seconds (all threads) of each stage (the head solve is not counted: it is the solver benchmark's).
  * --compare also tracks every cell exactly (no FaceCache; several times slower) and prints how many cells
  * differ in their capturing well and how far the estimated travel times beyond the exact horizon are off.
  */
@@ -13,12 +13,15 @@ import { chooseAutoMethod, createSolver } from '../src/solvers/registry.js';
 import { buildTrackingField } from '../src/analysis/tracking/field.js';
 import { trackingInputFromSystem } from '../src/analysis/tracking/fromSystem.js';
 import { endRasters } from '../src/analysis/tracking/rasters.js';
+import { endRastersInWorkers } from '../src/analysis/tracking/workers.js';
 import { captureZones } from '../src/analysis/tracking/capture.js';
 import { benchCase, THICKNESS } from './case.js';
 
 const args = process.argv.slice(2);
 const sizeAt = args.indexOf('--size');
 const size = sizeAt >= 0 ? Number(args[sizeAt + 1]) : 1024;
+const workersAt = args.indexOf('--workers');
+const workers = workersAt >= 0 ? Number(args[workersAt + 1]) : 2;
 const captureTimes = [365, 3650];
 
 const { model } = benchCase(size);
@@ -38,13 +41,24 @@ function stage<T>(name: string, run: () => T): T {
   return value;
 }
 
+async function stageAsync<T>(name: string, run: () => Promise<T>): Promise<T> {
+  const c = process.cpuUsage();
+  const t = performance.now();
+  const value = await run();
+  const cpu = process.cpuUsage(c);
+  console.log(`${name.padEnd(34)} wall ${((performance.now() - t) / 1000).toFixed(2).padStart(7)} s   cpu ${((cpu.user + cpu.system) / 1e6).toFixed(2).padStart(7)} s`);
+  return value;
+}
+
 const n = size * size;
 const total = { c: process.cpuUsage(), t: performance.now() };
 const field = stage('face flows + tracking field', () => {
   const input = trackingInputFromSystem(system, head, { wellIds: model.wells.map((w) => w.id), thickness: THICKNESS, porosity: 0.2 });
-  return { field: buildTrackingField(input), stopLabel: input.stopLabel };
+  return { input, field: buildTrackingField(input), stopLabel: input.stopLabel };
 });
-const ends = stage('end rasters (every active cell)', () => endRasters(field.field, { exactTime: captureTimes[1], potential: head }));
+const ends = await stageAsync(`end rasters, ${workers} worker(s)`, () =>
+  endRastersInWorkers(field.input, { exactTime: captureTimes[1], potential: head }, workers),
+);
 const capture = stage('zones + 360 backward pathlines', () =>
   captureZones(field.field, field.stopLabel, { captureTimes, particlesPerWell: 36, rasters: { potential: head } }, ends),
 );

@@ -14,7 +14,7 @@ export {
   END_STALLED,
   type EndReason,
 } from './pollock.js';
-export { endRasters, trackCellCentres, trackSeeds, seedOrder, NO_LABEL, type EndRasters, type EndRasterOptions, type SeedWindow } from './rasters.js';
+export { endRasters, trackCellCentres, trackSeeds, trackBand, bandRows, seedOrder, SEED_BANDS, NO_LABEL, type EndRasters, type EndRasterOptions, type SeedWindow } from './rasters.js';
 export {
   captureZones,
   checkCaptureTimes,
@@ -30,3 +30,4 @@ export {
 } from './capture.js';
 export { trackPoints, locatePoint, type TrackPoint, type PointTrack, type PointTrackOptions } from './points.js';
 export { trackingInputFromSystem, type SystemTrackingOptions } from './fromSystem.js';
+export { endRastersInWorkers, trackingWorkersAvailable } from './workers.js';

@@ -107,13 +107,38 @@ export function seedOrder(potential: Float64Array, nx: number, rowStart: number,
   return order;
 }
 
+/**
+ * Seeds are tracked in this many bands of rows, each with a fresh FaceCache, so that bands can run in worker
+ * threads (workers.ts) and give the same rasters, value for value, as one thread: the result never depends on the
+ * number of workers. (Splitting hardly changes the work: upstream tiles of each band record what its later tracks
+ * need.)
+ */
+export const SEED_BANDS = 4;
+
+/** Rows [start, end) of band k of `bands` on a grid of ny rows. */
+export function bandRows(ny: number, k: number, bands = SEED_BANDS): [number, number] {
+  const size = Math.ceil(ny / bands);
+  return [Math.min(ny, k * size), Math.min(ny, (k + 1) * size)];
+}
+
+/** Forward tracks from the centres of band k's cells into `out` (the band's rows only); returns stalled tracks. */
+export function trackBand(field: TrackingField, k: number, out: EndRasters, cache: FaceCache | null, options: EndRasterOptions = {}): number {
+  const [rowStart, rowEnd] = bandRows(field.ny, k);
+  cache?.reset();
+  const order = options.potential ? seedOrder(options.potential, field.nx, rowStart, rowEnd) : null;
+  return trackCellCentres(field, rowStart, rowEnd, out, cache, order);
+}
+
 /** Forward tracks from every active cell centre of the grid, in this thread. */
 export function endRasters(field: TrackingField, options: EndRasterOptions = {}): EndRasters {
-  const n = field.nx * field.ny;
-  const out: EndRasters = { label: new Int32Array(n), time: new Float64Array(n), stalled: 0 };
+  const { nx, ny } = field;
+  const out: EndRasters = { label: new Int32Array(nx * ny), time: new Float64Array(nx * ny), stalled: 0 };
   const cache = options.exact ? null : new FaceCache(field, options);
-  const order = options.potential ? seedOrder(options.potential, field.nx, 0, field.ny) : null;
-  out.stalled = trackCellCentres(field, 0, field.ny, out, cache, order);
+  for (let k = 0; k < SEED_BANDS; k++) {
+    const [rowStart, rowEnd] = bandRows(ny, k);
+    const band = { label: out.label.subarray(rowStart * nx, rowEnd * nx), time: out.time.subarray(rowStart * nx, rowEnd * nx), stalled: 0 };
+    out.stalled += trackBand(field, k, band, cache, options);
+  }
   return out;
 }
 
