@@ -21,7 +21,6 @@ import { leanestMethod, solverBytesPerCell } from './solvers/registry.js';
 import { checkMemoryBudget } from './memory.js';
 import {
   prepareSolver,
-  previousResultFiles,
   resultBundle,
   resultProblem,
   solveReport,
@@ -94,6 +93,8 @@ export interface ComparisonResult {
   variants: VariantComparison[];
   receptors: ReceptorInput[];
   warnings: string[];
+  /** Every file the baseline and the variants read (a result folder must hold none of them). */
+  inputFiles: string[];
 }
 
 /** Read a scenario file (or take a loaded one) and compare its baseline with every variant. */
@@ -212,7 +213,8 @@ export function compareModels(
       compared.push(analyseVariant(v, result, baseResult, receptors, receptorCells));
     }
   }
-  return { baseline: baseResult, baselineProblem, variants: compared, receptors, warnings };
+  const inputFiles = [...new Set([...baseline.inputFiles, ...variants.flatMap((v) => v.model.inputFiles)])];
+  return { baseline: baseResult, baselineProblem, variants: compared, receptors, warnings, inputFiles };
 }
 
 /**
@@ -456,10 +458,10 @@ export async function writeComparisonResults(
   outDir: string,
   options: { overwrite?: boolean } & ProductOptions = {},
 ): Promise<ComparisonSummaryJson> {
-  await prepareResultFolder(outDir, Boolean(options.overwrite));
-  const previous = options.overwrite ? await previousResultFiles(outDir) : [];
+  const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), c.inputFiles);
+  for (const note of folder.notes) if (!c.warnings.includes(note)) c.warnings.push(note);
   const { files, summary } = comparisonFiles(c, options);
-  await writeResultFiles(outDir, files, previous);
+  await writeResultFiles(folder, files);
   return summary;
 }
 

@@ -2,8 +2,6 @@
  * The one-way flow of a run: load -> assemble -> solve -> analyse -> write.
  * Library users call these steps directly; the CLI only parses arguments and formats what they return.
  */
-import { readFile } from 'node:fs/promises';
-import { join } from 'node:path';
 import { assembleSystem, headsFromSolution, type FlowSystem } from './discretisation/assemble.js';
 import { waterBudget, type WaterBudget } from './analysis/budget.js';
 import { observationResults, wellResults, locateObservations, locateReceptors, type ObservationResult, type WellResult } from './analysis/points.js';
@@ -18,7 +16,7 @@ import { checkMemoryBudget } from './memory.js';
 import type { Solver, SolveStats } from './solvers/types.js';
 import { encodeFloat32GeoTiff } from './raster/write.js';
 import { buildSummary, budgetCsv, convergenceCsv, type SummaryJson } from './output/summary.js';
-import { prepareResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './output/resultFolder.js';
+import { prepareResultFolder, previousResultFiles, writeResultFiles, RESULT_MARKER, type OutputFile } from './output/resultFolder.js';
 import { CAUTION } from './caution.js';
 import { reportRun, solveProducts, type ProductOptions, type RenderedMap } from './output/products.js';
 import { renderReportHtml } from './report/index.js';
@@ -276,7 +274,9 @@ export async function writeSolveResults(
   options: { overwrite?: boolean } & ProductOptions = {},
 ): Promise<SummaryJson> {
   const t = now();
-  const previous = await previousResultFiles(outDir);
+  // Refuses a folder holding inputs or (without overwrite) earlier results; locks it; notes say what it cleaned up.
+  const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), result.model.inputFiles);
+  for (const note of folder.notes) if (!result.warnings.includes(note)) result.warnings.push(note);
   const { files, maps } = resultBundle(result, '', options);
   const withReport = maps.length > 0;
   const names = [...files.map((f) => f.name), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
@@ -284,21 +284,10 @@ export async function writeSolveResults(
   const summary = buildSummary(result, names, VERSION);
   if (withReport) files.push({ name: REPORT_FILE, bytes: solveReport(result, summary, maps) });
   files.push({ name: RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
-  await writeResultFiles(outDir, files, options.overwrite ? previous : []);
+  await writeResultFiles(folder, files);
   return summary;
 }
 
 export const REPORT_FILE = 'report.html';
 
-export { prepareResultFolder };
-
-/** Files listed by an earlier summary.json in the folder (removed on overwrite so old and new never mix). */
-export async function previousResultFiles(outDir: string): Promise<string[]> {
-  try {
-    const text = await readFile(join(outDir, RESULT_MARKER), 'utf8');
-    const files = (JSON.parse(text) as { files?: unknown }).files;
-    return Array.isArray(files) ? files.filter((f): f is string => typeof f === 'string' && !f.includes('..')) : [];
-  } catch {
-    return [];
-  }
-}
+export { prepareResultFolder, previousResultFiles };

@@ -2,7 +2,7 @@
  * The command-line shell: parse arguments, call the library, format its result, return an exit code.
  * Exit codes (../shared/spec/interface.md): 0 done, 2 bad input or usage, 3 solver did not reach the tolerance, 1 anything else.
  */
-import { existsSync, rmSync } from 'node:fs';
+import { existsSync } from 'node:fs';
 import { dirname, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { Command, CommanderError, Option } from 'commander';
@@ -16,8 +16,8 @@ import { formatSummary } from '../output/summary.js';
 import { solveModelInWorker, workerAvailable } from '../robustness/solveInWorker.js';
 import type { ProductOptions } from '../output/products.js';
 import { formatComparison } from '../output/comparison.js';
-import { comparisonProblem, compareScenario, prepareComparison, resolveVariants, writeComparisonResults } from '../compare.js';
-import { removeTemporaryFilesSync } from '../output/resultFolder.js';
+import { comparisonProblem, compareModels, prepareComparison, resolveVariants, writeComparisonResults } from '../compare.js';
+import { abandonResultFoldersSync } from '../output/resultFolder.js';
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
 
@@ -114,8 +114,9 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
   progress?.({ stage: 'load', message: `reading ${scenario}` });
   const { model } = await loadScenario(scenario);
   const timings: Record<string, number> = { load: (performance.now() - t0) / 1000 };
-  // Check the output folder before the long work.
-  await prepareResultFolder(outDir, Boolean(flags.overwrite));
+  // Check (and lock) the output folder before the long work.
+  const folder = await prepareResultFolder(outDir, Boolean(flags.overwrite), model.inputFiles);
+  printNotes(folder.notes, io);
   // The solver runs in a worker thread so that Ctrl-C / SIGTERM are answered at once (see installSignalHandlers).
   const result = workerAvailable() ? await solveModelInWorker(model, options, timings) : solveModel(model, options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
@@ -154,9 +155,13 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
       hint: 'add e.g. "variants": [{ "name": "more-pumping", "wells": [{ "id": "W1", "rate": -800 }] }], or use "piezomap solve"',
     });
   }
-  // Check the output folder before the long work.
-  await prepareResultFolder(outDir, Boolean(flags.overwrite));
-  const comparison = await compareScenario(loaded, options);
+  // Every variant is resolved first, so that the folder check knows all inputs; then the folder is checked (and
+  // locked) before the long work.
+  const variants = await resolveVariants(loaded.model, loaded.raw);
+  const inputs = [...loaded.model.inputFiles, ...variants.flatMap((v) => v.model.inputFiles)];
+  const folder = await prepareResultFolder(outDir, Boolean(flags.overwrite), inputs);
+  printNotes(folder.notes, io);
+  const comparison = compareModels(loaded.model, variants, options);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();
@@ -168,6 +173,11 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
     return exitCodeFor(problem);
   }
   return 0;
+}
+
+/** What preparing the result folder did (a stale lock taken over, leftovers removed); also recorded in summary.json. */
+function printNotes(notes: string[], io: CliIO): void {
+  for (const note of notes) io.stderr(`piezomap: note: ${note}\n`);
 }
 
 async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Promise<number> {
@@ -255,6 +265,8 @@ export async function main(argv: string[], io: CliIO = defaultIO): Promise<numbe
     return exitCode;
   } catch (error) {
     clearProgress();
+    // A run that failed after preparing its result folder leaves no lock and no staging folder behind.
+    abandonResultFoldersSync();
     if (error instanceof CommanderError) {
       if (error.code === 'commander.helpDisplayed' || error.code === 'commander.version' || error.code === 'commander.help') return 0;
       return 2;
@@ -275,8 +287,14 @@ export async function main(argv: string[], io: CliIO = defaultIO): Promise<numbe
 export function installSignalHandlers(): void {
   for (const signal of ['SIGINT', 'SIGTERM'] as const) {
     process.on(signal, () => {
-      removeTemporaryFilesSync(rmSync);
-      process.stderr.write(`\npiezomap: interrupted by ${signal}; no result files were completed, temporary files removed\n`);
+      // Results are put in place in one synchronous block (src/output/resultFolder.ts), so a signal lands either
+      // before it (the folder keeps its earlier results) or after it (the new results are complete).
+      const { committed } = abandonResultFoldersSync();
+      process.stderr.write(
+        committed.length
+          ? `\npiezomap: interrupted by ${signal}; the results in ${committed.join(', ')} were complete before it\n`
+          : `\npiezomap: interrupted by ${signal}; no result files were completed, temporary files removed; earlier results, if any, are unchanged\n`,
+      );
       process.exit(signal === 'SIGINT' ? 130 : 143);
     });
   }
