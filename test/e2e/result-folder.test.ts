@@ -1,0 +1,245 @@
+/**
+ * The result folder under faults, through the built CLI as separate processes (node bin/piezomap.js), as a user meets
+ * them (issue 9, items 5-8):
+ * - SIGKILL at seeded random instants of `solve --overwrite`: after every kill the folder holds a complete set (every
+ *   file summary.json lists is there and belongs to the run it describes, nothing else but piezomap's recognised
+ *   leftovers) or a commit in progress that the next run finishes; the next run cleans up and says so;
+ * - SIGINT while an overwrite is under way: the earlier results stay complete;
+ * - two runs into one folder at once: the second is refused naming the first; after the first is killed its stale
+ *   lock is taken over with a note;
+ * - a folder holding the run's inputs is refused and the inputs stay byte for byte.
+ * The invariant is common practice for atomic replacement (stage completely, switch by rename).
+ */
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { spawn } from 'node:child_process';
+import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, watch, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join, resolve } from 'node:path';
+import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { seededUniform } from '../../src/random.js';
+import { COMMIT_FOLDER, LOCK_FILE, STAGING_FOLDER } from '../../src/output/resultFolder.js';
+import { filesBelow, folderState } from '../helpers/resultSet.js';
+import { testGrid } from '../helpers/model.js';
+
+const BIN = resolve(__dirname, '../../bin/piezomap.js');
+/** The kill loop's time budget: enough kills to cover startup, solve, staging and commit, short enough for the suite. */
+const LOOP_SECONDS = Number(process.env.KILL_LOOP_SECONDS ?? 22);
+const SEED = Number(process.env.KILL_LOOP_SEED ?? 20260901);
+
+let dir: string;
+const scenario = (run: 'A' | 'B') => join(dir, 'inputs', `${run}.json`);
+const ref = (run: 'A' | 'B') => join(dir, `ref-${run}`);
+
+interface Run {
+  code: number | null;
+  signal: NodeJS.Signals | null;
+  stdout: string;
+  stderr: string;
+  seconds: number;
+  pid: number;
+}
+
+/** Start the CLI; `kill(child)` may arm a signal. */
+function cli(args: string[], arm?: (child: ReturnType<typeof spawn>) => void): Promise<Run> {
+  return new Promise((done) => {
+    const t0 = performance.now();
+    const child = spawn(process.execPath, [BIN, ...args], { env: { ...process.env, FORCE_COLOR: '0' } });
+    let stdout = '';
+    let stderr = '';
+    child.stdout.on('data', (d) => (stdout += d));
+    child.stderr.on('data', (d) => (stderr += d));
+    child.on('close', (code, signal) => done({ code, signal, stdout, stderr, seconds: (performance.now() - t0) / 1000, pid: child.pid! }));
+    arm?.(child);
+  });
+}
+
+beforeAll(async () => {
+  dir = mkdtempSync(join(tmpdir(), 'piezomap-folder-e2e-'));
+  mkdirSync(join(dir, 'inputs'));
+  const n = 60;
+  writeFileSync(join(dir, 'inputs', 'k.tif'), encodeFloat32GeoTiff(testGrid(n, n, 10), new Float64Array(n * n).fill(3)));
+  // Two runs whose every result file differs: other fixed heads, other titles.
+  for (const [run, west] of [['A', 20], ['B', 26]] as const) {
+    writeFileSync(
+      scenario(run),
+      JSON.stringify({ title: `run ${run}`, aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ edge: 'west', head: west }, { edge: 'east', head: 10 }], recharge: 0.001 }),
+    );
+  }
+  for (const run of ['A', 'B'] as const) {
+    const r = await cli(['solve', scenario(run), '-o', ref(run), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+  }
+}, 120_000);
+afterAll(() => rmSync(dir, { recursive: true, force: true }));
+
+/** summary.json and report.html carry timings; every other file of a run is the same byte for byte on every run. */
+function belongs(name: string, bytes: Buffer, run: string): boolean {
+  const other = run === 'A' ? 'B' : 'A';
+  if (name === 'summary.json' || name === 'report.html') {
+    const text = bytes.toString();
+    return text.includes(`run ${run}`) && !text.includes(`run ${other}`);
+  }
+  const expected = join(ref(run as 'A' | 'B'), name);
+  return existsSync(expected) && bytes.equals(readFileSync(expected));
+}
+const runOf = (summary: Record<string, unknown>) => (summary.title === 'run A' ? 'A' : summary.title === 'run B' ? 'B' : `unknown (${String(summary.title)})`);
+const stateOf = (out: string) => folderState(out, runOf, belongs);
+
+describe('SIGKILL at random instants of solve --overwrite', () => {
+  it(`leaves a complete old or new set (or a commit the next run finishes) after every kill; the next run cleans up`, async () => {
+    const out = join(dir, 'killed');
+    const first = await cli(['solve', scenario('A'), '-o', out, '--quiet']);
+    expect(first.code, first.stderr).toBe(0);
+    const typical = first.seconds;
+    const random = seededUniform(SEED);
+    const tally = { kills: 0, finishedFirst: 0, old: 0, new: 0, inProgress: 0, lockLeft: 0, stagingLeft: 0, notesSeen: 0 };
+    let last: 'A' | 'B' = 'A';
+    const start = performance.now();
+    for (let i = 0; (performance.now() - start) / 1000 < LOOP_SECONDS || i < 6; i++) {
+      const run: 'A' | 'B' = last === 'A' ? 'B' : 'A';
+      // Half the kills anywhere in the run; half after the staging folder appears, within about the time staging and
+      // the commit take (the instants where old and new results could mix).
+      const anywhere = random() < 0.5;
+      const delayMs = anywhere ? random() * typical * 1100 : random() * 120;
+      const r = await cli(['solve', scenario(run), '-o', out, '--overwrite', '--quiet'], (child) => {
+        const kill = () => child.kill('SIGKILL');
+        if (anywhere) {
+          setTimeout(kill, delayMs);
+          return;
+        }
+        let armed = false;
+        const watcher = watch(out, (_event, name) => {
+          if (!armed && name === STAGING_FOLDER) {
+            armed = true;
+            setTimeout(kill, delayMs);
+          }
+        });
+        child.on('close', () => watcher.close());
+      });
+      if (r.stderr.includes('piezomap: note:')) tally.notesSeen++;
+      if (r.signal === 'SIGKILL') tally.kills++;
+      else {
+        tally.finishedFirst++;
+        expect(r.code, r.stderr).toBe(0);
+      }
+      const state = (() => {
+        try {
+          return stateOf(out);
+        } catch (error) {
+          throw new Error(`kill ${i} (${anywhere ? 'anywhere' : 'after staging began'}, ${delayMs.toFixed(0)} ms): ${(error as Error).message}`);
+        }
+      })();
+      expect(state.kind, `kill ${i}`).not.toBe('empty');
+      if (state.kind === 'complete') {
+        if (state.run === run) tally.new++;
+        else tally.old++;
+        last = state.run as 'A' | 'B';
+      } else tally.inProgress++;
+      if (existsSync(join(out, LOCK_FILE))) tally.lockLeft++;
+      if (existsSync(join(out, STAGING_FOLDER)) || existsSync(join(out, COMMIT_FOLDER))) tally.stagingLeft++;
+    }
+    // The next run, uninterrupted, finds whatever the last kill left, cleans it up and says so.
+    const leftovers = filesBelow(out).filter((f) => f.startsWith('.'));
+    const final = await cli(['solve', scenario('A'), '-o', out, '--overwrite']);
+    expect(final.code, final.stderr).toBe(0);
+    expect(stateOf(out)).toMatchObject({ kind: 'complete', run: 'A' });
+    expect(filesBelow(out).filter((f) => f.startsWith('.'))).toEqual([]);
+    if (leftovers.some((f) => f !== LOCK_FILE)) {
+      expect(final.stderr).toMatch(/piezomap: note: (removed \d+ leftover|the results of an earlier run)/);
+      const summary = JSON.parse(readFileSync(join(out, 'summary.json'), 'utf8')) as { warnings: string[] };
+      expect(summary.warnings.join('\n')).toMatch(/leftover temporary|were completed from its staged copy/);
+    }
+    if (leftovers.includes(LOCK_FILE)) expect(final.stderr).toMatch(/took over the stale lock of an earlier run/);
+    console.log(`kill loop (seed ${SEED}, ${((performance.now() - start) / 1000).toFixed(1)} s, typical run ${typical.toFixed(2)} s): ${JSON.stringify(tally)}`);
+    expect(tally.kills).toBeGreaterThanOrEqual(4);
+    // Kills landed both before and after the new results were in place.
+    expect(tally.old).toBeGreaterThan(0);
+  }, 240_000);
+});
+
+describe('SIGINT while an overwrite is under way', () => {
+  it('keeps the earlier results complete and says that no new result was completed', async () => {
+    const out = join(dir, 'sigint');
+    const first = await cli(['solve', scenario('A'), '-o', out, '--quiet']);
+    expect(first.code, first.stderr).toBe(0);
+    let sent = false;
+    const r = await cli(['solve', scenario('B'), '-o', out, '--overwrite', '--quiet'], (child) => {
+      const watcher = watch(out, (_event, name) => {
+        if (!sent && name === STAGING_FOLDER) {
+          sent = true;
+          child.kill('SIGINT');
+        }
+      });
+      child.on('close', () => watcher.close());
+    });
+    const state = stateOf(out);
+    expect(state.kind).toBe('complete');
+    if (r.code === 130) {
+      expect(r.stderr).toMatch(/interrupted by SIGINT; no result files were completed/);
+      expect(state).toMatchObject({ run: 'A' });
+    } else {
+      // The signal came after the results were in place (a fast machine): the message says so.
+      expect(state).toMatchObject({ run: 'B' });
+    }
+    // No staging folder and no lock remain after a signal.
+    expect(filesBelow(out).filter((f) => f.startsWith('.'))).toEqual([]);
+  }, 120_000);
+});
+
+describe('two runs into one folder at once', () => {
+  it('refuses the second naming the first; a killed holder\'s stale lock is taken over with a note', async () => {
+    // A solve that runs for minutes (Jacobi on 300 x 300 cells to 1e-14), as in interrupt.test.ts.
+    const slowDir = join(dir, 'slow');
+    mkdirSync(slowDir);
+    const n = 300;
+    writeFileSync(join(slowDir, 'k.tif'), encodeFloat32GeoTiff(testGrid(n, n, 10), new Float64Array(n * n).fill(3)));
+    writeFileSync(
+      join(slowDir, 'slow.json'),
+      JSON.stringify({ title: 'slow', aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ edge: 'west', head: 20 }, { edge: 'east', head: 10 }], solver: { method: 'jacobi', tolerance: 1e-14, maxIterations: 100000000 } }),
+    );
+    const out = join(dir, 'shared');
+    let holder: ReturnType<typeof spawn> | undefined;
+    const slow = cli(['solve', join(slowDir, 'slow.json'), '-o', out, '--quiet'], (child) => (holder = child));
+    for (let i = 0; i < 600 && !existsSync(join(out, LOCK_FILE)); i++) await new Promise((r) => setTimeout(r, 50));
+    expect(existsSync(join(out, LOCK_FILE)), 'the first run took the lock').toBe(true);
+    const second = await cli(['solve', scenario('A'), '-o', out, '--quiet']);
+    expect(second.code, second.stderr).toBe(2);
+    expect(second.stderr).toMatch(new RegExp(`output folder .*shared is in use by another piezomap run \\(PID ${holder!.pid} on host `));
+    expect(second.stderr).not.toMatch(/\n\s+at /);
+    holder!.kill('SIGKILL');
+    expect((await slow).signal).toBe('SIGKILL');
+    // The killed run's lock stays behind; the next run sees its holder is gone, takes over and says so.
+    expect(existsSync(join(out, LOCK_FILE))).toBe(true);
+    const third = await cli(['solve', scenario('A'), '-o', out]);
+    expect(third.code, third.stderr).toBe(0);
+    expect(third.stderr).toMatch(new RegExp(`note: took over the stale lock of an earlier run into .*shared \\(PID ${holder!.pid} on host .*no longer running\\)`));
+    const summary = JSON.parse(readFileSync(join(out, 'summary.json'), 'utf8')) as { warnings: string[] };
+    expect(summary.warnings.join('\n')).toMatch(new RegExp(`stale lock .*PID ${holder!.pid}`));
+    expect(stateOf(out)).toMatchObject({ kind: 'complete', run: 'A' });
+    expect(existsSync(join(out, LOCK_FILE))).toBe(false);
+  }, 180_000);
+});
+
+describe('a result folder holding the inputs', () => {
+  it("refuses -o set to the scenario's own folder, naming the input, and leaves every input byte for byte", async () => {
+    const own = join(dir, 'own');
+    mkdirSync(own);
+    const n = 20;
+    const headBytes = encodeFloat32GeoTiff(testGrid(n, n, 10), new Float64Array(n * n).map((_, p) => (p % n === 0 ? 20 : Number.NaN)));
+    writeFileSync(join(own, 'k.tif'), encodeFloat32GeoTiff(testGrid(n, n, 10), new Float64Array(n * n).fill(3)));
+    writeFileSync(join(own, 'head.tif'), headBytes);
+    writeFileSync(join(own, 's.json'), JSON.stringify({ title: 'own', aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ raster: 'head.tif' }, { edge: 'east', head: 10 }] }));
+    const before = filesBelow(own).map((f) => [f, readFileSync(join(own, f))] as const);
+    for (const flags of [[], ['--overwrite']]) {
+      const r = await cli(['solve', join(own, 's.json'), '-o', own, '--quiet', ...flags]);
+      expect(r.code, r.stderr).toBe(2);
+      expect(r.stderr).toMatch(/output folder .*own holds 3 inputs of this run \(.*s\.json, .*k\.tif, .*head\.tif\)/);
+      expect(filesBelow(own)).toEqual(before.map(([f]) => f));
+      for (const [f, bytes] of before) expect(readFileSync(join(own, f)).equals(bytes), f).toBe(true);
+    }
+    // A sub-folder of the scenario's folder is fine.
+    const r = await cli(['solve', join(own, 's.json'), '-o', join(own, 'results'), '--quiet']);
+    expect(r.code, r.stderr).toBe(0);
+    expect(readFileSync(join(own, 'head.tif')).equals(headBytes)).toBe(true);
+  }, 120_000);
+});
