@@ -1,10 +1,11 @@
 /**
  * The result folder under faults, through the built CLI as separate processes (node bin/piezomap.js), as a user meets
  * them (issue 9, items 5-8):
- * - SIGKILL at seeded random instants of `solve --overwrite`: after every kill the folder holds a complete set (every
- *   file summary.json lists is there and belongs to the run it describes, nothing else but piezomap's recognised
- *   leftovers) or a commit in progress that the next run finishes; the next run cleans up and says so;
- * - SIGINT while an overwrite is under way: the earlier results stay complete;
+ * - SIGKILL (and some SIGINT) at seeded random instants of `solve --overwrite`, most of them while it writes: after
+ *   every signal the folder holds a complete set (every file summary.json lists is there and belongs to the run it
+ *   describes, nothing else but piezomap's recognised leftovers) or a commit in progress that the next run finishes;
+ *   after SIGINT nothing of the run's own is left and its message matches what is there; the next run cleans up and
+ *   says so;
  * - two runs into one folder at once: the second is refused naming the first; after the first is killed its stale
  *   lock is taken over with a note;
  * - a folder holding the run's inputs is refused and the inputs stay byte for byte.
@@ -85,51 +86,69 @@ function belongs(name: string, bytes: Buffer, run: string): boolean {
 const runOf = (summary: Record<string, unknown>) => (summary.title === 'run A' ? 'A' : summary.title === 'run B' ? 'B' : `unknown (${String(summary.title)})`);
 const stateOf = (out: string) => folderState(out, runOf, belongs);
 
-describe('SIGKILL at random instants of solve --overwrite', () => {
-  it(`leaves a complete old or new set (or a commit the next run finishes) after every kill; the next run cleans up`, async () => {
+/**
+ * Arm `onWrite` for the moment the run starts writing into `out`: the first entry it creates there that is not its
+ * lock (the staging folder; any temporary file of a writer that has none). The time from spawn is passed on.
+ */
+function onFirstWrite(out: string, child: ReturnType<typeof spawn>, onWrite: () => void): void {
+  let fired = false;
+  const watcher = watch(out, (_event, name) => {
+    if (fired || !name || name.startsWith(LOCK_FILE) || !existsSync(join(out, name))) return;
+    fired = true;
+    onWrite();
+  });
+  child.on('close', () => watcher.close());
+}
+
+describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
+  it(`leaves a complete old or new set (or a commit the next run finishes) after every signal; the next run cleans up`, async () => {
     const out = join(dir, 'killed');
-    const first = await cli(['solve', scenario('A'), '-o', out, '--quiet']);
+    // The first run measures how long a run takes, and how long from its first write to its end.
+    let wroteAt = NaN;
+    const t0 = performance.now();
+    mkdirSync(out);
+    const first = await cli(['solve', scenario('A'), '-o', out, '--quiet'], (child) => onFirstWrite(out, child, () => (wroteAt = performance.now())));
     expect(first.code, first.stderr).toBe(0);
-    const typical = first.seconds;
+    const typicalMs = first.seconds * 1000;
+    const writingMs = Number.isFinite(wroteAt) ? Math.max(5, first.seconds * 1000 - (wroteAt - t0)) : 100;
     const random = seededUniform(SEED);
-    const tally = { kills: 0, finishedFirst: 0, old: 0, new: 0, inProgress: 0, lockLeft: 0, stagingLeft: 0, notesSeen: 0 };
+    const tally = { signals: 0, sigint: 0, finishedFirst: 0, old: 0, new: 0, inProgress: 0, lockLeft: 0, stagingLeft: 0, notesSeen: 0 };
     let last: 'A' | 'B' = 'A';
     const start = performance.now();
     for (let i = 0; (performance.now() - start) / 1000 < LOOP_SECONDS || i < 6; i++) {
       const run: 'A' | 'B' = last === 'A' ? 'B' : 'A';
-      // Half the kills anywhere in the run; half after the staging folder appears, within about the time staging and
-      // the commit take (the instants where old and new results could mix).
-      const anywhere = random() < 0.5;
-      const delayMs = anywhere ? random() * typical * 1100 : random() * 120;
+      const signal: NodeJS.Signals = random() < 0.25 ? 'SIGINT' : 'SIGKILL';
+      // A third of the signals anywhere in the run; the others after the run began writing, within 1.2 times the time
+      // writing took in the first run (the instants where old and new results could mix).
+      const anywhere = random() < 1 / 3;
+      const delayMs = anywhere ? random() * typicalMs * 1.1 : random() * writingMs * 1.2;
       const r = await cli(['solve', scenario(run), '-o', out, '--overwrite', '--quiet'], (child) => {
-        const kill = () => child.kill('SIGKILL');
-        if (anywhere) {
-          setTimeout(kill, delayMs);
-          return;
-        }
-        let armed = false;
-        const watcher = watch(out, (_event, name) => {
-          if (!armed && name === STAGING_FOLDER) {
-            armed = true;
-            setTimeout(kill, delayMs);
-          }
-        });
-        child.on('close', () => watcher.close());
+        const send = () => setTimeout(() => child.kill(signal), delayMs);
+        if (anywhere) send();
+        else onFirstWrite(out, child, send);
       });
+      const what = `signal ${i} (${signal}, ${anywhere ? 'anywhere' : 'after writing began'}, ${delayMs.toFixed(0)} ms)`;
       if (r.stderr.includes('piezomap: note:')) tally.notesSeen++;
-      if (r.signal === 'SIGKILL') tally.kills++;
-      else {
-        tally.finishedFirst++;
-        expect(r.code, r.stderr).toBe(0);
-      }
       const state = (() => {
         try {
           return stateOf(out);
         } catch (error) {
-          throw new Error(`kill ${i} (${anywhere ? 'anywhere' : 'after staging began'}, ${delayMs.toFixed(0)} ms): ${(error as Error).message}`);
+          throw new Error(`${what}: ${(error as Error).message}`);
         }
       })();
-      expect(state.kind, `kill ${i}`).not.toBe('empty');
+      expect(state.kind, what).not.toBe('empty');
+      if (r.signal === 'SIGKILL') tally.signals++;
+      else if (r.code === 130) {
+        tally.signals++;
+        tally.sigint++;
+        // A signal the process answers leaves nothing of its own behind, and its message matches what is there.
+        expect(filesBelow(out).filter((f) => f.startsWith('.')), what).toEqual([]);
+        if (/no result files were completed/.test(r.stderr)) expect(state, what).toMatchObject({ kind: 'complete', run: last });
+        else expect(r.stderr, what).toMatch(/were complete before it/);
+      } else {
+        tally.finishedFirst++;
+        expect(r.code, r.stderr).toBe(0);
+      }
       if (state.kind === 'complete') {
         if (state.run === run) tally.new++;
         else tally.old++;
@@ -150,40 +169,13 @@ describe('SIGKILL at random instants of solve --overwrite', () => {
       expect(summary.warnings.join('\n')).toMatch(/leftover temporary|were completed from its staged copy/);
     }
     if (leftovers.includes(LOCK_FILE)) expect(final.stderr).toMatch(/took over the stale lock of an earlier run/);
-    console.log(`kill loop (seed ${SEED}, ${((performance.now() - start) / 1000).toFixed(1)} s, typical run ${typical.toFixed(2)} s): ${JSON.stringify(tally)}`);
-    expect(tally.kills).toBeGreaterThanOrEqual(4);
-    // Kills landed both before and after the new results were in place.
+    console.log(
+      `signal loop (seed ${SEED}, ${((performance.now() - start) / 1000).toFixed(1)} s, run ${typicalMs.toFixed(0)} ms, writing ${writingMs.toFixed(0)} ms): ${JSON.stringify(tally)}`,
+    );
+    expect(tally.signals).toBeGreaterThanOrEqual(4);
+    // Signals landed before the new results were in place.
     expect(tally.old).toBeGreaterThan(0);
   }, 240_000);
-});
-
-describe('SIGINT while an overwrite is under way', () => {
-  it('keeps the earlier results complete and says that no new result was completed', async () => {
-    const out = join(dir, 'sigint');
-    const first = await cli(['solve', scenario('A'), '-o', out, '--quiet']);
-    expect(first.code, first.stderr).toBe(0);
-    let sent = false;
-    const r = await cli(['solve', scenario('B'), '-o', out, '--overwrite', '--quiet'], (child) => {
-      const watcher = watch(out, (_event, name) => {
-        if (!sent && name === STAGING_FOLDER) {
-          sent = true;
-          child.kill('SIGINT');
-        }
-      });
-      child.on('close', () => watcher.close());
-    });
-    const state = stateOf(out);
-    expect(state.kind).toBe('complete');
-    if (r.code === 130) {
-      expect(r.stderr).toMatch(/interrupted by SIGINT; no result files were completed/);
-      expect(state).toMatchObject({ run: 'A' });
-    } else {
-      // The signal came after the results were in place (a fast machine): the message says so.
-      expect(state).toMatchObject({ run: 'B' });
-    }
-    // No staging folder and no lock remain after a signal.
-    expect(filesBelow(out).filter((f) => f.startsWith('.'))).toEqual([]);
-  }, 120_000);
 });
 
 describe('two runs into one folder at once', () => {

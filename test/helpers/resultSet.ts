@@ -22,7 +22,8 @@ export function filesBelow(folder: string): string[] {
     .sort();
 }
 
-const recognised = (name: string) => name === LOCK_FILE || name.startsWith(`${STAGING_FOLDER}/`) || name.startsWith(`${COMMIT_FOLDER}/`);
+/** The lock, and the lock file being made (`.piezomap-lock-new-PID-...`, when a run is killed while taking the lock). */
+const recognised = (name: string) => name.startsWith(LOCK_FILE) || name.startsWith(`${STAGING_FOLDER}/`) || name.startsWith(`${COMMIT_FOLDER}/`);
 
 /**
  * Classify a folder; throw when it breaks the invariant. `runOf(summary)` names the run a summary.json describes;
