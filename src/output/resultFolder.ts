@@ -448,6 +448,40 @@ function processAlive(pid: number): boolean {
   }
 }
 
+/**
+ * When a running process started (ms since the epoch), from Linux's /proc (start time in clock ticks since boot,
+ * field 22 of /proc/PID/stat, at the usual 100 ticks per second; boot time from /proc/stat); null elsewhere.
+ */
+function processStartMs(pid: number): number | null {
+  try {
+    const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+    // Fields after the command name (which may hold spaces and parentheses) start with field 3.
+    const fields = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+    const ticks = Number(fields[22 - 3]);
+    const boot = /^btime (\d+)$/m.exec(readFileSync('/proc/stat', 'utf8'));
+    if (!boot || !Number.isFinite(ticks)) return null;
+    return (Number(boot[1]) + ticks / 100) * 1000;
+  } catch {
+    return null;
+  }
+}
+
+/**
+ * Why a lock's holder is surely gone, or null when it may still run. Only this host's processes can be checked: the
+ * PID does not run, or the process with that PID started after the lock was taken (the PID was reused, e.g. after
+ * a restart of the machine).
+ */
+function staleReason(holder: LockInfo): string | null {
+  if (holder.host !== hostname()) return null;
+  if (holder.pid === process.pid) return 'no longer running';
+  if (!processAlive(holder.pid)) return 'no longer running';
+  const started = processStartMs(holder.pid);
+  const acquired = Date.parse(holder.acquired);
+  // Two seconds of slack for clock-tick rounding.
+  if (started !== null && Number.isFinite(acquired) && started > acquired + 2000) return 'its PID now belongs to a process started later';
+  return null;
+}
+
 function readLock(path: string): LockInfo | null {
   try {
     const info = JSON.parse(readFileSync(path, 'utf8')) as Partial<LockInfo>;
@@ -489,7 +523,7 @@ function acquireLock(folder: ResultFolder): void {
         if ((error as NodeJS.ErrnoException).code !== 'EEXIST') throw error;
       }
       const holder = readLock(lockPath);
-      const stale = holder === null ? 'damaged' : holder.host === hostname() && (holder.pid === process.pid || !processAlive(holder.pid)) ? 'gone' : null;
+      const stale = holder === null ? 'damaged' : staleReason(holder);
       if (!stale) {
         throw inputError(`output folder ${folder.given} is in use by another piezomap run (${describeHolder(holder!)})`, {
           file: lockPath,
@@ -522,7 +556,7 @@ function acquireLock(folder: ResultFolder): void {
       folder.notes.push(
         holder === null
           ? `a damaged lock file in ${folder.given} was replaced`
-          : `took over the stale lock of an earlier run into ${folder.given} (${describeHolder(holder)}, no longer running)`,
+          : `took over the stale lock of an earlier run into ${folder.given} (${describeHolder(holder)}, ${stale})`,
       );
     }
     throw inputError(`output folder ${folder.given} is in use by another piezomap run (its lock keeps changing)`, { file: lockPath });

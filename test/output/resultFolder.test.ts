@@ -164,8 +164,8 @@ describe('a result folder holding inputs of the run', () => {
 });
 
 describe('the lock of a result folder', () => {
-  const lockOf = (pid: number, host = hostname()) =>
-    JSON.stringify({ pid, host, started: '2026-01-01T00:00:00.000Z', acquired: '2026-01-01T00:00:01.000Z', command: 'piezomap solve x.json' });
+  const lockOf = (pid: number, host = hostname(), acquired = new Date().toISOString()) =>
+    JSON.stringify({ pid, host, started: acquired, acquired, command: 'piezomap solve x.json' });
 
   it('is held while the folder is prepared, holds PID, host and start time, and is gone after writing', async () => {
     const dir = freshDir();
@@ -181,6 +181,7 @@ describe('the lock of a result folder', () => {
     const dir = freshDir();
     mkdirSync(dir);
     const sleeper = spawn(process.execPath, ['-e', 'setTimeout(() => {}, 60000)']);
+    await new Promise((started) => sleeper.once('spawn', started));
     try {
       writeFileSync(join(dir, LOCK_FILE), lockOf(sleeper.pid!));
       await expect(prepareResultFolder(dir, false)).rejects.toThrow(new RegExp(`in use by another piezomap run \\(PID ${sleeper.pid} on host ${hostname()}`));
@@ -196,6 +197,22 @@ describe('the lock of a result folder', () => {
     mkdirSync(dir);
     writeFileSync(join(dir, LOCK_FILE), lockOf(1, 'some-other-host.invalid'));
     await expect(prepareResultFolder(dir, false)).rejects.toThrow(/in use by another piezomap run \(PID 1 on host some-other-host\.invalid/);
+  });
+
+  it('takes over a lock whose PID now belongs to a process started after the lock was taken (Linux /proc)', async () => {
+    if (!existsSync('/proc/self/stat')) return;
+    const dir = freshDir();
+    mkdirSync(dir);
+    const sleeper = spawn(process.execPath, ['-e', 'setTimeout(() => {}, 60000)']);
+    try {
+      // The lock claims to be an hour old; the process now holding its PID has just started.
+      writeFileSync(join(dir, LOCK_FILE), lockOf(sleeper.pid!, hostname(), new Date(Date.now() - 3600_000).toISOString()));
+      const folder = await prepareResultFolder(dir, false);
+      expect(folder.notes.join('\n')).toMatch(new RegExp(`took over the stale lock .*PID ${sleeper.pid} .*its PID now belongs to a process started later`));
+      releaseResultFolder(dir);
+    } finally {
+      sleeper.kill('SIGKILL');
+    }
   });
 
   it('takes over a stale lock (holder no longer running on this host) and says so', async () => {
