@@ -405,6 +405,19 @@ export function writeBadInputs(dir: string): BadInputCase[] {
     });
   }
   {
+    // A lock of a run on another host (a shared drive): it cannot be checked from here, so it is never taken over.
+    const path = file('out-locked.json', JSON.stringify(baseScenario(), null, 2));
+    const out = join(dir, 'locked-out');
+    mkdirSync(out, { recursive: true });
+    const lock = { pid: 4242, host: 'field-laptop.invalid', started: '2026-03-01T08:00:00.000Z', acquired: '2026-03-01T08:00:05.000Z', command: 'piezomap solve other.json -o locked-out' };
+    writeFileSync(join(out, '.piezomap-lock'), JSON.stringify(lock, null, 2) + '\n');
+    cases.push({
+      name: 'out-locked-elsewhere', what: 'the output folder is locked by a run on another host',
+      args: ['solve', path, '-o', out], out, code: 2, message: /output folder .*locked-out is in use by another piezomap run \(PID 4242 on host field-laptop\.invalid/,
+      allowedFiles: ['.piezomap-lock'],
+    });
+  }
+  {
     // compare: only a variant reads a file inside the output folder.
     const out = join(dir, 'variant-out');
     mkdirSync(out, { recursive: true });

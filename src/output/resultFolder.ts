@@ -314,7 +314,14 @@ export function applyCommit(dir: string, stopAfter = Infinity): number {
 function recoverLeftovers(dir: string, given: string): string[] {
   const notes: string[] = [];
   if (existsSync(join(dir, COMMIT_FOLDER))) {
-    applyCommit(dir);
+    try {
+      applyCommit(dir);
+    } catch (error) {
+      throw inputError(`output folder ${given} holds the interrupted results of an earlier run that cannot be completed: ${describeThrown(error)}`, {
+        file: join(given, COMMIT_FOLDER),
+        hint: `look into ${join(given, COMMIT_FOLDER)} (the staged results and their manifest), then move it away`,
+      });
+    }
     notes.push(`the results of an earlier run into ${given} were interrupted while being put in place; that run's results were completed from its staged copy`);
   }
   const leftovers: string[] = [];
@@ -424,7 +431,10 @@ function refuseInputsInside(dir: string, given: string, inputs: readonly string[
     return places.some((p) => folders.some((f) => isInside(p, f)));
   });
   if (!inside.length) return;
-  const shown = inside.slice(0, 3).map((p) => relative(process.cwd(), p) || p);
+  const shown = inside.slice(0, 3).map((p) => {
+    const near = relative(process.cwd(), p);
+    return near && !near.startsWith('..') && !isAbsolute(near) ? near : p;
+  });
   throw inputError(
     `output folder ${given} holds ${inside.length === 1 ? 'an input' : `${inside.length} inputs`} of this run (${shown.join(', ')}${inside.length > 3 ? ', ...' : ''}); results written there could replace ${inside.length === 1 ? 'it' : 'them'}`,
     { file: inside[0]!, hint: 'write the results into a folder of their own, e.g. -o results (a new sub-folder)' },

@@ -126,6 +126,15 @@ describe('replacing results (--overwrite), cut short after every step', () => {
     releaseResultFolder(dir);
   });
 
+  it('a commit folder damaged from outside (no readable manifest) is refused naming it, not guessed at', async () => {
+    const dir = await withOldSet();
+    mkdirSync(join(dir, COMMIT_FOLDER));
+    writeFileSync(join(dir, COMMIT_FOLDER, '.piezomap-manifest.json'), '{"files": [');
+    await expect(prepareResultFolder(dir, true)).rejects.toThrow(/interrupted results of an earlier run that cannot be completed/);
+    expect(existsSync(join(dir, LOCK_FILE))).toBe(false);
+    expect(state(dir)).toMatchObject({ kind: 'complete', run: 'old' });
+  });
+
   it('a file at a result name that no earlier summary lists is the user\'s: refused, never replaced', async () => {
     const dir = freshDir();
     mkdirSync(dir);
