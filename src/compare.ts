@@ -31,7 +31,7 @@ import {
 } from './pipeline.js';
 import { buildSummary } from './output/summary.js';
 import { comparisonCsv, comparisonSummary, type ComparisonSummaryJson } from './output/comparison.js';
-import { prepareResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './output/resultFolder.js';
+import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './output/resultFolder.js';
 import { contourFiles, reportRun, type ProductOptions, type RenderedMap } from './output/products.js';
 import { renderMapPng, renderReportHtml, type ReportRun } from './report/index.js';
 import { encodeFloat32GeoTiff } from './raster/write.js';
@@ -460,9 +460,13 @@ export async function writeComparisonResults(
 ): Promise<ComparisonSummaryJson> {
   const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), c.inputFiles);
   for (const note of folder.notes) if (!c.warnings.includes(note)) c.warnings.push(note);
-  const { files, summary } = comparisonFiles(c, options);
-  await writeResultFiles(folder, files);
-  return summary;
+  try {
+    const { files, summary } = comparisonFiles(c, options);
+    await writeResultFiles(folder, files);
+    return summary;
+  } finally {
+    releaseResultFolder(folder.dir);
+  }
 }
 
 /** The first reason the comparison must not be presented as sound (baseline first), or null. */

@@ -16,7 +16,7 @@ import { checkMemoryBudget } from './memory.js';
 import type { Solver, SolveStats } from './solvers/types.js';
 import { encodeFloat32GeoTiff } from './raster/write.js';
 import { buildSummary, budgetCsv, convergenceCsv, type SummaryJson } from './output/summary.js';
-import { prepareResultFolder, previousResultFiles, writeResultFiles, RESULT_MARKER, type OutputFile } from './output/resultFolder.js';
+import { prepareResultFolder, previousResultFiles, releaseResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './output/resultFolder.js';
 import { CAUTION } from './caution.js';
 import { reportRun, solveProducts, type ProductOptions, type RenderedMap } from './output/products.js';
 import { renderReportHtml } from './report/index.js';
@@ -277,15 +277,19 @@ export async function writeSolveResults(
   // Refuses a folder holding inputs or (without overwrite) earlier results; locks it; notes say what it cleaned up.
   const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), result.model.inputFiles);
   for (const note of folder.notes) if (!result.warnings.includes(note)) result.warnings.push(note);
-  const { files, maps } = resultBundle(result, '', options);
-  const withReport = maps.length > 0;
-  const names = [...files.map((f) => f.name), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
-  result.timings.write = now() - t;
-  const summary = buildSummary(result, names, VERSION);
-  if (withReport) files.push({ name: REPORT_FILE, bytes: solveReport(result, summary, maps) });
-  files.push({ name: RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
-  await writeResultFiles(folder, files);
-  return summary;
+  try {
+    const { files, maps } = resultBundle(result, '', options);
+    const withReport = maps.length > 0;
+    const names = [...files.map((f) => f.name), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
+    result.timings.write = now() - t;
+    const summary = buildSummary(result, names, VERSION);
+    if (withReport) files.push({ name: REPORT_FILE, bytes: solveReport(result, summary, maps) });
+    files.push({ name: RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
+    await writeResultFiles(folder, files);
+    return summary;
+  } finally {
+    releaseResultFolder(folder.dir);
+  }
 }
 
 export const REPORT_FILE = 'report.html';
