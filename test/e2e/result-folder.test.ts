@@ -127,6 +127,7 @@ describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
       // A third of the signals anywhere in the run; the others after the run began writing, within 1.2 times the time
       // writing took in the first run (the instants where old and new results could mix).
       const anywhere = random() < 1 / 3;
+      const hiddenBefore = filesBelow(out).filter((f) => f.startsWith('.'));
       const delayMs = anywhere ? random() * typicalMs * 1.1 : random() * writingMs * 1.2;
       const r = await cli(['solve', scenario(run), '-o', out, '--overwrite', '--quiet'], (child) => {
         const send = () => setTimeout(() => child.kill(signal), delayMs);
@@ -147,9 +148,12 @@ describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
       else if (r.code === 130) {
         tally.signals++;
         tally.sigint++;
-        // A signal the process answers leaves nothing of its own behind, and its message matches what is there.
-        expect(filesBelow(out).filter((f) => f.startsWith('.')), what).toEqual([]);
-        if (/no result files were completed/.test(r.stderr)) expect(state, what).toMatchObject({ kind: 'complete', run: last });
+        // A signal the process answers leaves nothing of its own behind (what an earlier kill left may remain, when the
+        // signal came before this run reached the folder), and its message matches what is there.
+        const hiddenAfter = filesBelow(out).filter((f) => f.startsWith('.'));
+        expect(hiddenAfter.filter((f) => !hiddenBefore.includes(f)), what).toEqual([]);
+        if (existsSync(join(out, LOCK_FILE))) expect(JSON.parse(readFileSync(join(out, LOCK_FILE), 'utf8')).pid, what).not.toBe(r.pid);
+        if (/no result files were completed/.test(r.stderr)) expect(state.kind === 'complete' && state.run === run, what).toBe(false);
         else expect(r.stderr, what).toMatch(/were complete before it/);
       } else {
         tally.finishedFirst++;
