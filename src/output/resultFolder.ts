@@ -145,7 +145,12 @@ export async function prepareResultFolder(outDir: string, overwrite: boolean, in
     throw inputError(`output folder ${outDir} is not writable`, { file: outDir });
   }
   const folder: ResultFolder = { dir, given: outDir, overwrite, notes: [] };
-  acquireLock(folder);
+  try {
+    acquireLock(folder);
+  } catch (error) {
+    if (error instanceof PiezomapError) throw error;
+    throw inputError(`cannot lock output folder ${outDir}: ${fileSystemReason(error)}`, { file: outDir });
+  }
   try {
     folder.notes.push(...recoverLeftovers(dir, outDir));
     const entries = await readdir(dir);
@@ -492,6 +497,17 @@ function staleReason(holder: LockInfo): string | null {
   return null;
 }
 
+/** A lock file that cannot be read is taken for one being written while it is younger than this. */
+const LOCK_WRITE_GRACE_MS = 10_000;
+
+function lockAgeMs(path: string): number {
+  try {
+    return Date.now() - lstatSync(path).mtimeMs;
+  } catch {
+    return Infinity;
+  }
+}
+
 function readLock(path: string): LockInfo | null {
   try {
     const info = JSON.parse(readFileSync(path, 'utf8')) as Partial<LockInfo>;
@@ -520,19 +536,43 @@ function acquireLock(folder: ResultFolder): void {
     acquired: new Date().toISOString(),
     command: process.argv.slice(1).join(' '),
   };
+  const content = JSON.stringify(info, null, 2) + '\n';
   const temp = join(folder.dir, `${LOCK_TEMP_PREFIX}${process.pid}-${Math.random().toString(36).slice(2)}`);
-  writeFileSync(temp, JSON.stringify(info, null, 2) + '\n', { flag: 'wx' });
+  writeFileSync(temp, content, { flag: 'wx' });
+  /** True when the lock is ours now, false when one exists. */
+  const create = (): boolean => {
+    try {
+      linkSync(temp, lockPath);
+      return true;
+    } catch (error) {
+      const code = (error as NodeJS.ErrnoException).code;
+      if (code === 'EEXIST') return false;
+      // File systems without hard links (FAT on a USB stick, some network shares): create it exclusively instead
+      // (O_EXCL); it is empty for an instant, which readers take for a lock being written (see below).
+      if (code !== 'EPERM' && code !== 'ENOTSUP' && code !== 'EOPNOTSUPP' && code !== 'ENOSYS' && code !== 'EMLINK') throw error;
+    }
+    try {
+      writeFileSync(lockPath, content, { flag: 'wx' });
+      return true;
+    } catch (error) {
+      if ((error as NodeJS.ErrnoException).code === 'EEXIST') return false;
+      throw error;
+    }
+  };
   try {
     for (let attempt = 0; attempt < 3; attempt++) {
-      try {
-        linkSync(temp, lockPath);
+      if (create()) {
         held.set(folder.dir, folder);
         installExitHook();
         return;
-      } catch (error) {
-        if ((error as NodeJS.ErrnoException).code !== 'EEXIST') throw error;
       }
       const holder = readLock(lockPath);
+      if (holder === null && lockAgeMs(lockPath) < LOCK_WRITE_GRACE_MS) {
+        throw inputError(`output folder ${folder.given} is in use by another piezomap run (its lock file ${LOCK_FILE} is being written)`, {
+          file: lockPath,
+          hint: 'wait for that run to end, or choose another folder with -o',
+        });
+      }
       const stale = holder === null ? 'damaged' : staleReason(holder);
       if (!stale) {
         throw inputError(`output folder ${folder.given} is in use by another piezomap run (${describeHolder(holder!)})`, {

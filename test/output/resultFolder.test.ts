@@ -11,7 +11,7 @@
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { spawn, spawnSync } from 'node:child_process';
-import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, symlinkSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, symlinkSync, utimesSync, writeFileSync } from 'node:fs';
 import { hostname, tmpdir } from 'node:os';
 import { join } from 'node:path';
 import {
@@ -222,6 +222,18 @@ describe('the lock of a result folder', () => {
     } finally {
       sleeper.kill('SIGKILL');
     }
+  });
+
+  it('takes an unreadable lock for one being written while it is young, and for a damaged one when old', async () => {
+    const dir = freshDir();
+    mkdirSync(dir);
+    writeFileSync(join(dir, LOCK_FILE), '');
+    await expect(prepareResultFolder(dir, false)).rejects.toThrow(/in use by another piezomap run \(its lock file .* is being written\)/);
+    const minuteAgo = new Date(Date.now() - 60_000);
+    utimesSync(join(dir, LOCK_FILE), minuteAgo, minuteAgo);
+    const folder = await prepareResultFolder(dir, false);
+    expect(folder.notes.join('\n')).toMatch(/a damaged lock file in .* was replaced/);
+    releaseResultFolder(dir);
   });
 
   it('takes over a stale lock (holder no longer running on this host) and says so', async () => {
