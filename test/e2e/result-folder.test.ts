@@ -146,11 +146,12 @@ describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
       expect(state.kind, what).not.toBe('empty');
       if (r.signal === 'SIGKILL') tally.signals++;
       else if (r.signal === 'SIGINT') {
-        // SIGINT while Node was still starting, before piezomap installed its handlers: the run never began.
+        // SIGINT before piezomap installed its handlers (Node still starting: the run never began) or after they were
+        // gone (the process already exiting: the run was done). Either way nothing of the run's own is left.
         tally.signals++;
         tally.sigint++;
-        expect(filesBelow(out).filter((f) => f.startsWith('.')), what).toEqual(hiddenBefore);
-        expect(state.kind === 'complete' && state.run === run && last !== run, what).toBe(false);
+        const hiddenAfter = filesBelow(out).filter((f) => f.startsWith('.'));
+        expect(hiddenAfter.filter((f) => !hiddenBefore.includes(f)), what).toEqual([]);
       } else if (r.code === 130) {
         tally.signals++;
         tally.sigint++;
@@ -159,7 +160,7 @@ describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
         const hiddenAfter = filesBelow(out).filter((f) => f.startsWith('.'));
         expect(hiddenAfter.filter((f) => !hiddenBefore.includes(f)), what).toEqual([]);
         if (existsSync(join(out, LOCK_FILE))) expect(JSON.parse(readFileSync(join(out, LOCK_FILE), 'utf8')).pid, what).not.toBe(r.pid);
-        if (/no result files were completed/.test(r.stderr)) expect(state.kind === 'complete' && state.run === run, what).toBe(false);
+        if (/no result files were completed/.test(r.stderr)) expect(state.kind === 'complete' && state.run === run, `${what}: ${r.stderr}`).toBe(false);
         else expect(r.stderr, what).toMatch(/were complete before it/);
       } else {
         tally.finishedFirst++;
@@ -170,6 +171,10 @@ describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
         else tally.old++;
         last = state.run as 'A' | 'B';
       } else tally.inProgress++;
+      // A commit left behind (a kill after its commit point) is finished first by the next run, so its run is the old
+      // set the next run replaces; the next run then uses the other scenario, which keeps the two apart.
+      const pending = join(out, COMMIT_FOLDER, 'summary.json');
+      if (existsSync(pending)) last = runOf(JSON.parse(readFileSync(pending, 'utf8'))) as 'A' | 'B';
       if (existsSync(join(out, LOCK_FILE))) tally.lockLeft++;
       if (existsSync(join(out, STAGING_FOLDER)) || existsSync(join(out, COMMIT_FOLDER))) tally.stagingLeft++;
     }
