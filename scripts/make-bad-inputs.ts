@@ -452,6 +452,45 @@ export function writeBadInputs(dir: string): BadInputCase[] {
       message: /already holds results/, allowedFiles: ['summary.json', 'head.tif'],
     });
   }
+  {
+    // The trial of issue 9: -o the scenario's own folder, where a fixed-head raster is named head.tif (a result's name).
+    const own = join(dir, 'own-folder');
+    mkdirSync(own, { recursive: true });
+    writeFileSync(join(own, 'k.tif'), kBytes);
+    writeFileSync(join(own, 'head.tif'), encodeFloat32GeoTiff(baseGrid, new Float64Array(NX * NY).map((_, p) => (p % NX === 0 ? 50 : Number.NaN))));
+    const path = join(own, 'own.json');
+    writeFileSync(path, JSON.stringify({ ...baseScenario(), fixedHeads: [{ raster: 'head.tif' }, { edge: 'east', head: 45 }] }, null, 2));
+    cases.push({
+      name: 'out-holds-inputs', what: "the output folder is the scenario's own, holding its inputs (a fixed-head raster named head.tif)",
+      args: ['solve', path, '-o', own], out: own, code: 2, message: /output folder .*own-folder holds 3 inputs of this run \(.*own\.json, .*k\.tif, .*head\.tif\)/,
+      allowedFiles: ['head.tif', 'k.tif', 'own.json'],
+    });
+  }
+  {
+    // A lock of a run on another host (a shared drive): it cannot be checked from here, so it is never taken over.
+    const path = file('out-locked.json', JSON.stringify(baseScenario(), null, 2));
+    const out = join(dir, 'locked-out');
+    mkdirSync(out, { recursive: true });
+    const lock = { pid: 4242, host: 'field-laptop.invalid', started: '2026-03-01T08:00:00.000Z', acquired: '2026-03-01T08:00:05.000Z', command: 'piezomap solve other.json -o locked-out' };
+    writeFileSync(join(out, '.piezomap-lock'), JSON.stringify(lock, null, 2) + '\n');
+    cases.push({
+      name: 'out-locked-elsewhere', what: 'the output folder is locked by a run on another host',
+      args: ['solve', path, '-o', out], out, code: 2, message: /output folder .*locked-out is in use by another piezomap run \(PID 4242 on host field-laptop\.invalid/,
+      allowedFiles: ['.piezomap-lock'],
+    });
+  }
+  {
+    // compare: only a variant reads a file inside the output folder.
+    const out = join(dir, 'variant-out');
+    mkdirSync(out, { recursive: true });
+    writeFileSync(join(out, 'recharge-wet.tif'), encodeFloat32GeoTiff(baseGrid, new Float64Array(NX * NY).fill(2e-4)));
+    const path = file('out-holds-variant-input.json', JSON.stringify({ ...baseScenario(), variants: [{ name: 'wetter', recharge: 'variant-out/recharge-wet.tif' }] }, null, 2));
+    cases.push({
+      name: 'out-holds-variant-input', what: 'compare: the output folder holds a raster that only a variant reads',
+      args: ['compare', path, '-o', out], out, code: 2, message: /output folder .*variant-out holds an input of this run \(.*recharge-wet\.tif\)/,
+      allowedFiles: ['recharge-wet.tif'],
+    });
+  }
 
   // --- resources and solver ----------------------------------------------------------------------------------
   // 200 x 200 cells: the raster reads within a 4 MiB limit, the run does not fit 100 MiB.

@@ -2,7 +2,6 @@
  * The command-line shell: parse arguments, call the library, format its result, return an exit code.
  * Exit codes (../shared/spec/interface.md): 0 done, 2 bad input or usage, 3 solver did not reach the tolerance, 1 anything else.
  */
-import { rmSync } from 'node:fs';
 import { Command, CommanderError, Option } from 'commander';
 import { PiezomapError, describeThrown, exitCodeFor } from '../errors.js';
 import { VERSION } from '../version.js';
@@ -20,11 +19,11 @@ import type { Executor } from '../executor/types.js';
 import type { ProductOptions } from '../output/products.js';
 import { formatComparison } from '../output/comparison.js';
 import { writeComparisonResults } from '../output/comparisonFiles.js';
-import { compareScenario, prepareComparison, resolveVariants } from '../compare/run.js';
+import { compareModelsWith, prepareComparison, resolveVariants } from '../compare/run.js';
 import { comparisonProblem } from '../compare/types.js';
 import { parseSolverOption } from '../scenario/solverSettings.js';
 import type { SolverSettings } from '../scenario/types.js';
-import { prepareResultFolder, removeTemporaryFilesSync } from '../output/resultFolder.js';
+import { abandonResultFoldersSync, prepareResultFolder } from '../output/resultFolder.js';
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
 
@@ -117,8 +116,9 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
   progress?.({ stage: 'load', message: `reading ${scenario}` });
   const { model } = await loadScenario(scenario);
   const timings: Record<string, number> = { load: (performance.now() - t0) / 1000 };
-  // Check the output folder before the long work.
-  await prepareResultFolder(outDir, Boolean(flags.overwrite));
+  // Check (and lock) the output folder before the long work.
+  const folder = await prepareResultFolder(outDir, Boolean(flags.overwrite), model.inputFiles);
+  printNotes(folder.notes, io);
   const result = await solveModelWith(model, executor(), options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
@@ -143,9 +143,13 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
       hint: 'add e.g. "variants": [{ "name": "more-pumping", "wells": [{ "id": "W1", "rate": -800 }] }], or use "piezomap solve"',
     });
   }
-  // Check the output folder before the long work.
-  await prepareResultFolder(outDir, Boolean(flags.overwrite));
-  const comparison = await compareScenario(loaded, options, executor());
+  // Every variant is resolved first, so that the folder check knows all inputs; then the folder is checked (and
+  // locked) before the long work.
+  const variants = await resolveVariants(loaded.model, loaded.raw);
+  const inputs = [...loaded.model.inputFiles, ...variants.flatMap((v) => v.model.inputFiles)];
+  const folder = await prepareResultFolder(outDir, Boolean(flags.overwrite), inputs);
+  printNotes(folder.notes, io);
+  const comparison = await compareModelsWith(loaded.model, variants, executor(), options);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();
@@ -157,6 +161,11 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
     return exitCodeFor(problem);
   }
   return 0;
+}
+
+/** What preparing the result folder did (a stale lock taken over, leftovers removed); also recorded in summary.json. */
+function printNotes(notes: string[], io: CliIO): void {
+  for (const note of notes) io.stderr(`piezomap: note: ${note}\n`);
 }
 
 async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Promise<number> {
@@ -245,6 +254,8 @@ export async function main(argv: string[], io: CliIO = defaultIO): Promise<numbe
     return exitCode;
   } catch (error) {
     clearProgress();
+    // A run that failed after preparing its result folder leaves no lock and no staging folder behind.
+    abandonResultFoldersSync();
     if (error instanceof CommanderError) {
       if (error.code === 'commander.helpDisplayed' || error.code === 'commander.version' || error.code === 'commander.help') return 0;
       return 2;
@@ -265,8 +276,14 @@ export async function main(argv: string[], io: CliIO = defaultIO): Promise<numbe
 export function installSignalHandlers(): void {
   for (const signal of ['SIGINT', 'SIGTERM'] as const) {
     process.on(signal, () => {
-      removeTemporaryFilesSync(rmSync);
-      process.stderr.write(`\npiezomap: interrupted by ${signal}; no result files were completed, temporary files removed\n`);
+      // Results are put in place in one synchronous block (src/output/resultFolder.ts), so a signal lands either
+      // before it (the folder keeps its earlier results) or after it (the new results are complete).
+      const { committed } = abandonResultFoldersSync();
+      process.stderr.write(
+        committed.length
+          ? `\npiezomap: interrupted by ${signal}; the results in ${committed.join(', ')} were complete before it\n`
+          : `\npiezomap: interrupted by ${signal}; no result files were completed, temporary files removed; earlier results, if any, are unchanged\n`,
+      );
       process.exit(signal === 'SIGINT' ? 130 : 143);
     });
   }

@@ -173,7 +173,8 @@ export function* comparePlan(prepared: PreparedComparison, options: RunOptions =
     }
   }
   yield* release();
-  return { baseline: baseResult, baselineProblem, variants: compared, receptors, warnings };
+  const inputFiles = [...new Set([...baseline.inputFiles, ...prepared.variants.flatMap((v) => v.model.inputFiles)])];
+  return { baseline: baseResult, baselineProblem, variants: compared, receptors, warnings, inputFiles };
 }
 
 /**

@@ -41,6 +41,8 @@ export interface ComparisonResult {
   variants: VariantComparison[];
   receptors: ReceptorInput[];
   warnings: string[];
+  /** Every file the baseline and the variants read (a result folder must hold none of them). */
+  inputFiles: string[];
 }
 
 /** What prepareComparison builds before its first solve: every system assembled and every point located. */

@@ -4,11 +4,12 @@
  */
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare/types.js';
-import { calibrationJson, calibrationLine, csvField, MAX_PRINTED_ROWS, tidy } from './summary.js';
+import { calibrationJson, calibrationLine, MAX_PRINTED_ROWS, tidy } from './summary.js';
+import { csvRow } from './csv.js';
 
-/** A number for a CSV cell: rounded, empty when not a finite number. */
-function cell(v: number | null | undefined): string {
-  return v === null || v === undefined || !Number.isFinite(v) ? '' : String(tidy(v));
+/** A number for a CSV cell: rounded, empty when not a finite number (csvCell writes it). */
+function cell(v: number | null | undefined): number | null {
+  return v === null || v === undefined || !Number.isFinite(v) ? null : tidy(v);
 }
 
 /** Budget terms other than wells over all variants, baseline order first. */
@@ -57,13 +58,13 @@ export function comparisonCsv(c: ComparisonResult): string {
     ...terms.flatMap((t) => [`source_${t}_volume`, `source_${t}_percent`]),
     'source_total_percent',
   ];
-  const lines = [header.map(csvField).join(',')];
+  const lines = [csvRow(header)];
   for (const v of c.variants) {
     const byTerm = new Map(v.sources.terms.map((t) => [t.term, t]));
     const byWell = new Map(v.wellbores.map((w) => [w.id, w]));
     const sound = v.problem === null;
-    const row = [
-      csvField(v.name),
+    const row: Array<string | number | null> = [
+      v.name,
       variantStatus(v),
       v.sharedOperator ? 'yes' : 'no',
       cell(v.maxDrawdown?.value),
@@ -76,13 +77,13 @@ export function comparisonCsv(c: ComparisonResult): string {
       cell(v.withdrawal),
       sound ? cell(v.sources.addedPumping) : '',
       cell(v.result.budget.discrepancyPercent),
-      ...terms.flatMap((t) => {
+      ...terms.flatMap((t): Array<number | null | ''> => {
         const s = byTerm.get(t);
         return sound && s ? [cell(s.netChange), cell(s.percentOfAddedPumping)] : ['', ''];
       }),
       sound ? cell(v.sources.totalPercent) : '',
     ];
-    lines.push(row.join(','));
+    lines.push(csvRow(row));
   }
   return lines.join('\n') + '\n';
 }

@@ -13,8 +13,8 @@ import { VERSION } from '../version.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
 import { comparisonCsv, comparisonSummary, type ComparisonSummaryJson } from './comparison.js';
 import { contourFiles, reportRun, type ProductOptions, type RenderedMap } from './products.js';
-import { prepareResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './resultFolder.js';
-import { previousResultFiles, REPORT_FILE, solveFolderFiles } from './solveFiles.js';
+import { prepareResultFolder, releaseResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './resultFolder.js';
+import { REPORT_FILE, solveFolderFiles } from './solveFiles.js';
 
 /**
  * All files of a comparison, relative to OUTDIR: baseline/ and NAME/ as for `solve` (each with its summary.json),
@@ -120,18 +120,22 @@ function comparisonReport(c: ComparisonResult, runs: ReportRun[], summary: Compa
 }
 
 /**
- * Write a comparison into OUTDIR in one staged, atomic step. Earlier results there are refused unless
- * `overwrite` (then the files they list are replaced). Returns the comparison summary that was written.
+ * Write a comparison into OUTDIR in one staged, all-or-nothing step (src/output/resultFolder.ts): a folder holding
+ * any input of the baseline or a variant is refused, and earlier results unless `overwrite`. Returns the comparison summary that was written.
  */
 export async function writeComparisonResults(
   c: ComparisonResult,
   outDir: string,
   options: { overwrite?: boolean } & ProductOptions = {},
 ): Promise<ComparisonSummaryJson> {
-  await prepareResultFolder(outDir, Boolean(options.overwrite));
-  const previous = options.overwrite ? await previousResultFiles(outDir) : [];
-  const { files, summary } = comparisonFiles(c, options);
-  await writeResultFiles(outDir, files, previous);
-  return summary;
+  const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), c.inputFiles);
+  for (const note of folder.notes) if (!c.warnings.includes(note)) c.warnings.push(note);
+  try {
+    const { files, summary } = comparisonFiles(c, options);
+    await writeResultFiles(folder, files);
+    return summary;
+  } finally {
+    releaseResultFolder(folder.dir);
+  }
 }
 

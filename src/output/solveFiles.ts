@@ -3,15 +3,13 @@
  * result (else `head-not-converged.tif`), budget and convergence tables, the products (contours, flux rasters,
  * map), the HTML report and summary.json (last).
  */
-import { readFile } from 'node:fs/promises';
-import { join } from 'node:path';
 import { resultProblem, type SolveResult } from '../analysis/result.js';
 import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
 import { reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
-import { RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
+import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
 import { budgetCsv, buildSummary, convergenceCsv, type SummaryJson } from './summary.js';
 
 export const REPORT_FILE = 'report.html';
@@ -88,7 +86,9 @@ export function solveFolderFiles(
 }
 
 /**
- * Write the result folder of one solve. Refuses a folder holding earlier results unless `overwrite`.
+ * Write the result folder of one solve: refuses a folder holding any input of the run, or (unless `overwrite`)
+ * earlier results; locks it for the run; replaces earlier results all-or-nothing (src/output/resultFolder.ts).
+ * What the folder preparation cleaned up (leftovers of interrupted runs) goes into the warnings.
  * Returns the summary that was written.
  */
 export async function writeSolveResults(
@@ -96,19 +96,13 @@ export async function writeSolveResults(
   outDir: string,
   options: { overwrite?: boolean } & ProductOptions = {},
 ): Promise<SummaryJson> {
-  const previous = await previousResultFiles(outDir);
-  const { files, summary } = solveFolderFiles(result, '', options);
-  await writeResultFiles(outDir, files, options.overwrite ? previous : []);
-  return summary;
-}
-
-/** Files listed by an earlier summary.json in the folder (removed on overwrite so old and new never mix). */
-export async function previousResultFiles(outDir: string): Promise<string[]> {
+  const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), result.model.inputFiles);
+  for (const note of folder.notes) if (!result.warnings.includes(note)) result.warnings.push(note);
   try {
-    const text = await readFile(join(outDir, RESULT_MARKER), 'utf8');
-    const files = (JSON.parse(text) as { files?: unknown }).files;
-    return Array.isArray(files) ? files.filter((f): f is string => typeof f === 'string' && !f.includes('..')) : [];
-  } catch {
-    return [];
+    const { files, summary } = solveFolderFiles(result, '', options);
+    await writeResultFiles(folder, files);
+    return summary;
+  } finally {
+    releaseResultFolder(folder.dir);
   }
 }

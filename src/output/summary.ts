@@ -3,6 +3,7 @@ import { cellHeight, cellWidth, crsLabel } from '../grid.js';
 import type { SolveResult } from '../analysis/result.js';
 import type { WaterBudget } from '../analysis/budget.js';
 import type { CalibrationStatistics } from '../analysis/calibration.js';
+import { csvRow } from './csv.js';
 
 /** Round to 12 significant digits so files are stable and readable (float noise beyond that is meaningless here). */
 export function tidy(v: number): number {
@@ -144,22 +145,16 @@ export function budgetJson(budget: WaterBudget): SummaryJson['budget'] {
   };
 }
 
-/** CSV text field: quoted when it holds a comma, quote or line break (RFC 4180). */
-export function csvField(value: string | number): string {
-  const s = String(value);
-  return /[",\r\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
-}
-
 export function budgetCsv(budget: WaterBudget): string {
-  const lines = ['term,inflow,outflow'];
-  for (const t of budget.terms) lines.push(`${csvField(t.term)},${tidy(t.inflow)},${tidy(t.outflow)}`);
-  lines.push(`total,${tidy(budget.totalIn)},${tidy(budget.totalOut)}`);
+  const lines = [csvRow(['term', 'inflow', 'outflow'])];
+  for (const t of budget.terms) lines.push(csvRow([t.term, tidy(t.inflow), tidy(t.outflow)]));
+  lines.push(csvRow(['total', tidy(budget.totalIn), tidy(budget.totalOut)]));
   return lines.join('\n') + '\n';
 }
 
 export function convergenceCsv(history: number[]): string {
-  const lines = ['iteration,relative_residual'];
-  history.forEach((r, k) => lines.push(`${k},${r}`));
+  const lines = [csvRow(['iteration', 'relative_residual'])];
+  history.forEach((r, k) => lines.push(csvRow([k, r])));
   return lines.join('\n') + '\n';
 }
 
