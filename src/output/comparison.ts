@@ -165,6 +165,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
               outflowChange: tidy(t.outflowChange),
               netChange: tidy(t.netChange),
               percentOfAddedPumping: t.percentOfAddedPumping === null ? null : tidy(t.percentOfAddedPumping),
+              ...(t.partOf === undefined ? {} : { partOf: t.partOf }),
             })),
             totalPercent: v.sources.totalPercent === null ? null : tidy(v.sources.totalPercent),
           },
