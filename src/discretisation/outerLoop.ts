@@ -54,8 +54,12 @@ export function* solveOuter(
   const history: OuterReport['history'] = [];
   let previous: Float64Array | null = null;
   let x: Float64Array = start;
+  // Inner iterations over every outer iteration (each solve starts from the previous heads, so the last alone says little).
+  let inner = 0;
   for (;;) {
-    const answer: LinearAnswer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x });
+    const solved: LinearAnswer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x });
+    inner += solved.stats.iterations;
+    const answer: LinearAnswer = { ...solved, stats: { ...solved.stats, iterations: inner } };
     x = answer.x;
     const head = headsFromSolution(system, x);
     let stateChanges = 0;
