@@ -133,7 +133,7 @@ async function resolveEntry(loader: ExchangeLoader, entry: HeadDependentEntry, s
     for (let k = 0; k < cells.length; k++) {
       const c = values[cells[k]!]!;
       if (!(Number.isFinite(c) && c >= 0)) {
-        throw inputError(`${loader.label}: ${key} "${entry.conductance}": ${c < 0 ? `negative conductance ${c}` : 'no conductance'} at ${cellText(grid, cells[k]!)}, a cell of "${entry.name}"`, {
+        throw inputError(`${loader.label}: ${key} "${entry.conductance}": ${c < 0 ? `negative conductance ${Number(c.toPrecision(6))}` : 'no conductance'} at ${cellText(grid, cells[k]!)}, a cell of "${entry.name}"`, {
           key,
           cell: { row: Math.floor(cells[k]! / grid.nx), col: cells[k]! % grid.nx },
           hint: 'a conductance is >= 0 (length²/time) on every cell of the entry',
@@ -224,7 +224,7 @@ export async function loadLeakage(
     if (key === 'leakance') {
       for (let p = 0; p < values.length; p++) {
         if (values[p]! < 0) {
-          throw inputError(`${loader.label}: leakage.leakance "${given}": negative leakance ${values[p]} at ${cellText(reference.grid, p)}`, {
+          throw inputError(`${loader.label}: leakage.leakance "${given}": negative leakance ${Number(values[p]!.toPrecision(6))} at ${cellText(reference.grid, p)}`, {
             key: 'leakage.leakance',
             cell: { row: Math.floor(p / reference.grid.nx), col: p % reference.grid.nx },
             hint: 'a leakance K\'/b\' is >= 0 (1/time); use nodata where there is no leakage',
