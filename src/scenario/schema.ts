@@ -249,12 +249,33 @@ export const pointCrsSchema = z
   .string()
   .regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' });
 
+/**
+ * Marks a `fixedHeads: []` beside head-dependent boundaries or leakage, which may hold the level instead
+ * (../shared/spec/physics.md); whether every region is held is checked at assembly (the connected-region rule).
+ */
+const OTHER_ANCHORS = Symbol('fixedHeads may be empty: other terms anchor the level');
+
+function markOtherAnchors(value: unknown): unknown {
+  if (typeof value !== 'object' || value === null || Array.isArray(value)) return value;
+  const v = value as Record<string, unknown>;
+  const others = (Array.isArray(v.headDependent) && v.headDependent.length > 0) || (typeof v.leakage === 'object' && v.leakage !== null);
+  if (!others || !Array.isArray(v.fixedHeads) || v.fixedHeads.length > 0) return value;
+  return { ...v, fixedHeads: Object.assign([], { [OTHER_ANCHORS]: true }) };
+}
+
+/** The fixed-head list: at least one entry, unless marked by markOtherAnchors. */
+function fixedHeadList() {
+  const list = z.array(fixedHeadSchema);
+  const nonEmpty = list.min(1, { error: 'needs at least one entry: without a fixed head (or a head-dependent boundary or leakage) the head is undetermined' });
+  return dispatch<FixedHeadEntry[]>('a list of fixed-head entries', (value) => (Array.isArray(value) && OTHER_ANCHORS in value ? list : nonEmpty));
+}
+
 /** Keys a variant may replace: every top-level key except `variants`. */
 const replaceableFields = {
   title: z.string().optional(),
   units: unitsSchema.optional(),
   aquifer: aquiferSchema.optional(),
-  fixedHeads: z.array(fixedHeadSchema).min(1, { error: 'needs at least one entry: without a fixed head the head is undetermined' }).optional(),
+  fixedHeads: fixedHeadList().optional(),
   recharge: numberOrPath(finite, 'a recharge rate (length/time) or the path of a GeoTIFF').optional(),
   headDependent: z.array(headDependentSchema).optional(),
   leakage: leakageSchema.optional(),
@@ -267,19 +288,19 @@ const replaceableFields = {
   solver: solverSchema.optional(),
 };
 
-export const variantSchema = strict({
+export const variantSchema = z.preprocess(markOtherAnchors, strict({
   name: z
     .string()
     .regex(/^[A-Za-z0-9_-]+$/, { error: 'must use only letters, digits, "-" and "_" (it names a result folder)' })
     .refine((name) => name.toLowerCase() !== 'baseline', { error: '"baseline" is reserved for the scenario itself' }),
   ...replaceableFields,
   wells: listOrCsv(wellChangeSchema, 'well').optional(),
-});
+}));
 
-export const scenarioSchema = strict({
+export const scenarioSchema = z.preprocess(markOtherAnchors, strict({
   ...replaceableFields,
   aquifer: aquiferSchema,
-  fixedHeads: replaceableFields.fixedHeads.unwrap(),
+  fixedHeads: fixedHeadList(),
   variants: z
     .array(variantSchema)
     .superRefine((variants, ctx) => {
@@ -296,7 +317,7 @@ export const scenarioSchema = strict({
       });
     })
     .optional(),
-});
+}));
 
 export type Units = z.output<typeof unitsSchema>;
 export type AquiferJson = z.output<typeof aquiferSchema>;

@@ -158,3 +158,31 @@ describe('headDependent entries from shapes', () => {
     expect(exchangeDifference({}, c)).toBe('leakage differs');
   });
 });
+
+describe('fixedHeads beside other boundaries', () => {
+  it('may be empty when a head-dependent boundary or leakage holds the level (physics.md), and the solve matches the 1-D solution', async () => {
+    // A linear boundary on the west edge (H = 50, C = 4 per cell) and a drain-free east: recharge R over 20 x 10
+    // cells of 10 m leaves through the west cells only: per row Q = R * 20 * 100 m² = 100 * 20 * R, and the head
+    // under the west cells is H + Q / C.
+    const R = 0.001;
+    const path = join(dir, 'no-fixed.json');
+    writeFileSync(path, JSON.stringify({
+      aquifer: { conductivity: 'k.tif', thickness: 10 },
+      fixedHeads: [],
+      recharge: R,
+      headDependent: [{ name: 'west-bank', kind: 'linear', edge: 'west', head: 50, conductance: 4 }],
+      solver: { tolerance: 1e-12 },
+    }));
+    const { model } = await loadScenario(path);
+    const r = solveModel(model);
+    const q = R * NX * CELL * CELL;
+    expect(r.budget.terms.find((t) => t.term === 'west-bank')!.outflow).toBeCloseTo(q * NY, 6);
+    for (let row = 0; row < NY; row++) expect(r.head[row * NX]!).toBeCloseTo(50 + q / 4, 6);
+  });
+
+  it('still needs an entry when nothing else holds the level', async () => {
+    const path = join(dir, 'none.json');
+    writeFileSync(path, JSON.stringify({ aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [] }));
+    await expect(loadScenario(path)).rejects.toThrowError(/fixedHeads: needs at least one entry/);
+  });
+});

@@ -96,7 +96,7 @@ describe('parseScenarioJson', () => {
     expect(lines).toEqual([
       'scenario.json: units.length: expected one of "m", "ft", got the string "meters"',
       'scenario.json: aquifer.thickness: must be > 0 (got -1)',
-      'scenario.json: fixedHeads: needs at least one entry: without a fixed head the head is undetermined',
+      'scenario.json: fixedHeads: needs at least one entry: without a fixed head (or a head-dependent boundary or leakage) the head is undetermined',
       'scenario.json: pointCrs: must be an EPSG code such as "EPSG:4326"',
       'scenario.json: solver.tolerance: must be < 1 (got 2)',
       'scenario.json: solver.maxIterations: expected a whole number, got 1.5',
