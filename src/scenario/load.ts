@@ -205,6 +205,8 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
 function quantityOf(key: string): Quantity {
   if (key === 'aquifer.conductivity' || key === 'recharge') return 'velocity';
   if (key === 'aquifer.porosity') return 'fraction';
+  if (key.endsWith('.conductance')) return 'area-rate';
+  if (key === 'leakage.leakance') return 'rate';
   return 'length'; // thickness, top, bottom, ground surface, fixed heads
 }
 
