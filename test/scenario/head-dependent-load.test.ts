@@ -186,3 +186,40 @@ describe('fixedHeads beside other boundaries', () => {
     await expect(loadScenario(path)).rejects.toThrowError(/fixedHeads: needs at least one entry/);
   });
 });
+
+describe('headDependent and leakage from rasters', () => {
+  it('takes the cells with a stage, their conductance and bed bottom, and leakage per cell (nodata: none there)', async () => {
+    const stage = new Float64Array(NX * NY).fill(NaN);
+    const conductance = new Float64Array(NX * NY).fill(NaN);
+    const bottom = new Float64Array(NX * NY).fill(NaN);
+    for (let row = 0; row < NY; row++) {
+      const p = row * NX + 15;
+      stage[p] = 48 - 0.1 * row;
+      conductance[p] = 20 + row;
+      bottom[p] = 46;
+    }
+    const leakance = new Float64Array(NX * NY).fill(1e-3);
+    leakance[3 * NX + 7] = NaN;
+    const raster = (name: string, values: Float64Array) => writeFileSync(join(dir, name), encodeFloat32GeoTiff(g, values, { nodata: -9999 }));
+    raster('stage.tif', stage);
+    raster('cond.tif', conductance);
+    raster('bed.tif', bottom);
+    raster('leak.tif', leakance);
+    const path = scenario('rasters.json', {
+      headDependent: [{ name: 'stream', kind: 'river', raster: 'stage.tif', conductance: 'cond.tif', bottom: 'bed.tif' }],
+      leakage: { sourceHead: 51, leakance: 'leak.tif' },
+    });
+    const { model } = await loadScenario(path);
+    const entry = model.headDependent![0]!;
+    expect(Array.from(entry.cells)).toEqual(Array.from({ length: NY }, (_, row) => row * NX + 15));
+    expect(Array.from(entry.conductance)).toEqual(Array.from({ length: NY }, (_, row) => 20 + row));
+    expect(entry.heads[2]).toBeCloseTo(47.8, 5);
+    expect(Array.from(entry.bottom!)).toEqual(new Array(NY).fill(46));
+    const r = solveModel(model);
+    const leak = r.system.terms.find((t) => t.label === 'leakage')!;
+    // Every cell but the fixed west column and the one without a leakance.
+    expect(leak.cells.length).toBe(NX * NY - NY - 1);
+    expect(Array.from(leak.cells)).not.toContain(3 * NX + 7);
+    expect(Math.abs(r.budget.discrepancyPercent)).toBeLessThan(1e-8);
+  });
+});
