@@ -361,6 +361,8 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   solveCase('hd-duplicate-name', 'a drain named like a fixed-head group', { headDependent: [{ name: 'west', kind: 'drain', edge: 'north', head: 48, conductance: 10 }] }, 2, /headDependent\[0\]\.name: "west" is already the name of fixedHeads\[0\]/);
   file('ditch-line.geojson', JSON.stringify({ type: 'FeatureCollection', crs: crsMember, features: [{ type: 'Feature', properties: {}, geometry: { type: 'LineString', coordinates: [[X0 + 250, Y0 - 150], [X0 + 950, Y0 - 150]] } }] }));
   solveCase('hd-line-without-width', 'a ditch line with a leakance but no width', { headDependent: [{ name: 'ditch', kind: 'drain', shape: 'ditch-line.geojson', head: 48, leakance: 1 }] }, 2, /headDependent\[0\]: "ditch-line\.geojson" has lines, so "leakance" needs "width"/);
+  solveCase('hd-magnitude-conductance', 'a river conductance of 1e200', { headDependent: [{ name: 'river', kind: 'river', edge: 'north', head: 48, conductance: 1e200 }] }, 2, /headDependent\[0\]: conductance 1\.000e\+200 at row 0, col 0 lies outside 1e-100 to 1e100/);
+  solveCase('leakage-magnitude-head', 'a leakage source head of 1e20', { leakage: { sourceHead: 1e20, leakance: 1e-4 } }, 2, /leakage\.sourceHead: source head 1\.000e\+20 at row 0, col 0 exceeds 1e15/);
   // East of the wall (column 8) only a drain holds the level; a well there lowers the head below the drain level.
   solveCase(
     'hd-drains-run-dry',

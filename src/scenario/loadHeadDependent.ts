@@ -20,6 +20,7 @@ import type { ShapeCollection } from './geojson.js';
 import type { HeadDependentEntry, LeakageEntry } from './schema.js';
 import type { FixedHeadInput, HeadDependentInput, LeakageInput } from './types.js';
 import { exchangeCells } from './exchangeShapes.js';
+import { CARRIED_RANGE, HEAD_LIMIT } from './magnitudes.js';
 
 /** What this module needs of the loader (load.ts). */
 export interface ExchangeLoader {
@@ -156,9 +157,25 @@ async function resolveEntry(loader: ExchangeLoader, entry: HeadDependentEntry, s
   return { ...base, cells, heads, conductance, bottom, reach, reachNames, ...(activeOnly ? { activeOnly } : {}) };
 }
 
+/** Magnitudes the arithmetic carries (magnitudes.ts): heads within ±1e15, a non-zero conductance within 1e-100..1e100. */
+function checkMagnitude(loader: ExchangeLoader, key: string, what: string, value: number, grid: Grid, p: number, head: boolean): void {
+  const bad = head ? Math.abs(value) > HEAD_LIMIT : value !== 0 && !(value >= CARRIED_RANGE.min && value <= CARRIED_RANGE.max);
+  if (!bad) return;
+  throw inputError(`${loader.label}: ${key}: ${what} ${value.toExponential(3)} at ${cellText(grid, p)} ${head ? 'exceeds 1e15' : 'lies outside 1e-100 to 1e100'}, the range the flow arithmetic carries`, {
+    key,
+    cell: { row: Math.floor(p / grid.nx), col: p % grid.nx },
+    hint: 'check the units and the nodata value',
+  });
+}
+
 /** The warnings of an entry: perched river reaches, drains below the aquifer bottom. */
 function checkEntry(loader: ExchangeLoader, entry: HeadDependentInput, grid: Grid, aquiferBottom: Float64Array | number | undefined): void {
   const { cells, heads, bottom } = entry;
+  for (let k = 0; k < cells.length; k++) {
+    checkMagnitude(loader, entry.source, entry.kind === 'drain' ? 'level' : 'stage', heads[k]!, grid, cells[k]!, true);
+    if (bottom && Number.isFinite(bottom[k]!)) checkMagnitude(loader, entry.source, 'bed bottom', bottom[k]!, grid, cells[k]!, true);
+    checkMagnitude(loader, entry.source, 'conductance', entry.conductance[k]!, grid, cells[k]!, false);
+  }
   if (entry.kind === 'river' && bottom) {
     let perched = 0;
     let first = -1;
@@ -234,7 +251,17 @@ export async function loadLeakage(
     }
     return values;
   };
-  return { name, sourceHead: await field('sourceHead'), leakance: await field('leakance') };
+  const result = { name, sourceHead: await field('sourceHead'), leakance: await field('leakance') };
+  const [, pw, , , , ph] = reference.grid.transform;
+  const area = Math.abs(pw * ph);
+  for (let p = 0; p < reference.grid.nx * reference.grid.ny; p++) {
+    const hs = fieldAt(result.sourceHead, p);
+    const l = fieldAt(result.leakance, p);
+    if (Number.isFinite(hs)) checkMagnitude(loader, 'leakage.sourceHead', 'source head', hs, reference.grid, p, true);
+    if (Number.isFinite(l) && l > 0) checkMagnitude(loader, 'leakage.leakance', 'leakance × cell area', l * area, reference.grid, p, false);
+    if (typeof result.sourceHead === 'number' && typeof result.leakance === 'number') break;
+  }
+  return result;
 }
 
 /** Why two models' head-dependent boundaries or leakage differ (for compare's operator sharing), or null. */
