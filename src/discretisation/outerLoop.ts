@@ -82,7 +82,7 @@ export function* solveOuter(
     if (stopReason) return { ...answer, outer: { iterations: history.length, stopReason, history } };
     previous = head;
     // A region held only by cells that switched off (drains run dry) has no level left: report it, never solve it.
-    checkRegions(system.grid, system.active, anchorMask(system.terms, head.length), system.conductanceEast, system.conductanceSouth, SWITCHED_OFF_HINT);
+    if (stateChanges > 0) checkRegions(system.grid, system.active, anchorMask(system.terms, head.length), system.conductanceEast, system.conductanceSouth, SWITCHED_OFF_HINT);
     const next = linearise(system, system.operator.unknown, head);
     system.operator.diag.set(next.diag);
     system.rhs = next.rhs;
