@@ -12,8 +12,10 @@ export interface RateOutcome {
   maxDrawdown: number;
   /** Drawdown at each observation point, by id. */
   atObservations: Record<string, number>;
-  /** Share of the added pumping taken from each fixed-head group and recharge, percent. */
+  /** Share of the added pumping taken from each budget term (boundaries, recharge), percent. */
   sources: Record<string, number | null>;
+  /** The same per reach of a boundary given as several features, e.g. "river: upper reach" (these split their term). */
+  reaches: Record<string, number | null>;
   /** True when the variant reused the baseline's operator and solver set-up. */
   sharedOperator: boolean;
   drawdown: Float64Array | null;
@@ -35,7 +37,8 @@ export async function compareWellRates(
     rate: rates[k]!,
     maxDrawdown: v.maxDrawdown?.value ?? NaN,
     atObservations: Object.fromEntries(v.observations.map((o) => [o.id, o.drawdown])),
-    sources: Object.fromEntries(v.sources.terms.map((t) => [t.term, t.percentOfAddedPumping])),
+    sources: Object.fromEntries(v.sources.terms.filter((t) => t.partOf === undefined).map((t) => [t.term, t.percentOfAddedPumping])),
+    reaches: Object.fromEntries(v.sources.terms.filter((t) => t.partOf !== undefined).map((t) => [t.term, t.percentOfAddedPumping])),
     sharedOperator: v.sharedOperator,
     drawdown: v.drawdown,
   }));

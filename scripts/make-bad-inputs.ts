@@ -347,6 +347,31 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   file('lake-nohead.geojson', JSON.stringify({ type: 'FeatureCollection', crs: crsMember, features: [{ type: 'Feature', properties: { level: 'high' }, geometry: { type: 'Polygon', coordinates: [ring(X0 + 300, Y0 - 500, 200)] } }] }));
   solveCase('shape-bad-head-property', 'headProperty "level" holds text', { fixedHeads: [{ edge: 'west', head: 50 }, { shape: 'lake-nohead.geojson', headProperty: 'level' }] }, 2, /lake-nohead\.geojson.*level/);
 
+  // --- head-dependent boundaries and leakage -----------------------------------------------------------------
+  const fixedWest = { edge: 'west', head: 50 };
+  solveCase('hd-fixed-overlap', 'a linear boundary on the west edge, which is also a fixed head', { headDependent: [{ name: 'bank', kind: 'linear', edge: 'west', head: 49, conductance: 10 }] }, 2, /headDependent\[0\] \("bank"\) and the fixed-head entry "west" both hold the cell at row 0, col 0/);
+  solveCase('hd-negative-conductance', 'a river with conductance -5', { headDependent: [{ name: 'river', kind: 'river', edge: 'north', head: 48, conductance: -5 }] }, 2, /headDependent\[0\]\.conductance: a conductance cannot be negative/);
+  file('cond-negative-row2.tif', encodeFloat32GeoTiff(baseGrid, k.map((_, p) => (p === 4 ? -3 : 10))));
+  solveCase('hd-negative-conductance-cell', 'a conductance raster with -3 on a cell of the north edge', { headDependent: [{ name: 'ditch', kind: 'drain', edge: 'north', head: 48, conductance: 'cond-negative-row2.tif' }] }, 2, /headDependent\[0\]\.conductance "cond-negative-row2\.tif": negative conductance -3 at row 0, col 4, a cell of "ditch"/);
+  solveCase('leakage-negative', 'a leakance of -1e-4', { leakage: { sourceHead: 52, leakance: -1e-4 } }, 2, /leakage\.leakance: a leakance cannot be negative/);
+  file('leakance-negative.tif', encodeFloat32GeoTiff(baseGrid, k.map((_, p) => (p === 5 * NX + 2 ? -2e-4 : 1e-4))));
+  solveCase('leakage-negative-raster', 'a leakance raster with one negative cell', { leakage: { sourceHead: 52, leakance: 'leakance-negative.tif' } }, 2, /leakage\.leakance "leakance-negative\.tif": negative leakance -0\.0002\d* at row 5, col 2/);
+  solveCase('hd-bottom-on-drain', 'a bed bottom given for a drain', { headDependent: [{ name: 'ditch', kind: 'drain', edge: 'north', head: 48, conductance: 10, bottom: 40 }] }, 2, /headDependent\[0\]\.bottom: only a river has a bed bottom/);
+  solveCase('hd-no-conductance', 'a river without conductance or leakance', { headDependent: [{ name: 'river', kind: 'river', edge: 'north', head: 48 }] }, 2, /headDependent\[0\]\.conductance: needs "conductance"/);
+  solveCase('hd-duplicate-name', 'a drain named like a fixed-head group', { headDependent: [{ name: 'west', kind: 'drain', edge: 'north', head: 48, conductance: 10 }] }, 2, /headDependent\[0\]\.name: "west" is already the name of fixedHeads\[0\]/);
+  file('ditch-line.geojson', JSON.stringify({ type: 'FeatureCollection', crs: crsMember, features: [{ type: 'Feature', properties: {}, geometry: { type: 'LineString', coordinates: [[X0 + 250, Y0 - 150], [X0 + 950, Y0 - 150]] } }] }));
+  solveCase('hd-line-without-width', 'a ditch line with a leakance but no width', { headDependent: [{ name: 'ditch', kind: 'drain', shape: 'ditch-line.geojson', head: 48, leakance: 1 }] }, 2, /headDependent\[0\]: "ditch-line\.geojson" has lines, so "leakance" needs "width"/);
+  solveCase('hd-magnitude-conductance', 'a river conductance of 1e200', { headDependent: [{ name: 'river', kind: 'river', edge: 'north', head: 48, conductance: 1e200 }] }, 2, /headDependent\[0\]: conductance 1\.000e\+200 at row 0, col 0 lies outside 1e-100 to 1e100/);
+  solveCase('leakage-magnitude-head', 'a leakage source head of 1e20', { leakage: { sourceHead: 1e20, leakance: 1e-4 } }, 2, /leakage\.sourceHead: source head 1\.000e\+20 at row 0, col 0 exceeds 1e15/);
+  // East of the wall (column 8) only a drain holds the level; a well there lowers the head below the drain level.
+  solveCase(
+    'hd-drains-run-dry',
+    'a region held only by a drain, with a well that draws its head below the drain level',
+    { ...aquifer('k-wall.tif'), fixedHeads: [fixedWest], headDependent: [{ name: 'ditch', kind: 'drain', edge: 'east', head: 45, conductance: 10 }], wells: [{ id: 'E1', ...centre(4, 10), rate: -300 }], observations: [] },
+    2,
+    /no fixed head[^]*drains .* switched off/,
+  );
+
   // --- compare -----------------------------------------------------------------------------------------------
   {
     const path = file('compare-bad-variant.json', JSON.stringify({ ...baseScenario(), variants: [{ name: 'deeper', wells: [{ id: 'NEW-1', ...hole, rate: -50 }] }] }, null, 2));

@@ -1,6 +1,7 @@
 /**
  * Generate the bundled demo in data/: an invented valley aquifer (the "Talvorin valley", a made-up name) with
- * heterogeneous conductivity, variable thickness, a river as fixed heads, a fixed-head downstream edge, areal
+ * heterogeneous conductivity, variable thickness, a river with a resistant bed in three reaches (one held up by a
+ * weir, losing water), a field-drain ditch, a gravel-pit lake and a downstream edge as fixed heads, areal
  * recharge, two supply wells and three observation wells, plus a variant with a third well.
  *
  * Deterministic: a seeded generator makes the same files on every run. Run with `npm run make-demo-data`
@@ -31,6 +32,14 @@ const RIVER_STAGE_DOWNSTREAM = 100.4; // m, at its last cell before the east edg
 const EAST_EDGE_HEAD = 99.0; // m
 const PIT_LAKE_LEVEL = 103.2; // m, surveyed water level of the invented gravel pit
 const RECHARGE = 0.0004; // m/d
+const RIVER_BED_DEPTH = 2.0; // m, from the stage down to the bottom of the bed sediments
+const RIVER_LEAKANCE = 2.0; // 1/d, bed conductivity / bed thickness (1 m/d over 0.5 m of sandy bed)
+const RIVER_WIDTH = 15; // m, wetted width
+const WEIR_RAISE = 3.5; // m, how far above the natural stage the invented mill weir holds the pool behind it
+const REACH_ENDS = [80, 140]; // columns where the upper reach ends and the impounded reach ends
+const DITCH_LEAKANCE = 1.0; // 1/d
+const DITCH_WIDTH = 1.5; // m
+const DITCH_DEPTH = 0.8; // m, the ditch level below the head the aquifer has there without it
 
 const grid: Grid = {
   nx: NX,
@@ -104,7 +113,6 @@ const round = (v: number, decimals: number): number => Math.round(v * 10 ** deci
 interface DemoRasters {
   conductivity: Float64Array;
   thickness: Float64Array;
-  riverStage: Float64Array;
   riverCells: Uint8Array;
   active: Uint8Array;
 }
@@ -154,14 +162,12 @@ function buildRasters(): DemoRasters {
     }
     previous = row;
   }
-  const riverStage = new Float64Array(n).fill(Number.NaN);
-  path.forEach((p, k) => {
+  // The cells the river line (river.geojson) runs through, for keeping wells clear of it.
+  path.forEach((p) => {
     if (!active[p]) throw new Error(`demo generator: river cell ${p} is outside the valley floor`);
     riverCells[p] = 1;
-    const t = k / (path.length - 1);
-    riverStage[p] = round(RIVER_STAGE_UPSTREAM + (RIVER_STAGE_DOWNSTREAM - RIVER_STAGE_UPSTREAM) * t, 2);
   });
-  return { conductivity, thickness, riverStage, riverCells, active };
+  return { conductivity, thickness, riverCells, active };
 }
 
 /** Whether every cell within `clearance` cells (a square) of (row, col) is active and not a river cell. */
@@ -210,6 +216,43 @@ function pointIn(cell: { row: number; col: number }, dx: number, dy: number): { 
   return { x: X0 + (cell.col + 0.5) * CELL + dx, y: Y0 - (cell.row + 0.5) * CELL + dy };
 }
 
+/** Map coordinates of a fractional (row, col) cell position's centre point. */
+function mapPoint(row: number, col: number): { x: number; y: number } {
+  return { x: X0 + (col + 0.5) * CELL, y: Y0 - (row + 0.5) * CELL };
+}
+
+/**
+ * The river as three GeoJSON lines (reaches) along the meander riverRow(col), with a stage and a bed bottom per
+ * vertex: natural stage falling linearly along the river, the middle reach held WEIR_RAISE above it by an invented
+ * mill weir at its downstream end (so that it stands above the aquifer and loses water to it).
+ */
+function riverReaches(toLonLat: ReturnType<typeof makeTransform>): object {
+  const lastCol = NX - 5;
+  const natural = (col: number) => RIVER_STAGE_UPSTREAM + ((RIVER_STAGE_DOWNSTREAM - RIVER_STAGE_UPSTREAM) * col) / lastCol;
+  const spans: Array<{ name: string; from: number; to: number; raise: (col: number) => number }> = [
+    { name: 'upper reach', from: 0, to: REACH_ENDS[0]!, raise: () => 0 },
+    // The weir's pool: a level surface WEIR_RAISE above the natural stage at the weir, back to where the natural stage reaches it.
+    { name: 'impounded reach', from: REACH_ENDS[0]!, to: REACH_ENDS[1]!, raise: (col) => Math.max(0, natural(REACH_ENDS[1]!) + WEIR_RAISE - natural(col)) },
+    { name: 'lower reach', from: REACH_ENDS[1]!, to: lastCol, raise: () => 0 },
+  ];
+  const features = spans.map((span, k) => {
+    const coordinates: number[][] = [];
+    const stage: number[] = [];
+    const bed: number[] = [];
+    for (let col = span.from; col <= span.to; col++) {
+      // The first vertex sits on the west edge so that the river enters the model there.
+      const at = mapPoint(riverRow(col), col);
+      const v = toLonLat.forward(col === 0 ? X0 + 1 : at.x, at.y, 'river');
+      coordinates.push([round(v.x, 7), round(v.y, 7)]);
+      const h = round(natural(col) + span.raise(col), 2);
+      stage.push(h);
+      bed.push(round(h - RIVER_BED_DEPTH, 2));
+    }
+    return { type: 'Feature', id: `reach-${k + 1}`, properties: { name: span.name, stage, bed }, geometry: { type: 'LineString', coordinates } };
+  });
+  return { type: 'FeatureCollection', features };
+}
+
 async function main(): Promise<void> {
   const here = dirname(fileURLToPath(import.meta.url));
   const outDir = resolve(process.argv[2] ?? join(here, '..', '..', 'data'));
@@ -219,7 +262,8 @@ async function main(): Promise<void> {
   const description = 'Talvorin valley demo (invented data)';
   writeFileSync(join(outDir, 'conductivity.tif'), encodeFloat32GeoTiff(grid, d.conductivity, { description: `${description}: hydraulic conductivity, m/d` }));
   writeFileSync(join(outDir, 'thickness.tif'), encodeFloat32GeoTiff(grid, d.thickness, { description: `${description}: saturated thickness, m` }));
-  writeFileSync(join(outDir, 'river_stage.tif'), encodeFloat32GeoTiff(grid, d.riverStage, { description: `${description}: river stage, m` }));
+  const toLonLat = makeTransform(32633, 4326);
+  writeFileSync(join(outDir, 'river.geojson'), `${JSON.stringify(riverReaches(toLonLat), null, 2)}\n`);
 
   // Supply wells where the channel is most permeable, at least 8 cells (400 m) from the river; observation wells
   // a few hundred metres from them, and one upstream away from pumping.
@@ -253,7 +297,6 @@ async function main(): Promise<void> {
   // at its surveyed water level: a fixed head from a shape.
   const pit = siteNear(d, Math.round(valleyAxis(185)) + 30, 185, 6);
   const centre = pointIn(pit, 0, 0);
-  const toLonLat = makeTransform(32633, 4326);
   const ring: number[][] = [];
   for (let k = 0; k <= 12; k++) {
     const angle = (2 * Math.PI * (k % 12)) / 12;
@@ -267,14 +310,42 @@ async function main(): Promise<void> {
   };
   writeFileSync(join(outDir, 'gravel_pit.geojson'), `${JSON.stringify(pitLake, null, 2)}\n`);
 
-  const scenario = (observed: number[]) => ({
+  // A field-drain ditch in the farmland on the far side of PW-1 from the river, 600 m from the well, 2 km long.
+  const side = pw1.row > riverRow(pw1.col) ? 1 : -1;
+  const ditchCols = [pw1.col - 20, pw1.col - 7, pw1.col + 6, pw1.col + 20];
+  const ditchRows = ditchCols.map((col, k) => pw1.row + side * (12 + (k % 2)));
+  ditchCols.forEach((col, k) => {
+    if (!clearOfRiver(d, ditchRows[k]!, col, 2)) throw new Error(`demo generator: the ditch vertex at row ${ditchRows[k]}, col ${col} is off the valley floor`);
+  });
+  const ditchLine = (level: number[]) => ({
+    type: 'FeatureCollection',
+    features: [
+      {
+        type: 'Feature',
+        id: 'ditch-1',
+        properties: { name: 'field-drain ditch', level },
+        geometry: {
+          type: 'LineString',
+          coordinates: ditchCols.map((col, k) => {
+            const v = toLonLat.forward(mapPoint(ditchRows[k]!, col).x, mapPoint(ditchRows[k]!, col).y, 'ditch');
+            return [round(v.x, 7), round(v.y, 7)];
+          }),
+        },
+      },
+    ],
+  });
+
+  const scenario = (observed: number[], withDitch: boolean) => ({
     title: 'Talvorin valley wellfield (invented demo), baseline',
     units: { length: 'm', time: 'd' },
     aquifer: { conductivity: 'conductivity.tif', thickness: 'thickness.tif', anisotropy: 1.0 },
     fixedHeads: [
-      { raster: 'river_stage.tif', name: 'river' },
       { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
       { shape: 'gravel_pit.geojson', headProperty: 'level', name: 'gravel-pit' },
+    ],
+    headDependent: [
+      { name: 'river', kind: 'river', shape: 'river.geojson', headProperty: 'stage', bottomProperty: 'bed', leakance: RIVER_LEAKANCE, width: RIVER_WIDTH },
+      ...(withDitch ? [{ name: 'field-drains', kind: 'drain', shape: 'field_drain.geojson', headProperty: 'level', leakance: DITCH_LEAKANCE, width: DITCH_WIDTH }] : []),
     ],
     recharge: RECHARGE,
     wells,
@@ -293,14 +364,21 @@ async function main(): Promise<void> {
     ],
   });
 
-  // Solve the baseline once to invent observed heads that a field campaign could plausibly have measured.
+  // Solve once without the ditch to set its level DITCH_DEPTH below the head there, so that it runs in the baseline.
   const scenarioPath = join(outDir, 'valley.json');
-  writeFileSync(scenarioPath, `${JSON.stringify(scenario([100, 100, 100]), null, 2)}\n`);
+  writeFileSync(scenarioPath, `${JSON.stringify(scenario([100, 100, 100], false), null, 2)}\n`);
+  const before = await solveScenarioFile(scenarioPath);
+  if (!before.stats.converged) throw new Error('demo generator: the baseline without the ditch did not converge');
+  const ditchLevels = ditchCols.map((col, k) => round(before.head[ditchRows[k]! * NX + col]! - DITCH_DEPTH, 2));
+  writeFileSync(join(outDir, 'field_drain.geojson'), `${JSON.stringify(ditchLine(ditchLevels), null, 2)}\n`);
+
+  // Solve the baseline once to invent observed heads that a field campaign could plausibly have measured.
+  writeFileSync(scenarioPath, `${JSON.stringify(scenario([100, 100, 100], true), null, 2)}\n`);
   const result = await solveScenarioFile(scenarioPath);
   if (!result.stats.converged) throw new Error('demo generator: the baseline did not converge');
   const deviation = normal(seeded(SEED + 1));
   const observed = result.observations.map((o) => round(o.simulated + 0.25 * deviation(), 2));
-  writeFileSync(scenarioPath, `${JSON.stringify(scenario(observed), null, 2)}\n`);
+  writeFileSync(scenarioPath, `${JSON.stringify(scenario(observed, true), null, 2)}\n`);
 
   let activeCells = 0;
   let riverCells = 0;
@@ -308,9 +386,9 @@ async function main(): Promise<void> {
     activeCells += d.active[p]!;
     riverCells += d.riverCells[p]!;
   }
-  writeFileSync(join(outDir, 'README.md'), readme(activeCells, riverCells, result.head));
+  writeFileSync(join(outDir, 'README.md'), readme(activeCells, riverCells, result.head, ditchLevels));
   process.stdout.write(
-    `make-demo-data: wrote conductivity.tif, thickness.tif, river_stage.tif, gravel_pit.geojson, valley.json, README.md to ${outDir}\n` +
+    `make-demo-data: wrote conductivity.tif, thickness.tif, river.geojson, field_drain.geojson, gravel_pit.geojson, valley.json, README.md to ${outDir}\n` +
       `  ${activeCells} active cells, ${riverCells} river cells; baseline head ${range(result.head)} m; ` +
       `observed heads ${observed.join(', ')} m\n`,
   );
@@ -326,7 +404,7 @@ function range(values: Float64Array): string {
   return `${min.toFixed(2)} to ${max.toFixed(2)}`;
 }
 
-function readme(activeCells: number, riverCells: number, head: Float64Array): string {
+function readme(activeCells: number, riverCells: number, head: Float64Array, ditchLevels: number[]): string {
   return `# Demo data: the Talvorin valley (invented)
 
 Everything here is invented for demonstration: the valley, its name, the wells and the measurements. No real place,
@@ -343,7 +421,8 @@ A confined sand-and-gravel aquifer fills a valley floor 12 km long, draining fro
 | active cells | ${activeCells} (valley floor); the valley sides and a bedrock knoll inside the valley are inactive (nodata) |
 | \`conductivity.tif\` | hydraulic conductivity K, m/d: a spatially correlated log-normal field, about 30-80 m/d in the sand and gravel channel along the valley axis, about 1-5 m/d on the silty margins |
 | \`thickness.tif\` | aquifer thickness, m: 15 m at the valley margins to 40 m along the axis |
-| \`river_stage.tif\` | the river as fixed heads: ${riverCells} cells meandering along the valley, stage falling from ${RIVER_STAGE_UPSTREAM.toFixed(1)} m where it enters at the west edge to ${RIVER_STAGE_DOWNSTREAM.toFixed(1)} m near the east edge; nodata elsewhere |
+| \`river.geojson\` | the river as a head-dependent boundary (kind \`river\`): three GeoJSON lines (WGS 84), the \`upper reach\`, the \`impounded reach\` and the \`lower reach\`, meandering along the valley over about ${riverCells} cells. Per-vertex properties \`stage\` (falling from ${RIVER_STAGE_UPSTREAM.toFixed(1)} m at the west edge to ${RIVER_STAGE_DOWNSTREAM.toFixed(1)} m near the east edge; the impounded reach held as a level pool up to ${WEIR_RAISE} m above its natural stage by an invented mill weir, so that it loses water to the aquifer) and \`bed\` (the bottom of the bed sediments, ${RIVER_BED_DEPTH} m below the stage). Bed leakance ${RIVER_LEAKANCE} /d, wetted width ${RIVER_WIDTH} m: conductance = leakance x length in the cell x width (about ${RIVER_LEAKANCE * CELL * RIVER_WIDTH} m2/d per 50 m of river) |
+| \`field_drain.geojson\` | a field-drain ditch (kind \`drain\`, outflow only) about 600 m from PW-1 on the side away from the river, level ${ditchLevels.join(', ')} m at its vertices (property \`level\`); leakance ${DITCH_LEAKANCE} /d, width ${DITCH_WIDTH} m |
 | downstream edge | fixed head ${EAST_EDGE_HEAD.toFixed(1)} m on the active cells of the east edge |
 | \`gravel_pit.geojson\` | a flooded gravel pit on the south side of the valley (GeoJSON polygon in WGS 84), fixed at its water level ${PIT_LAKE_LEVEL.toFixed(1)} m (property \`level\`) |
 | recharge | ${RECHARGE} m/d over the whole valley floor |

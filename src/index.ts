@@ -19,7 +19,7 @@ export { cellAt, cellCentre, cellWidth, cellHeight, crsLabel, type Grid, type Cr
 export { loadScenario, resolveScenario, mergeVariant, type ScenarioJson, type VariantJson } from './scenario/load.js';
 export { parseScenarioJson } from './scenario/schema.js';
 export { checkMagnitudes, CARRIED_RANGE, HEAD_LIMIT } from './scenario/magnitudes.js';
-export type { ModelInput, WellInput, ObservationInput, ReceptorInput, FixedHeadInput, SolverSettings, Units } from './scenario/types.js';
+export type { ModelInput, WellInput, ObservationInput, ReceptorInput, FixedHeadInput, HeadDependentInput, HeadDependentKind, LeakageInput, SolverSettings, Units } from './scenario/types.js';
 
 export {
   solveScenarioFile,
@@ -64,7 +64,7 @@ export type { FlowTerm, TermKind } from './discretisation/terms/types.js';
 export { createSolver, solverMethodNames, chooseAutoMethod } from './solvers/registry.js';
 export type { Solver, SolveStats, SolveOptions, StopReason } from './solvers/types.js';
 
-export { waterBudget, type WaterBudget, type BudgetTerm } from './analysis/budget.js';
+export { waterBudget, type WaterBudget, type BudgetTerm, type BudgetPart } from './analysis/budget.js';
 export { sourcesOfWater, type SourcesOfWater, type SourceOfWater } from './analysis/sources.js';
 export {
   wellboreHeads,

@@ -8,6 +8,14 @@ export interface BudgetTerm {
   outflow: number;
   /** True for the term whose change `compare` reports as added pumping (the wells). */
   pumping?: boolean;
+  /** Sub-rows of the term (e.g. a river's reaches), which sum to the term's row; absent when it has none. */
+  parts?: BudgetPart[];
+}
+
+export interface BudgetPart {
+  part: string;
+  inflow: number;
+  outflow: number;
 }
 
 export interface WaterBudget {
@@ -35,7 +43,8 @@ export function waterBudget(system: FlowSystem, head: Float64Array): WaterBudget
       if (f > 0) inflow += f;
       else outflow -= f;
     }
-    return { term: term.label, inflow, outflow, ...(term.pumping ? { pumping: true } : {}) };
+    const parts = term.parts ? partSums(term.parts, flow) : null;
+    return { term: term.label, inflow, outflow, ...(term.pumping ? { pumping: true } : {}), ...(parts ? { parts } : {}) };
   });
   let totalIn = 0;
   let totalOut = 0;
@@ -45,4 +54,17 @@ export function waterBudget(system: FlowSystem, head: Float64Array): WaterBudget
   }
   const mean = (totalIn + totalOut) / 2;
   return { terms, totalIn, totalOut, discrepancyPercent: mean > 0 ? (100 * (totalIn - totalOut)) / mean : 0 };
+}
+
+/** Per part: cell flows summed as the term's row is (positive = inflow). */
+function partSums(parts: { readonly names: readonly string[]; readonly of: Int32Array }, flow: Float64Array): BudgetPart[] {
+  const inflow = new Float64Array(parts.names.length);
+  const outflow = new Float64Array(parts.names.length);
+  for (let k = 0; k < flow.length; k++) {
+    const f = flow[k]!;
+    const i = parts.of[k]!;
+    if (f > 0) inflow[i]! += f;
+    else outflow[i]! -= f;
+  }
+  return parts.names.map((part, i) => ({ part, inflow: inflow[i]!, outflow: outflow[i]! }));
 }

@@ -7,7 +7,7 @@
  * from wells", Civil Engineering 10(5), from memory); reporting the changes as fractions of the added pumping is
  * trade practice. The fractions of the non-well terms sum to 100 % up to the two runs' budget discrepancies.
  */
-import type { WaterBudget } from './budget.js';
+import type { BudgetPart, BudgetTerm, WaterBudget } from './budget.js';
 
 export interface SourceOfWater {
   term: string;
@@ -19,6 +19,8 @@ export interface SourceOfWater {
   netChange: number;
   /** 100 * netChange / addedPumping; null when the pumping did not change. */
   percentOfAddedPumping: number | null;
+  /** Set on a sub-row (a reach of a river): the term it is part of. Sub-rows are not added to the total. */
+  partOf?: string;
 }
 
 export interface SourcesOfWater {
@@ -37,7 +39,7 @@ export function sourcesOfWater(baseline: WaterBudget, variant: WaterBudget): Sou
   const names: string[] = [];
   for (const t of baseline.terms) if (!names.includes(t.term)) names.push(t.term);
   for (const t of variant.terms) if (!names.includes(t.term)) names.push(t.term);
-  const find = (budget: WaterBudget, name: string) => budget.terms.find((t) => t.term === name) ?? { term: name, inflow: 0, outflow: 0 };
+  const find = (budget: WaterBudget, name: string): BudgetTerm => budget.terms.find((t) => t.term === name) ?? { term: name, inflow: 0, outflow: 0 };
 
   const pumped = new Set([...baseline.terms, ...variant.terms].filter((t) => t.pumping).map((t) => t.term));
   let addedPumping = 0;
@@ -61,6 +63,25 @@ export function sourcesOfWater(baseline: WaterBudget, variant: WaterBudget): Sou
     const percent = meaningful ? (100 * netChange) / addedPumping : null;
     if (percent !== null) total += percent;
     terms.push({ term: name, inflowChange, outflowChange, netChange, percentOfAddedPumping: percent });
+    // Reaches: one sub-row each, named "term: reach", after their term (not counted in the total).
+    const partNames: string[] = [];
+    for (const budget of [b, v]) for (const part of budget.parts ?? []) if (!partNames.includes(part.part)) partNames.push(part.part);
+    for (const partName of partNames) {
+      const findPart = (t: { parts?: BudgetPart[] }) => t.parts?.find((x) => x.part === partName) ?? { inflow: 0, outflow: 0 };
+      const pb = findPart(b);
+      const pv = findPart(v);
+      const inChange = pv.inflow - pb.inflow;
+      const outChange = pv.outflow - pb.outflow;
+      const net = inChange - outChange;
+      terms.push({
+        term: `${name}: ${partName}`,
+        inflowChange: inChange,
+        outflowChange: outChange,
+        netChange: net,
+        percentOfAddedPumping: meaningful ? (100 * net) / addedPumping : null,
+        partOf: name,
+      });
+    }
   }
   return { addedPumping, terms, totalPercent: meaningful ? total : null };
 }

@@ -10,6 +10,8 @@ export interface InspectReport {
   grid: { nx: number; ny: number; dx: number; dy: number; crs: string; bounds: { minX: number; minY: number; maxX: number; maxY: number } };
   cells: { total: number; active: number; inactive: number; fixedHead: number; unknowns: number; regions: number };
   fixedHeads: Array<{ name: string; cells: number; ignoredOnInactive: number }>;
+  /** Every other term that acts on cells (head-dependent boundaries, leakage, ...): its cells and whether it switches. */
+  boundaries: Array<{ term: string; cells: number; ignoredOnInactive: number; switching: boolean; reaches: number }>;
   conductivity: { min: number; max: number };
   wells: Array<{ id: string; row: number; col: number; rate: number }>;
   observations: number;
@@ -57,6 +59,9 @@ export function inspectReport(
       regions: system.counts.regions,
     },
     fixedHeads: system.groups.map((name, g) => ({ name, cells: groupCells[g]!, ignoredOnInactive: system.counts.fixedOnInactive[g]! })),
+    boundaries: system.terms
+      .filter((t) => t.prescribedHeads === null && !t.pumping && (t.anchors || t.nonlinear))
+      .map((t) => ({ term: t.label, cells: t.cells.length, ignoredOnInactive: t.ignoredCells, switching: t.nonlinear, reaches: t.parts?.names.length ?? 0 })),
     conductivity: { min: kMin, max: kMax },
     wells: model.wells.map((w, k) => {
       const p = cells[k]!;
@@ -85,6 +90,10 @@ export function formatInspect(r: InspectReport): string {
   out.push(`Conductivity ${r.conductivity.min.toPrecision(4)} to ${r.conductivity.max.toPrecision(4)} on active cells`);
   for (const f of r.fixedHeads) {
     out.push(`Fixed head   ${f.name}: ${L(f.cells)} cells${f.ignoredOnInactive ? ` (${L(f.ignoredOnInactive)} on inactive cells ignored)` : ''}`);
+  }
+  for (const b of r.boundaries) {
+    const extra = [b.switching ? 'switching' : '', b.reaches ? `${b.reaches} reaches` : '', b.ignoredOnInactive ? `${L(b.ignoredOnInactive)} on inactive cells ignored` : ''].filter(Boolean);
+    out.push(`Boundary     ${b.term}: ${L(b.cells)} cells${extra.length ? ` (${extra.join(', ')})` : ''}`);
   }
   for (const w of r.wells) out.push(`Well         ${w.id}: row ${w.row}, col ${w.col}, rate ${w.rate}`);
   out.push(`Observations ${r.observations}`);

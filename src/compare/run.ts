@@ -10,6 +10,7 @@
  * so bad input fails fast. The solves run as a plan: inline (`compareModels`) or by an executor
  * (`compareModelsWith`, e.g. the worker thread, so that signals are answered at once).
  */
+import { exchangeDifference } from '../scenario/loadHeadDependent.js';
 import { dirname } from 'node:path';
 import { assembleSystem, withSources } from '../discretisation/assemble.js';
 import { drawdownExtremes, drawdownField, pointDrawdown, totalWithdrawal, wellboreDrawdowns } from '../analysis/drawdown.js';
@@ -193,6 +194,8 @@ export function operatorDifference(baseline: ModelInput, variant: ModelInput, op
   for (let g = 0; g < a.length; g++) {
     if (a[g]!.name !== b[g]!.name || !fieldsEqual(a[g]!.cells, b[g]!.cells) || !fieldsEqual(a[g]!.heads, b[g]!.heads)) return 'fixedHeads differ';
   }
+  const exchange = exchangeDifference(baseline, variant);
+  if (exchange !== null) return exchange;
   if (options.method === undefined && baseline.solver.method !== variant.solver.method) return 'solver.method differs';
   if (options.relaxation === undefined && baseline.solver.relaxation !== variant.solver.relaxation) return 'solver.relaxation differs';
   return null;

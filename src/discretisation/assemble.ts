@@ -2,7 +2,7 @@ import { cellCentre, cellHeight, cellWidth, type Grid } from '../grid.js';
 import { inputError, PiezomapError } from '../errors.js';
 import { fieldAt } from '../field.js';
 import { TERM_KINDS } from './terms/registry.js';
-import type { FlowTerm, TermContext } from './terms/types.js';
+import { anchorMask, type FlowTerm, type TermContext } from './terms/types.js';
 import type { ModelInput } from '../scenario/types.js';
 import { GridOperator } from '../solvers/operator.js';
 
@@ -148,8 +148,7 @@ export function assembleSystem(model: ModelInput): FlowSystem {
   // Budget order: the registry's, Dirichlet kinds included where the registry lists them.
   const terms = TERM_KINDS.flatMap((k) => (k.dirichlet ? dirichlet.filter((t) => t.kind === k.kind) : others.filter((t) => t.kind === k.kind)));
 
-  const anchor = new Uint8Array(n);
-  for (const term of terms) if (term.anchors) for (let k = 0; k < term.cells.length; k++) anchor[term.cells[k]!] = 1;
+  const anchor = anchorMask(terms, n);
   const regions = checkRegions(grid, active, anchor, conductanceEast, conductanceSouth);
 
   const unknown = new Uint8Array(n);
@@ -289,6 +288,7 @@ export function checkRegions(
   anchor: Uint8Array,
   conductanceEast: Float64Array,
   conductanceSouth: Float64Array,
+  hint?: string,
 ): number {
   const { nx, ny } = grid;
   const n = nx * ny;
@@ -336,9 +336,9 @@ export function checkRegions(
   if (floatingCount > 0) {
     const more = floatingCount > floating.length ? `\n  and ${floatingCount - floating.length} more such region(s)` : '';
     throw inputError(
-      `${floatingCount} connected active region${floatingCount === 1 ? ' has' : 's have'} no fixed head, so the steady head there is undetermined:\n  ` +
+      `${floatingCount} connected active region${floatingCount === 1 ? ' has' : 's have'} no fixed head and no boundary or leakage that sets its level, so the steady head there is undetermined:\n  ` +
         floating.join('\n  ') + more,
-      { hint: 'add a fixed head that reaches the region, or make it inactive (nodata in the conductivity raster)' },
+      { hint: hint ?? 'add a fixed head (or a head-dependent boundary) that reaches the region, or make it inactive (nodata in the conductivity raster)' },
     );
   }
   return regions;

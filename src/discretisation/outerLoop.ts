@@ -8,7 +8,8 @@
  * with cycle detection (a switch state seen before) and an iteration cap. With linear terms only, the system as
  * assembled is already linearised: one linear solve, no behaviour change.
  */
-import { headsFromSolution, linearise, type FlowSystem } from './assemble.js';
+import { checkRegions, headsFromSolution, linearise, type FlowSystem } from './assemble.js';
+import { anchorMask } from './terms/types.js';
 import { setDiagonal, solveLinear, type Plan, type SessionHandle } from '../executor/plan.js';
 import type { LinearAnswer, LinearSolve } from '../executor/types.js';
 
@@ -17,6 +18,9 @@ export interface OuterSettings {
   headTolerance: number;
   maxOuterIterations: number;
 }
+
+const SWITCHED_OFF_HINT =
+  'its only boundaries are drains (or rivers below their bed) that switched off at the heads reached: with nothing else to hold its level the region has no steady state; add a fixed head or a boundary that can supply water, or reduce the pumping there';
 
 export const DEFAULT_OUTER: OuterSettings = { headTolerance: 1e-6, maxOuterIterations: 50 };
 
@@ -50,8 +54,12 @@ export function* solveOuter(
   const history: OuterReport['history'] = [];
   let previous: Float64Array | null = null;
   let x: Float64Array = start;
+  // Inner iterations over every outer iteration (each solve starts from the previous heads, so the last alone says little).
+  let inner = 0;
   for (;;) {
-    const answer: LinearAnswer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x });
+    const solved: LinearAnswer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x });
+    inner += solved.stats.iterations;
+    const answer: LinearAnswer = { ...solved, stats: { ...solved.stats, iterations: inner } };
     x = answer.x;
     const head = headsFromSolution(system, x);
     let stateChanges = 0;
@@ -73,6 +81,8 @@ export function* solveOuter(
     seen.add(key);
     if (stopReason) return { ...answer, outer: { iterations: history.length, stopReason, history } };
     previous = head;
+    // A region held only by cells that switched off (drains run dry) has no level left: report it, never solve it.
+    if (stateChanges > 0) checkRegions(system.grid, system.active, anchorMask(system.terms, head.length), system.conductanceEast, system.conductanceSouth, SWITCHED_OFF_HINT);
     const next = linearise(system, system.operator.unknown, head);
     system.operator.diag.set(next.diag);
     system.rhs = next.rhs;

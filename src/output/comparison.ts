@@ -4,6 +4,7 @@
  */
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare/types.js';
+import type { SolveResult } from '../analysis/result.js';
 import { calibrationJson, calibrationLine, MAX_PRINTED_ROWS, tidy } from './summary.js';
 import { csvRow } from './csv.js';
 
@@ -121,7 +122,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
       folder: 'baseline',
       converged: base.stats.converged,
       sound: c.baselineProblem === null,
-      solver: { method: base.stats.method, iterations: base.stats.iterations, setupSeconds: tidy(base.stats.setupSeconds), seconds: tidy(base.stats.solveSeconds) },
+      solver: { method: base.stats.method, iterations: base.stats.iterations, ...outerOf(base), setupSeconds: tidy(base.stats.setupSeconds), seconds: tidy(base.stats.solveSeconds) },
       budget: budgetBrief(base),
       withdrawal: tidy(base.model.wells.reduce((sum, w) => sum + (w.rate < 0 ? -w.rate : 0), 0)),
       wells: base.wellbore.map((w) => ({ id: w.id, rate: w.rate, cellHead: tidy(w.cellHead), wellboreHead: tidy(w.wellboreHead), belowMinimum: w.belowMinimum })),
@@ -138,6 +139,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
         method: v.result.stats.method,
         converged: v.result.stats.converged,
         iterations: v.result.stats.iterations,
+        ...outerOf(v.result),
         relativeResidual: v.result.stats.relativeResidual,
         setupSeconds: tidy(v.result.stats.setupSeconds),
         seconds: tidy(v.result.stats.solveSeconds),
@@ -166,6 +168,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
               outflowChange: tidy(t.outflowChange),
               netChange: tidy(t.netChange),
               percentOfAddedPumping: t.percentOfAddedPumping === null ? null : tidy(t.percentOfAddedPumping),
+              ...(t.partOf === undefined ? {} : { partOf: t.partOf }),
             })),
             totalPercent: v.sources.totalPercent === null ? null : tidy(v.sources.totalPercent),
           },
@@ -215,18 +218,18 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
   const L = summary.units.length;
   const T = summary.units.time;
   const variants = summary.variants as VariantJson[];
-  const base = summary.baseline as { sound: boolean; solver: { method: string; iterations: number; setupSeconds: number; seconds: number }; budget: { discrepancyPercent: number }; withdrawal: number };
+  const base = summary.baseline as { sound: boolean; solver: { method: string; iterations: number; outerIterations?: number; setupSeconds: number; seconds: number }; budget: { discrepancyPercent: number }; withdrawal: number };
   const out: string[] = [];
   out.push(`piezomap compare: ${summary.title}`);
   out.push(
-    `Baseline   ${base.sound ? 'converged' : 'NOT a sound result'}: ${base.solver.method}, ${base.solver.iterations} iterations ` +
+    `Baseline   ${base.sound ? 'converged' : 'NOT a sound result'}: ${base.solver.method}, ${base.solver.iterations} iterations${outerText(base.solver)} ` +
       `(setup ${base.solver.setupSeconds.toFixed(2)} s, solve ${base.solver.seconds.toFixed(2)} s); withdrawal ${num(base.withdrawal, 1)} ${L}³/${T}`,
   );
   const calibration = (summary.baseline as { calibration: Record<string, number | null> | null }).calibration;
   if (calibration) out.push(`Calibration (baseline against observed heads)`, calibrationLine(calibration, L));
   for (const v of variants) {
     out.push(
-      `Variant    ${v.name}: ${v.status === 'ok' ? 'converged' : v.status.toUpperCase()}: ${v.solver.iterations} iterations, ` +
+      `Variant    ${v.name}: ${v.status === 'ok' ? 'converged' : v.status.toUpperCase()}: ${v.solver.iterations} iterations${outerText(v.solver as { outerIterations?: number })}, ` +
         (v.sharedOperator ? 'baseline operator and solver set-up reused' : `own set-up ${v.solver.setupSeconds.toFixed(2)} s`) +
         `, solve ${v.solver.seconds.toFixed(2)} s`,
     );
@@ -294,4 +297,13 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
   out.push('');
   out.push(summary.caution);
   return out.join('\n') + '\n';
+}
+
+/** Outer iterations of a run with switching terms (absent for linear runs, so their summaries stay as they were). */
+function outerOf(result: SolveResult): { outerIterations?: number; outerStopReason?: string } {
+  return result.outer.stopReason === 'linear' ? {} : { outerIterations: result.outer.iterations, outerStopReason: result.outer.stopReason };
+}
+
+function outerText(solver: { outerIterations?: number }): string {
+  return solver.outerIterations === undefined ? '' : ` in ${solver.outerIterations} outer iteration(s)`;
 }

@@ -89,6 +89,32 @@ function raster(result: SolveResult, name: string, values: Float64Array, what: s
   };
 }
 
+/**
+ * Per-cell exchange of every term that asks for it (head-dependent boundaries, leakage): `exchange-<name>.tif`,
+ * Float32, the flow into the aquifer per cell (L^3/T, negative = out of the aquifer), nodata where the term has no
+ * cell. Names are the budget term's, with characters other than letters, digits, "-" and "_" replaced by "-".
+ */
+export function exchangeRasters(result: SolveResult, prefix = ''): OutputFile[] {
+  const { system, head } = result;
+  const files: OutputFile[] = [];
+  const used = new Set<string>();
+  for (const term of system.terms) {
+    if (!term.exchangeRaster) continue;
+    const flow = new Float64Array(term.cells.length);
+    term.flow(head, flow);
+    const values = new Float64Array(head.length).fill(NaN);
+    for (let k = 0; k < term.cells.length; k++) values[term.cells[k]!] = flow[k]!;
+    const stem = term.label.replace(/[^A-Za-z0-9_-]+/g, '-');
+    let name = `exchange-${stem}`;
+    for (let k = 2; used.has(name.toLowerCase()); k++) name = `exchange-${stem}-${k}`;
+    used.add(name.toLowerCase());
+    const { units, title } = result.model;
+    const description = `piezomap ${VERSION} exchange with "${term.label}" per cell, into the aquifer positive (${units.length}3/${units.time}): ${title}. ${CAUTION}`;
+    files.push({ name: `${prefix}${name}.tif`, bytes: encodeFloat32GeoTiff(result.model.grid, values, { nodata: -9999, description }) });
+  }
+  return files;
+}
+
 /** Contours, flux and velocity rasters, and the head map of one solve. */
 export function solveProducts(result: SolveResult, options: ProductOptions = {}, prefix = ''): Products {
   if (options.maps === false) return { files: [], maps: [], warnings: [] };

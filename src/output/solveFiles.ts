@@ -8,7 +8,7 @@ import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
-import { reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
+import { exchangeRasters, reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
 import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
 import { budgetCsv, buildSummary, convergenceCsv, type SummaryJson } from './summary.js';
 
@@ -34,6 +34,7 @@ export function resultBundle(result: SolveResult, prefix = '', options: ProductO
   files.push({ name: prefix + 'budget.csv', bytes: budgetCsv(result.budget) });
   files.push({ name: prefix + 'convergence.csv', bytes: convergenceCsv(result.stats.history) });
   if (!sound) return { files, maps: [] };
+  files.push(...exchangeRasters(result, prefix));
   const products = solveProducts(result, options, prefix);
   for (const w of products.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
   files.push(...products.files);

@@ -31,7 +31,7 @@ export interface SummaryJson {
   units: { length: string; time: string };
   grid: Record<string, unknown>;
   solver: Record<string, unknown>;
-  budget: { terms: Array<{ term: string; inflow: number; outflow: number }>; totalIn: number; totalOut: number; discrepancyPercent: number };
+  budget: { terms: Array<{ term: string; inflow: number; outflow: number; parts?: Array<{ part: string; inflow: number; outflow: number }> }>; totalIn: number; totalOut: number; discrepancyPercent: number };
   head: { min: number; max: number; mean: number };
   wells: Array<Record<string, unknown>>;
   observations: Array<Record<string, unknown>>;
@@ -138,7 +138,12 @@ export function calibrationJson(stats: CalibrationStatistics | null): Record<str
 
 export function budgetJson(budget: WaterBudget): SummaryJson['budget'] {
   return {
-    terms: budget.terms.map((t) => ({ term: t.term, inflow: tidy(t.inflow), outflow: tidy(t.outflow) })),
+    terms: budget.terms.map((t) => ({
+      term: t.term,
+      inflow: tidy(t.inflow),
+      outflow: tidy(t.outflow),
+      ...(t.parts ? { parts: t.parts.map((r) => ({ part: r.part, inflow: tidy(r.inflow), outflow: tidy(r.outflow) })) } : {}),
+    })),
     totalIn: tidy(budget.totalIn),
     totalOut: tidy(budget.totalOut),
     discrepancyPercent: tidy(budget.discrepancyPercent),
@@ -210,10 +215,18 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
     `Solver   ${s.method}: ${s.converged ? 'converged' : `NOT converged (${s.stopReason})`} in ${s.iterations} iterations, ` +
       `relative residual ${s.relativeResidual.toExponential(2)} (setup ${s.setupSeconds.toFixed(2)} s, solve ${s.seconds.toFixed(2)} s)`,
   );
+  const outer = summary.solver as { outerIterations?: number; outerStopReason?: string };
+  if (outer.outerIterations !== undefined) {
+    out.push(`         ${outer.outerIterations} outer iteration(s) for switching boundaries (${outer.outerStopReason === 'settled' ? 'settled' : `did NOT settle: ${outer.outerStopReason}`})`);
+  }
   out.push(`Head     min ${num(summary.head.min, 3)} ${L}, max ${num(summary.head.max, 3)} ${L}`);
   out.push(`Budget   (${L}³/${T})`);
   const budgetRows = [['term', 'inflow', 'outflow']];
-  for (const t of summary.budget.terms) budgetRows.push([t.term, num(t.inflow, 2), num(t.outflow, 2)]);
+  for (const t of summary.budget.terms) {
+    budgetRows.push([t.term, num(t.inflow, 2), num(t.outflow, 2)]);
+    // Sub-rows (a river's reaches), indented: they sum to the row above.
+    for (const r of t.parts ?? []) budgetRows.push([`  ${r.part}`, num(r.inflow, 2), num(r.outflow, 2)]);
+  }
   budgetRows.push(['total', num(summary.budget.totalIn, 2), num(summary.budget.totalOut, 2)]);
   appendAll(out, table(budgetRows, [false, true, true]));
   out.push(`  discrepancy ${summary.budget.discrepancyPercent.toExponential(2)} %`);

@@ -7,8 +7,11 @@
  * 9001-9003 are EPSG's).
  */
 
-/** What a value measures: a length (thickness, elevation, head), a length per time (conductivity, recharge), a fraction. */
-export type Quantity = 'length' | 'velocity' | 'fraction';
+/**
+ * What a value measures: a length (thickness, elevation, head), a length per time (conductivity, recharge), a
+ * fraction, an area per time (a boundary conductance), a rate per time (a leakance).
+ */
+export type Quantity = 'length' | 'velocity' | 'fraction' | 'area-rate' | 'rate';
 
 export interface ValueUnits {
   length: 'm' | 'ft';
@@ -33,6 +36,8 @@ const FRACTION_NAMES = ['1', '-', 'fraction', 'dimensionless', 'unitless', 'none
 export function describeExpectedUnit(quantity: Quantity, units: ValueUnits): string {
   if (quantity === 'length') return units.length;
   if (quantity === 'velocity') return `${units.length}/${units.time}`;
+  if (quantity === 'area-rate') return `${units.length}2/${units.time}`;
+  if (quantity === 'rate') return `1/${units.time}`;
   return 'a fraction (no unit)';
 }
 
@@ -42,6 +47,20 @@ export function unitMatches(declared: string, quantity: Quantity, units: ValueUn
   if (quantity === 'fraction') return FRACTION_NAMES.includes(text);
   const lengths = LENGTH_NAMES[units.length];
   if (quantity === 'length') return lengths.includes(text);
+  if (quantity === 'rate') {
+    return TIME_NAMES[units.time].some((time) => [`1/${time}`, `1 / ${time}`, `/${time}`, `per ${time}`, `${time}-1`].includes(text));
+  }
+  if (quantity === 'area-rate') {
+    for (const length of lengths) {
+      for (const square of [`${length}2`, `${length}²`, `${length}^2`, `sq ${length}`]) {
+        for (const time of TIME_NAMES[units.time]) {
+          const forms = [`${square}/${time}`, `${square} / ${time}`, `${square} per ${time}`, `${square} ${time}-1`, `${square}.${time}-1`, `${square}·${time}-1`];
+          if (forms.includes(text)) return true;
+        }
+      }
+    }
+    return false;
+  }
   // L/T, L per T, L T-1, L.T-1, L·T-1
   for (const length of lengths) {
     for (const time of TIME_NAMES[units.time]) {

@@ -59,7 +59,8 @@ export interface ReportRun {
   /** `baseline` or the variant's name. */
   name: string;
   solver: ReportSolver;
-  budget: { terms: Array<{ term: string; inflow: number; outflow: number }>; discrepancyPercent: number };
+  /** `parts`: sub-rows of a term (a river's reaches), shown indented under it; they split the term's row. */
+  budget: { terms: Array<{ term: string; inflow: number; outflow: number; parts?: Array<{ part: string; inflow: number; outflow: number }> }>; discrepancyPercent: number };
   head?: { min: number; max: number };
   /** Largest drawdown against the baseline, for variants. */
   maxDrawdown?: number;
@@ -257,7 +258,8 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   const budgetRows = run.budget.terms.map((t) => {
     totalIn += t.inflow;
     totalOut += t.outflow;
-    return `<tr><th scope="row">${e(t.term)}</th>${num(t.inflow, 2)}${num(t.outflow, 2)}${num(t.inflow - t.outflow, 2)}</tr>`;
+    const parts = (t.parts ?? []).map((r) => `<tr><th scope="row">&emsp;${e(r.part)}</th>${num(r.inflow, 2)}${num(r.outflow, 2)}${num(r.inflow - r.outflow, 2)}</tr>`);
+    return `<tr><th scope="row">${e(t.term)}</th>${num(t.inflow, 2)}${num(t.outflow, 2)}${num(t.inflow - t.outflow, 2)}</tr>${parts.join('')}`;
   });
   parts.push(
     `<div><h3>Water budget (${e(flowUnit)})</h3><table class="data"><thead><tr><th scope="col">Term</th><th scope="col" class="num">In</th><th scope="col" class="num">Out</th><th scope="col" class="num">Net</th></tr></thead><tbody>${budgetRows.join('')}</tbody>` +

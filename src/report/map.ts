@@ -35,7 +35,7 @@ export interface MapInput {
   /** Contours to draw; default: automatic round interval from the values. */
   contours?: ContourSet;
   /** Cells of flow terms drawn hatched (e.g. fixed heads), one legend row per layer; 1 = the term acts on the cell. */
-  cellLayers?: ReadonlyArray<{ legend: string; cells: Uint8Array }>;
+  cellLayers?: ReadonlyArray<{ legend: string; cells: Uint8Array; style?: { colour: string; angle: number } }>;
   wells?: readonly MapPoint[];
   observations?: readonly MapPoint[];
   /** Cell-centred Darcy flux (east- and north-positive) for the flow-direction arrows. */
@@ -118,7 +118,10 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   parts.push(`<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="url(#nodata)"/>`);
   parts.push(cellImage(values, nx, ny, ramp, frame));
   const layers = (input.cellLayers ?? []).filter((layer) => hasAny(layer.cells));
-  for (const layer of layers) parts.push(fixedHeadPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy));
+  // Each layer its own hatching (colour, angle) from the term's legend data; the fixed-head look by default.
+  const fills = layers.map((layer, i) => (layer.style ? `cells${i}` : 'fixedhead'));
+  parts.push(`<defs>${layers.map((layer, i) => (layer.style ? hatchPattern(`cells${i}`, layer.style.colour, layer.style.angle) : '')).join('')}</defs>`);
+  layers.forEach((layer, i) => parts.push(fixedHeadPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy, fills[i]!, layer.style?.colour)));
   parts.push(contourLayer(contours, levelDecimals, px, py, input.quantity));
   if (input.flux) parts.push(arrowLayer(input.flux, values, grid, frame, cellPx, cellPy, options.arrowSpacing ?? 40));
   const dense = denseKinds(input);
@@ -133,7 +136,7 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
 
   // Legend
   parts.push(
-    legend(input, ramp, contours, levelDecimals, frame.left + frame.width + 28, frame.top, layers.map((layer) => layer.legend), hasNaN(values)),
+    legend(input, ramp, contours, levelDecimals, frame.left + frame.width + 28, frame.top, layers.map((layer, i) => ({ label: layer.legend, fill: fills[i]!, colour: layer.style?.colour ?? '#0c2340' })), hasNaN(values)),
   );
 
   // Footer: caution in its own band.
@@ -223,6 +226,8 @@ function fixedHeadPath(
   top: number,
   cellPx: number,
   cellPy: number,
+  fill = 'fixedhead',
+  stroke = '#0c2340',
 ): string {
   const d: string[] = [];
   for (let i = 0; i < ny; i++) {
@@ -244,7 +249,12 @@ function fixedHeadPath(
   if (d.length === 0) return '';
   // Cells narrower than a few px would vanish under the hatching: outline them more strongly instead.
   const outline = Math.min(cellPx, cellPy) < 3 ? 1.8 : 0.6;
-  return `<path d="${d.join('')}" fill="url(#fixedhead)" stroke="#0c2340" stroke-width="${outline}" stroke-opacity="0.8"/>`;
+  return `<path d="${d.join('')}" fill="url(#${fill})" stroke="${stroke}" stroke-width="${outline}" stroke-opacity="0.8"/>`;
+}
+
+/** A hatching pattern of lines of `colour` at `angle` degrees over a light veil, like the fixed-head pattern. */
+function hatchPattern(id: string, colour: string, angle: number): string {
+  return `<pattern id="${id}" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(${angle})"><rect width="6" height="6" fill="#ffffff" fill-opacity="0.25"/><line x1="0" y1="0" x2="0" y2="6" stroke="${colour}" stroke-width="2.2"/></pattern>`;
 }
 
 function contourDecimals(set: ContourSet): number {
@@ -558,7 +568,7 @@ function legend(
   decimals: number,
   x: number,
   top: number,
-  cellLegends: readonly string[],
+  cellLegends: ReadonlyArray<{ label: string; fill: string; colour: string }>,
   showInactive: boolean,
 ): string {
   const parts: string[] = ['<g class="legend">'];
@@ -626,7 +636,7 @@ function legend(
   const observations = input.observations ?? [];
   if (dense.observations) densityLegend('observation points', observations.length, OBSERVATION_DENSITY_COLOUR, x, placed);
   else if (observations.length > 0) row(observationSymbol(x + 12, y + 1), 'Observation point');
-  for (const label of cellLegends) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#fixedhead)" stroke="#0c2340" stroke-width="0.8"/>`, label);
+  for (const cell of cellLegends) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#${cell.fill})" stroke="${cell.colour}" stroke-width="0.8"/>`, cell.label);
   if (showInactive) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#nodata)" stroke="${MUTED}" stroke-width="0.8"/>`, 'Inactive (no flow)');
   parts.push('</g>');
   return parts.join('');

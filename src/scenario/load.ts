@@ -38,6 +38,7 @@ import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import { checkMagnitudes } from './magnitudes.js';
 import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
 import { fieldAt } from '../field.js';
+import { loadHeadDependent, loadLeakage } from './loadHeadDependent.js';
 
 export type { ScenarioJson, VariantJson } from './schema.js';
 export { mergeVariant } from './merge.js';
@@ -161,6 +162,9 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     else if (typeof given === 'string') elevations[field] = (await loader.raster(key, given, conductivityRaster)).values;
   }
 
+  const headDependent = await loadHeadDependent(loader, raw.headDependent, conductivityRaster, fixedHeads, elevations.aquiferBottom);
+  const leakage = await loadLeakage(loader, raw.leakage, conductivityRaster, [...fixedHeads, ...headDependent]);
+
   const transform = loader.pointTransform(raw.pointCrs, grid, conductivityPath);
   loader.pointFrame = { grid, conductivityPath };
   const wells = await loader.wells(raw.wells, transform);
@@ -184,6 +188,8 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     ...(elevations.groundSurface === undefined ? {} : { groundSurface: elevations.groundSurface }),
     fixedHeads,
     recharge,
+    ...(headDependent.length ? { headDependent } : {}),
+    ...(leakage ? { leakage } : {}),
     wells,
     observations,
     receptors,
@@ -199,6 +205,8 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
 function quantityOf(key: string): Quantity {
   if (key === 'aquifer.conductivity' || key === 'recharge') return 'velocity';
   if (key === 'aquifer.porosity') return 'fraction';
+  if (key.endsWith('.conductance')) return 'area-rate';
+  if (key === 'leakage.leakance') return 'rate';
   return 'length'; // thickness, top, bottom, ground surface, fixed heads
 }
 
@@ -356,6 +364,13 @@ class Loader {
       ['groundSurface', raw.groundSurface],
       ['recharge', raw.recharge],
       ...raw.fixedHeads.map((entry, i): [string, string | undefined] => [`fixedHeads[${i}].raster`, 'raster' in entry ? entry.raster : undefined]),
+      ...(raw.headDependent ?? []).flatMap((entry, i): Array<[string, string | number | undefined]> => [
+        [`headDependent[${i}].raster`, entry.raster],
+        [`headDependent[${i}].conductance`, entry.conductance],
+        [`headDependent[${i}].bottom`, entry.bottom],
+      ]),
+      ['leakage.sourceHead', raw.leakage?.sourceHead],
+      ['leakage.leakance', raw.leakage?.leakance],
     ];
     const footprints: RasterFootprint[] = [];
     for (const [key, given] of named) {
@@ -517,7 +532,7 @@ class Loader {
   }
 
   /** Read a GeoJSON file a key names, check it and reproject it into the raster CRS. */
-  private async shapes(key: string, given: string, grid: Grid): Promise<{ collection: ShapeCollection; where: string; file: string }> {
+  async shapes(key: string, given: string, grid: Grid): Promise<{ collection: ShapeCollection; where: string; file: string }> {
     const { absolute, text } = await this.readText(key, given, 'GeoJSON');
     const where = `${this.label}: ${key} "${given}"`;
     try {
@@ -545,7 +560,7 @@ class Loader {
     }
   }
 
-  private warnOutside(where: string, outside: string[], total: number, consequence: string): void {
+  warnOutside(where: string, outside: string[], total: number, consequence: string): void {
     if (outside.length === 0) return;
     if (outside.length === total) {
       this.warn(`${where}: no feature covers a cell of the grid (all lie outside it, or are too small to hold a cell centre), so ${consequence}`);

@@ -139,6 +139,67 @@ export const fixedHeadSchema = dispatch<FixedHeadEntry>(
   },
 );
 
+/**
+ * A head-dependent boundary (../shared/spec/physics.md): located like a fixed head (`raster` of stages/levels,
+ * `edge` + `head`, or `shape` + `head`/`headProperty`), with `conductance` (number or raster) or, for shapes,
+ * `leakance` (and `width` for lines). `bottom`/`bottomProperty` only for rivers.
+ */
+export const headDependentSchema = strict({
+  name: nonEmpty,
+  kind: z.enum(['linear', 'river', 'drain']),
+  raster: filePath.optional(),
+  edge: z.enum(edgeNames).optional(),
+  shape: filePath.optional(),
+  head: finite.optional(),
+  headProperty: nonEmpty.optional(),
+  conductance: numberOrPath(finite.gte(0, { error: 'a conductance cannot be negative' }), 'a conductance >= 0 (length²/time per cell) or the path of a GeoTIFF').optional(),
+  leakance: finite.gte(0, { error: 'a leakance cannot be negative' }).optional(),
+  width: finite.gt(0).optional(),
+  bottom: numberOrPath(finite, 'a bed-bottom elevation or the path of a GeoTIFF').optional(),
+  bottomProperty: nonEmpty.optional(),
+}).superRefine((entry, ctx) => {
+  const places = (['raster', 'edge', 'shape'] as const).filter((key) => entry[key] !== undefined);
+  if (places.length !== 1) {
+    ctx.addIssue({
+      code: 'custom',
+      path: places.length ? [places[1]!] : [],
+      message: places.length ? `give one of "raster", "edge" or "shape", not ${places.map((k) => `"${k}"`).join(' and ')}` : 'needs a location: "raster" (stages or levels), "edge" with "head", or "shape" with "head" or "headProperty"',
+    });
+    return;
+  }
+  const place = places[0]!;
+  if (place === 'raster' && (entry.head !== undefined || entry.headProperty !== undefined)) {
+    ctx.addIssue({ code: 'custom', path: [entry.head !== undefined ? 'head' : 'headProperty'], message: 'a raster entry takes its stages or levels from the raster; remove this key' });
+  }
+  if (place === 'edge' && entry.head === undefined) ctx.addIssue({ code: 'custom', path: ['head'], message: 'an edge needs "head" (its stage or level)' });
+  if (place === 'edge' && entry.headProperty !== undefined) ctx.addIssue({ code: 'custom', path: ['headProperty'], message: '"headProperty" is for shapes only' });
+  if (place === 'shape' && (entry.head === undefined) === (entry.headProperty === undefined)) {
+    ctx.addIssue({ code: 'custom', path: [entry.head === undefined ? 'head' : 'headProperty'], message: 'a shape needs "head" or "headProperty", not both and not neither' });
+  }
+  if (place !== 'shape' && (entry.leakance !== undefined || entry.width !== undefined || entry.bottomProperty !== undefined)) {
+    const key = entry.leakance !== undefined ? 'leakance' : entry.width !== undefined ? 'width' : 'bottomProperty';
+    ctx.addIssue({ code: 'custom', path: [key], message: `"${key}" is for shapes only; give "conductance" per cell` });
+  }
+  if ((entry.conductance === undefined) === (entry.leakance === undefined)) {
+    ctx.addIssue({
+      code: 'custom',
+      path: [entry.conductance === undefined ? 'conductance' : 'leakance'],
+      message: entry.conductance === undefined ? 'needs "conductance" (length²/time per cell), or for a shape "leakance" (1/time)' : 'give either "conductance" or "leakance", not both',
+    });
+  }
+  if (entry.kind !== 'river' && (entry.bottom !== undefined || entry.bottomProperty !== undefined)) {
+    ctx.addIssue({ code: 'custom', path: [entry.bottom !== undefined ? 'bottom' : 'bottomProperty'], message: `only a river has a bed bottom (this entry is a ${entry.kind})` });
+  }
+  if (entry.bottom !== undefined && entry.bottomProperty !== undefined) ctx.addIssue({ code: 'custom', path: ['bottomProperty'], message: 'give either "bottom" or "bottomProperty", not both' });
+});
+
+/** Areal leakage through a confining bed: Q = L·A·(Hs - h). */
+export const leakageSchema = strict({
+  name: nonEmpty.optional(),
+  sourceHead: numberOrPath(finite, 'a head (length) or the path of a GeoTIFF'),
+  leakance: numberOrPath(finite.gte(0, { error: 'a leakance cannot be negative' }), 'a leakance >= 0 (1/time) or the path of a GeoTIFF'),
+});
+
 export const wellSchema = strict({
   id: identifier,
   x: finite,
@@ -188,13 +249,36 @@ export const pointCrsSchema = z
   .string()
   .regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' });
 
+/**
+ * Marks a `fixedHeads: []` beside head-dependent boundaries or leakage, which may hold the level instead
+ * (../shared/spec/physics.md); whether every region is held is checked at assembly (the connected-region rule).
+ */
+const OTHER_ANCHORS = Symbol('fixedHeads may be empty: other terms anchor the level');
+
+function markOtherAnchors(value: unknown): unknown {
+  if (typeof value !== 'object' || value === null || Array.isArray(value)) return value;
+  const v = value as Record<string, unknown>;
+  const others = (Array.isArray(v.headDependent) && v.headDependent.length > 0) || (typeof v.leakage === 'object' && v.leakage !== null);
+  if (!others || !Array.isArray(v.fixedHeads) || v.fixedHeads.length > 0) return value;
+  return { ...v, fixedHeads: Object.assign([], { [OTHER_ANCHORS]: true }) };
+}
+
+/** The fixed-head list: at least one entry, unless marked by markOtherAnchors. */
+function fixedHeadList() {
+  const list = z.array(fixedHeadSchema);
+  const nonEmpty = list.min(1, { error: 'needs at least one entry: without a fixed head (or a head-dependent boundary or leakage) the head is undetermined' });
+  return dispatch<FixedHeadEntry[]>('a list of fixed-head entries', (value) => (Array.isArray(value) && OTHER_ANCHORS in value ? list : nonEmpty));
+}
+
 /** Keys a variant may replace: every top-level key except `variants`. */
 const replaceableFields = {
   title: z.string().optional(),
   units: unitsSchema.optional(),
   aquifer: aquiferSchema.optional(),
-  fixedHeads: z.array(fixedHeadSchema).min(1, { error: 'needs at least one entry: without a fixed head the head is undetermined' }).optional(),
+  fixedHeads: fixedHeadList().optional(),
   recharge: numberOrPath(finite, 'a recharge rate (length/time) or the path of a GeoTIFF').optional(),
+  headDependent: z.array(headDependentSchema).optional(),
+  leakage: leakageSchema.optional(),
   wells: listOrCsv(wellSchema, 'well').optional(),
   pointCrs: pointCrsSchema.optional(),
   /** Elevation of the ground surface, for the sanity warnings (heads above it are flowing artesian). Optional. */
@@ -204,19 +288,19 @@ const replaceableFields = {
   solver: solverSchema.optional(),
 };
 
-export const variantSchema = strict({
+export const variantSchema = z.preprocess(markOtherAnchors, strict({
   name: z
     .string()
     .regex(/^[A-Za-z0-9_-]+$/, { error: 'must use only letters, digits, "-" and "_" (it names a result folder)' })
     .refine((name) => name.toLowerCase() !== 'baseline', { error: '"baseline" is reserved for the scenario itself' }),
   ...replaceableFields,
   wells: listOrCsv(wellChangeSchema, 'well').optional(),
-});
+}));
 
-export const scenarioSchema = strict({
+export const scenarioSchema = z.preprocess(markOtherAnchors, strict({
   ...replaceableFields,
   aquifer: aquiferSchema,
-  fixedHeads: replaceableFields.fixedHeads.unwrap(),
+  fixedHeads: fixedHeadList(),
   variants: z
     .array(variantSchema)
     .superRefine((variants, ctx) => {
@@ -233,7 +317,7 @@ export const scenarioSchema = strict({
       });
     })
     .optional(),
-});
+}));
 
 export type Units = z.output<typeof unitsSchema>;
 export type AquiferJson = z.output<typeof aquiferSchema>;
@@ -242,6 +326,8 @@ export type FixedHeadEdgeEntry = z.output<typeof fixedHeadEdgeSchema>;
 export type FixedHeadShapeEntry = z.output<typeof fixedHeadShapeSchema>;
 export type FixedHeadEntry = FixedHeadRasterEntry | FixedHeadEdgeEntry | FixedHeadShapeEntry;
 export type WellEntry = z.output<typeof wellSchema>;
+export type HeadDependentEntry = z.output<typeof headDependentSchema>;
+export type LeakageEntry = z.output<typeof leakageSchema>;
 export type WellChange = z.output<typeof wellChangeSchema>;
 export type ObservationEntry = z.output<typeof observationSchema>;
 export type ReceptorEntry = z.output<typeof receptorSchema>;

@@ -52,6 +52,42 @@ export interface FixedHeadInput {
   activeOnly?: boolean;
 }
 
+/** How a head-dependent entry exchanges water (../shared/spec/physics.md). */
+export type HeadDependentKind = 'linear' | 'river' | 'drain';
+
+/** One head-dependent entry (`headDependent[i]`), resolved to cells; built into a flow term in discretisation/terms. */
+export interface HeadDependentInput {
+  name: string;
+  kind: HeadDependentKind;
+  /** Where it came from, for messages: e.g. `headDependent[1]`. */
+  source: string;
+  /** Cells of the entry, ascending and unique (before removing inactive cells). */
+  cells: Int32Array;
+  /** Stage (river, linear) or level (drain) per cell. */
+  heads: Float64Array;
+  /** Conductance per cell, L^2/T (>= 0). */
+  conductance: Float64Array;
+  /** River only: elevation of the bed bottom per cell (NaN: none given, the loss is not limited). */
+  bottom: Float64Array | null;
+  /**
+   * Reaches, for entries given as shapes with several features: the feature index each cell belongs to (the one
+   * that gives the cell most of its conductance), and the reaches' names. null when the entry has one reach.
+   */
+  reach: Int32Array | null;
+  reachNames: string[];
+  /** True for an edge (by definition only its active cells): cells on inactive ground are not reported. */
+  activeOnly?: boolean;
+}
+
+/** Areal leakage through a confining bed (`leakage`). */
+export interface LeakageInput {
+  name: string;
+  /** Head on the far side of the confining bed, per cell or one number (NaN: no leakage at that cell). */
+  sourceHead: Float64Array | number;
+  /** Leakance K'/b' (1/T), per cell or one number (NaN: no leakage at that cell). */
+  leakance: Float64Array | number;
+}
+
 export interface SolverSettings {
   method: string;
   tolerance: number;
@@ -80,6 +116,10 @@ export interface ModelInput {
   fixedHeads: FixedHeadInput[];
   /** Recharge per cell (length/time), or one number. */
   recharge: Float64Array | number;
+  /** Head-dependent boundaries (rivers, drains, linear exchanges), in scenario order; absent = none. */
+  headDependent?: HeadDependentInput[];
+  /** Areal leakage through a confining bed; absent = none. */
+  leakage?: LeakageInput;
   wells: WellInput[];
   observations: ObservationInput[];
   /** Receptors (optional key; absent = none). */

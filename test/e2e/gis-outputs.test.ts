@@ -43,8 +43,9 @@ describe.runIf(gdalPresent || onCi)('GIS files written by solve and compare', ()
 
   it('gdalinfo reads every GeoTIFF with the demo grid, EPSG:32633 and nodata -9999', () => {
     const rasters = walk(dir).filter((f) => f.endsWith('.tif'));
-    // solve: head + three flux rasters; compare: the same for baseline and variant, plus drawdown.tif.
-    expect(rasters.length).toBe(4 + 4 + 5);
+    // solve: head + three flux rasters + two exchange rasters (river, field drains); compare: the same for
+    // baseline and variant, plus drawdown.tif.
+    expect(rasters.length).toBe(6 + 6 + 7);
     for (const path of rasters) {
       const info = JSON.parse(execFileSync('gdalinfo', ['-json', path], { encoding: 'utf8' }));
       expect(info.size, path).toEqual([240, 180]);

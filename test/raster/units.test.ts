@@ -24,6 +24,15 @@ describe('unitMatches', () => {
     for (const unit of ['%', 'percent']) expect(unitMatches(unit, 'fraction', metreDay), unit).toBe(false);
   });
 
+  it('takes boundary conductances in length²/time and leakances in 1/time, refusing other dimensions (common practice spellings)', () => {
+    for (const unit of ['m2/d', 'm²/day', 'm^2 per day', 'm2 d-1']) expect(unitMatches(unit, 'area-rate', metreDay), unit).toBe(true);
+    for (const unit of ['m/d', 'm2/s', 'm3/d', 'ft2/d', 'm2']) expect(unitMatches(unit, 'area-rate', metreDay), unit).toBe(false);
+    for (const unit of ['1/d', '1 / day', 'd-1', 'per day']) expect(unitMatches(unit, 'rate', metreDay), unit).toBe(true);
+    for (const unit of ['1/s', 'm/d', 'd', '1']) expect(unitMatches(unit, 'rate', metreDay), unit).toBe(false);
+    expect(describeExpectedUnit('area-rate', metreDay)).toBe('m2/d');
+    expect(describeExpectedUnit('rate', footSecond)).toBe('1/s');
+  });
+
   it('describeExpectedUnit names the unit for messages', () => {
     expect(describeExpectedUnit('velocity', metreDay)).toBe('m/d');
     expect(describeExpectedUnit('length', footSecond)).toBe('ft');

@@ -96,7 +96,7 @@ describe('parseScenarioJson', () => {
     expect(lines).toEqual([
       'scenario.json: units.length: expected one of "m", "ft", got the string "meters"',
       'scenario.json: aquifer.thickness: must be > 0 (got -1)',
-      'scenario.json: fixedHeads: needs at least one entry: without a fixed head the head is undetermined',
+      'scenario.json: fixedHeads: needs at least one entry: without a fixed head (or a head-dependent boundary or leakage) the head is undetermined',
       'scenario.json: pointCrs: must be an EPSG code such as "EPSG:4326"',
       'scenario.json: solver.tolerance: must be < 1 (got 2)',
       'scenario.json: solver.maxIterations: expected a whole number, got 1.5',
@@ -182,7 +182,7 @@ describe('parseScenarioJson', () => {
     expect(lines).toEqual([
       'scenario.json: variants[0].name: "baseline" is reserved for the scenario itself',
       'scenario.json: variants[1].name: must use only letters, digits, "-" and "_" (it names a result folder)',
-      'scenario.json: variants[2].variants: unknown key (allowed here: name, title, units, aquifer, fixedHeads, recharge, wells, pointCrs, groundSurface, observations, receptors, solver)',
+      'scenario.json: variants[2].variants: unknown key (allowed here: name, title, units, aquifer, fixedHeads, recharge, headDependent, leakage, wells, pointCrs, groundSurface, observations, receptors, solver)',
       'scenario.json: variants[4].aquifer.conductivity: required key is missing (expected a string)',
     ]);
     expect(errorsOf({ ...minimal, variants: [{ name: 'wet' }, { name: 'WET' }] })).toEqual([

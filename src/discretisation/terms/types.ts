@@ -49,6 +49,40 @@ export interface FlowTerm {
   readonly ignoredCells: number;
   /** Non-fatal remarks about the term's input, worded for before (`done` false) or after a solve. */
   notes(done: boolean): string[];
+  /**
+   * Terms whose anchoring depends on their switch state (a drain that runs dry fixes no level): mark in `mask` the
+   * cells that anchor in the current state. Absent: every cell anchors when `anchors` is true.
+   */
+  markAnchors?(mask: Uint8Array): void;
+  /**
+   * Sub-rows of the budget (e.g. the reaches of a river given as several features): their names and the part of
+   * each cell (index into names, same order as `cells`). Absent or null: the term has one row.
+   */
+  readonly parts?: { readonly names: readonly string[]; readonly of: Int32Array } | null;
+  /** How maps draw the term's cells (hatching colour and angle); absent: the fixed-head look. */
+  readonly mapStyle?: CellStyle;
+  /** True when the per-cell exchange is written as a raster (`exchange-<label>.tif`). */
+  readonly exchangeRaster?: boolean;
+}
+
+/** The look of a layer of term cells on maps: hatching lines of a colour at an angle (degrees). */
+export interface CellStyle {
+  colour: string;
+  angle: number;
+}
+
+/** The look of fixed-head cells (dark blue-black hatching at 45 degrees), the default of cell layers. */
+export const FIXED_HEAD_STYLE: CellStyle = { colour: '#0c2340', angle: 45 };
+
+/** The cells that anchor a region's level for the terms' current states (1 = anchored). */
+export function anchorMask(terms: readonly FlowTerm[], cellCount: number): Uint8Array {
+  const mask = new Uint8Array(cellCount);
+  for (const term of terms) {
+    if (!term.anchors) continue;
+    if (term.markAnchors) term.markAnchors(mask);
+    else for (let k = 0; k < term.cells.length; k++) mask[term.cells[k]!] = 1;
+  }
+  return mask;
 }
 
 /** What the first stage of assembly knows: the grid and the active cells. */
@@ -102,13 +136,13 @@ export const linearTerm = {
  * The cells of the terms drawn on maps, one layer per legend label (terms sharing a label, e.g. every fixed-head
  * group, form one layer), in term order.
  */
-export function mapCellLayers(terms: readonly FlowTerm[], cellCount: number): Array<{ legend: string; cells: Uint8Array }> {
-  const layers = new Map<string, Uint8Array>();
+export function mapCellLayers(terms: readonly FlowTerm[], cellCount: number): Array<{ legend: string; cells: Uint8Array; style: CellStyle }> {
+  const layers = new Map<string, { cells: Uint8Array; style: CellStyle }>();
   for (const term of terms) {
     if (term.mapLegend === null) continue;
-    let mask = layers.get(term.mapLegend);
-    if (!mask) layers.set(term.mapLegend, (mask = new Uint8Array(cellCount)));
-    for (let k = 0; k < term.cells.length; k++) mask[term.cells[k]!] = 1;
+    let layer = layers.get(term.mapLegend);
+    if (!layer) layers.set(term.mapLegend, (layer = { cells: new Uint8Array(cellCount), style: term.mapStyle ?? FIXED_HEAD_STYLE }));
+    for (let k = 0; k < term.cells.length; k++) layer.cells[term.cells[k]!] = 1;
   }
-  return [...layers].map(([legend, cells]) => ({ legend, cells }));
+  return [...layers].map(([legend, layer]) => ({ legend, ...layer }));
 }
