@@ -31,6 +31,8 @@ const RIVER_STAGE_DOWNSTREAM = 100.4; // m, at its last cell before the east edg
 const EAST_EDGE_HEAD = 99.0; // m
 const PIT_LAKE_LEVEL = 103.2; // m, surveyed water level of the invented gravel pit
 const RECHARGE = 0.0004; // m/d
+const POROSITY = 0.2; // effective porosity of sand and gravel (handbook range 0.15-0.30, from memory)
+const SPILL_SITE = { x: 502800, y: 4105650 }; // invented farmyard fuel spill upstream of PW-1
 
 const grid: Grid = {
   nx: NX,
@@ -270,7 +272,7 @@ async function main(): Promise<void> {
   const scenario = (observed: number[]) => ({
     title: 'Talvorin valley wellfield (invented demo), baseline',
     units: { length: 'm', time: 'd' },
-    aquifer: { conductivity: 'conductivity.tif', thickness: 'thickness.tif', anisotropy: 1.0 },
+    aquifer: { conductivity: 'conductivity.tif', thickness: 'thickness.tif', anisotropy: 1.0, porosity: POROSITY },
     fixedHeads: [
       { raster: 'river_stage.tif', name: 'river' },
       { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
@@ -281,6 +283,9 @@ async function main(): Promise<void> {
     observations: observationPoints.map((o, k) => ({ ...o, head: observed[k]! })),
     receptors,
     solver: { method: 'auto', tolerance: 1e-10 },
+    // 1-year and 10-year time-of-travel zones plus the steady capture zone of every supply well, and where water
+    // from a (invented) fuel spill at a farmyard upstream of PW-1 goes.
+    tracking: { captureTimes: [365, 3650], particlesPerWell: 24, points: [{ id: 'spill-site', ...SPILL_SITE }] },
     variants: [
       {
         name: 'expanded',
@@ -347,6 +352,8 @@ A confined sand-and-gravel aquifer fills a valley floor 12 km long, draining fro
 | downstream edge | fixed head ${EAST_EDGE_HEAD.toFixed(1)} m on the active cells of the east edge |
 | \`gravel_pit.geojson\` | a flooded gravel pit on the south side of the valley (GeoJSON polygon in WGS 84), fixed at its water level ${PIT_LAKE_LEVEL.toFixed(1)} m (property \`level\`) |
 | recharge | ${RECHARGE} m/d over the whole valley floor |
+| porosity | effective porosity ${POROSITY} (sand and gravel), for particle velocities |
+| tracking | 1-year (365 d) and 10-year (3650 d) time-of-travel zones and the steady capture zone of each supply well, with 24 backward pathlines per well; a forward track from \`spill-site\` (an invented farmyard fuel spill at x = ${SPILL_SITE.x}, y = ${SPILL_SITE.y}) |
 | supply wells | PW-1 (-1200 m3/d) and PW-2 (-800 m3/d) in the channel, at least 400 m from the river |
 | observation wells | OB-1 near PW-1, OB-2 near PW-2, OB-3 upstream, away from pumping |
 | receptors | \`farm-well\`, a neighbour's well between the planned PW-3 and the river, and \`wetland-edge\` downstream: \`compare\` reports the drawdown there |

@@ -12,7 +12,8 @@ import { observationResults, wellResults, locateObservations, locateReceptors } 
 import { wellboreHeads, wellboreWarnings } from './analysis/wellbore.js';
 import { sanityWarnings } from './analysis/sanity.js';
 import { calibrationStatistics } from './analysis/calibration.js';
-import type { SolveResult } from './analysis/result.js';
+import { resultProblem, type SolveResult } from './analysis/result.js';
+import { trackSolution } from './analysis/tracking/run.js';
 import { closeSession, openSession, runInline, runOn, type Plan, type SessionHandle } from './executor/plan.js';
 import type { Executor } from './executor/types.js';
 import { loadScenario } from './scenario/load.js';
@@ -110,7 +111,20 @@ export function* solvePlan(
   timings.solve = now() - t;
   const result = analyseSolution(model, system, answer.x, answer.stats, timings);
   result.outer = answer.outer;
+  addTracking(model, system, result);
   return result;
+}
+
+/**
+ * Particle tracking (scenario key `tracking`) on a sound result only: tracks on an unconverged head field would
+ * look like results. Its warnings join the result's.
+ */
+export function addTracking(model: ModelInput, system: FlowSystem, result: SolveResult): void {
+  if (!model.tracking || resultProblem(result) !== null) return;
+  const tracking = trackSolution(model, system, result.head)!;
+  result.tracking = tracking;
+  for (const w of tracking.warnings) result.warnings.push(w);
+  result.timings.tracking = tracking.seconds;
 }
 
 /** The solver a session sets up for these settings. */

@@ -31,3 +31,4 @@ export {
 export { trackPoints, locatePoint, type TrackPoint, type PointTrack, type PointTrackOptions } from './points.js';
 export { trackingInputFromSystem, type SystemTrackingOptions } from './fromSystem.js';
 export { endRastersInWorkers, trackingWorkersAvailable } from './workers.js';
+export { trackSolution, type TrackingRun } from './run.js';
