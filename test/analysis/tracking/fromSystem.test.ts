@@ -59,15 +59,15 @@ describe('trackingInputFromSystem', () => {
   it('labels the cells of any non-areal term by the term label where its flow is not zero, and ignores areal terms', () => {
     const withTerms: FlowSystem = {
       ...system,
-      terms: [...system.terms, standInTerm('field-drain', [7, 10], -0.5), standInTerm('dry-drain', [14], 0), standInTerm('seepage', [15, 16], -0.1, true)],
+      terms: [...system.terms, standInTerm('field-drain', [7, 10], -0.5), standInTerm('dry-drain', [13], 0), standInTerm('seepage', [19, 20], -0.1, true)],
     };
     const input = trackingInputFromSystem(withTerms, head, { wells: model.wells, thickness: 1, porosity: 0.2 });
     const drain = input.labels.findIndex((l) => l.name === 'field-drain');
     expect(input.labels[drain]).toEqual({ kind: 'boundary', name: 'field-drain' });
     expect(input.stopLabel[7]).toBe(drain);
     expect(input.stopLabel[10]).toBe(drain);
-    expect(input.stopLabel[14]).toBe(-1); // no flow at the solved heads: not a boundary there
-    expect(input.stopLabel[15]).toBe(-1); // areal: particles pass
+    expect(input.stopLabel[13]).toBe(-1); // no flow at the solved heads: not a boundary there
+    expect(input.stopLabel[19]).toBe(-1); // areal: particles pass
     expect(input.labels.some((l) => l.name === 'seepage' || l.name === 'dry-drain')).toBe(false);
   });
 
