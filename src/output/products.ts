@@ -9,7 +9,7 @@ import { CAUTION } from '../caution.js';
 import { VERSION } from '../version.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { makeTransform } from '../crs.js';
-import { renderMapPng, type MapInput } from '../report/index.js';
+import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
 import type { ReportRun, ReportMap } from '../report/index.js';
 import type { SolveResult } from '../analysis/result.js';
 import type { OutputFile } from './resultFolder.js';
@@ -122,6 +122,7 @@ export function solveProducts(result: SolveResult, options: ProductOptions = {},
     observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y })),
     flux: { qx: flux.qx, qy: flux.qy },
     footnote: `piezomap ${VERSION}`,
+    ...(result.tracking ? { overlays: [trackingOverlay(result.tracking, model.units)] } : {}),
   };
   const map = renderMapPng(mapInput);
   const mapName = `${prefix}head-map.png`;
