@@ -5,6 +5,7 @@
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare/types.js';
 import { calibrationJson, calibrationLine, csvField, MAX_PRINTED_ROWS, tidy } from './summary.js';
+import { captureComparisonJson, captureComparisonLines } from './tracking.js';
 
 /** A number for a CSV cell: rounded, empty when not a finite number. */
 function cell(v: number | null | undefined): string {
@@ -169,6 +170,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
             totalPercent: v.sources.totalPercent === null ? null : tidy(v.sources.totalPercent),
           },
       calibration: calibrationJson(v.result.calibration),
+      ...(v.capture ? { capture: captureComparisonJson(v.capture) } : {}),
       warnings: v.result.warnings.filter((w) => !base.warnings.includes(w)),
       problem: v.problem ? v.problem.message : null,
     })),
@@ -284,6 +286,7 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
       if (v.problem) out.push(`  ${v.name}: ${v.problem.split('\n')[0]}`);
     }
   }
+  for (const line of captureComparisonLines(variants as Array<VariantJson & { capture?: unknown }>, summary.units)) out.push(line);
   for (const w of summary.warnings) out.push(`warning: ${w}`);
   for (const v of variants as Array<VariantJson & { warnings?: string[] }>) for (const w of v.warnings ?? []) out.push(`warning (${v.name}): ${w}`);
   if (outDir) {

@@ -15,6 +15,7 @@ import type { SolveResult } from '../analysis/result.js';
 import type { OutputFile } from './resultFolder.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
 import { headRange } from './summary.js';
+import { reportTracking } from './tracking.js';
 
 export interface ProductOptions {
   /** Write contours, flux rasters, the quick-look map and the report (default true). */
@@ -156,6 +157,7 @@ export function reportRun(name: string, result: SolveResult, maps: RenderedMap[]
     observations: result.observations.map((o) => ({ id: o.id, observed: o.observed, simulated: o.simulated, residual: o.residual })),
     maps: maps.map((m): ReportMap => ({ caption: m.caption, png: m.png, file: m.file })),
     warnings: result.warnings,
+    ...(result.tracking ? { tracking: reportTracking(result.tracking) } : {}),
     ...extra,
   };
 }

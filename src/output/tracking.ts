@@ -13,6 +13,8 @@
  */
 import type { SolveResult } from '../analysis/result.js';
 import type { TrackingRun } from '../analysis/tracking/run.js';
+import type { CaptureComparison } from '../analysis/tracking/compareCapture.js';
+import type { ReportTracking } from '../report/index.js';
 import { signedArea, type CaptureZoneFeature, type PathlineFeature } from '../analysis/tracking/capture.js';
 import { CAUTION } from '../caution.js';
 import { makeTransform } from '../crs.js';
@@ -234,4 +236,73 @@ function formatArea(a: number): string {
 
 function formatTime(t: number): string {
   return t >= 100 ? Math.round(t).toLocaleString('en-US') : t.toPrecision(3);
+}
+
+/** The report's view of a run's tracking; with `change`, a variant's zones against the baseline's. */
+export function reportTracking(run: TrackingRun, change: CaptureComparison | null = null): ReportTracking {
+  const changeOf = new Map((change?.zones ?? []).map((z) => [`${z.well}\u0000${z.time}`, z.change]));
+  const out: ReportTracking = {
+    captureTimes: run.settings.captureTimes,
+    wells: run.capture.wells.map((w) => ({
+      id: w.id,
+      zones: run.capture.zones
+        .filter((z) => z.properties.well === w.id)
+        .map((z) => ({
+          time: z.properties.time,
+          area: z.properties.area,
+          ...(change ? { change: changeOf.get(`${w.id}\u0000${z.properties.time}`) ?? null } : {}),
+        })),
+    })),
+    points: run.points.map((p) => ({ id: p.id, endsAt: p.endsAt, endReason: p.endReason, travelTime: p.travelTime })),
+    warnings: run.warnings,
+  };
+  if (change) {
+    out.newCaptures = change.newCaptures;
+    out.lostZones = change.zones.filter((z) => z.variant === null && z.time === null && z.baseline !== null).map((z) => ({ well: z.well, area: z.baseline! }));
+  }
+  return out;
+}
+
+/** A variant's `capture` in the comparison's summary.json. */
+export function captureComparisonJson(c: CaptureComparison): Record<string, unknown> {
+  return {
+    zones: c.zones.map((z) => ({
+      well: z.well,
+      time: z.time,
+      baselineArea: z.baseline === null ? null : round(z.baseline, 3),
+      variantArea: z.variant === null ? null : round(z.variant, 3),
+      areaChange: round(z.change, 3),
+    })),
+    receptorsInNewCaptureZones: c.newCaptures.map((n) => ({
+      receptor: n.receptor,
+      well: n.well,
+      travelTime: Number.isFinite(n.travelTime) ? Number(n.travelTime.toPrecision(12)) : null,
+      baselineWell: n.baselineWell,
+    })),
+  };
+}
+
+/** Printout lines of the comparison: each well's steady-zone change and receptors inside new capture zones. */
+export function captureComparisonLines(variants: ReadonlyArray<{ name: string; capture?: unknown }>, units: { length: string; time: string }): string[] {
+  const out: string[] = [];
+  for (const v of variants) {
+    const c = v.capture as
+      | { zones: Array<{ well: string; time: number | null; variantArea: number | null; areaChange: number }>; receptorsInNewCaptureZones: Array<{ receptor: string; well: string; travelTime: number | null; baselineWell: string | null }> }
+      | undefined;
+    if (!c) continue;
+    if (!out.length) out.push(`Capture zones against the baseline: area in ${units.length}² (change)`);
+    const byWell = new Map<string, string[]>();
+    for (const z of c.zones) {
+      const parts = byWell.get(z.well) ?? [];
+      const sign = z.areaChange > 0 ? '+' : '';
+      parts.push(`${z.time === null ? 'steady' : `${z.time} ${units.time}`}: ${formatArea(z.variantArea ?? 0)} (${sign}${formatArea(z.areaChange)})`);
+      byWell.set(z.well, parts);
+    }
+    for (const [well, parts] of byWell) out.push(`  ${v.name} ${well}: ${parts.join(' · ')}`);
+    for (const n of c.receptorsInNewCaptureZones) {
+      const time = n.travelTime === null ? '' : `, travel time ${formatTime(n.travelTime)} ${units.time}`;
+      out.push(`  ${v.name}: receptor ${n.receptor} lies inside a new capture zone of ${n.well}${time}${n.baselineWell ? ` (baseline: ${n.baselineWell})` : ''}`);
+    }
+  }
+  return out;
 }

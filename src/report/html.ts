@@ -4,6 +4,7 @@
  * SVG, and a Content-Security-Policy forbids everything else. Every user-supplied string is escaped.
  */
 import { convergencePlotSvg } from './plot.js';
+import { trackingSectionHtml, type ReportTracking } from './trackingSection.js';
 import { dataUrl } from './png.js';
 import { escapeMarkup, formatFixed, formatSignificant } from './text.js';
 
@@ -67,6 +68,8 @@ export interface ReportRun {
   observations: ReportObservation[];
   maps: ReportMap[];
   warnings?: string[];
+  /** Capture zones, travel times and tracks from points (scenario key `tracking`). */
+  tracking?: ReportTracking;
 }
 
 export interface ReportVariantRow {
@@ -335,6 +338,7 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
       );
     }
   }
+  if (run.tracking) parts.push(trackingSectionHtml(run.tracking, L, input.units.time));
   if (run.warnings?.length) parts.push(`<h3>Warnings for this run</h3><ul class="warnings">${run.warnings.map((w) => `<li>${e(w)}</li>`).join('')}</ul>`);
   parts.push('</section>');
   return parts.join('\n');

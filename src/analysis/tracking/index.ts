@@ -32,3 +32,4 @@ export { trackPoints, locatePoint, type TrackPoint, type PointTrack, type PointT
 export { trackingInputFromSystem, type SystemTrackingOptions } from './fromSystem.js';
 export { endRastersInWorkers, trackingWorkersAvailable } from './workers.js';
 export { trackSolution, type TrackingRun } from './run.js';
+export { compareCapture, type CaptureComparison, type ZoneAreaChange, type NewCapture } from './compareCapture.js';
