@@ -131,7 +131,7 @@ describe.runIf(gdalPresent || onCi)('tracking files of solve and compare, read b
     const backward = features.filter((f) => f.direction === 'backward');
     const forward = features.filter((f) => f.direction === 'forward');
     expect(backward).toHaveLength(2 * 24); // particlesPerWell 24 in the demo
-    expect(new Set(backward.map((f) => f.id.replace(/-\d+$/, '')))).toEqual(new Set(['PW-1', 'PW-2']));
+    expect(new Set(backward.map((f) => (f.id ?? '').replace(/-\d+$/, '')))).toEqual(new Set(['PW-1', 'PW-2']));
     for (const f of backward) {
       expect(Number(f.travelTime)).toBeGreaterThan(0);
       expect(['river', 'downstream-edge', 'gravel-pit', 'edge', 'stagnation']).toContain(f.endsAt);
