@@ -20,7 +20,7 @@ import { loadScenario } from './scenario/load.js';
 import { resolveSolverSettings, type SolverOverrides } from './scenario/solverSettings.js';
 import type { ModelInput, SolverSettings } from './scenario/types.js';
 import { leanestMethod, solverBytesPerCell } from './solvers/registry.js';
-import { checkMemoryBudget } from './memory.js';
+import { checkMemoryBudget, TRACKING_BYTES_PER_CELL } from './memory.js';
 
 export interface RunOptions extends SolverOverrides {
   /** Progress of long stages; return false from a solver progress call to stop. */
@@ -75,7 +75,8 @@ export function assembleModel(model: ModelInput, options: RunOptions = {}, timin
   const t = now();
   // Refuse a grid too large for this machine before the large allocations start.
   const method = model.solver.method;
-  checkMemoryBudget(model.grid, { method, bytesPerCell: solverBytesPerCell(method) }, leanestMethod());
+  const tracking = model.tracking ? { bytesPerCell: TRACKING_BYTES_PER_CELL, what: 'particle tracking', hint: ', or drop "tracking"' } : null;
+  checkMemoryBudget(model.grid, { method, bytesPerCell: solverBytesPerCell(method) }, leanestMethod(), undefined, tracking);
   options.onProgress?.({ stage: 'assemble', message: 'assembling the flow system' });
   const system = assembleSystem(model);
   // Points are checked before the long solve so bad input fails fast.
