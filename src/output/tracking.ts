@@ -203,7 +203,6 @@ export function trackingSummary(run: TrackingRun): Record<string, unknown> {
       end: { x: round(p.endX, 3), y: round(p.endY, 3), row: p.endRow, col: p.endCol },
     })),
     weakSinks: capture.weakSinks.map((w) => ({ name: w.name, kind: w.kind, row: w.row, col: w.col, direction: w.direction, fraction: round(w.fraction, 6), stops: w.stops })),
-    seconds: Number(run.seconds.toPrecision(6)),
   };
 }
 
