@@ -212,6 +212,13 @@ function resolveTracking(
   project: (transform: PointTransform | null, x: number, y: number, what: string) => { x: number; y: number },
 ): TrackingSettings {
   const spec = raw.tracking!;
+  if (!(grid.transform[1] > 0 && grid.transform[5] < 0)) {
+    // The tracking engine's frame is north-up; refused here rather than after a long solve.
+    throw inputError(`${label}: tracking needs a north-up grid (positive pixel width, negative pixel height); this grid's geotransform is [${grid.transform.join(', ')}]`, {
+      key: 'tracking',
+      hint: 'warp the rasters to a north-up grid (e.g. gdalwarp) before tracking, or drop "tracking"',
+    });
+  }
   if (porosity === undefined) {
     throw inputError(`${label}: tracking needs aquifer.porosity (the effective porosity turns Darcy flux into particle velocity)`, {
       key: 'aquifer.porosity',
