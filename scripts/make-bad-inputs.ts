@@ -336,6 +336,18 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   solveCase('receptor-outside', 'a receptor 10 km north of the grid', { receptors: [{ id: 'FARM-9', x: inside.x, y: Y0 + 10000 }] }, 2, /receptor "FARM-9".*outside the grid/);
   solveCase('receptor-inactive', 'a receptor in the inactive block', { receptors: [{ id: 'SPRING-2', ...hole }] }, 2, /receptor "SPRING-2".*inactive/);
 
+  // --- particle tracking --------------------------------------------------------------------------------------
+  const tracking = { captureTimes: [365, 3650], particlesPerWell: 8 };
+  solveCase('tracking-no-porosity', 'tracking without aquifer.porosity', { tracking }, 2, /tracking needs aquifer\.porosity/);
+  solveCase('tracking-porosity-zero', 'tracking with porosity 0', { ...aquifer('k.tif', { porosity: 0 }), tracking }, 2, /aquifer\.porosity/);
+  solveCase('tracking-porosity-percent', 'porosity 25 (a percentage, not a fraction)', { ...aquifer('k.tif', { porosity: 25 }), tracking }, 2, /aquifer\.porosity/);
+  solveCase('tracking-capture-time-zero', 'a capture time of 0', { ...aquifer('k.tif', { porosity: 0.2 }), tracking: { captureTimes: [365, 0] } }, 2, /tracking\.captureTimes(\[1\]|\.1).*capture time > 0/);
+  solveCase('tracking-capture-time-negative', 'a negative capture time', { ...aquifer('k.tif', { porosity: 0.2 }), tracking: { captureTimes: [-10] } }, 2, /tracking\.captureTimes(\[0\]|\.0).*capture time > 0/);
+  solveCase('tracking-point-outside', 'a tracking point 10 km north of the grid', { ...aquifer('k.tif', { porosity: 0.2 }), tracking: { points: [{ id: 'SPILL-1', x: inside.x, y: Y0 + 10000 }] } }, 2, /tracking\.points\[0\].*"SPILL-1".*outside the grid/);
+  solveCase('tracking-point-inactive', 'a tracking point in the inactive block', { ...aquifer('k.tif', { porosity: 0.2 }), tracking: { points: [{ id: 'SPILL-2', ...hole }] } }, 2, /tracking\.points\[0\].*"SPILL-2".*inactive/);
+  solveCase('tracking-unknown-key', 'a misspelt tracking key', { ...aquifer('k.tif', { porosity: 0.2 }), tracking: { captureTime: [365] } }, 2, /tracking.*captureTime.*did you mean "captureTimes"/);
+  solveCase('tracking-max-time-zero', 'a time limit of 0', { ...aquifer('k.tif', { porosity: 0.2 }), tracking: { maxTime: 0 } }, 2, /tracking\.maxTime.*> 0/);
+
   // --- GeoJSON shapes ----------------------------------------------------------------------------------------
   // Coordinates in the raster CRS, declared by the older GeoJSON crs member (as GDAL writes it).
   const crsMember = { type: 'name', properties: { name: 'urn:ogc:def:crs:EPSG::32633' } };

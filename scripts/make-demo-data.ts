@@ -40,6 +40,8 @@ const REACH_ENDS = [80, 140]; // columns where the upper reach ends and the impo
 const DITCH_LEAKANCE = 1.0; // 1/d
 const DITCH_WIDTH = 1.5; // m
 const DITCH_DEPTH = 0.8; // m, the ditch level below the head the aquifer has there without it
+const POROSITY = 0.2; // effective porosity of sand and gravel (handbook range 0.15-0.30, from memory)
+const SPILL_SITE = { x: 503580, y: 4106030 }; // invented farmyard fuel spill upstream of PW-1
 
 const grid: Grid = {
   nx: NX,
@@ -338,7 +340,7 @@ async function main(): Promise<void> {
   const scenario = (observed: number[], withDitch: boolean) => ({
     title: 'Talvorin valley wellfield (invented demo), baseline',
     units: { length: 'm', time: 'd' },
-    aquifer: { conductivity: 'conductivity.tif', thickness: 'thickness.tif', anisotropy: 1.0 },
+    aquifer: { conductivity: 'conductivity.tif', thickness: 'thickness.tif', anisotropy: 1.0, porosity: POROSITY },
     fixedHeads: [
       { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
       { shape: 'gravel_pit.geojson', headProperty: 'level', name: 'gravel-pit' },
@@ -352,6 +354,9 @@ async function main(): Promise<void> {
     observations: observationPoints.map((o, k) => ({ ...o, head: observed[k]! })),
     receptors,
     solver: { method: 'auto', tolerance: 1e-10 },
+    // 1-year and 10-year time-of-travel zones plus the steady capture zone of every supply well, and where water
+    // from a (invented) fuel spill at a farmyard upstream of PW-1 goes.
+    tracking: { captureTimes: [365, 3650], particlesPerWell: 24, points: [{ id: 'spill-site', ...SPILL_SITE }] },
     variants: [
       {
         name: 'expanded',
@@ -426,6 +431,8 @@ A confined sand-and-gravel aquifer fills a valley floor 12 km long, draining fro
 | downstream edge | fixed head ${EAST_EDGE_HEAD.toFixed(1)} m on the active cells of the east edge |
 | \`gravel_pit.geojson\` | a flooded gravel pit on the south side of the valley (GeoJSON polygon in WGS 84), fixed at its water level ${PIT_LAKE_LEVEL.toFixed(1)} m (property \`level\`) |
 | recharge | ${RECHARGE} m/d over the whole valley floor |
+| porosity | effective porosity ${POROSITY} (sand and gravel), for particle velocities |
+| tracking | 1-year (365 d) and 10-year (3650 d) time-of-travel zones and the steady capture zone of each supply well, with 24 backward pathlines per well; a forward track from \`spill-site\` (an invented farmyard fuel spill at x = ${SPILL_SITE.x}, y = ${SPILL_SITE.y}) |
 | supply wells | PW-1 (-1200 m3/d) and PW-2 (-800 m3/d) in the channel, at least 400 m from the river |
 | observation wells | OB-1 near PW-1, OB-2 near PW-2, OB-3 upstream, away from pumping |
 | receptors | \`farm-well\`, a neighbour's well between the planned PW-3 and the river, and \`wetland-edge\` downstream: \`compare\` reports the drawdown there |

@@ -79,3 +79,18 @@ export { headAtPoint, type WellResult, type ObservationResult } from './analysis
 export { readRaster, encodeFloat32GeoTiff, type RasterData, type EncodeOptions } from './raster/index.js';
 export { buildSummary, formatSummary, type SummaryJson } from './output/summary.js';
 export { comparisonCsv, comparisonSummary, formatComparison, type ComparisonSummaryJson } from './output/comparison.js';
+export {
+  trackSolution,
+  compareCapture,
+  buildTrackingField,
+  captureZones,
+  trackPoints,
+  trackingInputFromSystem,
+  type TrackingRun,
+  type CaptureResult,
+  type CaptureComparison,
+  type PointTrack,
+  type TrackingInput,
+  type TrackingField,
+} from './analysis/tracking/index.js';
+export { saturatedThickness } from './discretisation/thickness.js';

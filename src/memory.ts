@@ -28,6 +28,13 @@ export const BASE_BYTES_PER_CELL = 360;
  */
 export const COMPARE_VARIANT_BYTES_PER_CELL = 64;
 
+/**
+ * Particle tracking (scenario key `tracking`) on top of a solve, per cell: face flows (16), face velocities (32),
+ * stop labels and stop cells (12), net exchange (8), end rasters (12), capture rasters (13), the written rasters
+ * (16) and their encoding; counted from the arrays, rounded up.
+ */
+export const TRACKING_BYTES_PER_CELL = 128;
+
 /** Bytes per cell more for a variant that cannot share the baseline's operator: its own conductances, bands and masks. */
 export const COMPARE_FRESH_VARIANT_BYTES_PER_CELL = 120;
 
@@ -78,7 +85,7 @@ export function checkMemoryBudget(
   solver: SolverFootprint,
   leaner: SolverFootprint | null = null,
   limit: MemoryLimit = memoryLimit(),
-  held: { bytesPerCell: number; what: string } | null = null,
+  held: { bytesPerCell: number; what: string; hint?: string } | null = null,
 ): void {
   const cells = grid.nx * grid.ny;
   const heldBytes = held ? held.bytesPerCell : 0;
@@ -94,7 +101,7 @@ export function checkMemoryBudget(
     limit.bytes <= FIXED_OVERHEAD_BYTES
       ? `the limit is below the ${formatBytes(FIXED_OVERHEAD_BYTES)} the program itself takes: raise it`
       : `coarsen the rasters about ${factor}x per side (gdalwarp -tr) or clip them to the model area${alternative}` +
-        (held && held.bytesPerCell > 0 ? ', or compare fewer variants per run' : '');
+        (held && held.bytesPerCell > 0 ? (held.hint ?? ', or compare fewer variants per run') : '');
   throw inputError(
     `the run needs about ${formatBytes(needed)} (${grid.nx} x ${grid.ny} cells, solver ${solver.method}${held && held.bytesPerCell > 0 ? `, ${held.what}` : ''}) but the memory limit is ${formatBytes(limit.bytes)} (${limit.source})`,
     { hint },

@@ -12,14 +12,15 @@ import { observationResults, wellResults, locateObservations, locateReceptors } 
 import { wellboreHeads, wellboreWarnings } from './analysis/wellbore.js';
 import { sanityWarnings } from './analysis/sanity.js';
 import { calibrationStatistics } from './analysis/calibration.js';
-import type { SolveResult } from './analysis/result.js';
+import { resultProblem, type SolveResult } from './analysis/result.js';
+import { trackSolution } from './analysis/tracking/run.js';
 import { closeSession, openSession, runInline, runOn, type Plan, type SessionHandle } from './executor/plan.js';
 import type { Executor } from './executor/types.js';
 import { loadScenario } from './scenario/load.js';
 import { resolveSolverSettings, type SolverOverrides } from './scenario/solverSettings.js';
 import type { ModelInput, SolverSettings } from './scenario/types.js';
 import { leanestMethod, solverBytesPerCell } from './solvers/registry.js';
-import { checkMemoryBudget } from './memory.js';
+import { checkMemoryBudget, TRACKING_BYTES_PER_CELL } from './memory.js';
 
 export interface RunOptions extends SolverOverrides {
   /** Progress of long stages; return false from a solver progress call to stop. */
@@ -74,7 +75,8 @@ export function assembleModel(model: ModelInput, options: RunOptions = {}, timin
   const t = now();
   // Refuse a grid too large for this machine before the large allocations start.
   const method = model.solver.method;
-  checkMemoryBudget(model.grid, { method, bytesPerCell: solverBytesPerCell(method) }, leanestMethod());
+  const tracking = model.tracking ? { bytesPerCell: TRACKING_BYTES_PER_CELL, what: 'particle tracking', hint: ', or drop "tracking"' } : null;
+  checkMemoryBudget(model.grid, { method, bytesPerCell: solverBytesPerCell(method) }, leanestMethod(), undefined, tracking);
   options.onProgress?.({ stage: 'assemble', message: 'assembling the flow system' });
   const system = assembleSystem(model);
   // Points are checked before the long solve so bad input fails fast.
@@ -110,7 +112,20 @@ export function* solvePlan(
   timings.solve = now() - t;
   const result = analyseSolution(model, system, answer.x, answer.stats, timings);
   result.outer = answer.outer;
+  addTracking(model, system, result);
   return result;
+}
+
+/**
+ * Particle tracking (scenario key `tracking`) on a sound result only: tracks on an unconverged head field would
+ * look like results. Its warnings join the result's.
+ */
+export function addTracking(model: ModelInput, system: FlowSystem, result: SolveResult): void {
+  if (!model.tracking || resultProblem(result) !== null) return;
+  const tracking = trackSolution(model, system, result.head)!;
+  result.tracking = tracking;
+  for (const w of tracking.warnings) result.warnings.push(w);
+  result.timings.tracking = tracking.seconds;
 }
 
 /** The solver a session sets up for these settings. */

@@ -12,6 +12,7 @@ import type { WaterBudget } from './budget.js';
 import type { CalibrationStatistics } from './calibration.js';
 import type { ObservationResult, WellResult } from './points.js';
 import type { WellboreResult } from './wellbore.js';
+import type { TrackingRun } from './tracking/run.js';
 
 /** Above this budget discrepancy a run fails loudly even when the residual criterion was met. */
 export const BUDGET_DISCREPANCY_LIMIT_PERCENT = 0.1;
@@ -33,6 +34,8 @@ export interface SolveResult {
   wellbore: WellboreResult[];
   /** Simulated vs observed statistics; null without observations. */
   calibration: CalibrationStatistics | null;
+  /** Capture zones, pathlines and point tracks (scenario key `tracking`); absent without it or for an unsound solve. */
+  tracking?: TrackingRun;
   warnings: string[];
   /** Wall seconds per stage. */
   timings: Record<string, number>;

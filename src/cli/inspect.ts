@@ -16,6 +16,8 @@ export interface InspectReport {
   wells: Array<{ id: string; row: number; col: number; rate: number }>;
   observations: number;
   receptors: number;
+  /** The tracking key as resolved (points in the raster CRS), when given. */
+  tracking?: { captureTimes: number[]; particlesPerWell: number; points: Array<{ id: string; x: number; y: number }>; maxTime: number | null };
   /** Variants, checked as compare would check them (resolved and assembled, not solved). */
   variants: Array<{ name: string; wells: number; sharedOperator: boolean; sharing: string }>;
   solver: { method: string; autoChoice: string; tolerance: number; maxIterations: number };
@@ -69,6 +71,16 @@ export function inspectReport(
     }),
     observations: model.observations.length,
     receptors: model.receptors?.length ?? 0,
+    ...(model.tracking
+      ? {
+          tracking: {
+            captureTimes: model.tracking.captureTimes,
+            particlesPerWell: model.tracking.particlesPerWell,
+            points: model.tracking.points.map(({ id, x, y }) => ({ id, x, y })),
+            maxTime: model.tracking.maxTime ?? null,
+          },
+        }
+      : {}),
     variants: variants.map((v) => ({ name: v.name, wells: v.model.wells.length, sharedOperator: v.shared, sharing: v.sharing })),
     solver: { method: model.solver.method, autoChoice, tolerance: model.solver.tolerance, maxIterations: model.solver.maxIterations },
     inputFiles: model.inputFiles,
@@ -98,6 +110,10 @@ export function formatInspect(r: InspectReport): string {
   for (const w of r.wells) out.push(`Well         ${w.id}: row ${w.row}, col ${w.col}, rate ${w.rate}`);
   out.push(`Observations ${r.observations}`);
   if (r.receptors) out.push(`Receptors    ${r.receptors}`);
+  if (r.tracking) {
+    const times = r.tracking.captureTimes.length ? `capture times ${r.tracking.captureTimes.join(', ')} and steady` : 'steady capture zones';
+    out.push(`Tracking     ${times}; ${r.tracking.particlesPerWell} pathline(s) per well; ${r.tracking.points.length} point(s)${r.tracking.maxTime !== null ? `; time limit ${r.tracking.maxTime}` : ''}`);
+  }
   for (const v of r.variants) out.push(`Variant      ${v.name}: ${v.wells} well(s); ${v.sharing}`);
   out.push(
     `Solver       ${r.solver.method}${r.solver.method === 'auto' ? ` (would use ${r.solver.autoChoice})` : ''}, tolerance ${r.solver.tolerance}, at most ${L(r.solver.maxIterations)} iterations`,

@@ -95,7 +95,7 @@ function addSolverOptions(cmd: Command): Command {
     .option('--relaxation <omega>', 'relaxation factor for SOR (default: chosen automatically)', solverOption('relaxation'))
     .option('--overwrite', 'replace results already in the output folder')
     .option('--no-maps', 'write only rasters, tables and the summary: no contours, flux rasters, map or report')
-    .option('--native-contours', "also write contours in the raster's own CRS (*.native.geojson)")
+    .option('--native-contours', "also write contours (and capture zones and pathlines) in the raster's own CRS (*.native.geojson)")
     .option('--contour-interval <number>', 'contour interval in length units (default: a round interval)', positiveNumber('--contour-interval'));
 }
 

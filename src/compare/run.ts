@@ -17,6 +17,7 @@ import { drawdownExtremes, drawdownField, pointDrawdown, totalWithdrawal, wellbo
 import { locateObservations, locateReceptors, wellCells } from '../analysis/points.js';
 import { resultProblem, type SolveResult } from '../analysis/result.js';
 import { sourcesOfWater } from '../analysis/sources.js';
+import { compareCapture } from '../analysis/tracking/compareCapture.js';
 import { closeSession, openSession, runInline, runOn, type Plan } from '../executor/plan.js';
 import type { Executor } from '../executor/types.js';
 import { gridDifference } from '../grid.js';
@@ -231,5 +232,6 @@ function analyseVariant(
     ),
     withdrawal: totalWithdrawal(result.model.wells),
     sources: sourcesOfWater(base.budget, result.budget),
+    capture: base.tracking && result.tracking ? compareCapture(base.tracking, result.tracking, receptors, receptorCells) : null,
   };
 }

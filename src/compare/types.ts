@@ -7,6 +7,7 @@ import type { FlowSystem } from '../discretisation/assemble.js';
 import type { PointDrawdown, WellboreDrawdown } from '../analysis/drawdown.js';
 import type { SolveResult } from '../analysis/result.js';
 import type { SourcesOfWater } from '../analysis/sources.js';
+import type { CaptureComparison } from '../analysis/tracking/compareCapture.js';
 import type { ModelInput, ReceptorInput } from '../scenario/types.js';
 
 export type { PointDrawdown, WellboreDrawdown } from '../analysis/drawdown.js';
@@ -33,6 +34,8 @@ export interface VariantComparison {
   /** Sum of withdrawal rates (positive number), L^3/T. */
   withdrawal: number;
   sources: SourcesOfWater;
+  /** Capture zones against the baseline's (both runs tracked: scenario key `tracking`), else null. */
+  capture: CaptureComparison | null;
 }
 
 export interface ComparisonResult {

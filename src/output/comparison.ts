@@ -7,6 +7,7 @@ import type { ComparisonResult, VariantComparison } from '../compare/types.js';
 import type { SolveResult } from '../analysis/result.js';
 import { calibrationJson, calibrationLine, MAX_PRINTED_ROWS, tidy } from './summary.js';
 import { csvRow } from './csv.js';
+import { captureComparisonJson, captureComparisonLines } from './tracking.js';
 
 /** A number for a CSV cell: rounded, empty when not a finite number (csvCell writes it). */
 function cell(v: number | null | undefined): number | null {
@@ -173,6 +174,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
             totalPercent: v.sources.totalPercent === null ? null : tidy(v.sources.totalPercent),
           },
       calibration: calibrationJson(v.result.calibration),
+      ...(v.capture ? { capture: captureComparisonJson(v.capture) } : {}),
       warnings: v.result.warnings.filter((w) => !base.warnings.includes(w)),
       problem: v.problem ? v.problem.message : null,
     })),
@@ -288,6 +290,7 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
       if (v.problem) out.push(`  ${v.name}: ${v.problem.split('\n')[0]}`);
     }
   }
+  for (const line of captureComparisonLines(variants as Array<VariantJson & { capture?: unknown }>, summary.units)) out.push(line);
   for (const w of summary.warnings) out.push(`warning: ${w}`);
   for (const v of variants as Array<VariantJson & { warnings?: string[] }>) for (const w of v.warnings ?? []) out.push(`warning (${v.name}): ${w}`);
   if (outDir) {

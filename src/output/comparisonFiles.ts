@@ -13,6 +13,7 @@ import { VERSION } from '../version.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
 import { comparisonCsv, comparisonSummary, type ComparisonSummaryJson } from './comparison.js';
 import { contourFiles, reportRun, type ProductOptions, type RenderedMap } from './products.js';
+import { reportTracking } from './tracking.js';
 import { prepareResultFolder, releaseResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './resultFolder.js';
 import { REPORT_FILE, solveFolderFiles } from './solveFiles.js';
 
@@ -63,6 +64,7 @@ export function comparisonFiles(c: ComparisonResult, options: ProductOptions = {
     const boreDrawdown = new Map(v.wellbores.map((w) => [w.id, w.drawdown]));
     const reportExtra: Partial<ReportRun> = {};
     if (v.maxDrawdown) reportExtra.maxDrawdown = v.maxDrawdown.value;
+    if (v.capture && v.result.tracking) reportExtra.tracking = reportTracking(v.result.tracking, v.capture);
     runFolder(v.name, v.result, extra, maps, reportExtra);
     const run = runs[runs.length - 1]!;
     for (const w of run.wells) {

@@ -9,12 +9,13 @@ import { CAUTION } from '../caution.js';
 import { VERSION } from '../version.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { makeTransform } from '../crs.js';
-import { renderMapPng, type MapInput } from '../report/index.js';
+import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
 import type { ReportRun, ReportMap } from '../report/index.js';
 import type { SolveResult } from '../analysis/result.js';
 import type { OutputFile } from './resultFolder.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
 import { headRange } from './summary.js';
+import { reportTracking } from './tracking.js';
 
 export interface ProductOptions {
   /** Write contours, flux rasters, the quick-look map and the report (default true). */
@@ -148,6 +149,7 @@ export function solveProducts(result: SolveResult, options: ProductOptions = {},
     observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y })),
     flux: { qx: flux.qx, qy: flux.qy },
     footnote: `piezomap ${VERSION}`,
+    ...(result.tracking ? { overlays: [trackingOverlay(result.tracking, model.units)] } : {}),
   };
   const map = renderMapPng(mapInput);
   const mapName = `${prefix}head-map.png`;
@@ -181,6 +183,7 @@ export function reportRun(name: string, result: SolveResult, maps: RenderedMap[]
     observations: result.observations.map((o) => ({ id: o.id, observed: o.observed, simulated: o.simulated, residual: o.residual })),
     maps: maps.map((m): ReportMap => ({ caption: m.caption, png: m.png, file: m.file })),
     warnings: result.warnings,
+    ...(result.tracking ? { tracking: reportTracking(result.tracking) } : {}),
     ...extra,
   };
 }

@@ -11,6 +11,7 @@ import { VERSION } from '../version.js';
 import { exchangeRasters, reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
 import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
 import { budgetCsv, buildSummary, convergenceCsv, type SummaryJson } from './summary.js';
+import { trackingFiles } from './tracking.js';
 
 export const REPORT_FILE = 'report.html';
 
@@ -38,6 +39,10 @@ export function resultBundle(result: SolveResult, prefix = '', options: ProductO
   const products = solveProducts(result, options, prefix);
   for (const w of products.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
   files.push(...products.files);
+  // Capture zones, pathlines and their rasters are data (written with or without maps).
+  const tracking = trackingFiles(result, prefix, options);
+  for (const w of tracking.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
+  files.push(...tracking.files);
   return { files, maps: products.maps };
 }
 

@@ -4,6 +4,7 @@ import type { SolveResult } from '../analysis/result.js';
 import type { WaterBudget } from '../analysis/budget.js';
 import type { CalibrationStatistics } from '../analysis/calibration.js';
 import { csvRow } from './csv.js';
+import { trackingLines, trackingSummary } from './tracking.js';
 
 /** Round to 12 significant digits so files are stable and readable (float noise beyond that is meaningless here). */
 export function tidy(v: number): number {
@@ -116,6 +117,7 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
       residual: tidy(o.residual),
     })),
     calibration: calibrationJson(result.calibration),
+    ...(result.tracking ? { tracking: trackingSummary(result.tracking) } : {}),
     warnings: result.warnings,
     files,
     timings: Object.fromEntries(Object.entries(result.timings).map(([k, v]) => [k, tidy(v)])),
@@ -252,6 +254,7 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
     const c = summary.calibration as ReturnType<typeof calibrationJson> | undefined;
     if (c) out.push(calibrationLine(c, L));
   }
+  appendAll(out, trackingLines(summary.tracking, summary.units));
   const stages = Object.entries(summary.timings);
   if (stages.length) out.push(`Time     ${stages.map(([stage, seconds]) => `${stage} ${seconds.toFixed(2)} s`).join(' · ')}`);
   for (const w of summary.warnings) out.push(`warning: ${w}`);

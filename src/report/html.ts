@@ -4,6 +4,7 @@
  * SVG, and a Content-Security-Policy forbids everything else. Every user-supplied string is escaped.
  */
 import { convergencePlotSvg } from './plot.js';
+import { trackingSectionHtml, type ReportTracking } from './trackingSection.js';
 import { dataUrl } from './png.js';
 import { escapeMarkup, formatFixed, formatSignificant } from './text.js';
 
@@ -68,6 +69,8 @@ export interface ReportRun {
   observations: ReportObservation[];
   maps: ReportMap[];
   warnings?: string[];
+  /** Capture zones, travel times and tracks from points (scenario key `tracking`). */
+  tracking?: ReportTracking;
 }
 
 export interface ReportVariantRow {
@@ -337,6 +340,7 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
       );
     }
   }
+  if (run.tracking) parts.push(trackingSectionHtml(run.tracking, L, input.units.time));
   if (run.warnings?.length) parts.push(`<h3>Warnings for this run</h3><ul class="warnings">${run.warnings.map((w) => `<li>${e(w)}</li>`).join('')}</ul>`);
   parts.push('</section>');
   return parts.join('\n');

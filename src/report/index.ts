@@ -4,3 +4,5 @@ export { renderReportHtml, type ReportInput, type ReportRun, type ReportMap, typ
 export { convergencePlotSvg, type ConvergencePlotOptions } from './plot.js';
 export { svgToPng, encodePng, dataUrl } from './png.js';
 export { escapeMarkup } from './text.js';
+export { trackingOverlay, ZONE_COLOURS, type MapOverlay } from './trackingLayer.js';
+export { trackingSectionHtml, type ReportTracking } from './trackingSection.js';

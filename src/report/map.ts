@@ -12,6 +12,7 @@ import { contourField, decimalsOf, finiteRange, type ContourSet } from '../analy
 import { colourCells, drawdownRamp, headRamp, rampHex, type ColourRamp } from './colour.js';
 import { dataUrl, encodePng, MAP_FONT_STACK, svgToPng } from './png.js';
 import { escapeMarkup, formatFixed, niceTicks, wrapText } from './text.js';
+import type { MapOverlay } from './trackingLayer.js';
 
 export interface MapPoint {
   id: string;
@@ -42,6 +43,8 @@ export interface MapInput {
   flux?: { qx: Float64Array; qy: Float64Array };
   /** Small print at the bottom right, e.g. the program version. */
   footnote?: string;
+  /** Layers drawn above the flow arrows and below the points, each with its legend rows (e.g. capture zones). */
+  overlays?: readonly MapOverlay[];
 }
 
 export interface MapOptions {
@@ -95,7 +98,8 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   const footerLines = wrapText(input.caution, Math.floor((width - 2 * MARGIN) / 6.9));
   // Each kind of point drawn as a density takes five legend rows of 24 px instead of up to three.
   const denseRows = (denseKinds(input).wells ? 5 : 0) + (denseKinds(input).observations ? 5 : 0);
-  const legendHeight = 520 + 24 * denseRows;
+  const overlayRows = (input.overlays ?? []).reduce((sum, o) => sum + o.legend.length, 0);
+  const legendHeight = 520 + 24 * denseRows + 24 * overlayRows;
   const bodyHeight = Math.max(frame.height, legendHeight);
   const height = Math.round(frame.top + bodyHeight + 24 + footerLines.length * 16 + 26);
 
@@ -124,6 +128,7 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   layers.forEach((layer, i) => parts.push(fixedHeadPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy, fills[i]!, layer.style?.colour)));
   parts.push(contourLayer(contours, levelDecimals, px, py, input.quantity));
   if (input.flux) parts.push(arrowLayer(input.flux, values, grid, frame, cellPx, cellPy, options.arrowSpacing ?? 40));
+  for (const overlay of input.overlays ?? []) parts.push(overlay.draw(px, py));
   const dense = denseKinds(input);
   parts.push(pointLayer(dense.observations ? [] : (input.observations ?? []), dense.wells ? [] : (input.wells ?? []), px, py));
   if (dense.observations) parts.push(densityLayer(input.observations ?? [], px, py, frame, OBSERVATION_DENSITY_COLOUR, 'observation-density'));
@@ -637,6 +642,7 @@ function legend(
   if (dense.observations) densityLegend('observation points', observations.length, OBSERVATION_DENSITY_COLOUR, x, placed);
   else if (observations.length > 0) row(observationSymbol(x + 12, y + 1), 'Observation point');
   for (const cell of cellLegends) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#${cell.fill})" stroke="${cell.colour}" stroke-width="0.8"/>`, cell.label);
+  for (const overlay of input.overlays ?? []) for (const item of overlay.legend) row(item.symbol(x, y), item.label);
   if (showInactive) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#nodata)" stroke="${MUTED}" stroke-width="0.8"/>`, 'Inactive (no flow)');
   parts.push('</g>');
   return parts.join('');

@@ -12,7 +12,7 @@
  */
 import { readFile, stat } from 'node:fs/promises';
 import { basename, dirname, extname, resolve } from 'node:path';
-import { crsLabel, gridBounds, gridDifference, type Grid } from '../grid.js';
+import { cellAt, crsLabel, gridBounds, gridDifference, type Grid } from '../grid.js';
 import { describeThrown, inputError, PiezomapError } from '../errors.js';
 import { readRaster, readRasterHeader } from '../raster/read.js';
 import { checkRasterMemory, rasterBudget, type RasterFootprint } from '../memory.js';
@@ -36,7 +36,7 @@ import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
 import { numberProperty, readPointFeatures, type PointFeature } from './pointFeatures.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import { checkMagnitudes } from './magnitudes.js';
-import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, WellInput } from './types.js';
+import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, TrackingSettings, WellInput } from './types.js';
 import { fieldAt } from '../field.js';
 import { loadHeadDependent, loadLeakage } from './loadHeadDependent.js';
 
@@ -170,6 +170,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   const wells = await loader.wells(raw.wells, transform);
   const observations = await loader.observations(raw.observations, transform);
   const receptors = await loader.receptors(raw.receptors, transform, grid, conductivityPath);
+  const tracking = raw.tracking ? resolveTracking(raw, loader.label, porosity, transform, grid, conductivity, thickness, (t, x, y, what) => loader.projectPoint(t, x, y, what)) : undefined;
 
   const solver = raw.solver ?? solverSchema.parse({});
   const title = raw.title ?? (inline ? 'Untitled scenario' : basename(scenarioPath, extname(scenarioPath)));
@@ -193,12 +194,80 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     wells,
     observations,
     receptors,
+    ...(tracking ? { tracking } : {}),
     solver: { ...solver },
     inputFiles: [...loader.inputFiles],
     warnings: loader.warnings,
   };
   checkMagnitudes(model, loader.label, { conductivity: conductivityPath, thickness: raw.aquifer.thickness, ...(raw.recharge === undefined ? {} : { recharge: raw.recharge }) });
   return model;
+}
+
+/**
+ * The `tracking` key resolved: porosity is required (and must cover every active cell), points are taken in
+ * pointCrs like the other point lists and must lie on active cells of the grid. Each problem names its key.
+ */
+function resolveTracking(
+  raw: ScenarioJson,
+  label: string,
+  porosity: Float64Array | number | undefined,
+  transform: PointTransform | null,
+  grid: Grid,
+  conductivity: Float64Array,
+  thickness: Float64Array | number,
+  project: (transform: PointTransform | null, x: number, y: number, what: string) => { x: number; y: number },
+): TrackingSettings {
+  const spec = raw.tracking!;
+  if (!(grid.transform[1] > 0 && grid.transform[5] < 0)) {
+    // The tracking engine's frame is north-up; refused here rather than after a long solve.
+    throw inputError(`${label}: tracking needs a north-up grid (positive pixel width, negative pixel height); this grid's geotransform is [${grid.transform.join(', ')}]`, {
+      key: 'tracking',
+      hint: 'warp the rasters to a north-up grid (e.g. gdalwarp) before tracking, or drop "tracking"',
+    });
+  }
+  if (porosity === undefined) {
+    throw inputError(`${label}: tracking needs aquifer.porosity (the effective porosity turns Darcy flux into particle velocity)`, {
+      key: 'aquifer.porosity',
+      hint: 'add "porosity": 0.2 (a fraction in (0, 1]) or a GeoTIFF path to "aquifer", or drop "tracking"',
+    });
+  }
+  if (typeof porosity !== 'number') {
+    for (let p = 0; p < porosity.length; p++) {
+      if (isActive(conductivity, thickness, p) && !(porosity[p]! > 0 && porosity[p]! <= 1)) {
+        throw inputError(`${label}: tracking needs aquifer.porosity on every active cell; it has none at row ${Math.floor(p / grid.nx)}, col ${p % grid.nx}`, {
+          key: 'aquifer.porosity',
+          cell: { row: Math.floor(p / grid.nx), col: p % grid.nx },
+          hint: 'fill the porosity raster on the active area (nodata only where the aquifer is inactive)',
+        });
+      }
+    }
+  }
+  const points = spec.points.map((entry, index) => {
+    const source = `tracking.points[${index}]`;
+    const point = project(transform, entry.x, entry.y, `tracking point "${entry.id}" (${source})`);
+    const cell = cellAt(grid, point.x, point.y);
+    if (!cell) {
+      throw inputError(`${label}: ${source}: tracking point "${entry.id}" at x=${entry.x}, y=${entry.y} lies outside the grid`, {
+        key: source,
+        hint: 'check the coordinates and pointCrs: points are in the raster CRS unless pointCrs names another',
+      });
+    }
+    if (!isActive(conductivity, thickness, cell.row * grid.nx + cell.col)) {
+      throw inputError(`${label}: ${source}: tracking point "${entry.id}" lies in an inactive cell (row ${cell.row}, col ${cell.col})`, {
+        key: source,
+        cell,
+        hint: 'move the point into the active aquifer',
+      });
+    }
+    return { id: entry.id, x: point.x, y: point.y, source };
+  });
+  const settings: TrackingSettings = {
+    captureTimes: [...new Set(spec.captureTimes)].sort((a, b) => a - b),
+    particlesPerWell: spec.particlesPerWell,
+    points,
+  };
+  if (spec.maxTime !== undefined) settings.maxTime = spec.maxTime;
+  return settings;
 }
 
 /** What the values of a raster key measure, for checking a unit the raster declares. */
@@ -709,6 +778,11 @@ class Loader {
       const point = this.project(transform, feature.x, feature.y, `${what} "${feature.id}" (${source})`);
       return { feature, source, x: point.x, y: point.y };
     });
+  }
+
+  /** A point in pointCrs (or the raster CRS) in the raster CRS, for point lists resolved outside the loader. */
+  projectPoint(transform: PointTransform | null, x: number, y: number, what: string): { x: number; y: number } {
+    return this.project(transform, x, y, what);
   }
 
   private project(transform: PointTransform | null, x: number, y: number, what: string): { x: number; y: number } {

@@ -245,6 +245,35 @@ export const solverSchema = strict({
   relaxation: finite.gt(0).lt(2).optional(),
 });
 
+/** A point tracked forward (a spill site, a field); in pointCrs like the other point lists. */
+export const trackingPointSchema = strict({
+  id: identifier,
+  x: finite,
+  y: finite,
+});
+
+/**
+ * Particle tracking (../shared/spec/interface.md `tracking`): backward capture zones of every withdrawal well for
+ * each capture time plus the steady zone, and forward tracks from points. Needs aquifer.porosity (checked when
+ * the scenario is resolved, where the aquifer is known).
+ */
+export const trackingSchema = strict({
+  captureTimes: z.array(finite.gt(0, { error: 'must be a capture time > 0 (time units)' })).default([]),
+  particlesPerWell: z.int().gte(0).lte(10000).default(36),
+  points: z
+    .array(trackingPointSchema)
+    .superRefine((entries, ctx) => {
+      const seen = new Map<string, number>();
+      entries.forEach((item, index) => {
+        const first = seen.get(item.id);
+        if (first !== undefined) ctx.addIssue({ code: 'custom', path: [index, 'id'], message: `duplicate tracking point id "${item.id}" (also at [${first}])` });
+        else seen.set(item.id, index);
+      });
+    })
+    .default([]),
+  maxTime: finite.gt(0, { error: 'must be a time limit > 0 (time units)' }).optional(),
+});
+
 export const pointCrsSchema = z
   .string()
   .regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' });
@@ -286,6 +315,7 @@ const replaceableFields = {
   observations: listOrCsv(observationSchema, 'observation').optional(),
   receptors: listOrCsv(receptorSchema, 'receptor').optional(),
   solver: solverSchema.optional(),
+  tracking: trackingSchema.optional(),
 };
 
 export const variantSchema = z.preprocess(markOtherAnchors, strict({
@@ -332,6 +362,7 @@ export type WellChange = z.output<typeof wellChangeSchema>;
 export type ObservationEntry = z.output<typeof observationSchema>;
 export type ReceptorEntry = z.output<typeof receptorSchema>;
 export type SolverJson = z.output<typeof solverSchema>;
+export type TrackingJson = z.output<typeof trackingSchema>;
 export type VariantJson = z.output<typeof variantSchema>;
 type ParsedScenario = z.output<typeof scenarioSchema>;
 

@@ -88,6 +88,16 @@ export interface LeakageInput {
   leakance: Float64Array | number;
 }
 
+/** Particle tracking settings (scenario key `tracking`), points in the raster CRS. */
+export interface TrackingSettings {
+  /** Capture times (> 0, ascending, unique), time units. */
+  captureTimes: number[];
+  particlesPerWell: number;
+  points: Array<{ id: string; x: number; y: number; source: string }>;
+  /** Time limit of every track, when given. */
+  maxTime?: number;
+}
+
 export interface SolverSettings {
   method: string;
   tolerance: number;
@@ -125,6 +135,8 @@ export interface ModelInput {
   /** Receptors (optional key; absent = none). */
   receptors?: ReceptorInput[];
   solver: SolverSettings;
+  /** Particle tracking (optional key; absent = none). Needs `porosity`. */
+  tracking?: TrackingSettings;
   /** Input files read, for the summary. */
   inputFiles: string[];
   /** Non-fatal remarks found while loading. */

@@ -43,9 +43,9 @@ describe.runIf(gdalPresent || onCi)('GIS files written by solve and compare', ()
 
   it('gdalinfo reads every GeoTIFF with the demo grid, EPSG:32633 and nodata -9999', () => {
     const rasters = walk(dir).filter((f) => f.endsWith('.tif'));
-    // solve: head + three flux rasters + two exchange rasters (river, field drains); compare: the same for
-    // baseline and variant, plus drawdown.tif.
-    expect(rasters.length).toBe(6 + 6 + 7);
+    // solve: head, three flux rasters, velocity (the demo has a porosity), capture-well and travel-time (it tracks),
+    // two exchange rasters (river, field drains); compare: the same for baseline and variant, plus drawdown.tif.
+    expect(rasters.length).toBe(9 + 9 + 10);
     for (const path of rasters) {
       const info = JSON.parse(execFileSync('gdalinfo', ['-json', path], { encoding: 'utf8' }));
       expect(info.size, path).toEqual([240, 180]);
@@ -57,8 +57,9 @@ describe.runIf(gdalPresent || onCi)('GIS files written by solve and compare', ()
     }
   });
 
-  it('ogrinfo reads every GeoJSON: line layers with a level field, WGS 84 over the demo area for RFC 7946 files', () => {
-    const vectors = walk(dir).filter((f) => f.endsWith('.geojson'));
+  it('ogrinfo reads every contour GeoJSON: line layers with a level field, WGS 84 over the demo area for RFC 7946 files', () => {
+    // Capture zones and pathlines are checked in tracking-outputs.test.ts.
+    const vectors = walk(dir).filter((f) => /-contours(\.native)?\.geojson$/.test(f));
     expect(vectors.length).toBeGreaterThanOrEqual(4); // solve head (+native), baseline head, variant head and drawdown
     for (const path of vectors) {
       const text = execFileSync('ogrinfo', ['-ro', '-al', '-so', path], { encoding: 'utf8' });

@@ -182,7 +182,7 @@ describe('parseScenarioJson', () => {
     expect(lines).toEqual([
       'scenario.json: variants[0].name: "baseline" is reserved for the scenario itself',
       'scenario.json: variants[1].name: must use only letters, digits, "-" and "_" (it names a result folder)',
-      'scenario.json: variants[2].variants: unknown key (allowed here: name, title, units, aquifer, fixedHeads, recharge, headDependent, leakage, wells, pointCrs, groundSurface, observations, receptors, solver)',
+      'scenario.json: variants[2].variants: unknown key (allowed here: name, title, units, aquifer, fixedHeads, recharge, headDependent, leakage, wells, pointCrs, groundSurface, observations, receptors, solver, tracking)',
       'scenario.json: variants[4].aquifer.conductivity: required key is missing (expected a string)',
     ]);
     expect(errorsOf({ ...minimal, variants: [{ name: 'wet' }, { name: 'WET' }] })).toEqual([

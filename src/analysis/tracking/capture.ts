@@ -243,10 +243,15 @@ export function captureZones(field: TrackingField, stopLabel: Int32Array, option
   if (particlesPerWell > 0) {
     const tracker = new Tracker(field);
     const path = new PathBuffer();
+    // The cells of every well, in one pass over the grid (not one pass per well).
+    const cellsOf: number[][] = wellLabels.map(() => []);
+    for (let p = 0; p < n; p++) {
+      const l = stopLabel[p]!;
+      if (l >= 0 && wellIndexOfLabel[l]! >= 0) cellsOf[wellIndexOfLabel[l]!]!.push(p);
+    }
     for (let k = 0; k < wellLabels.length; k++) {
       const label = wellLabels[k]!;
-      const cells: number[] = [];
-      for (let p = 0; p < n; p++) if (stopLabel[p] === label) cells.push(p);
+      const cells = cellsOf[k]!;
       if (!cells.length) continue;
       const id = field.labels[label]!.name;
       for (let m = 0; m < particlesPerWell; m++) {

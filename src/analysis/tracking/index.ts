@@ -31,3 +31,5 @@ export {
 export { trackPoints, locatePoint, type TrackPoint, type PointTrack, type PointTrackOptions } from './points.js';
 export { trackingInputFromSystem, type SystemTrackingOptions } from './fromSystem.js';
 export { endRastersInWorkers, trackingWorkersAvailable } from './workers.js';
+export { trackSolution, type TrackingRun } from './run.js';
+export { compareCapture, type CaptureComparison, type ZoneAreaChange, type NewCapture } from './compareCapture.js';

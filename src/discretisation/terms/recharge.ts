@@ -40,6 +40,7 @@ function build(model: ModelInput, context: TermContext): FlowTerm[] {
       anchors: false,
       mapLegend: null,
       pumping: false,
+      areal: true,
       linearise(_head, _diag, rhs) {
         for (let k = 0; k < cells.length; k++) rhs[cells[k]!]! += rates[k]!;
       },

@@ -31,6 +31,12 @@ export interface FlowTerm {
   /** True when this term's flow is the pumping whose change `compare` splits into sources of water. */
   readonly pumping: boolean;
   /**
+   * True when the term's flow is spread over the cells' area (recharge, leakage through a confining layer):
+   * particle tracking lets particles pass its cells. Otherwise (default) its cells where water leaves or enters
+   * the aquifer are a boundary that stops particles, named by `label` (analysis/tracking/fromSystem.ts).
+   */
+  readonly areal?: boolean;
+  /**
    * Add the term's contribution, linearised about `head` (absolute heads, full grid, NaN off the active area), to
    * the operator's diagonal and the right-hand side for the unknowns x = h - datum: a flow Q(h) ~ a - c·h adds c
    * to diag[p] and a - c·datum to rhs[p]. Only unknown cells are touched.
