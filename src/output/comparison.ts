@@ -143,6 +143,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
       },
       maxDrawdown: v.maxDrawdown ? { ...v.maxDrawdown, value: tidy(v.maxDrawdown.value) } : null,
       maxRise: v.problem ? null : tidy(v.maxRise),
+      drawdownNoiseLevel: Number(v.noiseLevel.toPrecision(2)),
       observations: v.observations.map((o) => ({ id: o.id, drawdown: nullable(o.drawdown) })),
       receptors: v.receptors.map((r) => ({ id: r.id, drawdown: nullable(r.drawdown) })),
       wells: v.wellbores.map((w) => ({

@@ -5,10 +5,12 @@
  */
 import type { SolveResult } from '../analysis/result.js';
 import { CAUTION } from '../caution.js';
-import type { ComparisonResult } from '../compare/types.js';
+import type { ComparisonResult, VariantComparison } from '../compare/types.js';
+import type { ContourSet } from '../analysis/contours.js';
 import { crsLabel } from '../grid.js';
+import { PiezomapError } from '../errors.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
-import { renderMapPng, renderReportHtml, type ReportRun } from '../report/index.js';
+import { renderMapPng, renderReportHtml, type MapInput, type ReportRun } from '../report/index.js';
 import { VERSION } from '../version.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
 import { comparisonCsv, comparisonSummary, type ComparisonSummaryJson } from './comparison.js';
@@ -41,19 +43,7 @@ export function comparisonFiles(c: ComparisonResult, options: ProductOptions = {
         const contours = contourFiles(grid, v.drawdown, 'drawdown', units.length, options, `${v.name}/`);
         extra.push(...contours.files);
         for (const w of contours.warnings) if (!v.result.warnings.includes(w)) v.result.warnings.push(w);
-        const map = renderMapPng({
-          grid,
-          values: v.drawdown,
-          quantity: 'drawdown',
-          units,
-          title: v.result.model.title,
-          caution: CAUTION,
-          contours: contours.contours,
-          cellLayers: mapCellLayers(v.result.system.terms, v.result.system.active.length),
-          wells: v.result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
-          observations: [...v.observations, ...v.receptors].map((o) => ({ id: o.id, x: o.x, y: o.y })),
-          footnote: `piezomap ${VERSION}`,
-        });
+        const map = renderMapPng(drawdownMapInput(v, contours.contours, units));
         const file = `${v.name}/drawdown-map.png`;
         extra.push({ name: file, bytes: map.png });
         maps.push({ caption: `Drawdown against the baseline, ${units.length} (positive = lowered)`, file, png: map.png });
@@ -81,6 +71,26 @@ export function comparisonFiles(c: ComparisonResult, options: ProductOptions = {
   if (withReport) files.push({ name: REPORT_FILE, bytes: comparisonReport(c, runs, summary) });
   files.push({ name: RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
   return { files, summary };
+}
+
+/** The drawdown map of a sound variant: drawdown with its noise level, contours, each term's cells, wells, points, receptors. */
+export function drawdownMapInput(v: VariantComparison, contours: ContourSet, units: { length: string; time: string }): MapInput {
+  if (!v.drawdown) throw new PiezomapError('internal', `variant "${v.name}" has no drawdown field to map`);
+  return {
+    grid: v.result.model.grid,
+    values: v.drawdown,
+    quantity: 'drawdown',
+    units,
+    title: v.result.model.title,
+    caution: CAUTION,
+    contours,
+    cellLayers: mapCellLayers(v.result.system.terms, v.result.system.active.length),
+    wells: v.result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
+    observations: v.observations.map((o) => ({ id: o.id, x: o.x, y: o.y })),
+    receptors: v.receptors.map((r) => ({ id: r.id, x: r.x, y: r.y })),
+    noiseLevel: v.noiseLevel,
+    footnote: `piezomap ${VERSION}`,
+  };
 }
 
 /** The comparison's HTML report: the variants table, then the baseline and each variant with their maps. */

@@ -109,24 +109,31 @@ export function solveProducts(result: SolveResult, options: ProductOptions = {},
     files.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity'));
   }
 
-  const mapInput: MapInput = {
+  const mapInput = headMapInput(result, headContours.contours, flux);
+  const map = renderMapPng(mapInput);
+  const mapName = `${prefix}head-map.png`;
+  files.push({ name: mapName, bytes: map.png });
+  return { files, maps: [{ caption: `Head, ${model.units.length}`, file: mapName, png: map.png }], warnings };
+}
+
+/** The head map of one solve: heads, contours, flow arrows, each term's cells, wells, receptors, residuals. */
+export function headMapInput(result: SolveResult, contours: ContourSet, flux: DarcyFlux = fluxOf(result)): MapInput {
+  const { model, system } = result;
+  return {
     grid: model.grid,
     values: result.head,
     quantity: 'head',
     units: model.units,
     title: model.title,
     caution: CAUTION,
-    contours: headContours.contours,
+    contours,
     cellLayers: mapCellLayers(system.terms, system.active.length),
     wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
-    observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y })),
+    observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y, residual: o.residual })),
+    receptors: (model.receptors ?? []).map((r) => ({ id: r.id, x: r.x, y: r.y })),
     flux: { qx: flux.qx, qy: flux.qy },
     footnote: `piezomap ${VERSION}`,
   };
-  const map = renderMapPng(mapInput);
-  const mapName = `${prefix}head-map.png`;
-  files.push({ name: mapName, bytes: map.png });
-  return { files, maps: [{ caption: `Head, ${model.units.length}`, file: mapName, png: map.png }], warnings };
 }
 
 /** The report's view of one run. */

@@ -26,8 +26,10 @@ export interface FlowTerm {
   readonly anchors: boolean;
   /** True when the term's linearisation depends on the heads (switches, head-dependent conductance). */
   readonly nonlinear: boolean;
-  /** Map legend of the term's cells when maps draw them (hatched), null when they are not drawn as cells. */
+  /** Map legend of the term's cells when maps draw them, null when they are not drawn as cells. */
   readonly mapLegend: string | null;
+  /** How maps draw the term's cells (pattern and ink); absent: the map picks a hatching of its own. */
+  readonly mapStyle?: MapCellStyle;
   /** True when this term's flow is the pumping whose change `compare` splits into sources of water. */
   readonly pumping: boolean;
   /**
@@ -49,6 +51,18 @@ export interface FlowTerm {
   readonly ignoredCells: number;
   /** Non-fatal remarks about the term's input, worded for before (`done` false) or after a solve. */
   notes(done: boolean): string[];
+}
+
+/**
+ * How a map draws a term's cells: a pattern in one ink colour over the cell colours. A kind gives each of its terms
+ * (e.g. each fixed-head group) its own colour or angle, so every legend row can be told apart on the map.
+ */
+export interface MapCellStyle {
+  pattern: 'hatch' | 'cross-hatch' | 'dots' | 'outline';
+  /** Ink colour (#rrggbb). */
+  colour: string;
+  /** Angle of hatching in degrees (default 45). */
+  angle?: number;
 }
 
 /** What the first stage of assembly knows: the grid and the active cells. */
@@ -99,16 +113,22 @@ export const linearTerm = {
 } as const;
 
 /**
- * The cells of the terms drawn on maps, one layer per legend label (terms sharing a label, e.g. every fixed-head
- * group, form one layer), in term order.
+ * The cells of the terms drawn on maps, one layer per legend label (terms sharing a label form one layer, drawn in
+ * the first one's style), in term order.
  */
-export function mapCellLayers(terms: readonly FlowTerm[], cellCount: number): Array<{ legend: string; cells: Uint8Array }> {
-  const layers = new Map<string, Uint8Array>();
+export function mapCellLayers(
+  terms: readonly FlowTerm[],
+  cellCount: number,
+): Array<{ legend: string; cells: Uint8Array; style?: MapCellStyle }> {
+  const layers = new Map<string, { legend: string; cells: Uint8Array; style?: MapCellStyle }>();
   for (const term of terms) {
     if (term.mapLegend === null) continue;
-    let mask = layers.get(term.mapLegend);
-    if (!mask) layers.set(term.mapLegend, (mask = new Uint8Array(cellCount)));
-    for (let k = 0; k < term.cells.length; k++) mask[term.cells[k]!] = 1;
+    let layer = layers.get(term.mapLegend);
+    if (!layer) {
+      layer = { legend: term.mapLegend, cells: new Uint8Array(cellCount), ...(term.mapStyle ? { style: term.mapStyle } : {}) };
+      layers.set(term.mapLegend, layer);
+    }
+    for (let k = 0; k < term.cells.length; k++) layer.cells[term.cells[k]!] = 1;
   }
-  return [...layers].map(([legend, cells]) => ({ legend, cells }));
+  return [...layers.values()];
 }
