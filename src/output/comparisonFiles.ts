@@ -13,8 +13,8 @@ import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderMapPng, renderReportHtml, type MapInput, type ReportRun } from '../report/index.js';
 import { VERSION } from '../version.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
-import { comparisonCsv, comparisonSummary, type ComparisonSummaryJson } from './comparison.js';
-import { contourFiles, reportRun, type ProductOptions, type RenderedMap } from './products.js';
+import { comparisonCsv, comparisonSummary, variantStatus, type ComparisonSummaryJson } from './comparison.js';
+import { contourFiles, reportInputs, reportRun, type ProductOptions, type RenderedMap } from './products.js';
 import { prepareResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './resultFolder.js';
 import { previousResultFiles, REPORT_FILE, solveFolderFiles } from './solveFiles.js';
 
@@ -50,14 +50,16 @@ export function comparisonFiles(c: ComparisonResult, options: ProductOptions = {
       }
     }
     const obsDrawdown = new Map(v.observations.map((o) => [o.id, o.drawdown]));
-    const boreDrawdown = new Map(v.wellbores.map((w) => [w.id, w.drawdown]));
+    const bores = new Map(v.wellbores.map((w) => [w.id, w]));
     const reportExtra: Partial<ReportRun> = {};
     if (v.maxDrawdown) reportExtra.maxDrawdown = v.maxDrawdown.value;
     runFolder(v.name, v.result, extra, maps, reportExtra);
     const run = runs[runs.length - 1]!;
     for (const w of run.wells) {
-      const s = boreDrawdown.get(w.id);
-      if (s !== undefined && Number.isFinite(s)) w.drawdown = s;
+      const bore = bores.get(w.id);
+      if (bore && Number.isFinite(bore.drawdown)) w.wellboreDrawdown = bore.drawdown;
+      // The cell head's change, read from the drawdown field (noise already set to zero there).
+      if (v.drawdown) w.cellDrawdown = v.drawdown[w.row * grid.nx + w.col]!;
     }
     for (const o of run.observations) {
       const s = obsDrawdown.get(o.id);
@@ -119,8 +121,27 @@ function comparisonReport(c: ComparisonResult, runs: ReportRun[], summary: Compa
       discrepancyPercent: v.result.budget.discrepancyPercent,
       converged: v.problem === null,
       observationDrawdowns: v.observations.map((o) => o.drawdown),
+      receptorDrawdowns: v.receptors.map((r) => r.drawdown),
+      maxRise: v.problem ? null : v.maxRise,
+      noiseLevel: v.noiseLevel,
+      status: variantStatus(v),
+      sources: v.problem
+        ? null
+        : {
+            addedPumping: v.sources.addedPumping,
+            terms: v.sources.terms.map((t) => ({
+              term: t.term,
+              inflowChange: t.inflowChange,
+              outflowChange: t.outflowChange,
+              netChange: t.netChange,
+              percent: t.percentOfAddedPumping,
+            })),
+            totalPercent: v.sources.totalPercent,
+          },
     })),
     observationIds,
+    receptorIds: c.receptors.map((r) => r.id),
+    inputs: reportInputs(base),
     warnings: summary.warnings,
     caution: CAUTION,
     scenarioFile: base.model.scenarioPath,

@@ -10,7 +10,7 @@ import { VERSION } from '../version.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { makeTransform } from '../crs.js';
 import { renderMapPng, type MapInput } from '../report/index.js';
-import type { ReportRun, ReportMap } from '../report/index.js';
+import type { ReportInputs, ReportRun, ReportMap } from '../report/index.js';
 import type { SolveResult } from '../analysis/result.js';
 import type { OutputFile } from './resultFolder.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
@@ -136,6 +136,50 @@ export function headMapInput(result: SolveResult, contours: ContourSet, flux: Da
   };
 }
 
+/** The inputs a solve used, over its active cells: aquifer properties, recharge, boundary groups and wells. */
+export function reportInputs(result: SolveResult): ReportInputs {
+  const { model, system } = result;
+  const active = system.active;
+  const k = { min: Infinity, max: -Infinity, logSum: 0, count: 0 };
+  const b = { min: Infinity, max: -Infinity };
+  const r = { min: Infinity, max: -Infinity };
+  for (let p = 0; p < active.length; p++) {
+    if (!active[p]) continue;
+    const kp = model.conductivity[p]!;
+    if (kp < k.min) k.min = kp;
+    if (kp > k.max) k.max = kp;
+    k.logSum += Math.log(kp);
+    k.count++;
+    const bp = typeof model.thickness === 'number' ? model.thickness : model.thickness[p]!;
+    if (bp < b.min) b.min = bp;
+    if (bp > b.max) b.max = bp;
+    const rp = typeof model.recharge === 'number' ? model.recharge : model.recharge[p]!;
+    if (rp < r.min) r.min = rp;
+    if (rp > r.max) r.max = rp;
+  }
+  const finite = (x: { min: number; max: number }) => (x.min <= x.max ? { min: x.min, max: x.max } : { min: NaN, max: NaN });
+  // Boundary groups: every term drawn on maps (fixed heads now, head-dependent boundaries later), with its heads if prescribed.
+  const boundaries = system.terms
+    .filter((t) => t.mapLegend !== null)
+    .map((t) => {
+      let lo = Infinity;
+      let hi = -Infinity;
+      if (t.prescribedHeads) for (const h of t.prescribedHeads) { if (h < lo) lo = h; if (h > hi) hi = h; }
+      return { name: t.label, cells: t.cells.length, headMin: lo <= hi ? lo : null, headMax: lo <= hi ? hi : null };
+    });
+  let withdrawal = 0;
+  for (const w of model.wells) if (w.rate < 0) withdrawal -= w.rate;
+  return {
+    conductivity: { ...finite(k), geometricMean: k.count ? Math.exp(k.logSum / k.count) : NaN },
+    thickness: finite(b),
+    anisotropy: model.anisotropy,
+    recharge: finite(r),
+    boundaries,
+    wells: model.wells.length,
+    withdrawal,
+  };
+}
+
 /** The report's view of one run. */
 export function reportRun(name: string, result: SolveResult, maps: RenderedMap[], extra: Partial<ReportRun> = {}): ReportRun {
   const { stats, model } = result;
@@ -158,8 +202,21 @@ export function reportRun(name: string, result: SolveResult, maps: RenderedMap[]
     },
     budget: { terms: result.budget.terms, discrepancyPercent: result.budget.discrepancyPercent },
     head: { min, max },
-    wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, row: w.row, col: w.col, rate: w.rate, cellHead: w.cellHead })),
+    wells: result.wells.map((w, k) => {
+      const bore = result.wellbore[k];
+      return {
+        id: w.id,
+        x: w.x,
+        y: w.y,
+        row: w.row,
+        col: w.col,
+        rate: w.rate,
+        cellHead: w.cellHead,
+        ...(bore && bore.id === w.id ? { wellboreHead: bore.wellboreHead, belowMinimum: bore.belowMinimum } : {}),
+      };
+    }),
     observations: result.observations.map((o) => ({ id: o.id, observed: o.observed, simulated: o.simulated, residual: o.residual })),
+    calibration: result.calibration,
     maps: maps.map((m): ReportMap => ({ caption: m.caption, png: m.png, file: m.file })),
     warnings: result.warnings,
     ...extra,

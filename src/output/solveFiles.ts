@@ -10,7 +10,7 @@ import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
-import { reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
+import { reportInputs, reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
 import { RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
 import { budgetCsv, buildSummary, convergenceCsv, type SummaryJson } from './summary.js';
 
@@ -55,6 +55,7 @@ export function solveReport(result: SolveResult, summary: SummaryJson, maps: Ren
     units: result.model.units,
     grid: { nx: g.nx, ny: g.ny, dx: g.dx, dy: g.dy, crs: g.crs, activeCells: g.activeCells, fixedHeadCells: g.fixedHeadCells },
     runs: [reportRun('baseline', result, maps)],
+    inputs: reportInputs(result),
     warnings: result.warnings,
     caution: CAUTION,
     scenarioFile: result.model.scenarioPath,
