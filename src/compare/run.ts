@@ -56,10 +56,20 @@ export async function resolveVariants(
   const result: Array<{ name: string; model: ModelInput }> = [];
   for (const variant of raw.variants ?? []) {
     const merged = mergeVariant(raw, variant);
-    if (variant.title === undefined) merged.title = `${model.title} (${variant.name})`;
+    if (variant.title === undefined) merged.title = variantTitle(model.title, variant.name);
     result.push({ name: variant.name, model: await resolveScenario(merged, baseDir, label) });
   }
   return result;
+}
+
+/**
+ * The title of a variant without its own: the baseline's title with a trailing "baseline" (", baseline",
+ * "(baseline)", "- baseline") replaced by the variant's name, e.g. "Valley wellfield, baseline" -> "Valley
+ * wellfield, variant more".
+ */
+export function variantTitle(baselineTitle: string, name: string): string {
+  const stem = baselineTitle.replace(/[\s,;:\u2013\u2014-]*\(?\s*baseline\s*\)?\s*$/i, '').trim();
+  return `${stem || baselineTitle}, variant ${name}`;
 }
 
 /**

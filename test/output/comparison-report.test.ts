@@ -4,6 +4,7 @@
  * calibration, budget discrepancy, noise level) is in report.html, and agrees to the digits shown. Values are read
  * from the report's `data-key` cells and compared with summary.json and with the printed table.
  */
+import { readFileSync, writeFileSync } from 'node:fs';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { drawdownNoiseLevel, zeroBelow } from '../../src/analysis/drawdown.js';
 import { compareScenario, resolveVariants } from '../../src/compare/run.js';
@@ -175,5 +176,20 @@ describe('drawdown noise', () => {
     // 100 x 1e-8 x 5 m = 5e-6 m, plus 1000 machine epsilons of 110 m (2.4e-11 m).
     expect(loose).toBeCloseTo(5e-6 + 1000 * Number.EPSILON * 110, 15);
     expect(tight).toBeLessThan(loose);
+  });
+});
+
+describe('docs/compare.md', () => {
+  it('shows the printed table of today\'s output (PIEZOMAP_UPDATE_DOCS=1 rewrites it)', () => {
+    const lines = printed.split('\n');
+    const from = lines.findIndex((l) => l.startsWith('Drawdown ('));
+    // Up to the warnings, the results line or the blank line before the caution: nothing that changes per run.
+    const to = lines.findIndex((l, k) => k > from && (l === '' || l.startsWith('Results') || l.startsWith('warning')));
+    const sample = lines.slice(from, to).join('\n');
+    const doc = readFileSync('docs/compare.md', 'utf8');
+    const block = /(\*\*Printed table\*\*[^\n]*\n\n```text\n)([\s\S]*?)(\n```)/;
+    expect(doc).toMatch(block);
+    if (process.env.PIEZOMAP_UPDATE_DOCS === '1') writeFileSync('docs/compare.md', doc.replace(block, (_, a: string, _b: string, c: string) => a + sample + c));
+    else expect(block.exec(doc)![2]).toBe(sample);
   });
 });
