@@ -55,6 +55,16 @@ describe('demo maps', () => {
     }
   });
 
+  it('cut every contour line at its labels: one hole in the lines\' mask per label', () => {
+    for (const [name, drawing] of Object.entries(drawings)) {
+      const mask = /<mask id="label-gaps"[\s\S]*?<\/mask>/.exec(drawing.svg)![0];
+      const contourLabels = drawing.labels.filter((l) => l.kind === 'contour').length;
+      const pointLabels = drawing.labels.filter((l) => l.kind === 'point').length;
+      expect((mask.match(/<rect /g) ?? []).length - 1, name).toBe(contourLabels + pointLabels);
+      expect(drawing.svg, name).toMatch(/<g mask="url\(#label-gaps\)"><g class="contours">/);
+    }
+  });
+
   it('give each fixed-head group its own legend row and its own pattern', () => {
     const svg = drawings.head!.svg;
     const rows = ['Fixed head: river', 'Fixed head: downstream-edge', 'Fixed head: gravel-pit'];
