@@ -230,4 +230,18 @@ describe('piezomap CLI', () => {
     expect(variantTitle('Valley wellfield (baseline)', 'dry-year')).toBe('Valley wellfield, variant dry-year');
     expect(variantTitle('Valley wellfield', 'more')).toBe('Valley wellfield, variant more');
   });
+
+  it('demo replaces its own earlier results in its default folder and refuses another folder holding results, as the README says', () => {
+    const cwd = join(dir, 'demo-run');
+    mkdirSync(cwd, { recursive: true });
+    expect(run(['demo', '--no-maps', '--quiet'], cwd).code).toBe(0);
+    expect(run(['demo', '--no-maps', '--quiet'], cwd).code).toBe(0);
+    expect(existsSync(join(cwd, 'piezomap-demo', 'summary.json'))).toBe(true);
+    expect(run(['demo', '--no-maps', '--quiet', '-o', 'mine'], cwd).code).toBe(0);
+    const again = run(['demo', '--no-maps', '--quiet', '-o', 'mine'], cwd);
+    expect(again.code).toBe(2);
+    expect(again.stderr).toMatch(/--overwrite/);
+    const readme = readFileSync(resolve(__dirname, '../../README.md'), 'utf8');
+    expect(readme).toContain('rerunning the demo replaces its own earlier results there');
+  }, 60_000);
 });

@@ -144,6 +144,39 @@ describe('comparison report against summary.json', () => {
   });
 });
 
+describe('comparison report: inputs, calibration plot, sources chart', () => {
+  it('lists the inputs used: conductivity range and geometric mean, boundary groups with cells and heads', () => {
+    const { model, system } = comparison.baseline;
+    let logSum = 0;
+    let n = 0;
+    for (let p = 0; p < system.active.length; p++) if (system.active[p]) { logSum += Math.log(model.conductivity[p]!); n++; }
+    const mean = Math.exp(logSum / n);
+    const text = /geometric mean ([\d.]+) m\/d/.exec(html);
+    expect(text).not.toBeNull();
+    expect(Math.abs(Number(text![1]) - mean)).toBeLessThan(halfUnit(text![1]!) + 1e-12);
+    for (const name of ['river', 'downstream-edge', 'gravel-pit']) {
+      const cells = Number(cells_(`input.boundary.${name}.cells`).replace(/,/g, ''));
+      const group = system.groups.indexOf(name);
+      let count = 0;
+      for (let p = 0; p < system.fixedGroup.length; p++) if (system.fixedGroup[p] === group) count++;
+      expect(cells, name).toBe(count);
+    }
+    // The east edge is fixed at 99 m in the scenario: both ends of its head range.
+    expect(html).toMatch(/<th scope="row">downstream-edge<\/th><td[^>]*>[\d,]+<\/td><td class="num">99\.000<\/td><td class="num">99\.000<\/td>/);
+  });
+
+  it('draws observed against simulated heads with the 1:1 line beside the statistics, and a sources chart per variant', () => {
+    expect((html.match(/class="observed-simulated"/g) ?? []).length).toBe(2); // baseline and the variant
+    expect(html).toContain('class="one-to-one"');
+    expect(html).toContain('Calibration statistics');
+    expect((html.match(/class="sources-chart"/g) ?? []).length).toBe(1);
+  });
+});
+
+function cells_(key: string): string {
+  return cells.get(key) ?? '';
+}
+
 describe('drawdown noise', () => {
   it('zeroBelow sets values under the level to 0 and keeps larger ones and NaN', () => {
     const field = Float64Array.from([-3.7e-13, 6.5e-13, 2e-6, -0.5, NaN, 0]);
