@@ -368,6 +368,11 @@ function contourDecimals(set: ContourSet): number {
   return Math.min(d, 4);
 }
 
+/** Up to 25 levels every one is labelled (placement drops labels that find no free place); beyond, index levels only. */
+function labelsEveryLevel(set: ContourSet): boolean {
+  return set.levels.length <= 25 || set.interval === null;
+}
+
 /** Index contours: every fifth level of an evenly spaced set (common cartographic practice). */
 function isIndexLevel(set: ContourSet, level: number): boolean {
   if (set.interval === null) return false;
@@ -398,7 +403,7 @@ function contourLayer(
   const ink: string[] = [];
   const labels: ContourLabel[] = [];
   const taken: Box[] = [...obstacles];
-  const labelAll = set.levels.length <= 16 || set.interval === null;
+  const labelAll = labelsEveryLevel(set);
   let labelled = 0;
   for (const { level, lines } of set.levels) {
     if (lines.length === 0) continue;
@@ -811,7 +816,7 @@ function legend(
   if (drawn.length > 0) row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="0.9"/>`, contourLabel);
   else row('', 'No contours (no change above the noise level)');
   if (interval !== null && contours.levels.some((l) => isIndexLevel(contours, l.level))) {
-    row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.6"/>`, `Every ${formatFixed(5 * interval, decimals)} ${unit}, labelled`);
+    row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.6"/>`, labelsEveryLevel(contours) ? `Every ${formatFixed(5 * interval, decimals)} ${unit}` : `Every ${formatFixed(5 * interval, decimals)} ${unit}, labelled`);
   }
   if (input.quantity === 'drawdown' && contours.levels.some((l) => l.level === 0 && l.lines.length > 0)) {
     row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.8" stroke-dasharray="6 3"/>`, 'Zero drawdown');

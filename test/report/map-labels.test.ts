@@ -65,6 +65,19 @@ describe('demo maps', () => {
     }
   });
 
+  it('show residuals at observation points as circles coloured by sign and sized by magnitude', () => {
+    const obs = demo.baseline.observations;
+    const circles = [...drawings.head!.svg.matchAll(/<circle cx="[^"]+" cy="[^"]+" r="([\d.]+)" fill="(#[0-9a-f]+)" fill-opacity="0.45"/g)];
+    // The first circles are the map's (one per observation point, in order); the legend's follow.
+    const onMap = circles.slice(0, obs.length);
+    obs.forEach((o, k) => {
+      expect(onMap[k]![2], o.id).toBe(o.residual > 0 ? '#c0392b' : '#2166ac');
+    });
+    const byMagnitude = obs.map((o, k) => ({ size: Math.abs(o.residual), r: Number(onMap[k]![1]) })).sort((a, b) => a.size - b.size);
+    for (let k = 1; k < byMagnitude.length; k++) expect(byMagnitude[k]!.r).toBeGreaterThanOrEqual(byMagnitude[k - 1]!.r);
+    expect(drawings.head!.labels.some((l) => l.text.startsWith('Residual: simulated above'))).toBe(true);
+  });
+
   it('give each fixed-head group its own legend row and its own pattern', () => {
     const svg = drawings.head!.svg;
     const rows = ['Fixed head: river', 'Fixed head: downstream-edge', 'Fixed head: gravel-pit'];
