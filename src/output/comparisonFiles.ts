@@ -125,6 +125,8 @@ function comparisonReport(c: ComparisonResult, runs: ReportRun[], summary: Compa
       maxRise: v.problem ? null : v.maxRise,
       noiseLevel: v.noiseLevel,
       status: variantStatus(v),
+      maxDrawdownAt: v.maxDrawdown ? { x: v.maxDrawdown.x, y: v.maxDrawdown.y } : null,
+      sharing: v.sharing,
       sources: v.problem
         ? null
         : {

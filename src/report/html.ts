@@ -128,6 +128,10 @@ export interface ReportVariantRow {
   noiseLevel?: number;
   /** Status word: ok, not-converged, budget-not-closed. */
   status?: string;
+  /** Where the largest drawdown is, map coordinates. */
+  maxDrawdownAt?: { x: number; y: number } | null;
+  /** Whether the variant was solved on the baseline's operator, in words. */
+  sharing?: string;
   /** Sources of the added pumping; null when the variant is unsound. */
   sources?: { addedPumping: number; terms: ReportSource[]; totalPercent: number | null } | null;
 }
@@ -313,6 +317,7 @@ function variantsTable(variants: ReportVariantRow[], observationIds: string[], r
   const line = (label: string, cell: (v: ReportVariantRow) => string, cls = '') => rows.push(`<tr${cls ? ` class="${cls}"` : ''}><th scope="row">${label}</th>${variants.map(cell).join('')}</tr>`);
   line('Solver', (v) => `<td class="num">${v.converged ? 'converged' : '<span class="bad">not converged</span>'}${v.status && v.status !== 'ok' && v.converged ? ` (${e(v.status)})` : ''}</td>`);
   line(`Largest drawdown (${e(L)})`, (v) => num(v.maxDrawdown, 3, `${v.name}.maxDrawdown`));
+  line('Largest drawdown at (x, y)', (v) => `<td class="num">${v.maxDrawdownAt ? `${formatFixed(v.maxDrawdownAt.x, 1)}, ${formatFixed(v.maxDrawdownAt.y, 1)}` : '\u2013'}</td>`);
   line(`Largest rise (${e(L)})`, (v) => num(v.maxRise, 3, `${v.name}.maxRise`));
   if (receptorIds.length) rows.push(`<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}"><span class="receptor-symbol" aria-hidden="true">\u25c7</span> Drawdown at receptors (${e(L)})</th></tr>`);
   receptorIds.forEach((id, k) => line(`<span class="receptor-symbol" aria-hidden="true">\u25c7</span> ${e(id)}`, (v) => num(v.receptorDrawdowns?.[k], 3, `${v.name}.receptor.${id}`)));
@@ -323,6 +328,7 @@ function variantsTable(variants: ReportVariantRow[], observationIds: string[], r
   line(`Added pumping (${e(flowUnit)})`, (v) => num(v.sources?.addedPumping, 1, `${v.name}.addedPumping`));
   line('Budget discrepancy (%)', (v) => sig(v.discrepancyPercent, 2, `${v.name}.discrepancyPercent`));
   line(`Noise level: smaller changes shown as 0 (${e(L)})`, (v) => sig(v.noiseLevel, 2, `${v.name}.noiseLevel`));
+  if (variants.some((v) => v.sharing)) line('Operator', (v) => `<td class="wrap">${e(v.sharing ?? '')}</td>`);
   const noise = variants.map((v) => v.noiseLevel).filter((x): x is number => x !== undefined);
   const noiseNote = noise.length
     ? ` Changes of head smaller than the noise level (at most ${formatSignificant(Math.max(...noise), 2)} ${e(L)}) are rounding and solver error, not results: they are set to 0 and get no contour. The level is 100 \u00d7 each solve\u2019s final relative residual \u00d7 the largest |head \u2212 datum|, summed over baseline and variant, plus 1000 machine epsilons of the largest head.`
@@ -529,6 +535,7 @@ ul.warnings li { margin: 4px 0; } ul.notes { color: var(--muted); font-size: 13p
 table.data thead th.num { white-space: normal; }
 table.data tbody th { white-space: nowrap; }
 table.sources { width: auto; }
+td.wrap { font-size: 13px; color: var(--muted); max-width: 420px; }
 .calibration-view { display: flex; flex-wrap: wrap; gap: 8px 32px; align-items: flex-start; }
 h4 { font-size: 14px; margin: 16px 0 6px; }
 table.variants tr.group th { background: var(--wash); font-weight: bold; }
