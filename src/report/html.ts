@@ -194,7 +194,7 @@ export function renderReportHtml(input: ReportInput): string {
     body.push('</nav>');
   }
 
-  if (input.inputs) body.push(inputsSection(input.inputs, L, T));
+  if (input.inputs) body.push(inputsSection(input.inputs, L, T, input.kind));
   if (input.kind === 'compare' && input.variants) {
     body.push(variantsTable(input.variants, input.observationIds ?? [], input.receptorIds ?? [], L, flowUnit));
     body.push(sourcesSection(input.variants, flowUnit));
@@ -291,21 +291,23 @@ function sig(v: number | undefined | null, digits: number, key?: string): string
   return `<td class="num"${key ? ` data-key="${e(key)}"` : ''}>${formatSignificant(v, digits)}</td>`;
 }
 
-function inputsSection(inputs: ReportInputs, L: string, T: string): string {
+function inputsSection(inputs: ReportInputs, L: string, T: string, kind: 'solve' | 'compare'): string {
+  // Four significant digits without trailing zeros (0.9, 120, 0.0004): inputs are usually round numbers.
+  const plain = (v: number) => (Number.isFinite(v) ? formatSignificant(Number(v.toPrecision(4)), 4).replace(/(\.\d*?)0+$/, '$1').replace(/\.$/, '') : '\u2013');
   const range = (r: { min: number; max: number }, unit: string) =>
-    r.min === r.max ? `${formatSignificant(r.min, 4)} ${e(unit)}` : `${formatSignificant(r.min, 4)} \u2013 ${formatSignificant(r.max, 4)} ${e(unit)}`;
+    r.min === r.max ? `${plain(r.min)} ${e(unit)}` : `${plain(r.min)} \u2013 ${plain(r.max)} ${e(unit)}`;
   const rows: string[] = [];
-  rows.push(row('Hydraulic conductivity', `${range(inputs.conductivity, `${L}/${T}`)}; geometric mean ${formatSignificant(inputs.conductivity.geometricMean, 4)} ${e(`${L}/${T}`)}`));
+  rows.push(row('Hydraulic conductivity', `${range(inputs.conductivity, `${L}/${T}`)}; geometric mean ${plain(inputs.conductivity.geometricMean)} ${e(`${L}/${T}`)}`));
   rows.push(row('Thickness', range(inputs.thickness, L)));
-  rows.push(row('Anisotropy (Ky/Kx)', formatSignificant(inputs.anisotropy, 4)));
+  rows.push(row('Anisotropy (Ky/Kx)', plain(inputs.anisotropy)));
   rows.push(row('Recharge', range(inputs.recharge, `${L}/${T}`)));
-  rows.push(row('Wells', `${inputs.wells}; total withdrawal ${formatSignificant(inputs.withdrawal, 6)} ${e(`${L}\u00b3/${T}`)}`));
+  rows.push(row('Wells', `${inputs.wells}; total withdrawal ${plain(inputs.withdrawal)} ${e(`${L}\u00b3/${T}`)}`));
   const groups = inputs.boundaries.map(
     (b) =>
       `<tr><th scope="row">${e(b.name)}</th><td class="num" data-key="input.boundary.${e(b.name)}.cells">${b.cells.toLocaleString('en-US')}</td>${num(b.headMin, 3)}${num(b.headMax, 3)}</tr>`,
   );
   return (
-    `<section id="inputs"><h2>Inputs used</h2><p class="quiet">Over the active cells of the baseline.</p><div class="columns"><div><table class="facts">${rows.join('')}</table></div>` +
+    `<section id="inputs"><h2>Inputs used</h2><p class="quiet">Over the active cells${kind === 'compare' ? ' of the baseline' : ''}.</p><div class="columns"><div><table class="facts">${rows.join('')}</table></div>` +
     `<div><table class="data"><thead><tr><th scope="col">Boundary group</th><th scope="col" class="num">Cells</th><th scope="col" class="num">Lowest head (${e(L)})</th><th scope="col" class="num">Highest head (${e(L)})</th></tr></thead><tbody>${groups.join('')}</tbody></table></div></div></section>`
   );
 }
