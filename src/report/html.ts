@@ -282,7 +282,12 @@ function num(v: number | undefined | null, decimals: number, key?: string): stri
 
 /** Fixed decimals, but a non-zero value that would round to zero in significant digits (0.000324, not 0.000). */
 function fixedOrSmall(v: number | undefined | null, decimals: number): string {
-  if (v !== null && v !== undefined && v !== 0 && Number.isFinite(v) && Math.abs(v) < 0.5 * 10 ** -decimals) return formatSignificant(v, 3);
+  if (v !== null && v !== undefined && v !== 0 && Number.isFinite(v) && Math.abs(v) < 0.5 * 10 ** -decimals) {
+    // Plain decimals as in the printout (0.0000626 beside 0.053), exponent form only below 1e-6.
+    if (Math.abs(v) < 1e-6) return formatSignificant(v, 3);
+    const text = Math.abs(v).toLocaleString('en-US', { maximumSignificantDigits: 3, minimumSignificantDigits: 3, useGrouping: false });
+    return v < 0 ? `\u2212${text}` : text;
+  }
   return formatFixed(v, decimals);
 }
 
