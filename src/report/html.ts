@@ -280,6 +280,11 @@ function num(v: number | undefined | null, decimals: number, key?: string): stri
   return `<td class="num"${key ? ` data-key="${e(key)}"` : ''}>${fixedOrSmall(v, decimals)}</td>`;
 }
 
+/** A number cell with fixed decimals only (budget flows: their sums near zero are rounding, shown as 0.00). */
+function fx(v: number | undefined | null, decimals: number): string {
+  return `<td class="num">${formatFixed(v, decimals)}</td>`;
+}
+
 /** Fixed decimals, but a non-zero value that would round to zero in significant digits (0.000324, not 0.000). */
 function fixedOrSmall(v: number | undefined | null, decimals: number): string {
   if (v !== null && v !== undefined && v !== 0 && Number.isFinite(v) && Math.abs(v) < 0.5 * 10 ** -decimals) {
@@ -358,7 +363,7 @@ function sourcesSection(variants: ReportVariantRow[], flowUnit: string): string 
     }
     const rows = s.terms.map(
       (t) =>
-        `<tr><th scope="row">${e(t.term)}</th>${num(t.inflowChange, 2)}${num(t.outflowChange, 2)}${num(t.netChange, 2, `${v.name}.source.${t.term}.netChange`)}${sig(t.percent, 4, `${v.name}.source.${t.term}.percent`)}</tr>`,
+        `<tr><th scope="row">${e(t.term)}</th>${fx(t.inflowChange, 2)}${fx(t.outflowChange, 2)}${num(t.netChange, 2, `${v.name}.source.${t.term}.netChange`)}${sig(t.percent, 4, `${v.name}.source.${t.term}.percent`)}</tr>`,
     );
     parts.push(
       `<div><div class="scroll"><table class="data sources"><thead><tr><th scope="col">Budget term</th><th scope="col" class="num">Change of inflow (${e(flowUnit)})</th><th scope="col" class="num">Change of outflow (${e(flowUnit)})</th><th scope="col" class="num">Net change (${e(flowUnit)})</th><th scope="col" class="num">Share of added pumping (%)</th></tr></thead><tbody>${rows.join('')}</tbody>` +
@@ -395,11 +400,11 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   const budgetRows = run.budget.terms.map((t) => {
     totalIn += t.inflow;
     totalOut += t.outflow;
-    return `<tr><th scope="row">${e(t.term)}</th>${num(t.inflow, 2)}${num(t.outflow, 2)}${num(t.inflow - t.outflow, 2)}</tr>`;
+    return `<tr><th scope="row">${e(t.term)}</th>${fx(t.inflow, 2)}${fx(t.outflow, 2)}${fx(t.inflow - t.outflow, 2)}</tr>`;
   });
   parts.push(
     `<div><h3>Water budget (${e(flowUnit)})</h3><table class="data"><thead><tr><th scope="col">Term</th><th scope="col" class="num">In</th><th scope="col" class="num">Out</th><th scope="col" class="num">Net</th></tr></thead><tbody>${budgetRows.join('')}</tbody>` +
-      `<tfoot><tr><th scope="row">Total</th>${num(totalIn, 2)}${num(totalOut, 2)}${num(totalIn - totalOut, 2)}</tr>` +
+      `<tfoot><tr><th scope="row">Total</th>${fx(totalIn, 2)}${fx(totalOut, 2)}${fx(totalIn - totalOut, 2)}</tr>` +
       `<tr><th scope="row">Discrepancy</th><td class="num" colspan="3">${formatSignificant(run.budget.discrepancyPercent, 3)} %</td></tr></tfoot></table></div>`,
   );
 

@@ -201,9 +201,19 @@ export function observedSimulatedSvg(points: readonly ObservedSimulated[], optio
     parts.push(`<text x="${pad.left - 7}" y="${(sy(t) + 4).toFixed(1)}" font-size="11" text-anchor="end" fill="#5b6770">${formatFixed(t, ticks.decimals)}</text>`);
   }
   parts.push(`<line class="one-to-one" x1="${sx(lo).toFixed(1)}" y1="${sy(lo).toFixed(1)}" x2="${sx(hi).toFixed(1)}" y2="${sy(hi).toFixed(1)}" stroke="#5b6770" stroke-width="1" stroke-dasharray="5 3"/>`);
-  // "1:1" beside the low end of the line, below it (points near the line sit above or on it there less often).
-  const at = lo + 0.12 * (hi - lo);
-  parts.push(`<text x="${(sx(at) + 8).toFixed(1)}" y="${(sy(at) + 4).toFixed(1)}" font-size="11" fill="#5b6770">1:1</text>`);
+  // "1:1" above the line where it is farthest from every point (and so from their labels).
+  let at = lo + 0.5 * (hi - lo);
+  let clearance = -1;
+  for (const f of [0.15, 0.3, 0.45, 0.6, 0.75, 0.9]) {
+    const v = lo + f * (hi - lo);
+    let nearest = Infinity;
+    for (const p of finite) nearest = Math.min(nearest, Math.hypot(sx(p.observed) - sx(v), sy(p.simulated) - sy(v)));
+    if (nearest > clearance) {
+      clearance = nearest;
+      at = v;
+    }
+  }
+  parts.push(`<text x="${(sx(at) - 6).toFixed(1)}" y="${(sy(at) - 6).toFixed(1)}" font-size="11" text-anchor="end" fill="#5b6770">1:1</text>`);
   for (const p of finite) {
     const colour = p.simulated > p.observed ? '#c0392b' : '#2166ac';
     parts.push(`<circle cx="${sx(p.observed).toFixed(1)}" cy="${sy(p.simulated).toFixed(1)}" r="4" fill="${colour}" fill-opacity="0.75" stroke="#1d2327" stroke-width="0.6"><title>${escapeMarkup(p.id)}</title></circle>`);
