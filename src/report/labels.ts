@@ -35,8 +35,9 @@ function inside(a: Box, bounds: Box): boolean {
 
 /**
  * Advance width of `text` in px in DejaVu Sans (the font the PNGs are rendered with), from classes of its glyph
- * advances (em fractions read from the font's metrics, rounded up); bold is about 10 % wider. An upper estimate
- * for Latin text: browsers that substitute a narrower font only leave more room.
+ * advances (em fractions from memory, rounded up; test/report/map-labels.test.ts checks them against Chromium's
+ * measurement of the drawn text); bold is about 10 % wider. An upper estimate for Latin text: browsers that
+ * substitute a narrower font only leave more room.
  */
 export function textWidth(text: string, size: number, bold = false): number {
   let em = 0;
