@@ -18,7 +18,10 @@ export interface RateOutcome {
   reaches: Record<string, number | null>;
   /** True when the variant reused the baseline's operator and solver set-up. */
   sharedOperator: boolean;
+  /** Drawdown per cell; changes below `noiseLevel` (rounding and solver error) are 0. */
   drawdown: Float64Array | null;
+  /** Length units: smaller drawdowns are not distinguishable from solver error and are reported as 0. */
+  noiseLevel: number;
 }
 
 /** Compare the baseline of `scenarioPath` with one variant per rate of a new well at (x, y). */
@@ -41,5 +44,6 @@ export async function compareWellRates(
     reaches: Object.fromEntries(v.sources.terms.filter((t) => t.partOf !== undefined).map((t) => [t.term, t.percentOfAddedPumping])),
     sharedOperator: v.sharedOperator,
     drawdown: v.drawdown,
+    noiseLevel: v.noiseLevel,
   }));
 }

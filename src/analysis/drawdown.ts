@@ -33,6 +33,48 @@ export function drawdownField(baselineHead: Float64Array, variantHead: Float64Ar
   return out;
 }
 
+/** Safety factor on the solver's stopping level, and rounding in machine epsilons (see drawdownNoiseLevel). */
+const SOLVER_SAFETY = 100;
+const ROUNDING_EPSILONS = 1000;
+
+/**
+ * The smallest change of head a comparison can tell from noise, in length units: for each of the two solves, its
+ * final relative residual times the largest |head - datum| (the size of the solved unknowns) times a safety factor
+ * of 100 (the error in heads is the residual scaled by the inverse operator, which this does not bound: common
+ * practice, an estimate), plus 1000 machine epsilons of the largest |head| for rounding in the subtraction.
+ * Drawdowns smaller than this (e.g. -3.7e-13 m in cells a variant does not reach) are rounding, not results.
+ */
+export function drawdownNoiseLevel(runs: ReadonlyArray<{ relativeResidual: number; head: Float64Array; datum: number }>): number {
+  let level = 0;
+  let largestHead = 0;
+  for (const run of runs) {
+    let largest = 0;
+    for (let p = 0; p < run.head.length; p++) {
+      const h = run.head[p]!;
+      if (h !== h) continue;
+      const x = Math.abs(h - run.datum);
+      if (x > largest) largest = x;
+      if (Math.abs(h) > largestHead) largestHead = Math.abs(h);
+    }
+    const residual = Number.isFinite(run.relativeResidual) ? run.relativeResidual : 0;
+    level += SOLVER_SAFETY * residual * largest;
+  }
+  return level + ROUNDING_EPSILONS * Number.EPSILON * largestHead;
+}
+
+/** Set every value with |value| < level to 0 (NaN stays); returns how many were set. */
+export function zeroBelow(field: Float64Array, level: number): number {
+  let count = 0;
+  for (let p = 0; p < field.length; p++) {
+    const v = field[p]!;
+    if (v !== 0 && Math.abs(v) < level) {
+      field[p] = 0;
+      count++;
+    }
+  }
+  return count;
+}
+
 /** Largest drawdown and where (null when there is none), and the largest rise as a positive number (0 when none). */
 export function drawdownExtremes(
   grid: Grid,

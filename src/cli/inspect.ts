@@ -3,10 +3,13 @@ import { cellHeight, cellWidth, crsLabel, gridBounds } from '../grid.js';
 import type { FlowSystem } from '../discretisation/assemble.js';
 import type { ModelInput } from '../scenario/types.js';
 import { wellCells } from '../analysis/points.js';
+import { conductivityWarnings, inputWarnings } from '../analysis/sanity.js';
 
 export interface InspectReport {
   title: string;
   scenario: string;
+  /** Units of every quantity below: lengths, heads and cell sizes in `length`; conductivity length/time; rates length^3/time. */
+  units: { length: string; time: string };
   grid: { nx: number; ny: number; dx: number; dy: number; crs: string; bounds: { minX: number; minY: number; maxX: number; maxY: number } };
   cells: { total: number; active: number; inactive: number; fixedHead: number; unknowns: number; regions: number };
   fixedHeads: Array<{ name: string; cells: number; ignoredOnInactive: number }>;
@@ -30,7 +33,7 @@ export function inspectReport(
   model: ModelInput,
   system: FlowSystem,
   autoChoice: string,
-  variants: ReadonlyArray<{ name: string; model: ModelInput; shared: boolean; sharing: string }> = [],
+  variants: ReadonlyArray<{ name: string; model: ModelInput; system?: FlowSystem; shared: boolean; sharing: string }> = [],
 ): InspectReport {
   const { grid } = model;
   let kMin = Infinity, kMax = -Infinity;
@@ -48,9 +51,18 @@ export function inspectReport(
   const warnings = [...model.warnings];
   const cells = wellCells(grid, model.wells);
   for (const term of system.terms) warnings.push(...term.notes(false));
+  // The input checks solve makes (units, plausible magnitudes), made here before any solve; variants' own findings named.
+  warnings.push(...conductivityWarnings(model, system.active), ...inputWarnings(model, system.active));
+  for (const v of variants) {
+    const active = v.system?.active ?? system.active;
+    for (const w of [...v.model.warnings, ...conductivityWarnings(v.model, active), ...inputWarnings(v.model, active)]) {
+      if (!warnings.includes(w)) warnings.push(`variant "${v.name}": ${w}`);
+    }
+  }
   return {
     title: model.title,
     scenario: model.scenarioPath,
+    units: model.units,
     grid: { nx: grid.nx, ny: grid.ny, dx: cellWidth(grid), dy: cellHeight(grid), crs: crsLabel(grid.crs), bounds: gridBounds(grid) },
     cells: {
       total: system.counts.cells,
@@ -91,15 +103,18 @@ export function inspectReport(
 
 export function formatInspect(r: InspectReport): string {
   const L = (n: number) => n.toLocaleString('en-US');
+  const u = r.units.length;
+  const t = r.units.time;
   const out: string[] = [];
   out.push(`piezomap inspect: ${r.title}`);
-  out.push(`Grid         ${r.grid.nx} x ${r.grid.ny} cells of ${r.grid.dx} x ${r.grid.dy}, ${r.grid.crs}`);
-  out.push(`Extent       x ${r.grid.bounds.minX} to ${r.grid.bounds.maxX}, y ${r.grid.bounds.minY} to ${r.grid.bounds.maxY}`);
+  out.push(`Units        length ${u}, time ${t}`);
+  out.push(`Grid         ${r.grid.nx} x ${r.grid.ny} cells of ${r.grid.dx} x ${r.grid.dy} ${u}, ${r.grid.crs}`);
+  out.push(`Extent       x ${r.grid.bounds.minX} to ${r.grid.bounds.maxX} ${u}, y ${r.grid.bounds.minY} to ${r.grid.bounds.maxY} ${u}`);
   out.push(
     `Cells        ${L(r.cells.active)} active (${L(r.cells.inactive)} inactive), ${L(r.cells.fixedHead)} fixed-head, ` +
       `${L(r.cells.unknowns)} unknowns in ${r.cells.regions} connected region(s)`,
   );
-  out.push(`Conductivity ${r.conductivity.min.toPrecision(4)} to ${r.conductivity.max.toPrecision(4)} on active cells`);
+  out.push(`Conductivity ${r.conductivity.min.toPrecision(4)} to ${r.conductivity.max.toPrecision(4)} ${u}/${t} on active cells`);
   for (const f of r.fixedHeads) {
     out.push(`Fixed head   ${f.name}: ${L(f.cells)} cells${f.ignoredOnInactive ? ` (${L(f.ignoredOnInactive)} on inactive cells ignored)` : ''}`);
   }
@@ -107,7 +122,7 @@ export function formatInspect(r: InspectReport): string {
     const extra = [b.switching ? 'switching' : '', b.reaches ? `${b.reaches} reaches` : '', b.ignoredOnInactive ? `${L(b.ignoredOnInactive)} on inactive cells ignored` : ''].filter(Boolean);
     out.push(`Boundary     ${b.term}: ${L(b.cells)} cells${extra.length ? ` (${extra.join(', ')})` : ''}`);
   }
-  for (const w of r.wells) out.push(`Well         ${w.id}: row ${w.row}, col ${w.col}, rate ${w.rate}`);
+  for (const w of r.wells) out.push(`Well         ${w.id}: row ${w.row}, col ${w.col}, rate ${w.rate} ${u}\u00b3/${t}`);
   out.push(`Observations ${r.observations}`);
   if (r.receptors) out.push(`Receptors    ${r.receptors}`);
   if (r.tracking) {
@@ -116,7 +131,7 @@ export function formatInspect(r: InspectReport): string {
   }
   for (const v of r.variants) out.push(`Variant      ${v.name}: ${v.wells} well(s); ${v.sharing}`);
   out.push(
-    `Solver       ${r.solver.method}${r.solver.method === 'auto' ? ` (would use ${r.solver.autoChoice})` : ''}, tolerance ${r.solver.tolerance}, at most ${L(r.solver.maxIterations)} iterations`,
+    `Solver       ${r.solver.method}${r.solver.method === 'auto' ? ` (would use ${r.solver.autoChoice})` : ''}, relative tolerance ${r.solver.tolerance}, at most ${L(r.solver.maxIterations)} iterations`,
   );
   out.push(`Inputs       ${r.inputFiles.join(', ')}`);
   for (const w of r.warnings) out.push(`warning: ${w}`);

@@ -202,7 +202,7 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
         .command('solve')
         .description('solve the baseline of a scenario and write head.tif, budget.csv, summary.json into OUTDIR')
         .argument('<scenario>', 'scenario JSON file')
-        .requiredOption('-o, --out <dir>', 'result folder'),
+        .requiredOption('-o, --out <dir>', 'result folder (required)'),
     ),
   ).action(async (scenario: string, flags: SolveFlags) => {
     await run(() => runSolve(scenario, flags.out!, flags, io))();
@@ -214,7 +214,7 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
         .command('compare')
         .description('solve the baseline and every variant of a scenario; write each one\'s results, drawdown.tif per variant, comparison.csv and summary.json into OUTDIR')
         .argument('<scenario>', 'scenario JSON file with "variants"')
-        .requiredOption('-o, --out <dir>', 'result folder'),
+        .requiredOption('-o, --out <dir>', 'result folder (required)'),
     ),
   ).action(async (scenario: string, flags: SolveFlags) => {
     await run(() => runCompare(scenario, flags.out!, flags, io))();
@@ -231,7 +231,7 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
       program
         .command('demo')
         .description('solve the bundled demo scenario (data/valley.json)')
-        .option('-o, --out <dir>', 'result folder', 'piezomap-demo'),
+        .option('-o, --out <dir>', 'result folder; the demo replaces its own earlier results in its default folder', 'piezomap-demo'),
     ),
   ).action(async (flags: SolveFlags) => {
     // The demo owns its default folder: rerunning it replaces the earlier demo results.

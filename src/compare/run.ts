@@ -13,7 +13,7 @@
 import { exchangeDifference } from '../scenario/loadHeadDependent.js';
 import { dirname } from 'node:path';
 import { assembleSystem, withSources } from '../discretisation/assemble.js';
-import { drawdownExtremes, drawdownField, pointDrawdown, totalWithdrawal, wellboreDrawdowns } from '../analysis/drawdown.js';
+import { drawdownExtremes, drawdownField, drawdownNoiseLevel, pointDrawdown, totalWithdrawal, wellboreDrawdowns, zeroBelow } from '../analysis/drawdown.js';
 import { locateObservations, locateReceptors, wellCells } from '../analysis/points.js';
 import { resultProblem, type SolveResult } from '../analysis/result.js';
 import { sourcesOfWater } from '../analysis/sources.js';
@@ -58,10 +58,20 @@ export async function resolveVariants(
   const result: Array<{ name: string; model: ModelInput }> = [];
   for (const variant of raw.variants ?? []) {
     const merged = mergeVariant(raw, variant);
-    if (variant.title === undefined) merged.title = `${model.title} (${variant.name})`;
+    if (variant.title === undefined) merged.title = variantTitle(model.title, variant.name);
     result.push({ name: variant.name, model: await resolveScenario(merged, baseDir, label) });
   }
   return result;
+}
+
+/**
+ * The title of a variant without its own: the baseline's title with a trailing "baseline" (", baseline",
+ * "(baseline)", "- baseline") replaced by the variant's name, e.g. "Valley wellfield, baseline" -> "Valley
+ * wellfield, variant more".
+ */
+export function variantTitle(baselineTitle: string, name: string): string {
+  const stem = baselineTitle.replace(/[\s,;:\u2013\u2014-]*\(?\s*baseline\s*\)?\s*$/i, '').trim();
+  return `${stem || baselineTitle}, variant ${name}`;
 }
 
 /**
@@ -212,6 +222,18 @@ function analyseVariant(
   const problem = resultProblem(result);
   const grid = base.model.grid;
   const drawdown = problem ? null : drawdownField(base.head, result.head);
+  const noiseLevel = drawdownNoiseLevel([
+    { relativeResidual: base.stats.relativeResidual, head: base.head, datum: base.system.datum },
+    { relativeResidual: result.stats.relativeResidual, head: result.head, datum: result.system.datum },
+  ]);
+  // Changes at rounding level are no change: zero them before anything is read or drawn from the field.
+  if (drawdown) zeroBelow(drawdown, noiseLevel);
+  const wellbores = wellboreDrawdowns(
+    { wellbore: base.wellbore, cells: wellCells(grid, base.model.wells), head: base.head },
+    { wellbore: result.wellbore, cells: wellCells(result.model.grid, result.model.wells) },
+    problem === null,
+  );
+  for (const w of wellbores) if (Math.abs(w.drawdown) < noiseLevel) w.drawdown = 0;
   const { maxDrawdown, maxRise } = drawdown ? drawdownExtremes(grid, drawdown) : { maxDrawdown: null, maxRise: 0 };
   const obsCells = locateObservations(base.system, base.model.observations);
   return {
@@ -225,11 +247,8 @@ function analyseVariant(
     maxRise,
     observations: base.model.observations.map((o, k) => pointDrawdown(grid, drawdown, o.id, o.x, o.y, obsCells[k]!)),
     receptors: receptors.map((r, k) => pointDrawdown(grid, drawdown, r.id, r.x, r.y, receptorCells[k]!)),
-    wellbores: wellboreDrawdowns(
-      { wellbore: base.wellbore, cells: wellCells(grid, base.model.wells), head: base.head },
-      { wellbore: result.wellbore, cells: wellCells(result.model.grid, result.model.wells) },
-      problem === null,
-    ),
+    wellbores,
+    noiseLevel,
     withdrawal: totalWithdrawal(result.model.wells),
     sources: sourcesOfWater(base.budget, result.budget),
     capture: base.tracking && result.tracking ? compareCapture(base.tracking, result.tracking, receptors, receptorCells) : null,

@@ -31,6 +31,8 @@ export interface VariantComparison {
   observations: PointDrawdown[];
   receptors: PointDrawdown[];
   wellbores: WellboreDrawdown[];
+  /** Changes of head smaller than this (length) are rounding and solver noise and were set to 0 (drawdownNoiseLevel). */
+  noiseLevel: number;
   /** Sum of withdrawal rates (positive number), L^3/T. */
   withdrawal: number;
   sources: SourcesOfWater;

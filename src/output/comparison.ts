@@ -147,6 +147,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
       },
       maxDrawdown: v.maxDrawdown ? { ...v.maxDrawdown, value: tidy(v.maxDrawdown.value) } : null,
       maxRise: v.problem ? null : tidy(v.maxRise),
+      drawdownNoiseLevel: Number(v.noiseLevel.toPrecision(2)),
       observations: v.observations.map((o) => ({ id: o.id, drawdown: nullable(o.drawdown) })),
       receptors: v.receptors.map((r) => ({ id: r.id, drawdown: nullable(r.drawdown) })),
       wells: v.wellbores.map((w) => ({
@@ -185,11 +186,25 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
   };
 }
 
+/**
+ * A number for the printout, in one style throughout: plain decimals with `digits` decimals; a non-zero value that
+ * would show as zero gets three significant digits instead (0.000324, never 3.24e-4 beside 0.053); exponent form
+ * only below 1e-6 or from 1e7.
+ */
 function num(v: number | null | undefined, digits: number): string {
   if (v === null || v === undefined || !Number.isFinite(v)) return '-';
   const a = Math.abs(v);
-  if (a !== 0 && (a >= 1e7 || a < 10 ** -digits)) return v.toExponential(2);
+  if (a !== 0 && (a >= 1e7 || a < 1e-6)) return v.toExponential(2);
+  if (a !== 0 && a < 0.5 * 10 ** -digits) return v.toLocaleString('en-US', { maximumSignificantDigits: 3, minimumSignificantDigits: 3 });
   return v.toLocaleString('en-US', { maximumFractionDigits: digits, minimumFractionDigits: digits });
+}
+
+/** A percentage for the printout: four significant digits in plain decimals (99.96, 0.005623), 0 for none. */
+function pct(v: number | null | undefined): string {
+  if (v === null || v === undefined || !Number.isFinite(v)) return '-';
+  if (v === 0) return '0';
+  if (Math.abs(v) < 1e-6) return v.toExponential(2);
+  return v.toLocaleString('en-US', { maximumSignificantDigits: 4, useGrouping: false });
 }
 
 function table(rows: string[][], alignRight: (c: number) => boolean): string[] {
@@ -205,6 +220,7 @@ type VariantJson = {
   sharedOperator: boolean;
   solver: { method: string; iterations: number; setupSeconds: number; seconds: number };
   maxDrawdown: { value: number } | null;
+  drawdownNoiseLevel?: number;
   observations: Array<{ id: string; drawdown: number | null }>;
   receptors: Array<{ id: string; drawdown: number | null }>;
   wells: Array<{ id: string; rate: number; wellboreHead: number | null; wellboreDrawdown: number | null; belowMinimum?: boolean }>;
@@ -253,19 +269,21 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
     ];
     const rows = [header];
     for (const v of variants) {
-      const pct = new Map((v.sourcesOfWater?.terms ?? []).map((t) => [t.term, t.percentOfAddedPumping]));
+      const shares = new Map((v.sourcesOfWater?.terms ?? []).map((t) => [t.term, t.percentOfAddedPumping]));
       rows.push([
         v.name,
         num(v.maxDrawdown?.value, 3),
         ...v.observations.map((o) => num(o.drawdown, 3)),
         ...v.receptors.map((r) => num(r.drawdown, 3)),
         num(v.withdrawal, 1),
-        v.budget.discrepancyPercent.toExponential(1),
-        ...terms.map((t) => num(pct.get(t), 1)),
+        num(v.budget.discrepancyPercent, 3),
+        ...terms.map((t) => pct(shares.get(t))),
       ]);
     }
     for (const line of table(rows, (c) => c > 0)) out.push(line);
     if (recIds.length) out.push(`  receptors: ${recIds.join(', ')}`);
+    const noise = variants.map((v) => v.drawdownNoiseLevel).filter((x): x is number => typeof x === 'number');
+    if (noise.length) out.push(`  changes of head below ${Math.max(...noise).toExponential(1)} ${L} are rounding and solver error: shown as 0 (the noise level, per variant in summary.json)`);
     const wellRows = [['variant', 'well', `rate ${L}³/${T}`, `well-bore head ${L}`, `well-bore drawdown ${L}`]];
     let wellCount = 0;
     for (const v of variants) {
@@ -285,7 +303,7 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
     for (const v of variants) {
       const s = v.sourcesOfWater;
       if (s && s.totalPercent !== null) {
-        out.push(`  ${v.name}: added pumping ${num(s.addedPumping, 1)} ${L}³/${T}; the sources sum to ${num(s.totalPercent, 3)} %`);
+        out.push(`  ${v.name}: added pumping ${num(s.addedPumping, 1)} ${L}³/${T}; the sources sum to ${pct(s.totalPercent)} %`);
       }
       if (v.problem) out.push(`  ${v.name}: ${v.problem.split('\n')[0]}`);
     }

@@ -10,7 +10,7 @@ import { VERSION } from '../version.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { makeTransform } from '../crs.js';
 import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
-import type { ReportRun, ReportMap } from '../report/index.js';
+import type { ReportInputs, ReportRun, ReportMap } from '../report/index.js';
 import type { SolveResult } from '../analysis/result.js';
 import type { OutputFile } from './resultFolder.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
@@ -136,25 +136,76 @@ export function solveProducts(result: SolveResult, options: ProductOptions = {},
     files.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity'));
   }
 
-  const mapInput: MapInput = {
+  const mapInput = headMapInput(result, headContours.contours, flux);
+  const map = renderMapPng(mapInput);
+  const mapName = `${prefix}head-map.png`;
+  files.push({ name: mapName, bytes: map.png });
+  return { files, maps: [{ caption: `Head, ${model.units.length}`, file: mapName, png: map.png }], warnings };
+}
+
+/** The head map of one solve: heads, contours, flow arrows, each term's cells, wells, receptors, residuals. */
+export function headMapInput(result: SolveResult, contours: ContourSet, flux: DarcyFlux = fluxOf(result)): MapInput {
+  const { model, system } = result;
+  return {
     grid: model.grid,
     values: result.head,
     quantity: 'head',
     units: model.units,
     title: model.title,
     caution: CAUTION,
-    contours: headContours.contours,
+    contours,
     cellLayers: mapCellLayers(system.terms, system.active.length),
     wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
-    observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y })),
+    observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y, residual: o.residual })),
+    receptors: (model.receptors ?? []).map((r) => ({ id: r.id, x: r.x, y: r.y })),
     flux: { qx: flux.qx, qy: flux.qy },
     footnote: `piezomap ${VERSION}`,
     ...(result.tracking ? { overlays: [trackingOverlay(result.tracking, model.units)] } : {}),
   };
-  const map = renderMapPng(mapInput);
-  const mapName = `${prefix}head-map.png`;
-  files.push({ name: mapName, bytes: map.png });
-  return { files, maps: [{ caption: `Head, ${model.units.length}`, file: mapName, png: map.png }], warnings };
+}
+
+/** The inputs a solve used, over its active cells: aquifer properties, recharge, boundary groups and wells. */
+export function reportInputs(result: SolveResult): ReportInputs {
+  const { model, system } = result;
+  const active = system.active;
+  const k = { min: Infinity, max: -Infinity, logSum: 0, count: 0 };
+  const b = { min: Infinity, max: -Infinity };
+  const r = { min: Infinity, max: -Infinity };
+  for (let p = 0; p < active.length; p++) {
+    if (!active[p]) continue;
+    const kp = model.conductivity[p]!;
+    if (kp < k.min) k.min = kp;
+    if (kp > k.max) k.max = kp;
+    k.logSum += Math.log(kp);
+    k.count++;
+    const bp = typeof model.thickness === 'number' ? model.thickness : model.thickness[p]!;
+    if (bp < b.min) b.min = bp;
+    if (bp > b.max) b.max = bp;
+    const rp = typeof model.recharge === 'number' ? model.recharge : model.recharge[p]!;
+    if (rp < r.min) r.min = rp;
+    if (rp > r.max) r.max = rp;
+  }
+  const finite = (x: { min: number; max: number }) => (x.min <= x.max ? { min: x.min, max: x.max } : { min: NaN, max: NaN });
+  // Boundary groups: every term drawn on maps (fixed heads now, head-dependent boundaries later), with its heads if prescribed.
+  const boundaries = system.terms
+    .filter((t) => t.mapLegend !== null)
+    .map((t) => {
+      let lo = Infinity;
+      let hi = -Infinity;
+      if (t.prescribedHeads) for (const h of t.prescribedHeads) { if (h < lo) lo = h; if (h > hi) hi = h; }
+      return { name: t.label, cells: t.cells.length, headMin: lo <= hi ? lo : null, headMax: lo <= hi ? hi : null };
+    });
+  let withdrawal = 0;
+  for (const w of model.wells) if (w.rate < 0) withdrawal -= w.rate;
+  return {
+    conductivity: { ...finite(k), geometricMean: k.count ? Math.exp(k.logSum / k.count) : NaN },
+    thickness: finite(b),
+    anisotropy: model.anisotropy,
+    recharge: finite(r),
+    boundaries,
+    wells: model.wells.length,
+    withdrawal,
+  };
 }
 
 /** The report's view of one run. */
@@ -179,8 +230,21 @@ export function reportRun(name: string, result: SolveResult, maps: RenderedMap[]
     },
     budget: { terms: result.budget.terms, discrepancyPercent: result.budget.discrepancyPercent },
     head: { min, max },
-    wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, row: w.row, col: w.col, rate: w.rate, cellHead: w.cellHead })),
+    wells: result.wells.map((w, k) => {
+      const bore = result.wellbore[k];
+      return {
+        id: w.id,
+        x: w.x,
+        y: w.y,
+        row: w.row,
+        col: w.col,
+        rate: w.rate,
+        cellHead: w.cellHead,
+        ...(bore && bore.id === w.id ? { wellboreHead: bore.wellboreHead, belowMinimum: bore.belowMinimum } : {}),
+      };
+    }),
     observations: result.observations.map((o) => ({ id: o.id, observed: o.observed, simulated: o.simulated, residual: o.residual })),
+    calibration: result.calibration,
     maps: maps.map((m): ReportMap => ({ caption: m.caption, png: m.png, file: m.file })),
     warnings: result.warnings,
     ...(result.tracking ? { tracking: reportTracking(result.tracking) } : {}),

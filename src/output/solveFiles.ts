@@ -8,7 +8,7 @@ import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
-import { exchangeRasters, reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
+import { exchangeRasters, reportInputs, reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
 import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
 import { budgetCsv, buildSummary, convergenceCsv, type SummaryJson } from './summary.js';
 import { trackingFiles } from './tracking.js';
@@ -59,6 +59,7 @@ export function solveReport(result: SolveResult, summary: SummaryJson, maps: Ren
     units: result.model.units,
     grid: { nx: g.nx, ny: g.ny, dx: g.dx, dy: g.dy, crs: g.crs, activeCells: g.activeCells, fixedHeadCells: g.fixedHeadCells },
     runs: [reportRun('baseline', result, maps)],
+    inputs: reportInputs(result),
     warnings: result.warnings,
     caution: CAUTION,
     scenarioFile: result.model.scenarioPath,

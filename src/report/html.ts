@@ -3,7 +3,7 @@
  * No scripts, no external fonts, stylesheets or images: maps are `data:` images, the convergence plot is inline
  * SVG, and a Content-Security-Policy forbids everything else. Every user-supplied string is escaped.
  */
-import { convergencePlotSvg } from './plot.js';
+import { convergencePlotSvg, observedSimulatedSvg, sourcesChartSvg } from './plot.js';
 import { trackingSectionHtml, type ReportTracking } from './trackingSection.js';
 import { dataUrl } from './png.js';
 import { escapeMarkup, formatFixed, formatSignificant } from './text.js';
@@ -42,9 +42,41 @@ export interface ReportWell {
   col: number;
   /** length^3/time, negative = withdrawal. */
   rate: number;
+  /** Mean head of the well's cell. */
   cellHead: number;
-  /** Drawdown against the baseline, for variants. */
-  drawdown?: number;
+  /** Head inside the pumped well bore (Peaceman well-block radius). */
+  wellboreHead?: number;
+  /** Variants: baseline cell head - variant cell head. */
+  cellDrawdown?: number;
+  /** Variants: head at the bore before the change - variant well-bore head. */
+  wellboreDrawdown?: number;
+  /** The well-bore head is below the well's minimum head. */
+  belowMinimum?: boolean;
+}
+
+export interface ReportCalibration {
+  count: number;
+  meanError: number;
+  meanAbsoluteError: number;
+  rmsError: number;
+  observedRange: number;
+  scaledRmsPercent: number | null;
+}
+
+/** The inputs a run used, for the report's table of inputs. */
+export interface ReportInputs {
+  /** Over the active cells, length/time. */
+  conductivity: { min: number; max: number; geometricMean: number };
+  /** Over the active cells, length. */
+  thickness: { min: number; max: number };
+  anisotropy: number;
+  /** Over the active cells, length/time. */
+  recharge: { min: number; max: number };
+  /** Every boundary group (fixed heads and any other term drawn on maps): its cells and head range. */
+  boundaries: Array<{ name: string; cells: number; headMin: number | null; headMax: number | null }>;
+  wells: number;
+  /** Sum of withdrawal rates, length^3/time (positive). */
+  withdrawal: number;
 }
 
 export interface ReportObservation {
@@ -71,6 +103,17 @@ export interface ReportRun {
   warnings?: string[];
   /** Capture zones, travel times and tracks from points (scenario key `tracking`). */
   tracking?: ReportTracking;
+  /** Statistics of simulated - observed head. */
+  calibration?: ReportCalibration | null;
+}
+
+/** Where the added pumping comes from: one budget term's change (length^3/time) and its share (%). */
+export interface ReportSource {
+  term: string;
+  inflowChange: number;
+  outflowChange: number;
+  netChange: number;
+  percent: number | null;
 }
 
 export interface ReportVariantRow {
@@ -81,6 +124,20 @@ export interface ReportVariantRow {
   converged: boolean;
   /** Drawdown at each observation point, in the order of `observationIds`. */
   observationDrawdowns: number[];
+  /** Drawdown at each receptor, in the order of `receptorIds`. */
+  receptorDrawdowns?: number[];
+  /** Largest rise (positive number), null when unsound. */
+  maxRise?: number | null;
+  /** Changes of head smaller than this are treated as none (length). */
+  noiseLevel?: number;
+  /** Status word: ok, not-converged, budget-not-closed. */
+  status?: string;
+  /** Where the largest drawdown is, map coordinates. */
+  maxDrawdownAt?: { x: number; y: number } | null;
+  /** Whether the variant was solved on the baseline's operator, in words. */
+  sharing?: string;
+  /** Sources of the added pumping; null when the variant is unsound. */
+  sources?: { addedPumping: number; terms: ReportSource[]; totalPercent: number | null } | null;
 }
 
 export interface ReportInput {
@@ -94,6 +151,10 @@ export interface ReportInput {
   variants?: ReportVariantRow[];
   /** Column headings of `observationDrawdowns`. */
   observationIds?: string[];
+  /** Ids of `receptorDrawdowns`. */
+  receptorIds?: string[];
+  /** The inputs used (the baseline's for a comparison). */
+  inputs?: ReportInputs;
   warnings: string[];
   caution: string;
   scenarioFile?: string;
@@ -132,12 +193,16 @@ export function renderReportHtml(input: ReportInput): string {
 
   if (input.runs.length > 1) {
     body.push('<nav><span>Jump to:</span>');
-    if (input.variants?.length) body.push('<a href="#variants">variants table</a>');
+    if (input.variants?.length) body.push('<a href="#variants">variants table</a><a href="#sources">sources of pumped water</a>');
     for (const run of input.runs) body.push(`<a href="#${anchor(run.name)}">${e(run.name)}</a>`);
     body.push('</nav>');
   }
 
-  if (input.kind === 'compare' && input.variants) body.push(variantsTable(input.variants, input.observationIds ?? [], L, flowUnit));
+  if (input.inputs) body.push(inputsSection(input.inputs, L, T, input.kind));
+  if (input.kind === 'compare' && input.variants) {
+    body.push(variantsTable(input.variants, input.observationIds ?? [], input.receptorIds ?? [], L, flowUnit));
+    body.push(sourcesSection(input.variants, flowUnit));
+  }
 
   for (const run of input.runs) body.push(runSection(run, input, L, flowUnit));
 
@@ -214,31 +279,109 @@ function row(label: string, value: string): string {
   return `<tr><th scope="row">${label}</th><td>${value}</td></tr>`;
 }
 
-function num(v: number | undefined | null, decimals: number): string {
+/** A number cell; `key` names the value for readers and tests (data-key), e.g. "expanded.receptor.farm-well". */
+function num(v: number | undefined | null, decimals: number, key?: string): string {
+  return `<td class="num"${key ? ` data-key="${e(key)}"` : ''}>${fixedOrSmall(v, decimals)}</td>`;
+}
+
+/** A number cell with fixed decimals only (budget flows: their sums near zero are rounding, shown as 0.00). */
+function fx(v: number | undefined | null, decimals: number): string {
   return `<td class="num">${formatFixed(v, decimals)}</td>`;
 }
 
-function variantsTable(variants: ReportVariantRow[], observationIds: string[], L: string, flowUnit: string): string {
-  const head = [
-    '<th scope="col">Variant</th>',
-    `<th scope="col" class="num">Max drawdown (${e(L)})</th>`,
-    ...observationIds.map((id) => `<th scope="col" class="num">Drawdown at ${e(id)} (${e(L)})</th>`),
-    `<th scope="col" class="num">Total withdrawal (${e(flowUnit)})</th>`,
-    '<th scope="col" class="num">Budget discrepancy (%)</th>',
-    '<th scope="col">Solver</th>',
-  ].join('');
-  const rows = variants.map((v) => {
-    const cells = [
-      `<th scope="row"><a href="#${anchor(v.name)}">${e(v.name)}</a></th>`,
-      num(v.maxDrawdown, 3),
-      ...observationIds.map((_, k) => num(v.observationDrawdowns[k], 3)),
-      num(v.totalWithdrawal, 1),
-      `<td class="num">${formatSignificant(v.discrepancyPercent, 2)}</td>`,
-      `<td>${v.converged ? 'converged' : '<span class="bad">not converged</span>'}</td>`,
-    ];
-    return `<tr>${cells.join('')}</tr>`;
-  });
-  return `<section id="variants"><h2>Variants against the baseline</h2><p class="quiet">Drawdown = baseline head \u2212 variant head (positive = lowered).</p><div class="scroll"><table class="data"><thead><tr>${head}</tr></thead><tbody>${rows.join('')}</tbody></table></div></section>`;
+/** Fixed decimals, but a non-zero value that would round to zero in significant digits (0.000324, not 0.000). */
+function fixedOrSmall(v: number | undefined | null, decimals: number): string {
+  if (v !== null && v !== undefined && v !== 0 && Number.isFinite(v) && Math.abs(v) < 0.5 * 10 ** -decimals) {
+    // Plain decimals as in the printout (0.0000626 beside 0.053), exponent form only below 1e-6.
+    if (Math.abs(v) < 1e-6) return formatSignificant(v, 3);
+    const text = Math.abs(v).toLocaleString('en-US', { maximumSignificantDigits: 3, minimumSignificantDigits: 3, useGrouping: false });
+    return v < 0 ? `\u2212${text}` : text;
+  }
+  return formatFixed(v, decimals);
+}
+
+/** A number cell in significant digits (for values that span decades, e.g. percentages of small changes). */
+function sig(v: number | undefined | null, digits: number, key?: string): string {
+  return `<td class="num"${key ? ` data-key="${e(key)}"` : ''}>${formatSignificant(v, digits)}</td>`;
+}
+
+function inputsSection(inputs: ReportInputs, L: string, T: string, kind: 'solve' | 'compare'): string {
+  // Four significant digits without trailing zeros (0.9, 120, 0.0004): inputs are usually round numbers.
+  const plain = (v: number) => (Number.isFinite(v) ? formatSignificant(Number(v.toPrecision(4)), 4).replace(/(\.\d*?)0+$/, '$1').replace(/\.$/, '') : '\u2013');
+  const range = (r: { min: number; max: number }, unit: string) =>
+    r.min === r.max ? `${plain(r.min)} ${e(unit)}` : `${plain(r.min)} \u2013 ${plain(r.max)} ${e(unit)}`;
+  const rows: string[] = [];
+  rows.push(row('Hydraulic conductivity', `${range(inputs.conductivity, `${L}/${T}`)}; geometric mean ${plain(inputs.conductivity.geometricMean)} ${e(`${L}/${T}`)}`));
+  rows.push(row('Thickness', range(inputs.thickness, L)));
+  rows.push(row('Anisotropy (Ky/Kx)', plain(inputs.anisotropy)));
+  rows.push(row('Recharge', range(inputs.recharge, `${L}/${T}`)));
+  rows.push(row('Wells', `${inputs.wells}; total withdrawal ${plain(inputs.withdrawal)} ${e(`${L}\u00b3/${T}`)}`));
+  const groups = inputs.boundaries.map(
+    (b) =>
+      `<tr><th scope="row">${e(b.name)}</th><td class="num" data-key="input.boundary.${e(b.name)}.cells">${b.cells.toLocaleString('en-US')}</td>${num(b.headMin, 3)}${num(b.headMax, 3)}</tr>`,
+  );
+  return (
+    `<section id="inputs"><h2>Inputs used</h2><p class="quiet">Over the active cells${kind === 'compare' ? ' of the baseline' : ''}.</p><div class="columns"><div><table class="facts">${rows.join('')}</table></div>` +
+    `<div><table class="data"><thead><tr><th scope="col">Boundary group</th><th scope="col" class="num">Cells</th><th scope="col" class="num">Lowest head (${e(L)})</th><th scope="col" class="num">Highest head (${e(L)})</th></tr></thead><tbody>${groups.join('')}</tbody></table></div></div></section>`
+  );
+}
+
+/** Quantities as rows and variants as columns, so that the table stays narrow however many points there are. */
+function variantsTable(variants: ReportVariantRow[], observationIds: string[], receptorIds: string[], L: string, flowUnit: string): string {
+  const head = `<th scope="col">Quantity</th>${variants.map((v) => `<th scope="col" class="num"><a href="#${anchor(v.name)}">${e(v.name)}</a></th>`).join('')}`;
+  const rows: string[] = [];
+  const line = (label: string, cell: (v: ReportVariantRow) => string, cls = '') => rows.push(`<tr${cls ? ` class="${cls}"` : ''}><th scope="row">${label}</th>${variants.map(cell).join('')}</tr>`);
+  line('Solver', (v) => `<td class="num">${v.converged ? 'converged' : '<span class="bad">not converged</span>'}${v.status && v.status !== 'ok' && v.converged ? ` (${e(v.status)})` : ''}</td>`);
+  line(`Largest drawdown (${e(L)})`, (v) => num(v.maxDrawdown, 3, `${v.name}.maxDrawdown`));
+  line('Largest drawdown at (x, y)', (v) => `<td class="num">${v.maxDrawdownAt ? `${formatFixed(v.maxDrawdownAt.x, 1)}, ${formatFixed(v.maxDrawdownAt.y, 1)}` : '\u2013'}</td>`);
+  line(`Largest rise (${e(L)})`, (v) => num(v.maxRise, 3, `${v.name}.maxRise`));
+  if (receptorIds.length) rows.push(`<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}"><span class="receptor-symbol" aria-hidden="true">\u25c7</span> Drawdown at receptors (${e(L)})</th></tr>`);
+  receptorIds.forEach((id, k) => line(`<span class="receptor-symbol" aria-hidden="true">\u25c7</span> ${e(id)}`, (v) => num(v.receptorDrawdowns?.[k], 3, `${v.name}.receptor.${id}`)));
+  if (observationIds.length) rows.push(`<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}">\u25b3 Drawdown at observation points (${e(L)})</th></tr>`);
+  observationIds.forEach((id, k) => line(`\u25b3 ${e(id)}`, (v) => num(v.observationDrawdowns[k], 3, `${v.name}.observation.${id}`)));
+  rows.push(`<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}">Pumping and budget</th></tr>`);
+  line(`Total withdrawal (${e(flowUnit)})`, (v) => num(v.totalWithdrawal, 1, `${v.name}.withdrawal`));
+  line(`Added pumping (${e(flowUnit)})`, (v) => num(v.sources?.addedPumping, 1, `${v.name}.addedPumping`));
+  line('Budget discrepancy (%)', (v) => sig(v.discrepancyPercent, 2, `${v.name}.discrepancyPercent`));
+  line(`Noise level: smaller changes shown as 0 (${e(L)})`, (v) => sig(v.noiseLevel, 2, `${v.name}.noiseLevel`));
+  if (variants.some((v) => v.sharing)) line('Operator', (v) => `<td class="wrap">${e(v.sharing ?? '')}</td>`);
+  const noise = variants.map((v) => v.noiseLevel).filter((x): x is number => x !== undefined);
+  const noiseNote = noise.length
+    ? ` Changes of head smaller than the noise level (at most ${formatSignificant(Math.max(...noise), 2)} ${e(L)}) are rounding and solver error, not results: they are set to 0 and get no contour. The level is 100 \u00d7 each solve\u2019s final relative residual \u00d7 the largest |head \u2212 datum|, summed over baseline and variant, plus 1000 machine epsilons of the largest head.`
+    : '';
+  return `<section id="variants"><h2>Variants against the baseline</h2><p class="quiet">Drawdown = baseline head \u2212 variant head (positive = lowered).${noiseNote}</p><div class="scroll"><table class="data variants"><thead><tr>${head}</tr></thead><tbody>${rows.join('')}</tbody></table></div></section>`;
+}
+
+/** Where the added pumping of each variant comes from: a table per variant and a bar per budget term. */
+function sourcesSection(variants: ReportVariantRow[], flowUnit: string): string {
+  const parts: string[] = ['<section id="sources"><h2>Where the added pumping comes from</h2>'];
+  parts.push(
+    '<p class="quiet">In a steady state every unit of added withdrawal is balanced by more inflow from, or less outflow to, the other budget terms (e.g. water drawn from a river). Net change = change of inflow \u2212 change of outflow; its share is net change / added pumping.</p>',
+  );
+  for (const v of variants) {
+    parts.push(`<h3>${e(v.name)}</h3>`);
+    const s = v.sources;
+    if (!s) {
+      parts.push('<p class="quiet">Not a sound result: no sources computed.</p>');
+      continue;
+    }
+    const rows = s.terms.map(
+      (t) =>
+        `<tr><th scope="row">${e(t.term)}</th>${fx(t.inflowChange, 2)}${fx(t.outflowChange, 2)}${num(t.netChange, 2, `${v.name}.source.${t.term}.netChange`)}${sig(t.percent, 4, `${v.name}.source.${t.term}.percent`)}</tr>`,
+    );
+    parts.push(
+      `<div><div class="scroll"><table class="data sources"><thead><tr><th scope="col">Budget term</th><th scope="col" class="num">Change of inflow (${e(flowUnit)})</th><th scope="col" class="num">Change of outflow (${e(flowUnit)})</th><th scope="col" class="num">Net change (${e(flowUnit)})</th><th scope="col" class="num">Share of added pumping (%)</th></tr></thead><tbody>${rows.join('')}</tbody>` +
+        `<tfoot><tr><th scope="row">Added pumping</th><td></td><td></td>${num(s.addedPumping, 2)}${sig(s.totalPercent, 6, `${v.name}.sourcesTotalPercent`)}</tr></tfoot></table></div>`,
+    );
+    if (s.totalPercent !== null) {
+      parts.push(`<figure class="plot">${sourcesChartSvg(s.terms.map((t) => ({ term: t.term, percent: t.percent ?? NaN })), { title: `Sources of the added pumping of ${v.name}`, width: 520 })}<figcaption>Share of the added pumping per budget term, ${e(v.name)}</figcaption></figure>`);
+    } else {
+      parts.push('<p class="quiet">The pumping did not change: no shares.</p>');
+    }
+    parts.push('</div>');
+  }
+  parts.push('</section>');
+  return parts.join('');
 }
 
 function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: string): string {
@@ -261,12 +404,12 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   const budgetRows = run.budget.terms.map((t) => {
     totalIn += t.inflow;
     totalOut += t.outflow;
-    const parts = (t.parts ?? []).map((r) => `<tr><th scope="row">&emsp;${e(r.part)}</th>${num(r.inflow, 2)}${num(r.outflow, 2)}${num(r.inflow - r.outflow, 2)}</tr>`);
-    return `<tr><th scope="row">${e(t.term)}</th>${num(t.inflow, 2)}${num(t.outflow, 2)}${num(t.inflow - t.outflow, 2)}</tr>${parts.join('')}`;
+    const parts = (t.parts ?? []).map((r) => `<tr><th scope="row">&emsp;${e(r.part)}</th>${fx(r.inflow, 2)}${fx(r.outflow, 2)}${fx(r.inflow - r.outflow, 2)}</tr>`);
+    return `<tr><th scope="row">${e(t.term)}</th>${fx(t.inflow, 2)}${fx(t.outflow, 2)}${fx(t.inflow - t.outflow, 2)}</tr>${parts.join('')}`;
   });
   parts.push(
     `<div><h3>Water budget (${e(flowUnit)})</h3><table class="data"><thead><tr><th scope="col">Term</th><th scope="col" class="num">In</th><th scope="col" class="num">Out</th><th scope="col" class="num">Net</th></tr></thead><tbody>${budgetRows.join('')}</tbody>` +
-      `<tfoot><tr><th scope="row">Total</th>${num(totalIn, 2)}${num(totalOut, 2)}${num(totalIn - totalOut, 2)}</tr>` +
+      `<tfoot><tr><th scope="row">Total</th>${fx(totalIn, 2)}${fx(totalOut, 2)}${fx(totalIn - totalOut, 2)}</tr>` +
       `<tr><th scope="row">Discrepancy</th><td class="num" colspan="3">${formatSignificant(run.budget.discrepancyPercent, 3)} %</td></tr></tfoot></table></div>`,
   );
 
@@ -298,18 +441,25 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   if (run.wells.length === 0) parts.push('<p class="quiet">No wells.</p>');
   else {
     const hasXY = run.wells.some((w) => w.x !== undefined);
-    const hasDd = run.wells.some((w) => w.drawdown !== undefined);
+    const hasBore = run.wells.some((w) => w.wellboreHead !== undefined);
+    const hasDd = run.wells.some((w) => w.cellDrawdown !== undefined || w.wellboreDrawdown !== undefined);
     const head =
       `<th scope="col">Id</th>${hasXY ? `<th scope="col" class="num">x</th><th scope="col" class="num">y</th>` : ''}` +
       `<th scope="col" class="num">Row</th><th scope="col" class="num">Column</th><th scope="col" class="num">Rate (${e(flowUnit)})</th>` +
-      `<th scope="col" class="num">Cell head (${e(L)})</th>${hasDd ? `<th scope="col" class="num">Drawdown (${e(L)})</th>` : ''}`;
+      `<th scope="col" class="num">Cell head (${e(L)})</th>${hasDd ? `<th scope="col" class="num">Cell-head drawdown (${e(L)})</th>` : ''}` +
+      `${hasBore ? `<th scope="col" class="num">Well-bore head (${e(L)})</th>` : ''}${hasDd ? `<th scope="col" class="num">Well-bore drawdown (${e(L)})</th>` : ''}`;
     const rows = run.wells.slice(0, REPORT_TABLE_ROWS).map(
       (w) =>
-        `<tr><th scope="row">${e(w.id)}</th>${hasXY ? num(w.x, 2) + num(w.y, 2) : ''}<td class="num">${w.row}</td><td class="num">${w.col}</td>${num(w.rate, 2)}${num(w.cellHead, 3)}${hasDd ? num(w.drawdown, 3) : ''}</tr>`,
+        `<tr><th scope="row">${e(w.id)}</th>${hasXY ? num(w.x, 2) + num(w.y, 2) : ''}<td class="num">${w.row}</td><td class="num">${w.col}</td>${num(w.rate, 2)}${num(w.cellHead, 3)}` +
+        `${hasDd ? num(w.cellDrawdown, 3, `${run.name}.well.${w.id}.cellDrawdown`) : ''}` +
+        `${hasBore ? `<td class="num" data-key="${e(`${run.name}.well.${w.id}.wellboreHead`)}">${formatFixed(w.wellboreHead, 3)}${w.belowMinimum ? ' <span class="bad">(below minimum)</span>' : ''}</td>` : ''}` +
+        `${hasDd ? num(w.wellboreDrawdown, 3, `${run.name}.well.${w.id}.wellboreDrawdown`) : ''}</tr>`,
     );
     parts.push(`<div class="scroll"><table class="data"><thead><tr>${head}</tr></thead><tbody>${rows.join('')}</tbody></table></div>`);
     parts.push(moreRows(run.wells.length, 'wells'));
-    parts.push('<p class="quiet">Cell head is the mean head of the well\u2019s cell, not the head inside the pumped well bore.</p>');
+    parts.push(
+      `<p class="quiet">Cell head is the mean head of the well\u2019s cell; well-bore head is the head inside the pumped bore (Peaceman well-block radius), lower for a pumping well.${hasDd ? ' Cell-head drawdown = baseline cell head \u2212 variant cell head; well-bore drawdown = head at the bore before the change \u2212 variant well-bore head.' : ''}</p>`,
+    );
   }
 
   // Observations
@@ -337,6 +487,17 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
     if (count > 0) {
       parts.push(
         `<p class="quiet">Residual = simulated \u2212 observed. Mean ${formatFixed(sum / count, 3)} ${e(L)}, root mean square ${formatFixed(Math.sqrt(sumSq / count), 3)} ${e(L)} over ${count} point${count === 1 ? '' : 's'}.</p>`,
+      );
+      const c = run.calibration;
+      const stats = c
+        ? `<table class="facts calibration">${row('Points', String(c.count))}${row('Mean error', `<span data-key="${e(run.name)}.calibration.meanError">${formatFixed(c.meanError, 3)}</span> ${e(L)}`)}` +
+          `${row('Mean absolute error', `<span data-key="${e(run.name)}.calibration.meanAbsoluteError">${formatFixed(c.meanAbsoluteError, 3)}</span> ${e(L)}`)}` +
+          `${row('RMS error', `<span data-key="${e(run.name)}.calibration.rmsError">${formatFixed(c.rmsError, 3)}</span> ${e(L)}`)}` +
+          `${row('Range of observed heads', `${formatFixed(c.observedRange, 3)} ${e(L)}`)}` +
+          `${row('RMS error / range', c.scaledRmsPercent === null ? '\u2013' : `<span data-key="${e(run.name)}.calibration.scaledRmsPercent">${formatFixed(c.scaledRmsPercent, 1)}</span> %`)}</table>`
+        : '';
+      parts.push(
+        `<div class="calibration-view"><figure class="plot">${observedSimulatedSvg(run.observations, { unit: L, title: `Observed against simulated head, ${run.name}` })}<figcaption>Observed against simulated head; dashed: 1:1 line (a perfect fit). Red: simulated above observed, blue: below.</figcaption></figure><div><h4>Calibration statistics</h4>${stats}</div></div>`,
       );
     }
   }
@@ -388,6 +549,16 @@ th, td { overflow-wrap: break-word; }
 .num { text-align: right !important; font-variant-numeric: tabular-nums; white-space: nowrap; }
 .scroll { overflow-x: auto; }
 ul.warnings li { margin: 4px 0; } ul.notes { color: var(--muted); font-size: 13px; }
+.calibration-view figure { max-width: 380px; }
+table.data thead th.num { white-space: normal; }
+table.data tbody th { white-space: nowrap; }
+table.sources { width: auto; }
+td.wrap { font-size: 13px; color: var(--muted); max-width: 420px; }
+.calibration-view { display: flex; flex-wrap: wrap; gap: 8px 32px; align-items: flex-start; }
+h4 { font-size: 14px; margin: 16px 0 6px; }
+table.variants tr.group th { background: var(--wash); font-weight: bold; }
+.receptor-symbol { color: #8b1e3f; font-weight: bold; }
+figure.plot svg.sources-chart, figure.plot svg.observed-simulated { font-family: inherit; }
 footer { margin-top: 40px; border-top: 1px solid var(--line); color: var(--muted); font-size: 13px; }
 @media print { body { background: #fff; } main { padding: 0; } figure, table { break-inside: avoid; } }
 `;

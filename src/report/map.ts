@@ -11,8 +11,13 @@ import { cellHeight, cellWidth, crsLabel, type Grid } from '../grid.js';
 import { contourField, decimalsOf, finiteRange, type ContourSet } from '../analysis/contours.js';
 import { colourCells, drawdownRamp, headRamp, rampHex, type ColourRamp } from './colour.js';
 import { dataUrl, encodePng, MAP_FONT_STACK, svgToPng } from './png.js';
-import { escapeMarkup, formatFixed, niceTicks, wrapText } from './text.js';
+import { escapeMarkup, formatFixed, formatSignificant, niceTicks, wrapText } from './text.js';
+import { isFree, placePointLabels, rotatedBox, symbolBox, textBox, textWidth, type Box, type LabelBox, type PlacedPointLabel, type PointLabelRequest } from './labels.js';
+import type { MapCellStyle } from '../discretisation/terms/types.js';
 import type { MapOverlay } from './trackingLayer.js';
+
+export type { Box, LabelBox } from './labels.js';
+export type { MapCellStyle } from '../discretisation/terms/types.js';
 
 export interface MapPoint {
   id: string;
@@ -21,6 +26,17 @@ export interface MapPoint {
   y: number;
   /** Well rate (length^3/time, negative = withdrawal); decides the well symbol. */
   rate?: number;
+  /** Observation points: simulated - observed head (length); drawn as a circle sized by size, coloured by sign. */
+  residual?: number;
+}
+
+/** A layer of flow-term cells drawn over the colours, with its legend row and the term's style. */
+export interface MapCellLayer {
+  legend: string;
+  /** 1 = the term acts on the cell. */
+  cells: Uint8Array;
+  /** Pattern and ink supplied by the term; absent: a hatching the map chooses. */
+  style?: MapCellStyle;
 }
 
 export interface MapInput {
@@ -35,10 +51,14 @@ export interface MapInput {
   caution: string;
   /** Contours to draw; default: automatic round interval from the values. */
   contours?: ContourSet;
-  /** Cells of flow terms drawn hatched (e.g. fixed heads), one legend row per layer; 1 = the term acts on the cell. */
-  cellLayers?: ReadonlyArray<{ legend: string; cells: Uint8Array; style?: { colour: string; angle: number } }>;
+  /** Cells of flow terms (e.g. each fixed-head group), one legend row and one style per layer. */
+  cellLayers?: ReadonlyArray<MapCellLayer>;
   wells?: readonly MapPoint[];
   observations?: readonly MapPoint[];
+  /** Places whose drawdown a comparison reports (neighbours' wells, springs, wetland edges). */
+  receptors?: readonly MapPoint[];
+  /** Drawdown maps: changes smaller than this (length) are rounding and solver noise, shown as no change. */
+  noiseLevel?: number;
   /** Cell-centred Darcy flux (east- and north-positive) for the flow-direction arrows. */
   flux?: { qx: Float64Array; qy: Float64Array };
   /** Small print at the bottom right, e.g. the program version. */
@@ -60,13 +80,28 @@ export interface MapDrawing {
   svg: string;
   width: number;
   height: number;
+  /** Every text placed on the drawing (point and contour labels, legend, header) and its box in px. */
+  labels: LabelBox[];
+  /** The boxes of the point symbols (wells, observations, receptors). */
+  symbols: Box[];
 }
 
 const INK = '#1d2327';
 const MUTED = '#5b6770';
 const LEGEND_WIDTH = 250;
 const MARGIN = 20;
-const HEADER = 64;
+const TITLE_SIZE = 20;
+const SUBTITLE_SIZE = 13;
+const RECEPTOR_INK = '#8b1e3f';
+const RESIDUAL_ABOVE = '#c0392b';
+const RESIDUAL_BELOW = '#2166ac';
+/** Styles of layers without one of their own, in layer order. */
+const DEFAULT_LAYER_STYLES: MapCellStyle[] = [
+  { pattern: 'hatch', colour: '#0c2340', angle: 45 },
+  { pattern: 'hatch', colour: '#6a1b5d', angle: -45 },
+  { pattern: 'cross-hatch', colour: '#005a4e' },
+  { pattern: 'dots', colour: '#7a3b00' },
+];
 
 /** Draw the map as a standalone SVG document. */
 export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDrawing {
@@ -76,13 +111,38 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   const maxMapHeight = options.maxMapHeight ?? 720;
   const dx = cellWidth(grid);
   const dy = cellHeight(grid);
+  const labels: LabelBox[] = [];
+
+  // Header: the title and subtitle wrap to the drawing's width (long titles are never cut off).
+  const subtitle =
+    input.subtitle ??
+    `${input.quantity === 'head' ? 'Head' : 'Drawdown (positive = lowered)'}, ${input.units.length} \u00b7 ${nx} \u00d7 ${ny} cells of ${fmtLength(dx)} \u00d7 ${fmtLength(dy)} ${input.units.length} \u00b7 ${crsLabel(grid.crs)}` +
+      (input.quantity === 'drawdown' && input.noiseLevel ? ` \u00b7 |change| below ${formatSignificant(input.noiseLevel, 2)} ${input.units.length} shown as none` : '');
+  const textSpace = width - 2 * MARGIN;
+  const titleLines = wrapToWidth(input.title, textSpace, TITLE_SIZE, true);
+  const subtitleLines = wrapToWidth(subtitle, textSpace, SUBTITLE_SIZE, false);
+  const header: string[] = [];
+  let hy = 10;
+  for (const line of titleLines) {
+    hy += Math.ceil(TITLE_SIZE * 1.25);
+    header.push(`<text x="${MARGIN}" y="${hy}" font-size="${TITLE_SIZE}" font-weight="bold" fill="${INK}">${escapeMarkup(line)}</text>`);
+    labels.push({ ...textBox(line, MARGIN, hy, TITLE_SIZE, 'start', true), text: line, kind: 'header' });
+  }
+  hy += 3;
+  for (const line of subtitleLines) {
+    hy += SUBTITLE_SIZE + 5;
+    header.push(`<text x="${MARGIN}" y="${hy}" font-size="${SUBTITLE_SIZE}" fill="${MUTED}">${escapeMarkup(line)}</text>`);
+    labels.push({ ...textBox(line, MARGIN, hy, SUBTITLE_SIZE), text: line, kind: 'header' });
+  }
+  const headerHeight = hy + 13;
 
   // Map frame: keep the aspect ratio of the ground, one px scale for x and y.
   const frameMaxWidth = width - 2 * MARGIN - LEGEND_WIDTH;
   const scale = Math.min(frameMaxWidth / (nx * dx), maxMapHeight / (ny * dy));
-  const frame = { left: MARGIN, top: HEADER, width: nx * dx * scale, height: ny * dy * scale };
+  const frame = { left: MARGIN, top: headerHeight, width: nx * dx * scale, height: ny * dy * scale };
   const cellPx = dx * scale;
   const cellPy = dy * scale;
+  const frameBox: Box = { x0: frame.left, y0: frame.top, x1: frame.left + frame.width, y1: frame.top + frame.height };
 
   const range = finiteRange(values);
   const ramp = makeRamp(input.quantity, range);
@@ -94,43 +154,56 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   const px = (x: number) => frame.left + ((x - t[0]) / t[1]) * cellPx;
   const py = (y: number) => frame.top + ((y - t[3]) / t[5]) * cellPy;
 
-  const parts: string[] = [];
+  const layers = (input.cellLayers ?? [])
+    .filter((layer) => hasAny(layer.cells))
+    .map((layer, k) => ({ ...layer, style: layer.style ?? DEFAULT_LAYER_STYLES[k % DEFAULT_LAYER_STYLES.length]!, id: `layer-${k}` }));
+
+  // Points, their symbols and labels: placed first, so that contour labels keep clear of them.
+  const dense = denseKinds(input);
+  const points = pointRequests(input, dense, px, py);
+  const symbols = points.map((p) => symbolBox(p.x, p.y, p.radius));
+  const residualSvg = dense.observations ? '' : residualLayer(input.observations ?? [], px, py);
+  const placedPoints = placePointLabels(points, symbols, frameBox);
+  points.forEach((p, k) => labels.push({ ...placedPoints[k]!.box, text: p.text, kind: 'point' }));
+
+  const contourSvg = contourLayer(contours, levelDecimals, px, py, input.quantity, [...symbols, ...placedPoints.map((p) => p.box)], frameBox);
+  for (const l of contourSvg.labels) labels.push({ ...l.box, text: l.text, kind: 'contour' });
+
+  // Legend (its height decides the drawing's).
+  const legendX = frame.left + frame.width + 28;
+  const legendOut = legend(input, ramp, contours, levelDecimals, legendX, frame.top, width - MARGIN - legendX, layers, hasNaN(values));
+  labels.push(...legendOut.labels);
+
   const footerLines = wrapText(input.caution, Math.floor((width - 2 * MARGIN) / 6.9));
-  // Each kind of point drawn as a density takes five legend rows of 24 px instead of up to three.
-  const denseRows = (denseKinds(input).wells ? 5 : 0) + (denseKinds(input).observations ? 5 : 0);
-  const overlayRows = (input.overlays ?? []).reduce((sum, o) => sum + o.legend.length, 0);
-  const legendHeight = 520 + 24 * denseRows + 24 * overlayRows;
-  const bodyHeight = Math.max(frame.height, legendHeight);
+  const bodyHeight = Math.max(frame.height, legendOut.height);
   const height = Math.round(frame.top + bodyHeight + 24 + footerLines.length * 16 + 26);
 
+  const parts: string[] = [];
   parts.push(
     `<svg xmlns="http://www.w3.org/2000/svg" xmlns:xlink="http://www.w3.org/1999/xlink" width="${width}" height="${height}" viewBox="0 0 ${width} ${height}" font-family="${MAP_FONT_STACK}" role="img" aria-label="${escapeMarkup(input.title)}">`,
   );
-  parts.push(defs());
+  parts.push(defs(layers));
   parts.push(`<rect width="${width}" height="${height}" fill="#ffffff"/>`);
+  parts.push(...header);
 
-  // Header
-  const subtitle =
-    input.subtitle ??
-    `${input.quantity === 'head' ? 'Head' : 'Drawdown (positive = lowered)'}, ${input.units.length} \u00b7 ${nx} \u00d7 ${ny} cells of ${fmtLength(dx)} \u00d7 ${fmtLength(dy)} ${input.units.length} \u00b7 ${crsLabel(grid.crs)}`;
-  parts.push(`<text x="${MARGIN}" y="30" font-size="20" font-weight="bold" fill="${INK}">${escapeMarkup(input.title)}</text>`);
-  parts.push(`<text x="${MARGIN}" y="51" font-size="13" fill="${MUTED}">${escapeMarkup(subtitle)}</text>`);
+  // Lines (contours, arrows) stop short of every label: a mask with a hole per label box.
+  const gaps = [...contourSvg.labels.map((l) => l.gap), ...placedPoints.map((p) => `<rect x="${r1(p.box.x0)}" y="${r1(p.box.y0)}" width="${r1(p.box.x1 - p.box.x0)}" height="${r1(p.box.y1 - p.box.y0)}"/>`)];
+  parts.push(
+    `<defs><mask id="label-gaps" maskUnits="userSpaceOnUse" x="0" y="0" width="${width}" height="${height}"><rect width="${width}" height="${height}" fill="#ffffff"/><g fill="#000000">${gaps.join('')}</g></mask></defs>`,
+  );
 
   // Map body, clipped to the frame.
   const clip = `<clipPath id="frame"><rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}"/></clipPath>`;
   parts.push(`<defs>${clip}</defs><g clip-path="url(#frame)">`);
   parts.push(`<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="url(#nodata)"/>`);
   parts.push(cellImage(values, nx, ny, ramp, frame));
-  const layers = (input.cellLayers ?? []).filter((layer) => hasAny(layer.cells));
-  // Each layer its own hatching (colour, angle) from the term's legend data; the fixed-head look by default.
-  const fills = layers.map((layer, i) => (layer.style ? `cells${i}` : 'fixedhead'));
-  parts.push(`<defs>${layers.map((layer, i) => (layer.style ? hatchPattern(`cells${i}`, layer.style.colour, layer.style.angle) : '')).join('')}</defs>`);
-  layers.forEach((layer, i) => parts.push(fixedHeadPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy, fills[i]!, layer.style?.colour)));
-  parts.push(contourLayer(contours, levelDecimals, px, py, input.quantity));
-  if (input.flux) parts.push(arrowLayer(input.flux, values, grid, frame, cellPx, cellPy, options.arrowSpacing ?? 40));
+  for (const layer of layers) parts.push(layerPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy, layer.id, layer.style));
+  parts.push(`<g mask="url(#label-gaps)">${contourSvg.lines}</g>`);
+  parts.push(contourSvg.labelSvg);
+  if (input.flux) parts.push(`<g mask="url(#label-gaps)">${arrowLayer(input.flux, values, grid, frame, cellPx, cellPy, options.arrowSpacing ?? 40)}</g>`);
   for (const overlay of input.overlays ?? []) parts.push(overlay.draw(px, py));
-  const dense = denseKinds(input);
-  parts.push(pointLayer(dense.observations ? [] : (input.observations ?? []), dense.wells ? [] : (input.wells ?? []), px, py));
+  parts.push(residualSvg);
+  parts.push(pointLayer(points, placedPoints));
   if (dense.observations) parts.push(densityLayer(input.observations ?? [], px, py, frame, OBSERVATION_DENSITY_COLOUR, 'observation-density'));
   if (dense.wells) parts.push(densityLayer(input.wells ?? [], px, py, frame, INK, 'well-density'));
   parts.push('</g>');
@@ -139,10 +212,7 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   parts.push(northArrow(frame.left + frame.width - 30, frame.top + 14, t[5] < 0));
   if (!grid.crs?.geographic) parts.push(scaleBar(frame, nx * dx, scale, input.units.length));
 
-  // Legend
-  parts.push(
-    legend(input, ramp, contours, levelDecimals, frame.left + frame.width + 28, frame.top, layers.map((layer, i) => ({ label: layer.legend, fill: fills[i]!, colour: layer.style?.colour ?? '#0c2340' })), hasNaN(values)),
-  );
+  parts.push(legendOut.svg);
 
   // Footer: caution in its own band.
   const footTop = frame.top + bodyHeight + 20;
@@ -156,7 +226,33 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
     );
   }
   parts.push('</svg>');
-  return { svg: parts.join('\n'), width, height };
+  return { svg: parts.join('\n'), width, height, labels, symbols };
+}
+
+/** Greedy word wrap by measured width; a single word wider than the line is broken by characters. */
+function wrapToWidth(text: string, widthPx: number, size: number, bold: boolean): string[] {
+  const lines: string[] = [];
+  let line = '';
+  for (let word of text.split(/\s+/)) {
+    if (!word) continue;
+    while (textWidth(word, size, bold) > widthPx && word.length > 1) {
+      let k = word.length - 1;
+      while (k > 1 && textWidth(word.slice(0, k), size, bold) > widthPx) k--;
+      if (line) lines.push(line);
+      lines.push(word.slice(0, k));
+      line = '';
+      word = word.slice(k);
+    }
+    const candidate = line ? `${line} ${word}` : word;
+    if (line && textWidth(candidate, size, bold) > widthPx) {
+      lines.push(line);
+      line = word;
+    } else {
+      line = candidate;
+    }
+  }
+  if (line) lines.push(line);
+  return lines.length ? lines : [''];
 }
 
 /** Draw the map and rasterise it; `scale` multiplies the pixel size (default 1). */
@@ -176,15 +272,27 @@ function makeRamp(quantity: 'head' | 'drawdown', range: { min: number; max: numb
   return headRamp(range?.min ?? 0, range?.max ?? 1);
 }
 
-function defs(): string {
+function defs(layers: ReadonlyArray<{ id: string; style: MapCellStyle }>): string {
   return [
     '<defs>',
     // Inactive cells: white with a sparse grey dot grid, distinct from every ramp colour.
     '<pattern id="nodata" width="6" height="6" patternUnits="userSpaceOnUse"><rect width="6" height="6" fill="#ffffff"/><circle cx="3" cy="3" r="0.8" fill="#b9bec2"/></pattern>',
-    // Fixed-head cells: dark diagonal hatching over the head colour.
-    '<pattern id="fixedhead" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(45)"><rect width="6" height="6" fill="#ffffff" fill-opacity="0.25"/><line x1="0" y1="0" x2="0" y2="6" stroke="#0c2340" stroke-width="2.2"/></pattern>',
+    ...layers.map((layer) => layerPattern(layer.id, layer.style)),
     '</defs>',
   ].join('');
+}
+
+/** The fill pattern of a cell layer: hatching at the style's angle, cross-hatching or dots in its ink. */
+function layerPattern(id: string, style: MapCellStyle): string {
+  const ink = escapeMarkup(style.colour);
+  const wash = '<rect width="6" height="6" fill="#ffffff" fill-opacity="0.25"/>';
+  if (style.pattern === 'dots') {
+    return `<pattern id="${id}" width="5" height="5" patternUnits="userSpaceOnUse">${wash}<circle cx="2.5" cy="2.5" r="1.3" fill="${ink}"/></pattern>`;
+  }
+  if (style.pattern === 'outline') return `<pattern id="${id}" width="6" height="6" patternUnits="userSpaceOnUse">${wash}</pattern>`;
+  const cross = style.pattern === 'cross-hatch' ? `<line x1="0" y1="3" x2="6" y2="3" stroke="${ink}" stroke-width="1.4"/>` : '';
+  const width = style.pattern === 'cross-hatch' ? 1.4 : 2.2;
+  return `<pattern id="${id}" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(${style.angle ?? 45})">${wash}<line x1="0" y1="0" x2="0" y2="6" stroke="${ink}" stroke-width="${width}"/>${cross}</pattern>`;
 }
 
 interface Frame {
@@ -221,8 +329,8 @@ function cellImage(values: Float64Array, nx: number, ny: number, ramp: ColourRam
   return `<image x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" preserveAspectRatio="none" image-rendering="optimizeSpeed" style="image-rendering:pixelated" href="${dataUrl('image/png', png)}"/>`;
 }
 
-/** Runs of a layer's (active) cells per row, e.g. fixed heads, as one hatched path. */
-function fixedHeadPath(
+/** Runs of a layer's (active) cells per row, e.g. one fixed-head group, as one path in the layer's pattern. */
+function layerPath(
   fixed: Uint8Array,
   values: Float64Array,
   nx: number,
@@ -231,8 +339,8 @@ function fixedHeadPath(
   top: number,
   cellPx: number,
   cellPy: number,
-  fill = 'fixedhead',
-  stroke = '#0c2340',
+  id: string,
+  style: MapCellStyle,
 ): string {
   const d: string[] = [];
   for (let i = 0; i < ny; i++) {
@@ -253,13 +361,8 @@ function fixedHeadPath(
   }
   if (d.length === 0) return '';
   // Cells narrower than a few px would vanish under the hatching: outline them more strongly instead.
-  const outline = Math.min(cellPx, cellPy) < 3 ? 1.8 : 0.6;
-  return `<path d="${d.join('')}" fill="url(#${fill})" stroke="${stroke}" stroke-width="${outline}" stroke-opacity="0.8"/>`;
-}
-
-/** A hatching pattern of lines of `colour` at `angle` degrees over a light veil, like the fixed-head pattern. */
-function hatchPattern(id: string, colour: string, angle: number): string {
-  return `<pattern id="${id}" width="6" height="6" patternUnits="userSpaceOnUse" patternTransform="rotate(${angle})"><rect width="6" height="6" fill="#ffffff" fill-opacity="0.25"/><line x1="0" y1="0" x2="0" y2="6" stroke="${colour}" stroke-width="2.2"/></pattern>`;
+  const outline = Math.min(cellPx, cellPy) < 3 || style.pattern === 'outline' ? 1.8 : 0.6;
+  return `<path class="cell-layer" d="${d.join('')}" fill="url(#${id})" stroke="${escapeMarkup(style.colour)}" stroke-width="${outline}" stroke-opacity="0.8"/>`;
 }
 
 function contourDecimals(set: ContourSet): number {
@@ -269,11 +372,26 @@ function contourDecimals(set: ContourSet): number {
   return Math.min(d, 4);
 }
 
+/** Up to 25 levels every one is labelled (placement drops labels that find no free place); beyond, index levels only. */
+function labelsEveryLevel(set: ContourSet): boolean {
+  return set.levels.length <= 25 || set.interval === null;
+}
+
 /** Index contours: every fifth level of an evenly spaced set (common cartographic practice). */
 function isIndexLevel(set: ContourSet, level: number): boolean {
   if (set.interval === null) return false;
   const k = level / set.interval;
   return Math.abs(k / 5 - Math.round(k / 5)) < 1e-6;
+}
+
+interface ContourLabel {
+  x: number;
+  y: number;
+  angle: number;
+  text: string;
+  box: Box;
+  /** The label's turned rectangle, as a hole in the lines' mask. */
+  gap: string;
 }
 
 function contourLayer(
@@ -282,11 +400,14 @@ function contourLayer(
   px: (x: number) => number,
   py: (y: number) => number,
   quantity: 'head' | 'drawdown',
-): string {
+  obstacles: readonly Box[],
+  bounds: Box,
+): { lines: string; labelSvg: string; labels: ContourLabel[] } {
   const casing: string[] = [];
   const ink: string[] = [];
-  const labels: Array<{ x: number; y: number; angle: number; text: string }> = [];
-  const labelAll = set.levels.length <= 16 || set.interval === null;
+  const labels: ContourLabel[] = [];
+  const taken: Box[] = [...obstacles];
+  const labelAll = labelsEveryLevel(set);
   let labelled = 0;
   for (const { level, lines } of set.levels) {
     if (lines.length === 0) continue;
@@ -310,19 +431,16 @@ function contourLayer(
       `<path d="${path}" fill="none" stroke="${INK}" stroke-width="${widthPx}" stroke-linejoin="round"${zero ? ' stroke-dasharray="6 3"' : ''} data-level="${level}"/>`,
     );
     if (labelAll || index || zero) {
-      for (const s of screenLines) placeLabels(s, formatFixed(level, decimals), labels, (labelled++ % 3) * 70);
+      for (const s of screenLines) placeLabels(s, formatFixed(level, decimals), labels, taken, bounds, (labelled++ % 3) * 70);
     }
   }
   const labelSvg = labels
     .map((l) => {
       const transform = `translate(${r1(l.x)} ${r1(l.y)}) rotate(${r1(l.angle)})`;
-      return (
-        `<g transform="${transform}"><text text-anchor="middle" dy="3.8" font-size="10.5" stroke="#ffffff" stroke-width="3.2" stroke-linejoin="round" fill="#ffffff">${escapeMarkup(l.text)}</text>` +
-        `<text text-anchor="middle" dy="3.8" font-size="10.5" fill="${INK}">${escapeMarkup(l.text)}</text></g>`
-      );
+      return `<g transform="${transform}"><text text-anchor="middle" dy="3.8" font-size="${CONTOUR_LABEL_SIZE}" fill="${INK}">${escapeMarkup(l.text)}</text></g>`;
     })
     .join('');
-  return `<g class="contours">${casing.join('')}${ink.join('')}</g><g class="contour-labels">${labelSvg}</g>`;
+  return { lines: `<g class="contours">${casing.join('')}${ink.join('')}</g>`, labelSvg: `<g class="contour-labels">${labelSvg}</g>`, labels };
 }
 
 function polylinePath(s: Float64Array): string {
@@ -335,40 +453,60 @@ const LABEL_SPACING = 260;
 const LABEL_MIN_LINE = 70;
 const LABEL_CLEARANCE = 46;
 const MAX_LABELS = 80;
+const CONTOUR_LABEL_SIZE = 10.5;
+/** Shifts along the line tried when a label's place is taken, px. */
+const LABEL_SHIFTS = [0, 24, -24, 48, -48, 72, -72, 96, -96];
 
 /**
  * Labels along a screen polyline: the first near its middle (or 130 px + `stagger` in, so that labels of parallel
- * lines do not line up), then every 260 px, each at least 46 px from every other label.
+ * lines do not line up), then every 260 px, each at least 46 px from every other label. A place whose box meets a
+ * symbol, a point label or another contour label is moved along the line; when no place nearby is free, that label
+ * is left out (the line keeps its other labels).
  */
-function placeLabels(
-  s: Float64Array,
-  text: string,
-  labels: Array<{ x: number; y: number; angle: number; text: string }>,
-  stagger: number,
-): void {
+function placeLabels(s: Float64Array, text: string, labels: ContourLabel[], taken: Box[], bounds: Box, stagger: number): void {
   let length = 0;
   for (let k = 2; k < s.length; k += 2) length += Math.hypot(s[k]! - s[k - 2]!, s[k + 1]! - s[k - 1]!);
   if (length < LABEL_MIN_LINE) return;
+  const w = textWidth(text, CONTOUR_LABEL_SIZE) + 6;
+  const h = 1.25 * CONTOUR_LABEL_SIZE;
   const first = Math.min(length / 2, LABEL_SPACING / 2 + stagger);
-  for (let at = first; at < length - 20 && labels.length < MAX_LABELS; at += LABEL_SPACING) {
-    let walked = 0;
-    for (let k = 2; k < s.length; k += 2) {
-      const segment = Math.hypot(s[k]! - s[k - 2]!, s[k + 1]! - s[k - 1]!);
-      if (walked + segment >= at && segment > 0) {
-        const f = (at - walked) / segment;
-        const x = s[k - 2]! + f * (s[k]! - s[k - 2]!);
-        const y = s[k - 1]! + f * (s[k + 1]! - s[k - 1]!);
-        let angle = (Math.atan2(s[k + 1]! - s[k - 1]!, s[k]! - s[k - 2]!) * 180) / Math.PI;
-        if (angle > 90) angle -= 180;
-        if (angle < -90) angle += 180;
-        let clear = true;
-        for (const l of labels) if (Math.hypot(l.x - x, l.y - y) < LABEL_CLEARANCE) clear = false;
-        if (clear) labels.push({ x, y, angle, text });
-        break;
-      }
-      walked += segment;
+  for (let base = first; base < length - 20 && labels.length < MAX_LABELS; base += LABEL_SPACING) {
+    for (const shift of LABEL_SHIFTS) {
+      const at = base + shift;
+      if (at < 20 || at > length - 20) continue;
+      const place = pointAlong(s, at);
+      if (!place) continue;
+      let angle = place.angle;
+      if (angle > 90) angle -= 180;
+      if (angle < -90) angle += 180;
+      let clear = true;
+      for (const l of labels) if (Math.hypot(l.x - place.x, l.y - place.y) < LABEL_CLEARANCE) clear = false;
+      const box = rotatedBox(place.x, place.y, w, h, angle);
+      if (!clear || !isFree(box, taken, bounds)) continue;
+      const gap = `<rect x="${r1(-w / 2)}" y="${r1(-h / 2)}" width="${r1(w)}" height="${r1(h)}" transform="translate(${r1(place.x)} ${r1(place.y)}) rotate(${r1(angle)})"/>`;
+      labels.push({ x: place.x, y: place.y, angle, text, box, gap });
+      taken.push(box);
+      break;
     }
   }
+}
+
+/** The point `at` px along a screen polyline and the direction of its segment (degrees), or null past its end. */
+function pointAlong(s: Float64Array, at: number): { x: number; y: number; angle: number } | null {
+  let walked = 0;
+  for (let k = 2; k < s.length; k += 2) {
+    const segment = Math.hypot(s[k]! - s[k - 2]!, s[k + 1]! - s[k - 1]!);
+    if (walked + segment >= at && segment > 0) {
+      const f = (at - walked) / segment;
+      return {
+        x: s[k - 2]! + f * (s[k]! - s[k - 2]!),
+        y: s[k - 1]! + f * (s[k + 1]! - s[k - 1]!),
+        angle: (Math.atan2(s[k + 1]! - s[k - 1]!, s[k]! - s[k - 2]!) * 180) / Math.PI,
+      };
+    }
+    walked += segment;
+  }
+  return null;
 }
 
 /** Flow-direction arrows of one length on a regular lattice of cells; stagnant cells get none. */
@@ -507,32 +645,83 @@ function observationSymbol(x: number, y: number): string {
   return `<path d="M${r1(x)} ${r1(y - s)}L${r1(x + s * 0.87)} ${r1(y + s / 2)}L${r1(x - s * 0.87)} ${r1(y + s / 2)}Z" fill="#ffffff" stroke="${INK}" stroke-width="1.6"/>`;
 }
 
-function haloText(x: number, y: number, text: string, size: number, weight = 'normal'): string {
+function haloText(x: number, y: number, text: string, size: number, weight = 'normal', ink = INK): string {
   const t = escapeMarkup(text);
   return (
     `<text x="${r1(x)}" y="${r1(y)}" font-size="${size}" font-weight="${weight}" stroke="#ffffff" stroke-width="3.4" stroke-linejoin="round" fill="#ffffff">${t}</text>` +
-    `<text x="${r1(x)}" y="${r1(y)}" font-size="${size}" font-weight="${weight}" fill="${INK}">${t}</text>`
+    `<text x="${r1(x)}" y="${r1(y)}" font-size="${size}" font-weight="${weight}" fill="${ink}">${t}</text>`
   );
 }
 
-function pointLayer(
-  observations: readonly MapPoint[],
-  wells: readonly MapPoint[],
+function receptorSymbol(x: number, y: number): string {
+  // A diamond in its own ink: a place whose drawdown is reported, not a well of the scenario.
+  const s = 6.5;
+  return `<path d="M${r1(x)} ${r1(y - s)}L${r1(x + s)} ${r1(y)}L${r1(x)} ${r1(y + s)}L${r1(x - s)} ${r1(y)}Z" fill="#ffffff" stroke="${RECEPTOR_INK}" stroke-width="2"/><circle cx="${r1(x)}" cy="${r1(y)}" r="1.6" fill="${RECEPTOR_INK}"/>`;
+}
+
+type PointKind = 'well' | 'observation' | 'receptor';
+
+/** Label requests of the drawn points: wells first (most important), then receptors, then observation points. */
+function pointRequests(
+  input: MapInput,
+  dense: { wells: boolean; observations: boolean },
   px: (x: number) => number,
   py: (y: number) => number,
-): string {
-  const parts: string[] = ['<g class="points">'];
-  for (const o of observations) {
-    const x = px(o.x);
-    const y = py(o.y);
-    parts.push(observationSymbol(x, y), haloText(x + 8, y + 12, o.id, 11));
+): Array<PointLabelRequest & { kind: PointKind; point: MapPoint }> {
+  const out: Array<PointLabelRequest & { kind: PointKind; point: MapPoint }> = [];
+  if (!dense.wells) for (const w of input.wells ?? []) out.push({ x: px(w.x), y: py(w.y), radius: 6.5, text: w.id, size: 11.5, bold: true, kind: 'well', point: w });
+  for (const r of input.receptors ?? []) out.push({ x: px(r.x), y: py(r.y), radius: 7, text: r.id, size: 11, bold: false, kind: 'receptor', point: r });
+  if (!dense.observations) {
+    for (const o of input.observations ?? []) out.push({ x: px(o.x), y: py(o.y), radius: 6.5, text: o.id, size: 11, bold: false, kind: 'observation', point: o });
   }
-  for (const w of wells) {
-    const x = px(w.x);
-    const y = py(w.y);
-    parts.push(wellSymbol(x, y, w.rate), haloText(x + 8, y - 7, w.id, 11.5, 'bold'));
+  return out;
+}
+
+/** Largest residual circle radius in px; a circle's area grows with the residual's size. */
+const RESIDUAL_RADIUS = 16;
+
+function largestResidual(points: readonly MapPoint[]): number {
+  let largest = 0;
+  for (const o of points) if (o.residual !== undefined && Number.isFinite(o.residual)) largest = Math.max(largest, Math.abs(o.residual));
+  return largest;
+}
+
+function residualRadius(residual: number, largest: number): number {
+  return 3 + (RESIDUAL_RADIUS - 3) * Math.sqrt(Math.abs(residual) / largest);
+}
+
+/** Residuals at observation points: circles under the symbols, area by size, red above observed, blue below. */
+function residualLayer(points: readonly MapPoint[], px: (x: number) => number, py: (y: number) => number): string {
+  const largest = largestResidual(points);
+  if (!(largest > 0)) return '';
+  const parts: string[] = ['<g class="residuals">'];
+  for (const o of points) {
+    if (o.residual === undefined || !Number.isFinite(o.residual)) continue;
+    const colour = o.residual > 0 ? RESIDUAL_ABOVE : RESIDUAL_BELOW;
+    parts.push(`<circle cx="${r1(px(o.x))}" cy="${r1(py(o.y))}" r="${r1(residualRadius(o.residual, largest))}" fill="${colour}" fill-opacity="0.45" stroke="${colour}" stroke-width="1.2"/>`);
   }
   parts.push('</g>');
+  return parts.join('');
+}
+
+function pointLayer(
+  requests: ReadonlyArray<PointLabelRequest & { kind: PointKind; point: MapPoint }>,
+  placed: readonly PlacedPointLabel[],
+): string {
+  const parts: string[] = ['<g class="points">'];
+  const texts: string[] = [];
+  requests.forEach((r, k) => {
+    const label = placed[k]!;
+    if (r.kind === 'well') parts.push(wellSymbol(r.x, r.y, r.point.rate));
+    else if (r.kind === 'receptor') parts.push(receptorSymbol(r.x, r.y));
+    else parts.push(observationSymbol(r.x, r.y));
+    if (label.leader) {
+      const l = label.leader;
+      texts.push(`<line x1="${r1(l.x1)}" y1="${r1(l.y1)}" x2="${r1(l.x2)}" y2="${r1(l.y2)}" stroke="${MUTED}" stroke-width="0.9"/>`);
+    }
+    texts.push(haloText(label.x, label.baseline, r.text, r.size, r.bold ? 'bold' : 'normal', r.kind === 'receptor' ? RECEPTOR_INK : INK));
+  });
+  parts.push(...texts, '</g>');
   return parts.join('');
 }
 
@@ -573,17 +762,28 @@ function legend(
   decimals: number,
   x: number,
   top: number,
-  cellLegends: ReadonlyArray<{ label: string; fill: string; colour: string }>,
+  room: number,
+  layers: ReadonlyArray<{ legend: string; id: string; style: MapCellStyle }>,
   showInactive: boolean,
-): string {
+): { svg: string; height: number; labels: LabelBox[] } {
   const parts: string[] = ['<g class="legend">'];
+  const labels: LabelBox[] = [];
+  const text = (tx: number, ty: number, content: string, size: number, colour = INK, bold = false) => {
+    parts.push(`<text x="${r1(tx)}" y="${r1(ty)}" font-size="${size}"${bold ? ' font-weight="bold"' : ''} fill="${colour}">${escapeMarkup(content)}</text>`);
+    labels.push({ ...textBox(content, tx, ty, size, 'start', bold), text: content, kind: 'legend' });
+  };
   const unit = input.units.length;
   const title = input.quantity === 'head' ? `Head (${unit})` : `Drawdown (${unit})`;
-  parts.push(`<text x="${x}" y="${top + 12}" font-size="13" font-weight="bold" fill="${INK}">${escapeMarkup(title)}</text>`);
+  text(x, top + 12, title, 13, INK, true);
   let y = top + 26;
-  // Colour bar: vertical, high values on top.
   const barH = 200;
   const barW = 18;
+  // Drawdown: "lowered" above the bar and "raised" below it, each on a line of its own, clear of the tick labels.
+  if (input.quantity === 'drawdown') {
+    text(x, y + 10, '\u2191 lowered', 10.5, MUTED);
+    y += 22;
+  }
+  // Colour bar: vertical, high values on top.
   const stops: string[] = [];
   for (let k = 0; k <= 16; k++) {
     const v = ramp.max - (k / 16) * (ramp.max - ramp.min);
@@ -596,30 +796,37 @@ function legend(
     const ty = y + ((ramp.max - tick) / (ramp.max - ramp.min)) * barH;
     parts.push(`<line x1="${x + barW}" y1="${r1(ty)}" x2="${x + barW + 5}" y2="${r1(ty)}" stroke="${INK}" stroke-width="0.8"/>`);
     const zero = input.quantity === 'drawdown' && tick === 0;
-    parts.push(
-      `<text x="${x + barW + 8}" y="${r1(ty + 4)}" font-size="11.5"${zero ? ' font-weight="bold"' : ''} fill="${INK}">${formatFixed(tick, ticks.decimals)}${zero ? ' (no change)' : ''}</text>`,
-    );
+    text(x + barW + 8, ty + 4, `${formatFixed(tick, ticks.decimals)}${zero ? ' (no change)' : ''}`, 11.5, INK, zero);
   }
+  y += barH;
   if (input.quantity === 'drawdown') {
-    parts.push(`<text x="${x + barW + 8}" y="${y - 2}" font-size="10.5" fill="${MUTED}">\u2191 lowered</text>`);
-    parts.push(`<text x="${x + barW + 8}" y="${y + barH + 12}" font-size="10.5" fill="${MUTED}">\u2193 raised</text>`);
+    text(x, y + 20, '\u2193 raised', 10.5, MUTED);
+    y += 20;
   }
-  y += barH + 30;
+  y += 30;
 
+  // One row: a symbol at the left, its label wrapped to the legend's width.
+  const labelRoom = Math.max(80, room - 32);
   const row = (symbol: string, label: string) => {
     parts.push(symbol);
-    parts.push(`<text x="${x + 32}" y="${r1(y + 4)}" font-size="12" fill="${INK}">${escapeMarkup(label)}</text>`);
-    y += 24;
+    const lines = wrapToWidth(label, labelRoom, 12, false);
+    lines.forEach((line, k) => text(x + 32, y + 4 + k * 15, line, 12));
+    y += 24 + (lines.length - 1) * 15;
   };
   const interval = contours.interval;
+  const drawn = contours.levels.filter((l) => l.lines.length > 0);
   const contourLabel =
     interval !== null ? `Contour every ${formatFixed(interval, decimals)} ${unit}` : `Contours (${contours.levels.length} levels)`;
-  row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="0.9"/>`, contourLabel);
+  if (drawn.length > 0) row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="0.9"/>`, contourLabel);
+  else row('', 'No contours (no change above the noise level)');
   if (interval !== null && contours.levels.some((l) => isIndexLevel(contours, l.level))) {
-    row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.6"/>`, `Every ${formatFixed(5 * interval, decimals)} ${unit}, labelled`);
+    row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.6"/>`, labelsEveryLevel(contours) ? `Every ${formatFixed(5 * interval, decimals)} ${unit}` : `Every ${formatFixed(5 * interval, decimals)} ${unit}, labelled`);
   }
   if (input.quantity === 'drawdown' && contours.levels.some((l) => l.level === 0 && l.lines.length > 0)) {
     row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.8" stroke-dasharray="6 3"/>`, 'Zero drawdown');
+  }
+  if (input.quantity === 'drawdown' && input.noiseLevel) {
+    row('', `|Change| < ${formatSignificant(input.noiseLevel, 2)} ${unit}: none (solver accuracy)`);
   }
   if (input.flux) {
     row(
@@ -638,14 +845,30 @@ function legend(
     if (wells.some((w) => w.rate !== undefined && w.rate > 0)) row(wellSymbol(x + 12, y, 1), 'Well, injecting');
     if (wells.some((w) => w.rate === 0)) row(wellSymbol(x + 12, y, 0), 'Well, switched off');
   }
+  if ((input.receptors ?? []).length > 0) row(receptorSymbol(x + 12, y), 'Receptor (drawdown reported)');
   const observations = input.observations ?? [];
   if (dense.observations) densityLegend('observation points', observations.length, OBSERVATION_DENSITY_COLOUR, x, placed);
-  else if (observations.length > 0) row(observationSymbol(x + 12, y + 1), 'Observation point');
-  for (const cell of cellLegends) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#${cell.fill})" stroke="${cell.colour}" stroke-width="0.8"/>`, cell.label);
+  else if (observations.length > 0) {
+    row(observationSymbol(x + 12, y + 1), 'Observation point');
+    const largest = largestResidual(observations);
+    if (largest > 0) {
+      row(`<circle cx="${x + 12}" cy="${y}" r="7" fill="${RESIDUAL_ABOVE}" fill-opacity="0.45" stroke="${RESIDUAL_ABOVE}" stroke-width="1.2"/>`, 'Residual: simulated above observed');
+      row(`<circle cx="${x + 12}" cy="${y}" r="7" fill="${RESIDUAL_BELOW}" fill-opacity="0.45" stroke="${RESIDUAL_BELOW}" stroke-width="1.2"/>`, 'Residual: simulated below observed');
+      y += 8;
+      row(
+        `<circle cx="${x + 12}" cy="${y}" r="${RESIDUAL_RADIUS}" fill="none" stroke="${MUTED}" stroke-width="1"/>`,
+        `Circle area by size; largest ${formatSignificant(largest, 2)} ${unit}`,
+      );
+      y += 8;
+    }
+  }
+  for (const layer of layers) {
+    row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#${layer.id})" stroke="${escapeMarkup(layer.style.colour)}" stroke-width="${layer.style.pattern === 'outline' ? 1.8 : 0.8}"/>`, layer.legend);
+  }
   for (const overlay of input.overlays ?? []) for (const item of overlay.legend) row(item.symbol(x, y), item.label);
   if (showInactive) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#nodata)" stroke="${MUTED}" stroke-width="0.8"/>`, 'Inactive (no flow)');
   parts.push('</g>');
-  return parts.join('');
+  return { svg: parts.join(''), height: y - top, labels };
 }
 
 function hasAny(mask: Uint8Array): boolean {

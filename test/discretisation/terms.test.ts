@@ -7,7 +7,7 @@ import { describe, expect, it } from 'vitest';
 import { assembleSystem, headsFromSolution, linearise, withSources, type FlowSystem } from '../../src/discretisation/assemble.js';
 import { DEFAULT_OUTER, solveOuter, type OuterSettings } from '../../src/discretisation/outerLoop.js';
 import { TERM_KINDS } from '../../src/discretisation/terms/registry.js';
-import type { FlowTerm } from '../../src/discretisation/terms/types.js';
+import { mapCellLayers, type FlowTerm } from '../../src/discretisation/terms/types.js';
 import { waterBudget } from '../../src/analysis/budget.js';
 import { buildSummary } from '../../src/output/summary.js';
 import { solveModel } from '../../src/pipeline.js';
@@ -160,5 +160,25 @@ describe('outer iteration', () => {
     const w = solve(wandering, { headTolerance: 1e-6, maxOuterIterations: 4 });
     expect(w.outer.stopReason).toBe('iteration-limit');
     expect(w.outer.iterations).toBe(4);
+  });
+});
+
+describe('mapCellLayers', () => {
+  it('gives every fixed-head group its own layer, legend row and style, and passes a new term\'s own style through', () => {
+    const grid = testGrid(6, 4, 10);
+    const model = makeModel(grid, {
+      conductivity: new Float64Array(24).fill(2),
+      thickness: 5,
+      fixedHeads: [fixedCells('river', [[0, 10], [6, 10]]), fixedCells('lake', [[5, 9]]), fixedCells('edge', [[23, 8]])],
+    });
+    const system = assembleSystem(model);
+    // A head-dependent boundary to come supplies its legend and style; the map code needs no change for it.
+    const custom = { ...drain(14, 9, 1, system), mapLegend: 'Drain cells', mapStyle: { pattern: 'dots' as const, colour: '#123456' } };
+    const layers = mapCellLayers([...system.terms, custom], 24);
+    expect(layers.map((l) => l.legend)).toEqual(['Fixed head: river', 'Fixed head: lake', 'Fixed head: edge', 'Drain cells']);
+    expect([...layers[0]!.cells].flatMap((v, p) => (v ? [p] : []))).toEqual([0, 6]);
+    const styles = layers.map((l) => JSON.stringify(l.style));
+    expect(new Set(styles).size).toBe(4);
+    expect(layers[3]!.style).toEqual({ pattern: 'dots', colour: '#123456' });
   });
 });

@@ -11,6 +11,8 @@ import { fromArrayBuffer } from 'geotiff';
 import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
 import { CAUTION } from '../../src/caution.js';
 import { testGrid } from '../helpers/model.js';
+import { solverSchema } from '../../src/scenario/schema.js';
+import { variantTitle } from '../../src/compare/run.js';
 
 const BIN = resolve(__dirname, '../../bin/piezomap.js');
 
@@ -192,4 +194,54 @@ describe('piezomap CLI', () => {
     const json = JSON.parse(run(['inspect', writeScenario('inspect2.json'), '--json']).stdout);
     expect(json.cells.fixedHead).toBe(40);
   });
+
+  it('inspect makes the input checks solve makes: the same unit and plausibility warnings, also in --json, with units', () => {
+    // Declared in metres per second, a conductivity of 8 lies above the published range (1 m/s, Freeze & Cherry
+    // 1979, Table 2.2) and a recharge of 0.0002 m/s (17 m/d) beyond any plausible rate: solve warns of both.
+    const path = writeScenario('units.json', { units: { length: 'm', time: 's' }, recharge: 0.0002, wells: [{ id: 'PW-1', x: 501050, y: 4098950, rate: -0.004 }] });
+    const out = join(dir, 'units-out');
+    const solved = run(['solve', path, '-o', out, '--json']);
+    const solveWarnings = (JSON.parse(solved.stdout) as { warnings: string[] }).warnings;
+    const fromInputs = solveWarnings.filter((w) => w.startsWith('aquifer.') || w.startsWith('recharge'));
+    expect(fromInputs.some((w) => w.startsWith('aquifer.conductivity'))).toBe(true);
+    expect(fromInputs.some((w) => w.startsWith('recharge'))).toBe(true);
+    const inspected = JSON.parse(run(['inspect', path, '--json']).stdout) as { warnings: string[]; units: { length: string; time: string } };
+    for (const w of fromInputs) expect(inspected.warnings).toContain(w);
+    for (const w of inspected.warnings) expect(solveWarnings).toContain(w);
+    expect(inspected.units).toEqual({ length: 'm', time: 's' });
+    const text = run(['inspect', path]).stdout;
+    expect(text).toMatch(/Conductivity 8\.000 to 8\.000 m\/s on active cells/);
+    expect(text).toMatch(/rate -0\.004 m³\/s/);
+    expect(text).toMatch(/cells of 100 x 100 m/);
+    for (const w of fromInputs) expect(text).toContain(`warning: ${w}`);
+  });
+
+  it('shows -o as required in the help of solve and compare', () => {
+    for (const command of ['solve', 'compare']) expect(run([command, '--help']).stdout).toMatch(/-o, --out <dir>\s+result folder \(required\)/);
+  });
+
+  it('states the default tolerance in the README as the scenario schema has it', () => {
+    const fallback = solverSchema.parse({}).tolerance;
+    expect(readFileSync(resolve(__dirname, '../../README.md'), 'utf8')).toContain(`default ${fallback}`);
+  });
+
+  it('titles a variant without its own title after the baseline, with the trailing "baseline" replaced', () => {
+    expect(variantTitle('Talvorin valley wellfield (invented demo), baseline', 'more')).toBe('Talvorin valley wellfield (invented demo), variant more');
+    expect(variantTitle('Valley wellfield (baseline)', 'dry-year')).toBe('Valley wellfield, variant dry-year');
+    expect(variantTitle('Valley wellfield', 'more')).toBe('Valley wellfield, variant more');
+  });
+
+  it('demo replaces its own earlier results in its default folder and refuses another folder holding results, as the README says', () => {
+    const cwd = join(dir, 'demo-run');
+    mkdirSync(cwd, { recursive: true });
+    expect(run(['demo', '--no-maps', '--quiet'], cwd).code).toBe(0);
+    expect(run(['demo', '--no-maps', '--quiet'], cwd).code).toBe(0);
+    expect(existsSync(join(cwd, 'piezomap-demo', 'summary.json'))).toBe(true);
+    expect(run(['demo', '--no-maps', '--quiet', '-o', 'mine'], cwd).code).toBe(0);
+    const again = run(['demo', '--no-maps', '--quiet', '-o', 'mine'], cwd);
+    expect(again.code).toBe(2);
+    expect(again.stderr).toMatch(/--overwrite/);
+    const readme = readFileSync(resolve(__dirname, '../../README.md'), 'utf8');
+    expect(readme).toContain('rerunning the demo replaces its own earlier results there');
+  }, 60_000);
 });

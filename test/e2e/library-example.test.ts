@@ -18,7 +18,8 @@ describe('examples/compare-wells.ts', () => {
     // The demo's river (bed bottom) and drain switch, so each variant is set up afresh (docs/compare.md).
     expect(half!.sharedOperator || full!.sharedOperator).toBe(false);
     // Linearity of confined steady flow (common practice: superposition): twice the rate, twice the drawdown,
-    // everywhere, as long as no river or drain cell switches between the runs (none does at these rates).
+    // everywhere, as long as no river or drain cell switches between the runs (none does at these rates). Drawdowns
+    // below each run's noise level are reported as 0, so a cell may differ by up to the two noise levels.
     let worst = 0;
     let largest = 0;
     for (let p = 0; p < full!.drawdown!.length; p++) {
@@ -28,7 +29,8 @@ describe('examples/compare-wells.ts', () => {
       worst = Math.max(worst, Math.abs(s - 2 * half!.drawdown![p]!));
     }
     expect(largest).toBeGreaterThan(0.01);
-    expect(worst).toBeLessThan(1e-6 * largest);
+    expect(worst).toBeLessThan(1e-6 * largest + half!.noiseLevel + full!.noiseLevel);
+    expect(half!.noiseLevel + full!.noiseLevel).toBeLessThan(1e-5 * largest);
     expect(full!.maxDrawdown).toBeCloseTo(2 * half!.maxDrawdown, 6);
     // Steady state: all the added water comes from the boundaries and recharge (Theis 1940), 100 % in total.
     for (const o of [half!, full!]) {

@@ -7,7 +7,7 @@
  */
 import { inputError } from '../../errors.js';
 import type { ModelInput } from '../../scenario/types.js';
-import type { FlowTerm, TermContext, TermKind } from './types.js';
+import type { FlowTerm, MapCellStyle, TermContext, TermKind } from './types.js';
 
 function build(model: ModelInput, context: TermContext): FlowTerm[] {
   const { grid, active } = context;
@@ -47,10 +47,21 @@ function build(model: ModelInput, context: TermContext): FlowTerm[] {
     cellsOf[g]![k] = p;
     headsOf[g]![k] = headAt[p]!;
   }
-  return model.fixedHeads.map((entry, g) => fixedHeadTerm(entry.name, cellsOf[g]!, headsOf[g]!, ignored[g]!, context));
+  return model.fixedHeads.map((entry, g) => fixedHeadTerm(entry.name, cellsOf[g]!, headsOf[g]!, ignored[g]!, context, g));
 }
 
-function fixedHeadTerm(label: string, cells: Int32Array, heads: Float64Array, ignoredCells: number, context: TermContext): FlowTerm {
+/**
+ * Inks of the fixed-head groups on maps, in group order (then repeated with the other hatching angle): dark,
+ * saturated colours that stay visible over both colour ramps and differ in hue (Okabe-Ito-like order, darkened).
+ */
+const GROUP_INKS = ['#0c2340', '#6a1b5d', '#005a4e', '#7a3b00', '#3b3b9a', '#7f1d1d'];
+
+function groupStyle(g: number): MapCellStyle {
+  const round = Math.floor(g / GROUP_INKS.length);
+  return { pattern: round % 2 === 0 ? 'hatch' : 'cross-hatch', colour: GROUP_INKS[g % GROUP_INKS.length]!, angle: g % 2 === 0 ? 45 : -45 };
+}
+
+function fixedHeadTerm(label: string, cells: Int32Array, heads: Float64Array, ignoredCells: number, context: TermContext, g: number): FlowTerm {
   return {
     kind: 'fixed-head',
     label,
@@ -58,7 +69,8 @@ function fixedHeadTerm(label: string, cells: Int32Array, heads: Float64Array, ig
     prescribedHeads: heads,
     anchors: true,
     nonlinear: false,
-    mapLegend: 'Fixed-head cells',
+    mapLegend: `Fixed head: ${label}`,
+    mapStyle: groupStyle(g),
     pumping: false,
     ignoredCells,
     // Eliminated: nothing to add; assembly moves the prescribed heads to the neighbours' right-hand side.

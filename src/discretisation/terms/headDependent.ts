@@ -17,12 +17,13 @@
 import { inputError } from '../../errors.js';
 import type { HeadDependentInput } from '../../scenario/types.js';
 import type { ModelInput } from '../../scenario/types.js';
-import type { CellStyle, FlowTerm, TermContext, TermKind } from './types.js';
+import type { FlowTerm, MapCellStyle, TermContext, TermKind } from './types.js';
 
-const STYLES: Record<HeadDependentInput['kind'], { style: CellStyle; legend: (name: string) => string }> = {
-  river: { style: { colour: '#1f63b5', angle: -45 }, legend: (name) => `River "${name}" (head-dependent)` },
-  drain: { style: { colour: '#9a5200', angle: 0 }, legend: (name) => `Drain "${name}" (outflow only)` },
-  linear: { style: { colour: '#6a2c91', angle: 90 }, legend: (name) => `Head-dependent "${name}"` },
+// Patterns other than the fixed heads' diagonal hatching, so that a head-dependent boundary never reads as a fixed head.
+const STYLES: Record<HeadDependentInput['kind'], { style: MapCellStyle; legend: (name: string) => string }> = {
+  river: { style: { pattern: 'cross-hatch', colour: '#1f63b5', angle: 0 }, legend: (name) => `River "${name}" (head-dependent)` },
+  drain: { style: { pattern: 'dots', colour: '#9a5200' }, legend: (name) => `Drain "${name}" (outflow only)` },
+  linear: { style: { pattern: 'outline', colour: '#6a2c91' }, legend: (name) => `Head-dependent "${name}"` },
 };
 
 function build(model: ModelInput, context: TermContext): FlowTerm[] {

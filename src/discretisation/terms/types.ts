@@ -26,8 +26,10 @@ export interface FlowTerm {
   readonly anchors: boolean;
   /** True when the term's linearisation depends on the heads (switches, head-dependent conductance). */
   readonly nonlinear: boolean;
-  /** Map legend of the term's cells when maps draw them (hatched), null when they are not drawn as cells. */
+  /** Map legend of the term's cells when maps draw them, null when they are not drawn as cells. */
   readonly mapLegend: string | null;
+  /** How maps draw the term's cells (pattern and ink); absent: the map picks a hatching of its own. */
+  readonly mapStyle?: MapCellStyle;
   /** True when this term's flow is the pumping whose change `compare` splits into sources of water. */
   readonly pumping: boolean;
   /**
@@ -65,20 +67,9 @@ export interface FlowTerm {
    * each cell (index into names, same order as `cells`). Absent or null: the term has one row.
    */
   readonly parts?: { readonly names: readonly string[]; readonly of: Int32Array } | null;
-  /** How maps draw the term's cells (hatching colour and angle); absent: the fixed-head look. */
-  readonly mapStyle?: CellStyle;
   /** True when the per-cell exchange is written as a raster (`exchange-<label>.tif`). */
   readonly exchangeRaster?: boolean;
 }
-
-/** The look of a layer of term cells on maps: hatching lines of a colour at an angle (degrees). */
-export interface CellStyle {
-  colour: string;
-  angle: number;
-}
-
-/** The look of fixed-head cells (dark blue-black hatching at 45 degrees), the default of cell layers. */
-export const FIXED_HEAD_STYLE: CellStyle = { colour: '#0c2340', angle: 45 };
 
 /** The cells that anchor a region's level for the terms' current states (1 = anchored). */
 export function anchorMask(terms: readonly FlowTerm[], cellCount: number): Uint8Array {
@@ -89,6 +80,18 @@ export function anchorMask(terms: readonly FlowTerm[], cellCount: number): Uint8
     else for (let k = 0; k < term.cells.length; k++) mask[term.cells[k]!] = 1;
   }
   return mask;
+}
+
+/**
+ * How a map draws a term's cells: a pattern in one ink colour over the cell colours. A kind gives each of its terms
+ * (e.g. each fixed-head group) its own colour or angle, so every legend row can be told apart on the map.
+ */
+export interface MapCellStyle {
+  pattern: 'hatch' | 'cross-hatch' | 'dots' | 'outline';
+  /** Ink colour (#rrggbb). */
+  colour: string;
+  /** Angle of hatching in degrees (default 45). */
+  angle?: number;
 }
 
 /** What the first stage of assembly knows: the grid and the active cells. */
@@ -139,16 +142,22 @@ export const linearTerm = {
 } as const;
 
 /**
- * The cells of the terms drawn on maps, one layer per legend label (terms sharing a label, e.g. every fixed-head
- * group, form one layer), in term order.
+ * The cells of the terms drawn on maps, one layer per legend label (terms sharing a label form one layer, drawn in
+ * the first one's style), in term order.
  */
-export function mapCellLayers(terms: readonly FlowTerm[], cellCount: number): Array<{ legend: string; cells: Uint8Array; style: CellStyle }> {
-  const layers = new Map<string, { cells: Uint8Array; style: CellStyle }>();
+export function mapCellLayers(
+  terms: readonly FlowTerm[],
+  cellCount: number,
+): Array<{ legend: string; cells: Uint8Array; style?: MapCellStyle }> {
+  const layers = new Map<string, { legend: string; cells: Uint8Array; style?: MapCellStyle }>();
   for (const term of terms) {
     if (term.mapLegend === null) continue;
     let layer = layers.get(term.mapLegend);
-    if (!layer) layers.set(term.mapLegend, (layer = { cells: new Uint8Array(cellCount), style: term.mapStyle ?? FIXED_HEAD_STYLE }));
+    if (!layer) {
+      layer = { legend: term.mapLegend, cells: new Uint8Array(cellCount), ...(term.mapStyle ? { style: term.mapStyle } : {}) };
+      layers.set(term.mapLegend, layer);
+    }
     for (let k = 0; k < term.cells.length; k++) layer.cells[term.cells[k]!] = 1;
   }
-  return [...layers].map(([legend, layer]) => ({ legend, ...layer }));
+  return [...layers.values()];
 }
