@@ -1,38 +1,80 @@
 /**
- * The outer (fixed-point) iteration around the linear solver, for flow terms whose linearisation depends on the
- * heads (switching rivers and drains, water-table conductances; ../shared/spec/physics.md):
+ * The outer (nonlinear) iteration around the linear solver, for flow terms whose linearisation depends on the
+ * heads (switching rivers and drains) and for water-table aquifers, whose conductances depend on the saturated
+ * thickness (./aquifer.ts; ../shared/spec/physics.md):
  *
- *   repeat { linearise every term about the heads; solve the linear system } until no term changes its state and
- *   the largest head change is below the tolerance,
+ *   repeat { linearise every term and the conductances about the heads; solve the linear system; damp the step }
+ *   until no term changes its state, the largest head change is below the tolerance and the flow residual of the
+ *   nonlinear equations (the water budget cell by cell) is below its own,
  *
- * with cycle detection (a switch state seen before) and an iteration cap. With linear terms only, the system as
- * assembled is already linearised: one linear solve, no behaviour change.
+ * with cycle detection (a switch state seen before) and an iteration cap. The water-table iteration is Picard's
+ * (successive substitution: conductances from the latest heads), with a damping factor that halves when the largest
+ * head change grows and recovers while it shrinks (common practice for unconfined flow). The solver session is kept
+ * throughout: its operator bands are replaced in place and its set-up (the multigrid hierarchy) rebuilt only when
+ * the conductances moved by more than REBUILD_FRACTION since it was built; in between it serves as the
+ * preconditioner of the changed operator. With linear terms and a confined aquifer, the system as assembled is
+ * already linearised: one linear solve, no behaviour change.
  */
 import { headsFromSolution, linearise, type FlowSystem } from './assemble.js';
-import { setDiagonal, solveLinear, type Plan, type SessionHandle } from '../executor/plan.js';
+import { updateSaturation, waterTableConductances } from './aquifer.js';
+import { setDiagonal, setOperator, solveLinear, type Plan, type SessionHandle } from '../executor/plan.js';
 import type { LinearAnswer, LinearSolve } from '../executor/types.js';
+import { applyDot } from '../solvers/kernels.js';
 
 export interface OuterSettings {
   /** Largest head change between outer iterations (length units) that counts as settled. */
   headTolerance: number;
   maxOuterIterations: number;
+  /**
+   * Water-table aquifers: largest relative flow residual of the nonlinear equations that counts as settled,
+   * ||b(h) - A(h)(h - datum)|| / ||b(h)|| with the conductances at the final heads (the budget cell by cell).
+   * Never below the linear solver's tolerance times 10.
+   */
+  flowTolerance: number;
 }
 
-export const DEFAULT_OUTER: OuterSettings = { headTolerance: 1e-6, maxOuterIterations: 50 };
+export const DEFAULT_OUTER: OuterSettings = { headTolerance: 1e-6, maxOuterIterations: 50, flowTolerance: 1e-7 };
+
+/**
+ * Fraction of the summed conductances that may change (sum |C - C_built| / sum C_built) before the solver is set
+ * up again on a water-table operator; below it the earlier set-up preconditions the new operator. Measured on the
+ * benchmark case (bench/README.md).
+ */
+export const REBUILD_FRACTION = 0.05;
 
 export type OuterStop = 'linear' | 'settled' | 'cycle' | 'iteration-limit';
+
+export interface OuterIteration {
+  /** Cells whose switch state changed. */
+  stateChanges: number;
+  /** Largest head change of this iteration (after damping), length units. */
+  maxHeadChange: number;
+  /** Inner (linear) iterations of this outer iteration's solve. */
+  innerIterations: number;
+  /** Relative flow residual of the nonlinear equations at the new heads (0 when every term is linear in h). */
+  flowResidual: number;
+  /** Dry cells at the new heads (water-table aquifers; 0 otherwise). */
+  dryCells: number;
+  /** Damping factor applied to this iteration's step (1 = none). */
+  damping: number;
+  /** True when the solver was set up again for the next iteration. */
+  rebuilt: boolean;
+}
 
 export interface OuterReport {
   /** Linear solves done (1 for a linear problem). */
   iterations: number;
   stopReason: OuterStop;
-  /** Per outer iteration: cells whose switch state changed, and the largest head change. */
-  history: Array<{ stateChanges: number; maxHeadChange: number }>;
+  /** Per outer iteration. */
+  history: OuterIteration[];
+  /** Inner iterations summed over every outer iteration. */
+  innerIterations: number;
 }
 
 /**
- * Solve `system` with the solver of `session`, iterating on its nonlinear terms. When the system is relinearised
- * its operator diagonal and right-hand side are replaced in place (system.operator.diag, system.rhs).
+ * Solve `system` with the solver of `session`, iterating on its nonlinear terms and water table. When the system is
+ * relinearised its operator (diagonal, and for a water table the bands), its conductances and right-hand side are
+ * replaced in place (system.operator, system.conductanceEast/South, system.rhs).
  */
 export function* solveOuter(
   system: FlowSystem,
@@ -40,42 +82,115 @@ export function* solveOuter(
   linear: Omit<LinearSolve, 'rhs' | 'x'>,
   settings: OuterSettings = DEFAULT_OUTER,
 ): Plan<LinearAnswer & { outer: OuterReport }> {
-  const start = new Float64Array(system.operator.n);
+  const { operator, waterTable, datum, active } = system;
+  const n = operator.n;
   const nonlinear = system.terms.filter((t) => t.nonlinear);
-  if (nonlinear.length === 0) {
-    const answer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x: start });
-    return { ...answer, outer: { iterations: 1, stopReason: 'linear', history: [] } };
+  if (nonlinear.length === 0 && waterTable === null) {
+    const answer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x: new Float64Array(n) });
+    return { ...answer, outer: { iterations: 1, stopReason: 'linear', history: [], innerIterations: answer.stats.iterations } };
   }
+  const { unknown, east, south } = operator;
+  const { nx, ny } = system.grid;
+  const flowTolerance = Math.max(settings.flowTolerance, 10 * linear.tolerance);
+  // The heads the system is linearised about; x starts there (a warm start for every inner solve).
+  let head: Float64Array = Float64Array.from(system.startHead);
+  let x: Float64Array = new Float64Array(n);
+  for (let p = 0; p < n; p++) if (unknown[p]) x[p] = head[p]! - datum;
+  const next = new Float64Array(n);
+  const work = new Float64Array(n);
+  // Conductances the solver was last set up on (water tables): the measure of how far the operator moved.
+  const builtEast = waterTable ? Float64Array.from(system.conductanceEast) : null;
+  const builtSouth = waterTable ? Float64Array.from(system.conductanceSouth) : null;
   const seen = new Set<string>();
-  const history: OuterReport['history'] = [];
-  let previous: Float64Array | null = null;
-  let x: Float64Array = start;
+  const history: OuterIteration[] = [];
+  let innerTotal = 0;
+  let damping = 1;
+  let lastChange = Infinity;
   for (;;) {
     const answer: LinearAnswer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x });
-    x = answer.x;
-    const head = headsFromSolution(system, x);
+    innerTotal += answer.stats.iterations;
+    headsFromSolution(system, answer.x, next);
+    let maxHeadChange = 0;
+    let rawChange = 0;
+    for (let p = 0; p < n; p++) {
+      if (!unknown[p]) continue;
+      const step = next[p]! - head[p]!;
+      const size = Math.abs(step);
+      if (size > rawChange) rawChange = size;
+    }
+    // Damping (water tables): halve when the step grows, recover towards 1 while it shrinks.
+    if (waterTable) {
+      if (rawChange > lastChange && history.length > 0) damping = Math.max(damping / 2, 1 / 16);
+      else damping = Math.min(1, damping * 1.5);
+      lastChange = rawChange;
+      if (damping < 1) for (let p = 0; p < n; p++) if (unknown[p]) next[p] = head[p]! + damping * (next[p]! - head[p]!);
+    }
+    for (let p = 0; p < n; p++) {
+      if (!unknown[p]) continue;
+      const size = Math.abs(next[p]! - head[p]!);
+      if (size > maxHeadChange) maxHeadChange = size;
+    }
+    const stepDamping = waterTable ? damping : 1;
+    [head, x] = [Float64Array.from(next), answer.x];
+    if (stepDamping < 1) for (let p = 0; p < n; p++) if (unknown[p]) x[p] = head[p]! - datum;
+
     let stateChanges = 0;
     for (const term of nonlinear) stateChanges += term.updateState(head);
-    let maxHeadChange = Infinity;
-    if (previous) {
-      maxHeadChange = 0;
-      for (let p = 0; p < head.length; p++) {
-        const d = Math.abs(head[p]! - previous[p]!);
-        if (d > maxHeadChange) maxHeadChange = d;
+    let dryCells = 0;
+    if (waterTable) {
+      dryCells = updateSaturation(waterTable, head, active);
+      waterTableConductances(waterTable, nx, ny, system.dx, system.dy, active, system.conductanceEast, system.conductanceSouth);
+      for (let p = 0; p < n; p++) {
+        if (!unknown[p]) continue;
+        if (unknown[p + 1] && (p + 1) % nx !== 0) east[p] = system.conductanceEast[p]!;
+        if (p + nx < n && unknown[p + nx]) south[p] = system.conductanceSouth[p]!;
       }
     }
-    history.push({ stateChanges, maxHeadChange });
+    const relinearised = linearise(system, unknown, head);
+    operator.diag.set(relinearised.diag);
+    system.rhs = relinearised.rhs;
+    // The flow residual of the nonlinear equations at the new heads: b(h) - A(h) x.
+    applyDot(operator, x, work);
+    let r2 = 0;
+    let b2 = 0;
+    for (let p = 0; p < n; p++) {
+      if (!unknown[p]) continue;
+      const r = relinearised.rhs[p]! - work[p]!;
+      r2 += r * r;
+      b2 += relinearised.rhs[p]! * relinearised.rhs[p]!;
+    }
+    const flowResidual = waterTable ? (b2 > 0 ? Math.sqrt(r2 / b2) : Math.sqrt(r2)) : 0;
+
     const key = nonlinear.map((t) => t.stateKey()).join('|');
     let stopReason: OuterStop | null = null;
-    if (stateChanges === 0 && maxHeadChange <= settings.headTolerance) stopReason = 'settled';
+    // Settled needs an undamped last step: a damped step's head change understates the distance still to go.
+    if (stateChanges === 0 && maxHeadChange <= settings.headTolerance && flowResidual <= flowTolerance && stepDamping === 1) stopReason = 'settled';
     else if (stateChanges > 0 && seen.has(key)) stopReason = 'cycle';
-    else if (history.length >= settings.maxOuterIterations) stopReason = 'iteration-limit';
+    else if (history.length + 1 >= settings.maxOuterIterations) stopReason = 'iteration-limit';
     seen.add(key);
-    if (stopReason) return { ...answer, outer: { iterations: history.length, stopReason, history } };
-    previous = head;
-    const next = linearise(system, system.operator.unknown, head);
-    system.operator.diag.set(next.diag);
-    system.rhs = next.rhs;
-    yield* setDiagonal(session, next.diag);
+
+    let rebuilt = false;
+    if (!stopReason) {
+      if (waterTable) {
+        let moved = 0;
+        let total = 0;
+        const ce = system.conductanceEast;
+        const cs = system.conductanceSouth;
+        for (let p = 0; p < n; p++) {
+          moved += Math.abs(ce[p]! - builtEast![p]!) + Math.abs(cs[p]! - builtSouth![p]!);
+          total += builtEast![p]! + builtSouth![p]!;
+        }
+        rebuilt = moved > REBUILD_FRACTION * total;
+        if (rebuilt) {
+          builtEast!.set(ce);
+          builtSouth!.set(cs);
+        }
+        yield* setOperator(session, { diag: operator.diag, east, south }, rebuilt);
+      } else {
+        yield* setDiagonal(session, operator.diag);
+      }
+    }
+    history.push({ stateChanges, maxHeadChange, innerIterations: answer.stats.iterations, flowResidual, dryCells, damping: stepDamping, rebuilt });
+    if (stopReason) return { x, stats: answer.stats, outer: { iterations: history.length, stopReason, history, innerIterations: innerTotal } };
   }
 }

@@ -111,7 +111,7 @@ describe('flow term registry', () => {
 describe('outer iteration', () => {
   it('runs one linear solve when every term is linear, and the summary stays as it was', () => {
     const r = solve(chain());
-    expect(r.outer).toEqual({ iterations: 1, stopReason: 'linear', history: [] });
+    expect(r.outer).toEqual({ iterations: 1, stopReason: 'linear', history: [], innerIterations: r.stats.iterations });
     const system = chain();
     const result = solveModel(makeModel(system.grid, { conductivity: new Float64Array(3).fill(2), thickness: 5, fixedHeads: [fixedCells('left', [[0, 10]])], recharge: 0.1 }));
     expect(result.outer.iterations).toBe(1);
