@@ -28,9 +28,9 @@ export interface OuterSettings {
   /**
    * Water-table aquifers: largest relative flow residual of the nonlinear equations that counts as settled,
    * ||b(h) - A(h)(h - datum)|| / ||b(h)|| with the conductances at the final heads (the budget cell by cell).
-   * Never below the linear solver's tolerance times 10.
+   * Never below the linear solver's tolerance times 10. Default 1e-7.
    */
-  flowTolerance: number;
+  flowTolerance?: number;
 }
 
 export const DEFAULT_OUTER: OuterSettings = { headTolerance: 1e-6, maxOuterIterations: 50, flowTolerance: 1e-7 };
@@ -91,7 +91,7 @@ export function* solveOuter(
   }
   const { unknown, east, south } = operator;
   const { nx, ny } = system.grid;
-  const flowTolerance = Math.max(settings.flowTolerance, 10 * linear.tolerance);
+  const flowTolerance = Math.max(settings.flowTolerance ?? 1e-7, 10 * linear.tolerance);
   // The heads the system is linearised about; x starts there (a warm start for every inner solve).
   let head: Float64Array = Float64Array.from(system.startHead);
   let x: Float64Array = new Float64Array(n);

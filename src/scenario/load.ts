@@ -85,7 +85,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   loader.checkGridIsProjected(conductivityPath, grid, units.length);
   const conductivity = conductivityRaster.values;
 
-  const aquiferType = raw.aquifer.type;
+  const aquiferType = raw.aquifer.type ?? 'confined';
   // Unconfined and convertible aquifers: top and bottom read here, as they decide which cells are active.
   const waterTable = aquiferType === 'confined' ? null : await loader.waterTableGeometry(raw.aquifer, conductivity, conductivityRaster);
   let thickness: Float64Array | number;

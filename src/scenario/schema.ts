@@ -80,7 +80,7 @@ export const unitsSchema = strict({
 
 export const aquiferSchema = strict({
   /** confined (default: thickness given), unconfined or convertible (thickness from the heads, top and bottom). */
-  type: z.enum(['confined', 'unconfined', 'convertible']).default('confined'),
+  type: z.enum(['confined', 'unconfined', 'convertible']).optional(),
   conductivity: filePath,
   thickness: numberOrPath(finite.gt(0), 'a thickness > 0 or the path of a GeoTIFF').optional(),
   anisotropy: finite.gt(0).default(1),
@@ -96,7 +96,7 @@ export const aquiferSchema = strict({
   initialHead: numberOrPath(finite, 'a head (length) or the path of a GeoTIFF').optional(),
 }).superRefine((aquifer, ctx) => {
   // Which keys each type needs: ../shared/spec/interface.md ("Extensions").
-  const type = aquifer.type;
+  const type = aquifer.type ?? 'confined';
   if (type === 'confined') {
     if (aquifer.thickness === undefined) ctx.addIssue({ code: 'custom', path: ['thickness'], message: 'is required for a confined aquifer (type "confined", the default)' });
     if (aquifer.initialHead !== undefined) ctx.addIssue({ code: 'custom', path: ['initialHead'], message: 'applies only to unconfined and convertible aquifers (a confined solve needs no starting heads)' });

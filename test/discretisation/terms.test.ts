@@ -118,7 +118,7 @@ describe('outer iteration', () => {
     expect(buildSummary(result, [], 'test').solver).not.toHaveProperty('outerIterations');
     expect(resultProblem(result)).toBeNull();
     // An outer loop that did not settle is not a result (exit 3, as a linear solve that did not converge).
-    const unsettled = { ...result, outer: { iterations: 3, stopReason: 'cycle' as const, history: [] } };
+    const unsettled = { ...result, outer: { iterations: 3, stopReason: 'cycle' as const, history: [], innerIterations: 30 } };
     expect(exitCodeFor(resultProblem(unsettled)!)).toBe(3);
     expect(buildSummary(unsettled, [], 'test').solver).toMatchObject({ outerIterations: 3, outerStopReason: 'cycle' });
   });
