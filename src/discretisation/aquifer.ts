@@ -86,6 +86,18 @@ export function buildWaterTable(
 }
 
 /**
+ * The fraction of a well's rate a cell can deliver at head h: 1 while the cell is more than 1 % saturated (depth
+ * above the smoothing depth e), falling with the smoothed thickness to DRY_FRACTION when the cell is dry. The rest is
+ * the rate the well could not deliver, which is reported (never a silent rate reduction).
+ */
+export function deliveryFraction(table: WaterTable, p: number, h: number): number {
+  const t = table.top[p]!;
+  const d = (h < t ? h : t) - table.bottom[p]!;
+  const e = table.smoothing[p]!;
+  return d >= e ? 1 : smoothedThickness(d, e) / e;
+}
+
+/**
  * Saturated thickness (smoothed, for conductances) and dry flags at `head`, into table.saturated and table.dry;
  * returns the number of dry cells.
  */

@@ -164,6 +164,7 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     updateSaturation(waterTable, initial, active);
     waterTableConductances(waterTable, nx, ny, dx, dy, active, conductanceEast, conductanceSouth);
   }
+  context.waterTable = waterTable;
 
   const others = TERM_KINDS.filter((k) => !k.dirichlet).flatMap((k) => k.build(model, context));
   // Budget order: the registry's, Dirichlet kinds included where the registry lists them.
@@ -295,6 +296,7 @@ export function withSources(base: FlowSystem, model: ModelInput): FlowSystem {
     datum: base.datum,
     conductanceEast: base.conductanceEast,
     conductanceSouth: base.conductanceSouth,
+    waterTable: base.waterTable,
   };
   const terms = TERM_KINDS.flatMap((k) => (k.rhsOnly ? k.build(model, context) : base.terms.filter((t) => t.kind === k.kind)));
   const system = { ...base, grid: model.grid, terms };
