@@ -51,8 +51,15 @@ export interface WellboreResult {
    * or its well-bore head would fall below the aquifer bottom; 0 otherwise.
    */
   undeliveredRate: number;
+  /**
+   * Water-table aquifers: of the rate the cell delivers, the part the well bore could not lift because its head would
+   * fall below the aquifer bottom (Dupuit's form with h_w = bottom); 0 otherwise.
+   */
+  wellboreShortfall: number;
   /** Water-table aquifers: true when the cell is dry or the well-bore head would fall below the bottom. */
   dry: boolean;
+  /** Water-table aquifers: true when the well's cell itself is dry (head at or below the bottom). */
+  cellDry: boolean;
 }
 
 /**
@@ -89,12 +96,15 @@ export function wellboreHeads(model: ModelInput, system: FlowSystem, head: Float
     const transmissivity = k0 * b;
     let wellboreHead = peacemanWellboreHead(cellHead, well.rate, transmissivity, r0, radius);
     let undeliveredRate = 0;
+    let wellboreShortfall = 0;
     let dry = false;
+    let cellDry = false;
     if (table !== null && well.rate < 0) {
       const z = table.bottom[p]!;
       const delivered = well.rate * deliveryFraction(table, p, cellHead);
       undeliveredRate = delivered - well.rate;
       dry = cellHead <= z;
+      cellDry = dry;
       if (cellHead < table.top[p]!) {
         const log = Math.log(r0 / radius);
         const square = b * b + (delivered * log) / (Math.PI * k0);
@@ -104,7 +114,7 @@ export function wellboreHeads(model: ModelInput, system: FlowSystem, head: Float
           wellboreHead = z;
           dry = true;
           const most = (Math.PI * k0 * b * b) / log;
-          undeliveredRate = Math.max(undeliveredRate, -well.rate - most);
+          wellboreShortfall = Math.max(0, -delivered - most);
         }
       }
     }
@@ -123,7 +133,9 @@ export function wellboreHeads(model: ModelInput, system: FlowSystem, head: Float
       minimumHead,
       belowMinimum: minimumHead !== null && wellboreHead < minimumHead,
       undeliveredRate,
+      wellboreShortfall,
       dry,
+      cellDry,
     };
   });
 }
@@ -132,10 +144,11 @@ export function wellboreHeads(model: ModelInput, system: FlowSystem, head: Float
 export function wellboreWarnings(results: WellboreResult[], lengthUnit: string): string[] {
   const warnings: string[] = [];
   for (const w of results) {
-    if (w.undeliveredRate > 0 && (w.dry || w.undeliveredRate > 1e-6 * -w.rate)) {
+    if (w.undeliveredRate > 1e-6 * -w.rate || w.wellboreShortfall > 0) {
+      const lost = w.undeliveredRate > 1e-6 * -w.rate ? `its cell is ${w.cellDry ? 'dry' : 'drying'}: of its rate ${fmtRate(-w.rate)} it could not deliver ${fmtRate(w.undeliveredRate)}` : `of its rate ${fmtRate(-w.rate)}`;
+      const bore = w.wellboreShortfall > 0 ? `; its well-bore head would fall below the aquifer bottom, so a further ${fmtRate(w.wellboreShortfall)} cannot be lifted` : '';
       warnings.push(
-        `well "${w.id}": its ${w.dry ? 'cell or well bore is dry' : 'cell is drying'}: of its rate ${fmtRate(-w.rate)} it could not deliver ${fmtRate(w.undeliveredRate)} ${lengthUnit}^3 per time unit ` +
-          `(the water table falls to the aquifer bottom there); lower the rate or move the well`,
+        `well "${w.id}": ${lost}${bore} (${lengthUnit}^3 per time unit; the water table reaches the aquifer bottom there); lower the rate or move the well`,
       );
     }
     if (w.belowMinimum) {

@@ -97,6 +97,40 @@ export function deliveryFraction(table: WaterTable, p: number, h: number): numbe
   return d >= e ? 1 : smoothedThickness(d, e) / e;
 }
 
+/** d(deliveryFraction)/dh at head h (0 above the smoothing depth, in a confined cell and in a dry cell). */
+export function deliverySlope(table: WaterTable, p: number, h: number): number {
+  const t = table.top[p]!;
+  if (h >= t) return 0;
+  const d = h - table.bottom[p]!;
+  const e = table.smoothing[p]!;
+  if (d >= e || d <= 0) return 0;
+  // d/dd of d^2 (2e - d) / e^2, divided by e.
+  return (d * (4 * e - 3 * d)) / (e * e * e);
+}
+
+/**
+ * Limit the fall of the water table in one outer iteration (common practice for unconfined Picard iterations): a
+ * cell more than 1 % saturated may lose at most half of its saturated depth, so a cell reaches its bottom through
+ * the smoothed zone instead of jumping from wet to deep below it (which makes the next linear system nearly singular
+ * and the iteration cycle). `next` is changed in place; returns the number of cells limited.
+ */
+export function limitFall(table: WaterTable, head: Float64Array, next: Float64Array, unknown: Uint8Array): number {
+  const { bottom, smoothing } = table;
+  let limited = 0;
+  for (let p = 0; p < next.length; p++) {
+    if (!unknown[p]) continue;
+    const z = bottom[p]!;
+    const d = head[p]! - z;
+    if (d <= smoothing[p]!) continue;
+    const lowest = z + 0.5 * d;
+    if (next[p]! < lowest) {
+      next[p] = lowest;
+      limited++;
+    }
+  }
+  return limited;
+}
+
 /**
  * Saturated thickness (smoothed, for conductances) and dry flags at `head`, into table.saturated and table.dry;
  * returns the number of dry cells.

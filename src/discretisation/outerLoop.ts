@@ -16,7 +16,7 @@
  * already linearised: one linear solve, no behaviour change.
  */
 import { headsFromSolution, linearise, type FlowSystem } from './assemble.js';
-import { updateSaturation, waterTableConductances } from './aquifer.js';
+import { limitFall, updateSaturation, waterTableConductances } from './aquifer.js';
 import { setDiagonal, setOperator, solveLinear, type Plan, type SessionHandle } from '../executor/plan.js';
 import type { LinearAnswer, LinearSolve } from '../executor/types.js';
 import { applyDot } from '../solvers/kernels.js';
@@ -57,6 +57,8 @@ export interface OuterIteration {
   dryCells: number;
   /** Damping factor applied to this iteration's step (1 = none). */
   damping: number;
+  /** Cells whose fall of the water table was limited to half their saturated depth (aquifer.ts, limitFall). */
+  limitedCells: number;
   /** True when the solver was set up again for the next iteration. */
   rebuilt: boolean;
 }
@@ -106,6 +108,7 @@ export function* solveOuter(
   let innerTotal = 0;
   let damping = 1;
   let lastChange = Infinity;
+  let lastLimited = 0;
   for (;;) {
     const answer: LinearAnswer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x });
     innerTotal += answer.stats.iterations;
@@ -119,11 +122,15 @@ export function* solveOuter(
       if (size > rawChange) rawChange = size;
     }
     // Damping (water tables): halve when the step grows, recover towards 1 while it shrinks.
+    let limited = 0;
     if (waterTable) {
-      if (rawChange > lastChange && history.length > 0) damping = Math.max(damping / 2, 1 / 16);
+      // While falls are being limited the steps are short by design: that is no sign of oscillation.
+      if (rawChange > lastChange && lastLimited === 0) damping = Math.max(damping / 2, 1 / 16);
       else damping = Math.min(1, damping * 1.5);
       lastChange = rawChange;
       if (damping < 1) for (let p = 0; p < n; p++) if (unknown[p]) next[p] = head[p]! + damping * (next[p]! - head[p]!);
+      limited = limitFall(waterTable, head, next, unknown);
+      lastLimited = limited;
     }
     for (let p = 0; p < n; p++) {
       if (!unknown[p]) continue;
@@ -132,7 +139,7 @@ export function* solveOuter(
     }
     const stepDamping = waterTable ? damping : 1;
     [head, x] = [Float64Array.from(next), answer.x];
-    if (stepDamping < 1) for (let p = 0; p < n; p++) if (unknown[p]) x[p] = head[p]! - datum;
+    if (stepDamping < 1 || limited > 0) for (let p = 0; p < n; p++) if (unknown[p]) x[p] = head[p]! - datum;
 
     let stateChanges = 0;
     for (const term of nonlinear) stateChanges += term.updateState(head);
@@ -164,7 +171,7 @@ export function* solveOuter(
     const key = nonlinear.map((t) => t.stateKey()).join('|');
     let stopReason: OuterStop | null = null;
     // Settled needs an undamped last step: a damped step's head change understates the distance still to go.
-    if (stateChanges === 0 && maxHeadChange <= settings.headTolerance && flowResidual <= flowTolerance && stepDamping === 1) stopReason = 'settled';
+    if (stateChanges === 0 && maxHeadChange <= settings.headTolerance && flowResidual <= flowTolerance && stepDamping === 1 && limited === 0) stopReason = 'settled';
     else if (stateChanges > 0 && seen.has(key)) stopReason = 'cycle';
     else if (history.length + 1 >= settings.maxOuterIterations) stopReason = 'iteration-limit';
     seen.add(key);
@@ -190,7 +197,7 @@ export function* solveOuter(
         yield* setDiagonal(session, operator.diag);
       }
     }
-    history.push({ stateChanges, maxHeadChange, innerIterations: answer.stats.iterations, flowResidual, dryCells, damping: stepDamping, rebuilt });
+    history.push({ stateChanges, maxHeadChange, innerIterations: answer.stats.iterations, flowResidual, dryCells, damping: stepDamping, limitedCells: limited, rebuilt });
     if (stopReason) return { x, stats: answer.stats, outer: { iterations: history.length, stopReason, history, innerIterations: innerTotal } };
   }
 }

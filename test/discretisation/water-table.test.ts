@@ -127,3 +127,118 @@ describe('unconfined aquifer: radial flow to a well', () => {
     expect(fine).toBeLessThan(3e-3);
   });
 });
+
+describe('convertible aquifer: confined upstream, unconfined downstream', () => {
+  // Top 20 m, bottom 0, K = 5 m/d. Strack's discharge potential (Strack 1989, Groundwater Mechanics, section 8):
+  // Phi = K B h - K B^2 / 2 where confined (h >= B), K h^2 / 2 where unconfined; in 1-D steady flow without recharge
+  // Phi is linear in x, which gives the heads on both sides of the transition.
+  const [k, top] = [5, 20];
+  const phi = (h: number) => (h >= top ? k * top * h - (k * top * top) / 2 : (k * h * h) / 2);
+  const headOf = (p: number) => (p >= (k * top * top) / 2 ? (p + (k * top * top) / 2) / (k * top) : Math.sqrt((2 * p) / k));
+
+  function strip(nx: number, dx: number) {
+    const grid = testGrid(nx, 3, dx);
+    return solveModel(makeModel(grid, {
+      conductivity: new Float64Array(nx * 3).fill(k),
+      aquiferType: 'convertible',
+      aquiferTop: top,
+      aquiferBottom: 0,
+      fixedHeads: [fixedColumn(grid, 0, 30, 'west'), fixedColumn(grid, nx - 1, 10, 'east')],
+      solver,
+    }));
+  }
+
+  function worstAgainstStrack(nx: number, dx: number): number {
+    const result = strip(nx, dx);
+    expect(resultProblem(result)).toBeNull();
+    const length = (nx - 1) * dx;
+    let worst = 0;
+    for (let j = 0; j < nx; j++) {
+      const expected = headOf(phi(30) + ((phi(10) - phi(30)) * j * dx) / length);
+      worst = Math.max(worst, Math.abs(result.head[nx + j]! - expected));
+    }
+    return worst;
+  }
+
+  it('follows the discharge potential on both sides of the transition', () => {
+    const coarse = worstAgainstStrack(21, 50);
+    const fine = worstAgainstStrack(41, 25);
+    // Exact on either side (linear in h, or in h^2); only the face that straddles h = top carries the mean-thickness
+    // approximation, an error that falls with the cell size (measured 0.0026 m -> 0.0003 m). Limit: 2 cm on the
+    // coarse grid (0.1 % of the 20 m head drop) and a refined error at most half the coarse one.
+    expect(coarse).toBeLessThan(0.02);
+    expect(fine).toBeLessThan(coarse / 2);
+  });
+
+  it('keeps heads and fluxes continuous around a pumping well that makes the cells near it unconfined', () => {
+    const [nx, ny, dx] = [41, 21, 25];
+    const grid = testGrid(nx, ny, dx);
+    const rate = -600;
+    const result = solveModel(makeModel(grid, {
+      conductivity: new Float64Array(nx * ny).fill(k),
+      aquiferType: 'convertible',
+      aquiferTop: top,
+      aquiferBottom: 0,
+      fixedHeads: [fixedColumn(grid, 0, 24, 'west')],
+      wells: [well(grid, 'W1', 10, 32, rate)],
+      solver,
+    }));
+    expect(resultProblem(result)).toBeNull();
+    // The well cell stays wet: the whole rate is pumped.
+    expect(result.wellbore[0]!.undeliveredRate).toBe(0);
+    const { head, system } = result;
+    let confined = 0;
+    let unconfined = 0;
+    for (let p = 0; p < head.length; p++) (head[p]! >= top ? confined++ : unconfined++);
+    expect(confined).toBeGreaterThan(0);
+    expect(unconfined).toBeGreaterThan(0);
+    // Mass conservation (continuity): without recharge and with no-flow edges elsewhere, every vertical section
+    // between the fixed-head column and the well carries the well's whole rate, on either side of the transition.
+    for (let j = 0; j < 31; j++) {
+      let section = 0;
+      for (let i = 0; i < ny; i++) {
+        const p = i * nx + j;
+        section += system.conductanceEast[p]! * (head[p]! - head[p + 1]!);
+      }
+      expect(Math.abs(section + rate) / -rate).toBeLessThan(1e-6);
+    }
+    // Heads are continuous: no step between neighbours larger than the largest step next to the well.
+    const w = 10 * nx + 32;
+    const nearWell = Math.max(Math.abs(head[w]! - head[w - 1]!), Math.abs(head[w]! - head[w + 1]!));
+    for (let p = 0; p < head.length - 1; p++) {
+      if ((p + 1) % nx !== 0) expect(Math.abs(head[p]! - head[p + 1]!)).toBeLessThanOrEqual(nearWell);
+    }
+    // The budget closes (issue 13: below 0.01 %).
+    expect(Math.abs(result.budget.discrepancyPercent)).toBeLessThan(0.01);
+  });
+});
+
+describe('a well that dries its cell', () => {
+  it('is reported with the rate it could not deliver; heads stay finite and the budget closes', () => {
+    // A thin unconfined aquifer (2 m saturated at the boundary) and a well asking far more than it can give.
+    const [nx, ny, dx] = [21, 21, 20];
+    const grid = testGrid(nx, ny, dx);
+    const rate = -500;
+    const result = solveModel(makeModel(grid, {
+      conductivity: new Float64Array(nx * ny).fill(2),
+      aquiferType: 'unconfined',
+      aquiferBottom: 10,
+      fixedHeads: [fixedColumn(grid, 0, 12, 'west'), fixedColumn(grid, nx - 1, 12, 'east')],
+      wells: [well(grid, 'W1', 10, 10, rate)],
+      solver: { ...solver, tolerance: 1e-10 },
+    }));
+    expect(resultProblem(result)).toBeNull();
+    for (let p = 0; p < result.head.length; p++) expect(Number.isFinite(result.head[p]!)).toBe(true);
+    const w = result.wellbore[0]!;
+    // Darcy through the 2 m band cannot supply 500 m3/d: most of it is reported as not delivered.
+    expect(w.undeliveredRate).toBeGreaterThan(0.5 * -rate);
+    expect(w.undeliveredRate).toBeLessThanOrEqual(-rate);
+    // The little the cell gives cannot be lifted either: the well bore would fall below the bottom.
+    expect(w.dry).toBe(true);
+    expect(result.warnings.some((t) => t.includes('well "W1"') && t.includes('could not deliver'))).toBe(true);
+    // What the well did take is in the budget, which closes.
+    const wells = result.budget.terms.find((t) => t.term === 'wells')!;
+    expect(wells.outflow).toBeCloseTo(-rate - w.undeliveredRate, 6);
+    expect(Math.abs(result.budget.discrepancyPercent)).toBeLessThan(0.01);
+  });
+});

@@ -10,7 +10,7 @@ import { cellAt } from '../../grid.js';
 import { inputError } from '../../errors.js';
 import type { ModelInput } from '../../scenario/types.js';
 import { linearTerm, type FlowTerm, type TermContext, type TermKind } from './types.js';
-import { deliveryFraction } from '../aquifer.js';
+import { deliveryFraction, deliverySlope } from '../aquifer.js';
 
 function build(model: ModelInput, context: TermContext): FlowTerm[] {
   const { grid, active, fixed, fixedGroup, groups } = context;
@@ -57,11 +57,21 @@ function build(model: ModelInput, context: TermContext): FlowTerm[] {
         anchors: false,
         mapLegend: null,
         pumping: true,
-        linearise(head, _diag, rhs) {
+        linearise(head, diag, rhs) {
+          // Q f(h) ~ Q f(h0) + Q f'(h0) (h - h0) (Newton's linearisation of the delivered rate): -Q f'(h0) >= 0 on the
+          // diagonal keeps the operator symmetric positive definite and lets a drying cell settle in one system.
+          const { datum } = context;
           for (let k = 0; k < cells.length; k++) {
             const p = cells[k]!;
             const q = rates[k]!;
-            rhs[p]! += q < 0 ? q * deliveryFraction(table, p, head[p]!) : q;
+            if (q >= 0) {
+              rhs[p]! += q;
+              continue;
+            }
+            const h0 = head[p]!;
+            const c = -q * deliverySlope(table, p, h0);
+            diag[p]! += c;
+            rhs[p]! += q * deliveryFraction(table, p, h0) + c * (h0 - datum);
           }
         },
         flow(head, out) {
