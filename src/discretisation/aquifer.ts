@@ -224,3 +224,37 @@ export function defaultWaterTableStart(
   }
   return head;
 }
+
+/**
+ * Heads as result files show them: dry cells (head at or below the bottom) become NaN (nodata), as the contract
+ * asks; confined models return `head` itself.
+ */
+export function headsForOutput(table: WaterTable | null, head: Float64Array): Float64Array {
+  if (table === null) return head;
+  const out = Float64Array.from(head);
+  for (let p = 0; p < out.length; p++) if (out[p]! <= table.bottom[p]!) out[p] = NaN;
+  return out;
+}
+
+/** The contract's saturated thickness per cell at `head` (0 in dry cells, NaN off the active area). */
+export function saturatedThicknessField(table: WaterTable, head: Float64Array): Float64Array {
+  const out = new Float64Array(head.length);
+  for (let p = 0; p < out.length; p++) {
+    const z = table.bottom[p]!;
+    out[p] = Number.isFinite(z) && Number.isFinite(head[p]!) ? trueSaturatedThickness(table.type, head[p]!, table.top[p]!, z) : NaN;
+  }
+  return out;
+}
+
+/** Dry cells (head at or below the bottom) and a 0/1 mask of them. */
+export function dryCells(table: WaterTable, head: Float64Array): { count: number; mask: Uint8Array } {
+  const mask = new Uint8Array(head.length);
+  let count = 0;
+  for (let p = 0; p < head.length; p++) {
+    if (head[p]! <= table.bottom[p]!) {
+      mask[p] = 1;
+      count++;
+    }
+  }
+  return { count, mask };
+}

@@ -3,6 +3,8 @@ import { cellHeight, cellWidth, crsLabel } from '../grid.js';
 import type { SolveResult } from '../analysis/result.js';
 import type { WaterBudget } from '../analysis/budget.js';
 import type { CalibrationStatistics } from '../analysis/calibration.js';
+import type { OuterReport } from '../discretisation/outerLoop.js';
+import { dryCells, saturatedThicknessField } from '../discretisation/aquifer.js';
 
 /** Round to 12 significant digits so files are stable and readable (float noise beyond that is meaningless here). */
 export function tidy(v: number): number {
@@ -79,8 +81,16 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
       peakMemoryMiB: tidy(result.peakMemoryMiB),
       notes: stats.notes,
       // Only when a term is nonlinear, so that linear runs keep their summary as it was.
-      ...(result.outer.stopReason === 'linear' ? {} : { outerIterations: result.outer.iterations, outerStopReason: result.outer.stopReason }),
+      ...(result.outer.stopReason === 'linear'
+        ? {}
+        : {
+            outerIterations: result.outer.iterations,
+            outerStopReason: result.outer.stopReason,
+            innerIterationsTotal: result.outer.innerIterations,
+            outerHistory: result.outer.history.map((h) => ({ ...h, maxHeadChange: tidy(h.maxHeadChange), flowResidual: tidy(h.flowResidual) })),
+          }),
     },
+    ...(system.waterTable === null ? {} : { aquifer: waterTableSummary(result) }),
     budget: budgetJson(budget),
     head: { min: tidy(range.min), max: tidy(range.max), mean: tidy(range.mean) },
     wells: result.wells.map((w, k) => {
@@ -100,6 +110,7 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
               radiusDefaulted: bore.radiusDefaulted,
               equivalentRadius: tidy(bore.equivalentRadius),
               ...(bore.minimumHead !== null ? { minimumHead: bore.minimumHead, belowMinimum: bore.belowMinimum } : {}),
+              ...(system.waterTable === null ? {} : { undeliveredRate: tidy(bore.undeliveredRate), wellboreShortfall: tidy(bore.wellboreShortfall), dry: bore.dry }),
             }
           : {}),
       };
@@ -154,6 +165,19 @@ export function budgetCsv(budget: WaterBudget): string {
   const lines = ['term,inflow,outflow'];
   for (const t of budget.terms) lines.push(`${csvField(t.term)},${tidy(t.inflow)},${tidy(t.outflow)}`);
   lines.push(`total,${tidy(budget.totalIn)},${tidy(budget.totalOut)}`);
+  return lines.join('\n') + '\n';
+}
+
+/**
+ * convergence.csv of a run with an outer iteration (nonlinear terms, water-table aquifers): one row per outer
+ * iteration with its inner (linear) iterations, largest head change, flow residual of the nonlinear equations, dry
+ * cells, damping factor, cells whose fall was limited, and whether the solver was set up again.
+ */
+export function outerConvergenceCsv(outer: OuterReport): string {
+  const lines = ['outer_iteration,inner_iterations,max_head_change,flow_residual,dry_cells,damping,limited_cells,solver_rebuilt,state_changes'];
+  outer.history.forEach((h, k) =>
+    lines.push(`${k + 1},${h.innerIterations},${h.maxHeadChange},${h.flowResidual},${h.dryCells},${h.damping},${h.limitedCells},${h.rebuilt ? 1 : 0},${h.stateChanges}`),
+  );
   return lines.join('\n') + '\n';
 }
 
@@ -251,4 +275,27 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
   out.push('');
   out.push(summary.caution);
   return out.join('\n') + '\n';
+}
+
+/** The water table of an unconfined or convertible run: type, dry cells, saturated thickness range. */
+function waterTableSummary(result: SolveResult): Record<string, unknown> {
+  const table = result.system.waterTable!;
+  const dry = dryCells(table, result.head);
+  const thickness = saturatedThicknessField(table, result.head);
+  let min = Infinity;
+  let max = -Infinity;
+  for (let p = 0; p < thickness.length; p++) {
+    const b = thickness[p]!;
+    if (!result.system.active[p] || !(b === b)) continue;
+    if (b < min) min = b;
+    if (b > max) max = b;
+  }
+  let confinedCells = 0;
+  if (table.type === 'convertible') for (let p = 0; p < thickness.length; p++) if (result.system.active[p] && result.head[p]! >= table.top[p]!) confinedCells++;
+  return {
+    type: table.type,
+    dryCells: dry.count,
+    ...(table.type === 'convertible' ? { confinedCells } : {}),
+    saturatedThickness: { min: tidy(min), max: tidy(max) },
+  };
 }
