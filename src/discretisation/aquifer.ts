@@ -219,7 +219,7 @@ export function defaultWaterTableStart(
     else if (fixed[p]) head[p] = fixedHead[p]!;
     else {
       const t = topField === undefined ? NaN : fieldAt(topField, p);
-      head[p] = Number.isFinite(t) ? t : Math.max(datum, fieldAt(bottomField, p) + depth);
+      head[p] = Number.isFinite(t) ? t : Math.max(datum, fieldAt(bottomField, p) + 0.5 * depth);
     }
   }
   return head;

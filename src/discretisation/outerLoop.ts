@@ -42,6 +42,9 @@ export const DEFAULT_OUTER: OuterSettings = { headTolerance: 1e-6, maxOuterItera
  */
 export const REBUILD_FRACTION = 0.05;
 
+/** Reduction of the flow residual each inexact inner solve aims for (see solveOuter). */
+export const INNER_REDUCTION = 0.01;
+
 export type OuterStop = 'linear' | 'settled' | 'cycle' | 'iteration-limit';
 
 export interface OuterIteration {
@@ -109,8 +112,13 @@ export function* solveOuter(
   let damping = 1;
   let lastChange = Infinity;
   let lastLimited = 0;
+  // Inexact inner solves (Eisenstat & Walker 1996, "Choosing the forcing terms in an inexact Newton method", applied
+  // to Picard steps): each inner solve reduces the flow residual of the current linearisation by INNER_REDUCTION, not
+  // to the final tolerance, as long as the outer iteration is far from settled; the last ones go to the tolerance.
+  let flowResidual = relativeResidual(operator, x, system.rhs, unknown, work);
   for (;;) {
-    const answer: LinearAnswer = yield* solveLinear(session, { ...linear, rhs: system.rhs, x });
+    const innerTolerance = waterTable ? Math.max(linear.tolerance, Math.min(0.1, INNER_REDUCTION * flowResidual)) : linear.tolerance;
+    const answer: LinearAnswer = yield* solveLinear(session, { ...linear, tolerance: innerTolerance, rhs: system.rhs, x });
     innerTotal += answer.stats.iterations;
     headsFromSolution(system, answer.x, next);
     let maxHeadChange = 0;
@@ -157,21 +165,13 @@ export function* solveOuter(
     operator.diag.set(relinearised.diag);
     system.rhs = relinearised.rhs;
     // The flow residual of the nonlinear equations at the new heads: b(h) - A(h) x.
-    applyDot(operator, x, work);
-    let r2 = 0;
-    let b2 = 0;
-    for (let p = 0; p < n; p++) {
-      if (!unknown[p]) continue;
-      const r = relinearised.rhs[p]! - work[p]!;
-      r2 += r * r;
-      b2 += relinearised.rhs[p]! * relinearised.rhs[p]!;
-    }
-    const flowResidual = waterTable ? (b2 > 0 ? Math.sqrt(r2 / b2) : Math.sqrt(r2)) : 0;
+    flowResidual = relativeResidual(operator, x, system.rhs, unknown, work);
 
     const key = nonlinear.map((t) => t.stateKey()).join('|');
     let stopReason: OuterStop | null = null;
     // Settled needs an undamped last step: a damped step's head change understates the distance still to go.
-    if (stateChanges === 0 && maxHeadChange <= settings.headTolerance && flowResidual <= flowTolerance && stepDamping === 1 && limited === 0) stopReason = 'settled';
+    const wellSettled = !waterTable || flowResidual <= flowTolerance;
+    if (stateChanges === 0 && maxHeadChange <= settings.headTolerance && wellSettled && stepDamping === 1 && limited === 0) stopReason = 'settled';
     else if (stateChanges > 0 && seen.has(key)) stopReason = 'cycle';
     else if (history.length + 1 >= settings.maxOuterIterations) stopReason = 'iteration-limit';
     seen.add(key);
@@ -197,7 +197,21 @@ export function* solveOuter(
         yield* setDiagonal(session, operator.diag);
       }
     }
-    history.push({ stateChanges, maxHeadChange, innerIterations: answer.stats.iterations, flowResidual, dryCells, damping: stepDamping, limitedCells: limited, rebuilt });
+    history.push({ stateChanges, maxHeadChange, innerIterations: answer.stats.iterations, flowResidual: waterTable ? flowResidual : 0, dryCells, damping: stepDamping, limitedCells: limited, rebuilt });
     if (stopReason) return { x, stats: answer.stats, outer: { iterations: history.length, stopReason, history, innerIterations: innerTotal } };
   }
+}
+
+/** ||b - A x|| / ||b|| over the unknown cells (||b - A x|| when b = 0); `work` is scratch. */
+function relativeResidual(operator: FlowSystem['operator'], x: Float64Array, b: Float64Array, unknown: Uint8Array, work: Float64Array): number {
+  applyDot(operator, x, work);
+  let r2 = 0;
+  let b2 = 0;
+  for (let p = 0; p < work.length; p++) {
+    if (!unknown[p]) continue;
+    const r = b[p]! - work[p]!;
+    r2 += r * r;
+    b2 += b[p]! * b[p]!;
+  }
+  return b2 > 0 ? Math.sqrt(r2 / b2) : Math.sqrt(r2);
 }
