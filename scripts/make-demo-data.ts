@@ -339,7 +339,7 @@ async function writeUnconfinedValley(
       const offAxis = (row - valleyAxis(col)) / valleyHalfWidth(col);
       // the water table falls along the valley roughly as the river does
       const trend = RIVER_STAGE_UPSTREAM + ((RIVER_STAGE_DOWNSTREAM - RIVER_STAGE_UPSTREAM) * col) / (NX - 1);
-      bottom[p] = round(trend - d.thickness[p]! + 3 + 10 * offAxis ** 4, 2);
+      bottom[p] = round(trend - d.thickness[p]! + 3 + 16 * offAxis ** 4, 2);
     }
   }
   writeFileSync(join(outDir, 'bottom.tif'), encodeFloat32GeoTiff(grid, bottom, { description: 'Talvorin valley demo (invented data): bedrock floor of the valley fill, m' }));

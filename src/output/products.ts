@@ -115,7 +115,8 @@ export function solveProducts(result: SolveResult, options: ProductOptions = {},
 
   const mapInput: MapInput = {
     grid: model.grid,
-    values: shownHead,
+    // The map keeps the (below-bottom) heads of dry cells so that their hatched layer has cells to draw on.
+    values: result.head,
     quantity: 'head',
     units: model.units,
     title: model.title,

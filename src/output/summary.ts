@@ -239,6 +239,17 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
     `Solver   ${s.method}: ${s.converged ? 'converged' : `NOT converged (${s.stopReason})`} in ${s.iterations} iterations, ` +
       `relative residual ${s.relativeResidual.toExponential(2)} (setup ${s.setupSeconds.toFixed(2)} s, solve ${s.seconds.toFixed(2)} s)`,
   );
+  const outer = summary.solver as { outerIterations?: number; outerStopReason?: string; innerIterationsTotal?: number };
+  if (outer.outerIterations !== undefined) {
+    out.push(`Outer    ${outer.outerIterations} outer iterations (${outer.outerStopReason}), ${outer.innerIterationsTotal} inner iterations in all`);
+  }
+  const aquifer = (summary as { aquifer?: { type: string; dryCells: number; confinedCells?: number; saturatedThickness: { min: number; max: number } } }).aquifer;
+  if (aquifer) {
+    const confined = aquifer.confinedCells === undefined ? '' : `, ${aquifer.confinedCells.toLocaleString('en-US')} confined`;
+    out.push(
+      `Aquifer  ${aquifer.type}: ${aquifer.dryCells.toLocaleString('en-US')} dry cell(s)${confined}; saturated thickness ${num(aquifer.saturatedThickness.min, 2)} to ${num(aquifer.saturatedThickness.max, 2)} ${L}`,
+    );
+  }
   out.push(`Head     min ${num(summary.head.min, 3)} ${L}, max ${num(summary.head.max, 3)} ${L}`);
   out.push(`Budget   (${L}³/${T})`);
   const budgetRows = [['term', 'inflow', 'outflow']];
