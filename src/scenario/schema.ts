@@ -102,10 +102,11 @@ export const aquiferSchema = strict({
     if (aquifer.initialHead !== undefined) ctx.addIssue({ code: 'custom', path: ['initialHead'], message: 'applies only to unconfined and convertible aquifers (a confined solve needs no starting heads)' });
     return;
   }
+  const an = type === 'unconfined' ? 'an' : 'a';
   if (aquifer.thickness !== undefined) {
-    ctx.addIssue({ code: 'custom', path: ['thickness'], message: `must not be given for an ${type} aquifer: its saturated thickness comes from the heads, top and bottom` });
+    ctx.addIssue({ code: 'custom', path: ['thickness'], message: `must not be given for ${an} ${type} aquifer: its saturated thickness comes from the heads, top and bottom` });
   }
-  if (aquifer.bottom === undefined) ctx.addIssue({ code: 'custom', path: ['bottom'], message: `is required for an ${type} aquifer` });
+  if (aquifer.bottom === undefined) ctx.addIssue({ code: 'custom', path: ['bottom'], message: `is required for ${an} ${type} aquifer` });
   if (type === 'convertible' && aquifer.top === undefined) ctx.addIssue({ code: 'custom', path: ['top'], message: 'is required for a convertible aquifer' });
 });
 

@@ -62,6 +62,13 @@ describe('unconfined aquifer: Dupuit-Forchheimer flow with recharge', () => {
     for (let p = 0; p < low.head.length; p++) worst = Math.max(worst, Math.abs(low.head[p]! - high.head[p]!));
     // The fixed point is unique (Dupuit's equation is linear in h^2); both runs stop within the outer tolerance of it.
     expect(worst).toBeLessThan(1e-5);
+    // Rewetting: from a start below the bottom everywhere (every cell dry) the same heads are reached.
+    const dry = solveModel(dupuitStrip(31, 20, 15, 10, 0, 5, 0.001, { initialHead: -1 }));
+    expect(resultProblem(dry)).toBeNull();
+    expect(dry.outer.iterations).toBeGreaterThan(2);
+    let worstDry = 0;
+    for (let p = 0; p < low.head.length; p++) worstDry = Math.max(worstDry, Math.abs(dry.head[p]! - high.head[p]!));
+    expect(worstDry).toBeLessThan(1e-5);
     // And the starts really differed: both runs iterated.
     expect(low.outer.iterations).toBeGreaterThan(2);
     expect(high.outer.iterations).toBeGreaterThan(2);
