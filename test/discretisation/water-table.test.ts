@@ -3,7 +3,12 @@
  * published solutions of the Dupuit-Forchheimer equations.
  */
 import { describe, expect, it } from 'vitest';
-import { solveModel } from '../../src/pipeline.js';
+import { analyseSolution, solveModel } from '../../src/pipeline.js';
+import { assembleSystem } from '../../src/discretisation/assemble.js';
+import { DEFAULT_OUTER, solveOuter } from '../../src/discretisation/outerLoop.js';
+import { closeSession, openSession, runInline } from '../../src/executor/plan.js';
+import { exitCodeFor } from '../../src/errors.js';
+import { outerConvergenceCsv } from '../../src/output/summary.js';
 import { resultProblem } from '../../src/analysis/result.js';
 import { fixedColumn, makeModel, testGrid, well } from '../helpers/model.js';
 import type { ModelInput } from '../../src/scenario/types.js';
@@ -247,5 +252,29 @@ describe('a well that dries its cell', () => {
     const wells = result.budget.terms.find((t) => t.term === 'wells')!;
     expect(wells.outflow).toBeCloseTo(-rate - w.undeliveredRate, 6);
     expect(Math.abs(result.budget.discrepancyPercent)).toBeLessThan(0.01);
+  });
+});
+
+describe('an outer iteration that does not settle', () => {
+  it('is exit 3 with its last iterations and a suggestion, never a result', () => {
+    const model = dupuitStrip(31, 20, 15, 10, 0, 5, 0.001, { initialHead: 40 });
+    const system = assembleSystem(model);
+    const answer = runInline(
+      (function* () {
+        const session = yield* openSession(system.operator, { method: 'auto' });
+        // Two outer iterations cannot settle from a start 25 m too high.
+        const a = yield* solveOuter(system, session, { tolerance: 1e-12, maxIterations: 1000 }, { ...DEFAULT_OUTER, maxOuterIterations: 2 });
+        yield* closeSession(session);
+        return a;
+      })(),
+    );
+    expect(answer.outer.stopReason).toBe('iteration-limit');
+    const result = analyseSolution(model, system, answer.x, answer.stats);
+    result.outer = answer.outer;
+    const problem = resultProblem(result)!;
+    expect(exitCodeFor(problem)).toBe(3);
+    expect(problem.message).toMatch(/did not settle \(iteration-limit\) after 2 linear solves; last iterations:/);
+    expect(problem.detail.hint).toMatch(/initialHead/);
+    expect(outerConvergenceCsv(answer.outer).trim().split('\n')).toHaveLength(3);
   });
 });
