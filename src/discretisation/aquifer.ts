@@ -87,14 +87,15 @@ export function buildWaterTable(
 
 /**
  * The fraction of a well's rate a cell can deliver at head h: 1 while the cell is more than 1 % saturated (depth
- * above the smoothing depth e), falling with the smoothed thickness to DRY_FRACTION when the cell is dry. The rest is
+ * above the smoothing depth e), falling with the smoothed thickness to 0 when the cell is dry. The rest is
  * the rate the well could not deliver, which is reported (never a silent rate reduction).
  */
 export function deliveryFraction(table: WaterTable, p: number, h: number): number {
   const t = table.top[p]!;
   const d = (h < t ? h : t) - table.bottom[p]!;
   const e = table.smoothing[p]!;
-  return d >= e ? 1 : smoothedThickness(d, e) / e;
+  // Not the floored thickness: a dry cell delivers nothing (with the floor its head would swing by Q / C_floor).
+  return d >= e ? 1 : d <= 0 ? 0 : (d * d * (2 * e - d)) / (e * e * e);
 }
 
 /** d(deliveryFraction)/dh at head h (0 above the smoothing depth, in a confined cell and in a dry cell). */
