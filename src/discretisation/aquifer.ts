@@ -109,9 +109,12 @@ export function deliverySlope(table: WaterTable, p: number, h: number): number {
   return (d * (4 * e - 3 * d)) / (e * e * e);
 }
 
+/** Fraction of its saturated depth a cell keeps at least in one outer iteration (see limitFall; measured). */
+export const FALL_LIMIT = 0.1;
+
 /**
  * Limit the fall of the water table in one outer iteration (common practice for unconfined Picard iterations): a
- * cell more than 1 % saturated may lose at most half of its saturated depth, so a cell reaches its bottom through
+ * cell more than 1 % saturated may lose at most 90 % (1 - FALL_LIMIT) of its saturated depth, so a cell reaches its bottom through
  * the smoothed zone instead of jumping from wet to deep below it (which makes the next linear system nearly singular
  * and the iteration cycle). `next` is changed in place; returns the number of cells limited.
  */
@@ -123,7 +126,7 @@ export function limitFall(table: WaterTable, head: Float64Array, next: Float64Ar
     const z = bottom[p]!;
     const d = head[p]! - z;
     if (d <= smoothing[p]!) continue;
-    const lowest = z + 0.5 * d;
+    const lowest = z + FALL_LIMIT * d;
     if (next[p]! < lowest) {
       next[p] = lowest;
       limited++;
