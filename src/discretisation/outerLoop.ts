@@ -104,11 +104,19 @@ export function* solveOuter(
   const { nx, ny } = system.grid;
   const flowTolerance = Math.max(settings.flowTolerance ?? 1e-7, 10 * linear.tolerance);
   // The heads the system is linearised about; x starts there (a warm start for every inner solve).
-  let head: Float64Array = Float64Array.from(system.startHead);
+  let head = Float64Array.from(system.startHead);
   let x: Float64Array = new Float64Array(n);
   for (let p = 0; p < n; p++) if (unknown[p]) x[p] = head[p]! - datum;
-  const next = new Float64Array(n);
+  let next = new Float64Array(n);
   const work = new Float64Array(n);
+  // Faces between two unknowns (the operator's couplings), found once.
+  const eastCoupled = new Uint8Array(n);
+  const southCoupled = new Uint8Array(n);
+  for (let p = 0; p < n; p++) {
+    if (!unknown[p]) continue;
+    if ((p + 1) % nx !== 0 && unknown[p + 1]) eastCoupled[p] = 1;
+    if (p + nx < n && unknown[p + nx]) southCoupled[p] = 1;
+  }
   // Conductances the solver was last set up on (water tables): the measure of how far the operator moved.
   const builtEast = waterTable ? Float64Array.from(system.conductanceEast) : null;
   const builtSouth = waterTable ? Float64Array.from(system.conductanceSouth) : null;
@@ -162,7 +170,9 @@ export function* solveOuter(
       if (size > maxHeadChange) maxHeadChange = size;
     }
     const stepDamping = waterTable ? factor : 1;
-    [head, x] = [Float64Array.from(next), answer.x];
+    // Swap the head buffers (no allocation per iteration).
+    [head, next] = [next, head];
+    x = answer.x;
     if (stepDamping !== 1 || limited > 0) for (let p = 0; p < n; p++) if (unknown[p]) x[p] = head[p]! - datum;
 
     let stateChanges = 0;
@@ -171,10 +181,11 @@ export function* solveOuter(
     if (waterTable) {
       dryCells = updateSaturation(waterTable, head, active);
       waterTableConductances(waterTable, nx, ny, system.dx, system.dy, active, system.conductanceEast, system.conductanceSouth);
+      const ce = system.conductanceEast;
+      const cs = system.conductanceSouth;
       for (let p = 0; p < n; p++) {
-        if (!unknown[p]) continue;
-        if (unknown[p + 1] && (p + 1) % nx !== 0) east[p] = system.conductanceEast[p]!;
-        if (p + nx < n && unknown[p + nx]) south[p] = system.conductanceSouth[p]!;
+        if (eastCoupled[p]) east[p] = ce[p]!;
+        if (southCoupled[p]) south[p] = cs[p]!;
       }
     }
     const relinearised = linearise(system, unknown, head);

@@ -53,10 +53,11 @@ export class InlineSession implements SolverSession {
 
   /** See SolverSession.setOperator. Returns true when the solver was set up again. */
   setOperatorNow(bands: OperatorBands, rebuild: boolean): boolean {
-    // A session on the caller's operator may be handed its own bands: set() copies correctly even then.
-    this.operator.diag.set(bands.diag);
-    this.operator.east.set(bands.east);
-    this.operator.south.set(bands.south);
+    // A session on the caller's operator (inline) is handed its own bands: nothing to copy then.
+    const op = this.operator;
+    if (bands.diag !== op.diag) op.diag.set(bands.diag);
+    if (bands.east !== op.east) op.east.set(bands.east);
+    if (bands.south !== op.south) op.south.set(bands.south);
     // Only the conjugate-gradient methods keep an older preconditioner: they apply the operator itself each step.
     if (rebuild || !this.solver.method.startsWith('pcg')) {
       ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(this.operator, this.choice));
