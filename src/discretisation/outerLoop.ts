@@ -136,14 +136,7 @@ export function* solveOuter(
     const answer: LinearAnswer = yield* solveLinear(session, { ...linear, tolerance: innerTolerance, rhs: system.rhs, x });
     innerTotal += answer.stats.iterations;
     headsFromSolution(system, answer.x, next);
-    let maxHeadChange = 0;
-    let rawChange = 0;
-    for (let p = 0; p < n; p++) {
-      if (!unknown[p]) continue;
-      const step = next[p]! - head[p]!;
-      const size = Math.abs(step);
-      if (size > rawChange) rawChange = size;
-    }
+    const rawChange = largestChange(next, head, unknown);
     // Damping (water tables): halve when the step grows, recover towards 1 while it shrinks.
     let limited = 0;
     let factor = 1;
@@ -160,20 +153,16 @@ export function* solveOuter(
       }
       lastRatio = ratio;
       lastChange = rawChange;
-      if (factor !== 1) for (let p = 0; p < n; p++) if (unknown[p]) next[p] = head[p]! + factor * (next[p]! - head[p]!);
+      if (factor !== 1) scaleStep(next, head, unknown, factor);
       limited = limitFall(waterTable, head, next, unknown);
       lastLimited = limited;
     }
-    for (let p = 0; p < n; p++) {
-      if (!unknown[p]) continue;
-      const size = Math.abs(next[p]! - head[p]!);
-      if (size > maxHeadChange) maxHeadChange = size;
-    }
+    const maxHeadChange = waterTable && (factor !== 1 || limited > 0) ? largestChange(next, head, unknown) : rawChange;
     const stepDamping = waterTable ? factor : 1;
     // Swap the head buffers (no allocation per iteration).
     [head, next] = [next, head];
     x = answer.x;
-    if (stepDamping !== 1 || limited > 0) for (let p = 0; p < n; p++) if (unknown[p]) x[p] = head[p]! - datum;
+    if (stepDamping !== 1 || limited > 0) unknownsFromHeads(head, unknown, datum, x);
 
     let stateChanges = 0;
     for (const term of nonlinear) stateChanges += term.updateState(head);
@@ -181,12 +170,7 @@ export function* solveOuter(
     if (waterTable) {
       dryCells = updateSaturation(waterTable, head, active);
       waterTableConductances(waterTable, nx, ny, system.dx, system.dy, active, system.conductanceEast, system.conductanceSouth);
-      const ce = system.conductanceEast;
-      const cs = system.conductanceSouth;
-      for (let p = 0; p < n; p++) {
-        if (eastCoupled[p]) east[p] = ce[p]!;
-        if (southCoupled[p]) south[p] = cs[p]!;
-      }
+      copyCouplings(system.conductanceEast, system.conductanceSouth, eastCoupled, southCoupled, east, south);
     }
     const relinearised = linearise(system, unknown, head);
     operator.diag.set(relinearised.diag);
@@ -207,14 +191,9 @@ export function* solveOuter(
     let rebuilt = false;
     if (!stopReason) {
       if (waterTable) {
-        let moved = 0;
-        let total = 0;
         const ce = system.conductanceEast;
         const cs = system.conductanceSouth;
-        for (let p = 0; p < n; p++) {
-          moved += Math.abs(ce[p]! - builtEast![p]!) + Math.abs(cs[p]! - builtSouth![p]!);
-          total += builtEast![p]! + builtSouth![p]!;
-        }
+        const { moved, total } = conductanceShift(ce, cs, builtEast!, builtSouth!);
         // Also when the kept set-up has become a poor preconditioner (local changes near wells move little of the sum).
         rebuilt = moved > REBUILD_FRACTION * total || answer.stats.iterations > REBUILD_ITERATIONS;
         if (rebuilt) {
@@ -243,4 +222,46 @@ function relativeResidual(operator: FlowSystem['operator'], x: Float64Array, b: 
     b2 += b[p]! * b[p]!;
   }
   return b2 > 0 ? Math.sqrt(r2 / b2) : Math.sqrt(r2);
+}
+
+// The hot loops of the outer iteration live in plain functions: V8 optimises loops inside generators less well.
+
+/** Largest |a - b| over the unknown cells. */
+function largestChange(a: Float64Array, b: Float64Array, unknown: Uint8Array): number {
+  let largest = 0;
+  for (let p = 0; p < a.length; p++) {
+    if (!unknown[p]) continue;
+    const size = Math.abs(a[p]! - b[p]!);
+    if (size > largest) largest = size;
+  }
+  return largest;
+}
+
+/** next = head + factor (next - head) on the unknown cells. */
+function scaleStep(next: Float64Array, head: Float64Array, unknown: Uint8Array, factor: number): void {
+  for (let p = 0; p < next.length; p++) if (unknown[p]) next[p] = head[p]! + factor * (next[p]! - head[p]!);
+}
+
+/** Sum of |C - C_built| and of C_built over both face directions. */
+function conductanceShift(ce: Float64Array, cs: Float64Array, be: Float64Array, bs: Float64Array): { moved: number; total: number } {
+  let moved = 0;
+  let total = 0;
+  for (let p = 0; p < ce.length; p++) {
+    moved += Math.abs(ce[p]! - be[p]!) + Math.abs(cs[p]! - bs[p]!);
+    total += be[p]! + bs[p]!;
+  }
+  return { moved, total };
+}
+
+/** The operator's couplings from the conductances, on the faces between two unknowns. */
+function copyCouplings(ce: Float64Array, cs: Float64Array, eastCoupled: Uint8Array, southCoupled: Uint8Array, east: Float64Array, south: Float64Array): void {
+  for (let p = 0; p < ce.length; p++) {
+    if (eastCoupled[p]) east[p] = ce[p]!;
+    if (southCoupled[p]) south[p] = cs[p]!;
+  }
+}
+
+/** x = h - datum on the unknown cells. */
+function unknownsFromHeads(head: Float64Array, unknown: Uint8Array, datum: number, x: Float64Array): void {
+  for (let p = 0; p < head.length; p++) if (unknown[p]) x[p] = head[p]! - datum;
 }
