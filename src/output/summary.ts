@@ -235,11 +235,13 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
   const out: string[] = [];
   out.push(`piezomap: ${summary.title}`);
   out.push(`Grid     ${g.nx} x ${g.ny} cells of ${num(g.dx)} x ${num(g.dy)} ${L}, ${g.crs}; ${g.activeCells.toLocaleString('en-US')} active, ${g.fixedHeadCells.toLocaleString('en-US')} fixed-head`);
+  const outer = summary.solver as { outerIterations?: number; outerStopReason?: string; innerIterationsTotal?: number };
+  // With an outer iteration the last inner solve's count says little: the last one often needs none.
+  const count = outer.outerIterations === undefined ? `${s.iterations} iterations` : `${outer.innerIterationsTotal} inner iterations`;
   out.push(
-    `Solver   ${s.method}: ${s.converged ? 'converged' : `NOT converged (${s.stopReason})`} in ${s.iterations} iterations, ` +
+    `Solver   ${s.method}: ${s.converged ? 'converged' : `NOT converged (${s.stopReason})`} in ${count}, ` +
       `relative residual ${s.relativeResidual.toExponential(2)} (setup ${s.setupSeconds.toFixed(2)} s, solve ${s.seconds.toFixed(2)} s)`,
   );
-  const outer = summary.solver as { outerIterations?: number; outerStopReason?: string; innerIterationsTotal?: number };
   if (outer.outerIterations !== undefined) {
     out.push(`Outer    ${outer.outerIterations} outer iterations (${outer.outerStopReason}), ${outer.innerIterationsTotal} inner iterations in all`);
   }
