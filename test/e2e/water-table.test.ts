@@ -9,7 +9,9 @@ import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 import { solveScenarioFile } from '../../src/pipeline.js';
-import { writeSolveResults } from '../../src/output/solveFiles.js';
+import { resultBundle, writeSolveResults } from '../../src/output/solveFiles.js';
+import { loadScenario } from '../../src/scenario/load.js';
+import { solveModel } from '../../src/pipeline.js';
 
 const gdalPresent = spawnSync('gdalinfo', ['--version'], { encoding: 'utf8' }).status === 0;
 const onCi = process.env.CI === 'true';
@@ -53,4 +55,24 @@ describe.runIf(gdalPresent || onCi)('the unconfined demo, end to end', () => {
     expect(thickness.max).toBeGreaterThan(20);
     expect(thickness.max).toBeLessThan(60);
   });
+});
+
+describe('the unconfined demo through the worker-thread executor', () => {
+  it('gives the same head.tif, saturated-thickness.tif and convergence.csv as the library in-thread', async () => {
+    // The CLI's solve runs in a worker thread, with the operator updates of the outer iteration sent to it.
+    const out = mkdtempSync(join(tmpdir(), 'piezomap-water-table-cli-'));
+    try {
+      const bin = resolve(__dirname, '../../bin/piezomap.js');
+      const run = spawnSync(process.execPath, [bin, 'solve', demo, '-o', join(out, 'r'), '--quiet', '--no-maps'], { encoding: 'utf8' });
+      expect(run.status, run.stderr).toBe(0);
+      const { model } = await loadScenario(demo);
+      const { files } = resultBundle(solveModel(model), '', { maps: false });
+      for (const name of ['head.tif', 'saturated-thickness.tif', 'convergence.csv']) {
+        const mine = files.find((f) => f.name === name)!;
+        expect(Buffer.compare(Buffer.from(mine.bytes), readFileSync(join(out, 'r', name))), name).toBe(0);
+      }
+    } finally {
+      rmSync(out, { recursive: true, force: true });
+    }
+  }, 120_000);
 });
