@@ -187,3 +187,20 @@ export function benchCase(size: number, seed = 20240601): BenchCase {
   };
   return { model, size };
 }
+
+/** Bottom of the unconfined benchmark case: 55 m +- 8 m (correlated, sigma 24 cells), kept in [38, 70] m. */
+export const UNCONFINED_BOTTOM = { mean: 55, sd: 8, min: 38, max: 70 } as const;
+
+/**
+ * The benchmark case as an unconfined aquifer (issue 13): the same conductivity, fixed heads and wells, the aquifer
+ * resting on a smooth invented bottom raster, so the saturated thickness between the 90-100 m heads is about 20-60 m.
+ */
+export function unconfinedBenchCase(size: number, seed = 20240601): BenchCase {
+  const base = benchCase(size, seed);
+  const { nx, ny } = base.model.grid;
+  const z = correlatedField(nx, ny, 24, seed + 4);
+  const bottom = new Float64Array(nx * ny);
+  const b = UNCONFINED_BOTTOM;
+  for (let p = 0; p < bottom.length; p++) bottom[p] = Math.min(b.max, Math.max(b.min, b.mean + b.sd * z[p]!));
+  return { size, model: { ...base.model, title: `unconfined benchmark ${size}x${size}`, aquiferType: 'unconfined', aquiferBottom: bottom } };
+}

@@ -417,6 +417,11 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   }
   solveCase('json-type-error', 'thickness as true', aquifer('k.tif', { thickness: true }), 2, /aquifer\.thickness/);
   solveCase('json-negative-thickness', 'a negative thickness', aquifer('k.tif', { thickness: -5 }), 2, /aquifer\.thickness/);
+  // Water-table aquifers (aquifer.type): thickness comes from the heads, top and bottom.
+  solveCase('unconfined-with-thickness', 'an unconfined aquifer given a thickness', { aquifer: { type: 'unconfined', conductivity: 'k.tif', thickness: 20, bottom: 50 } }, 2, /aquifer\.thickness.*must not be given for an unconfined aquifer/);
+  solveCase('unconfined-without-bottom', 'an unconfined aquifer without a bottom', { aquifer: { type: 'unconfined', conductivity: 'k.tif' } }, 2, /aquifer\.bottom.*required for an unconfined aquifer/);
+  solveCase('convertible-without-top', 'a convertible aquifer without a top', { aquifer: { type: 'convertible', conductivity: 'k.tif', bottom: 50 } }, 2, /aquifer\.top.*required for a convertible aquifer/);
+  solveCase('top-below-bottom', 'an aquifer top below its bottom', { aquifer: { type: 'convertible', conductivity: 'k.tif', top: 40, bottom: 50 } }, 2, /aquifer\.top 40 is not above aquifer\.bottom 50 at row 0, col 0/);
   solveCase('json-unknown-key', 'a misspelt key', { recharj: 0.1 }, 2, /recharj.*did you mean "recharge"/);
   solveCase('json-null-number', 'a head that a script computed as Infinity (JSON.stringify writes null)', { fixedHeads: [{ edge: 'west', head: 1e400 }, { edge: 'east', head: 45 }] }, 2, /fixedHeads\[0\]\.head/);
   rawCase('json-huge-number-text', 'a head written as 1e999', valid.replace('"head": 50', '"head": 1e999'), /fixedHeads\[0\]\.head/);

@@ -392,11 +392,72 @@ async function main(): Promise<void> {
     riverCells += d.riverCells[p]!;
   }
   writeFileSync(join(outDir, 'README.md'), readme(activeCells, riverCells, result.head, ditchLevels));
+  await writeUnconfinedValley(outDir, d, wells, receptors, at(pw3, -3, -7));
   process.stdout.write(
     `make-demo-data: wrote conductivity.tif, thickness.tif, river.geojson, field_drain.geojson, gravel_pit.geojson, valley.json, README.md to ${outDir}\n` +
       `  ${activeCells} active cells, ${riverCells} river cells; baseline head ${range(result.head)} m; ` +
       `observed heads ${observed.join(', ')} m\n`,
   );
+}
+
+/**
+ * The second demo: the same valley fill as an unconfined aquifer on a bedrock floor (bottom.tif), for the water-table
+ * solve (aquifer.type "unconfined"). The floor lies 3 m above the confined demo's base along the axis and rises
+ * towards the valley sides, so the saturated thickness is about 30 m in the channel and a few metres at the margins,
+ * where the expanded abstraction dries cells.
+ */
+async function writeUnconfinedValley(
+  outDir: string,
+  d: DemoRasters,
+  wells: Array<{ id: string; x: number; y: number; rate: number }>,
+  receptors: Array<{ id: string; x: number; y: number }>,
+  pw3: { x: number; y: number },
+): Promise<void> {
+  const n = NX * NY;
+  const bottom = new Float64Array(n).fill(Number.NaN);
+  for (let row = 0; row < NY; row++) {
+    for (let col = 0; col < NX; col++) {
+      const p = row * NX + col;
+      if (!d.active[p]) continue;
+      const offAxis = (row - valleyAxis(col)) / valleyHalfWidth(col);
+      // the water table falls along the valley roughly as the river does
+      const trend = RIVER_STAGE_UPSTREAM + ((RIVER_STAGE_DOWNSTREAM - RIVER_STAGE_UPSTREAM) * col) / (NX - 1);
+      bottom[p] = round(trend - d.thickness[p]! + 3 + 16 * offAxis ** 4, 2);
+    }
+  }
+  writeFileSync(join(outDir, 'bottom.tif'), encodeFloat32GeoTiff(grid, bottom, { description: 'Talvorin valley demo (invented data): bedrock floor of the valley fill, m' }));
+  const scenario = {
+    title: 'Talvorin valley fill, unconfined (invented demo), baseline',
+    units: { length: 'm', time: 'd' },
+    aquifer: { type: 'unconfined', conductivity: 'conductivity.tif', bottom: 'bottom.tif', anisotropy: 1.0 },
+    fixedHeads: [
+      { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
+      { shape: 'gravel_pit.geojson', headProperty: 'level', name: 'gravel-pit' },
+    ],
+    // The same river as the confined demo: a head-dependent boundary with its bed resistance and bed bottom.
+    headDependent: [
+      { name: 'river', kind: 'river', shape: 'river.geojson', headProperty: 'stage', bottomProperty: 'bed', leakance: RIVER_LEAKANCE, width: RIVER_WIDTH },
+    ],
+    recharge: RECHARGE,
+    wells,
+    receptors,
+    solver: { method: 'auto', tolerance: 1e-10 },
+    variants: [
+      {
+        name: 'expanded',
+        title: 'Talvorin valley fill, unconfined (invented demo), expanded abstraction',
+        wells: [
+          { id: 'PW-1', rate: -1600 },
+          { id: 'PW-3', ...pw3, rate: -1500 },
+        ],
+      },
+    ],
+  };
+  const scenarioPath = join(outDir, 'valley-unconfined.json');
+  writeFileSync(scenarioPath, `${JSON.stringify(scenario, null, 2)}\n`);
+  const result = await solveScenarioFile(scenarioPath);
+  if (!result.stats.converged || result.outer.stopReason !== 'settled') throw new Error('demo generator: the unconfined baseline did not settle');
+  process.stdout.write(`make-demo-data: wrote bottom.tif, valley-unconfined.json (${result.outer.iterations} outer iterations)\n`);
 }
 
 function range(values: Float64Array): string {

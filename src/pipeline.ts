@@ -156,7 +156,7 @@ export function analyseSolution(
     system,
     head,
     stats,
-    outer: { iterations: 1, stopReason: 'linear', history: [] },
+    outer: { iterations: 1, stopReason: 'linear', history: [], innerIterations: stats.iterations },
     budget,
     wells: wellResults(system, model.wells, head),
     observations,

@@ -57,10 +57,19 @@ export function resultProblem(result: SolveResult): PiezomapError | null {
     );
   }
   if (outer.stopReason === 'cycle' || outer.stopReason === 'iteration-limit') {
+    const waterTable = result.system.waterTable !== null;
+    const last = outer.history.slice(-3).map(
+      (h) => `largest head change ${h.maxHeadChange.toExponential(2)}, flow residual ${h.flowResidual.toExponential(2)}, ${h.dryCells} dry cell(s), damping ${h.damping}`,
+    );
     return new PiezomapError(
       'solver',
-      `the outer iteration did not settle (${outer.stopReason}) after ${outer.iterations} linear solves`,
-      { hint: 'check the head-dependent terms for cells that switch back and forth' },
+      `the outer iteration did not settle (${outer.stopReason}) after ${outer.iterations} linear solves` +
+        (last.length ? `; last iterations:\n  ${last.join('\n  ')}\n  (every outer iteration is in convergence.csv)` : ''),
+      {
+        hint: waterTable
+          ? 'cells keep drying and rewetting or the pumping exceeds what the aquifer can give: try aquifer.initialHead nearer the expected water table, lower the well rates near thin saturated zones, or check aquifer.bottom'
+          : 'check the head-dependent terms for cells that switch back and forth',
+      },
     );
   }
   if (Math.abs(budget.discrepancyPercent) > BUDGET_DISCREPANCY_LIMIT_PERCENT) {

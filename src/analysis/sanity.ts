@@ -231,8 +231,10 @@ export function headWarnings(model: ModelInput, system: FlowSystem, head: Float6
       );
     }
   }
+  // Water-table aquifers model the drained and dry states themselves (dry cells are counted and reported there).
+  const confined = (model.aquiferType ?? 'confined') === 'confined';
   const bottom = model.aquiferBottom;
-  if (bottom !== undefined) {
+  if (bottom !== undefined && confined) {
     const s = survey((p) => at(bottom, p) - head[p]!);
     if (s.count > 0) {
       warnings.push(
@@ -241,7 +243,7 @@ export function headWarnings(model: ModelInput, system: FlowSystem, head: Float6
     }
   }
   const top = model.aquiferTop;
-  if (top !== undefined) {
+  if (top !== undefined && confined) {
     const s = survey((p) => at(top, p) - head[p]!);
     if (s.count > 0) {
       warnings.push(

@@ -115,7 +115,7 @@ export function prepareComparison(
   if (!assembled) options.onProgress?.({ stage: 'assemble', message: 'assembling the baseline' });
   const baseSystem = assembled ?? assembleSystem(baseline);
   // Nonlinear terms change the operator during the solve, so their systems are never shared.
-  const shareable = !baseSystem.terms.some((t) => t.nonlinear);
+  const shareable = !baseSystem.terms.some((t) => t.nonlinear) && baseSystem.waterTable === null;
   locateObservations(baseSystem, baseline.observations);
   const receptors = baseline.receptors ?? [];
   const receptorCells = locateReceptors(baseSystem, receptors);

@@ -5,6 +5,7 @@ import { TERM_KINDS } from './terms/registry.js';
 import { anchorMask, type FlowTerm, type TermContext } from './terms/types.js';
 import type { ModelInput } from '../scenario/types.js';
 import { GridOperator } from '../solvers/operator.js';
+import { buildWaterTable, defaultWaterTableStart, updateSaturation, waterTableConductances, type WaterTable } from './aquifer.js';
 
 /**
  * The discretised flow problem of one scenario: the physical conductances (for budgets and fluxes), the flow
@@ -38,6 +39,13 @@ export interface FlowSystem {
    * leave visible head errors. datum = mean prescribed head.
    */
   datum: number;
+  /**
+   * Unconfined or convertible aquifers: the head-dependent saturated thickness (./aquifer.ts), null for confined.
+   * Its conductances are in conductanceEast/South, updated in place by the outer iteration.
+   */
+  waterTable: WaterTable | null;
+  /** Heads the system is linearised about before any solve (and the outer iteration's start). */
+  startHead: Float64Array;
   operator: GridOperator;
   /** Right-hand side for x = h - datum; zero on identity rows. */
   rhs: Float64Array;
@@ -144,6 +152,20 @@ export function assembleSystem(model: ModelInput): FlowSystem {
   const datum = fixedCount > 0 ? headSum / fixedCount : 0;
   context.datum = datum;
 
+  // Water-table aquifers: conductances from the saturated thickness at the starting heads (replacing the above).
+  const type = model.aquiferType ?? 'confined';
+  let waterTable: WaterTable | null = null;
+  let initial = startingHeads(fixedHead, active, datum);
+  if (type !== 'confined') {
+    initial = model.initialHead === undefined
+      ? defaultWaterTableStart(active, fixed, fixedHead, datum, model.aquiferBottom!, model.aquiferTop)
+      : startFromField(model.initialHead, fixedHead, active);
+    waterTable = buildWaterTable(type, conductivity, anisotropy, model.aquiferBottom!, model.aquiferTop, active, initial)!;
+    updateSaturation(waterTable, initial, active);
+    waterTableConductances(waterTable, nx, ny, dx, dy, active, conductanceEast, conductanceSouth);
+  }
+  context.waterTable = waterTable;
+
   const others = TERM_KINDS.filter((k) => !k.dirichlet).flatMap((k) => k.build(model, context));
   // Budget order: the registry's, Dirichlet kinds included where the registry lists them.
   const terms = TERM_KINDS.flatMap((k) => (k.dirichlet ? dirichlet.filter((t) => t.kind === k.kind) : others.filter((t) => t.kind === k.kind)));
@@ -167,7 +189,7 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     if (unknown[p + 1] && (p + 1) % nx !== 0) east[p] = conductanceEast[p]!;
     if (p + nx < n && unknown[p + nx]) south[p] = conductanceSouth[p]!;
   }
-  const base: Omit<FlowSystem, 'operator' | 'rhs'> = {
+  const base: Omit<FlowSystem, 'operator' | 'rhs' | 'startHead'> = {
     grid,
     dx,
     dy,
@@ -180,11 +202,18 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     conductanceSouth,
     terms,
     datum,
+    waterTable,
     counts: { cells: n, active: activeCount, fixed: fixedCount, unknowns: unknownCount, fixedOnInactive: dirichlet.map((t) => t.ignoredCells), regions },
   };
-  const initial = startingHeads(fixedHead, active, datum);
   const { diag, rhs } = linearise(base, unknown, initial);
-  return { ...base, operator: new GridOperator(nx, ny, diag, east, south, unknown), rhs };
+  return { ...base, startHead: initial, operator: new GridOperator(nx, ny, diag, east, south, unknown), rhs };
+}
+
+/** Starting heads from a given field (aquifer.initialHead): prescribed cells keep their heads, inactive NaN. */
+function startFromField(field: Float64Array | number, fixedHead: Float64Array, active: Uint8Array): Float64Array {
+  const head = new Float64Array(fixedHead.length);
+  for (let p = 0; p < head.length; p++) head[p] = !active[p] ? NaN : fixedHead[p] === fixedHead[p] ? fixedHead[p]! : fieldAt(field, p);
+  return head;
 }
 
 /** Heads to linearise about before any solve: the prescribed heads, the datum elsewhere on the active area. */
@@ -266,6 +295,7 @@ export function withSources(base: FlowSystem, model: ModelInput): FlowSystem {
     datum: base.datum,
     conductanceEast: base.conductanceEast,
     conductanceSouth: base.conductanceSouth,
+    waterTable: base.waterTable,
   };
   const terms = TERM_KINDS.flatMap((k) => (k.rhsOnly ? k.build(model, context) : base.terms.filter((t) => t.kind === k.kind)));
   const system = { ...base, grid: model.grid, terms };

@@ -2,7 +2,7 @@
 import { chooseAutoMethod, createSolver } from '../solvers/registry.js';
 import { GridOperator } from '../solvers/operator.js';
 import type { Solver, StencilOperator } from '../solvers/types.js';
-import type { Executor, LinearAnswer, LinearSolve, SolverChoice, SolverSession } from './types.js';
+import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, SolverSession } from './types.js';
 
 const now = () => performance.now() / 1000;
 
@@ -49,6 +49,26 @@ export class InlineSession implements SolverSession {
     const op = this.operator;
     this.operator = new GridOperator(op.nx, op.ny, Float64Array.from(diag), op.east, op.south, op.unknown);
     ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(this.operator, this.choice));
+  }
+
+  /** See SolverSession.setOperator. Returns true when the solver was set up again. */
+  setOperatorNow(bands: OperatorBands, rebuild: boolean): boolean {
+    // A session on the caller's operator (inline) is handed its own bands: nothing to copy then.
+    const op = this.operator;
+    if (bands.diag !== op.diag) op.diag.set(bands.diag);
+    if (bands.east !== op.east) op.east.set(bands.east);
+    if (bands.south !== op.south) op.south.set(bands.south);
+    // Only the conjugate-gradient methods keep an older preconditioner: they apply the operator itself each step.
+    if (rebuild || !this.solver.method.startsWith('pcg')) {
+      ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(this.operator, this.choice));
+      return true;
+    }
+    return false;
+  }
+
+  setOperator(bands: OperatorBands, rebuild: boolean): Promise<void> {
+    this.setOperatorNow(bands, rebuild);
+    return Promise.resolve();
   }
 
   solve(request: LinearSolve): Promise<LinearAnswer> {

@@ -5,7 +5,7 @@
  * So the normal solve, the worker solve, compare and later outer iterations are one code path.
  */
 import { inlineExecutor, type InlineSession } from './inline.js';
-import type { Executor, LinearAnswer, LinearSolve, SolverChoice, SolverSession } from './types.js';
+import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, SolverSession } from './types.js';
 import type { StencilOperator } from '../solvers/types.js';
 
 /** A session as a plan sees it: opaque, with what the plan may read. */
@@ -18,6 +18,7 @@ export type PlanStep =
   | { kind: 'open'; operator: StencilOperator; choice: SolverChoice }
   | { kind: 'solve'; session: SessionHandle; request: LinearSolve }
   | { kind: 'diagonal'; session: SessionHandle; diag: Float64Array }
+  | { kind: 'operator'; session: SessionHandle; bands: OperatorBands; rebuild: boolean }
   | { kind: 'close'; session: SessionHandle };
 
 export type Plan<T> = Generator<PlanStep, T, unknown>;
@@ -32,6 +33,11 @@ export function* solveLinear(session: SessionHandle, request: LinearSolve): Plan
 
 export function* setDiagonal(session: SessionHandle, diag: Float64Array): Plan<void> {
   yield { kind: 'diagonal', session, diag };
+}
+
+/** Replace the session's operator bands (see SolverSession.setOperator). */
+export function* setOperator(session: SessionHandle, bands: OperatorBands, rebuild: boolean): Plan<void> {
+  yield { kind: 'operator', session, bands, rebuild };
 }
 
 export function* closeSession(session: SessionHandle): Plan<void> {
@@ -52,6 +58,7 @@ export function runInline<T>(plan: Plan<T>): T {
         answer = session;
       } else if (s.kind === 'solve') answer = (s.session as InlineSession).solveNow(s.request);
       else if (s.kind === 'diagonal') (s.session as InlineSession).setDiagonalNow(s.diag);
+      else if (s.kind === 'operator') (s.session as InlineSession).setOperatorNow(s.bands, s.rebuild);
       else {
         (s.session as InlineSession).close();
         open.delete(s.session as InlineSession);
@@ -78,6 +85,7 @@ export async function runOn<T>(plan: Plan<T>, executor: Executor): Promise<T> {
         answer = session;
       } else if (s.kind === 'solve') answer = await (s.session as SolverSession).solve(s.request);
       else if (s.kind === 'diagonal') await (s.session as SolverSession).setDiagonal(s.diag);
+      else if (s.kind === 'operator') await (s.session as SolverSession).setOperator(s.bands, s.rebuild);
       else {
         (s.session as SolverSession).close();
         open.delete(s.session as SolverSession);

@@ -24,6 +24,9 @@ port.on('message', (request: WorkerRequest) => {
       send({ kind: 'ready', method: session.method, setupSeconds: session.setupSeconds });
     } else if (!session) {
       throw new PiezomapError('internal', `solver thread: "${request.kind}" before "open"`);
+    } else if (request.kind === 'operator') {
+      session.setOperatorNow({ diag: request.diag, east: request.east, south: request.south }, request.rebuild);
+      send({ kind: 'ready', method: session.method, setupSeconds: session.setupSeconds });
     } else if (request.kind === 'diagonal') {
       session.setDiagonalNow(request.diag);
       send({ kind: 'ready', method: session.method, setupSeconds: session.setupSeconds });

@@ -27,6 +27,13 @@ export interface LinearSolve {
   onProgress?: (iteration: number, relativeResidual: number) => boolean | void;
 }
 
+/** The changing bands of a five-point operator (the unknown cells stay the same). */
+export interface OperatorBands {
+  diag: Float64Array;
+  east: Float64Array;
+  south: Float64Array;
+}
+
 export interface LinearAnswer {
   x: Float64Array;
   stats: SolveStats;
@@ -40,6 +47,12 @@ export interface SolverSession {
   solve(request: LinearSolve): Promise<LinearAnswer>;
   /** Replace the operator's diagonal and set the solver up again. */
   setDiagonal(diag: Float64Array): Promise<void>;
+  /**
+   * Replace the operator's bands in place (a water-table aquifer's conductances). With `rebuild` the solver is set
+   * up again; without it a Krylov method keeps its preconditioner (built on the earlier bands) and iterates on the new
+   * operator, which pays while the operator changes little; other methods are always set up again.
+   */
+  setOperator(bands: OperatorBands, rebuild: boolean): Promise<void>;
   close(): void;
 }
 

@@ -10,13 +10,14 @@ import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { PiezomapError, type ErrorCode, type ErrorDetail } from '../errors.js';
 import type { SolveStats, StencilOperator } from '../solvers/types.js';
-import type { Executor, LinearAnswer, LinearSolve, SolverChoice, SolverSession } from './types.js';
+import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, SolverSession } from './types.js';
 
 /** Main thread to worker. */
 export type WorkerRequest =
   | { kind: 'open'; nx: number; ny: number; diag: Float64Array; east: Float64Array; south: Float64Array; unknown: Uint8Array; choice: SolverChoice }
   | { kind: 'solve'; rhs: Float64Array; x: Float64Array; tolerance: number; maxIterations: number }
-  | { kind: 'diagonal'; diag: Float64Array };
+  | { kind: 'diagonal'; diag: Float64Array }
+  | { kind: 'operator'; diag: Float64Array; east: Float64Array; south: Float64Array; rebuild: boolean };
 
 /** Worker to main thread. */
 export type WorkerMessage =
@@ -81,6 +82,11 @@ class WorkerSession implements SolverSession {
 
   async setDiagonal(diag: Float64Array): Promise<void> {
     const answer = await this.request({ kind: 'diagonal', diag });
+    if (answer.kind === 'ready') this.setupSeconds = answer.setupSeconds;
+  }
+
+  async setOperator(bands: OperatorBands, rebuild: boolean): Promise<void> {
+    const answer = await this.request({ kind: 'operator', diag: bands.diag, east: bands.east, south: bands.south, rebuild });
     if (answer.kind === 'ready') this.setupSeconds = answer.setupSeconds;
   }
 

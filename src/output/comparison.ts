@@ -2,9 +2,10 @@
  * The files and texts of a comparison: comparison.csv (one row per variant), the comparison summary.json and the
  * printed table. Pure functions: the folder is written by comparisonFiles.ts through resultFolder.ts.
  */
+import { dryCells } from '../discretisation/aquifer.js';
+import type { SolveResult } from '../analysis/result.js';
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare/types.js';
-import type { SolveResult } from '../analysis/result.js';
 import { calibrationJson, calibrationLine, MAX_PRINTED_ROWS, tidy } from './summary.js';
 import { csvRow } from './csv.js';
 import { captureComparisonJson, captureComparisonLines } from './tracking.js';
@@ -59,6 +60,8 @@ export function comparisonCsv(c: ComparisonResult): string {
     'discrepancy_percent',
     ...terms.flatMap((t) => [`source_${t}_volume`, `source_${t}_percent`]),
     'source_total_percent',
+    // Water-table aquifers only, so that confined comparisons keep their columns.
+    ...(c.baseline.system.waterTable === null ? [] : ['dry_cells', 'undelivered_pumping']),
   ];
   const lines = [csvRow(header)];
   for (const v of c.variants) {
@@ -84,6 +87,10 @@ export function comparisonCsv(c: ComparisonResult): string {
         return sound && s ? [cell(s.netChange), cell(s.percentOfAddedPumping)] : ['', ''];
       }),
       sound ? cell(v.sources.totalPercent) : '',
+      ...(c.baseline.system.waterTable === null ? [] : (() => {
+        const w = waterTableBrief(v.result)!;
+        return [cell(w.dryCells), cell(w.undeliveredPumping)];
+      })()),
     ];
     lines.push(csvRow(row));
   }
@@ -128,6 +135,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
       withdrawal: tidy(base.model.wells.reduce((sum, w) => sum + (w.rate < 0 ? -w.rate : 0), 0)),
       wells: base.wellbore.map((w) => ({ id: w.id, rate: w.rate, cellHead: tidy(w.cellHead), wellboreHead: tidy(w.wellboreHead), belowMinimum: w.belowMinimum })),
       calibration: calibrationJson(base.calibration),
+      ...(base.system.waterTable === null ? {} : { waterTable: waterTableBrief(base) }),
     },
     variants: c.variants.map((v) => ({
       name: v.name,
@@ -159,6 +167,7 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
         ...(w.minimumHead !== null ? { minimumHead: w.minimumHead, belowMinimum: w.belowMinimum } : {}),
       })),
       withdrawal: tidy(v.withdrawal),
+      ...(v.result.system.waterTable === null ? {} : { waterTable: waterTableBrief(v.result) }),
       budget: budgetBrief(v.result),
       sourcesOfWater: v.problem
         ? null
@@ -305,6 +314,14 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
       if (s && s.totalPercent !== null) {
         out.push(`  ${v.name}: added pumping ${num(s.addedPumping, 1)} ${L}³/${T}; the sources sum to ${pct(s.totalPercent)} %`);
       }
+      const w = (v as { waterTable?: WaterTableBrief }).waterTable;
+      if (w) {
+        const b = (summary.baseline as { waterTable?: WaterTableBrief }).waterTable;
+        out.push(
+          `  ${v.name}: ${w.dryCells.toLocaleString('en-US')} dry cell(s) (baseline ${b ? b.dryCells.toLocaleString('en-US') : '-'}), ` +
+            `${w.outerIterations} outer iterations` + (w.undeliveredPumping > 0 ? `; pumping not delivered ${num(w.undeliveredPumping, 1)} ${L}³/${T}` : ''),
+        );
+      }
       if (v.problem) out.push(`  ${v.name}: ${v.problem.split('\n')[0]}`);
     }
   }
@@ -327,4 +344,28 @@ function outerOf(result: SolveResult): { outerIterations?: number; outerStopReas
 
 function outerText(solver: { outerIterations?: number }): string {
   return solver.outerIterations === undefined ? '' : ` in ${solver.outerIterations} outer iteration(s)`;
+}
+
+interface WaterTableBrief {
+  type: string;
+  dryCells: number;
+  outerIterations: number;
+  innerIterations: number;
+  /** Withdrawal the wells could not deliver from drying cells (length^3/time). */
+  undeliveredPumping: number;
+}
+
+/** A water-table run in brief (dry cells, outer iterations, undelivered pumping), null for a confined one. */
+function waterTableBrief(result: SolveResult): WaterTableBrief | null {
+  const table = result.system.waterTable;
+  if (table === null) return null;
+  let undelivered = 0;
+  for (const w of result.wellbore) undelivered += w.undeliveredRate;
+  return {
+    type: table.type,
+    dryCells: dryCells(table, result.head).count,
+    outerIterations: result.outer.iterations,
+    innerIterations: result.outer.innerIterations,
+    undeliveredPumping: tidy(undelivered),
+  };
 }

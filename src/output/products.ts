@@ -2,6 +2,7 @@
  * The derived products of one solve, as files: contours (GeoJSON), Darcy flux and velocity rasters, the
  * quick-look map and the pieces of the HTML report. Pure functions of a SolveResult: no file system here.
  */
+import { dryCells, headsForOutput, saturatedThicknessField } from '../discretisation/aquifer.js';
 import { contourField, contoursToGeoJson, type ContourSet } from '../analysis/contours.js';
 import { darcyFlux, linearVelocity, type DarcyFlux } from '../analysis/flux.js';
 import { crsLabel, type Grid } from '../grid.js';
@@ -78,7 +79,8 @@ function fluxOf(result: SolveResult): DarcyFlux {
     head: result.head,
     eastConductance: result.system.conductanceEast,
     southConductance: result.system.conductanceSouth,
-    thickness: result.model.thickness,
+    // Water tables: the Darcy flux per unit area divides by the saturated thickness, not a given one.
+    thickness: result.system.waterTable === null ? result.model.thickness : saturatedThicknessField(result.system.waterTable, result.head),
   });
 }
 
@@ -123,7 +125,9 @@ export function solveProducts(result: SolveResult, options: ProductOptions = {},
   const files: OutputFile[] = [];
   const warnings: string[] = [];
 
-  const headContours = contourFiles(model.grid, result.head, 'head', model.units.length, options, prefix);
+  // Dry cells (water tables) are nodata on the map and in the contours, and get a legend entry of their own.
+  const shownHead = headsForOutput(system.waterTable, result.head);
+  const headContours = contourFiles(model.grid, shownHead, 'head', model.units.length, options, prefix);
   files.push(...headContours.files);
   warnings.push(...headContours.warnings);
 
@@ -148,13 +152,17 @@ export function headMapInput(result: SolveResult, contours: ContourSet, flux: Da
   const { model, system } = result;
   return {
     grid: model.grid,
+    // The map keeps the (below-bottom) heads of dry cells so that their hatched layer has cells to draw on.
     values: result.head,
     quantity: 'head',
     units: model.units,
     title: model.title,
     caution: CAUTION,
     contours,
-    cellLayers: mapCellLayers(system.terms, system.active.length),
+    cellLayers: [
+      ...mapCellLayers(system.terms, system.active.length),
+      ...(system.waterTable === null ? [] : [{ legend: 'Dry cells', cells: dryCells(system.waterTable, result.head).mask, style: { pattern: 'dots', colour: '#a50f15' } as const }]),
+    ],
     wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
     observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y, residual: o.residual })),
     receptors: (model.receptors ?? []).map((r) => ({ id: r.id, x: r.x, y: r.y })),

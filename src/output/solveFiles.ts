@@ -10,8 +10,9 @@ import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
 import { exchangeRasters, reportInputs, reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
 import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
-import { budgetCsv, buildSummary, convergenceCsv, type SummaryJson } from './summary.js';
+import { budgetCsv, buildSummary, convergenceCsv, outerConvergenceCsv, type SummaryJson } from './summary.js';
 import { trackingFiles } from './tracking.js';
+import { headsForOutput, saturatedThicknessField } from '../discretisation/aquifer.js';
 
 export const REPORT_FILE = 'report.html';
 
@@ -30,10 +31,18 @@ export function resultBundle(result: SolveResult, prefix = '', options: ProductO
   const sound = resultProblem(result) === null;
   const files: OutputFile[] = [];
   const description = `piezomap ${VERSION} head (${result.model.units.length}): ${result.model.title}. ${CAUTION}`;
-  const headBytes = encodeFloat32GeoTiff(result.model.grid, result.head, { nodata: -9999, description });
+  const table = result.system.waterTable;
+  // Dry cells of a water-table aquifer are nodata in head.tif (physics.md).
+  const headBytes = encodeFloat32GeoTiff(result.model.grid, headsForOutput(table, result.head), { nodata: -9999, description });
   files.push({ name: prefix + (sound ? 'head.tif' : 'head-not-converged.tif'), bytes: headBytes });
   files.push({ name: prefix + 'budget.csv', bytes: budgetCsv(result.budget) });
-  files.push({ name: prefix + 'convergence.csv', bytes: convergenceCsv(result.stats.history) });
+  const outer = result.outer.stopReason === 'linear' ? null : result.outer;
+  files.push({ name: prefix + 'convergence.csv', bytes: outer ? outerConvergenceCsv(outer) : convergenceCsv(result.stats.history) });
+  if (table !== null) {
+    const thicknessDescription = `piezomap ${VERSION} saturated thickness (${result.model.units.length}; 0 = dry): ${result.model.title}. ${CAUTION}`;
+    const bytes = encodeFloat32GeoTiff(result.model.grid, saturatedThicknessField(table, result.head), { nodata: -9999, description: thicknessDescription });
+    files.push({ name: prefix + (sound ? 'saturated-thickness.tif' : 'saturated-thickness-not-converged.tif'), bytes });
+  }
   if (!sound) return { files, maps: [] };
   files.push(...exchangeRasters(result, prefix));
   const products = solveProducts(result, options, prefix);

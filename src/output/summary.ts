@@ -5,6 +5,8 @@ import type { WaterBudget } from '../analysis/budget.js';
 import type { CalibrationStatistics } from '../analysis/calibration.js';
 import { csvRow } from './csv.js';
 import { trackingLines, trackingSummary } from './tracking.js';
+import type { OuterReport } from '../discretisation/outerLoop.js';
+import { dryCells, saturatedThicknessField } from '../discretisation/aquifer.js';
 
 /** Round to 12 significant digits so files are stable and readable (float noise beyond that is meaningless here). */
 export function tidy(v: number): number {
@@ -81,8 +83,16 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
       peakMemoryMiB: tidy(result.peakMemoryMiB),
       notes: stats.notes,
       // Only when a term is nonlinear, so that linear runs keep their summary as it was.
-      ...(result.outer.stopReason === 'linear' ? {} : { outerIterations: result.outer.iterations, outerStopReason: result.outer.stopReason }),
+      ...(result.outer.stopReason === 'linear'
+        ? {}
+        : {
+            outerIterations: result.outer.iterations,
+            outerStopReason: result.outer.stopReason,
+            innerIterationsTotal: result.outer.innerIterations,
+            outerHistory: result.outer.history.map((h) => ({ ...h, maxHeadChange: tidy(h.maxHeadChange), flowResidual: tidy(h.flowResidual) })),
+          }),
     },
+    ...(system.waterTable === null ? {} : { aquifer: waterTableSummary(result) }),
     budget: budgetJson(budget),
     head: { min: tidy(range.min), max: tidy(range.max), mean: tidy(range.mean) },
     wells: result.wells.map((w, k) => {
@@ -102,6 +112,7 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
               radiusDefaulted: bore.radiusDefaulted,
               equivalentRadius: tidy(bore.equivalentRadius),
               ...(bore.minimumHead !== null ? { minimumHead: bore.minimumHead, belowMinimum: bore.belowMinimum } : {}),
+              ...(system.waterTable === null ? {} : { undeliveredRate: tidy(bore.undeliveredRate), wellboreShortfall: tidy(bore.wellboreShortfall), dry: bore.dry }),
             }
           : {}),
       };
@@ -159,6 +170,19 @@ export function budgetCsv(budget: WaterBudget): string {
   return lines.join('\n') + '\n';
 }
 
+/**
+ * convergence.csv of a run with an outer iteration (nonlinear terms, water-table aquifers): one row per outer
+ * iteration with its inner (linear) iterations, largest head change, flow residual of the nonlinear equations, dry
+ * cells, damping factor, cells whose fall was limited, and whether the solver was set up again.
+ */
+export function outerConvergenceCsv(outer: OuterReport): string {
+  const lines = ['outer_iteration,inner_iterations,max_head_change,flow_residual,dry_cells,damping,limited_cells,solver_rebuilt,state_changes'];
+  outer.history.forEach((h, k) =>
+    lines.push(`${k + 1},${h.innerIterations},${h.maxHeadChange},${h.flowResidual},${h.dryCells},${h.damping},${h.limitedCells},${h.rebuilt ? 1 : 0},${h.stateChanges}`),
+  );
+  return lines.join('\n') + '\n';
+}
+
 export function convergenceCsv(history: number[]): string {
   const lines = [csvRow(['iteration', 'relative_residual'])];
   history.forEach((r, k) => lines.push(csvRow([k, r])));
@@ -213,13 +237,22 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
   const out: string[] = [];
   out.push(`piezomap: ${summary.title}`);
   out.push(`Grid     ${g.nx} x ${g.ny} cells of ${num(g.dx)} x ${num(g.dy)} ${L}, ${g.crs}; ${g.activeCells.toLocaleString('en-US')} active, ${g.fixedHeadCells.toLocaleString('en-US')} fixed-head`);
+  const outer = summary.solver as { outerIterations?: number; outerStopReason?: string; innerIterationsTotal?: number };
+  // With an outer iteration the last inner solve's count says little: the last one often needs none.
+  const count = outer.outerIterations === undefined ? `${s.iterations} iterations` : `${outer.innerIterationsTotal} inner iterations`;
   out.push(
-    `Solver   ${s.method}: ${s.converged ? 'converged' : `NOT converged (${s.stopReason})`} in ${s.iterations} iterations, ` +
+    `Solver   ${s.method}: ${s.converged ? 'converged' : `NOT converged (${s.stopReason})`} in ${count}, ` +
       `relative residual ${s.relativeResidual.toExponential(2)} (setup ${s.setupSeconds.toFixed(2)} s, solve ${s.seconds.toFixed(2)} s)`,
   );
-  const outer = summary.solver as { outerIterations?: number; outerStopReason?: string };
   if (outer.outerIterations !== undefined) {
-    out.push(`         ${outer.outerIterations} outer iteration(s) for switching boundaries (${outer.outerStopReason === 'settled' ? 'settled' : `did NOT settle: ${outer.outerStopReason}`})`);
+    out.push(`Outer    ${outer.outerIterations} outer iteration(s), ${outer.outerStopReason === 'settled' ? 'settled' : `did NOT settle: ${outer.outerStopReason}`}; ${outer.innerIterationsTotal} inner iterations in all`);
+  }
+  const aquifer = (summary as { aquifer?: { type: string; dryCells: number; confinedCells?: number; saturatedThickness: { min: number; max: number } } }).aquifer;
+  if (aquifer) {
+    const confined = aquifer.confinedCells === undefined ? '' : `, ${aquifer.confinedCells.toLocaleString('en-US')} confined`;
+    out.push(
+      `Aquifer  ${aquifer.type}: ${aquifer.dryCells.toLocaleString('en-US')} dry cell(s)${confined}; saturated thickness ${num(aquifer.saturatedThickness.min, 2)} to ${num(aquifer.saturatedThickness.max, 2)} ${L}`,
+    );
   }
   out.push(`Head     min ${num(summary.head.min, 3)} ${L}, max ${num(summary.head.max, 3)} ${L}`);
   out.push(`Budget   (${L}³/${T})`);
@@ -262,4 +295,27 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
   out.push('');
   out.push(summary.caution);
   return out.join('\n') + '\n';
+}
+
+/** The water table of an unconfined or convertible run: type, dry cells, saturated thickness range. */
+function waterTableSummary(result: SolveResult): Record<string, unknown> {
+  const table = result.system.waterTable!;
+  const dry = dryCells(table, result.head);
+  const thickness = saturatedThicknessField(table, result.head);
+  let min = Infinity;
+  let max = -Infinity;
+  for (let p = 0; p < thickness.length; p++) {
+    const b = thickness[p]!;
+    if (!result.system.active[p] || !(b === b)) continue;
+    if (b < min) min = b;
+    if (b > max) max = b;
+  }
+  let confinedCells = 0;
+  if (table.type === 'convertible') for (let p = 0; p < thickness.length; p++) if (result.system.active[p] && result.head[p]! >= table.top[p]!) confinedCells++;
+  return {
+    type: table.type,
+    dryCells: dry.count,
+    ...(table.type === 'convertible' ? { confinedCells } : {}),
+    saturatedThickness: { min: tidy(min), max: tidy(max) },
+  };
 }

@@ -86,9 +86,16 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   loader.checkGridIsProjected(conductivityPath, grid, units.length);
   const conductivity = conductivityRaster.values;
 
+  const aquiferType = raw.aquifer.type ?? 'confined';
+  // Unconfined and convertible aquifers: top and bottom read here, as they decide which cells are active.
+  const waterTable = aquiferType === 'confined' ? null : await loader.waterTableGeometry(raw.aquifer, conductivity, conductivityRaster);
   let thickness: Float64Array | number;
-  if (typeof raw.aquifer.thickness === 'number') {
+  if (waterTable !== null) {
+    thickness = waterTable.thickness;
+  } else if (typeof raw.aquifer.thickness === 'number') {
     thickness = raw.aquifer.thickness;
+  } else if (raw.aquifer.thickness === undefined) {
+    throw inputError(`${loader.label}: aquifer.thickness is required for a confined aquifer`, { key: 'aquifer.thickness' });
   } else {
     const raster = await loader.raster('aquifer.thickness', raw.aquifer.thickness, conductivityRaster);
     thickness = raster.values;
@@ -158,7 +165,10 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     ['groundSurface', 'groundSurface', raw.groundSurface],
   ] as const;
   for (const [field, key, given] of elevationKeys) {
-    if (typeof given === 'number') elevations[field] = given;
+    if (waterTable !== null && field !== 'groundSurface') {
+      const value = field === 'aquiferTop' ? waterTable.top : waterTable.bottom;
+      if (value !== undefined) elevations[field] = value;
+    } else if (typeof given === 'number') elevations[field] = given;
     else if (typeof given === 'string') elevations[field] = (await loader.raster(key, given, conductivityRaster)).values;
   }
 
@@ -196,10 +206,12 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     receptors,
     ...(tracking ? { tracking } : {}),
     solver: { ...solver },
+    ...(aquiferType === 'confined' ? {} : { aquiferType }),
+    ...(waterTable?.initialHead === undefined ? {} : { initialHead: waterTable.initialHead }),
     inputFiles: [...loader.inputFiles],
     warnings: loader.warnings,
   };
-  checkMagnitudes(model, loader.label, { conductivity: conductivityPath, thickness: raw.aquifer.thickness, ...(raw.recharge === undefined ? {} : { recharge: raw.recharge }) });
+  checkMagnitudes(model, loader.label, { conductivity: conductivityPath, ...(raw.aquifer.thickness === undefined ? {} : { thickness: raw.aquifer.thickness }), ...(raw.recharge === undefined ? {} : { recharge: raw.recharge }) });
   return model;
 }
 
@@ -359,6 +371,59 @@ class Loader {
     this.warnings.push(text);
   }
 
+  /**
+   * Top, bottom and starting heads of an unconfined or convertible aquifer (../shared/spec/interface.md), and the
+   * thickness that marks its active cells: top - bottom where a top is given, 1 where only a bottom is (the
+   * transmissivity of such aquifers comes from the heads: src/discretisation/aquifer.ts). A cell with a
+   * conductivity but no bottom is inactive (warned); a top not above the bottom is an input error naming the cell.
+   */
+  async waterTableGeometry(
+    aquifer: ScenarioJson['aquifer'],
+    conductivity: Float64Array,
+    reference: RasterData,
+  ): Promise<{ thickness: Float64Array; bottom: Float64Array | number; top?: Float64Array | number; initialHead?: Float64Array | number }> {
+    const field = async (key: string, given: number | string | undefined) =>
+      given === undefined ? undefined : typeof given === 'number' ? given : (await this.raster(key, given, reference)).values;
+    const bottom = (await field('aquifer.bottom', aquifer.bottom))!;
+    const top = await field('aquifer.top', aquifer.top);
+    const initialHead = await field('aquifer.initialHead', aquifer.initialHead);
+    const n = conductivity.length;
+    const nx = reference.grid.nx;
+    const thickness = new Float64Array(n).fill(NaN);
+    let noBottom = 0;
+    let noTop = 0;
+    for (let p = 0; p < n; p++) {
+      if (!isActiveValue(conductivity[p]!)) continue;
+      const z = fieldAt(bottom, p);
+      const t = top === undefined ? NaN : fieldAt(top, p);
+      if (!Number.isFinite(z)) {
+        noBottom++;
+        continue;
+      }
+      if (aquifer.type === 'convertible' && !Number.isFinite(t)) {
+        noTop++;
+        continue;
+      }
+      if (Number.isFinite(t) && !(t > z)) {
+        throw inputError(
+          `${this.label}: aquifer.top ${t} is not above aquifer.bottom ${z} at row ${Math.floor(p / nx)}, col ${p % nx}`,
+          { key: 'aquifer.top', cell: { row: Math.floor(p / nx), col: p % nx }, hint: 'top and bottom are elevations in length units; check that they were not swapped' },
+        );
+      }
+      if (initialHead !== undefined && !Number.isFinite(fieldAt(initialHead, p))) {
+        throw inputError(`${this.label}: aquifer.initialHead has no value at row ${Math.floor(p / nx)}, col ${p % nx}, an active cell`, {
+          key: 'aquifer.initialHead',
+          cell: { row: Math.floor(p / nx), col: p % nx },
+          hint: 'give a starting head on every active cell, or leave initialHead out for the default',
+        });
+      }
+      thickness[p] = Number.isFinite(t) ? t - z : 1;
+    }
+    if (noBottom > 0) this.warn(`aquifer.bottom: ${noBottom} cell(s) with a conductivity have no bottom elevation there and are inactive`);
+    if (noTop > 0) this.warn(`aquifer.top: ${noTop} cell(s) with a conductivity have no top elevation there and are inactive (a convertible aquifer needs both)`);
+    return { thickness, bottom, ...(top === undefined ? {} : { top }), ...(initialHead === undefined ? {} : { initialHead }) };
+  }
+
   /** The scenario's units, which raster values are taken in. */
   units: ValueUnits = { length: 'm', time: 'd' };
 
@@ -430,6 +495,7 @@ class Loader {
       ['aquifer.porosity', raw.aquifer.porosity],
       ['aquifer.top', raw.aquifer.top],
       ['aquifer.bottom', raw.aquifer.bottom],
+      ['aquifer.initialHead', raw.aquifer.initialHead],
       ['groundSurface', raw.groundSurface],
       ['recharge', raw.recharge],
       ...raw.fixedHeads.map((entry, i): [string, string | undefined] => [`fixedHeads[${i}].raster`, 'raster' in entry ? entry.raster : undefined]),

@@ -79,8 +79,10 @@ export const unitsSchema = strict({
 });
 
 export const aquiferSchema = strict({
+  /** confined (default: thickness given), unconfined or convertible (thickness from the heads, top and bottom). */
+  type: z.enum(['confined', 'unconfined', 'convertible']).optional(),
   conductivity: filePath,
-  thickness: numberOrPath(finite.gt(0), 'a thickness > 0 or the path of a GeoTIFF'),
+  thickness: numberOrPath(finite.gt(0), 'a thickness > 0 or the path of a GeoTIFF').optional(),
   anisotropy: finite.gt(0).default(1),
   /** GeoJSON files whose shapes mark inactive cells (polygons: cells whose centre lies inside; lines: cells crossed). */
   inactiveShapes: z.array(filePath).optional(),
@@ -90,6 +92,22 @@ export const aquiferSchema = strict({
   top: numberOrPath(finite, 'an elevation (length) or the path of a GeoTIFF').optional(),
   /** Elevation of the aquifer bottom, for the sanity warnings. Optional. */
   bottom: numberOrPath(finite, 'an elevation (length) or the path of a GeoTIFF').optional(),
+  /** Starting heads of the outer iteration of unconfined and convertible aquifers. Optional. */
+  initialHead: numberOrPath(finite, 'a head (length) or the path of a GeoTIFF').optional(),
+}).superRefine((aquifer, ctx) => {
+  // Which keys each type needs: ../shared/spec/interface.md ("Extensions").
+  const type = aquifer.type ?? 'confined';
+  if (type === 'confined') {
+    if (aquifer.thickness === undefined) ctx.addIssue({ code: 'custom', path: ['thickness'], message: 'is required for a confined aquifer (type "confined", the default)' });
+    if (aquifer.initialHead !== undefined) ctx.addIssue({ code: 'custom', path: ['initialHead'], message: 'applies only to unconfined and convertible aquifers (a confined solve needs no starting heads)' });
+    return;
+  }
+  const an = type === 'unconfined' ? 'an' : 'a';
+  if (aquifer.thickness !== undefined) {
+    ctx.addIssue({ code: 'custom', path: ['thickness'], message: `must not be given for ${an} ${type} aquifer: its saturated thickness comes from the heads, top and bottom` });
+  }
+  if (aquifer.bottom === undefined) ctx.addIssue({ code: 'custom', path: ['bottom'], message: `is required for ${an} ${type} aquifer` });
+  if (type === 'convertible' && aquifer.top === undefined) ctx.addIssue({ code: 'custom', path: ['top'], message: 'is required for a convertible aquifer' });
 });
 
 export const edgeNames = ['west', 'east', 'north', 'south'] as const;

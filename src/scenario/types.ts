@@ -114,8 +114,15 @@ export interface ModelInput {
   grid: Grid;
   /** Conductivity per cell; NaN or <= 0 = inactive. */
   conductivity: Float64Array;
-  /** Thickness per cell, or one number. */
+  /**
+   * Thickness per cell, or one number. For unconfined and convertible aquifers it only marks the active cells (top -
+   * bottom where a top is given, else 1): their transmissivity comes from the heads (src/discretisation/aquifer.ts).
+   */
   thickness: Float64Array | number;
+  /** Absent = confined. Unconfined and convertible need aquiferBottom (and convertible aquiferTop). */
+  aquiferType?: 'confined' | 'unconfined' | 'convertible';
+  /** Starting heads of the outer iteration (water-table aquifers), when given. */
+  initialHead?: Float64Array | number;
   anisotropy: number;
   /** Effective porosity per cell or one number, when given (for average linear velocities). */
   porosity?: Float64Array | number;

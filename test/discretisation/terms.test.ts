@@ -111,14 +111,14 @@ describe('flow term registry', () => {
 describe('outer iteration', () => {
   it('runs one linear solve when every term is linear, and the summary stays as it was', () => {
     const r = solve(chain());
-    expect(r.outer).toEqual({ iterations: 1, stopReason: 'linear', history: [] });
+    expect(r.outer).toEqual({ iterations: 1, stopReason: 'linear', history: [], innerIterations: r.stats.iterations });
     const system = chain();
     const result = solveModel(makeModel(system.grid, { conductivity: new Float64Array(3).fill(2), thickness: 5, fixedHeads: [fixedCells('left', [[0, 10]])], recharge: 0.1 }));
     expect(result.outer.iterations).toBe(1);
     expect(buildSummary(result, [], 'test').solver).not.toHaveProperty('outerIterations');
     expect(resultProblem(result)).toBeNull();
     // An outer loop that did not settle is not a result (exit 3, as a linear solve that did not converge).
-    const unsettled = { ...result, outer: { iterations: 3, stopReason: 'cycle' as const, history: [] } };
+    const unsettled = { ...result, outer: { iterations: 3, stopReason: 'cycle' as const, history: [], innerIterations: 30 } };
     expect(exitCodeFor(resultProblem(unsettled)!)).toBe(3);
     expect(buildSummary(unsettled, [], 'test').solver).toMatchObject({ outerIterations: 3, outerStopReason: 'cycle' });
   });

@@ -82,10 +82,10 @@ describe('the CSV writers use it', () => {
       wellbores: [{ id: '@well', drawdown: 2 }],
       withdrawal: 100,
       sources: { addedPumping: 100, totalPercent: 100, terms: [{ term: '+river', netChange: 100, percentOfAddedPumping: 100 }] },
-      result: { budget: { discrepancyPercent: 0 }, stats: { converged: true } },
+      result: { budget: { discrepancyPercent: 0 }, stats: { converged: true }, system: { waterTable: null } },
     });
     const c = {
-      baseline: { model: { observations: [{ id: '=obs' }] } },
+      baseline: { model: { observations: [{ id: '=obs' }] }, system: { waterTable: null } },
       receptors: [{ id: '-spring', x: 0, y: 0 }],
       variants: [variant('-more'), variant('plain')],
     } as unknown as ComparisonResult;

@@ -9,6 +9,7 @@
  */
 import type { Grid } from '../../grid.js';
 import type { ModelInput } from '../../scenario/types.js';
+import type { WaterTable } from '../aquifer.js';
 
 export interface FlowTerm {
   /** The kind (registry key); for messages and tests, never for dispatch. */
@@ -113,6 +114,8 @@ export interface TermContext extends TermGrid {
   datum: number;
   conductanceEast: Float64Array;
   conductanceSouth: Float64Array;
+  /** The water table of an unconfined or convertible aquifer (../aquifer.ts), null (or absent) when confined. */
+  waterTable?: WaterTable | null;
 }
 
 /** One kind of term: how its terms are built from a model. */

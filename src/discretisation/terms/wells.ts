@@ -2,11 +2,15 @@
  * Wells: one term for all wells of a model (budget row "wells"), a prescribed rate per well summed per cell
  * (negative = withdrawal). A well outside the grid, in an inactive cell or in a fixed-head cell is an input error
  * naming it. Its change between two runs is the pumping that `compare` splits into sources of water.
+ * In an unconfined or convertible aquifer a well delivers its rate only while its cell is wet: the fraction a drying
+ * cell can give comes from ../aquifer.ts (deliveryFraction), which makes the term nonlinear; the rate not delivered
+ * is reported by the analysis (src/analysis/wellbore.ts), never dropped silently.
  */
 import { cellAt } from '../../grid.js';
 import { inputError } from '../../errors.js';
 import type { ModelInput } from '../../scenario/types.js';
 import { linearTerm, type FlowTerm, type TermContext, type TermKind } from './types.js';
+import { deliveryFraction, deliverySlope } from '../aquifer.js';
 
 function build(model: ModelInput, context: TermContext): FlowTerm[] {
   const { grid, active, fixed, fixedGroup, groups } = context;
@@ -39,6 +43,47 @@ function build(model: ModelInput, context: TermContext): FlowTerm[] {
   }
   const cells = Int32Array.from([...perCell.keys()].sort((a, b) => a - b));
   const rates = Float64Array.from(cells, (p) => perCell.get(p)!);
+  const table = context.waterTable ?? null;
+  if (table !== null) {
+    // Withdrawals from a water table: the rate a drying cell can deliver (injection is not limited).
+    return [
+      {
+        ...linearTerm,
+        nonlinear: true,
+        kind: 'wells',
+        label: 'wells',
+        cells,
+        prescribedHeads: null,
+        anchors: false,
+        mapLegend: null,
+        pumping: true,
+        linearise(head, diag, rhs) {
+          // Q f(h) ~ Q f(h0) + Q f'(h0) (h - h0) (Newton's linearisation of the delivered rate): -Q f'(h0) >= 0 on the
+          // diagonal keeps the operator symmetric positive definite and lets a drying cell settle in one system.
+          const { datum } = context;
+          for (let k = 0; k < cells.length; k++) {
+            const p = cells[k]!;
+            const q = rates[k]!;
+            if (q >= 0) {
+              rhs[p]! += q;
+              continue;
+            }
+            const h0 = head[p]!;
+            const c = -q * deliverySlope(table, p, h0);
+            diag[p]! += c;
+            rhs[p]! += q * deliveryFraction(table, p, h0) + c * (h0 - datum);
+          }
+        },
+        flow(head, out) {
+          for (let k = 0; k < cells.length; k++) {
+            const p = cells[k]!;
+            const q = rates[k]!;
+            out[k] = q < 0 ? q * deliveryFraction(table, p, head[p]!) : q;
+          }
+        },
+      },
+    ];
+  }
   return [
     {
       ...linearTerm,
