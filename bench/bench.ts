@@ -6,6 +6,7 @@
  *                    [--tolerance 1e-10] [--max-iterations 20000] [--time-limit 240] [--write-case DIR --size N]
  *   npm run bench -- --table FILE.json   (prints the table of an earlier run)
  *   npm run bench -- --whole [--sizes 512,1024,2048] [--repeat 1]   whole `piezomap solve` runs against the reference
+ *   npm run bench -- --write-stages [--sizes 1024,2048]   CPU per product, serial vs concurrent writer
  *   npm run bench -- --rough [--sizes 512,1024]   iterations on rough conductivity: auto vs smooth and vs pcg-ic0
  *
  * The reference solver (hypre BoomerAMG-PCG, built from ../shared/bench-reference) is used when
@@ -234,6 +235,13 @@ async function main(): Promise<void> {
     const file = join(outDir, `whole-${stamp}.json`);
     writeFileSync(file, JSON.stringify({ machine, tolerance, loadAtEnd: loadavg()[0], rows }, null, 2) + '\n');
     console.log(`load average at end ${loadavg()[0]!.toFixed(1)}; written ${file}`);
+    return;
+  }
+  if (args.has('write-stages')) {
+    const { runWriteStages } = await import('./write-stages.js');
+    console.log(`piezomap write stages — ${machine}; load average at start ${loadavg()[0]!.toFixed(1)}`);
+    await runWriteStages((args.get('sizes') ?? '1024,2048').split(',').map(Number), outDir);
+    console.log(`load average at end ${loadavg()[0]!.toFixed(1)}`);
     return;
   }
   if (args.has('rough')) {
