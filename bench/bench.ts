@@ -5,19 +5,27 @@
  *   npm run bench -- [--sizes 512,1024,2048] [--methods auto,pcg-multigrid,...] [--out bench-results]
  *                    [--tolerance 1e-10] [--max-iterations 20000] [--time-limit 240] [--write-case DIR --size N]
  *   npm run bench -- --table FILE.json   (prints the table of an earlier run)
+ *   npm run bench -- --whole [--sizes 512,1024,2048] [--repeat 1]   whole `piezomap solve` runs against the reference
+ *   npm run bench -- --write-stages [--sizes 1024,2048]   CPU per product, serial vs concurrent writer
+ *   npm run bench -- --rough [--sizes 512,1024]   iterations on rough conductivity: auto vs smooth and vs pcg-ic0
+ *
+ * The reference solver (hypre BoomerAMG-PCG, built from ../shared/bench-reference) is used when
+ * PIEZOMAP_REFERENCE_DIR names the folder holding its hypre_pcg (./reference.ts).
  *
  * Prints a table and writes bench-results/bench-<stamp>.json. Heads are compared with a tighter multigrid
  * solve (relative residual 1e-12) of the same size: max |h - h_ref| / max |h_ref| over active cells.
  */
 import { spawnSync } from 'node:child_process';
 import { mkdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
-import { cpus, totalmem } from 'node:os';
+import { cpus, loadavg, totalmem } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { waterBudget } from '../src/analysis/budget.js';
 import { assembleSystem, headsFromSolution } from '../src/discretisation/assemble.js';
 import { chooseAutoMethod, createSolver } from '../src/solvers/registry.js';
-import { benchCase, unconfinedBenchCase } from './case.js';
+import { benchCase, CASE_FIELDS, unconfinedBenchCase, type CaseField } from './case.js';
+import { referenceSolver, runReference, writeSystemFile } from './reference.js';
+import { printWhole, runWhole } from './whole.js';
 import { solveOuter } from '../src/discretisation/outerLoop.js';
 import { closeSession, openSession, runInline } from '../src/executor/plan.js';
 
@@ -75,13 +83,13 @@ function parseArgs(argv: string[]): Map<string, string> {
 }
 
 /** Runs one solve in this process (child mode) and prints its result as JSON on stdout. */
-function runChild(size: number, method: string, tolerance: number, timeLimit: number, maxIterations: number, headsFile: string): void {
+function runChild(size: number, method: string, tolerance: number, timeLimit: number, maxIterations: number, headsFile: string, field: CaseField): void {
   if (method.endsWith(UNCONFINED_SUFFIX)) {
     runUnconfinedChild(size, method, tolerance, maxIterations, headsFile);
     return;
   }
   let t = performance.now();
-  const { model } = benchCase(size);
+  const { model } = benchCase(size, undefined, field);
   const caseSeconds = (performance.now() - t) / 1000;
   t = performance.now();
   const system = assembleSystem(model);
@@ -183,9 +191,10 @@ function spawnChild(
   timeLimit: number,
   maxIterations: number,
   headsFile: string,
+  field: CaseField = 'smooth',
 ): ChildResult | null {
   const script = fileURLToPath(import.meta.url);
-  const args = ['--expose-gc', '--max-old-space-size=4096', script, '--child', '--size', String(size), '--method', method];
+  const args = ['--expose-gc', '--max-old-space-size=4096', script, '--child', '--size', String(size), '--method', method, '--field', field];
   args.push('--tolerance', String(tolerance), '--time-limit', String(timeLimit), '--max-iterations', String(maxIterations), '--heads', headsFile);
   const run = spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 1 << 24 });
   if (run.status !== 0) {
@@ -251,8 +260,14 @@ async function main(): Promise<void> {
   const tolerance = Number(args.get('tolerance') ?? 1e-10);
   const timeLimit = Number(args.get('time-limit') ?? 240);
   const maxIterations = Number(args.get('max-iterations') ?? 20_000);
+  const field = caseField(args.get('field') ?? 'smooth');
   if (args.has('child')) {
-    runChild(Number(args.get('size')), args.get('method')!, tolerance, timeLimit, maxIterations, args.get('heads') ?? '');
+    runChild(Number(args.get('size')), args.get('method')!, tolerance, timeLimit, maxIterations, args.get('heads') ?? '', field);
+    return;
+  }
+  if (args.has('child-system')) {
+    const system = assembleSystem(benchCase(Number(args.get('size')), undefined, field).model);
+    writeSystemFile(system, args.get('child-system')!);
     return;
   }
   if (args.has('table')) {
@@ -261,7 +276,40 @@ async function main(): Promise<void> {
   }
   if (args.has('write-case')) {
     const { writeCase } = await import('./write-case.js');
-    await writeCase(Number(args.get('size') ?? 512), args.get('write-case')!);
+    await writeCase(Number(args.get('size') ?? 512), args.get('write-case')!, field);
+    return;
+  }
+  const outDir = args.get('out') ?? 'bench-results';
+  const stamp = new Date().toISOString().replace(/[:.]/g, '-');
+  const machine = `${cpus().length} x ${cpus()[0]?.model ?? 'unknown CPU'}, ${(totalmem() / 2 ** 30).toFixed(0)} GiB, Node ${process.version}`;
+  if (args.has('whole')) {
+    mkdirSync(outDir, { recursive: true });
+    const sizes = (args.get('sizes') ?? '512,1024,2048').split(',').map(Number);
+    console.log(`piezomap whole-run benchmark — ${machine}; tolerance ${tolerance}; load average at start ${loadavg()[0]!.toFixed(1)}`);
+    const rows = await runWhole({
+      sizes,
+      out: outDir,
+      tolerance,
+      repeat: Number(args.get('repeat') ?? 1),
+      field,
+      method: args.get('methods') ?? null,
+      keep: args.has('keep'),
+    });
+    printWhole(rows);
+    const file = join(outDir, `whole-${stamp}.json`);
+    writeFileSync(file, JSON.stringify({ machine, tolerance, loadAtEnd: loadavg()[0], rows }, null, 2) + '\n');
+    console.log(`load average at end ${loadavg()[0]!.toFixed(1)}; written ${file}`);
+    return;
+  }
+  if (args.has('write-stages')) {
+    const { runWriteStages } = await import('./write-stages.js');
+    console.log(`piezomap write stages — ${machine}; load average at start ${loadavg()[0]!.toFixed(1)}`);
+    await runWriteStages((args.get('sizes') ?? '1024,2048').split(',').map(Number), outDir);
+    console.log(`load average at end ${loadavg()[0]!.toFixed(1)}`);
+    return;
+  }
+  if (args.has('rough')) {
+    await runRough(args, outDir, stamp, machine, tolerance, timeLimit, maxIterations);
     return;
   }
   const sizes = (args.get('sizes') ?? '512,1024,2048').split(',').map(Number);
@@ -270,10 +318,8 @@ async function main(): Promise<void> {
   mkdirSync(out, { recursive: true });
   const scratch = join(out, 'tmp-heads');
   mkdirSync(scratch, { recursive: true });
-  const machine = `${cpus().length} x ${cpus()[0]?.model ?? 'unknown CPU'}, ${(totalmem() / 2 ** 30).toFixed(0)} GiB, Node ${process.version}`;
   console.log(`piezomap solver benchmark — ${machine}; tolerance ${tolerance}`);
   const rows: Row[] = [];
-  const stamp = new Date().toISOString().replace(/[:.]/g, '-');
   const file = join(out, `bench-${stamp}.json`);
   // rewritten after every solve, so a long run interrupted midway keeps what it measured
   const save = () => writeFileSync(file, JSON.stringify({ machine, tolerance, maxIterations, rows }, null, 2) + '\n');
@@ -308,6 +354,66 @@ async function main(): Promise<void> {
   printTable(rows);
   save();
   console.log(`written ${file}`);
+}
+
+function caseField(name: string): CaseField {
+  if (!(CASE_FIELDS as readonly string[]).includes(name)) throw new Error(`--field must be one of ${CASE_FIELDS.join(', ')}`);
+  return name as CaseField;
+}
+
+/**
+ * Iterations on the rough case (white-noise log K, sigma 3) against the smooth one: `auto` on both, `pcg-ic0` on the
+ * rough one, and the reference's iterations on the rough one when it is there.
+ */
+async function runRough(
+  args: Map<string, string>,
+  out: string,
+  stamp: string,
+  machine: string,
+  tolerance: number,
+  timeLimit: number,
+  maxIterations: number,
+): Promise<void> {
+  const sizes = (args.get('sizes') ?? '512,1024').split(',').map(Number);
+  const scratch = join(out, 'tmp-rough');
+  mkdirSync(scratch, { recursive: true });
+  const reference = referenceSolver();
+  if ('missing' in reference) process.stderr.write(`reference solver absent: ${reference.missing}\n`);
+  console.log(`piezomap rough-conductivity benchmark — ${machine}; tolerance ${tolerance}; load average at start ${loadavg()[0]!.toFixed(1)}`);
+  const rows: Array<Record<string, unknown>> = [];
+  const lines: string[] = ['| N | case | method | iterations | stop | setup s | solve s | cpu s | load |', '|---|---|---|---|---|---|---|---|---|'];
+  for (const size of sizes) {
+    const runs: Array<[CaseField, string]> = [
+      ['smooth', 'auto'],
+      ['rough', 'auto'],
+      ['rough', 'pcg-ic0'],
+    ];
+    for (const [field, method] of runs) {
+      const load = loadavg()[0]!;
+      process.stderr.write(`size ${size}: ${method} on the ${field} case (load ${load.toFixed(1)})\n`);
+      const r = spawnChild(size, method, tolerance, timeLimit, maxIterations, '', field);
+      if (!r) continue;
+      rows.push({ ...r, field, load });
+      lines.push(`| ${size} | ${field} | ${r.method === r.resolvedMethod ? r.method : `${r.method} → ${r.resolvedMethod}`} | ${r.iterations} | ${r.stopReason} | ${r.setupSeconds.toFixed(2)} | ${r.solveSeconds.toFixed(2)} | ${r.cpuSeconds.toFixed(2)} | ${load.toFixed(1)} |`);
+    }
+    if (!('missing' in reference)) {
+      const systemFile = join(scratch, `rough-${size}.bin`);
+      const made = spawnSync(process.execPath, ['--max-old-space-size=4096', fileURLToPath(import.meta.url), '--child-system', systemFile, '--size', String(size), '--field', 'rough'], { encoding: 'utf8' });
+      const load = loadavg()[0]!;
+      const ref = made.status === 0 ? runReference(reference.path, systemFile, tolerance, 1) : { error: made.stderr };
+      rmSync(systemFile, { force: true });
+      if ('error' in ref) process.stderr.write(`  reference on the rough case failed: ${ref.error}\n`);
+      else {
+        rows.push({ size, field: 'rough', method: 'reference BoomerAMG-PCG', load, ...ref });
+        lines.push(`| ${size} | rough | reference BoomerAMG-PCG | ${ref.iterations} | ${ref.converged ? 'converged' : 'not converged'} | ${ref.setupSeconds.toFixed(2)} | ${ref.solveSeconds.toFixed(2)} | ${ref.cpuSeconds.toFixed(2)} | ${load.toFixed(1)} |`);
+      }
+    }
+  }
+  rmSync(scratch, { recursive: true, force: true });
+  for (const l of lines) console.log(l);
+  const file = join(out, `rough-${stamp}.json`);
+  writeFileSync(file, JSON.stringify({ machine, tolerance, rows }, null, 2) + '\n');
+  console.log(`load average at end ${loadavg()[0]!.toFixed(1)}; written ${file}`);
 }
 
 main().catch((error: unknown) => {

@@ -4,6 +4,10 @@
  * (sigma 8 cells) normalised to unit variance; thickness 20 m; irregular inactive holes and a ragged
  * north/south border; fixed heads 100 m on the west column and 90 m on the east column; 10 wells at -500 m3/d.
  * Everything comes from a fixed seed, so a size always gives the same case.
+ *
+ * The rough variant (`field: 'rough'`) keeps everything but the conductivity: ln K = ln 10 + 3 z with z unfiltered
+ * white noise (unit variance, no spatial correlation), so neighbouring conductivities differ by up to about 10^6
+ * (the case a 2 x 2 geometric aggregation handles worst).
  */
 import type { Grid } from '../src/grid.js';
 import { geoKeysForEpsg } from '../src/raster/geokeys.js';
@@ -109,18 +113,43 @@ function removeIslands(conductivity: Float64Array, nx: number, ny: number): void
   for (let p = 0; p < n; p++) if (!seen[p]) conductivity[p] = NaN;
 }
 
+export type CaseField = 'smooth' | 'rough';
+export const CASE_FIELDS: readonly CaseField[] = ['smooth', 'rough'];
+
 export interface BenchCase {
   model: ModelInput;
   size: number;
+  field: CaseField;
 }
 
-export function benchCase(size: number, seed = 20240601): BenchCase {
+/** Unit Gaussian white noise (Box–Muller) from a fixed seed, normalised to mean 0, variance 1. */
+function whiteNoise(n: number, seed: number): Float64Array {
+  const rnd = uniform(seed);
+  const a = new Float64Array(n);
+  for (let p = 0; p < n; p += 2) {
+    const r = Math.sqrt(-2 * Math.log(1 - rnd()));
+    const v = rnd();
+    a[p] = r * Math.cos(2 * Math.PI * v);
+    if (p + 1 < n) a[p + 1] = r * Math.sin(2 * Math.PI * v);
+  }
+  let mean = 0;
+  for (let p = 0; p < n; p++) mean += a[p]!;
+  mean /= n;
+  let variance = 0;
+  for (let p = 0; p < n; p++) variance += (a[p]! - mean) ** 2;
+  const sd = Math.sqrt(variance / n);
+  for (let p = 0; p < n; p++) a[p] = (a[p]! - mean) / sd;
+  return a;
+}
+
+export function benchCase(size: number, seed = 20240601, field: CaseField = 'smooth'): BenchCase {
   const nx = size;
   const ny = size;
   const n = nx * ny;
-  const z = correlatedField(nx, ny, 8, seed);
+  const z = field === 'rough' ? whiteNoise(n, seed + 4) : correlatedField(nx, ny, 8, seed);
+  const sigma = field === 'rough' ? 3 : 2;
   const conductivity = new Float64Array(n);
-  for (let p = 0; p < n; p++) conductivity[p] = Math.exp(Math.log(10) + 2 * z[p]!);
+  for (let p = 0; p < n; p++) conductivity[p] = Math.exp(Math.log(10) + sigma * z[p]!);
   // irregular inactive holes: where a second, smoother field is high (about 2 % of the area)
   const holes = correlatedField(nx, ny, 16, seed + 1);
   for (let p = 0; p < n; p++) if (holes[p]! > 2.05) conductivity[p] = NaN;
@@ -170,7 +199,7 @@ export function benchCase(size: number, seed = 20240601): BenchCase {
     });
   }
   const model: ModelInput = {
-    title: `benchmark ${size}x${size}`,
+    title: field === 'rough' ? `benchmark ${size}x${size}, rough conductivity` : `benchmark ${size}x${size}`,
     units: { length: 'm', time: 'd' },
     scenarioPath: '<bench>',
     grid,
@@ -185,7 +214,7 @@ export function benchCase(size: number, seed = 20240601): BenchCase {
     inputFiles: [],
     warnings: [],
   };
-  return { model, size };
+  return { model, size, field };
 }
 
 /** Bottom of the unconfined benchmark case: 55 m +- 8 m (correlated, sigma 24 cells), kept in [38, 70] m. */
@@ -202,5 +231,5 @@ export function unconfinedBenchCase(size: number, seed = 20240601): BenchCase {
   const bottom = new Float64Array(nx * ny);
   const b = UNCONFINED_BOTTOM;
   for (let p = 0; p < bottom.length; p++) bottom[p] = Math.min(b.max, Math.max(b.min, b.mean + b.sd * z[p]!));
-  return { size, model: { ...base.model, title: `unconfined benchmark ${size}x${size}`, aquiferType: 'unconfined', aquiferBottom: bottom } };
+  return { size, field: base.field, model: { ...base.model, title: `unconfined benchmark ${size}x${size}`, aquiferType: 'unconfined', aquiferBottom: bottom } };
 }

@@ -14,7 +14,8 @@ export const MEMORY_LIMIT_ENV = 'PIEZOMAP_MEMORY_LIMIT_MB';
 
 /**
  * Bytes per cell of everything but the solver: the input rasters as doubles, the assembled system (conductances,
- * bands, masks, sources, right-hand side, region labels), the copy a solve worker holds, the solution and head, and
+ * bands, masks, sources, right-hand side, region labels; the worker shares the bands since they are in shared memory,
+ * which the calibration below predates), the solution and head, and
  * the products (flux rasters, contours, the map, encoded GeoTIFFs). Calibrated on a 700 x 700 solve (measured peak
  * resident memory 295 MiB with pcg-multigrid and 262 MiB with cg, including the runtime), then rounded up.
  * The solver's own workspace comes from its registry entry (bytesPerCell).

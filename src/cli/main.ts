@@ -12,13 +12,11 @@ import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
 import { assembleModel, solveModelWith, withSolverSettings, type RunOptions } from '../pipeline.js';
 import { resultProblem } from '../analysis/result.js';
 import { formatSummary } from '../output/summary.js';
-import { writeSolveResults } from '../output/solveFiles.js';
 import { inlineExecutor } from '../executor/inline.js';
 import { workerAvailable, workerExecutor } from '../executor/worker.js';
 import type { Executor } from '../executor/types.js';
 import type { ProductOptions } from '../output/products.js';
 import { formatComparison } from '../output/comparison.js';
-import { writeComparisonResults } from '../output/comparisonFiles.js';
 import { compareModelsWith, prepareComparison, resolveVariants } from '../compare/run.js';
 import { comparisonProblem } from '../compare/types.js';
 import { parseSolverOption } from '../scenario/solverSettings.js';
@@ -110,6 +108,16 @@ function runOptions(flags: SolveFlags): { options: RunOptions; progress: ReturnT
   return { options, progress };
 }
 
+/**
+ * The result writers and what they pull in (maps, report, PNG rasterising) are imported when a command writes
+ * results, so that the other commands start without them; a failed import is not left unobserved meanwhile.
+ */
+function writersModule(): Promise<typeof import('../output/solveFiles.js')> {
+  const loading = import('../output/solveFiles.js');
+  loading.catch(() => undefined);
+  return loading;
+}
+
 async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
   const { options, progress } = runOptions(flags);
   const t0 = performance.now();
@@ -119,8 +127,11 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
   // Check (and lock) the output folder before the long work.
   const folder = await prepareResultFolder(outDir, Boolean(flags.overwrite), model.inputFiles);
   printNotes(folder.notes, io);
+  // The writers (maps, report) load while the worker thread solves, off the critical path.
+  const writers = writersModule();
   const result = await solveModelWith(model, executor(), options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
+  const { writeSolveResults } = await writers;
   const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();
   const problem = resultProblem(result);
@@ -149,8 +160,11 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
   const inputs = [...loaded.model.inputFiles, ...variants.flatMap((v) => v.model.inputFiles)];
   const folder = await prepareResultFolder(outDir, Boolean(flags.overwrite), inputs);
   printNotes(folder.notes, io);
+  const writers = import('../output/comparisonFiles.js');
+  writers.catch(() => undefined);
   const comparison = await compareModelsWith(loaded.model, variants, executor(), options);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
+  const { writeComparisonResults } = await writers;
   const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
   clearProgress();
   if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');

@@ -1,3 +1,4 @@
+import { sharedFloat64Array, sharedUint8Array } from '../executor/shared.js';
 import { cellCentre, cellHeight, cellWidth, type Grid } from '../grid.js';
 import { inputError, PiezomapError } from '../errors.js';
 import { fieldAt } from '../field.js';
@@ -173,7 +174,8 @@ export function assembleSystem(model: ModelInput): FlowSystem {
   const anchor = anchorMask(terms, n);
   const regions = checkRegions(grid, active, anchor, conductanceEast, conductanceSouth);
 
-  const unknown = new Uint8Array(n);
+  // The operator's bands in shared memory: a solve worker uses them without a copy (src/executor/shared.ts).
+  const unknown = sharedUint8Array(n);
   let unknownCount = 0;
   for (let p = 0; p < n; p++) {
     if (active[p] && !fixed[p]) {
@@ -182,8 +184,8 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     }
   }
   // The couplings between unknowns depend on the aquifer only; diagonal and right-hand side also on the terms.
-  const east = new Float64Array(n);
-  const south = new Float64Array(n);
+  const east = sharedFloat64Array(n);
+  const south = sharedFloat64Array(n);
   for (let p = 0; p < n; p++) {
     if (!unknown[p]) continue;
     if (unknown[p + 1] && (p + 1) % nx !== 0) east[p] = conductanceEast[p]!;
@@ -237,7 +239,7 @@ export function linearise(
   const { grid, fixed, fixedHead, conductanceEast, conductanceSouth, terms, datum } = system;
   const { nx, ny } = grid;
   const n = nx * ny;
-  const diag = new Float64Array(n);
+  const diag = sharedFloat64Array(n);
   const rhs = new Float64Array(n);
   for (const term of terms) term.linearise(head, diag, rhs);
   for (let p = 0; p < n; p++) {

@@ -1,8 +1,10 @@
 /**
  * The executor that runs solver sessions in worker threads, so that the main thread stays free to answer SIGINT and
  * SIGTERM at once (a synchronous solve in the main thread would hold the signal until it finished). Each session is
- * one worker holding its copy of the operator and its solver set-up (e.g. the multigrid hierarchy) for as long as
- * the session is open: variants and inner solves of outer iterations reuse it. The worker runs the same solver code
+ * one worker holding the operator and its solver set-up (e.g. the multigrid hierarchy) for as long as the session is
+ * open: variants and inner solves of outer iterations reuse it. The operator's bands are shared with the worker
+ * through shared memory (./shared.ts): the assembly allocates them there, so no copy is made; the worker reads them
+ * only while it answers a request, and the main thread waits for the answer, so they are never used by both at once. The worker runs the same solver code
  * on the same numbers as the inline executor, so results are bit-for-bit the same.
  */
 import { Worker } from 'node:worker_threads';
@@ -11,6 +13,7 @@ import { fileURLToPath } from 'node:url';
 import { PiezomapError, type ErrorCode, type ErrorDetail } from '../errors.js';
 import type { SolveStats, StencilOperator } from '../solvers/types.js';
 import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, SolverSession } from './types.js';
+import { shared } from './shared.js';
 
 /** Main thread to worker. */
 export type WorkerRequest =
@@ -64,7 +67,7 @@ class WorkerSession implements SolverSession {
     worker.on('exit', (code) => fail(new PiezomapError('internal', `the solver thread stopped unexpectedly (exit code ${code})`)));
   }
 
-  /** Send a request and wait for its answer (one at a time). Arrays are copied (structured clone). */
+  /** Send a request and wait for its answer (one at a time). Arrays are copied (structured clone) unless in shared memory. */
   request(message: WorkerRequest, onProgress?: LinearSolve['onProgress']): Promise<WorkerMessage> {
     if (this.failure) return Promise.reject(this.failure);
     return new Promise((resolve, reject) => {
@@ -99,7 +102,9 @@ class WorkerSession implements SolverSession {
 export const workerExecutor: Executor = {
   async open(operator: StencilOperator, choice: SolverChoice): Promise<SolverSession> {
     const session = new WorkerSession(new Worker(WORKER_URL));
-    const { nx, ny, diag, east, south, unknown } = operator;
+    const { nx, ny } = operator;
+    // shared, not cloned: the bands in shared memory as they are, others copied there once
+    const [diag, east, south, unknown] = [shared(operator.diag), shared(operator.east), shared(operator.south), shared(operator.unknown)];
     try {
       const ready = await session.request({ kind: 'open', nx, ny, diag, east, south, unknown, choice });
       if (ready.kind === 'ready') {

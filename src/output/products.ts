@@ -8,7 +8,7 @@ import { darcyFlux, linearVelocity, type DarcyFlux } from '../analysis/flux.js';
 import { crsLabel, type Grid } from '../grid.js';
 import { CAUTION } from '../caution.js';
 import { VERSION } from '../version.js';
-import { encodeFloat32GeoTiff } from '../raster/write.js';
+import { encodeFloat32GeoTiff, type EncodeOptions } from '../raster/write.js';
 import { makeTransform } from '../crs.js';
 import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
 import type { ReportInputs, ReportRun, ReportMap } from '../report/index.js';
@@ -38,6 +38,18 @@ export interface Products {
   files: OutputFile[];
   maps: RenderedMap[];
   warnings: string[];
+}
+
+/**
+ * Encodes a raster product: `encodeFloat32GeoTiff` (bytes at once), or `encodeFloat32GeoTiffAsync` (the tiles are
+ * compressed on the thread pool while the other products are computed; the same bytes).
+ */
+export type RasterEncoder<B extends Uint8Array | Promise<Uint8Array>> = (grid: Grid, values: Float64Array, options: EncodeOptions) => B;
+
+/** A result file whose bytes may still be on their way (a raster being compressed); settled before writing. */
+export interface PendingFile<B extends Uint8Array | Promise<Uint8Array>> {
+  name: string;
+  bytes: string | Uint8Array | B;
 }
 
 const WGS84 = 4326;
@@ -84,11 +96,11 @@ function fluxOf(result: SolveResult): DarcyFlux {
   });
 }
 
-function raster(result: SolveResult, name: string, values: Float64Array, what: string): OutputFile {
+function raster<B extends Uint8Array | Promise<Uint8Array>>(result: SolveResult, name: string, values: Float64Array, what: string, encode: RasterEncoder<B>): PendingFile<B> {
   const { units, title } = result.model;
   return {
     name,
-    bytes: encodeFloat32GeoTiff(result.model.grid, values, { nodata: -9999, description: `piezomap ${VERSION} ${what} (${units.length}/${units.time}): ${title}. ${CAUTION}` }),
+    bytes: encode(result.model.grid, values, { nodata: -9999, description: `piezomap ${VERSION} ${what} (${units.length}/${units.time}): ${title}. ${CAUTION}` }),
   };
 }
 
@@ -120,25 +132,41 @@ export function exchangeRasters(result: SolveResult, prefix = ''): OutputFile[] 
 
 /** Contours, flux and velocity rasters, and the head map of one solve. */
 export function solveProducts(result: SolveResult, options: ProductOptions = {}, prefix = ''): Products {
+  return solveProductsWith(result, options, prefix, encodeFloat32GeoTiff);
+}
+
+/**
+ * As solveProducts, with the rasters encoded by `encode`. The rasters are started first, so that an asynchronous
+ * encoder compresses them while the contours and the map are computed; the files keep solveProducts' order.
+ */
+export function solveProductsWith<B extends Uint8Array | Promise<Uint8Array>>(
+  result: SolveResult,
+  options: ProductOptions,
+  prefix: string,
+  encode: RasterEncoder<B>,
+): { files: Array<PendingFile<B>>; maps: RenderedMap[]; warnings: string[] } {
   if (options.maps === false) return { files: [], maps: [], warnings: [] };
   const { model, system } = result;
-  const files: OutputFile[] = [];
+  const files: Array<PendingFile<B>> = [];
   const warnings: string[] = [];
 
   // Dry cells (water tables) are nodata on the map and in the contours, and get a legend entry of their own.
   const shownHead = headsForOutput(system.waterTable, result.head);
+  const flux = fluxOf(result);
+  const rasters = [
+    raster(result, `${prefix}darcy-flux-x.tif`, flux.qx, 'Darcy flux, east component', encode),
+    raster(result, `${prefix}darcy-flux-y.tif`, flux.qy, 'Darcy flux, north component', encode),
+    raster(result, `${prefix}darcy-flux.tif`, flux.magnitude, 'Darcy flux magnitude', encode),
+  ];
+  if (model.porosity !== undefined) {
+    const velocity = linearVelocity(model.grid, flux, model.porosity);
+    rasters.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity', encode));
+  }
+
   const headContours = contourFiles(model.grid, shownHead, 'head', model.units.length, options, prefix);
   files.push(...headContours.files);
   warnings.push(...headContours.warnings);
-
-  const flux = fluxOf(result);
-  files.push(raster(result, `${prefix}darcy-flux-x.tif`, flux.qx, 'Darcy flux, east component'));
-  files.push(raster(result, `${prefix}darcy-flux-y.tif`, flux.qy, 'Darcy flux, north component'));
-  files.push(raster(result, `${prefix}darcy-flux.tif`, flux.magnitude, 'Darcy flux magnitude'));
-  if (model.porosity !== undefined) {
-    const velocity = linearVelocity(model.grid, flux, model.porosity);
-    files.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity'));
-  }
+  files.push(...rasters);
 
   const mapInput = headMapInput(result, headContours.contours, flux);
   const map = renderMapPng(mapInput);

@@ -5,10 +5,10 @@
  */
 import { resultProblem, type SolveResult } from '../analysis/result.js';
 import { CAUTION } from '../caution.js';
-import { encodeFloat32GeoTiff } from '../raster/write.js';
+import { encodeFloat32GeoTiff, encodeFloat32GeoTiffAsync } from '../raster/write.js';
 import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
-import { exchangeRasters, reportInputs, reportRun, solveProducts, type ProductOptions, type RenderedMap } from './products.js';
+import { exchangeRasters, reportInputs, reportRun, solveProductsWith, type PendingFile, type ProductOptions, type RasterEncoder, type RenderedMap } from './products.js';
 import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
 import { budgetCsv, buildSummary, convergenceCsv, outerConvergenceCsv, type SummaryJson } from './summary.js';
 import { trackingFiles } from './tracking.js';
@@ -28,12 +28,21 @@ export interface ResultBundle {
  * Product warnings are appended to `result.warnings`. `prefix` places them in a sub-folder, e.g. `NAME/`.
  */
 export function resultBundle(result: SolveResult, prefix = '', options: ProductOptions = {}): ResultBundle {
+  return bundleWith(result, prefix, options, encodeFloat32GeoTiff);
+}
+
+function bundleWith<B extends Uint8Array | Promise<Uint8Array>>(
+  result: SolveResult,
+  prefix: string,
+  options: ProductOptions,
+  encode: RasterEncoder<B>,
+): { files: Array<PendingFile<B>>; maps: RenderedMap[] } {
   const sound = resultProblem(result) === null;
-  const files: OutputFile[] = [];
+  const files: Array<PendingFile<B>> = [];
   const description = `piezomap ${VERSION} head (${result.model.units.length}): ${result.model.title}. ${CAUTION}`;
   const table = result.system.waterTable;
   // Dry cells of a water-table aquifer are nodata in head.tif (physics.md).
-  const headBytes = encodeFloat32GeoTiff(result.model.grid, headsForOutput(table, result.head), { nodata: -9999, description });
+  const headBytes = encode(result.model.grid, headsForOutput(table, result.head), { nodata: -9999, description });
   files.push({ name: prefix + (sound ? 'head.tif' : 'head-not-converged.tif'), bytes: headBytes });
   files.push({ name: prefix + 'budget.csv', bytes: budgetCsv(result.budget) });
   const outer = result.outer.stopReason === 'linear' ? null : result.outer;
@@ -45,7 +54,7 @@ export function resultBundle(result: SolveResult, prefix = '', options: ProductO
   }
   if (!sound) return { files, maps: [] };
   files.push(...exchangeRasters(result, prefix));
-  const products = solveProducts(result, options, prefix);
+  const products = solveProductsWith(result, options, prefix, encode);
   for (const w of products.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
   files.push(...products.files);
   // Capture zones, pathlines and their rasters are data (written with or without maps).
@@ -53,6 +62,17 @@ export function resultBundle(result: SolveResult, prefix = '', options: ProductO
   for (const w of tracking.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
   files.push(...tracking.files);
   return { files, maps: products.maps };
+}
+
+/**
+ * As resultBundle, the same files, with the rasters compressed on the thread pool while the contours and the map
+ * are computed in this thread (resolves once every file is complete).
+ */
+export async function resultBundleConcurrent(result: SolveResult, prefix = '', options: ProductOptions = {}): Promise<ResultBundle> {
+  const bundle = bundleWith(result, prefix, options, encodeFloat32GeoTiffAsync);
+  // all at once, so that no rejection waits unobserved behind another file
+  const bytes = await Promise.all(bundle.files.map((f) => f.bytes));
+  return { files: bundle.files.map((f, i) => ({ name: f.name, bytes: bytes[i]! })), maps: bundle.maps };
 }
 
 export function resultFiles(result: SolveResult, prefix = '', options: ProductOptions = {}): OutputFile[] {
@@ -88,11 +108,35 @@ export function solveFolderFiles(
 ): { files: OutputFile[]; maps: RenderedMap[]; summary: SummaryJson } {
   const t = performance.now();
   const bundle = resultBundle(result, prefix, options);
+  if (prefix === '') result.timings.write = (performance.now() - t) / 1000;
+  return folderFromBundle(result, bundle, prefix, extra, extraMaps);
+}
+
+/** As solveFolderFiles, the same files, with the rasters compressed concurrently (resultBundleConcurrent). */
+export async function solveFolderFilesConcurrent(
+  result: SolveResult,
+  prefix: string,
+  options: ProductOptions,
+  extra: OutputFile[] = [],
+  extraMaps: RenderedMap[] = [],
+): Promise<{ files: OutputFile[]; maps: RenderedMap[]; summary: SummaryJson }> {
+  const t = performance.now();
+  const bundle = await resultBundleConcurrent(result, prefix, options);
+  if (prefix === '') result.timings.write = (performance.now() - t) / 1000;
+  return folderFromBundle(result, bundle, prefix, extra, extraMaps);
+}
+
+function folderFromBundle(
+  result: SolveResult,
+  bundle: ResultBundle,
+  prefix: string,
+  extra: OutputFile[],
+  extraMaps: RenderedMap[],
+): { files: OutputFile[]; maps: RenderedMap[]; summary: SummaryJson } {
   const files = [...bundle.files, ...extra];
   const maps = [...extraMaps, ...bundle.maps];
   const withReport = maps.length > 0;
   const names = [...files.map((f) => f.name.slice(prefix.length)), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
-  if (prefix === '') result.timings.write = (performance.now() - t) / 1000;
   const summary = buildSummary(result, names, VERSION);
   // Map paths are relative to OUTDIR; inside the run's folder they are not prefixed.
   const local = maps.map((m) => ({ ...m, file: m.file.startsWith(prefix) ? m.file.slice(prefix.length) : m.file }));
@@ -115,7 +159,7 @@ export async function writeSolveResults(
   const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), result.model.inputFiles);
   for (const note of folder.notes) if (!result.warnings.includes(note)) result.warnings.push(note);
   try {
-    const { files, summary } = solveFolderFiles(result, '', options);
+    const { files, summary } = await solveFolderFilesConcurrent(result, '', options);
     await writeResultFiles(folder, files);
     return summary;
   } finally {

@@ -9,7 +9,8 @@
  * (OGC 19-008r4) for ModelPixelScale/ModelTiepoint/ModelTransformation and GeoKeys; GDAL's GTiff driver documentation
  * for tag 42113 (GDAL_NODATA, ASCII).
  */
-import { deflateSync } from 'node:zlib';
+import { deflate, deflateSync } from 'node:zlib';
+import { promisify } from 'node:util';
 import { PiezomapError } from '../errors.js';
 import type { Grid } from '../grid.js';
 import { GEO_ASCII_PARAMS_TAG, GEO_DOUBLE_PARAMS_TAG, GEO_KEY_DIRECTORY_TAG, RASTER_PIXEL_IS_AREA, encodeGeoKeys, geoKeysForEpsg } from './geokeys.js';
@@ -20,6 +21,8 @@ export interface EncodeOptions extends WriteRasterOptions {
   /** Force BigTIFF (true) or classic TIFF (false); default: BigTIFF only when the file would pass 4 GiB. */
   bigTiff?: boolean;
 }
+
+const deflateAsync = promisify(deflate);
 
 const OPTION_NAMES = new Set(['nodata', 'tileSize', 'compressionLevel', 'description', 'bigTiff']);
 
@@ -71,14 +74,46 @@ interface Entry {
  * NaN cells are written as the nodata value, which is declared in the GDAL_NODATA tag.
  */
 export function encodeFloat32GeoTiff(grid: Grid, values: ArrayLike<number>, options: EncodeOptions = {}): Uint8Array {
+  const job = prepare(grid, values, options);
+  const tiles: Uint8Array[] = [];
+  // one predicted-tile buffer, compressed at once
+  eachPredictedTile(grid.nx, grid.ny, values, job.tileSize, job.nodata, false, (t) => tiles.push(deflateSync(t, { level: job.level })));
+  return finish(grid, job, tiles, options);
+}
+
+/**
+ * As encodeFloat32GeoTiff, the same bytes, with the tiles compressed on the thread pool (zlib's asynchronous
+ * DEFLATE): the calling thread cuts and predicts the tiles, then is free for other work (the other products) while
+ * the tiles are compressed on the other cores. The checks are the same and throw at once (not as a rejection), before
+ * anything is queued; `values` may change once this returns (the tiles are copies).
+ */
+export function encodeFloat32GeoTiffAsync(grid: Grid, values: ArrayLike<number>, options: EncodeOptions = {}): Promise<Uint8Array> {
+  const job = prepare(grid, values, options);
+  const pending: Array<Promise<Uint8Array>> = [];
+  // every tile in its own buffer, all queued now
+  eachPredictedTile(grid.nx, grid.ny, values, job.tileSize, job.nodata, true, (t) => pending.push(deflateAsync(t, { level: job.level })));
+  return Promise.all(pending).then((tiles) => finish(grid, job, tiles, options));
+}
+
+interface EncodeJob {
+  nodata: number;
+  tileSize: number;
+  level: number;
+  /** The tags, with placeholder tile offsets and byte counts (assemble() fills them in). */
+  entries: Entry[];
+}
+
+function prepare(grid: Grid, values: ArrayLike<number>, options: EncodeOptions): EncodeJob {
   const nodata = options.nodata ?? -9999;
   const tileSize = options.tileSize ?? 256;
   const level = options.compressionLevel ?? 6;
   checkArguments(grid, values, options, nodata, tileSize, level);
   checkSinglePrecisionRange(grid, values, options.description);
+  return { nodata, tileSize, level, entries: tagEntries(grid, tileSize, nodata, options.description) };
+}
 
-  const tiles = encodeTiles(grid.nx, grid.ny, values, tileSize, nodata, level);
-  const entries = tagEntries(grid, tileSize, nodata, options.description);
+function finish(grid: Grid, job: EncodeJob, tiles: Uint8Array[], options: EncodeOptions): Uint8Array {
+  const entries = job.entries;
   const dataBytes = tiles.reduce((sum, t) => sum + t.length, 0);
   const classicSize = layoutSize(entries, tiles.length, false) + dataBytes;
   const bigTiff = options.bigTiff ?? classicSize > CLASSIC_LIMIT;
@@ -145,17 +180,25 @@ function checkArguments(grid: Grid, values: ArrayLike<number>, options: EncodeOp
 }
 
 /**
- * Cut the raster into tiles, apply the floating-point predictor and DEFLATE each tile. One tile workspace is reused;
- * cells beyond the raster's right and bottom edges are padded with nodata.
+ * Cut the raster into tiles, apply the floating-point predictor and hand each predicted tile to `each`, in row-major
+ * tile order: into one reused buffer, or (`fresh`) into a new buffer per tile, for compressing later. One Float32
+ * tile workspace is reused; cells beyond the raster's right and bottom edges are padded with nodata.
  */
-function encodeTiles(nx: number, ny: number, values: ArrayLike<number>, tileSize: number, nodata: number, level: number): Uint8Array[] {
+function eachPredictedTile(
+  nx: number,
+  ny: number,
+  values: ArrayLike<number>,
+  tileSize: number,
+  nodata: number,
+  fresh: boolean,
+  each: (predicted: Uint8Array) => void,
+): void {
   const tilesAcross = Math.ceil(nx / tileSize);
   const tilesDown = Math.ceil(ny / tileSize);
   const tile = new Float32Array(tileSize * tileSize);
   const tileBytes = new Uint8Array(tile.buffer);
-  const predicted = new Uint8Array(tileBytes.length);
   const rowBytes = tileSize * 4;
-  const chunks: Uint8Array[] = [];
+  let predicted = new Uint8Array(tileBytes.length);
   for (let ty = 0; ty < tilesDown; ty++) {
     const rows = Math.min(tileSize, ny - ty * tileSize);
     for (let tx = 0; tx < tilesAcross; tx++) {
@@ -169,11 +212,11 @@ function encodeTiles(nx: number, ny: number, values: ArrayLike<number>, tileSize
           tile[dst + c] = v !== v ? nodata : v;
         }
       }
+      if (fresh) predicted = new Uint8Array(tileBytes.length);
       for (let r = 0; r < tileSize; r++) predictFloatRow(tileBytes, predicted, r * rowBytes, tileSize);
-      chunks.push(deflateSync(predicted, { level }));
+      each(predicted);
     }
   }
-  return chunks;
 }
 
 /**
