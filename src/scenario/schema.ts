@@ -188,6 +188,20 @@ export const pointCrsSchema = z
   .string()
   .regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' });
 
+/** Uncertainty ensembles (`piezomap ensemble`): realisations of ln K multiplying the conductivity raster. Baseline only. */
+export const ensembleSchema = strict({
+  realisations: z.int().gt(0).lte(1_000_000),
+  seed: z.int().gte(0).lte(4294967295),
+  logConductivity: strict({
+    sd: finite.gte(0).lte(10),
+    correlationLength: z.union([finite.gt(0), z.tuple([finite.gt(0), finite.gt(0)])]),
+    model: z.enum(['exponential', 'gaussian']).default('exponential'),
+  }),
+  conditioning: filePath.optional(),
+  drawdownThresholds: z.array(finite.gt(0)).default([]),
+  percentiles: z.array(finite.gt(0).lt(100)).default([5, 50, 95]),
+});
+
 /** Keys a variant may replace: every top-level key except `variants`. */
 const replaceableFields = {
   title: z.string().optional(),
@@ -217,6 +231,7 @@ export const scenarioSchema = strict({
   ...replaceableFields,
   aquifer: aquiferSchema,
   fixedHeads: replaceableFields.fixedHeads.unwrap(),
+  ensemble: ensembleSchema.optional(),
   variants: z
     .array(variantSchema)
     .superRefine((variants, ctx) => {
@@ -247,6 +262,7 @@ export type ObservationEntry = z.output<typeof observationSchema>;
 export type ReceptorEntry = z.output<typeof receptorSchema>;
 export type SolverJson = z.output<typeof solverSchema>;
 export type VariantJson = z.output<typeof variantSchema>;
+export type EnsembleJson = z.output<typeof ensembleSchema>;
 type ParsedScenario = z.output<typeof scenarioSchema>;
 
 /**
