@@ -11,7 +11,7 @@ const LAYERS = [
   { name: 'raster', path: '^src/raster/' },
   { name: 'scenario', path: '^src/scenario/' },
   { name: 'discretisation', path: '^src/discretisation/' },
-  { name: 'analysis', path: '^src/(analysis/|ensemble/(field|conditioning|stats)\\.ts$)' },
+  { name: 'analysis', path: '^src/(analysis/|ensemble/(field|conditioning|stats|types)\\.ts$)' },
   { name: 'results', path: '^src/compare/types\\.ts$' },
   { name: 'report', path: '^src/report/' },
   { name: 'output', path: '^src/(output/|ensemble/files\\.ts$)' },

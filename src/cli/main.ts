@@ -26,6 +26,7 @@ import type { SolverSettings } from '../scenario/types.js';
 import { abandonResultFoldersSync, prepareResultFolder } from '../output/resultFolder.js';
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
+import { addEnsembleCommand } from './ensemble.js';
 
 interface CommonFlags {
   json?: boolean;
@@ -238,6 +239,8 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
     const overwrite = flags.overwrite ?? flags.out === 'piezomap-demo';
     await run(() => runSolve(demoScenarioPath(), flags.out!, { ...flags, overwrite }, io))();
   });
+
+  addEnsembleCommand(program, io, run);
 
   return program;
 }
