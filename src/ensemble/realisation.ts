@@ -135,6 +135,11 @@ function runRecord(ctx: EnsembleContext, result: SolveResult | null, reason: str
   };
 }
 
+/** The baseline conductivity of realisation `index`. */
+export function realisationConductivity(ctx: EnsembleContext, index: number): Float64Array {
+  return realisedConductivity(ctx.baseline.conductivity, realisationField(ctx, index), ctx.measured);
+}
+
 /** Solve realisation `index`: the baseline and every variant on the realisation's conductivity. */
 export function solveRealisation(ctx: EnsembleContext, index: number): RealisationRecord {
   const y = realisationField(ctx, index);
