@@ -291,6 +291,14 @@ async function main(): Promise<void> {
         ],
       },
     ],
+    // `piezomap ensemble`: 200 realisations of ln K (sd 0.5, correlated over 1.5 km along the valley, 0.8 km across).
+    ensemble: {
+      realisations: 200,
+      seed: 2026,
+      logConductivity: { sd: 0.5, correlationLength: [1500, 800], model: 'exponential' },
+      drawdownThresholds: [0.1, 0.2],
+      percentiles: [5, 50, 95],
+    },
   });
 
   // Solve the baseline once to invent observed heads that a field campaign could plausibly have measured.
