@@ -6,8 +6,8 @@
  * The pooled runs use the built program (`npm test` builds first) in a child process.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { spawnSync } from 'node:child_process';
-import { mkdtempSync, readdirSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import { spawn, spawnSync } from 'node:child_process';
+import { existsSync, mkdtempSync, readdirSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join, relative, resolve } from 'node:path';
 import { fromArrayBuffer } from 'geotiff';
@@ -209,5 +209,23 @@ describe('piezomap ensemble', () => {
     expect(summary.runs[0].converged).toBe(0);
     expect(summary.runs[0].notConverged).toHaveLength(10);
     expect(summary.runs[0].notConverged[0].realisation).toBe(0);
+  });
+
+  it('Ctrl-C during the realisations leaves no result file and no lock (exit 130)', async () => {
+    // As for solve (../shared/spec/interface.md: a failed command leaves no partial result file).
+    const scenario = writeScenario('long.json', ensembleKey({ realisations: 2000 }));
+    const out = join(dir, 'interrupted');
+    const child = spawn(process.execPath, [BIN, 'ensemble', scenario, '-o', out, '--workers', '2'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    let stderr = '';
+    child.stderr.on('data', (d) => (stderr += d));
+    const exited = new Promise<number | null>((r) => child.on('exit', (code) => r(code)));
+    // Wait until the result folder is locked (the run has begun), then a little into the realisations.
+    for (let i = 0; i < 400 && !existsSync(join(out, '.piezomap-lock')); i++) await new Promise((r) => setTimeout(r, 50));
+    expect(existsSync(join(out, '.piezomap-lock'))).toBe(true);
+    await new Promise((r) => setTimeout(r, 1500));
+    child.kill('SIGINT');
+    expect(await exited).toBe(130);
+    expect(stderr).toMatch(/interrupted by SIGINT/);
+    expect(readdirSync(out)).toEqual([]);
   });
 });
