@@ -79,3 +79,12 @@ export { headAtPoint, type WellResult, type ObservationResult } from './analysis
 export { readRaster, encodeFloat32GeoTiff, type RasterData, type EncodeOptions } from './raster/index.js';
 export { buildSummary, formatSummary, type SummaryJson } from './output/summary.js';
 export { comparisonCsv, comparisonSummary, formatComparison, type ComparisonSummaryJson } from './output/comparison.js';
+
+// Uncertainty ensembles (docs/ensembles.md).
+export { runEnsemble, loadEnsemble, parseShard, shardRange, type EnsembleOptions, type EnsembleRun } from './ensemble/run.js';
+export { ensembleFiles, ensembleCsv, shardFiles, type EnsembleSummaryJson } from './ensemble/files.js';
+export { readShards } from './ensemble/shard.js';
+export { GaussianFieldGenerator, covariance, type FieldSpec, type CovarianceModel } from './ensemble/field.js';
+export { Conditioner, type ConditioningDatum } from './ensemble/conditioning.js';
+export { cellStatistics, pointStatistics, quantileSorted } from './ensemble/stats.js';
+export type { EnsembleSetup, RealisationRecord, RunRecord, PointColumn } from './ensemble/types.js';
