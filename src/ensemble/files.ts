@@ -15,59 +15,19 @@ import { RESULT_MARKER, type OutputFile } from '../output/resultFolder.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { VERSION } from '../version.js';
 import { cellStatistics, pointStatistics, type PointStatistics } from './stats.js';
-import type { EnsembleSetup, RealisationRecord, RunRecord } from './types.js';
+import type { EnsembleRunInfo, EnsembleSetup, EnsembleSummaryJson, RealisationRecord, RunRecord } from './types.js';
+import { ensembleReportHtml } from './report.js';
 
 export const SHARD_VALUES = 'realisations.f32';
 export const ENSEMBLE_CSV = 'ensemble.csv';
+export const ENSEMBLE_REPORT = 'report.html';
 
 /** How a number is written in a file name (as JSON writes it: 5, 2.5, 0.5). */
 export function numberLabel(v: number): string {
   return String(v);
 }
 
-/** What a run (timings, hosts, workers, shards) says about itself: the one part of summary.json that may differ. */
-export interface EnsembleRunInfo {
-  workers?: number;
-  hosts: string[];
-  shards?: Array<{ shard: string; realisations: [number, number]; host: string; workers: number; seconds: number }>;
-  seconds: Record<string, number>;
-}
-
-export interface PointSummary {
-  id: string;
-  kind: string;
-  mean: number | null;
-  sd: number | null;
-  count: number;
-  percentiles: Record<string, number | null>;
-}
-
-export interface EnsembleSummaryJson {
-  piezomap: string;
-  command: 'ensemble';
-  caution: string;
-  title: string;
-  scenario: string;
-  units: { length: string; time: string };
-  realisations: number;
-  seed: number;
-  logConductivity: EnsembleSetup['logConductivity'];
-  conditioning: EnsembleSetup['conditioning'];
-  embedding: EnsembleSetup['embedding'];
-  percentiles: number[];
-  drawdownThresholds: number[];
-  percentileMethod: string;
-  runs: Array<{
-    name: string;
-    converged: number;
-    notConverged: Array<{ realisation: number; reason: string }>;
-    headAtPoints: PointSummary[];
-    drawdownAtPoints?: Array<PointSummary & { exceedance: Array<{ threshold: number; probability: number | null }> }>;
-  }>;
-  files: string[];
-  warnings: string[];
-  run: EnsembleRunInfo;
-}
+export type { EnsembleRunInfo, EnsembleSummaryJson, PointSummary } from './types.js';
 
 function pct(stats: PointStatistics, percentiles: readonly number[]): Record<string, number | null> {
   return Object.fromEntries(percentiles.map((p, k) => [`p${numberLabel(p)}`, stats.percentiles[k]!]));
@@ -158,10 +118,12 @@ export function ensembleFiles(setup: EnsembleSetup, records: readonly Realisatio
     drawdownThresholds: thresholds,
     percentileMethod: 'exact: per-cell values of every realisation sorted, linear interpolation between order statistics (Hyndman & Fan 1996, definition 7)',
     runs,
-    files: [...files.map((f) => f.name), RESULT_MARKER],
+    files: [...files.map((f) => f.name), ENSEMBLE_REPORT, RESULT_MARKER],
     warnings,
     run: runInfo,
   };
+  // The report shows no timings (the run section), so a merge writes the same bytes.
+  files.push({ name: ENSEMBLE_REPORT, bytes: ensembleReportHtml(setup, records, { ...summary, run: { hosts: [], seconds: {} } }) });
   files.push({ name: RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
   return { files, summary };
 }

@@ -117,7 +117,11 @@ function checkEnsembleMemory(setup: EnsembleSetup, count: number): void {
   }
 }
 
-export async function loadEnsemble(scenario: string, options: EnsembleOptions = {}): Promise<{ ctx: EnsembleContext; setup: EnsembleSetup; model: ModelInput; inputFiles: string[] }> {
+export async function loadEnsemble(
+  scenario: string,
+  options: EnsembleOptions = {},
+): Promise<{ ctx: EnsembleContext; setup: EnsembleSetup; model: ModelInput; inputFiles: string[]; seconds: number }> {
+  const t0 = performance.now();
   const { model, raw } = await loadScenario(scenario);
   if (!model.ensemble) {
     throw inputError(`${scenario}: the scenario has no "ensemble" key, so there is nothing to run`, {
@@ -129,7 +133,7 @@ export async function loadEnsemble(scenario: string, options: EnsembleOptions = 
   const overrides = solverOverrides(options);
   const ctx = prepareEnsemble(model, variants, overrides);
   const inputFiles = [...new Set([...model.inputFiles, ...variants.flatMap((v) => v.model.inputFiles)])];
-  return { ctx, setup: ensembleSetup(ctx, raw, overrides), model, inputFiles };
+  return { ctx, setup: ensembleSetup(ctx, raw, overrides), model, inputFiles, seconds: (performance.now() - t0) / 1000 };
 }
 
 function solverOverrides(options: EnsembleOptions): SolverOverrides {
@@ -143,12 +147,11 @@ function solverOverrides(options: EnsembleOptions): SolverOverrides {
 
 /** Run an ensemble (or one shard of it). Does not write anything. */
 export async function runEnsemble(scenario: string, options: EnsembleOptions = {}, loaded?: Awaited<ReturnType<typeof loadEnsemble>>): Promise<EnsembleRun> {
-  const t0 = performance.now();
-  const { ctx, setup, inputFiles } = loaded ?? (await loadEnsemble(scenario, options));
+  const { ctx, setup, inputFiles, seconds: loadSeconds } = loaded ?? (await loadEnsemble(scenario, options));
   const range: [number, number] = options.shard ? shardRange(setup.realisations, options.shard.k, options.shard.n) : [0, setup.realisations];
   const indices = Array.from({ length: range[1] - range[0] }, (_, i) => range[0] + i);
   checkEnsembleMemory(setup, options.shard ? indices.length : setup.realisations);
-  const tLoad = performance.now();
+  const tStart = performance.now();
   const byIndex = new Map<number, RealisationRecord>();
   const workers = options.workers ?? availableParallelism();
   const pooled = !options.inline && ensembleWorkerAvailable();
@@ -175,7 +178,7 @@ export async function runEnsemble(scenario: string, options: EnsembleOptions = {
     runInfo: {
       workers: pooled ? Math.max(1, Math.min(workers, indices.length)) : 1,
       hosts: [hostname()],
-      seconds: { load: (tLoad - t0) / 1000, realisations: (tEnd - tLoad) / 1000 },
+      seconds: { load: loadSeconds, realisations: (tEnd - tStart) / 1000 },
     },
   };
 }

@@ -50,3 +50,47 @@ export interface EnsembleSetup {
   columns: PointColumn[];
   warnings: string[];
 }
+
+/** What a run (timings, hosts, workers, shards) says about itself: the one part of summary.json that may differ. */
+export interface EnsembleRunInfo {
+  workers?: number;
+  hosts: string[];
+  shards?: Array<{ shard: string; realisations: [number, number]; host: string; workers: number; seconds: number }>;
+  seconds: Record<string, number>;
+}
+
+export interface PointSummary {
+  id: string;
+  kind: string;
+  mean: number | null;
+  sd: number | null;
+  count: number;
+  percentiles: Record<string, number | null>;
+}
+
+export interface EnsembleSummaryJson {
+  piezomap: string;
+  command: 'ensemble';
+  caution: string;
+  title: string;
+  scenario: string;
+  units: { length: string; time: string };
+  realisations: number;
+  seed: number;
+  logConductivity: EnsembleSetup['logConductivity'];
+  conditioning: EnsembleSetup['conditioning'];
+  embedding: EnsembleSetup['embedding'];
+  percentiles: number[];
+  drawdownThresholds: number[];
+  percentileMethod: string;
+  runs: Array<{
+    name: string;
+    converged: number;
+    notConverged: Array<{ realisation: number; reason: string }>;
+    headAtPoints: PointSummary[];
+    drawdownAtPoints?: Array<PointSummary & { exceedance: Array<{ threshold: number; probability: number | null }> }>;
+  }>;
+  files: string[];
+  warnings: string[];
+  run: EnsembleRunInfo;
+}

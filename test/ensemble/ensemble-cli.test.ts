@@ -129,6 +129,10 @@ describe('piezomap ensemble', () => {
       expect(Buffer.compare(readFileSync(join(one, f)), readFileSync(join(merged, f))), f).toBe(0);
     }
     expect(withoutRun(join(merged, 'summary.json'))).toEqual(withoutRun(join(one, 'summary.json')));
+    // The report: a histogram at the receptor, and the caution.
+    const report = readFileSync(join(one, 'report.html'), 'utf8');
+    expect(report).toMatch(/aria-label="histogram of drawdown at R-1"/);
+    expect(report).toContain('qualified hydrogeologist');
     // A missing shard is refused (exit 2), naming it.
     const partial = run(['ensemble', 'merge', shards[0]!, shards[1]!, '-o', join(dir, 'partial')]);
     expect(partial.code).toBe(2);
