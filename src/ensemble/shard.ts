@@ -82,7 +82,7 @@ export async function readShards(dirs: readonly string[]): Promise<MergedShards>
       realisations: s.summary.range,
       host: s.summary.run.hosts.join(', '),
       workers: s.summary.run.workers ?? 1,
-      seconds: Object.values(s.summary.run.seconds).reduce((a, b) => a + b, 0),
+      seconds: s.summary.run.seconds.total ?? (s.summary.run.seconds.load ?? 0) + (s.summary.run.seconds.realisations ?? 0),
     })),
     seconds: {},
   };
