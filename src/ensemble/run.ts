@@ -82,7 +82,12 @@ export function parseShard(given: string, env: NodeJS.ProcessEnv = process.env):
 export function ensembleSetup(ctx: EnsembleContext, raw: ScenarioJson, overrides: SolverOverrides): EnsembleSetup {
   const m = ctx.baseline;
   const s = ctx.settings;
-  const fingerprint = createHash('sha256').update(JSON.stringify({ raw, overrides, version: VERSION })).digest('hex');
+  // The scenario as validated names its rasters by path only: their values (conductivity, and thickness when a
+  // raster) go into the hash too, so that shards run against different data cannot be merged.
+  const hash = createHash('sha256').update(JSON.stringify({ raw, overrides, version: VERSION }));
+  hash.update(new Uint8Array(m.conductivity.buffer, m.conductivity.byteOffset, m.conductivity.byteLength));
+  if (typeof m.thickness !== 'number') hash.update(new Uint8Array(m.thickness.buffer, m.thickness.byteOffset, m.thickness.byteLength));
+  const fingerprint = hash.digest('hex');
   const setup: EnsembleSetup = {
     fingerprint,
     title: m.title,
