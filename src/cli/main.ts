@@ -27,6 +27,7 @@ import { abandonResultFoldersSync, prepareResultFolder } from '../output/resultF
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
 import { addEnsembleCommand } from './ensemble.js';
+import { prepareEnsemble } from '../ensemble/realisation.js';
 
 interface CommonFlags {
   json?: boolean;
@@ -175,7 +176,10 @@ async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Prom
   const settled = withSolverSettings(model, {});
   const system = assembleModel(settled);
   // Variants are resolved and checked as compare would, without solving.
-  const prepared = prepareComparison(model, await resolveVariants(model, raw), {}, system);
+  const variants = await resolveVariants(model, raw);
+  const prepared = prepareComparison(model, variants, {}, system);
+  // The ensemble key as `ensemble` would check it: conditioning points on active cells, the embedding.
+  if (model.ensemble) prepareEnsemble(model, variants);
   const report = inspectReport(settled, system, chooseAutoMethod(system.operator), prepared.variants);
   io.stdout(flags.json ? JSON.stringify(report, null, 2) + '\n' : formatInspect(report));
   return 0;
