@@ -122,9 +122,23 @@ describe.skipIf(why !== null && !inCi)('ensemble as a Slurm job array', () => {
   });
 
   afterAll(() => {
+    // The daemons we started, by the pids they wrote: wait until they are gone (they write logs and state until then).
+    const pids = ['slurmctld.pid', 'slurmd.pid']
+      .map((f) => join(dir ?? '', f))
+      .filter((f) => dir && existsSync(f))
+      .map((f) => Number(readFileSync(f, 'utf8').trim()))
+      .filter((pid) => pid > 0);
+    const alive = (pid: number) => {
+      try {
+        process.kill(pid, 0);
+        return true;
+      } catch {
+        return false;
+      }
+    };
     if (started) {
       sh('scontrol', ['shutdown']);
-      for (let i = 0; i < 20 && (existsSync(join(dir, 'slurmctld.pid')) || existsSync(join(dir, 'slurmd.pid'))); i++) spawnSync('sleep', ['0.5']);
+      for (let i = 0; i < 40 && pids.some(alive); i++) spawnSync('sleep', ['0.25']);
     }
     if (mungePid) {
       try {
@@ -133,7 +147,7 @@ describe.skipIf(why !== null && !inCi)('ensemble as a Slurm job array', () => {
         // already gone
       }
     }
-    if (dir) rmSync(dir, { recursive: true, force: true });
+    if (dir) rmSync(dir, { recursive: true, force: true, maxRetries: 10, retryDelay: 200 });
   });
 
   it('sbatch --array --wait with --shard auto, then merge, equals a one-process run', () => {
