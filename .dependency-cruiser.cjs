@@ -11,11 +11,11 @@ const LAYERS = [
   { name: 'raster', path: '^src/raster/' },
   { name: 'scenario', path: '^src/scenario/' },
   { name: 'discretisation', path: '^src/discretisation/' },
-  { name: 'analysis', path: '^src/analysis/' },
+  { name: 'analysis', path: '^src/(analysis/|ensemble/(field|conditioning|stats|types)\\.ts$)' },
   { name: 'results', path: '^src/compare/types\\.ts$' },
   { name: 'report', path: '^src/report/' },
-  { name: 'output', path: '^src/output/' },
-  { name: 'run', path: '^src/(pipeline\\.ts|compare/run\\.ts)$' },
+  { name: 'output', path: '^src/(output/|ensemble/(files|report)\\.ts$)' },
+  { name: 'run', path: '^src/(pipeline\\.ts|compare/run\\.ts|ensemble/(run|realisation|pool|ensembleWorker|shard)\\.ts)$' },
   { name: 'cli', path: '^src/(cli/|index\\.ts$)' },
 ];
 

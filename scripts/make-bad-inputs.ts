@@ -395,6 +395,18 @@ export function writeBadInputs(dir: string): BadInputCase[] {
     const out = outFor('compare-variant-baseline');
     cases.push({ name: 'compare-variant-baseline', what: 'compare: a variant named "Baseline"', args: ['compare', path, '-o', out], out, code: 2, message: /variants\[0\]\.name.*reserved/, allowedFiles: [] });
   }
+  // ensemble: the key's values, the conditioning points, the command's options.
+  const ensembleKey = { realisations: 4, seed: 1, logConductivity: { sd: 0.5, correlationLength: 300 } };
+  const ensembleCase = (name: string, what: string, ensemble: Record<string, unknown>, message: RegExp, args: string[] = []) => {
+    const path = file(`${name}.json`, JSON.stringify({ ...baseScenario(), ensemble: { ...ensembleKey, ...ensemble } }, null, 2));
+    const out = outFor(name);
+    cases.push({ name, what, args: ['ensemble', path, '-o', out, ...args], out, code: 2, message, allowedFiles: [] });
+  };
+  ensembleCase('ensemble-negative-sd', 'ensemble: a negative sd of ln K', { logConductivity: { sd: -1, correlationLength: 300 } }, /ensemble\.logConductivity\.sd/);
+  ensembleCase('ensemble-unknown-model', 'ensemble: a covariance model we do not have', { logConductivity: { sd: 1, correlationLength: 300, model: 'spherical' } }, /ensemble\.logConductivity\.model/);
+  file('k-measured-hole.csv', `id,x,y,k\nPT-7,${hole.x},${hole.y},3.5\n`);
+  ensembleCase('ensemble-conditioning-inactive', 'ensemble: a measured K in the inactive block', { conditioning: 'k-measured-hole.csv' }, /"PT-7".*inactive cell/);
+  ensembleCase('ensemble-bad-shard', 'ensemble: --shard 4/3', {}, /--shard "4\/3"/, ['--shard', '4/3']);
 
   // --- scenario JSON -----------------------------------------------------------------------------------------
   const rawCase = (name: string, what: string, text: string, message: RegExp) => {

@@ -367,6 +367,14 @@ async function main(): Promise<void> {
         ],
       },
     ],
+    // `piezomap ensemble`: 200 realisations of ln K (sd 0.5, correlated over 1.5 km along the valley, 0.8 km across).
+    ensemble: {
+      realisations: 200,
+      seed: 2026,
+      logConductivity: { sd: 0.5, correlationLength: [1500, 800], model: 'exponential' },
+      drawdownThresholds: [0.1, 0.2],
+      percentiles: [5, 50, 95],
+    },
   });
 
   // Solve once without the ditch to set its level DITCH_DEPTH below the head there, so that it runs in the baseline.

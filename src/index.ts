@@ -94,3 +94,12 @@ export {
   type TrackingField,
 } from './analysis/tracking/index.js';
 export { saturatedThickness } from './discretisation/thickness.js';
+
+// Uncertainty ensembles (docs/ensembles.md).
+export { runEnsemble, loadEnsemble, parseShard, shardRange, type EnsembleOptions, type EnsembleRun } from './ensemble/run.js';
+export { ensembleFiles, ensembleCsv, shardFiles, type EnsembleSummaryJson } from './ensemble/files.js';
+export { readShards } from './ensemble/shard.js';
+export { GaussianFieldGenerator, covariance, type FieldSpec, type CovarianceModel } from './ensemble/field.js';
+export { Conditioner, type ConditioningDatum } from './ensemble/conditioning.js';
+export { cellStatistics, pointStatistics, quantileSorted } from './ensemble/stats.js';
+export type { EnsembleSetup, RealisationRecord, RunRecord, PointColumn } from './ensemble/types.js';

@@ -24,6 +24,8 @@ import type { SolverSettings } from '../scenario/types.js';
 import { abandonResultFoldersSync, prepareResultFolder } from '../output/resultFolder.js';
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
+import { addEnsembleCommand } from './ensemble.js';
+import { prepareEnsemble } from '../ensemble/realisation.js';
 
 interface CommonFlags {
   json?: boolean;
@@ -188,7 +190,10 @@ async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Prom
   const settled = withSolverSettings(model, {});
   const system = assembleModel(settled);
   // Variants are resolved and checked as compare would, without solving.
-  const prepared = prepareComparison(model, await resolveVariants(model, raw), {}, system);
+  const variants = await resolveVariants(model, raw);
+  const prepared = prepareComparison(model, variants, {}, system);
+  // The ensemble key as `ensemble` would check it: conditioning points on active cells, the embedding.
+  if (model.ensemble) prepareEnsemble(model, variants);
   const report = inspectReport(settled, system, chooseAutoMethod(system.operator), prepared.variants);
   io.stdout(flags.json ? JSON.stringify(report, null, 2) + '\n' : formatInspect(report));
   return 0;
@@ -252,6 +257,8 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
     const overwrite = flags.overwrite ?? flags.out === 'piezomap-demo';
     await run(() => runSolve(demoScenarioPath(), flags.out!, { ...flags, overwrite }, io))();
   });
+
+  addEnsembleCommand(program, io, run);
 
   return program;
 }

@@ -22,6 +22,7 @@ import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from '../
 import {
   parseScenarioJson,
   solverSchema,
+  type EnsembleJson,
   type FixedHeadEntry,
   type FixedHeadShapeEntry,
   type ReceptorEntry,
@@ -36,7 +37,7 @@ import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
 import { numberProperty, readPointFeatures, type PointFeature } from './pointFeatures.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import { checkMagnitudes } from './magnitudes.js';
-import type { FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, TrackingSettings, WellInput } from './types.js';
+import type { ConditioningPoint, EnsembleInput, FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, TrackingSettings, WellInput } from './types.js';
 import { fieldAt } from '../field.js';
 import { loadHeadDependent, loadLeakage } from './loadHeadDependent.js';
 
@@ -181,6 +182,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   const observations = await loader.observations(raw.observations, transform);
   const receptors = await loader.receptors(raw.receptors, transform, grid, conductivityPath);
   const tracking = raw.tracking ? resolveTracking(raw, loader.label, porosity, transform, grid, conductivity, thickness, (t, x, y, what) => loader.projectPoint(t, x, y, what)) : undefined;
+  const ensemble = raw.ensemble ? await loader.ensemble(raw.ensemble, transform) : undefined;
 
   const solver = raw.solver ?? solverSchema.parse({});
   const title = raw.title ?? (inline ? 'Untitled scenario' : basename(scenarioPath, extname(scenarioPath)));
@@ -208,6 +210,7 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     solver: { ...solver },
     ...(aquiferType === 'confined' ? {} : { aquiferType }),
     ...(waterTable?.initialHead === undefined ? {} : { initialHead: waterTable.initialHead }),
+    ...(ensemble ? { ensemble } : {}),
     inputFiles: [...loader.inputFiles],
     warnings: loader.warnings,
   };
@@ -821,6 +824,39 @@ class Loader {
       const point = this.project(own, entry.x, entry.y, `receptor "${entry.id}" (${entry.source})`);
       return { id: entry.id, x: point.x, y: point.y, source: entry.source };
     });
+  }
+
+  /** The `ensemble` key: repeated thresholds or percentiles refused, conditioning points (CSV id,x,y,k) read and projected. */
+  async ensemble(spec: EnsembleJson, transform: PointTransform | null): Promise<EnsembleInput> {
+    for (const key of ['drawdownThresholds', 'percentiles'] as const) {
+      const values = spec[key];
+      const repeated = values.find((v, i) => values.indexOf(v) !== i);
+      if (repeated !== undefined) throw inputError(`${this.label}: ensemble.${key} lists ${repeated} twice`, { key: `ensemble.${key}` });
+    }
+    const lengths = spec.logConductivity.correlationLength;
+    const conditioning: ConditioningPoint[] = [];
+    if (spec.conditioning !== undefined) {
+      for (const record of await this.pointCsv('ensemble.conditioning', spec.conditioning, ['id', 'x', 'y', 'k'], [])) {
+        const id = record.values.get('id')!;
+        const k = csvNumber(record, 'k');
+        if (!(k > 0) || !Number.isFinite(k)) {
+          throw inputError(`${this.label}: ensemble.conditioning ${record.source} (id "${id}"): k = ${k} is not a conductivity > 0`, { key: 'ensemble.conditioning', file: this.path(spec.conditioning) });
+        }
+        const point = this.project(transform, csvNumber(record, 'x'), csvNumber(record, 'y'), `measured conductivity "${id}" (${record.source})`);
+        conditioning.push({ id, x: point.x, y: point.y, k, source: record.source });
+      }
+    }
+    return {
+      realisations: spec.realisations,
+      seed: spec.seed,
+      sd: spec.logConductivity.sd,
+      correlationLength: typeof lengths === 'number' ? [lengths, lengths] : [lengths[0], lengths[1]],
+      model: spec.logConductivity.model,
+      conditioning,
+      ...(spec.conditioning !== undefined ? { conditioningFile: spec.conditioning } : {}),
+      drawdownThresholds: [...spec.drawdownThresholds],
+      percentiles: [...spec.percentiles],
+    };
   }
 
   /** Grid and conductivity path, for reprojecting GeoJSON points (set before the point lists are read). */

@@ -317,6 +317,20 @@ function fixedHeadList() {
   return dispatch<FixedHeadEntry[]>('a list of fixed-head entries', (value) => (Array.isArray(value) && OTHER_ANCHORS in value ? list : nonEmpty));
 }
 
+/** Uncertainty ensembles (`piezomap ensemble`): realisations of ln K multiplying the conductivity raster. Baseline only. */
+export const ensembleSchema = strict({
+  realisations: z.int().gt(0).lte(1_000_000),
+  seed: z.int().gte(0).lte(4294967295),
+  logConductivity: strict({
+    sd: finite.gte(0).lte(10),
+    correlationLength: z.union([finite.gt(0), z.tuple([finite.gt(0), finite.gt(0)])]),
+    model: z.enum(['exponential', 'gaussian']).default('exponential'),
+  }),
+  conditioning: filePath.optional(),
+  drawdownThresholds: z.array(finite.gt(0)).default([]),
+  percentiles: z.array(finite.gt(0).lt(100)).default([5, 50, 95]),
+});
+
 /** Keys a variant may replace: every top-level key except `variants`. */
 const replaceableFields = {
   title: z.string().optional(),
@@ -349,6 +363,7 @@ export const scenarioSchema = z.preprocess(markOtherAnchors, strict({
   ...replaceableFields,
   aquifer: aquiferSchema,
   fixedHeads: fixedHeadList(),
+  ensemble: ensembleSchema.optional(),
   variants: z
     .array(variantSchema)
     .superRefine((variants, ctx) => {
@@ -382,6 +397,7 @@ export type ReceptorEntry = z.output<typeof receptorSchema>;
 export type SolverJson = z.output<typeof solverSchema>;
 export type TrackingJson = z.output<typeof trackingSchema>;
 export type VariantJson = z.output<typeof variantSchema>;
+export type EnsembleJson = z.output<typeof ensembleSchema>;
 type ParsedScenario = z.output<typeof scenarioSchema>;
 
 /**

@@ -144,8 +144,33 @@ export interface ModelInput {
   solver: SolverSettings;
   /** Particle tracking (optional key; absent = none). Needs `porosity`. */
   tracking?: TrackingSettings;
+  /** Uncertainty ensemble settings (`ensemble` key; absent = none). */
+  ensemble?: EnsembleInput;
   /** Input files read, for the summary. */
   inputFiles: string[];
   /** Non-fatal remarks found while loading. */
   warnings: string[];
+}
+
+/** A measured conductivity for conditioning an ensemble, in the raster CRS. */
+export interface ConditioningPoint {
+  id: string;
+  x: number;
+  y: number;
+  k: number;
+  source: string;
+}
+
+/** The `ensemble` key, resolved: correlation lengths as [along x, along y], conditioning points read. */
+export interface EnsembleInput {
+  realisations: number;
+  seed: number;
+  sd: number;
+  correlationLength: [number, number];
+  model: 'exponential' | 'gaussian';
+  conditioning: ConditioningPoint[];
+  /** The conditioning file as given (for messages), when there is one. */
+  conditioningFile?: string;
+  drawdownThresholds: number[];
+  percentiles: number[];
 }
