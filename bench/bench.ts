@@ -83,7 +83,15 @@ function parseArgs(argv: string[]): Map<string, string> {
 }
 
 /** Runs one solve in this process (child mode) and prints its result as JSON on stdout. */
-function runChild(size: number, method: string, tolerance: number, timeLimit: number, maxIterations: number, headsFile: string, field: CaseField): void {
+function runChild(
+  size: number,
+  method: string,
+  tolerance: number,
+  timeLimit: number,
+  maxIterations: number,
+  headsFile: string,
+  field: CaseField,
+): void {
   if (method.endsWith(UNCONFINED_SUFFIX)) {
     runUnconfinedChild(size, method, tolerance, maxIterations, headsFile);
     return;
@@ -194,8 +202,28 @@ function spawnChild(
   field: CaseField = 'smooth',
 ): ChildResult | null {
   const script = fileURLToPath(import.meta.url);
-  const args = ['--expose-gc', '--max-old-space-size=4096', script, '--child', '--size', String(size), '--method', method, '--field', field];
-  args.push('--tolerance', String(tolerance), '--time-limit', String(timeLimit), '--max-iterations', String(maxIterations), '--heads', headsFile);
+  const args = [
+    '--expose-gc',
+    '--max-old-space-size=4096',
+    script,
+    '--child',
+    '--size',
+    String(size),
+    '--method',
+    method,
+    '--field',
+    field,
+  ];
+  args.push(
+    '--tolerance',
+    String(tolerance),
+    '--time-limit',
+    String(timeLimit),
+    '--max-iterations',
+    String(maxIterations),
+    '--heads',
+    headsFile,
+  );
   const run = spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 1 << 24 });
   if (run.status !== 0) {
     process.stderr.write(`  ${method} at ${size}: child failed (status ${run.status})\n${run.stderr}\n`);
@@ -231,7 +259,22 @@ function exp(v: number | null): string {
 }
 
 function printTable(rows: Row[]): void {
-  const header = ['cells', 'unknowns', 'method', 'setup s', 'solve s', 'cpu s', 'iters', 'rel.res', 'stop', 'budget %', 'head err', 'RSS MiB', 'ns/cell', 'ns/cell/it'];
+  const header = [
+    'cells',
+    'unknowns',
+    'method',
+    'setup s',
+    'solve s',
+    'cpu s',
+    'iters',
+    'rel.res',
+    'stop',
+    'budget %',
+    'head err',
+    'RSS MiB',
+    'ns/cell',
+    'ns/cell/it',
+  ];
   const lines = rows.map((r) => [
     String(r.cells),
     String(r.unknowns),
@@ -338,7 +381,8 @@ async function main(): Promise<void> {
       const row: Row = {
         ...result,
         // The reference is the confined case's: no head comparison for the unconfined one.
-        maxRelativeHeadError: refHeads && !method.endsWith(UNCONFINED_SUFFIX) ? maxRelativeDifference(readHeads(headsFile), refHeads) : null,
+        maxRelativeHeadError:
+          refHeads && !method.endsWith(UNCONFINED_SUFFIX) ? maxRelativeDifference(readHeads(headsFile), refHeads) : null,
         nsPerCell: (total / result.cells) * 1e9,
         nsPerCellIteration: result.iterations > 0 ? (result.solveSeconds / result.iterations / result.cells) * 1e9 : null,
       };
@@ -379,9 +423,14 @@ async function runRough(
   mkdirSync(scratch, { recursive: true });
   const reference = referenceSolver();
   if ('missing' in reference) process.stderr.write(`reference solver absent: ${reference.missing}\n`);
-  console.log(`piezomap rough-conductivity benchmark — ${machine}; tolerance ${tolerance}; load average at start ${loadavg()[0]!.toFixed(1)}`);
+  console.log(
+    `piezomap rough-conductivity benchmark — ${machine}; tolerance ${tolerance}; load average at start ${loadavg()[0]!.toFixed(1)}`,
+  );
   const rows: Array<Record<string, unknown>> = [];
-  const lines: string[] = ['| N | case | method | iterations | stop | setup s | solve s | cpu s | load |', '|---|---|---|---|---|---|---|---|---|'];
+  const lines: string[] = [
+    '| N | case | method | iterations | stop | setup s | solve s | cpu s | load |',
+    '|---|---|---|---|---|---|---|---|---|',
+  ];
   for (const size of sizes) {
     const runs: Array<[CaseField, string]> = [
       ['smooth', 'auto'],
@@ -394,18 +443,35 @@ async function runRough(
       const r = spawnChild(size, method, tolerance, timeLimit, maxIterations, '', field);
       if (!r) continue;
       rows.push({ ...r, field, load });
-      lines.push(`| ${size} | ${field} | ${r.method === r.resolvedMethod ? r.method : `${r.method} → ${r.resolvedMethod}`} | ${r.iterations} | ${r.stopReason} | ${r.setupSeconds.toFixed(2)} | ${r.solveSeconds.toFixed(2)} | ${r.cpuSeconds.toFixed(2)} | ${load.toFixed(1)} |`);
+      lines.push(
+        `| ${size} | ${field} | ${r.method === r.resolvedMethod ? r.method : `${r.method} → ${r.resolvedMethod}`} | ${r.iterations} | ${r.stopReason} | ${r.setupSeconds.toFixed(2)} | ${r.solveSeconds.toFixed(2)} | ${r.cpuSeconds.toFixed(2)} | ${load.toFixed(1)} |`,
+      );
     }
     if (!('missing' in reference)) {
       const systemFile = join(scratch, `rough-${size}.bin`);
-      const made = spawnSync(process.execPath, ['--max-old-space-size=4096', fileURLToPath(import.meta.url), '--child-system', systemFile, '--size', String(size), '--field', 'rough'], { encoding: 'utf8' });
+      const made = spawnSync(
+        process.execPath,
+        [
+          '--max-old-space-size=4096',
+          fileURLToPath(import.meta.url),
+          '--child-system',
+          systemFile,
+          '--size',
+          String(size),
+          '--field',
+          'rough',
+        ],
+        { encoding: 'utf8' },
+      );
       const load = loadavg()[0]!;
       const ref = made.status === 0 ? runReference(reference.path, systemFile, tolerance, 1) : { error: made.stderr };
       rmSync(systemFile, { force: true });
       if ('error' in ref) process.stderr.write(`  reference on the rough case failed: ${ref.error}\n`);
       else {
         rows.push({ size, field: 'rough', method: 'reference BoomerAMG-PCG', load, ...ref });
-        lines.push(`| ${size} | rough | reference BoomerAMG-PCG | ${ref.iterations} | ${ref.converged ? 'converged' : 'not converged'} | ${ref.setupSeconds.toFixed(2)} | ${ref.solveSeconds.toFixed(2)} | ${ref.cpuSeconds.toFixed(2)} | ${load.toFixed(1)} |`);
+        lines.push(
+          `| ${size} | rough | reference BoomerAMG-PCG | ${ref.iterations} | ${ref.converged ? 'converged' : 'not converged'} | ${ref.setupSeconds.toFixed(2)} | ${ref.solveSeconds.toFixed(2)} | ${ref.cpuSeconds.toFixed(2)} | ${load.toFixed(1)} |`,
+        );
       }
     }
   }

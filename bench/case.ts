@@ -231,5 +231,9 @@ export function unconfinedBenchCase(size: number, seed = 20240601): BenchCase {
   const bottom = new Float64Array(nx * ny);
   const b = UNCONFINED_BOTTOM;
   for (let p = 0; p < bottom.length; p++) bottom[p] = Math.min(b.max, Math.max(b.min, b.mean + b.sd * z[p]!));
-  return { size, field: base.field, model: { ...base.model, title: `unconfined benchmark ${size}x${size}`, aquiferType: 'unconfined', aquiferBottom: bottom } };
+  return {
+    size,
+    field: base.field,
+    model: { ...base.model, title: `unconfined benchmark ${size}x${size}`, aquiferType: 'unconfined', aquiferBottom: bottom },
+  };
 }

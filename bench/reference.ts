@@ -99,7 +99,13 @@ export interface ReferenceResult {
 }
 
 /** Runs the reference on a GWCSR01 file (best of `repeat` fresh set-up + solve runs, as it reports). */
-export function runReference(exe: string, systemFile: string, tolerance: number, repeat: number, solutionFile?: string): ReferenceResult | { error: string } {
+export function runReference(
+  exe: string,
+  systemFile: string,
+  tolerance: number,
+  repeat: number,
+  solutionFile?: string,
+): ReferenceResult | { error: string } {
   const args = [systemFile, '-tol', String(tolerance), '-repeat', String(repeat)];
   if (solutionFile) args.push('-o', solutionFile);
   const run = spawnSync(exe, args, {

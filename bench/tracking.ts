@@ -37,7 +37,9 @@ function stage<T>(name: string, run: () => T): T {
   const t = performance.now();
   const value = run();
   const cpu = process.cpuUsage(c);
-  console.log(`${name.padEnd(34)} wall ${((performance.now() - t) / 1000).toFixed(2).padStart(7)} s   cpu ${((cpu.user + cpu.system) / 1e6).toFixed(2).padStart(7)} s`);
+  console.log(
+    `${name.padEnd(34)} wall ${((performance.now() - t) / 1000).toFixed(2).padStart(7)} s   cpu ${((cpu.user + cpu.system) / 1e6).toFixed(2).padStart(7)} s`,
+  );
   return value;
 }
 
@@ -46,7 +48,9 @@ async function stageAsync<T>(name: string, run: () => Promise<T>): Promise<T> {
   const t = performance.now();
   const value = await run();
   const cpu = process.cpuUsage(c);
-  console.log(`${name.padEnd(34)} wall ${((performance.now() - t) / 1000).toFixed(2).padStart(7)} s   cpu ${((cpu.user + cpu.system) / 1e6).toFixed(2).padStart(7)} s`);
+  console.log(
+    `${name.padEnd(34)} wall ${((performance.now() - t) / 1000).toFixed(2).padStart(7)} s   cpu ${((cpu.user + cpu.system) / 1e6).toFixed(2).padStart(7)} s`,
+  );
   return value;
 }
 
@@ -63,10 +67,16 @@ const capture = stage('zones + 360 backward pathlines', () =>
   captureZones(field.field, field.stopLabel, { captureTimes, particlesPerWell: 36, rasters: { potential: head } }, ends),
 );
 const cpu = process.cpuUsage(total.c);
-console.log(`${'capture zones of 10 wells, total'.padEnd(34)} wall ${((performance.now() - total.t) / 1000).toFixed(2).padStart(7)} s   cpu ${((cpu.user + cpu.system) / 1e6).toFixed(2).padStart(7)} s   (${size}x${size})`);
+console.log(
+  `${'capture zones of 10 wells, total'.padEnd(34)} wall ${((performance.now() - total.t) / 1000).toFixed(2).padStart(7)} s   cpu ${((cpu.user + cpu.system) / 1e6).toFixed(2).padStart(7)} s   (${size}x${size})`,
+);
 for (const w of capture.wells) {
-  const areas = capture.zones.filter((z) => z.properties.well === w.id).map((z) => `${z.properties.time ?? 'steady'}: ${(z.properties.area / 1e6).toFixed(3)} km2`);
-  console.log(`  ${w.id.padEnd(4)} ${String(w.capturedCells).padStart(7)} cells${w.refined ? ' (sub-cell seeds)' : ''}   ${areas.join('   ')}`);
+  const areas = capture.zones
+    .filter((z) => z.properties.well === w.id)
+    .map((z) => `${z.properties.time ?? 'steady'}: ${(z.properties.area / 1e6).toFixed(3)} km2`);
+  console.log(
+    `  ${w.id.padEnd(4)} ${String(w.capturedCells).padStart(7)} cells${w.refined ? ' (sub-cell seeds)' : ''}   ${areas.join('   ')}`,
+  );
 }
 
 if (args.includes('--compare')) {
@@ -87,5 +97,7 @@ if (args.includes('--compare')) {
   relative.sort((a, b) => a - b);
   const at = (f: number) => (relative[Math.floor(f * (relative.length - 1))] ?? NaN).toExponential(1);
   console.log(`cells whose end differs from exact tracking: ${differ} of ${n} (${((100 * differ) / n).toFixed(2)} %)`);
-  console.log(`times <= ${captureTimes[1]}: ${timeChecked} cells, ${timeDiffer} differ; beyond: relative error median ${at(0.5)}, 90 % ${at(0.9)}, 99 % ${at(0.99)}`);
+  console.log(
+    `times <= ${captureTimes[1]}: ${timeChecked} cells, ${timeDiffer} differ; beyond: relative error median ${at(0.5)}, 90 % ${at(0.9)}, 99 % ${at(0.99)}`,
+  );
 }

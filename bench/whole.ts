@@ -53,7 +53,18 @@ function load1(): number {
 
 function folderBytes(dir: string): number {
   let total = 0;
-  for (const name of ['head.tif', 'darcy-flux-x.tif', 'darcy-flux-y.tif', 'darcy-flux.tif', 'head-contours.geojson', 'head-map.png', 'report.html', 'summary.json', 'budget.csv', 'convergence.csv']) {
+  for (const name of [
+    'head.tif',
+    'darcy-flux-x.tif',
+    'darcy-flux-y.tif',
+    'darcy-flux.tif',
+    'head-contours.geojson',
+    'head-map.png',
+    'report.html',
+    'summary.json',
+    'budget.csv',
+    'convergence.csv',
+  ]) {
     const f = join(dir, name);
     if (existsSync(f)) total += statSync(f).size;
   }
@@ -61,7 +72,11 @@ function folderBytes(dir: string): number {
 }
 
 /** One `piezomap solve` under /usr/bin/time (when present): wall, CPU, peak RSS, summary.json. */
-function runCli(scenario: string, outDir: string, method: string | null): { wall: number; cpu: number | null; rss: number | null; summary: Record<string, unknown> } {
+function runCli(
+  scenario: string,
+  outDir: string,
+  method: string | null,
+): { wall: number; cpu: number | null; rss: number | null; summary: Record<string, unknown> } {
   const args = [CLI, 'solve', scenario, '-o', outDir, '--overwrite', '--quiet'];
   if (method) args.push('--method', method);
   const timeFile = `${outDir}.time`;
@@ -129,7 +144,11 @@ export async function runWhole(options: WholeOptions): Promise<WholeRow[]> {
     }
     const systemFile = join(caseDir, 'system.bin');
     if (!('missing' in reference) && !existsSync(systemFile)) {
-      const made = spawnSync(process.execPath, ['--max-old-space-size=4096', BENCH, '--child-system', systemFile, '--size', String(size), '--field', options.field], { encoding: 'utf8' });
+      const made = spawnSync(
+        process.execPath,
+        ['--max-old-space-size=4096', BENCH, '--child-system', systemFile, '--size', String(size), '--field', options.field],
+        { encoding: 'utf8' },
+      );
       if (made.status !== 0) throw new Error(`writing ${systemFile} failed: ${made.stderr}`);
     }
     const outDir = join(options.out, 'runs', `${options.field}-${size}`);
@@ -198,7 +217,29 @@ export async function runWhole(options: WholeOptions): Promise<WholeRow[]> {
 const f = (v: number | null | undefined, d = 2) => (v === null || v === undefined || !Number.isFinite(v) ? '-' : v.toFixed(d));
 
 export function printWhole(rows: WholeRow[]): void {
-  const header = ['N', 'unknowns', 'load', 'whole s', 'cpu s', 'RSS MiB', 'load s', 'asm s', 'solve s', 'anl s', 'write s', 'other s', 'iters', 'ref load', 'ref setup', 'ref solve', 'ref cpu', 'ref its', 'whole/ref', 'cpu/ref', 'max |dh| m'];
+  const header = [
+    'N',
+    'unknowns',
+    'load',
+    'whole s',
+    'cpu s',
+    'RSS MiB',
+    'load s',
+    'asm s',
+    'solve s',
+    'anl s',
+    'write s',
+    'other s',
+    'iters',
+    'ref load',
+    'ref setup',
+    'ref solve',
+    'ref cpu',
+    'ref its',
+    'whole/ref',
+    'cpu/ref',
+    'max |dh| m',
+  ];
   const lines = rows.map((r) => [
     `${r.size}${r.field === 'rough' ? 'r' : ''}`,
     String(r.unknowns),
@@ -228,5 +269,7 @@ export function printWhole(rows: WholeRow[]): void {
   console.log('| ' + widths.map((w) => '-'.repeat(w)).join(' | ') + ' |');
   for (const l of lines) console.log(show(l));
   for (const r of rows) if (r.referenceNote) console.log(`N=${r.size}: no reference figures: ${r.referenceNote}`);
-  console.log('whole = wall time of the `piezomap solve` process; other = whole minus the summary.json stages (process start, module loading, report, staging files, exit); ratios against the reference set-up + solve.');
+  console.log(
+    'whole = wall time of the `piezomap solve` process; other = whole minus the summary.json stages (process start, module loading, report, staging files, exit); ratios against the reference set-up + solve.',
+  );
 }

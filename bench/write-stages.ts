@@ -57,7 +57,9 @@ export async function runWriteStages(sizes: number[], out: string): Promise<void
     const { model } = await loadScenario(join(dir, 'scenario.json'));
     const result = await solveModelWith(model, workerExecutor);
     const row = (part: string, m: Measure) =>
-      lines.push(`| ${size} | ${part} | ${m.wall.toFixed(2)} | ${m.cpu.toFixed(2)} | ${m.mainCpu === null ? '-' : m.mainCpu.toFixed(2)} | ${loadavg()[0]!.toFixed(1)} |`);
+      lines.push(
+        `| ${size} | ${part} | ${m.wall.toFixed(2)} | ${m.cpu.toFixed(2)} | ${m.mainCpu === null ? '-' : m.mainCpu.toFixed(2)} | ${loadavg()[0]!.toFixed(1)} |`,
+      );
     // warm-up: the first build compiles the code paths
     solveProducts(result, {}, '');
     const { grid } = model;
@@ -68,8 +70,22 @@ export async function runWriteStages(sizes: number[], out: string): Promise<void
       southConductance: result.system.conductanceSouth,
       thickness: model.thickness,
     });
-    row('Darcy flux (3 rasters of values)', await measure(() => darcyFlux({ grid, head: result.head, eastConductance: result.system.conductanceEast, southConductance: result.system.conductanceSouth, thickness: model.thickness })));
-    row('4 GeoTIFFs (head, flux x, y, magnitude), DEFLATE 6, tiles 256', await measure(() => [result.head, flux.qx, flux.qy, flux.magnitude].map((v) => encodeFloat32GeoTiff(grid, v, { nodata: -9999 }))));
+    row(
+      'Darcy flux (3 rasters of values)',
+      await measure(() =>
+        darcyFlux({
+          grid,
+          head: result.head,
+          eastConductance: result.system.conductanceEast,
+          southConductance: result.system.conductanceSouth,
+          thickness: model.thickness,
+        }),
+      ),
+    );
+    row(
+      '4 GeoTIFFs (head, flux x, y, magnitude), DEFLATE 6, tiles 256',
+      await measure(() => [result.head, flux.qx, flux.qy, flux.magnitude].map((v) => encodeFloat32GeoTiff(grid, v, { nodata: -9999 }))),
+    );
     row('head contours (GeoJSON)', await measure(() => contourFiles(grid, result.head, 'head', model.units.length, {}, '')));
     for (let i = 0; i < 2; i++) {
       row('all files, one after another (resultBundle)', await measure(() => resultBundle(result, '', {})));

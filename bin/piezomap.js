@@ -8,7 +8,9 @@ import { fileURLToPath } from 'node:url';
 const cliUrl = new URL('../dist/src/cli/main.js', import.meta.url);
 if (!existsSync(fileURLToPath(cliUrl))) {
   const root = dirname(dirname(fileURLToPath(import.meta.url)));
-  const fix = existsSync(join(root, 'src')) ? `run "npm ci" or "npm run build" in ${root}` : 'reinstall piezomap (its prepare script builds it)';
+  const fix = existsSync(join(root, 'src'))
+    ? `run "npm ci" or "npm run build" in ${root}`
+    : 'reinstall piezomap (its prepare script builds it)';
   process.stderr.write(`piezomap: not built (${fileURLToPath(cliUrl)} is missing); ${fix}\n`);
   process.exit(1);
 }

@@ -20,12 +20,15 @@ const result = await cruise(
 );
 const output = typeof result.output === 'string' ? JSON.parse(result.output) : result.output;
 if (process.argv.includes('--graph')) {
-  for (const m of output.modules) for (const d of m.dependencies) if (d.resolved.startsWith('src/')) console.log(`${m.source} -> ${d.resolved}`);
+  for (const m of output.modules)
+    for (const d of m.dependencies) if (d.resolved.startsWith('src/')) console.log(`${m.source} -> ${d.resolved}`);
 }
 const violations = output.summary.violations;
 for (const v of violations) {
   const cycle = v.cycle ? ` (cycle: ${v.cycle.map((c) => c.name ?? c).join(' -> ')})` : '';
   console.log(`${v.rule.severity} ${v.rule.name}: ${v.from} -> ${v.to}${cycle}`);
 }
-console.log(`depcheck: ${output.summary.totalCruised} modules, ${output.summary.totalDependenciesCruised} imports, ${violations.length} violation(s)`);
+console.log(
+  `depcheck: ${output.summary.totalCruised} modules, ${output.summary.totalDependenciesCruised} imports, ${violations.length} violation(s)`,
+);
 process.exit(output.summary.error > 0 ? 1 : 0);

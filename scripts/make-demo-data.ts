@@ -234,7 +234,12 @@ function riverReaches(toLonLat: ReturnType<typeof makeTransform>): object {
   const spans: Array<{ name: string; from: number; to: number; raise: (col: number) => number }> = [
     { name: 'upper reach', from: 0, to: REACH_ENDS[0]!, raise: () => 0 },
     // The weir's pool: a level surface WEIR_RAISE above the natural stage at the weir, back to where the natural stage reaches it.
-    { name: 'impounded reach', from: REACH_ENDS[0]!, to: REACH_ENDS[1]!, raise: (col) => Math.max(0, natural(REACH_ENDS[1]!) + WEIR_RAISE - natural(col)) },
+    {
+      name: 'impounded reach',
+      from: REACH_ENDS[0]!,
+      to: REACH_ENDS[1]!,
+      raise: (col) => Math.max(0, natural(REACH_ENDS[1]!) + WEIR_RAISE - natural(col)),
+    },
     { name: 'lower reach', from: REACH_ENDS[1]!, to: lastCol, raise: () => 0 },
   ];
   const features = spans.map((span, k) => {
@@ -250,7 +255,12 @@ function riverReaches(toLonLat: ReturnType<typeof makeTransform>): object {
       stage.push(h);
       bed.push(round(h - RIVER_BED_DEPTH, 2));
     }
-    return { type: 'Feature', id: `reach-${k + 1}`, properties: { name: span.name, stage, bed }, geometry: { type: 'LineString', coordinates } };
+    return {
+      type: 'Feature',
+      id: `reach-${k + 1}`,
+      properties: { name: span.name, stage, bed },
+      geometry: { type: 'LineString', coordinates },
+    };
   });
   return { type: 'FeatureCollection', features };
 }
@@ -262,8 +272,14 @@ async function main(): Promise<void> {
   const d = buildRasters();
 
   const description = 'Talvorin valley demo (invented data)';
-  writeFileSync(join(outDir, 'conductivity.tif'), encodeFloat32GeoTiff(grid, d.conductivity, { description: `${description}: hydraulic conductivity, m/d` }));
-  writeFileSync(join(outDir, 'thickness.tif'), encodeFloat32GeoTiff(grid, d.thickness, { description: `${description}: saturated thickness, m` }));
+  writeFileSync(
+    join(outDir, 'conductivity.tif'),
+    encodeFloat32GeoTiff(grid, d.conductivity, { description: `${description}: hydraulic conductivity, m/d` }),
+  );
+  writeFileSync(
+    join(outDir, 'thickness.tif'),
+    encodeFloat32GeoTiff(grid, d.thickness, { description: `${description}: saturated thickness, m` }),
+  );
   const toLonLat = makeTransform(32633, 4326);
   writeFileSync(join(outDir, 'river.geojson'), `${JSON.stringify(riverReaches(toLonLat), null, 2)}\n`);
 
@@ -308,16 +324,24 @@ async function main(): Promise<void> {
   }
   const pitLake = {
     type: 'FeatureCollection',
-    features: [{ type: 'Feature', id: 'pit-1', properties: { name: 'gravel pit lake', level: PIT_LAKE_LEVEL }, geometry: { type: 'Polygon', coordinates: [ring] } }],
+    features: [
+      {
+        type: 'Feature',
+        id: 'pit-1',
+        properties: { name: 'gravel pit lake', level: PIT_LAKE_LEVEL },
+        geometry: { type: 'Polygon', coordinates: [ring] },
+      },
+    ],
   };
   writeFileSync(join(outDir, 'gravel_pit.geojson'), `${JSON.stringify(pitLake, null, 2)}\n`);
 
   // A field-drain ditch in the farmland on the far side of PW-1 from the river, 600 m from the well, 2 km long.
   const side = pw1.row > riverRow(pw1.col) ? 1 : -1;
   const ditchCols = [pw1.col - 20, pw1.col - 7, pw1.col + 6, pw1.col + 20];
-  const ditchRows = ditchCols.map((col, k) => pw1.row + side * (12 + (k % 2)));
+  const ditchRows = ditchCols.map((_col, k) => pw1.row + side * (12 + (k % 2)));
   ditchCols.forEach((col, k) => {
-    if (!clearOfRiver(d, ditchRows[k]!, col, 2)) throw new Error(`demo generator: the ditch vertex at row ${ditchRows[k]}, col ${col} is off the valley floor`);
+    if (!clearOfRiver(d, ditchRows[k]!, col, 2))
+      throw new Error(`demo generator: the ditch vertex at row ${ditchRows[k]}, col ${col} is off the valley floor`);
   });
   const ditchLine = (level: number[]) => ({
     type: 'FeatureCollection',
@@ -346,8 +370,27 @@ async function main(): Promise<void> {
       { shape: 'gravel_pit.geojson', headProperty: 'level', name: 'gravel-pit' },
     ],
     headDependent: [
-      { name: 'river', kind: 'river', shape: 'river.geojson', headProperty: 'stage', bottomProperty: 'bed', leakance: RIVER_LEAKANCE, width: RIVER_WIDTH },
-      ...(withDitch ? [{ name: 'field-drains', kind: 'drain', shape: 'field_drain.geojson', headProperty: 'level', leakance: DITCH_LEAKANCE, width: DITCH_WIDTH }] : []),
+      {
+        name: 'river',
+        kind: 'river',
+        shape: 'river.geojson',
+        headProperty: 'stage',
+        bottomProperty: 'bed',
+        leakance: RIVER_LEAKANCE,
+        width: RIVER_WIDTH,
+      },
+      ...(withDitch
+        ? [
+            {
+              name: 'field-drains',
+              kind: 'drain',
+              shape: 'field_drain.geojson',
+              headProperty: 'level',
+              leakance: DITCH_LEAKANCE,
+              width: DITCH_WIDTH,
+            },
+          ]
+        : []),
     ],
     recharge: RECHARGE,
     wells,
@@ -433,7 +476,10 @@ async function writeUnconfinedValley(
       bottom[p] = round(trend - d.thickness[p]! + 3 + 16 * offAxis ** 4, 2);
     }
   }
-  writeFileSync(join(outDir, 'bottom.tif'), encodeFloat32GeoTiff(grid, bottom, { description: 'Talvorin valley demo (invented data): bedrock floor of the valley fill, m' }));
+  writeFileSync(
+    join(outDir, 'bottom.tif'),
+    encodeFloat32GeoTiff(grid, bottom, { description: 'Talvorin valley demo (invented data): bedrock floor of the valley fill, m' }),
+  );
   const scenario = {
     title: 'Talvorin valley fill, unconfined (invented demo), baseline',
     units: { length: 'm', time: 'd' },
@@ -444,7 +490,15 @@ async function writeUnconfinedValley(
     ],
     // The same river as the confined demo: a head-dependent boundary with its bed resistance and bed bottom.
     headDependent: [
-      { name: 'river', kind: 'river', shape: 'river.geojson', headProperty: 'stage', bottomProperty: 'bed', leakance: RIVER_LEAKANCE, width: RIVER_WIDTH },
+      {
+        name: 'river',
+        kind: 'river',
+        shape: 'river.geojson',
+        headProperty: 'stage',
+        bottomProperty: 'bed',
+        leakance: RIVER_LEAKANCE,
+        width: RIVER_WIDTH,
+      },
     ],
     recharge: RECHARGE,
     wells,
@@ -464,7 +518,8 @@ async function writeUnconfinedValley(
   const scenarioPath = join(outDir, 'valley-unconfined.json');
   writeFileSync(scenarioPath, `${JSON.stringify(scenario, null, 2)}\n`);
   const result = await solveScenarioFile(scenarioPath);
-  if (!result.stats.converged || result.outer.stopReason !== 'settled') throw new Error('demo generator: the unconfined baseline did not settle');
+  if (!result.stats.converged || result.outer.stopReason !== 'settled')
+    throw new Error('demo generator: the unconfined baseline did not settle');
   process.stdout.write(`make-demo-data: wrote bottom.tif, valley-unconfined.json (${result.outer.iterations} outer iterations)\n`);
 }
 

@@ -19,7 +19,18 @@ export { cellAt, cellCentre, cellWidth, cellHeight, crsLabel, type Grid, type Cr
 export { loadScenario, resolveScenario, mergeVariant, type ScenarioJson, type VariantJson } from './scenario/load.js';
 export { parseScenarioJson } from './scenario/schema.js';
 export { checkMagnitudes, CARRIED_RANGE, HEAD_LIMIT } from './scenario/magnitudes.js';
-export type { ModelInput, WellInput, ObservationInput, ReceptorInput, FixedHeadInput, HeadDependentInput, HeadDependentKind, LeakageInput, SolverSettings, Units } from './scenario/types.js';
+export type {
+  ModelInput,
+  WellInput,
+  ObservationInput,
+  ReceptorInput,
+  FixedHeadInput,
+  HeadDependentInput,
+  HeadDependentKind,
+  LeakageInput,
+  SolverSettings,
+  Units,
+} from './scenario/types.js';
 
 export {
   solveScenarioFile,

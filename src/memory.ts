@@ -42,7 +42,6 @@ export const COMPARE_FRESH_VARIANT_BYTES_PER_CELL = 120;
 /** The Node runtime and the loaded modules, before any grid-sized array (measured about 80 MiB). */
 export const FIXED_OVERHEAD_BYTES = 96 * 2 ** 20;
 
-
 export interface MemoryLimit {
   bytes: number;
   /** Where the limit comes from, for messages. */
@@ -92,7 +91,10 @@ export function checkMemoryBudget(
   const heldBytes = held ? held.bytesPerCell : 0;
   const needed = estimateRunBytes(cells, solver.bytesPerCell + heldBytes);
   if (needed <= limit.bytes) return;
-  const cellsThatFit = Math.max(1, Math.floor((limit.bytes - FIXED_OVERHEAD_BYTES) / (BASE_BYTES_PER_CELL + solver.bytesPerCell + heldBytes)));
+  const cellsThatFit = Math.max(
+    1,
+    Math.floor((limit.bytes - FIXED_OVERHEAD_BYTES) / (BASE_BYTES_PER_CELL + solver.bytesPerCell + heldBytes)),
+  );
   const factor = Math.ceil(Math.sqrt(cells / cellsThatFit) * 10) / 10;
   const alternative =
     leaner && leaner.bytesPerCell < solver.bytesPerCell && estimateRunBytes(cells, leaner.bytesPerCell + heldBytes) <= limit.bytes

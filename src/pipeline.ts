@@ -75,7 +75,9 @@ export function assembleModel(model: ModelInput, options: RunOptions = {}, timin
   const t = now();
   // Refuse a grid too large for this machine before the large allocations start.
   const method = model.solver.method;
-  const tracking = model.tracking ? { bytesPerCell: TRACKING_BYTES_PER_CELL, what: 'particle tracking', hint: ', or drop "tracking"' } : null;
+  const tracking = model.tracking
+    ? { bytesPerCell: TRACKING_BYTES_PER_CELL, what: 'particle tracking', hint: ', or drop "tracking"' }
+    : null;
   checkMemoryBudget(model.grid, { method, bytesPerCell: solverBytesPerCell(method) }, leanestMethod(), undefined, tracking);
   options.onProgress?.({ stage: 'assemble', message: 'assembling the flow system' });
   const system = assembleSystem(model);
@@ -105,7 +107,8 @@ export function* solvePlan(
   const answer = yield* solveOuter(system, used, {
     tolerance,
     maxIterations,
-    onProgress: (iteration, relativeResidual) => options.onProgress?.({ stage: 'solve', iteration, relativeResidual, tolerance, maxIterations }),
+    onProgress: (iteration, relativeResidual) =>
+      options.onProgress?.({ stage: 'solve', iteration, relativeResidual, tolerance, maxIterations }),
   });
   if (own) yield* closeSession(used);
   answer.stats.setupSeconds = own ? used.setupSeconds : 0;

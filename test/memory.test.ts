@@ -3,7 +3,15 @@
  * fit is refused before assembly with a hint, and PIEZOMAP_MEMORY_LIMIT_MB sets the limit.
  */
 import { describe, expect, it } from 'vitest';
-import { BASE_BYTES_PER_CELL, FIXED_OVERHEAD_BYTES, checkMemoryBudget, checkRasterMemory, estimateRunBytes, memoryLimit, rasterBudget } from '../src/memory.js';
+import {
+  BASE_BYTES_PER_CELL,
+  FIXED_OVERHEAD_BYTES,
+  checkMemoryBudget,
+  checkRasterMemory,
+  estimateRunBytes,
+  memoryLimit,
+  rasterBudget,
+} from '../src/memory.js';
 import { leanestMethod, solverBytesPerCell, solverRegistry } from '../src/solvers/registry.js';
 import { PiezomapError } from '../src/errors.js';
 import { testGrid } from './helpers/model.js';
@@ -47,25 +55,38 @@ describe('memory budget', () => {
     expect(() => checkMemoryBudget(testGrid(500, 500, 10), { method: 'pcg-multigrid', bytesPerCell: 128 }, null, limit)).not.toThrow();
   });
 
-  it('checkRasterMemory counts every key\'s raster together, plus the peak of reading one, against half the limit', () => {
+  it("checkRasterMemory counts every key's raster together, plus the peak of reading one, against half the limit", () => {
     const limit = { bytes: 800 * MiB, source: 'test' };
     // 3000 x 3000 cells: 72,000,000 bytes (68.7 MiB) as doubles; reading one adds its decoded strip and file
-    const raster = (key: string) => ({ key, given: 'sparse.tif', width: 3000, height: 3000, valueBytes: 72e6, readBytes: 72e6 + 36e6 + 400 });
+    const raster = (key: string) => ({
+      key,
+      given: 'sparse.tif',
+      width: 3000,
+      height: 3000,
+      valueBytes: 72e6,
+      readBytes: 72e6 + 36e6 + 400,
+    });
     // one, or four (288 MB + 36 MB < 400 MiB), fit; seven (504 MB + 36 MB) do not, though each alone would
     expect(() => checkRasterMemory([raster('aquifer.conductivity')], limit)).not.toThrow();
     expect(() => checkRasterMemory(['a', 'b', 'c', 'd'].map(raster), limit)).not.toThrow();
     let caught: unknown;
     try {
-      checkRasterMemory(['aquifer.conductivity', 'aquifer.thickness', 'aquifer.porosity', 'aquifer.top', 'aquifer.bottom', 'groundSurface', 'recharge'].map(raster), limit);
+      checkRasterMemory(
+        ['aquifer.conductivity', 'aquifer.thickness', 'aquifer.porosity', 'aquifer.top', 'aquifer.bottom', 'groundSurface', 'recharge'].map(
+          raster,
+        ),
+        limit,
+      );
     } catch (thrown) {
       caught = thrown;
     }
     expect(caught).toBeInstanceOf(PiezomapError);
     const error = caught as PiezomapError;
     expect(error.code).toBe('input');
-    expect(error.message).toMatch(/^the scenario's 7 rasters need about 515\.0 MiB once read \(aquifer\.conductivity "sparse\.tif" 3000 x 3000 \(68\.7 MiB\), .*, 3 more\), more than half of the memory a run may use \(limit 800\.0 MiB, test\)/);
+    expect(error.message).toMatch(
+      /^the scenario's 7 rasters need about 515\.0 MiB once read \(aquifer\.conductivity "sparse\.tif" 3000 x 3000 \(68\.7 MiB\), .*, 3 more\), more than half of the memory a run may use \(limit 800\.0 MiB, test\)/,
+    );
     expect(error.detail.hint).toMatch(/read once for each/);
     expect(rasterBudget(limit)).toBe(400 * MiB);
   });
 });
-

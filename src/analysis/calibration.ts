@@ -22,8 +22,11 @@ export interface CalibrationStatistics {
 export function calibrationStatistics(observations: readonly ObservationResult[]): CalibrationStatistics | null {
   const count = observations.length;
   if (count === 0) return null;
-  let sum = 0, sumAbs = 0, sumSquares = 0;
-  let min = Infinity, max = -Infinity;
+  let sum = 0,
+    sumAbs = 0,
+    sumSquares = 0;
+  let min = Infinity,
+    max = -Infinity;
   for (const o of observations) {
     const r = o.simulated - o.observed;
     sum += r;

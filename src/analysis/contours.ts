@@ -104,7 +104,10 @@ export function contourLevels(min: number, max: number, interval: number, base =
   if (!(count <= MAX_CONTOUR_LEVELS)) {
     throw inputError(
       `contour interval ${interval} gives ${countText(count)} levels across ${min} to ${max}; at most ${MAX_CONTOUR_LEVELS} are drawn`,
-      { key: 'contours.interval', hint: `give an interval of at least ${roundInterval(min, max, MAX_CONTOUR_LEVELS) ?? (max - min) / MAX_CONTOUR_LEVELS}` },
+      {
+        key: 'contours.interval',
+        hint: `give an interval of at least ${roundInterval(min, max, MAX_CONTOUR_LEVELS) ?? (max - min) / MAX_CONTOUR_LEVELS}`,
+      },
     );
   }
   const first = Math.floor((min - base) / interval) + 1;
@@ -178,7 +181,12 @@ export function contourField(grid: Grid, values: Float64Array, options: ContourO
     const base = options.base ?? 0;
     const limit = contourLevelLimit(nx * ny);
     interval = options.interval ?? roundInterval(range.min, range.max);
-    if (interval !== null && options.interval !== undefined && interval > 0 && !(countLevels(range.min, range.max, interval, base) <= limit)) {
+    if (
+      interval !== null &&
+      options.interval !== undefined &&
+      interval > 0 &&
+      !(countLevels(range.min, range.max, interval, base) <= limit)
+    ) {
       const wider = roundInterval(range.min - base, range.max - base, limit, interval);
       if (wider !== null) {
         note = `contour interval ${interval} would give ${countText(countLevels(range.min, range.max, interval, base))} levels across ${fmtRange(range)}; widened to ${wider} (at most ${limit} levels are drawn on a grid of ${nx} x ${ny} cells)`;
@@ -381,8 +389,7 @@ export function contoursToGeoJson(set: ContourSet, options: GeoJsonOptions): Geo
   }
   const collection: GeoJsonFeatureCollection = { type: 'FeatureCollection', features };
   if (!project) {
-    collection['coordinateSystem'] =
-      `${options.crsLabel ?? 'raster CRS'} (the raster's own coordinates, not WGS 84: not RFC 7946 GeoJSON; assign this CRS when loading)`;
+    collection.coordinateSystem = `${options.crsLabel ?? 'raster CRS'} (the raster's own coordinates, not WGS 84: not RFC 7946 GeoJSON; assign this CRS when loading)`;
   }
   return collection;
 }

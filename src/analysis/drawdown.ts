@@ -28,7 +28,11 @@ export interface WellboreDrawdown {
 }
 
 /** baseline - variant head, NaN where either is inactive. */
-export function drawdownField(baselineHead: Float64Array, variantHead: Float64Array, out = new Float64Array(baselineHead.length)): Float64Array {
+export function drawdownField(
+  baselineHead: Float64Array,
+  variantHead: Float64Array,
+  out = new Float64Array(baselineHead.length),
+): Float64Array {
   for (let p = 0; p < out.length; p++) out[p] = baselineHead[p]! - variantHead[p]!;
   return out;
 }
@@ -100,7 +104,7 @@ export function drawdownExtremes(
 
 /** The drawdown at a point in cell `cell`; NaN without a drawdown field. */
 export function pointDrawdown(grid: Grid, drawdown: Float64Array | null, id: string, x: number, y: number, cell: number): PointDrawdown {
-  const value = drawdown === null ? NaN : headAtPoint(grid, drawdown, x, y) ?? drawdown[cell]!;
+  const value = drawdown === null ? NaN : (headAtPoint(grid, drawdown, x, y) ?? drawdown[cell]!);
   return { id, x, y, drawdown: value };
 }
 

@@ -95,7 +95,8 @@ export function darcyFlux(input: FluxInput): DarcyFlux {
   const { nx, ny } = grid;
   const n = nx * ny;
   if (typeof thickness !== 'number') checkLength('thickness', thickness, n);
-  else if (!(thickness > 0)) throw inputError(`thickness must be positive to compute the flux, got ${thickness}`, { key: 'aquifer.thickness' });
+  else if (!(thickness > 0))
+    throw inputError(`thickness must be positive to compute the flux, got ${thickness}`, { key: 'aquifer.thickness' });
   const flows = faceFlows(grid, head, input.eastConductance, input.southConductance);
   const dx = cellWidth(grid);
   const dy = cellHeight(grid);

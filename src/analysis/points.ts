@@ -73,11 +73,17 @@ function locatePoints(
   points.forEach((point, k) => {
     const cell = cellAt(grid, point.x, point.y);
     if (!cell) {
-      throw inputError(`${kind} "${point.id}" (${point.source}) at x=${point.x}, y=${point.y} lies outside the grid`, { key: point.source, hint });
+      throw inputError(`${kind} "${point.id}" (${point.source}) at x=${point.x}, y=${point.y} lies outside the grid`, {
+        key: point.source,
+        hint,
+      });
     }
     const p = cell.row * grid.nx + cell.col;
     if (!active[p]) {
-      throw inputError(`${kind} "${point.id}" (${point.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, { key: point.source, cell });
+      throw inputError(`${kind} "${point.id}" (${point.source}) lies in an inactive cell (row ${cell.row}, col ${cell.col})`, {
+        key: point.source,
+        cell,
+      });
     }
     cells[k] = p;
   });
@@ -116,7 +122,10 @@ export function headAtPoint(grid: Grid, field: Float64Array, x: number, y: numbe
   const u = fc - c0;
   const v = fr - r0;
   const p = r0 * grid.nx + c0;
-  const a = field[p]!, b = field[p + 1]!, c = field[p + grid.nx]!, d = field[p + grid.nx + 1]!;
+  const a = field[p]!,
+    b = field[p + 1]!,
+    c = field[p + grid.nx]!,
+    d = field[p + grid.nx + 1]!;
   const value = (1 - v) * ((1 - u) * a + u * b) + v * ((1 - u) * c + u * d);
   return Number.isFinite(value) ? value : null;
 }

@@ -58,9 +58,12 @@ export function resultProblem(result: SolveResult): PiezomapError | null {
   }
   if (outer.stopReason === 'cycle' || outer.stopReason === 'iteration-limit') {
     const waterTable = result.system.waterTable !== null;
-    const last = outer.history.slice(-3).map(
-      (h) => `largest head change ${h.maxHeadChange.toExponential(2)}, flow residual ${h.flowResidual.toExponential(2)}, ${h.dryCells} dry cell(s), damping ${h.damping}`,
-    );
+    const last = outer.history
+      .slice(-3)
+      .map(
+        (h) =>
+          `largest head change ${h.maxHeadChange.toExponential(2)}, flow residual ${h.flowResidual.toExponential(2)}, ${h.dryCells} dry cell(s), damping ${h.damping}`,
+      );
     return new PiezomapError(
       'solver',
       `the outer iteration did not settle (${outer.stopReason}) after ${outer.iterations} linear solves` +

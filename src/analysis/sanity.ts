@@ -57,10 +57,14 @@ export function conductivityWarnings(model: ModelInput, active: Uint8Array): str
   const units = `check the units (units.length "${model.units.length}", units.time "${model.units.time}")`;
   const warnings: string[] = [];
   if (above > 0) {
-    warnings.push(`aquifer.conductivity: ${above} active cell(s) above ${fmt(high)} ${unit} (1 m/s, the top of published values, for gravel; ${source}), up to ${fmt(highest)} ${unit}: ${units}`);
+    warnings.push(
+      `aquifer.conductivity: ${above} active cell(s) above ${fmt(high)} ${unit} (1 m/s, the top of published values, for gravel; ${source}), up to ${fmt(highest)} ${unit}: ${units}`,
+    );
   }
   if (below > 0) {
-    warnings.push(`aquifer.conductivity: ${below} active cell(s) below ${fmt(low)} ${unit} (1e-13 m/s, the bottom of published values, for unfractured rock; ${source}), down to ${fmt(lowest)} ${unit}: ${units}`);
+    warnings.push(
+      `aquifer.conductivity: ${below} active cell(s) below ${fmt(low)} ${unit} (1e-13 m/s, the bottom of published values, for unfractured rock; ${source}), down to ${fmt(lowest)} ${unit}: ${units}`,
+    );
   }
   return warnings;
 }
@@ -99,7 +103,12 @@ function secondsPer(units: Units): number {
 }
 
 /** Count of values beyond [min, max] (NaN skipped) where `keep[p]` (or everywhere), with the most extreme one. */
-function beyond(values: Float64Array | number, min: number, max: number, keep: Uint8Array | null): { count: number; worst: number; at: number } {
+function beyond(
+  values: Float64Array | number,
+  min: number,
+  max: number,
+  keep: Uint8Array | null,
+): { count: number; worst: number; at: number } {
   const n = typeof values === 'number' ? 1 : values.length;
   let count = 0;
   let worst = NaN;
@@ -171,7 +180,9 @@ export function inputWarnings(model: ModelInput, active: Uint8Array): string[] {
     ['height', Math.abs(transform[5])],
   ] as const) {
     if (size < cell.min / m || size > cell.max / m) {
-      warnings.push(`aquifer.conductivity: cell ${what} ${fmt(size)} ${u} lies outside 1 cm to 100 km (common practice for groundwater models): check the raster's CRS units against units.length "${u}"`);
+      warnings.push(
+        `aquifer.conductivity: cell ${what} ${fmt(size)} ${u} lies outside 1 cm to 100 km (common practice for groundwater models): check the raster's CRS units against units.length "${u}"`,
+      );
     }
   }
 
@@ -181,10 +192,14 @@ export function inputWarnings(model: ModelInput, active: Uint8Array): string[] {
   const reliefText = `the Earth's relief (about -11 km to +8.85 km; from memory): heads are elevations above a datum such as sea level; ${units}`;
   for (const entry of model.fixedHeads) {
     const h = beyond(entry.heads, low, high, null);
-    if (h.count > 0) warnings.push(`${entry.source} ("${entry.name}"): ${h.count} head(s) outside ${fmt(low)} to ${fmt(high)} ${u}, e.g. ${fmt(h.worst)} ${u}, lie beyond ${reliefText}`);
+    if (h.count > 0)
+      warnings.push(
+        `${entry.source} ("${entry.name}"): ${h.count} head(s) outside ${fmt(low)} to ${fmt(high)} ${u}, e.g. ${fmt(h.worst)} ${u}, lie beyond ${reliefText}`,
+      );
   }
   for (const o of model.observations) {
-    if (o.head < low || o.head > high) warnings.push(`observation "${o.id}" (${o.source}): head ${fmt(o.head)} ${u} lies beyond ${reliefText}`);
+    if (o.head < low || o.head > high)
+      warnings.push(`observation "${o.id}" (${o.source}): head ${fmt(o.head)} ${u} lies beyond ${reliefText}`);
   }
   for (const [key, field] of [
     ['aquifer.top', model.aquiferTop],
@@ -193,7 +208,10 @@ export function inputWarnings(model: ModelInput, active: Uint8Array): string[] {
   ] as const) {
     if (field === undefined) continue;
     const e = beyond(field, low, high, null);
-    if (e.count > 0) warnings.push(`${key}: ${typeof field === 'number' ? fmt(e.worst) : `${e.count} cell(s), e.g. ${fmt(e.worst)}`} ${u} lies beyond ${reliefText}`);
+    if (e.count > 0)
+      warnings.push(
+        `${key}: ${typeof field === 'number' ? fmt(e.worst) : `${e.count} cell(s), e.g. ${fmt(e.worst)}`} ${u} lies beyond ${reliefText}`,
+      );
   }
   return warnings;
 }
@@ -263,5 +281,9 @@ export function headWarnings(model: ModelInput, system: FlowSystem, head: Float6
 }
 
 export function sanityWarnings(model: ModelInput, system: FlowSystem, head: Float64Array, wellbore: WellboreResult[]): string[] {
-  return [...conductivityWarnings(model, system.active), ...inputWarnings(model, system.active), ...headWarnings(model, system, head, wellbore)];
+  return [
+    ...conductivityWarnings(model, system.active),
+    ...inputWarnings(model, system.active),
+    ...headWarnings(model, system, head, wellbore),
+  ];
 }

@@ -39,7 +39,8 @@ export function sourcesOfWater(baseline: WaterBudget, variant: WaterBudget): Sou
   const names: string[] = [];
   for (const t of baseline.terms) if (!names.includes(t.term)) names.push(t.term);
   for (const t of variant.terms) if (!names.includes(t.term)) names.push(t.term);
-  const find = (budget: WaterBudget, name: string): BudgetTerm => budget.terms.find((t) => t.term === name) ?? { term: name, inflow: 0, outflow: 0 };
+  const find = (budget: WaterBudget, name: string): BudgetTerm =>
+    budget.terms.find((t) => t.term === name) ?? { term: name, inflow: 0, outflow: 0 };
 
   const pumped = new Set([...baseline.terms, ...variant.terms].filter((t) => t.pumping).map((t) => t.term));
   let addedPumping = 0;

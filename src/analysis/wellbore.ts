@@ -76,7 +76,13 @@ export function equivalentBlockRadius(dx: number, dy: number, anisotropy: number
 }
 
 /** h_w = h_cell + Q/(2 pi T) ln(r0/r_w) (Peaceman 1978). */
-export function peacemanWellboreHead(cellHead: number, rate: number, transmissivity: number, equivalentRadius: number, radius: number): number {
+export function peacemanWellboreHead(
+  cellHead: number,
+  rate: number,
+  transmissivity: number,
+  equivalentRadius: number,
+  radius: number,
+): number {
   return cellHead + (rate / (2 * Math.PI * transmissivity)) * Math.log(equivalentRadius / radius);
 }
 
@@ -145,8 +151,14 @@ export function wellboreWarnings(results: WellboreResult[], lengthUnit: string):
   const warnings: string[] = [];
   for (const w of results) {
     if (w.undeliveredRate > 1e-6 * -w.rate || w.wellboreShortfall > 0) {
-      const lost = w.undeliveredRate > 1e-6 * -w.rate ? `its cell is ${w.cellDry ? 'dry' : 'drying'}: of its rate ${fmtRate(-w.rate)} it could not deliver ${fmtRate(w.undeliveredRate)}` : `of its rate ${fmtRate(-w.rate)}`;
-      const bore = w.wellboreShortfall > 0 ? `; its well-bore head would fall below the aquifer bottom, so a further ${fmtRate(w.wellboreShortfall)} cannot be lifted` : '';
+      const lost =
+        w.undeliveredRate > 1e-6 * -w.rate
+          ? `its cell is ${w.cellDry ? 'dry' : 'drying'}: of its rate ${fmtRate(-w.rate)} it could not deliver ${fmtRate(w.undeliveredRate)}`
+          : `of its rate ${fmtRate(-w.rate)}`;
+      const bore =
+        w.wellboreShortfall > 0
+          ? `; its well-bore head would fall below the aquifer bottom, so a further ${fmtRate(w.wellboreShortfall)} cannot be lifted`
+          : '';
       warnings.push(
         `well "${w.id}": ${lost}${bore} (${lengthUnit}^3 per time unit; the water table reaches the aquifer bottom there); lower the rate or move the well`,
       );

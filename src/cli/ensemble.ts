@@ -3,7 +3,7 @@
  * the staged result folder), print. Exit 0 when results were written (realisations that did not converge are
  * listed in summary.json and left out of the statistics), 3 when no realisation of the baseline converged.
  */
-import { Command, Option } from 'commander';
+import { type Command, Option } from 'commander';
 import { PiezomapError } from '../errors.js';
 import { CAUTION } from '../caution.js';
 import { prepareResultFolder, releaseResultFolder, writeResultFiles } from '../output/resultFolder.js';
@@ -51,21 +51,35 @@ function progressBar(quiet: boolean, stream: NodeJS.WriteStream = process.stderr
     last = t;
     const width = 24;
     const filled = Math.round((done / total) * width);
-    const left = done > 0 ? ((t - start) / done) * (total - done) / 1000 : NaN;
-    const eta = Number.isFinite(left) ? (left >= 60 ? `${Math.floor(left / 60)}m ${Math.round(left % 60)}s left` : `${Math.round(left)}s left`) : '';
+    const left = done > 0 ? (((t - start) / done) * (total - done)) / 1000 : NaN;
+    const eta = Number.isFinite(left)
+      ? left >= 60
+        ? `${Math.floor(left / 60)}m ${Math.round(left % 60)}s left`
+        : `${Math.round(left)}s left`
+      : '';
     stream.write(`\r\x1b[2Krealisations [${'#'.repeat(filled)}${'.'.repeat(width - filled)}] ${done}/${total} ${eta}`);
     if (done === total) stream.write('\r\x1b[2K');
   };
 }
 
 function formatEnsemble(summary: EnsembleSummaryJson, outDir: string): string {
-  const lines = [`piezomap ensemble: ${summary.title}`, `  ${summary.realisations} realisations, seed ${summary.seed}, sd(ln K) ${summary.logConductivity.sd}`];
+  const lines = [
+    `piezomap ensemble: ${summary.title}`,
+    `  ${summary.realisations} realisations, seed ${summary.seed}, sd(ln K) ${summary.logConductivity.sd}`,
+  ];
   for (const run of summary.runs) {
-    lines.push(`  ${run.name}: ${run.converged} converged${run.notConverged.length ? `, ${run.notConverged.length} left out (not converged)` : ''}`);
+    lines.push(
+      `  ${run.name}: ${run.converged} converged${run.notConverged.length ? `, ${run.notConverged.length} left out (not converged)` : ''}`,
+    );
     for (const p of run.drawdownAtPoints ?? []) {
       if (p.kind !== 'receptor') continue;
-      const exc = p.exceedance.map(({ threshold, probability }) => `P(drawdown > ${threshold} ${summary.units.length}) = ${probability === null ? 'n/a' : probability.toFixed(3)}`);
-      lines.push(`    receptor ${p.id}: mean drawdown ${p.mean === null ? 'n/a' : p.mean.toFixed(3)} ${summary.units.length}${exc.length ? '; ' + exc.join(', ') : ''}`);
+      const exc = p.exceedance.map(
+        ({ threshold, probability }) =>
+          `P(drawdown > ${threshold} ${summary.units.length}) = ${probability === null ? 'n/a' : probability.toFixed(3)}`,
+      );
+      lines.push(
+        `    receptor ${p.id}: mean drawdown ${p.mean === null ? 'n/a' : p.mean.toFixed(3)} ${summary.units.length}${exc.length ? '; ' + exc.join(', ') : ''}`,
+      );
     }
   }
   lines.push(`  results in ${outDir}`, `  ${CAUTION}`);
@@ -100,7 +114,10 @@ async function runEnsembleCommand(scenario: string, flags: EnsembleFlags, io: Cl
       io.stdout(flags.json ? JSON.stringify({ shard: options.shard, range: run.range, run: run.runInfo }, null, 2) + '\n' : text);
       return 0;
     }
-    const { files, summary } = ensembleFiles(run.setup, run.records, { ...run.runInfo, ...(folder.notes.length ? { notes: folder.notes } : {}) });
+    const { files, summary } = ensembleFiles(run.setup, run.records, {
+      ...run.runInfo,
+      ...(folder.notes.length ? { notes: folder.notes } : {}),
+    });
     await writeResultFiles(folder, files);
     io.stdout(flags.json ? JSON.stringify(summary, null, 2) + '\n' : formatEnsemble(summary, flags.out!));
     return noneConverged(summary, io);
@@ -144,11 +161,20 @@ export function addEnsembleCommand(program: Command, io: CliIO, run: (fn: () => 
   const ensemble = common(
     program
       .command('ensemble')
-      .description('solve the baseline and every variant over realisations of ln K (the scenario\'s "ensemble" key); write per-cell statistics, ensemble.csv and summary.json into OUTDIR')
+      .description(
+        'solve the baseline and every variant over realisations of ln K (the scenario\'s "ensemble" key); write per-cell statistics, ensemble.csv and summary.json into OUTDIR',
+      )
       .argument('<scenario>', 'scenario JSON file with "ensemble"')
       .option('--workers <n>', 'worker threads (default: every core)', positiveInteger('--workers'))
-      .option('--shard <K/N|auto>', 'run only shard K of N into OUTDIR (combine with "ensemble merge"); "auto": the array index from the environment (SLURM_ARRAY_TASK_ID, JOB_COMPLETION_INDEX, ...) plus 1')
-      .addOption(new Option('--method <name>', `solver method (overrides the scenario): ${solverMethodNames().join(', ')}`).argParser((v) => parseSolverOption('method', v)))
+      .option(
+        '--shard <K/N|auto>',
+        'run only shard K of N into OUTDIR (combine with "ensemble merge"); "auto": the array index from the environment (SLURM_ARRAY_TASK_ID, JOB_COMPLETION_INDEX, ...) plus 1',
+      )
+      .addOption(
+        new Option('--method <name>', `solver method (overrides the scenario): ${solverMethodNames().join(', ')}`).argParser((v) =>
+          parseSolverOption('method', v),
+        ),
+      )
       .option('--tolerance <number>', 'relative residual to reach (overrides the scenario)', (v) => parseSolverOption('tolerance', v))
       .option('--max-iterations <n>', 'iteration cap (overrides the scenario)', (v) => parseSolverOption('maxIterations', v))
       .option('--relaxation <omega>', 'relaxation factor for SOR', (v) => parseSolverOption('relaxation', v)),
@@ -162,7 +188,10 @@ export function addEnsembleCommand(program: Command, io: CliIO, run: (fn: () => 
       .argument('<shards...>', 'shard folders'),
   ).action(async (shards: string[], flags: EnsembleFlags) => {
     // Options written after "merge" may be taken by `ensemble` itself (commander's global options): use both.
-    const given = { ...(ensemble.opts() as EnsembleFlags), ...Object.fromEntries(Object.entries(flags).filter(([, v]) => v !== undefined)) } as EnsembleFlags;
+    const given = {
+      ...(ensemble.opts() as EnsembleFlags),
+      ...Object.fromEntries(Object.entries(flags).filter(([, v]) => v !== undefined)),
+    } as EnsembleFlags;
     await run(() => runMerge(shards, given, io))();
   });
 }

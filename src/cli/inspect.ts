@@ -20,7 +20,12 @@ export interface InspectReport {
   observations: number;
   receptors: number;
   /** The tracking key as resolved (points in the raster CRS), when given. */
-  tracking?: { captureTimes: number[]; particlesPerWell: number; points: Array<{ id: string; x: number; y: number }>; maxTime: number | null };
+  tracking?: {
+    captureTimes: number[];
+    particlesPerWell: number;
+    points: Array<{ id: string; x: number; y: number }>;
+    maxTime: number | null;
+  };
   /** Variants, checked as compare would check them (resolved and assembled, not solved). */
   variants: Array<{ name: string; wells: number; sharedOperator: boolean; sharing: string }>;
   solver: { method: string; autoChoice: string; tolerance: number; maxIterations: number };
@@ -36,7 +41,8 @@ export function inspectReport(
   variants: ReadonlyArray<{ name: string; model: ModelInput; system?: FlowSystem; shared: boolean; sharing: string }> = [],
 ): InspectReport {
   const { grid } = model;
-  let kMin = Infinity, kMax = -Infinity;
+  let kMin = Infinity,
+    kMax = -Infinity;
   for (let p = 0; p < system.active.length; p++) {
     if (!system.active[p]) continue;
     const k = model.conductivity[p]!;
@@ -75,7 +81,13 @@ export function inspectReport(
     fixedHeads: system.groups.map((name, g) => ({ name, cells: groupCells[g]!, ignoredOnInactive: system.counts.fixedOnInactive[g]! })),
     boundaries: system.terms
       .filter((t) => t.prescribedHeads === null && !t.pumping && (t.anchors || t.nonlinear))
-      .map((t) => ({ term: t.label, cells: t.cells.length, ignoredOnInactive: t.ignoredCells, switching: t.nonlinear, reaches: t.parts?.names.length ?? 0 })),
+      .map((t) => ({
+        term: t.label,
+        cells: t.cells.length,
+        ignoredOnInactive: t.ignoredCells,
+        switching: t.nonlinear,
+        reaches: t.parts?.names.length ?? 0,
+      })),
     conductivity: { min: kMin, max: kMax },
     wells: model.wells.map((w, k) => {
       const p = cells[k]!;
@@ -116,18 +128,28 @@ export function formatInspect(r: InspectReport): string {
   );
   out.push(`Conductivity ${r.conductivity.min.toPrecision(4)} to ${r.conductivity.max.toPrecision(4)} ${u}/${t} on active cells`);
   for (const f of r.fixedHeads) {
-    out.push(`Fixed head   ${f.name}: ${L(f.cells)} cells${f.ignoredOnInactive ? ` (${L(f.ignoredOnInactive)} on inactive cells ignored)` : ''}`);
+    out.push(
+      `Fixed head   ${f.name}: ${L(f.cells)} cells${f.ignoredOnInactive ? ` (${L(f.ignoredOnInactive)} on inactive cells ignored)` : ''}`,
+    );
   }
   for (const b of r.boundaries) {
-    const extra = [b.switching ? 'switching' : '', b.reaches ? `${b.reaches} reaches` : '', b.ignoredOnInactive ? `${L(b.ignoredOnInactive)} on inactive cells ignored` : ''].filter(Boolean);
+    const extra = [
+      b.switching ? 'switching' : '',
+      b.reaches ? `${b.reaches} reaches` : '',
+      b.ignoredOnInactive ? `${L(b.ignoredOnInactive)} on inactive cells ignored` : '',
+    ].filter(Boolean);
     out.push(`Boundary     ${b.term}: ${L(b.cells)} cells${extra.length ? ` (${extra.join(', ')})` : ''}`);
   }
   for (const w of r.wells) out.push(`Well         ${w.id}: row ${w.row}, col ${w.col}, rate ${w.rate} ${u}\u00b3/${t}`);
   out.push(`Observations ${r.observations}`);
   if (r.receptors) out.push(`Receptors    ${r.receptors}`);
   if (r.tracking) {
-    const times = r.tracking.captureTimes.length ? `capture times ${r.tracking.captureTimes.join(', ')} and steady` : 'steady capture zones';
-    out.push(`Tracking     ${times}; ${r.tracking.particlesPerWell} pathline(s) per well; ${r.tracking.points.length} point(s)${r.tracking.maxTime !== null ? `; time limit ${r.tracking.maxTime}` : ''}`);
+    const times = r.tracking.captureTimes.length
+      ? `capture times ${r.tracking.captureTimes.join(', ')} and steady`
+      : 'steady capture zones';
+    out.push(
+      `Tracking     ${times}; ${r.tracking.particlesPerWell} pathline(s) per well; ${r.tracking.points.length} point(s)${r.tracking.maxTime !== null ? `; time limit ${r.tracking.maxTime}` : ''}`,
+    );
   }
   for (const v of r.variants) out.push(`Variant      ${v.name}: ${v.wells} well(s); ${v.sharing}`);
   out.push(

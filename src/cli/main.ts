@@ -89,14 +89,22 @@ function productOptions(flags: SolveFlags): ProductOptions {
 
 function addSolverOptions(cmd: Command): Command {
   return cmd
-    .addOption(new Option('--method <name>', `solver method (overrides the scenario): ${solverMethodNames().join(', ')}`).argParser(solverOption('method')))
+    .addOption(
+      new Option('--method <name>', `solver method (overrides the scenario): ${solverMethodNames().join(', ')}`).argParser(
+        solverOption('method'),
+      ),
+    )
     .option('--tolerance <number>', 'relative residual to reach (overrides the scenario)', solverOption('tolerance'))
     .option('--max-iterations <n>', 'iteration cap (overrides the scenario)', solverOption('maxIterations'))
     .option('--relaxation <omega>', 'relaxation factor for SOR (default: chosen automatically)', solverOption('relaxation'))
     .option('--overwrite', 'replace results already in the output folder')
     .option('--no-maps', 'write only rasters, tables and the summary: no contours, flux rasters, map or report')
     .option('--native-contours', "also write contours (and capture zones and pathlines) in the raster's own CRS (*.native.geojson)")
-    .option('--contour-interval <number>', 'contour interval in length units (default: a round interval)', positiveNumber('--contour-interval'));
+    .option(
+      '--contour-interval <number>',
+      'contour interval in length units (default: a round interval)',
+      positiveNumber('--contour-interval'),
+    );
 }
 
 /** The run options of the flags: solver overrides (already checked while parsing), progress. */
@@ -203,9 +211,7 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
   const program = new Command();
   program
     .name('piezomap')
-    .description(
-      'Steady confined groundwater heads, drawdown and water budgets from GeoTIFF rasters and a JSON scenario file.\n' + CAUTION,
-    )
+    .description('Steady confined groundwater heads, drawdown and water budgets from GeoTIFF rasters and a JSON scenario file.\n' + CAUTION)
     .version(VERSION, '--version', 'print the version')
     .showHelpAfterError('(run with --help for usage)')
     .configureOutput({ writeOut: io.stdout, writeErr: io.stderr })
@@ -231,7 +237,9 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
     addCommon(
       program
         .command('compare')
-        .description('solve the baseline and every variant of a scenario; write each one\'s results, drawdown.tif per variant, comparison.csv and summary.json into OUTDIR')
+        .description(
+          "solve the baseline and every variant of a scenario; write each one's results, drawdown.tif per variant, comparison.csv and summary.json into OUTDIR",
+        )
         .argument('<scenario>', 'scenario JSON file with "variants"')
         .requiredOption('-o, --out <dir>', 'result folder (required)'),
     ),
@@ -240,7 +248,10 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
   });
 
   addCommon(
-    program.command('inspect').description('load and validate a scenario; print the grid, counts and warnings; solve nothing').argument('<scenario>', 'scenario JSON file'),
+    program
+      .command('inspect')
+      .description('load and validate a scenario; print the grid, counts and warnings; solve nothing')
+      .argument('<scenario>', 'scenario JSON file'),
   ).action(async (scenario: string, flags: CommonFlags) => {
     await run(() => runInspect(scenario, flags, io))();
   });
@@ -309,4 +320,3 @@ export function installSignalHandlers(): void {
     });
   }
 }
-

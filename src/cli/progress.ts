@@ -22,7 +22,9 @@ export function makeProgress(quiet: boolean, stream: NodeJS.WriteStream = proces
       const done = Math.min(1, Math.max(0, Math.log10(Math.max(e.relativeResidual, 1e-300)) / target));
       const width = 24;
       const filled = Math.round(done * width);
-      draw(`solving  [${'#'.repeat(filled)}${'.'.repeat(width - filled)}] iteration ${e.iteration}, residual ${e.relativeResidual.toExponential(2)}`);
+      draw(
+        `solving  [${'#'.repeat(filled)}${'.'.repeat(width - filled)}] iteration ${e.iteration}, residual ${e.relativeResidual.toExponential(2)}`,
+      );
     } else {
       draw(`${e.stage.padEnd(8)} ${e.message}`, true);
     }

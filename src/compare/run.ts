@@ -13,7 +13,15 @@
 import { exchangeDifference } from '../scenario/loadHeadDependent.js';
 import { dirname } from 'node:path';
 import { assembleSystem, withSources } from '../discretisation/assemble.js';
-import { drawdownExtremes, drawdownField, drawdownNoiseLevel, pointDrawdown, totalWithdrawal, wellboreDrawdowns, zeroBelow } from '../analysis/drawdown.js';
+import {
+  drawdownExtremes,
+  drawdownField,
+  drawdownNoiseLevel,
+  pointDrawdown,
+  totalWithdrawal,
+  wellboreDrawdowns,
+  zeroBelow,
+} from '../analysis/drawdown.js';
 import { locateObservations, locateReceptors, wellCells } from '../analysis/points.js';
 import { resultProblem, type SolveResult } from '../analysis/result.js';
 import { sourcesOfWater } from '../analysis/sources.js';
@@ -90,7 +98,9 @@ export function prepareComparison(
   for (const v of variants) {
     const key = v.name.toLowerCase();
     if (!/^[A-Za-z0-9_-]+$/.test(v.name) || key === 'baseline') {
-      throw inputError(`variant name "${v.name}" cannot name a result folder`, { hint: 'use letters, digits, "-" and "_"; "baseline" is reserved' });
+      throw inputError(`variant name "${v.name}" cannot name a result folder`, {
+        hint: 'use letters, digits, "-" and "_"; "baseline" is reserved',
+      });
     }
     if (names.has(key)) throw inputError(`duplicate variant name "${v.name}"`, { hint: 'variant names must be unique (case is ignored)' });
     names.add(key);
@@ -102,16 +112,10 @@ export function prepareComparison(
   // (and its own system when it cannot share the baseline's operator). Solvers of fresh variants are set up one at a time.
   const fresh = differences.filter((d) => d !== null).length;
   const method = baseline.solver.method;
-  checkMemoryBudget(
-    baseline.grid,
-    { method, bytesPerCell: solverBytesPerCell(method) },
-    leanestMethod(),
-    undefined,
-    {
-      bytesPerCell: settled.length * COMPARE_VARIANT_BYTES_PER_CELL + fresh * COMPARE_FRESH_VARIANT_BYTES_PER_CELL,
-      what: `${settled.length} variant(s) held at once`,
-    },
-  );
+  checkMemoryBudget(baseline.grid, { method, bytesPerCell: solverBytesPerCell(method) }, leanestMethod(), undefined, {
+    bytesPerCell: settled.length * COMPARE_VARIANT_BYTES_PER_CELL + fresh * COMPARE_FRESH_VARIANT_BYTES_PER_CELL,
+    what: `${settled.length} variant(s) held at once`,
+  });
   if (!assembled) options.onProgress?.({ stage: 'assemble', message: 'assembling the baseline' });
   const baseSystem = assembled ?? assembleSystem(baseline);
   // Nonlinear terms change the operator during the solve, so their systems are never shared.
@@ -129,7 +133,10 @@ export function prepareComparison(
       model,
       system,
       shared: difference === null,
-      sharing: difference === null ? 'same aquifer, fixed heads and solver: baseline operator and solver set-up reused' : `solved afresh: ${difference}`,
+      sharing:
+        difference === null
+          ? 'same aquifer, fixed heads and solver: baseline operator and solver set-up reused'
+          : `solved afresh: ${difference}`,
     };
   });
   return { baseline, baseSystem, receptors, receptorCells, variants: prepared };
@@ -203,7 +210,8 @@ export function operatorDifference(baseline: ModelInput, variant: ModelInput, op
   const b = variant.fixedHeads;
   if (a.length !== b.length) return 'fixedHeads differ';
   for (let g = 0; g < a.length; g++) {
-    if (a[g]!.name !== b[g]!.name || !fieldsEqual(a[g]!.cells, b[g]!.cells) || !fieldsEqual(a[g]!.heads, b[g]!.heads)) return 'fixedHeads differ';
+    if (a[g]!.name !== b[g]!.name || !fieldsEqual(a[g]!.cells, b[g]!.cells) || !fieldsEqual(a[g]!.heads, b[g]!.heads))
+      return 'fixedHeads differ';
   }
   const exchange = exchangeDifference(baseline, variant);
   if (exchange !== null) return exchange;

@@ -158,9 +158,10 @@ export function assembleSystem(model: ModelInput): FlowSystem {
   let waterTable: WaterTable | null = null;
   let initial = startingHeads(fixedHead, active, datum);
   if (type !== 'confined') {
-    initial = model.initialHead === undefined
-      ? defaultWaterTableStart(active, fixed, fixedHead, datum, model.aquiferBottom!, model.aquiferTop)
-      : startFromField(model.initialHead, fixedHead, active);
+    initial =
+      model.initialHead === undefined
+        ? defaultWaterTableStart(active, fixed, fixedHead, datum, model.aquiferBottom!, model.aquiferTop)
+        : startFromField(model.initialHead, fixedHead, active);
     waterTable = buildWaterTable(type, conductivity, anisotropy, model.aquiferBottom!, model.aquiferTop, active, initial)!;
     updateSaturation(waterTable, initial, active);
     waterTableConductances(waterTable, nx, ny, dx, dy, active, conductanceEast, conductanceSouth);
@@ -169,7 +170,9 @@ export function assembleSystem(model: ModelInput): FlowSystem {
 
   const others = TERM_KINDS.filter((k) => !k.dirichlet).flatMap((k) => k.build(model, context));
   // Budget order: the registry's, Dirichlet kinds included where the registry lists them.
-  const terms = TERM_KINDS.flatMap((k) => (k.dirichlet ? dirichlet.filter((t) => t.kind === k.kind) : others.filter((t) => t.kind === k.kind)));
+  const terms = TERM_KINDS.flatMap((k) =>
+    k.dirichlet ? dirichlet.filter((t) => t.kind === k.kind) : others.filter((t) => t.kind === k.kind),
+  );
 
   const anchor = anchorMask(terms, n);
   const regions = checkRegions(grid, active, anchor, conductanceEast, conductanceSouth);
@@ -205,7 +208,14 @@ export function assembleSystem(model: ModelInput): FlowSystem {
     terms,
     datum,
     waterTable,
-    counts: { cells: n, active: activeCount, fixed: fixedCount, unknowns: unknownCount, fixedOnInactive: dirichlet.map((t) => t.ignoredCells), regions },
+    counts: {
+      cells: n,
+      active: activeCount,
+      fixed: fixedCount,
+      unknowns: unknownCount,
+      fixedOnInactive: dirichlet.map((t) => t.ignoredCells),
+      regions,
+    },
   };
   const { diag, rhs } = linearise(base, unknown, initial);
   return { ...base, startHead: initial, operator: new GridOperator(nx, ny, diag, east, south, unknown), rhs };
@@ -336,7 +346,11 @@ export function checkRegions(
     queue[tail++] = start;
     label[start] = regions;
     let hasFixed = false;
-    let minRow = ny, maxRow = -1, minCol = nx, maxCol = -1, size = 0;
+    let minRow = ny,
+      maxRow = -1,
+      minCol = nx,
+      maxCol = -1,
+      size = 0;
     while (head < tail) {
       const p = queue[head++]!;
       size++;
@@ -347,10 +361,22 @@ export function checkRegions(
       if (row > maxRow) maxRow = row;
       if (col < minCol) minCol = col;
       if (col > maxCol) maxCol = col;
-      if (col < nx - 1 && conductanceEast[p]! > 0 && label[p + 1] === -1) { label[p + 1] = regions; queue[tail++] = p + 1; }
-      if (col > 0 && conductanceEast[p - 1]! > 0 && label[p - 1] === -1) { label[p - 1] = regions; queue[tail++] = p - 1; }
-      if (row < ny - 1 && conductanceSouth[p]! > 0 && label[p + nx] === -1) { label[p + nx] = regions; queue[tail++] = p + nx; }
-      if (row > 0 && conductanceSouth[p - nx]! > 0 && label[p - nx] === -1) { label[p - nx] = regions; queue[tail++] = p - nx; }
+      if (col < nx - 1 && conductanceEast[p]! > 0 && label[p + 1] === -1) {
+        label[p + 1] = regions;
+        queue[tail++] = p + 1;
+      }
+      if (col > 0 && conductanceEast[p - 1]! > 0 && label[p - 1] === -1) {
+        label[p - 1] = regions;
+        queue[tail++] = p - 1;
+      }
+      if (row < ny - 1 && conductanceSouth[p]! > 0 && label[p + nx] === -1) {
+        label[p + nx] = regions;
+        queue[tail++] = p + nx;
+      }
+      if (row > 0 && conductanceSouth[p - nx]! > 0 && label[p - nx] === -1) {
+        label[p - nx] = regions;
+        queue[tail++] = p - nx;
+      }
     }
     if (!hasFixed) {
       floatingCount++;
@@ -369,8 +395,13 @@ export function checkRegions(
     const more = floatingCount > floating.length ? `\n  and ${floatingCount - floating.length} more such region(s)` : '';
     throw inputError(
       `${floatingCount} connected active region${floatingCount === 1 ? ' has' : 's have'} no fixed head and no boundary or leakage that sets its level, so the steady head there is undetermined:\n  ` +
-        floating.join('\n  ') + more,
-      { hint: hint ?? 'add a fixed head (or a head-dependent boundary) that reaches the region, or make it inactive (nodata in the conductivity raster)' },
+        floating.join('\n  ') +
+        more,
+      {
+        hint:
+          hint ??
+          'add a fixed head (or a head-dependent boundary) that reaches the region, or make it inactive (nodata in the conductivity raster)',
+      },
     );
   }
   return regions;

@@ -171,7 +171,15 @@ export function* solveOuter(
     let stateChanges = 0;
     for (const term of nonlinear) stateChanges += term.updateState(head);
     // A region held only by cells that switched off (drains run dry) has no level left: report it, never solve it.
-    if (stateChanges > 0) checkRegions(system.grid, system.active, anchorMask(system.terms, head.length), system.conductanceEast, system.conductanceSouth, SWITCHED_OFF_HINT);
+    if (stateChanges > 0)
+      checkRegions(
+        system.grid,
+        system.active,
+        anchorMask(system.terms, head.length),
+        system.conductanceEast,
+        system.conductanceSouth,
+        SWITCHED_OFF_HINT,
+      );
     let dryCells = 0;
     if (waterTable) {
       dryCells = updateSaturation(waterTable, head, active);
@@ -189,7 +197,8 @@ export function* solveOuter(
     // Settled needs an undamped last step: a damped step's head change understates the distance still to go (an
     // extrapolated one overstates it).
     const wellSettled = !waterTable || flowResidual <= flowTolerance;
-    if (stateChanges === 0 && maxHeadChange <= settings.headTolerance && wellSettled && stepDamping >= 1 && limited === 0) stopReason = 'settled';
+    if (stateChanges === 0 && maxHeadChange <= settings.headTolerance && wellSettled && stepDamping >= 1 && limited === 0)
+      stopReason = 'settled';
     else if (stateChanges > 0 && seen.has(key)) stopReason = 'cycle';
     else if (history.length + 1 >= settings.maxOuterIterations) stopReason = 'iteration-limit';
     seen.add(key);
@@ -211,13 +220,29 @@ export function* solveOuter(
         yield* setDiagonal(session, operator.diag);
       }
     }
-    history.push({ stateChanges, maxHeadChange, innerIterations: answer.stats.iterations, flowResidual: waterTable ? flowResidual : 0, dryCells, damping: stepDamping, limitedCells: limited, rebuilt });
-    if (stopReason) return { x, stats: answer.stats, outer: { iterations: history.length, stopReason, history, innerIterations: innerTotal } };
+    history.push({
+      stateChanges,
+      maxHeadChange,
+      innerIterations: answer.stats.iterations,
+      flowResidual: waterTable ? flowResidual : 0,
+      dryCells,
+      damping: stepDamping,
+      limitedCells: limited,
+      rebuilt,
+    });
+    if (stopReason)
+      return { x, stats: answer.stats, outer: { iterations: history.length, stopReason, history, innerIterations: innerTotal } };
   }
 }
 
 /** ||b - A x|| / ||b|| over the unknown cells (||b - A x|| when b = 0); `work` is scratch. */
-function relativeResidual(operator: FlowSystem['operator'], x: Float64Array, b: Float64Array, unknown: Uint8Array, work: Float64Array): number {
+function relativeResidual(
+  operator: FlowSystem['operator'],
+  x: Float64Array,
+  b: Float64Array,
+  unknown: Uint8Array,
+  work: Float64Array,
+): number {
   applyDot(operator, x, work);
   let r2 = 0;
   let b2 = 0;
@@ -260,7 +285,14 @@ function conductanceShift(ce: Float64Array, cs: Float64Array, be: Float64Array, 
 }
 
 /** The operator's couplings from the conductances, on the faces between two unknowns. */
-function copyCouplings(ce: Float64Array, cs: Float64Array, eastCoupled: Uint8Array, southCoupled: Uint8Array, east: Float64Array, south: Float64Array): void {
+function copyCouplings(
+  ce: Float64Array,
+  cs: Float64Array,
+  eastCoupled: Uint8Array,
+  southCoupled: Uint8Array,
+  east: Float64Array,
+  south: Float64Array,
+): void {
   for (let p = 0; p < ce.length; p++) {
     if (eastCoupled[p]) east[p] = ce[p]!;
     if (southCoupled[p]) south[p] = cs[p]!;

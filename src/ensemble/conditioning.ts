@@ -41,10 +41,13 @@ export class Conditioner {
       const cell = d.row * spec.nx + d.col;
       const other = seen.get(cell);
       if (other !== undefined) {
-        throw inputError(`ensemble.conditioning: measurements "${other}" and "${d.id}" fall in the same cell (row ${d.row}, col ${d.col})`, {
-          key: 'ensemble.conditioning',
-          hint: 'give one value per cell (e.g. the geometric mean of the measurements there)',
-        });
+        throw inputError(
+          `ensemble.conditioning: measurements "${other}" and "${d.id}" fall in the same cell (row ${d.row}, col ${d.col})`,
+          {
+            key: 'ensemble.conditioning',
+            hint: 'give one value per cell (e.g. the geometric mean of the measurements there)',
+          },
+        );
       }
       seen.set(cell, d.id);
     }
@@ -60,10 +63,13 @@ export class Conditioner {
         for (let k = 0; k < j; k++) s -= L[i * n + k]! * L[j * n + k]!;
         if (i === j) {
           if (!(s > 1e-10 * c[i * n + i]!)) {
-            throw inputError(`ensemble.conditioning: measurement "${data[i]!.id}" is (numerically) determined by the others: the kriging system is singular`, {
-              key: 'ensemble.conditioning',
-              hint: 'measurements much closer together than the correlation length carry the same information (the gaussian model especially): merge or drop them',
-            });
+            throw inputError(
+              `ensemble.conditioning: measurement "${data[i]!.id}" is (numerically) determined by the others: the kriging system is singular`,
+              {
+                key: 'ensemble.conditioning',
+                hint: 'measurements much closer together than the correlation length carry the same information (the gaussian model especially): merge or drop them',
+              },
+            );
           }
           L[i * n + i] = Math.sqrt(s);
         } else {
@@ -117,7 +123,8 @@ export class Conditioner {
       } else {
         const dj = data[j]!;
         for (let row = 0; row < spec.ny; row++) {
-          for (let col = 0; col < spec.nx; col++) field[row * spec.nx + col] = field[row * spec.nx + col]! + wj * this.cov(row, col, dj.row, dj.col);
+          for (let col = 0; col < spec.nx; col++)
+            field[row * spec.nx + col] = field[row * spec.nx + col]! + wj * this.cov(row, col, dj.row, dj.col);
         }
       }
     }

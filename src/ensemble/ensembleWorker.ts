@@ -27,7 +27,8 @@ port.on('message', (request: EnsembleWorkerRequest) => {
   const send = (message: EnsembleWorkerMessage, transfer: ArrayBuffer[] = []) => port.postMessage(message, transfer);
   const fail = (thrown: unknown) => {
     if (thrown instanceof PiezomapError) send({ kind: 'error', code: thrown.code, message: thrown.message });
-    else send({ kind: 'error', code: 'internal', message: describeThrown(thrown), stack: thrown instanceof Error ? thrown.stack : undefined });
+    else
+      send({ kind: 'error', code: 'internal', message: describeThrown(thrown), stack: thrown instanceof Error ? thrown.stack : undefined });
   };
   if (request.kind === 'init') {
     context = (async () => {

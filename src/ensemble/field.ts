@@ -142,7 +142,10 @@ export class GaussianFieldGenerator {
       if (mx * my > MAX_EMBEDDING_CELLS) {
         throw inputError(
           `ensemble.logConductivity: circulant embedding of the ${spec.model} covariance found no non-negative embedding up to ${MAX_EMBEDDING_CELLS} cells (smallest eigenvalue ${min.toExponential(3)} of ${max.toExponential(3)})`,
-          { key: 'ensemble.logConductivity', hint: 'shorter correlation lengths (relative to the grid) or the exponential model embed in fewer cells' },
+          {
+            key: 'ensemble.logConductivity',
+            hint: 'shorter correlation lengths (relative to the grid) or the exponential model embed in fewer cells',
+          },
         );
       }
     }

@@ -35,14 +35,19 @@ function pct(stats: PointStatistics, percentiles: readonly number[]): Record<str
 
 /** Check that the records are exactly realisations 0..R-1 in order, each with every run. */
 function checkComplete(setup: EnsembleSetup, records: readonly RealisationRecord[]): void {
-  if (records.length !== setup.realisations) throw inputError(`ensemble: ${records.length} of ${setup.realisations} realisations are present`, { key: 'ensemble.realisations' });
+  if (records.length !== setup.realisations)
+    throw inputError(`ensemble: ${records.length} of ${setup.realisations} realisations are present`, { key: 'ensemble.realisations' });
   records.forEach((r, i) => {
     if (r.index !== i || r.runs.length !== setup.runs.length) throw inputError(`ensemble: realisation ${i} is missing or incomplete`);
   });
 }
 
 /** Every result file of an ensemble, and its summary (written last as summary.json). */
-export function ensembleFiles(setup: EnsembleSetup, records: readonly RealisationRecord[], runInfo: EnsembleRunInfo): { files: OutputFile[]; summary: EnsembleSummaryJson } {
+export function ensembleFiles(
+  setup: EnsembleSetup,
+  records: readonly RealisationRecord[],
+  runInfo: EnsembleRunInfo,
+): { files: OutputFile[]; summary: EnsembleSummaryJson } {
   checkComplete(setup, records);
   const { grid, percentiles, drawdownThresholds: thresholds } = setup;
   const cells = grid.nx * grid.ny;
@@ -56,27 +61,51 @@ export function ensembleFiles(setup: EnsembleSetup, records: readonly Realisatio
   setup.runs.forEach((name, r) => {
     const folder = `${name}/`;
     const run = records.map((rec) => rec.runs[r]!);
-    const heads = cellStatistics(run.map((x) => (x.converged ? x.head : null)), cells, percentiles, []);
+    const heads = cellStatistics(
+      run.map((x) => (x.converged ? x.head : null)),
+      cells,
+      percentiles,
+      [],
+    );
     raster(`${folder}head-mean.tif`, heads.mean, `mean head (${L})`);
     raster(`${folder}head-sd.tif`, heads.sd, `standard deviation of head (${L})`);
-    percentiles.forEach((p, k) => raster(`${folder}head-p${numberLabel(p)}.tif`, heads.percentiles[k]!, `${numberLabel(p)}th percentile of head (${L})`));
+    percentiles.forEach((p, k) =>
+      raster(`${folder}head-p${numberLabel(p)}.tif`, heads.percentiles[k]!, `${numberLabel(p)}th percentile of head (${L})`),
+    );
     const summary: EnsembleSummaryJson['runs'][number] = {
       name,
       converged: run.filter((x) => x.converged).length,
       notConverged: run.flatMap((x, i) => (x.converged ? [] : [{ realisation: i, reason: x.reason ?? 'not solved' }])),
       headAtPoints: setup.columns.map((c, k) => {
-        const s = pointStatistics(run.map((x) => (x.converged ? x.points[k]! : null)), percentiles, []);
+        const s = pointStatistics(
+          run.map((x) => (x.converged ? x.points[k]! : null)),
+          percentiles,
+          [],
+        );
         return { id: c.id, kind: c.kind, count: s.count, mean: s.mean, sd: s.sd, percentiles: pct(s, percentiles) };
       }),
     };
     if (r > 0) {
       const base = records.map((rec) => rec.runs[0]!);
       const paired = (x: RunRecord, i: number) => x.converged && base[i]!.converged;
-      const dd = cellStatistics(run.map((x, i) => (paired(x, i) ? x.drawdown : null)), cells, percentiles, thresholds);
+      const dd = cellStatistics(
+        run.map((x, i) => (paired(x, i) ? x.drawdown : null)),
+        cells,
+        percentiles,
+        thresholds,
+      );
       raster(`${folder}drawdown-mean.tif`, dd.mean, `mean drawdown (${L}, baseline head - variant head, positive = lowered)`);
       raster(`${folder}drawdown-sd.tif`, dd.sd, `standard deviation of drawdown (${L})`);
-      percentiles.forEach((p, k) => raster(`${folder}drawdown-p${numberLabel(p)}.tif`, dd.percentiles[k]!, `${numberLabel(p)}th percentile of drawdown (${L})`));
-      thresholds.forEach((t, k) => raster(`${folder}drawdown-exceedance-${numberLabel(t)}.tif`, dd.exceedance[k]!, `probability (0-1) that drawdown exceeds ${numberLabel(t)} ${L}`));
+      percentiles.forEach((p, k) =>
+        raster(`${folder}drawdown-p${numberLabel(p)}.tif`, dd.percentiles[k]!, `${numberLabel(p)}th percentile of drawdown (${L})`),
+      );
+      thresholds.forEach((t, k) =>
+        raster(
+          `${folder}drawdown-exceedance-${numberLabel(t)}.tif`,
+          dd.exceedance[k]!,
+          `probability (0-1) that drawdown exceeds ${numberLabel(t)} ${L}`,
+        ),
+      );
       summary.drawdownAtPoints = setup.columns.map((c, k) => {
         const values = run.map((x, i) => {
           const b = base[i]!.points[k];
@@ -100,7 +129,10 @@ export function ensembleFiles(setup: EnsembleSetup, records: readonly Realisatio
   files.push({ name: ENSEMBLE_CSV, bytes: ensembleCsv(setup, records) });
   const warnings = [...setup.warnings];
   for (const run of runs) {
-    if (run.notConverged.length) warnings.push(`${run.name}: ${run.notConverged.length} of ${setup.realisations} realisation(s) gave no sound result and are left out of its statistics (listed under runs.notConverged)`);
+    if (run.notConverged.length)
+      warnings.push(
+        `${run.name}: ${run.notConverged.length} of ${setup.realisations} realisation(s) gave no sound result and are left out of its statistics (listed under runs.notConverged)`,
+      );
   }
   const summary: EnsembleSummaryJson = {
     piezomap: VERSION,
@@ -116,7 +148,8 @@ export function ensembleFiles(setup: EnsembleSetup, records: readonly Realisatio
     embedding: setup.embedding,
     percentiles,
     drawdownThresholds: thresholds,
-    percentileMethod: 'exact: per-cell values of every realisation sorted, linear interpolation between order statistics (Hyndman & Fan 1996, definition 7)',
+    percentileMethod:
+      'exact: per-cell values of every realisation sorted, linear interpolation between order statistics (Hyndman & Fan 1996, definition 7)',
     runs,
     files: [...files.map((f) => f.name), ENSEMBLE_REPORT, RESULT_MARKER],
     warnings,
@@ -133,7 +166,9 @@ export function ensembleCsv(setup: EnsembleSetup, records: readonly RealisationR
   const lines = [csvRow(['realisation', 'run', 'converged', ...setup.columns.map((c) => c.id)])];
   for (const rec of records) {
     rec.runs.forEach((run, r) => {
-      lines.push(csvRow([rec.index, setup.runs[r]!, run.converged ? 'true' : 'false', ...run.points.map((v) => (run.converged ? v : null))]));
+      lines.push(
+        csvRow([rec.index, setup.runs[r]!, run.converged ? 'true' : 'false', ...run.points.map((v) => (run.converged ? v : null))]),
+      );
     });
   }
   return lines.join('\n') + '\n';
@@ -158,7 +193,13 @@ function fieldsPerRealisation(setup: EnsembleSetup): number {
 }
 
 /** A shard's files: realisations.f32 (little-endian Float32, NaN where a field is absent) and summary.json. */
-export function shardFiles(setup: EnsembleSetup, shard: { k: number; n: number }, range: [number, number], records: readonly RealisationRecord[], runInfo: EnsembleRunInfo): OutputFile[] {
+export function shardFiles(
+  setup: EnsembleSetup,
+  shard: { k: number; n: number },
+  range: [number, number],
+  records: readonly RealisationRecord[],
+  runInfo: EnsembleRunInfo,
+): OutputFile[] {
   const cells = setup.grid.nx * setup.grid.ny;
   const per = fieldsPerRealisation(setup);
   const values = new Float32Array(records.length * per * cells);
@@ -179,7 +220,10 @@ export function shardFiles(setup: EnsembleSetup, shard: { k: number; n: number }
     shard,
     range,
     setup,
-    records: records.map((rec) => ({ index: rec.index, runs: rec.runs.map((r) => ({ converged: r.converged, reason: r.reason, points: r.points })) })),
+    records: records.map((rec) => ({
+      index: rec.index,
+      runs: rec.runs.map((r) => ({ converged: r.converged, reason: r.reason, points: r.points })),
+    })),
     run: runInfo,
   };
   return [
@@ -195,7 +239,10 @@ export function shardRecords(summary: ShardSummaryJson, bytes: Uint8Array, label
   const per = fieldsPerRealisation(setup);
   const expected = summary.records.length * per * cells * 4;
   if (bytes.byteLength !== expected) {
-    throw inputError(`${label}/${SHARD_VALUES}: ${bytes.byteLength} bytes, expected ${expected} for ${summary.records.length} realisation(s)`, { hint: 'the shard folder is damaged or incomplete: run that shard again' });
+    throw inputError(
+      `${label}/${SHARD_VALUES}: ${bytes.byteLength} bytes, expected ${expected} for ${summary.records.length} realisation(s)`,
+      { hint: 'the shard folder is damaged or incomplete: run that shard again' },
+    );
   }
   const copy = new Uint8Array(bytes); // aligned
   const values = new Float32Array(copy.buffer, 0, expected / 4);
@@ -204,7 +251,13 @@ export function shardRecords(summary: ShardSummaryJson, bytes: Uint8Array, label
     runs: rec.runs.map((r, j) => {
       const head = values.slice((i * per + j) * cells, (i * per + j + 1) * cells);
       const dd = j > 0 ? values.slice((i * per + setup.runs.length + j - 1) * cells, (i * per + setup.runs.length + j) * cells) : null;
-      return { converged: r.converged, reason: r.reason, head: r.converged ? head : null, drawdown: r.converged ? dd : null, points: r.points };
+      return {
+        converged: r.converged,
+        reason: r.reason,
+        head: r.converged ? head : null,
+        drawdown: r.converged ? dd : null,
+        points: r.points,
+      };
     }),
   }));
 }

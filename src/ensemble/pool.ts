@@ -63,7 +63,8 @@ export function runOnPool(
       });
       worker.on('error', (thrown) => stop(new PiezomapError('internal', `an ensemble thread failed: ${thrown.message}`)));
       worker.on('exit', (code) => {
-        if (finished < indices.length && !failed) stop(new PiezomapError('internal', `an ensemble thread stopped unexpectedly (exit code ${code})`));
+        if (finished < indices.length && !failed)
+          stop(new PiezomapError('internal', `an ensemble thread stopped unexpectedly (exit code ${code})`));
       });
       worker.postMessage({ kind: 'init', scenario, overrides } satisfies EnsembleWorkerRequest);
     }

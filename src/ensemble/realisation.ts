@@ -54,9 +54,17 @@ export function pointColumns(baseline: ModelInput, variants: ReadonlyArray<{ mod
 }
 
 /** Set up what every realisation shares: the field generator (eigenvalues), the kriging system, the point columns. */
-export function prepareEnsemble(baseline: ModelInput, variants: Array<{ name: string; model: ModelInput }>, options: RunOptions = {}): EnsembleContext {
+export function prepareEnsemble(
+  baseline: ModelInput,
+  variants: Array<{ name: string; model: ModelInput }>,
+  options: RunOptions = {},
+): EnsembleContext {
   const settings = baseline.ensemble;
-  if (!settings) throw inputError(`${baseline.scenarioPath}: the scenario has no "ensemble" key`, { key: 'ensemble', hint: 'add e.g. "ensemble": { "realisations": 200, "seed": 1, "logConductivity": { "sd": 0.5, "correlationLength": 300 } }' });
+  if (!settings)
+    throw inputError(`${baseline.scenarioPath}: the scenario has no "ensemble" key`, {
+      key: 'ensemble',
+      hint: 'add e.g. "ensemble": { "realisations": 200, "seed": 1, "logConductivity": { "sd": 0.5, "correlationLength": 300 } }',
+    });
   const grid = baseline.grid;
   const spec = {
     nx: grid.nx,
@@ -77,15 +85,19 @@ export function prepareEnsemble(baseline: ModelInput, variants: Array<{ name: st
     if (!cell) throw inputError(`${where}: the point (${m.x}, ${m.y}) is outside the grid`, { key: 'ensemble.conditioning' });
     const p = cell.row * grid.nx + cell.col;
     const k = baseline.conductivity[p]!;
-    if (!(k > 0)) throw inputError(`${where}: the point lies in an inactive cell (row ${cell.row}, col ${cell.col})`, { key: 'ensemble.conditioning' });
+    if (!(k > 0))
+      throw inputError(`${where}: the point lies in an inactive cell (row ${cell.row}, col ${cell.col})`, { key: 'ensemble.conditioning' });
     data.push({ id: m.id, row: cell.row, col: cell.col, y: Math.log(m.k / k) });
     measured.push({ cell: p, k: m.k });
   }
   if (data.length && settings.sd === 0) {
-    throw inputError('ensemble.conditioning: with logConductivity.sd = 0 every realisation is the raster itself, so measured values cannot be honoured', {
-      key: 'ensemble.conditioning',
-      hint: 'give sd > 0, or drop the conditioning file',
-    });
+    throw inputError(
+      'ensemble.conditioning: with logConductivity.sd = 0 every realisation is the raster itself, so measured values cannot be honoured',
+      {
+        key: 'ensemble.conditioning',
+        hint: 'give sd > 0, or drop the conditioning file',
+      },
+    );
   }
   const conditioner = data.length ? new Conditioner(spec, data) : null;
   return { baseline, variants, settings, generator, conditioner, measured, columns: pointColumns(baseline, variants), options };
@@ -118,9 +130,14 @@ function pointHeads(grid: Grid, head: Float64Array, columns: readonly PointColum
 }
 
 function runRecord(ctx: EnsembleContext, result: SolveResult | null, reason: string | null, drawdown: Float64Array | null): RunRecord {
-  if (!result || reason !== null) return { converged: false, reason: reason ?? 'not solved', head: null, drawdown: null, points: ctx.columns.map(() => null) };
+  if (!result || reason !== null)
+    return { converged: false, reason: reason ?? 'not solved', head: null, drawdown: null, points: ctx.columns.map(() => null) };
   const model = result.model;
-  const present = new Set<string>([...model.wells.map((w) => w.id), ...ctx.baseline.observations.map((o) => o.id), ...(ctx.baseline.receptors ?? []).map((r) => r.id)]);
+  const present = new Set<string>([
+    ...model.wells.map((w) => w.id),
+    ...ctx.baseline.observations.map((o) => o.id),
+    ...(ctx.baseline.receptors ?? []).map((r) => r.id),
+  ]);
   // A well that a variant moves is read where that run has it.
   const columns = ctx.columns.map((c) => {
     const w = c.kind === 'well' ? model.wells.find((x) => x.id === c.id) : undefined;
@@ -147,7 +164,12 @@ export function solveRealisation(ctx: EnsembleContext, index: number): Realisati
   const baseline: ModelInput = { ...ctx.baseline, conductivity: baseK };
   const variants = ctx.variants.map(({ name, model }) => ({
     name,
-    model: { ...model, conductivity: fieldsEqual(model.conductivity, ctx.baseline.conductivity) ? baseK : realisedConductivity(model.conductivity, y, ctx.measured) },
+    model: {
+      ...model,
+      conductivity: fieldsEqual(model.conductivity, ctx.baseline.conductivity)
+        ? baseK
+        : realisedConductivity(model.conductivity, y, ctx.measured),
+    },
   }));
   const comparison = runInline(comparePlan(prepareComparison(baseline, variants, ctx.options), ctx.options));
   const baseProblem = resultProblem(comparison.baseline);

@@ -37,7 +37,10 @@ export function histogramSvg(values: readonly number[], thresholds: readonly num
     .join('');
   const lines = thresholds
     .filter((t) => t >= lo && t <= hi)
-    .map((t) => `<line x1="${x(t).toFixed(1)}" x2="${x(t).toFixed(1)}" y1="10" y2="${H - bottom}" stroke="#b8431f" stroke-dasharray="4 3"/><text x="${(x(t) + 3).toFixed(1)}" y="20" font-size="11" fill="#b8431f">${t} ${esc(unit)}</text>`)
+    .map(
+      (t) =>
+        `<line x1="${x(t).toFixed(1)}" x2="${x(t).toFixed(1)}" y1="10" y2="${H - bottom}" stroke="#b8431f" stroke-dasharray="4 3"/><text x="${(x(t) + 3).toFixed(1)}" y="20" font-size="11" fill="#b8431f">${t} ${esc(unit)}</text>`,
+    )
     .join('');
   return (
     `<svg xmlns="http://www.w3.org/2000/svg" width="${W}" height="${H}" role="img" aria-label="histogram of drawdown at ${esc(label)}">` +
@@ -58,7 +61,10 @@ export function ensembleReportHtml(setup: EnsembleSetup, records: readonly Reali
     `<p>${setup.realisations} realisations, seed ${setup.seed}; ln K: sd ${setup.logConductivity.sd}, correlation lengths ${setup.logConductivity.correlationLength.join(' × ')} ${esc(unit)}, ${esc(setup.logConductivity.model)} covariance${cond}. Circulant embedding ${setup.embedding.mx} × ${setup.embedding.my}.</p>`,
   );
   parts.push('<table><tr><th>run</th><th>converged</th><th>left out</th></tr>');
-  for (const run of summary.runs) parts.push(`<tr><td>${esc(run.name)}</td><td>${run.converged}</td><td>${run.notConverged.map((n) => n.realisation).join(', ') || '–'}</td></tr>`);
+  for (const run of summary.runs)
+    parts.push(
+      `<tr><td>${esc(run.name)}</td><td>${run.converged}</td><td>${run.notConverged.map((n) => n.realisation).join(', ') || '–'}</td></tr>`,
+    );
   parts.push('</table>');
   const receptors = setup.columns.map((c, k) => ({ c, k })).filter(({ c }) => c.kind === 'receptor');
   summary.runs.forEach((run, r) => {
@@ -75,7 +81,9 @@ export function ensembleReportHtml(setup: EnsembleSetup, records: readonly Reali
         if (b.converged && v.converged && hb !== null && hb !== undefined && hv !== null && hv !== undefined) values.push(hb - hv);
       }
       const s = run.drawdownAtPoints.find((p) => p.id === c.id)!;
-      const pcts = Object.entries(s.percentiles).map(([p, v]) => `${p}: ${num(v)}`).join(', ');
+      const pcts = Object.entries(s.percentiles)
+        .map(([p, v]) => `${p}: ${num(v)}`)
+        .join(', ');
       const exc = s.exceedance.map((e) => `P(&gt; ${e.threshold} ${esc(unit)}) = ${num(e.probability, 3)}`).join(', ');
       parts.push(`<h3>${esc(c.id)}</h3><p>mean ${num(s.mean)} ${esc(unit)}, sd ${num(s.sd)}; ${pcts}; ${exc}</p>`);
       parts.push(histogramSvg(values, setup.drawdownThresholds, unit, c.id));

@@ -49,7 +49,14 @@ export function shardRange(realisations: number, k: number, n: number): [number,
  * the environment too where the engine gives it (else from `count`), read from the first variable set of
  * SHARD_INDEX_VARIABLES.
  */
-export const SHARD_INDEX_VARIABLES = ['PIEZOMAP_SHARD_INDEX', 'SLURM_ARRAY_TASK_ID', 'JOB_COMPLETION_INDEX', 'AWS_BATCH_JOB_ARRAY_INDEX', 'CLOUD_RUN_TASK_INDEX', 'BATCH_TASK_INDEX'];
+export const SHARD_INDEX_VARIABLES = [
+  'PIEZOMAP_SHARD_INDEX',
+  'SLURM_ARRAY_TASK_ID',
+  'JOB_COMPLETION_INDEX',
+  'AWS_BATCH_JOB_ARRAY_INDEX',
+  'CLOUD_RUN_TASK_INDEX',
+  'BATCH_TASK_INDEX',
+];
 export const SHARD_COUNT_VARIABLES = ['PIEZOMAP_SHARD_COUNT', 'SLURM_ARRAY_TASK_COUNT', 'CLOUD_RUN_TASK_COUNT'];
 
 export function parseShard(given: string, env: NodeJS.ProcessEnv = process.env): { k: number; n: number } {
@@ -57,24 +64,33 @@ export function parseShard(given: string, env: NodeJS.ProcessEnv = process.env):
   if (text === 'auto') {
     const indexVar = SHARD_INDEX_VARIABLES.find((v) => env[v] !== undefined && env[v] !== '');
     if (!indexVar) {
-      throw new PiezomapError('usage', `--shard auto: none of ${SHARD_INDEX_VARIABLES.join(', ')} is set`, { hint: 'run it as an array job, or give --shard K/N' });
+      throw new PiezomapError('usage', `--shard auto: none of ${SHARD_INDEX_VARIABLES.join(', ')} is set`, {
+        hint: 'run it as an array job, or give --shard K/N',
+      });
     }
     const countVar = SHARD_COUNT_VARIABLES.find((v) => env[v] !== undefined && env[v] !== '');
     const index = Number(env[indexVar]);
     const count = countVar ? Number(env[countVar]) : NaN;
-    if (!Number.isInteger(index) || index < 0) throw new PiezomapError('usage', `--shard auto: ${indexVar}="${env[indexVar]}" is not a 0-based index`);
+    if (!Number.isInteger(index) || index < 0)
+      throw new PiezomapError('usage', `--shard auto: ${indexVar}="${env[indexVar]}" is not a 0-based index`);
     if (!countVar) {
-      throw new PiezomapError('usage', `--shard auto: ${indexVar} gives the index, but none of ${SHARD_COUNT_VARIABLES.join(', ')} gives the number of shards`, {
-        hint: 'set PIEZOMAP_SHARD_COUNT to the array size (Kubernetes: from spec.completions)',
-      });
+      throw new PiezomapError(
+        'usage',
+        `--shard auto: ${indexVar} gives the index, but none of ${SHARD_COUNT_VARIABLES.join(', ')} gives the number of shards`,
+        {
+          hint: 'set PIEZOMAP_SHARD_COUNT to the array size (Kubernetes: from spec.completions)',
+        },
+      );
     }
-    if (!Number.isInteger(count) || count < 1 || index >= count) throw new PiezomapError('usage', `--shard auto: ${countVar}="${env[countVar]}" does not fit index ${index} from ${indexVar}`);
+    if (!Number.isInteger(count) || count < 1 || index >= count)
+      throw new PiezomapError('usage', `--shard auto: ${countVar}="${env[countVar]}" does not fit index ${index} from ${indexVar}`);
     return { k: index + 1, n: count };
   }
   const m = /^(\d+)\/(\d+)$/.exec(text);
   const k = m ? Number(m[1]) : NaN;
   const n = m ? Number(m[2]) : NaN;
-  if (!m || !(n >= 1) || !(k >= 1) || k > n) throw new PiezomapError('usage', `--shard "${given}": expected K/N with 1 <= K <= N (e.g. 3/8), or "auto"`);
+  if (!m || !(n >= 1) || !(k >= 1) || k > n)
+    throw new PiezomapError('usage', `--shard "${given}": expected K/N with 1 <= K <= N (e.g. 3/8), or "auto"`);
   return { k, n };
 }
 
@@ -105,7 +121,8 @@ export function ensembleSetup(ctx: EnsembleContext, raw: ScenarioJson, overrides
     columns: ctx.columns,
     warnings: [...m.warnings],
   };
-  if (ctx.generator.report.clipped > 0) setup.warnings.push(`circulant embedding: ${ctx.generator.report.clipped} eigenvalue(s) of rounding size below zero were set to zero`);
+  if (ctx.generator.report.clipped > 0)
+    setup.warnings.push(`circulant embedding: ${ctx.generator.report.clipped} eigenvalue(s) of rounding size below zero were set to zero`);
   return JSON.parse(JSON.stringify(setup)) as EnsembleSetup;
 }
 
@@ -117,7 +134,10 @@ function checkEnsembleMemory(setup: EnsembleSetup, count: number): void {
   if (bytes > 0.5 * limit.bytes) {
     throw inputError(
       `ensemble: ${count} realisation(s) of ${fields} field(s) on ${setup.grid.nx} × ${setup.grid.ny} cells keep ${formatBytes(bytes)} of values, more than half of the memory limit (${limit.source})`,
-      { key: 'ensemble.realisations', hint: 'run it as shards (--shard K/N) on several machines, fewer realisations, or a coarser grid; the merge holds every value too' },
+      {
+        key: 'ensemble.realisations',
+        hint: 'run it as shards (--shard K/N) on several machines, fewer realisations, or a coarser grid; the merge holds every value too',
+      },
     );
   }
 }
@@ -151,9 +171,15 @@ function solverOverrides(options: EnsembleOptions): SolverOverrides {
 }
 
 /** Run an ensemble (or one shard of it). Does not write anything. */
-export async function runEnsemble(scenario: string, options: EnsembleOptions = {}, loaded?: Awaited<ReturnType<typeof loadEnsemble>>): Promise<EnsembleRun> {
+export async function runEnsemble(
+  scenario: string,
+  options: EnsembleOptions = {},
+  loaded?: Awaited<ReturnType<typeof loadEnsemble>>,
+): Promise<EnsembleRun> {
   const { ctx, setup, inputFiles, seconds: loadSeconds } = loaded ?? (await loadEnsemble(scenario, options));
-  const range: [number, number] = options.shard ? shardRange(setup.realisations, options.shard.k, options.shard.n) : [0, setup.realisations];
+  const range: [number, number] = options.shard
+    ? shardRange(setup.realisations, options.shard.k, options.shard.n)
+    : [0, setup.realisations];
   const indices = Array.from({ length: range[1] - range[0] }, (_, i) => range[0] + i);
   checkEnsembleMemory(setup, options.shard ? indices.length : setup.realisations);
   const tStart = performance.now();

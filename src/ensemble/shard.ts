@@ -24,7 +24,10 @@ async function readShard(dir: string): Promise<{ summary: ShardSummaryJson; byte
   try {
     text = await readFile(path, 'utf8');
   } catch {
-    throw inputError(`${dir}: no ${RESULT_MARKER}: not a finished shard folder`, { file: path, hint: 'run that shard (piezomap ensemble SCENARIO --shard K/N -o DIR) to the end first' });
+    throw inputError(`${dir}: no ${RESULT_MARKER}: not a finished shard folder`, {
+      file: path,
+      hint: 'run that shard (piezomap ensemble SCENARIO --shard K/N -o DIR) to the end first',
+    });
   }
   let summary: ShardSummaryJson;
   try {
@@ -33,7 +36,9 @@ async function readShard(dir: string): Promise<{ summary: ShardSummaryJson; byte
     throw inputError(`${path}: not valid JSON`, { file: path });
   }
   if (summary?.command !== 'ensemble-shard' || !summary.setup || !Array.isArray(summary.records)) {
-    throw inputError(`${dir}: not a shard folder of "piezomap ensemble --shard" (its ${RESULT_MARKER} is of another command)`, { file: path });
+    throw inputError(`${dir}: not a shard folder of "piezomap ensemble --shard" (its ${RESULT_MARKER} is of another command)`, {
+      file: path,
+    });
   }
   const bytes = await readFile(join(dir, SHARD_VALUES)).catch(() => {
     throw inputError(`${dir}: ${SHARD_VALUES} is missing`, { file: join(dir, SHARD_VALUES) });
@@ -50,16 +55,25 @@ export async function readShards(dirs: readonly string[]): Promise<MergedShards>
   const seenK = new Map<number, string>();
   for (const s of shards) {
     if (s.summary.setup.fingerprint !== first.summary.setup.fingerprint || JSON.stringify(s.summary.setup) !== setupText) {
-      throw inputError(`ensemble merge: ${s.dir} is a shard of another ensemble than ${first.dir} (scenario, solver options or program version differ)`);
+      throw inputError(
+        `ensemble merge: ${s.dir} is a shard of another ensemble than ${first.dir} (scenario, solver options or program version differ)`,
+      );
     }
-    if (s.summary.shard.n !== first.summary.shard.n) throw inputError(`ensemble merge: ${s.dir} is shard ${s.summary.shard.k}/${s.summary.shard.n}, ${first.dir} ${first.summary.shard.k}/${first.summary.shard.n}: the shard counts differ`);
+    if (s.summary.shard.n !== first.summary.shard.n)
+      throw inputError(
+        `ensemble merge: ${s.dir} is shard ${s.summary.shard.k}/${s.summary.shard.n}, ${first.dir} ${first.summary.shard.k}/${first.summary.shard.n}: the shard counts differ`,
+      );
     const other = seenK.get(s.summary.shard.k);
-    if (other !== undefined) throw inputError(`ensemble merge: ${other} and ${s.dir} are both shard ${s.summary.shard.k}/${s.summary.shard.n}`);
+    if (other !== undefined)
+      throw inputError(`ensemble merge: ${other} and ${s.dir} are both shard ${s.summary.shard.k}/${s.summary.shard.n}`);
     seenK.set(s.summary.shard.k, s.dir);
   }
   const n = first.summary.shard.n;
   const missing = Array.from({ length: n }, (_, i) => i + 1).filter((k) => !seenK.has(k));
-  if (missing.length) throw inputError(`ensemble merge: shard(s) ${missing.map((k) => `${k}/${n}`).join(', ')} missing`, { hint: 'give every shard folder of the run' });
+  if (missing.length)
+    throw inputError(`ensemble merge: shard(s) ${missing.map((k) => `${k}/${n}`).join(', ')} missing`, {
+      hint: 'give every shard folder of the run',
+    });
   const setup = first.summary.setup;
   const byIndex = new Map<number, RealisationRecord>();
   for (const s of shards) {

@@ -99,7 +99,11 @@ export interface PointStatistics {
 }
 
 /** Statistics of one point's values over the realisations (nulls left out). */
-export function pointStatistics(values: ReadonlyArray<number | null>, percentiles: readonly number[], thresholds: readonly number[]): PointStatistics {
+export function pointStatistics(
+  values: ReadonlyArray<number | null>,
+  percentiles: readonly number[],
+  thresholds: readonly number[],
+): PointStatistics {
   const v = Float64Array.from(values.filter((x): x is number => x !== null && Number.isFinite(x)));
   const n = v.length;
   if (n === 0) return { count: 0, mean: null, sd: null, percentiles: percentiles.map(() => null), exceedance: thresholds.map(() => null) };

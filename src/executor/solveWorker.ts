@@ -49,6 +49,7 @@ port.on('message', (request: WorkerRequest) => {
     }
   } catch (thrown) {
     if (thrown instanceof PiezomapError) send({ kind: 'error', code: thrown.code, message: thrown.message, detail: thrown.detail });
-    else send({ kind: 'error', code: 'internal', message: describeThrown(thrown), stack: thrown instanceof Error ? thrown.stack : undefined });
+    else
+      send({ kind: 'error', code: 'internal', message: describeThrown(thrown), stack: thrown instanceof Error ? thrown.stack : undefined });
   }
 });

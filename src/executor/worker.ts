@@ -17,7 +17,16 @@ import { shared } from './shared.js';
 
 /** Main thread to worker. */
 export type WorkerRequest =
-  | { kind: 'open'; nx: number; ny: number; diag: Float64Array; east: Float64Array; south: Float64Array; unknown: Uint8Array; choice: SolverChoice }
+  | {
+      kind: 'open';
+      nx: number;
+      ny: number;
+      diag: Float64Array;
+      east: Float64Array;
+      south: Float64Array;
+      unknown: Uint8Array;
+      choice: SolverChoice;
+    }
   | { kind: 'solve'; rhs: Float64Array; x: Float64Array; tolerance: number; maxIterations: number }
   | { kind: 'diagonal'; diag: Float64Array }
   | { kind: 'operator'; diag: Float64Array; east: Float64Array; south: Float64Array; rebuild: boolean };
@@ -39,7 +48,8 @@ export function workerAvailable(): boolean {
 class WorkerSession implements SolverSession {
   method = '';
   setupSeconds = 0;
-  private pending: { resolve: (m: WorkerMessage) => void; reject: (e: Error) => void; onProgress?: LinearSolve['onProgress'] } | null = null;
+  private pending: { resolve: (m: WorkerMessage) => void; reject: (e: Error) => void; onProgress?: LinearSolve['onProgress'] } | null =
+    null;
   private failure: Error | null = null;
 
   constructor(private readonly worker: Worker) {

@@ -87,10 +87,12 @@ export function comparisonCsv(c: ComparisonResult): string {
         return sound && s ? [cell(s.netChange), cell(s.percentOfAddedPumping)] : ['', ''];
       }),
       sound ? cell(v.sources.totalPercent) : '',
-      ...(c.baseline.system.waterTable === null ? [] : (() => {
-        const w = waterTableBrief(v.result)!;
-        return [cell(w.dryCells), cell(w.undeliveredPumping)];
-      })()),
+      ...(c.baseline.system.waterTable === null
+        ? []
+        : (() => {
+            const w = waterTableBrief(v.result)!;
+            return [cell(w.dryCells), cell(w.undeliveredPumping)];
+          })()),
     ];
     lines.push(csvRow(row));
   }
@@ -130,10 +132,22 @@ export function comparisonSummary(c: ComparisonResult, files: string[], version:
       folder: 'baseline',
       converged: base.stats.converged,
       sound: c.baselineProblem === null,
-      solver: { method: base.stats.method, iterations: base.stats.iterations, ...outerOf(base), setupSeconds: tidy(base.stats.setupSeconds), seconds: tidy(base.stats.solveSeconds) },
+      solver: {
+        method: base.stats.method,
+        iterations: base.stats.iterations,
+        ...outerOf(base),
+        setupSeconds: tidy(base.stats.setupSeconds),
+        seconds: tidy(base.stats.solveSeconds),
+      },
       budget: budgetBrief(base),
       withdrawal: tidy(base.model.wells.reduce((sum, w) => sum + (w.rate < 0 ? -w.rate : 0), 0)),
-      wells: base.wellbore.map((w) => ({ id: w.id, rate: w.rate, cellHead: tidy(w.cellHead), wellboreHead: tidy(w.wellboreHead), belowMinimum: w.belowMinimum })),
+      wells: base.wellbore.map((w) => ({
+        id: w.id,
+        rate: w.rate,
+        cellHead: tidy(w.cellHead),
+        wellboreHead: tidy(w.wellboreHead),
+        belowMinimum: w.belowMinimum,
+      })),
       calibration: calibrationJson(base.calibration),
       ...(base.system.waterTable === null ? {} : { waterTable: waterTableBrief(base) }),
     },
@@ -220,7 +234,14 @@ function table(rows: string[][], alignRight: (c: number) => boolean): string[] {
   // Widths by a loop: spreading a long list into Math.max overflows the stack.
   const widths = rows[0]!.map(() => 0);
   for (const r of rows) for (let c = 0; c < widths.length; c++) widths[c] = Math.max(widths[c]!, r[c]!.length);
-  return rows.map((r) => '  ' + r.map((text, c) => (alignRight(c) ? text.padStart(widths[c]!) : text.padEnd(widths[c]!))).join('  ').trimEnd());
+  return rows.map(
+    (r) =>
+      '  ' +
+      r
+        .map((text, c) => (alignRight(c) ? text.padStart(widths[c]!) : text.padEnd(widths[c]!)))
+        .join('  ')
+        .trimEnd(),
+  );
 }
 
 type VariantJson = {
@@ -235,7 +256,11 @@ type VariantJson = {
   wells: Array<{ id: string; rate: number; wellboreHead: number | null; wellboreDrawdown: number | null; belowMinimum?: boolean }>;
   withdrawal: number;
   budget: { discrepancyPercent: number };
-  sourcesOfWater: { addedPumping: number; terms: Array<{ term: string; percentOfAddedPumping: number | null }>; totalPercent: number | null } | null;
+  sourcesOfWater: {
+    addedPumping: number;
+    terms: Array<{ term: string; percentOfAddedPumping: number | null }>;
+    totalPercent: number | null;
+  } | null;
   calibration: Record<string, number | null> | null;
   problem: string | null;
 };
@@ -245,7 +270,12 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
   const L = summary.units.length;
   const T = summary.units.time;
   const variants = summary.variants as VariantJson[];
-  const base = summary.baseline as { sound: boolean; solver: { method: string; iterations: number; outerIterations?: number; setupSeconds: number; seconds: number }; budget: { discrepancyPercent: number }; withdrawal: number };
+  const base = summary.baseline as {
+    sound: boolean;
+    solver: { method: string; iterations: number; outerIterations?: number; setupSeconds: number; seconds: number };
+    budget: { discrepancyPercent: number };
+    withdrawal: number;
+  };
   const out: string[] = [];
   out.push(`piezomap compare: ${summary.title}`);
   out.push(
@@ -292,7 +322,10 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
     for (const line of table(rows, (c) => c > 0)) out.push(line);
     if (recIds.length) out.push(`  receptors: ${recIds.join(', ')}`);
     const noise = variants.map((v) => v.drawdownNoiseLevel).filter((x): x is number => typeof x === 'number');
-    if (noise.length) out.push(`  changes of head below ${Math.max(...noise).toExponential(1)} ${L} are rounding and solver error: shown as 0 (the noise level, per variant in summary.json)`);
+    if (noise.length)
+      out.push(
+        `  changes of head below ${Math.max(...noise).toExponential(1)} ${L} are rounding and solver error: shown as 0 (the noise level, per variant in summary.json)`,
+      );
     const wellRows = [['variant', 'well', `rate ${L}³/${T}`, `well-bore head ${L}`, `well-bore drawdown ${L}`]];
     let wellCount = 0;
     for (const v of variants) {
@@ -300,7 +333,13 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
       // Only the rows printed are formatted.
       for (const w of v.wells) {
         if (wellRows.length > MAX_PRINTED_ROWS) break;
-        wellRows.push([v.name, w.id, num(w.rate, 1), num(w.wellboreHead, 3) + (w.belowMinimum ? ' (below minimum)' : ''), num(w.wellboreDrawdown, 3)]);
+        wellRows.push([
+          v.name,
+          w.id,
+          num(w.rate, 1),
+          num(w.wellboreHead, 3) + (w.belowMinimum ? ' (below minimum)' : ''),
+          num(w.wellboreDrawdown, 3),
+        ]);
       }
     }
     if (wellRows.length > 1) {
@@ -319,7 +358,8 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
         const b = (summary.baseline as { waterTable?: WaterTableBrief }).waterTable;
         out.push(
           `  ${v.name}: ${w.dryCells.toLocaleString('en-US')} dry cell(s) (baseline ${b ? b.dryCells.toLocaleString('en-US') : '-'}), ` +
-            `${w.outerIterations} outer iterations` + (w.undeliveredPumping > 0 ? `; pumping not delivered ${num(w.undeliveredPumping, 1)} ${L}³/${T}` : ''),
+            `${w.outerIterations} outer iterations` +
+            (w.undeliveredPumping > 0 ? `; pumping not delivered ${num(w.undeliveredPumping, 1)} ${L}³/${T}` : ''),
         );
       }
       if (v.problem) out.push(`  ${v.name}: ${v.problem.split('\n')[0]}`);
@@ -327,10 +367,13 @@ export function formatComparison(summary: ComparisonSummaryJson, outDir: string 
   }
   for (const line of captureComparisonLines(variants as Array<VariantJson & { capture?: unknown }>, summary.units)) out.push(line);
   for (const w of summary.warnings) out.push(`warning: ${w}`);
-  for (const v of variants as Array<VariantJson & { warnings?: string[] }>) for (const w of v.warnings ?? []) out.push(`warning (${v.name}): ${w}`);
+  for (const v of variants as Array<VariantJson & { warnings?: string[] }>)
+    for (const w of v.warnings ?? []) out.push(`warning (${v.name}): ${w}`);
   if (outDir) {
     const top = summary.files.filter((f) => !f.includes('/'));
-    out.push(`Results    ${outDir}: baseline/, ${variants.map((v) => `${v.name}/`).join(', ')}${variants.length ? ', ' : ''}${top.join(', ')}`);
+    out.push(
+      `Results    ${outDir}: baseline/, ${variants.map((v) => `${v.name}/`).join(', ')}${variants.length ? ', ' : ''}${top.join(', ')}`,
+    );
   }
   out.push('');
   out.push(summary.caution);

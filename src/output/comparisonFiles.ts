@@ -24,7 +24,10 @@ import { REPORT_FILE, solveFolderFiles } from './solveFiles.js';
  * NAME/drawdown.tif for every sound variant (with drawdown contours and map unless `maps: false`), the comparison
  * report.html, comparison.csv and the comparison summary.json (last).
  */
-export function comparisonFiles(c: ComparisonResult, options: ProductOptions = {}): { files: OutputFile[]; summary: ComparisonSummaryJson } {
+export function comparisonFiles(
+  c: ComparisonResult,
+  options: ProductOptions = {},
+): { files: OutputFile[]; summary: ComparisonSummaryJson } {
   const files: OutputFile[] = [];
   const { grid, units } = c.baseline.model;
   const runs: ReportRun[] = [];
@@ -173,4 +176,3 @@ export async function writeComparisonResults(
     releaseResultFolder(folder.dir);
   }
 }
-

@@ -76,7 +76,9 @@ export function contourFiles(
     });
     files.push({ name: `${prefix}${quantity}-contours.geojson`, bytes: JSON.stringify(collection) + '\n' });
   } else {
-    warnings.push(`the raster has no EPSG code, so ${quantity} contours are written only in its own coordinates (${quantity}-contours.native.geojson)`);
+    warnings.push(
+      `the raster has no EPSG code, so ${quantity} contours are written only in its own coordinates (${quantity}-contours.native.geojson)`,
+    );
   }
   if (options.nativeContours || epsg === null) {
     const collection = contoursToGeoJson(contours, { quantity, units, crsLabel: crsLabel(grid.crs) });
@@ -96,11 +98,20 @@ function fluxOf(result: SolveResult): DarcyFlux {
   });
 }
 
-function raster<B extends Uint8Array | Promise<Uint8Array>>(result: SolveResult, name: string, values: Float64Array, what: string, encode: RasterEncoder<B>): PendingFile<B> {
+function raster<B extends Uint8Array | Promise<Uint8Array>>(
+  result: SolveResult,
+  name: string,
+  values: Float64Array,
+  what: string,
+  encode: RasterEncoder<B>,
+): PendingFile<B> {
   const { units, title } = result.model;
   return {
     name,
-    bytes: encode(result.model.grid, values, { nodata: -9999, description: `piezomap ${VERSION} ${what} (${units.length}/${units.time}): ${title}. ${CAUTION}` }),
+    bytes: encode(result.model.grid, values, {
+      nodata: -9999,
+      description: `piezomap ${VERSION} ${what} (${units.length}/${units.time}): ${title}. ${CAUTION}`,
+    }),
   };
 }
 
@@ -189,7 +200,15 @@ export function headMapInput(result: SolveResult, contours: ContourSet, flux: Da
     contours,
     cellLayers: [
       ...mapCellLayers(system.terms, system.active.length),
-      ...(system.waterTable === null ? [] : [{ legend: 'Dry cells', cells: dryCells(system.waterTable, result.head).mask, style: { pattern: 'dots', colour: '#a50f15' } as const }]),
+      ...(system.waterTable === null
+        ? []
+        : [
+            {
+              legend: 'Dry cells',
+              cells: dryCells(system.waterTable, result.head).mask,
+              style: { pattern: 'dots', colour: '#a50f15' } as const,
+            },
+          ]),
     ],
     wells: result.wells.map((w) => ({ id: w.id, x: w.x, y: w.y, rate: w.rate })),
     observations: result.observations.map((o) => ({ id: o.id, x: o.x, y: o.y, residual: o.residual })),
@@ -228,7 +247,11 @@ export function reportInputs(result: SolveResult): ReportInputs {
     .map((t) => {
       let lo = Infinity;
       let hi = -Infinity;
-      if (t.prescribedHeads) for (const h of t.prescribedHeads) { if (h < lo) lo = h; if (h > hi) hi = h; }
+      if (t.prescribedHeads)
+        for (const h of t.prescribedHeads) {
+          if (h < lo) lo = h;
+          if (h > hi) hi = h;
+        }
       return { name: t.label, cells: t.cells.length, headMin: lo <= hi ? lo : null, headMax: lo <= hi ? hi : null };
     });
   let withdrawal = 0;

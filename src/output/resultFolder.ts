@@ -202,7 +202,8 @@ export async function writeResultFiles(
  */
 export async function stageResultFiles(folder: ResultFolder, files: OutputFile[]): Promise<void> {
   const { dir, given } = folder;
-  if (!held.has(dir)) throw new PiezomapError('internal', `result folder ${given} was not prepared (or was already written)`, { file: given });
+  if (!held.has(dir))
+    throw new PiezomapError('internal', `result folder ${given} was not prepared (or was already written)`, { file: given });
   try {
     const names = files.map((f) => checkResultName(f.name));
     if (!names.includes(RESULT_MARKER)) throw new PiezomapError('internal', `the result set for ${given} has no ${RESULT_MARKER}`);
@@ -322,12 +323,17 @@ function recoverLeftovers(dir: string, given: string): string[] {
     try {
       applyCommit(dir);
     } catch (error) {
-      throw inputError(`output folder ${given} holds the interrupted results of an earlier run that cannot be completed: ${describeThrown(error)}`, {
-        file: join(given, COMMIT_FOLDER),
-        hint: `look into ${join(given, COMMIT_FOLDER)} (the staged results and their manifest), then move it away`,
-      });
+      throw inputError(
+        `output folder ${given} holds the interrupted results of an earlier run that cannot be completed: ${describeThrown(error)}`,
+        {
+          file: join(given, COMMIT_FOLDER),
+          hint: `look into ${join(given, COMMIT_FOLDER)} (the staged results and their manifest), then move it away`,
+        },
+      );
     }
-    notes.push(`the results of an earlier run into ${given} were interrupted while being put in place; that run's results were completed from its staged copy`);
+    notes.push(
+      `the results of an earlier run into ${given} were interrupted while being put in place; that run's results were completed from its staged copy`,
+    );
   }
   const leftovers: string[] = [];
   if (existsSync(join(dir, STAGING_FOLDER))) leftovers.push(join(dir, STAGING_FOLDER));
@@ -340,7 +346,10 @@ function recoverLeftovers(dir: string, given: string): string[] {
     }
     for (const e of entries) {
       const path = join(folder, e.name);
-      if (e.name.startsWith(LEGACY_TEMP_PREFIX) || (depth === 0 && e.name.startsWith(LOCK_TEMP_PREFIX) && !processAlive(lockTempPid(e.name)))) {
+      if (
+        e.name.startsWith(LEGACY_TEMP_PREFIX) ||
+        (depth === 0 && e.name.startsWith(LOCK_TEMP_PREFIX) && !processAlive(lockTempPid(e.name)))
+      ) {
         leftovers.push(path);
       } else if (e.isDirectory() && depth === 0 && !e.name.startsWith(RESERVED_PREFIX)) scan(path, depth + 1);
     }
@@ -351,7 +360,9 @@ function recoverLeftovers(dir: string, given: string): string[] {
     for (const path of leftovers) rmSync(path, { recursive: true, force: true });
     const names = leftovers.map((p) => relative(dir, p).split(sep).join('/'));
     const shown = names.slice(0, 3).join(', ') + (names.length > 3 ? `, and ${names.length - 3} more` : '');
-    notes.push(`removed ${names.length} leftover temporary file(s) or folder(s) of an interrupted earlier run from ${given} (${formatBytes(bytes)}: ${shown})`);
+    notes.push(
+      `removed ${names.length} leftover temporary file(s) or folder(s) of an interrupted earlier run from ${given} (${formatBytes(bytes)}: ${shown})`,
+    );
   }
   return notes;
 }
@@ -512,7 +523,13 @@ function readLock(path: string): LockInfo | null {
   try {
     const info = JSON.parse(readFileSync(path, 'utf8')) as Partial<LockInfo>;
     if (typeof info.pid !== 'number' || typeof info.host !== 'string') return null;
-    return { pid: info.pid, host: info.host, started: String(info.started ?? '?'), acquired: String(info.acquired ?? '?'), command: String(info.command ?? '') };
+    return {
+      pid: info.pid,
+      host: info.host,
+      started: String(info.started ?? '?'),
+      acquired: String(info.acquired ?? '?'),
+      command: String(info.command ?? ''),
+    };
   } catch {
     return null;
   }

@@ -8,7 +8,16 @@ import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff, encodeFloat32GeoTiffAsync } from '../raster/write.js';
 import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
-import { exchangeRasters, reportInputs, reportRun, solveProductsWith, type PendingFile, type ProductOptions, type RasterEncoder, type RenderedMap } from './products.js';
+import {
+  exchangeRasters,
+  reportInputs,
+  reportRun,
+  solveProductsWith,
+  type PendingFile,
+  type ProductOptions,
+  type RasterEncoder,
+  type RenderedMap,
+} from './products.js';
 import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
 import { budgetCsv, buildSummary, convergenceCsv, outerConvergenceCsv, type SummaryJson } from './summary.js';
 import { trackingFiles } from './tracking.js';
@@ -49,7 +58,10 @@ function bundleWith<B extends Uint8Array | Promise<Uint8Array>>(
   files.push({ name: prefix + 'convergence.csv', bytes: outer ? outerConvergenceCsv(outer) : convergenceCsv(result.stats.history) });
   if (table !== null) {
     const thicknessDescription = `piezomap ${VERSION} saturated thickness (${result.model.units.length}; 0 = dry): ${result.model.title}. ${CAUTION}`;
-    const bytes = encodeFloat32GeoTiff(result.model.grid, saturatedThicknessField(table, result.head), { nodata: -9999, description: thicknessDescription });
+    const bytes = encodeFloat32GeoTiff(result.model.grid, saturatedThicknessField(table, result.head), {
+      nodata: -9999,
+      description: thicknessDescription,
+    });
     files.push({ name: prefix + (sound ? 'saturated-thickness.tif' : 'saturated-thickness-not-converged.tif'), bytes });
   }
   if (!sound) return { files, maps: [] };

@@ -14,7 +14,10 @@ export function tidy(v: number): number {
 }
 
 export function headRange(head: Float64Array): { min: number; max: number; mean: number } {
-  let min = Infinity, max = -Infinity, sum = 0, count = 0;
+  let min = Infinity,
+    max = -Infinity,
+    sum = 0,
+    count = 0;
   for (let p = 0; p < head.length; p++) {
     const h = head[p]!;
     if (h === h) {
@@ -34,7 +37,12 @@ export interface SummaryJson {
   units: { length: string; time: string };
   grid: Record<string, unknown>;
   solver: Record<string, unknown>;
-  budget: { terms: Array<{ term: string; inflow: number; outflow: number; parts?: Array<{ part: string; inflow: number; outflow: number }> }>; totalIn: number; totalOut: number; discrepancyPercent: number };
+  budget: {
+    terms: Array<{ term: string; inflow: number; outflow: number; parts?: Array<{ part: string; inflow: number; outflow: number }> }>;
+    totalIn: number;
+    totalOut: number;
+    discrepancyPercent: number;
+  };
   head: { min: number; max: number; mean: number };
   wells: Array<Record<string, unknown>>;
   observations: Array<Record<string, unknown>>;
@@ -89,7 +97,11 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
             outerIterations: result.outer.iterations,
             outerStopReason: result.outer.stopReason,
             innerIterationsTotal: result.outer.innerIterations,
-            outerHistory: result.outer.history.map((h) => ({ ...h, maxHeadChange: tidy(h.maxHeadChange), flowResidual: tidy(h.flowResidual) })),
+            outerHistory: result.outer.history.map((h) => ({
+              ...h,
+              maxHeadChange: tidy(h.maxHeadChange),
+              flowResidual: tidy(h.flowResidual),
+            })),
           }),
     },
     ...(system.waterTable === null ? {} : { aquifer: waterTableSummary(result) }),
@@ -112,7 +124,9 @@ export function buildSummary(result: SolveResult, files: string[], version: stri
               radiusDefaulted: bore.radiusDefaulted,
               equivalentRadius: tidy(bore.equivalentRadius),
               ...(bore.minimumHead !== null ? { minimumHead: bore.minimumHead, belowMinimum: bore.belowMinimum } : {}),
-              ...(system.waterTable === null ? {} : { undeliveredRate: tidy(bore.undeliveredRate), wellboreShortfall: tidy(bore.wellboreShortfall), dry: bore.dry }),
+              ...(system.waterTable === null
+                ? {}
+                : { undeliveredRate: tidy(bore.undeliveredRate), wellboreShortfall: tidy(bore.wellboreShortfall), dry: bore.dry }),
             }
           : {}),
       };
@@ -176,9 +190,13 @@ export function budgetCsv(budget: WaterBudget): string {
  * cells, damping factor, cells whose fall was limited, and whether the solver was set up again.
  */
 export function outerConvergenceCsv(outer: OuterReport): string {
-  const lines = ['outer_iteration,inner_iterations,max_head_change,flow_residual,dry_cells,damping,limited_cells,solver_rebuilt,state_changes'];
+  const lines = [
+    'outer_iteration,inner_iterations,max_head_change,flow_residual,dry_cells,damping,limited_cells,solver_rebuilt,state_changes',
+  ];
   outer.history.forEach((h, k) =>
-    lines.push(`${k + 1},${h.innerIterations},${h.maxHeadChange},${h.flowResidual},${h.dryCells},${h.damping},${h.limitedCells},${h.rebuilt ? 1 : 0},${h.stateChanges}`),
+    lines.push(
+      `${k + 1},${h.innerIterations},${h.maxHeadChange},${h.flowResidual},${h.dryCells},${h.damping},${h.limitedCells},${h.rebuilt ? 1 : 0},${h.stateChanges}`,
+    ),
   );
   return lines.join('\n') + '\n';
 }
@@ -210,7 +228,10 @@ export const MAX_PRINTED_ROWS = 50;
 function capped(rows: string[][], what: string, total: number): { rows: string[][]; rest: string[] } {
   const more = total - MAX_PRINTED_ROWS;
   if (more <= 0) return { rows, rest: [] };
-  return { rows: rows.slice(0, MAX_PRINTED_ROWS + 1), rest: [`  ... and ${more.toLocaleString('en-US')} more ${what} (all in summary.json)`] };
+  return {
+    rows: rows.slice(0, MAX_PRINTED_ROWS + 1),
+    rest: [`  ... and ${more.toLocaleString('en-US')} more ${what} (all in summary.json)`],
+  };
 }
 
 function appendAll(out: string[], lines: readonly string[]): void {
@@ -219,7 +240,14 @@ function appendAll(out: string[], lines: readonly string[]): void {
 
 function table(rows: string[][], alignRight: boolean[]): string[] {
   const widths = columnWidths(rows);
-  return rows.map((r) => '  ' + r.map((cell, c) => (alignRight[c] ? cell.padStart(widths[c]!) : cell.padEnd(widths[c]!))).join('  ').trimEnd());
+  return rows.map(
+    (r) =>
+      '  ' +
+      r
+        .map((cell, c) => (alignRight[c] ? cell.padStart(widths[c]!) : cell.padEnd(widths[c]!)))
+        .join('  ')
+        .trimEnd(),
+  );
 }
 
 /** One line of calibration statistics, e.g. for the printed summaries of solve and compare. */
@@ -233,10 +261,20 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
   const L = summary.units.length;
   const T = summary.units.time;
   const g = summary.grid as { nx: number; ny: number; dx: number; dy: number; crs: string; activeCells: number; fixedHeadCells: number };
-  const s = summary.solver as { method: string; iterations: number; relativeResidual: number; converged: boolean; stopReason: string; seconds: number; setupSeconds: number };
+  const s = summary.solver as {
+    method: string;
+    iterations: number;
+    relativeResidual: number;
+    converged: boolean;
+    stopReason: string;
+    seconds: number;
+    setupSeconds: number;
+  };
   const out: string[] = [];
   out.push(`piezomap: ${summary.title}`);
-  out.push(`Grid     ${g.nx} x ${g.ny} cells of ${num(g.dx)} x ${num(g.dy)} ${L}, ${g.crs}; ${g.activeCells.toLocaleString('en-US')} active, ${g.fixedHeadCells.toLocaleString('en-US')} fixed-head`);
+  out.push(
+    `Grid     ${g.nx} x ${g.ny} cells of ${num(g.dx)} x ${num(g.dy)} ${L}, ${g.crs}; ${g.activeCells.toLocaleString('en-US')} active, ${g.fixedHeadCells.toLocaleString('en-US')} fixed-head`,
+  );
   const outer = summary.solver as { outerIterations?: number; outerStopReason?: string; innerIterationsTotal?: number };
   // With an outer iteration the last inner solve's count says little: the last one often needs none.
   const count = outer.outerIterations === undefined ? `${s.iterations} iterations` : `${outer.innerIterationsTotal} inner iterations`;
@@ -245,9 +283,13 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
       `relative residual ${s.relativeResidual.toExponential(2)} (setup ${s.setupSeconds.toFixed(2)} s, solve ${s.seconds.toFixed(2)} s)`,
   );
   if (outer.outerIterations !== undefined) {
-    out.push(`Outer    ${outer.outerIterations} outer iteration(s), ${outer.outerStopReason === 'settled' ? 'settled' : `did NOT settle: ${outer.outerStopReason}`}; ${outer.innerIterationsTotal} inner iterations in all`);
+    out.push(
+      `Outer    ${outer.outerIterations} outer iteration(s), ${outer.outerStopReason === 'settled' ? 'settled' : `did NOT settle: ${outer.outerStopReason}`}; ${outer.innerIterationsTotal} inner iterations in all`,
+    );
   }
-  const aquifer = (summary as { aquifer?: { type: string; dryCells: number; confinedCells?: number; saturatedThickness: { min: number; max: number } } }).aquifer;
+  const aquifer = (
+    summary as { aquifer?: { type: string; dryCells: number; confinedCells?: number; saturatedThickness: { min: number; max: number } } }
+  ).aquifer;
   if (aquifer) {
     const confined = aquifer.confinedCells === undefined ? '' : `, ${aquifer.confinedCells.toLocaleString('en-US')} confined`;
     out.push(
@@ -280,7 +322,8 @@ export function formatSummary(summary: SummaryJson, outDir: string | null): stri
   if (summary.observations.length) {
     out.push('Observations');
     const rows = [['id', `observed ${L}`, `simulated ${L}`, `residual ${L}`]];
-    for (const o of summary.observations.slice(0, MAX_PRINTED_ROWS + 1)) rows.push([String(o.id), num(o.observed as number, 3), num(o.simulated as number, 3), num(o.residual as number, 3)]);
+    for (const o of summary.observations.slice(0, MAX_PRINTED_ROWS + 1))
+      rows.push([String(o.id), num(o.observed as number, 3), num(o.simulated as number, 3), num(o.residual as number, 3)]);
     const shown = capped(rows, 'observations', summary.observations.length);
     appendAll(out, table(shown.rows, [false, true, true, true]));
     appendAll(out, shown.rest);
@@ -311,7 +354,8 @@ function waterTableSummary(result: SolveResult): Record<string, unknown> {
     if (b > max) max = b;
   }
   let confinedCells = 0;
-  if (table.type === 'convertible') for (let p = 0; p < thickness.length; p++) if (result.system.active[p] && result.head[p]! >= table.top[p]!) confinedCells++;
+  if (table.type === 'convertible')
+    for (let p = 0; p < thickness.length; p++) if (result.system.active[p] && result.head[p]! >= table.top[p]!) confinedCells++;
   return {
     type: table.type,
     dryCells: dry.count,

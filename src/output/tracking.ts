@@ -36,7 +36,11 @@ export interface TrackingFileOptions {
 type XY = (x: number, y: number) => [number, number];
 
 /** The tracking files of one solve (none without `result.tracking`), with remarks for the summary. */
-export function trackingFiles(result: SolveResult, prefix = '', options: TrackingFileOptions = {}): { files: OutputFile[]; warnings: string[] } {
+export function trackingFiles(
+  result: SolveResult,
+  prefix = '',
+  options: TrackingFileOptions = {},
+): { files: OutputFile[]; warnings: string[] } {
   const run = result.tracking;
   if (!run) return { files: [], warnings: [] };
   const { grid } = result.model;
@@ -61,8 +65,12 @@ export function trackingFiles(result: SolveResult, prefix = '', options: Trackin
     files.push({ name: `${prefix}pathlines.native.geojson`, bytes: json(pathlinesGeoJson(run, result, native, label)) });
   }
   const { wellRaster, timeRaster } = trackingRasters(run, result.system.active);
-  files.push(raster(result, grid, `${prefix}capture-well.tif`, wellRaster, 'capturing well number (see summary.json tracking.wells; 0 = none)'));
-  files.push(raster(result, grid, `${prefix}travel-time.tif`, timeRaster, `travel time to the capturing well (${result.model.units.time})`));
+  files.push(
+    raster(result, grid, `${prefix}capture-well.tif`, wellRaster, 'capturing well number (see summary.json tracking.wells; 0 = none)'),
+  );
+  files.push(
+    raster(result, grid, `${prefix}travel-time.tif`, timeRaster, `travel time to the capturing well (${result.model.units.time})`),
+  );
   return { files, warnings };
 }
 
@@ -102,7 +110,7 @@ function round(v: number, decimals: number): number {
 function collection(features: unknown[], crs: string | null): Record<string, unknown> {
   const out: Record<string, unknown> = { type: 'FeatureCollection', features };
   if (crs !== null) {
-    out['coordinateSystem'] = `${crs} (the raster's own coordinates, not WGS 84: not RFC 7946 GeoJSON; assign this CRS when loading)`;
+    out.coordinateSystem = `${crs} (the raster's own coordinates, not WGS 84: not RFC 7946 GeoJSON; assign this CRS when loading)`;
   }
   return out;
 }
@@ -193,7 +201,9 @@ export function trackingSummary(run: TrackingRun): Record<string, unknown> {
       rasterValue: k + 1,
       capturedCells: w.capturedCells,
       refined: w.refined,
-      zones: capture.zones.filter((z) => z.properties.well === w.id).map((z) => ({ time: z.properties.time, area: round(z.properties.area, 3) })),
+      zones: capture.zones
+        .filter((z) => z.properties.well === w.id)
+        .map((z) => ({ time: z.properties.time, area: round(z.properties.area, 3) })),
     })),
     points: run.points.map((p) => ({
       id: p.id,
@@ -202,7 +212,15 @@ export function trackingSummary(run: TrackingRun): Record<string, unknown> {
       travelTime: Number.isFinite(p.travelTime) ? Number(p.travelTime.toPrecision(12)) : null,
       end: { x: round(p.endX, 3), y: round(p.endY, 3), row: p.endRow, col: p.endCol },
     })),
-    weakSinks: capture.weakSinks.map((w) => ({ name: w.name, kind: w.kind, row: w.row, col: w.col, direction: w.direction, fraction: round(w.fraction, 6), stops: w.stops })),
+    weakSinks: capture.weakSinks.map((w) => ({
+      name: w.name,
+      kind: w.kind,
+      row: w.row,
+      col: w.col,
+      direction: w.direction,
+      fraction: round(w.fraction, 6),
+      stops: w.stops,
+    })),
   };
 }
 
@@ -223,7 +241,8 @@ export function trackingLines(tracking: unknown, units: { length: string; time: 
   }
   for (const p of t.points) {
     const time = p.travelTime === null ? '' : ` after ${formatTime(p.travelTime)} ${units.time}`;
-    const where = p.endReason === 'well' ? `reaches well ${p.endsAt}` : p.endReason === 'boundary' ? `leaves through ${p.endsAt}` : `ends: ${p.endsAt}`;
+    const where =
+      p.endReason === 'well' ? `reaches well ${p.endsAt}` : p.endReason === 'boundary' ? `leaves through ${p.endsAt}` : `ends: ${p.endsAt}`;
     out.push(`Track    ${p.id} (forward): ${where}${time}`);
   }
   return out;
@@ -257,7 +276,9 @@ export function reportTracking(run: TrackingRun, change: CaptureComparison | nul
   };
   if (change) {
     out.newCaptures = change.newCaptures;
-    out.lostZones = change.zones.filter((z) => z.variant === null && z.time === null && z.baseline !== null).map((z) => ({ well: z.well, area: z.baseline! }));
+    out.lostZones = change.zones
+      .filter((z) => z.variant === null && z.time === null && z.baseline !== null)
+      .map((z) => ({ well: z.well, area: z.baseline! }));
   }
   return out;
 }
@@ -282,11 +303,17 @@ export function captureComparisonJson(c: CaptureComparison): Record<string, unkn
 }
 
 /** Printout lines of the comparison: each well's steady-zone change and receptors inside new capture zones. */
-export function captureComparisonLines(variants: ReadonlyArray<{ name: string; capture?: unknown }>, units: { length: string; time: string }): string[] {
+export function captureComparisonLines(
+  variants: ReadonlyArray<{ name: string; capture?: unknown }>,
+  units: { length: string; time: string },
+): string[] {
   const out: string[] = [];
   for (const v of variants) {
     const c = v.capture as
-      | { zones: Array<{ well: string; time: number | null; variantArea: number | null; areaChange: number }>; receptorsInNewCaptureZones: Array<{ receptor: string; well: string; travelTime: number | null; baselineWell: string | null }> }
+      | {
+          zones: Array<{ well: string; time: number | null; variantArea: number | null; areaChange: number }>;
+          receptorsInNewCaptureZones: Array<{ receptor: string; well: string; travelTime: number | null; baselineWell: string | null }>;
+        }
       | undefined;
     if (!c) continue;
     if (!out.length) out.push(`Capture zones against the baseline: area in ${units.length}² (change)`);
@@ -294,13 +321,17 @@ export function captureComparisonLines(variants: ReadonlyArray<{ name: string; c
     for (const z of c.zones) {
       const parts = byWell.get(z.well) ?? [];
       const sign = z.areaChange > 0 ? '+' : '';
-      parts.push(`${z.time === null ? 'steady' : `${z.time} ${units.time}`}: ${formatArea(z.variantArea ?? 0)} (${sign}${formatArea(z.areaChange)})`);
+      parts.push(
+        `${z.time === null ? 'steady' : `${z.time} ${units.time}`}: ${formatArea(z.variantArea ?? 0)} (${sign}${formatArea(z.areaChange)})`,
+      );
       byWell.set(z.well, parts);
     }
     for (const [well, parts] of byWell) out.push(`  ${v.name} ${well}: ${parts.join(' · ')}`);
     for (const n of c.receptorsInNewCaptureZones) {
       const time = n.travelTime === null ? '' : `, travel time ${formatTime(n.travelTime)} ${units.time}`;
-      out.push(`  ${v.name}: receptor ${n.receptor} lies inside a new capture zone of ${n.well}${time}${n.baselineWell ? ` (baseline: ${n.baselineWell})` : ''}`);
+      out.push(
+        `  ${v.name}: receptor ${n.receptor} lies inside a new capture zone of ${n.well}${time}${n.baselineWell ? ` (baseline: ${n.baselineWell})` : ''}`,
+      );
     }
   }
   return out;

@@ -101,11 +101,7 @@ export function geoKeyId(name: string): number | null {
  * ASCII values drop the trailing '|' terminator (OGC 19-008r4, 7.1.4). Throws a plain Error on a malformed directory;
  * the caller turns it into an input error naming the file.
  */
-export function parseGeoKeyDirectory(
-  directory: ArrayLike<number>,
-  doubles: ArrayLike<number> | null,
-  ascii: string | null,
-): GeoKeyRecord {
+export function parseGeoKeyDirectory(directory: ArrayLike<number>, doubles: ArrayLike<number> | null, ascii: string | null): GeoKeyRecord {
   if (directory.length < 4) throw new Error('GeoKeyDirectory shorter than its 4-value header');
   const count = directory[3]!;
   if (directory.length < 4 + 4 * count) throw new Error(`GeoKeyDirectory announces ${count} keys but holds fewer`);
@@ -201,8 +197,7 @@ export function crsFromGeoKeys(keys: GeoKeyRecord | null): Crs | null {
   const modelType = numberKey(keys, 'GTModelTypeGeoKey');
   const projected = numberKey(keys, 'ProjectedCSTypeGeoKey');
   const geographicType = numberKey(keys, 'GeographicTypeGeoKey');
-  const geographic =
-    modelType === MODEL_GEOGRAPHIC || (modelType === null && projected === null && geographicType !== null);
+  const geographic = modelType === MODEL_GEOGRAPHIC || (modelType === null && projected === null && geographicType !== null);
   const code = geographic ? geographicType : projected;
   const epsg = code !== null && code >= 1 && code < USER_DEFINED ? code : null;
   const crs: Crs = { epsg, geographic, geoKeys: { ...keys } };

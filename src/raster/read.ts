@@ -155,10 +155,13 @@ export async function readRasterHeader(path: string, options: { label?: string }
     const got = ifd >= 8 ? (await handle.read(entries, 0, big ? 8 : 2, ifd)).bytesRead : 0;
     const count = big ? Number(new DataView(entries.buffer).getBigUint64(0, little)) : new DataView(entries.buffer).getUint16(0, little);
     if (got < (big ? 8 : 2) || ifd + count * (big ? 20 : 12) > size) {
-      throw inputError(`${label}: the TIFF structure is damaged or unreadable (its first image file directory at byte ${ifd} lies outside the ${size}-byte file)`, {
-        file: label,
-        hint: 'check that the file was copied completely; re-export it from the GIS if it still fails',
-      });
+      throw inputError(
+        `${label}: the TIFF structure is damaged or unreadable (its first image file directory at byte ${ifd} lies outside the ${size}-byte file)`,
+        {
+          file: label,
+          hint: 'check that the file was copied completely; re-export it from the GIS if it still fails',
+        },
+      );
     }
   } finally {
     await handle.close();
@@ -178,8 +181,14 @@ export async function readRasterHeader(path: string, options: { label?: string }
 function headerOf(path: string, layout: Layout, fileBytes: number): RasterHeader {
   const valueBytes = layout.width * layout.height * 8;
   return {
-    path, width: layout.width, height: layout.height, bandCount: layout.samplesPerPixel, sampleType: layout.kind, fileBytes,
-    valueBytes, readBytes: valueBytes + layout.blockBytes + fileBytes,
+    path,
+    width: layout.width,
+    height: layout.height,
+    bandCount: layout.samplesPerPixel,
+    sampleType: layout.kind,
+    fileBytes,
+    valueBytes,
+    readBytes: valueBytes + layout.blockBytes + fileBytes,
   };
 }
 
@@ -244,18 +253,27 @@ async function refuseSideFiles(path: string, label: string): Promise<void> {
   if (aux !== null) {
     const found = PAM_ELEMENTS.filter((element) => new RegExp(`<${element}[\\s>/]`).test(aux));
     if (found.length > 0) {
-      throw inputError(`${label}: its side file ${name}.aux.xml sets ${found.join(', ')}, which GDAL applies when reading; piezomap reads the GeoTIFF alone`, {
-        file: label,
-        hint: 'write them into the GeoTIFF (`gdal_translate in.tif out.tif` copies them in), or delete the side file if it is out of date',
-      });
+      throw inputError(
+        `${label}: its side file ${name}.aux.xml sets ${found.join(', ')}, which GDAL applies when reading; piezomap reads the GeoTIFF alone`,
+        {
+          file: label,
+          hint: 'write them into the GeoTIFF (`gdal_translate in.tif out.tif` copies them in), or delete the side file if it is out of date',
+        },
+      );
     }
   }
-  const mask = await stat(`${path}.msk`).then(() => true, () => false);
+  const mask = await stat(`${path}.msk`).then(
+    () => true,
+    () => false,
+  );
   if (mask) {
-    throw inputError(`${label}: has an external mask ${name}.msk, whose masked cells GDAL reads as missing; piezomap reads internal masks only`, {
-      file: label,
-      hint: 'make the mask internal: `gdal_translate --config GDAL_TIFF_INTERNAL_MASK YES in.tif out.tif`, or delete the .msk if it is not wanted',
-    });
+    throw inputError(
+      `${label}: has an external mask ${name}.msk, whose masked cells GDAL reads as missing; piezomap reads internal masks only`,
+      {
+        file: label,
+        hint: 'make the mask internal: `gdal_translate --config GDAL_TIFF_INTERNAL_MASK YES in.tif out.tif`, or delete the .msk if it is not wanted',
+      },
+    );
   }
 }
 
@@ -274,11 +292,17 @@ function fileSystemError(thrown: unknown, label: string): PiezomapError {
 async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, band: number, maxBytes: number): Promise<RasterData> {
   const structure = tiffStructure(bytes);
   if (structure.loops) {
-    throw inputError(`${label}: the file is damaged: its image file directories loop back or overlap one another`, { file: label, hint: DAMAGE_HINT });
+    throw inputError(`${label}: the file is damaged: its image file directories loop back or overlap one another`, {
+      file: label,
+      hint: DAMAGE_HINT,
+    });
   }
   const misplaced = findValueOverlap(structure.ranges);
   if (misplaced) {
-    throw inputError(`${label}: the file is damaged: ${misplaced.values} overlap ${misplaced.overlaps}`, { file: label, hint: DAMAGE_HINT });
+    throw inputError(`${label}: the file is damaged: ${misplaced.values} overlap ${misplaced.overlaps}`, {
+      file: label,
+      hint: DAMAGE_HINT,
+    });
   }
   const buffer = bytes.buffer.slice(bytes.byteOffset, bytes.byteOffset + bytes.byteLength) as ArrayBuffer;
   const tiff = await fromArrayBuffer(buffer);
@@ -286,10 +310,13 @@ async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, ban
   const layout = await readLayout(image, label, bytes.length);
   const needed = layout.width * layout.height * 8 + layout.blockBytes + bytes.length;
   if (needed > maxBytes) {
-    throw inputError(`${label}: ${layout.width} x ${layout.height} cells need about ${formatBytes(needed)} to read, more than the ${formatBytes(maxBytes)} of memory a raster may take`, {
-      file: label,
-      hint: 'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)',
-    });
+    throw inputError(
+      `${label}: ${layout.width} x ${layout.height} cells need about ${formatBytes(needed)} to read, more than the ${formatBytes(maxBytes)} of memory a raster may take`,
+      {
+        file: label,
+        hint: 'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)',
+      },
+    );
   }
   if (band > layout.samplesPerPixel) {
     throw inputError(`${label}: band ${band} requested but the file has ${layout.samplesPerPixel} band(s)`, {
@@ -312,8 +339,16 @@ async function decodeGeoTiff(path: string, label: string, bytes: Uint8Array, ban
     for (let p = 0; p < values.length; p++) values[p] = values[p]! * scale + offset;
   }
   return {
-    path, grid, values, nodata, bandCount: layout.samplesPerPixel, sampleType: layout.kind,
-    scale, offset, unit: metadata.unit ?? verticalUnit(geoKeys), masked: maskLayout !== null,
+    path,
+    grid,
+    values,
+    nodata,
+    bandCount: layout.samplesPerPixel,
+    sampleType: layout.kind,
+    scale,
+    offset,
+    unit: metadata.unit ?? verticalUnit(geoKeys),
+    masked: maskLayout !== null,
   };
 }
 
@@ -352,11 +387,17 @@ async function refuseIgnoredTags(image: GeoTIFFImage, label: string): Promise<vo
   }
   const fillOrder = await numberTag(image, 'FillOrder', 1);
   if (fillOrder !== 1) {
-    throw inputError(`${label}: the bits of each byte are stored in reverse order (FillOrder ${fillOrder})`, { file: label, hint: CONVERT_HINT });
+    throw inputError(`${label}: the bits of each byte are stored in reverse order (FillOrder ${fillOrder})`, {
+      file: label,
+      hint: CONVERT_HINT,
+    });
   }
   const orientation = await numberTag(image, 'Orientation', 1);
   if (orientation !== 1) {
-    throw inputError(`${label}: the rows or columns are stored in another order than top-left first (Orientation ${orientation})`, { file: label, hint: CONVERT_HINT });
+    throw inputError(`${label}: the rows or columns are stored in another order than top-left first (Orientation ${orientation})`, {
+      file: label,
+      hint: CONVERT_HINT,
+    });
   }
   // ExtraSamples 1 and 2: an alpha sample, which GDAL uses as the mask of the other bands (TIFF 6.0 section 18)
   const extra = (await numbersTag(image, 'ExtraSamples')) ?? [];
@@ -367,7 +408,10 @@ async function refuseIgnoredTags(image: GeoTIFFImage, label: string): Promise<vo
     });
   }
   if (image.getFileDirectory().hasTag('SubIFDs' as never)) {
-    throw inputError(`${label}: the file holds sub-images (SubIFDs), which may be masks or further images; piezomap does not read them`, { file: label, hint: CONVERT_HINT });
+    throw inputError(`${label}: the file holds sub-images (SubIFDs), which may be masks or further images; piezomap does not read them`, {
+      file: label,
+      hint: CONVERT_HINT,
+    });
   }
 }
 
@@ -383,10 +427,13 @@ async function findMask(tiff: GeoTIFF, ifdCount: number, layout: Layout, label: 
     const subfileType = await numberTag(image, 'NewSubfileType', 0);
     if (subfileType & 1) continue; // a reduced-resolution copy (overview) or its mask: never read
     if (!(subfileType & 4)) {
-      throw inputError(`${label}: the file holds further full-resolution images (pages) besides the first; which one is meant cannot be told`, {
-        file: label,
-        hint: 'save the wanted image alone, e.g. `gdal_translate in.tif out.tif` (the first image)',
-      });
+      throw inputError(
+        `${label}: the file holds further full-resolution images (pages) besides the first; which one is meant cannot be told`,
+        {
+          file: label,
+          hint: 'save the wanted image alone, e.g. `gdal_translate in.tif out.tif` (the first image)',
+        },
+      );
     }
     if (mask) throw inputError(`${label}: the file holds two masks for its image`, { file: label, hint: DAMAGE_HINT });
     mask = await readMaskLayout(image, label, fileSize, layout);
@@ -395,13 +442,15 @@ async function findMask(tiff: GeoTIFF, ifdCount: number, layout: Layout, label: 
 }
 
 async function readMaskLayout(image: GeoTIFFImage, label: string, fileSize: number, main: Layout): Promise<Layout> {
-  const refuse = (problem: string): PiezomapError => inputError(`${label}: the internal mask ${problem}`, {
-    file: label,
-    hint: 'rewrite the file with its mask as GDAL writes it: `gdal_translate --config GDAL_TIFF_INTERNAL_MASK YES in.tif out.tif`, or set a nodata value instead',
-  });
+  const refuse = (problem: string): PiezomapError =>
+    inputError(`${label}: the internal mask ${problem}`, {
+      file: label,
+      hint: 'rewrite the file with its mask as GDAL writes it: `gdal_translate --config GDAL_TIFF_INTERNAL_MASK YES in.tif out.tif`, or set a nodata value instead',
+    });
   const width = await numberTag(image, 'ImageWidth', 0);
   const height = await numberTag(image, 'ImageLength', 0);
-  if (width !== main.width || height !== main.height) throw refuse(`is ${width} x ${height} cells where the image is ${main.width} x ${main.height}`);
+  if (width !== main.width || height !== main.height)
+    throw refuse(`is ${width} x ${height} cells where the image is ${main.width} x ${main.height}`);
   if ((await numberTag(image, 'SamplesPerPixel', 1)) !== 1) throw refuse('has more than one sample per cell');
   // A transparency mask holds 1 bit per cell (TIFF 6.0 section 8, PhotometricInterpretation 4), as GDAL writes it.
   const bits = await numberTag(image, 'BitsPerSample', 1);
@@ -413,13 +462,29 @@ async function readMaskLayout(image: GeoTIFFImage, label: string, fileSize: numb
   const blocks = await readBlocks(image, width, height, 1, label, fileSize, 'mask ');
   const rowBytes = Math.ceil((blocks.blockWidth * bits) / 8);
   return {
-    width, height, samplesPerPixel: 1, planar: 1, kind: 'UInt8', bytesPerSample: 1, littleEndian: image.littleEndian,
-    compression, predictor: 1, ...blocks, rowBytes, blockBytes: rowBytes * blocks.blockHeight, bits,
+    width,
+    height,
+    samplesPerPixel: 1,
+    planar: 1,
+    kind: 'UInt8',
+    bytesPerSample: 1,
+    littleEndian: image.littleEndian,
+    compression,
+    predictor: 1,
+    ...blocks,
+    rowBytes,
+    blockBytes: rowBytes * blocks.blockHeight,
+    bits,
   };
 }
 
 /** Block offsets into the header, an IFD, a tag's values or another block: damage that some readers decode anyway. */
-function refuseOverlappingBlocks(structure: ReturnType<typeof tiffStructure>['ranges'], layout: Layout, mask: Layout | null, label: string): void {
+function refuseOverlappingBlocks(
+  structure: ReturnType<typeof tiffStructure>['ranges'],
+  layout: Layout,
+  mask: Layout | null,
+  label: string,
+): void {
   const count = layout.blocksAcross * layout.blocksDown * (layout.planar === 2 ? layout.samplesPerPixel : 1);
   const maskCount = mask ? mask.blocksAcross * mask.blocksDown : 0;
   // concat, not push(...): block lists can be longer than the call stack allows arguments
@@ -455,7 +520,7 @@ function nonEmpty(list: number[] | null): number[] | null {
 
 async function numberTag(image: GeoTIFFImage, name: string, fallback: number): Promise<number> {
   const v = await numbersTag(image, name);
-  return v && v.length ? v[0]! : fallback;
+  return v?.length ? v[0]! : fallback;
 }
 
 async function readLayout(image: GeoTIFFImage, label: string, fileSize: number): Promise<Layout> {
@@ -482,15 +547,19 @@ async function readLayout(image: GeoTIFFImage, label: string, fileSize: number):
   if (predictor !== 1 && predictor !== 2 && predictor !== 3) throw refuse(`unknown predictor ${predictor}`);
   const littleEndian = image.littleEndian;
   if (predictor === 2 && kind === 'Float64') {
-    throw refuse('Float64 samples with the horizontal differencing predictor (PREDICTOR=2) are not supported',
-      'rewrite it with `gdal_translate -co COMPRESS=DEFLATE -co PREDICTOR=3 in.tif out.tif`');
+    throw refuse(
+      'Float64 samples with the horizontal differencing predictor (PREDICTOR=2) are not supported',
+      'rewrite it with `gdal_translate -co COMPRESS=DEFLATE -co PREDICTOR=3 in.tif out.tif`',
+    );
   }
   if (predictor === 3 && kind !== 'Float32' && kind !== 'Float64') {
     throw refuse(`the floating-point predictor (PREDICTOR=3) is set on ${kind} samples`);
   }
   if (predictor === 3 && !littleEndian) {
-    throw refuse('big-endian file with the floating-point predictor (PREDICTOR=3) is not supported',
-      'rewrite it with `gdal_translate -co ENDIANNESS=LITTLE -co COMPRESS=DEFLATE in.tif out.tif`');
+    throw refuse(
+      'big-endian file with the floating-point predictor (PREDICTOR=3) is not supported',
+      'rewrite it with `gdal_translate -co ENDIANNESS=LITTLE -co COMPRESS=DEFLATE in.tif out.tif`',
+    );
   }
   const planarTag = await numberTag(image, 'PlanarConfiguration', 1);
   const planar: 1 | 2 = planarTag === 2 && samplesPerPixel > 1 ? 2 : 1;
@@ -498,15 +567,28 @@ async function readLayout(image: GeoTIFFImage, label: string, fileSize: number):
   // Size limit before anything is allocated (the memory budget is the caller's: see `maxBytes`).
   const cells = width * height;
   if (cells > MAX_CELLS) {
-    throw refuse(`${width} x ${height} = ${cells.toExponential(2)} cells is more than this program handles (2^31)`,
-      'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)');
+    throw refuse(
+      `${width} x ${height} = ${cells.toExponential(2)} cells is more than this program handles (2^31)`,
+      'clip the raster to the model area or coarsen it (e.g. `gdalwarp -tr` with a larger cell size)',
+    );
   }
   const pixelBytes = planar === 1 ? samplesPerPixel * bytesPerSample : bytesPerSample;
   const blocks = await readBlocks(image, width, height, planar === 2 ? samplesPerPixel : 1, label, fileSize, '');
   const rowBytes = blocks.blockWidth * pixelBytes;
   return {
-    width, height, samplesPerPixel, planar, kind, bytesPerSample, littleEndian, compression,
-    predictor: predictor as 1 | 2 | 3, ...blocks, rowBytes, blockBytes: rowBytes * blocks.blockHeight, bits: bits[0]!,
+    width,
+    height,
+    samplesPerPixel,
+    planar,
+    kind,
+    bytesPerSample,
+    littleEndian,
+    compression,
+    predictor: predictor as 1 | 2 | 3,
+    ...blocks,
+    rowBytes,
+    blockBytes: rowBytes * blocks.blockHeight,
+    bits: bits[0]!,
   };
 }
 
@@ -514,14 +596,21 @@ async function readLayout(image: GeoTIFFImage, label: string, fileSize: number):
  * Block size, count and byte ranges of an image (tiles or strips; `planes` separate sample planes), each block checked
  * to end within the file. `prefix` names the image in messages ('' for the image, 'mask ' for its mask).
  */
-async function readBlocks(image: GeoTIFFImage, width: number, height: number, planes: number, label: string, fileSize: number, prefix: string) {
+async function readBlocks(
+  image: GeoTIFFImage,
+  width: number,
+  height: number,
+  planes: number,
+  label: string,
+  fileSize: number,
+  prefix: string,
+) {
   const tiled = image.getFileDirectory().hasTag('TileWidth' as never);
   const blockWidth = tiled ? await numberTag(image, 'TileWidth', 0) : width;
-  const blockHeight = tiled
-    ? await numberTag(image, 'TileLength', 0)
-    : Math.min(await numberTag(image, 'RowsPerStrip', height), height);
+  const blockHeight = tiled ? await numberTag(image, 'TileLength', 0) : Math.min(await numberTag(image, 'RowsPerStrip', height), height);
   const refuse = (problem: string): PiezomapError => inputError(`${label}: ${problem}`, { file: label, hint: CONVERT_HINT });
-  if (!(blockWidth >= 1 && blockHeight >= 1)) throw refuse(`invalid ${prefix}${tiled ? 'tile' : 'strip'} size ${blockWidth}x${blockHeight}`);
+  if (!(blockWidth >= 1 && blockHeight >= 1))
+    throw refuse(`invalid ${prefix}${tiled ? 'tile' : 'strip'} size ${blockWidth}x${blockHeight}`);
   const blocksAcross = Math.ceil(width / blockWidth);
   const blocksDown = Math.ceil(height / blockHeight);
   const blockCount = blocksAcross * blocksDown * planes;
@@ -576,15 +665,19 @@ async function readBandMetadata(image: GeoTIFFImage, sample: number, label: stri
     if (role === 'scale' || role === 'offset') {
       const value = Number(text);
       if (text === '' || !Number.isFinite(value) || (role === 'scale' && value === 0)) {
-        throw refuse(`the band's ${role} "${text}" (GDAL metadata) is not a usable number`,
-          `set it again, e.g. \`gdal_edit.py -${role} 1 file.tif\`, or write the values unscaled (\`gdal_translate -unscale -ot Float32 in.tif out.tif\`)`);
+        throw refuse(
+          `the band's ${role} "${text}" (GDAL metadata) is not a usable number`,
+          `set it again, e.g. \`gdal_edit.py -${role} 1 file.tif\`, or write the values unscaled (\`gdal_translate -unscale -ot Float32 in.tif out.tif\`)`,
+        );
       }
       result[role] = value;
     } else if (role === 'unittype') {
       result.unit = text === '' ? null : text;
     } else if (!DISPLAY_ROLES.has(role)) {
-      throw refuse(`the band carries GDAL metadata "${attributes.get('name') ?? '?'}" with role "${role}", which piezomap does not know how to apply`,
-        'write the values as they are meant, e.g. `gdal_translate -ot Float32 in.tif out.tif` and check the result with gdalinfo');
+      throw refuse(
+        `the band carries GDAL metadata "${attributes.get('name') ?? '?'}" with role "${role}", which piezomap does not know how to apply`,
+        'write the values as they are meant, e.g. `gdal_translate -ot Float32 in.tif out.tif` and check the result with gdalinfo',
+      );
     }
   }
   return result;
@@ -618,10 +711,16 @@ async function applyMask(bytes: Uint8Array, mask: Layout, values: Float64Array, 
       try {
         block = decompress(bytes.subarray(mask.offsets[index]!, mask.offsets[index]! + count));
       } catch (thrown) {
-        throw inputError(`${label}: mask ${what} ${index} cannot be decompressed (${describeThrown(thrown)})`, { file: label, hint: DAMAGE_HINT });
+        throw inputError(`${label}: mask ${what} ${index} cannot be decompressed (${describeThrown(thrown)})`, {
+          file: label,
+          hint: DAMAGE_HINT,
+        });
       }
       if (block.length < rows * rowBytes) {
-        throw inputError(`${label}: mask ${what} ${index} holds ${block.length} bytes where ${rows * rowBytes} are needed`, { file: label, hint: DAMAGE_HINT });
+        throw inputError(`${label}: mask ${what} ${index} holds ${block.length} bytes where ${rows * rowBytes} are needed`, {
+          file: label,
+          hint: DAMAGE_HINT,
+        });
       }
       const firstCell = by * blockHeight * width + bx * blockWidth;
       for (let r = 0; r < rows; r++) {
@@ -642,7 +741,14 @@ function sampleKind(format: number, bits: number): SampleKind | null {
 }
 
 function describeSampleType(format: number, bits: number): string {
-  const names: Record<number, string> = { 1: 'unsigned integer', 2: 'signed integer', 3: 'floating point', 4: 'untyped', 5: 'complex integer', 6: 'complex floating point' };
+  const names: Record<number, string> = {
+    1: 'unsigned integer',
+    2: 'signed integer',
+    3: 'floating point',
+    4: 'untyped',
+    5: 'complex integer',
+    6: 'complex floating point',
+  };
   return `${bits}-bit ${names[format] ?? `sample format ${format}`}; supported: 8/16/32-bit integers, Float32, Float64`;
 }
 
@@ -682,34 +788,45 @@ async function readGeotransform(
     const [a, b, , d, e, f, , h] = transformation as [number, number, number, number, number, number, number, number];
     // geotiff.js drops b and e silently; a rotated or sheared grid cannot be modelled cell by cell here.
     if (b !== 0 || e !== 0) {
-      throw refuse(`the grid is rotated or sheared (geotransform terms ${b}, ${e})`,
-        'warp it to a north-up grid first, e.g. `gdalwarp in.tif out.tif` (same CRS)');
+      throw refuse(
+        `the grid is rotated or sheared (geotransform terms ${b}, ${e})`,
+        'warp it to a north-up grid first, e.g. `gdalwarp in.tif out.tif` (same CRS)',
+      );
     }
     gt = [d, a, 0, h, 0, f];
   } else if (scale && tiepoints && scale.length >= 2 && tiepoints.length >= 6) {
     if (tiepoints.length > 6) {
-      throw refuse(`the file is georeferenced by ${tiepoints.length / 6} ground control points, not a regular grid`,
-        'warp it to a regular grid first, e.g. `gdalwarp in.tif out.tif`');
+      throw refuse(
+        `the file is georeferenced by ${tiepoints.length / 6} ground control points, not a regular grid`,
+        'warp it to a regular grid first, e.g. `gdalwarp in.tif out.tif`',
+      );
     }
     const [i, j, , x, y] = tiepoints as [number, number, number, number, number];
     const [sx, sy] = scale as [number, number];
     gt = [x - i * sx, sx, 0, y + j * sy, 0, -sy];
   } else if (tiepoints && tiepoints.length >= 6) {
-    throw refuse('the file has tie points but no pixel size (ground control points only)',
-      'warp it to a regular grid first, e.g. `gdalwarp in.tif out.tif`');
+    throw refuse(
+      'the file has tie points but no pixel size (ground control points only)',
+      'warp it to a regular grid first, e.g. `gdalwarp in.tif out.tif`',
+    );
   } else {
-    throw refuse('the file has no georeferencing (no ModelPixelScale/ModelTiepoint or ModelTransformation tag)',
-      'assign the grid position in a GIS, or `gdal_translate -a_ullr ulx uly lrx lry -a_srs EPSG:xxxx in.tif out.tif`');
+    throw refuse(
+      'the file has no georeferencing (no ModelPixelScale/ModelTiepoint or ModelTransformation tag)',
+      'assign the grid position in a GIS, or `gdal_translate -a_ullr ulx uly lrx lry -a_srs EPSG:xxxx in.tif out.tif`',
+    );
   }
   if (geoKeys && geoKeys.GTRasterTypeGeoKey === RASTER_PIXEL_IS_POINT) {
     // PixelIsPoint: the tie point is the centre of cell (0,0); GDAL moves the origin to its outer corner.
     gt[0] -= 0.5 * gt[1] + 0.5 * gt[2];
     gt[3] -= 0.5 * gt[4] + 0.5 * gt[5];
   }
-  if (!gt.every(Number.isFinite)) throw refuse(`the geotransform is not finite [${gt.join(', ')}]`, 'assign the georeferencing again in the GIS');
+  if (!gt.every(Number.isFinite))
+    throw refuse(`the geotransform is not finite [${gt.join(', ')}]`, 'assign the georeferencing again in the GIS');
   if (gt[1] <= 0) {
-    throw refuse(`the pixel width is ${gt[1] === 0 ? 'zero' : `negative (${gt[1]})`}`,
-      'the grid must run west to east with a positive cell size; warp it with `gdalwarp in.tif out.tif`');
+    throw refuse(
+      `the pixel width is ${gt[1] === 0 ? 'zero' : `negative (${gt[1]})`}`,
+      'the grid must run west to east with a positive cell size; warp it with `gdalwarp in.tif out.tif`',
+    );
   }
   if (gt[5] === 0) throw refuse('the pixel height is zero', 'assign the georeferencing again in the GIS');
   return gt;
@@ -793,7 +910,19 @@ async function decodeBand(bytes: Uint8Array, layout: Layout, sample: number, nod
         } else if (layout.predictor === 2) {
           readDifferencedRow(view, layout, rowStart + sampleByte, sampleStride * bytesPerSample, cols, values, out, nodataMatch);
         } else {
-          readFloatPredictedRow(block, layout, rowStart, blockWidth * sampleStride, sampleStride, planar === 1 ? sample : 0, cols, values, out, nodataMatch, scratch);
+          readFloatPredictedRow(
+            block,
+            layout,
+            rowStart,
+            blockWidth * sampleStride,
+            sampleStride,
+            planar === 1 ? sample : 0,
+            cols,
+            values,
+            out,
+            nodataMatch,
+            scratch,
+          );
         }
       }
     }
@@ -816,7 +945,8 @@ async function decompressorFor(layout: Layout): Promise<(data: Uint8Array) => Ui
       try {
         return inflateSync(data, { maxOutputLength: blockBytes + 4096 });
       } catch (thrown) {
-        if ((thrown as { code?: string }).code === 'ERR_BUFFER_TOO_LARGE') throw new Error(`it expands to more than the ${blockBytes} bytes a block holds`);
+        if ((thrown as { code?: string }).code === 'ERR_BUFFER_TOO_LARGE')
+          throw new Error(`it expands to more than the ${blockBytes} bytes a block holds`);
         throw thrown;
       }
     };
@@ -861,33 +991,66 @@ async function decompressorFor(layout: Layout): Promise<(data: Uint8Array) => Ui
 }
 
 /** No predictor: read each sample in the file's byte order. `nd` is the nodata value as stored (NaN when none). */
-function readPlainRow(view: DataView, layout: Layout, start: number, step: number, cols: number, out: Float64Array, at: number, nd: number): void {
+function readPlainRow(
+  view: DataView,
+  layout: Layout,
+  start: number,
+  step: number,
+  cols: number,
+  out: Float64Array,
+  at: number,
+  nd: number,
+): void {
   const le = layout.littleEndian;
   let p = start;
   switch (layout.kind) {
     case 'Float32':
-      for (let c = 0; c < cols; c++, p += step) { const v = view.getFloat32(p, le); out[at + c] = v === nd ? Number.NaN : v; }
+      for (let c = 0; c < cols; c++, p += step) {
+        const v = view.getFloat32(p, le);
+        out[at + c] = v === nd ? Number.NaN : v;
+      }
       break;
     case 'Float64':
-      for (let c = 0; c < cols; c++, p += step) { const v = view.getFloat64(p, le); out[at + c] = v === nd ? Number.NaN : v; }
+      for (let c = 0; c < cols; c++, p += step) {
+        const v = view.getFloat64(p, le);
+        out[at + c] = v === nd ? Number.NaN : v;
+      }
       break;
     case 'UInt8':
-      for (let c = 0; c < cols; c++, p += step) { const v = view.getUint8(p); out[at + c] = v === nd ? Number.NaN : v; }
+      for (let c = 0; c < cols; c++, p += step) {
+        const v = view.getUint8(p);
+        out[at + c] = v === nd ? Number.NaN : v;
+      }
       break;
     case 'Int8':
-      for (let c = 0; c < cols; c++, p += step) { const v = view.getInt8(p); out[at + c] = v === nd ? Number.NaN : v; }
+      for (let c = 0; c < cols; c++, p += step) {
+        const v = view.getInt8(p);
+        out[at + c] = v === nd ? Number.NaN : v;
+      }
       break;
     case 'UInt16':
-      for (let c = 0; c < cols; c++, p += step) { const v = view.getUint16(p, le); out[at + c] = v === nd ? Number.NaN : v; }
+      for (let c = 0; c < cols; c++, p += step) {
+        const v = view.getUint16(p, le);
+        out[at + c] = v === nd ? Number.NaN : v;
+      }
       break;
     case 'Int16':
-      for (let c = 0; c < cols; c++, p += step) { const v = view.getInt16(p, le); out[at + c] = v === nd ? Number.NaN : v; }
+      for (let c = 0; c < cols; c++, p += step) {
+        const v = view.getInt16(p, le);
+        out[at + c] = v === nd ? Number.NaN : v;
+      }
       break;
     case 'UInt32':
-      for (let c = 0; c < cols; c++, p += step) { const v = view.getUint32(p, le); out[at + c] = v === nd ? Number.NaN : v; }
+      for (let c = 0; c < cols; c++, p += step) {
+        const v = view.getUint32(p, le);
+        out[at + c] = v === nd ? Number.NaN : v;
+      }
       break;
     case 'Int32':
-      for (let c = 0; c < cols; c++, p += step) { const v = view.getInt32(p, le); out[at + c] = v === nd ? Number.NaN : v; }
+      for (let c = 0; c < cols; c++, p += step) {
+        const v = view.getInt32(p, le);
+        out[at + c] = v === nd ? Number.NaN : v;
+      }
       break;
   }
 }
@@ -898,13 +1061,25 @@ function readPlainRow(view: DataView, layout: Layout, start: number, step: numbe
  * (in the file's byte order), then reinterpret them as the sample type. Float32 words are summed as integers, as
  * libtiff does.
  */
-function readDifferencedRow(view: DataView, layout: Layout, start: number, step: number, cols: number, out: Float64Array, at: number, nd: number): void {
+function readDifferencedRow(
+  view: DataView,
+  layout: Layout,
+  start: number,
+  step: number,
+  cols: number,
+  out: Float64Array,
+  at: number,
+  nd: number,
+): void {
   const le = layout.littleEndian;
   let p = start;
   let acc = 0;
   switch (layout.kind) {
     case 'UInt8':
-      for (let c = 0; c < cols; c++, p += step) { acc = (acc + view.getUint8(p)) & 0xff; out[at + c] = acc === nd ? Number.NaN : acc; }
+      for (let c = 0; c < cols; c++, p += step) {
+        acc = (acc + view.getUint8(p)) & 0xff;
+        out[at + c] = acc === nd ? Number.NaN : acc;
+      }
       break;
     case 'Int8':
       for (let c = 0; c < cols; c++, p += step) {
@@ -914,7 +1089,10 @@ function readDifferencedRow(view: DataView, layout: Layout, start: number, step:
       }
       break;
     case 'UInt16':
-      for (let c = 0; c < cols; c++, p += step) { acc = (acc + view.getUint16(p, le)) & 0xffff; out[at + c] = acc === nd ? Number.NaN : acc; }
+      for (let c = 0; c < cols; c++, p += step) {
+        acc = (acc + view.getUint16(p, le)) & 0xffff;
+        out[at + c] = acc === nd ? Number.NaN : acc;
+      }
       break;
     case 'Int16':
       for (let c = 0; c < cols; c++, p += step) {
@@ -924,10 +1102,16 @@ function readDifferencedRow(view: DataView, layout: Layout, start: number, step:
       }
       break;
     case 'UInt32':
-      for (let c = 0; c < cols; c++, p += step) { acc = (acc + view.getUint32(p, le)) >>> 0; out[at + c] = acc === nd ? Number.NaN : acc; }
+      for (let c = 0; c < cols; c++, p += step) {
+        acc = (acc + view.getUint32(p, le)) >>> 0;
+        out[at + c] = acc === nd ? Number.NaN : acc;
+      }
       break;
     case 'Int32':
-      for (let c = 0; c < cols; c++, p += step) { acc = (acc + view.getInt32(p, le)) | 0; out[at + c] = acc === nd ? Number.NaN : acc; }
+      for (let c = 0; c < cols; c++, p += step) {
+        acc = (acc + view.getInt32(p, le)) | 0;
+        out[at + c] = acc === nd ? Number.NaN : acc;
+      }
       break;
     case 'Float32':
       for (let c = 0; c < cols; c++, p += step) {
@@ -961,8 +1145,17 @@ function floatRowScratch(width: number): FloatRowScratch {
  * little-endian order and read them as floats.
  */
 function readFloatPredictedRow(
-  block: Uint8Array, layout: Layout, rowStart: number, words: number, stride: number, sampleInPixel: number,
-  cols: number, out: Float64Array, at: number, nd: number, scratch: FloatRowScratch,
+  block: Uint8Array,
+  layout: Layout,
+  rowStart: number,
+  words: number,
+  stride: number,
+  sampleInPixel: number,
+  cols: number,
+  out: Float64Array,
+  at: number,
+  nd: number,
+  scratch: FloatRowScratch,
 ): void {
   const bps = layout.bytesPerSample;
   const rowEnd = rowStart + words * bps;

@@ -18,8 +18,22 @@ export interface ByteRange {
 
 /** Bytes per value of each TIFF field type (TIFF 6.0 section 2; 16-18 are BigTIFF's 8-byte types). */
 const TYPE_SIZES: ReadonlyMap<number, number> = new Map([
-  [1, 1], [2, 1], [3, 2], [4, 4], [5, 8], [6, 1], [7, 1], [8, 2], [9, 4], [10, 8], [11, 4], [12, 8], [13, 4],
-  [16, 8], [17, 8], [18, 8],
+  [1, 1],
+  [2, 1],
+  [3, 2],
+  [4, 4],
+  [5, 8],
+  [6, 1],
+  [7, 1],
+  [8, 2],
+  [9, 4],
+  [10, 8],
+  [11, 4],
+  [12, 8],
+  [13, 4],
+  [16, 8],
+  [17, 8],
+  [18, 8],
 ]);
 
 /** IFD chains longer than this are treated as damage (a loop the visited-set check would also catch, or junk). */
@@ -69,7 +83,12 @@ export function tiffStructure(bytes: Uint8Array): TiffStructure {
       const length = count * typeSize;
       if (length <= inline) continue;
       const start = offsetAt(at + (big ? 12 : 8));
-      ranges.push({ start, end: Math.min(start + length, size), what: `the values of tag ${tag} (image file directory ${index})`, kind: 'values' });
+      ranges.push({
+        start,
+        end: Math.min(start + length, size),
+        what: `the values of tag ${tag} (image file directory ${index})`,
+        kind: 'values',
+      });
     }
     ifd = offsetAt(end - (big ? 8 : 4));
   }

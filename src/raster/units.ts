@@ -54,7 +54,14 @@ export function unitMatches(declared: string, quantity: Quantity, units: ValueUn
     for (const length of lengths) {
       for (const square of [`${length}2`, `${length}²`, `${length}^2`, `sq ${length}`]) {
         for (const time of TIME_NAMES[units.time]) {
-          const forms = [`${square}/${time}`, `${square} / ${time}`, `${square} per ${time}`, `${square} ${time}-1`, `${square}.${time}-1`, `${square}·${time}-1`];
+          const forms = [
+            `${square}/${time}`,
+            `${square} / ${time}`,
+            `${square} per ${time}`,
+            `${square} ${time}-1`,
+            `${square}.${time}-1`,
+            `${square}·${time}-1`,
+          ];
           if (forms.includes(text)) return true;
         }
       }
@@ -64,7 +71,14 @@ export function unitMatches(declared: string, quantity: Quantity, units: ValueUn
   // L/T, L per T, L T-1, L.T-1, L·T-1
   for (const length of lengths) {
     for (const time of TIME_NAMES[units.time]) {
-      const forms = [`${length}/${time}`, `${length} / ${time}`, `${length} per ${time}`, `${length} ${time}-1`, `${length}.${time}-1`, `${length}·${time}-1`];
+      const forms = [
+        `${length}/${time}`,
+        `${length} / ${time}`,
+        `${length} per ${time}`,
+        `${length} ${time}-1`,
+        `${length}.${time}-1`,
+        `${length}·${time}-1`,
+      ];
       if (forms.includes(text)) return true;
     }
   }

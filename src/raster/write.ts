@@ -13,7 +13,14 @@ import { deflate, deflateSync } from 'node:zlib';
 import { promisify } from 'node:util';
 import { PiezomapError } from '../errors.js';
 import type { Grid } from '../grid.js';
-import { GEO_ASCII_PARAMS_TAG, GEO_DOUBLE_PARAMS_TAG, GEO_KEY_DIRECTORY_TAG, RASTER_PIXEL_IS_AREA, encodeGeoKeys, geoKeysForEpsg } from './geokeys.js';
+import {
+  GEO_ASCII_PARAMS_TAG,
+  GEO_DOUBLE_PARAMS_TAG,
+  GEO_KEY_DIRECTORY_TAG,
+  RASTER_PIXEL_IS_AREA,
+  encodeGeoKeys,
+  geoKeysForEpsg,
+} from './geokeys.js';
 import type { GeoKeyRecord } from './geokeys.js';
 import type { WriteRasterOptions } from './types.js';
 
@@ -137,13 +144,20 @@ function checkSinglePrecisionRange(grid: Grid, values: ArrayLike<number>, descri
   for (let p = 0; p < values.length; p++) {
     const v = values[p]!;
     if (Math.abs(v) >= FLOAT32_LIMIT && Math.abs(v) < Infinity) {
-      const what = description?.split(':')[0]?.replace(/^piezomap \S+ /, '').trim() || 'a raster';
+      const what =
+        description
+          ?.split(':')[0]
+          ?.replace(/^piezomap \S+ /, '')
+          .trim() || 'a raster';
       const row = Math.floor(p / grid.nx);
       const col = p % grid.nx;
       throw new PiezomapError(
         'input',
         `cannot write ${what} as a Float32 GeoTIFF: the value ${v.toExponential(3)} at row ${row}, col ${col} lies beyond single precision (±3.4e38) and would become infinity`,
-        { cell: { row, col }, hint: 'such magnitudes come from the inputs: check the units of conductivity, thickness, well rates and heads' },
+        {
+          cell: { row, col },
+          hint: 'such magnitudes come from the inputs: check the units of conductivity, thickness, well rates and heads',
+        },
       );
     }
   }
@@ -153,7 +167,14 @@ function usage(message: string): PiezomapError {
   return new PiezomapError('usage', `GeoTIFF writer: ${message}`);
 }
 
-function checkArguments(grid: Grid, values: ArrayLike<number>, options: EncodeOptions, nodata: number, tileSize: number, level: number): void {
+function checkArguments(
+  grid: Grid,
+  values: ArrayLike<number>,
+  options: EncodeOptions,
+  nodata: number,
+  tileSize: number,
+  level: number,
+): void {
   for (const key of Object.keys(options)) {
     if (!OPTION_NAMES.has(key)) throw usage(`unknown option "${key}" (known: ${[...OPTION_NAMES].join(', ')})`);
   }

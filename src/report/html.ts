@@ -93,7 +93,10 @@ export interface ReportRun {
   name: string;
   solver: ReportSolver;
   /** `parts`: sub-rows of a term (a river's reaches), shown indented under it; they split the term's row. */
-  budget: { terms: Array<{ term: string; inflow: number; outflow: number; parts?: Array<{ part: string; inflow: number; outflow: number }> }>; discrepancyPercent: number };
+  budget: {
+    terms: Array<{ term: string; inflow: number; outflow: number; parts?: Array<{ part: string; inflow: number; outflow: number }> }>;
+    discrepancyPercent: number;
+  };
   head?: { min: number; max: number };
   /** Largest drawdown against the baseline, for variants. */
   maxDrawdown?: number;
@@ -226,7 +229,9 @@ export function renderReportHtml(input: ReportInput): string {
     body.push('</table></section>');
   }
   if (input.files?.length) {
-    body.push(`<section><h2>Files written</h2><ul class="files">${input.files.map((f) => `<li><code>${e(f)}</code></li>`).join('')}</ul></section>`);
+    body.push(
+      `<section><h2>Files written</h2><ul class="files">${input.files.map((f) => `<li><code>${e(f)}</code></li>`).join('')}</ul></section>`,
+    );
   }
 
   body.push(`<footer><p>${e(input.caution)}</p></footer>`);
@@ -256,18 +261,34 @@ function glance(input: ReportInput): string {
   const first = input.runs[0];
   const cards: string[] = [];
   const L = input.units.length;
-  if (first?.head) cards.push(card('Head range', `${formatFixed(first.head.min, 2)} \u2013 ${formatFixed(first.head.max, 2)} ${e(L)}`, first.name));
+  if (first?.head)
+    cards.push(card('Head range', `${formatFixed(first.head.min, 2)} \u2013 ${formatFixed(first.head.max, 2)} ${e(L)}`, first.name));
   if (input.variants?.length) {
     let worst = input.variants[0]!;
     for (const v of input.variants) if (v.maxDrawdown > worst.maxDrawdown) worst = v;
     cards.push(card('Largest drawdown', `${formatFixed(worst.maxDrawdown, 2)} ${e(L)}`, worst.name));
   }
   const allConverged = input.runs.every((r) => r.solver.converged);
-  cards.push(card('Solver', allConverged ? 'converged' : 'NOT converged', input.runs.length > 1 ? `${input.runs.length} runs` : e(first?.solver.method ?? ''), allConverged ? '' : 'bad'));
+  cards.push(
+    card(
+      'Solver',
+      allConverged ? 'converged' : 'NOT converged',
+      input.runs.length > 1 ? `${input.runs.length} runs` : e(first?.solver.method ?? ''),
+      allConverged ? '' : 'bad',
+    ),
+  );
   let worstDiscrepancy = 0;
   for (const r of input.runs) worstDiscrepancy = Math.max(worstDiscrepancy, Math.abs(r.budget.discrepancyPercent));
-  cards.push(card('Budget discrepancy', `${formatSignificant(worstDiscrepancy, 2)} %`, input.runs.length > 1 ? 'largest of all runs' : 'in \u2212 out'));
-  cards.push(card('Warnings', String(input.warnings.length), input.warnings.length ? 'see below' : 'none', input.warnings.length ? 'warn' : ''));
+  cards.push(
+    card(
+      'Budget discrepancy',
+      `${formatSignificant(worstDiscrepancy, 2)} %`,
+      input.runs.length > 1 ? 'largest of all runs' : 'in \u2212 out',
+    ),
+  );
+  cards.push(
+    card('Warnings', String(input.warnings.length), input.warnings.length ? 'see below' : 'none', input.warnings.length ? 'warn' : ''),
+  );
   return `<section class="glance">${cards.join('')}</section>`;
 }
 
@@ -307,11 +328,21 @@ function sig(v: number | undefined | null, digits: number, key?: string): string
 
 function inputsSection(inputs: ReportInputs, L: string, T: string, kind: 'solve' | 'compare'): string {
   // Four significant digits without trailing zeros (0.9, 120, 0.0004): inputs are usually round numbers.
-  const plain = (v: number) => (Number.isFinite(v) ? formatSignificant(Number(v.toPrecision(4)), 4).replace(/(\.\d*?)0+$/, '$1').replace(/\.$/, '') : '\u2013');
+  const plain = (v: number) =>
+    Number.isFinite(v)
+      ? formatSignificant(Number(v.toPrecision(4)), 4)
+          .replace(/(\.\d*?)0+$/, '$1')
+          .replace(/\.$/, '')
+      : '\u2013';
   const range = (r: { min: number; max: number }, unit: string) =>
     r.min === r.max ? `${plain(r.min)} ${e(unit)}` : `${plain(r.min)} \u2013 ${plain(r.max)} ${e(unit)}`;
   const rows: string[] = [];
-  rows.push(row('Hydraulic conductivity', `${range(inputs.conductivity, `${L}/${T}`)}; geometric mean ${plain(inputs.conductivity.geometricMean)} ${e(`${L}/${T}`)}`));
+  rows.push(
+    row(
+      'Hydraulic conductivity',
+      `${range(inputs.conductivity, `${L}/${T}`)}; geometric mean ${plain(inputs.conductivity.geometricMean)} ${e(`${L}/${T}`)}`,
+    ),
+  );
   rows.push(row('Thickness', range(inputs.thickness, L)));
   rows.push(row('Anisotropy (Ky/Kx)', plain(inputs.anisotropy)));
   rows.push(row('Recharge', range(inputs.recharge, `${L}/${T}`)));
@@ -330,14 +361,33 @@ function inputsSection(inputs: ReportInputs, L: string, T: string, kind: 'solve'
 function variantsTable(variants: ReportVariantRow[], observationIds: string[], receptorIds: string[], L: string, flowUnit: string): string {
   const head = `<th scope="col">Quantity</th>${variants.map((v) => `<th scope="col" class="num"><a href="#${anchor(v.name)}">${e(v.name)}</a></th>`).join('')}`;
   const rows: string[] = [];
-  const line = (label: string, cell: (v: ReportVariantRow) => string, cls = '') => rows.push(`<tr${cls ? ` class="${cls}"` : ''}><th scope="row">${label}</th>${variants.map(cell).join('')}</tr>`);
-  line('Solver', (v) => `<td class="num">${v.converged ? 'converged' : '<span class="bad">not converged</span>'}${v.status && v.status !== 'ok' && v.converged ? ` (${e(v.status)})` : ''}</td>`);
+  const line = (label: string, cell: (v: ReportVariantRow) => string, cls = '') =>
+    rows.push(`<tr${cls ? ` class="${cls}"` : ''}><th scope="row">${label}</th>${variants.map(cell).join('')}</tr>`);
+  line(
+    'Solver',
+    (v) =>
+      `<td class="num">${v.converged ? 'converged' : '<span class="bad">not converged</span>'}${v.status && v.status !== 'ok' && v.converged ? ` (${e(v.status)})` : ''}</td>`,
+  );
   line(`Largest drawdown (${e(L)})`, (v) => num(v.maxDrawdown, 3, `${v.name}.maxDrawdown`));
-  line('Largest drawdown at (x, y)', (v) => `<td class="num">${v.maxDrawdownAt ? `${formatFixed(v.maxDrawdownAt.x, 1)}, ${formatFixed(v.maxDrawdownAt.y, 1)}` : '\u2013'}</td>`);
+  line(
+    'Largest drawdown at (x, y)',
+    (v) =>
+      `<td class="num">${v.maxDrawdownAt ? `${formatFixed(v.maxDrawdownAt.x, 1)}, ${formatFixed(v.maxDrawdownAt.y, 1)}` : '\u2013'}</td>`,
+  );
   line(`Largest rise (${e(L)})`, (v) => num(v.maxRise, 3, `${v.name}.maxRise`));
-  if (receptorIds.length) rows.push(`<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}"><span class="receptor-symbol" aria-hidden="true">\u25c7</span> Drawdown at receptors (${e(L)})</th></tr>`);
-  receptorIds.forEach((id, k) => line(`<span class="receptor-symbol" aria-hidden="true">\u25c7</span> ${e(id)}`, (v) => num(v.receptorDrawdowns?.[k], 3, `${v.name}.receptor.${id}`)));
-  if (observationIds.length) rows.push(`<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}">\u25b3 Drawdown at observation points (${e(L)})</th></tr>`);
+  if (receptorIds.length)
+    rows.push(
+      `<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}"><span class="receptor-symbol" aria-hidden="true">\u25c7</span> Drawdown at receptors (${e(L)})</th></tr>`,
+    );
+  receptorIds.forEach((id, k) =>
+    line(`<span class="receptor-symbol" aria-hidden="true">\u25c7</span> ${e(id)}`, (v) =>
+      num(v.receptorDrawdowns?.[k], 3, `${v.name}.receptor.${id}`),
+    ),
+  );
+  if (observationIds.length)
+    rows.push(
+      `<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}">\u25b3 Drawdown at observation points (${e(L)})</th></tr>`,
+    );
   observationIds.forEach((id, k) => line(`\u25b3 ${e(id)}`, (v) => num(v.observationDrawdowns[k], 3, `${v.name}.observation.${id}`)));
   rows.push(`<tr class="group"><th scope="rowgroup" colspan="${variants.length + 1}">Pumping and budget</th></tr>`);
   line(`Total withdrawal (${e(flowUnit)})`, (v) => num(v.totalWithdrawal, 1, `${v.name}.withdrawal`));
@@ -374,7 +424,12 @@ function sourcesSection(variants: ReportVariantRow[], flowUnit: string): string 
         `<tfoot><tr><th scope="row">Added pumping</th><td></td><td></td>${num(s.addedPumping, 2)}${sig(s.totalPercent, 6, `${v.name}.sourcesTotalPercent`)}</tr></tfoot></table></div>`,
     );
     if (s.totalPercent !== null) {
-      parts.push(`<figure class="plot">${sourcesChartSvg(s.terms.map((t) => ({ term: t.term, percent: t.percent ?? NaN })), { title: `Sources of the added pumping of ${v.name}`, width: 520 })}<figcaption>Share of the added pumping per budget term, ${e(v.name)}</figcaption></figure>`);
+      parts.push(
+        `<figure class="plot">${sourcesChartSvg(
+          s.terms.map((t) => ({ term: t.term, percent: t.percent ?? NaN })),
+          { title: `Sources of the added pumping of ${v.name}`, width: 520 },
+        )}<figcaption>Share of the added pumping per budget term, ${e(v.name)}</figcaption></figure>`,
+      );
     } else {
       parts.push('<p class="quiet">The pumping did not change: no shares.</p>');
     }
@@ -404,7 +459,9 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   const budgetRows = run.budget.terms.map((t) => {
     totalIn += t.inflow;
     totalOut += t.outflow;
-    const parts = (t.parts ?? []).map((r) => `<tr><th scope="row">&emsp;${e(r.part)}</th>${fx(r.inflow, 2)}${fx(r.outflow, 2)}${fx(r.inflow - r.outflow, 2)}</tr>`);
+    const parts = (t.parts ?? []).map(
+      (r) => `<tr><th scope="row">&emsp;${e(r.part)}</th>${fx(r.inflow, 2)}${fx(r.outflow, 2)}${fx(r.inflow - r.outflow, 2)}</tr>`,
+    );
     return `<tr><th scope="row">${e(t.term)}</th>${fx(t.inflow, 2)}${fx(t.outflow, 2)}${fx(t.inflow - t.outflow, 2)}</tr>${parts.join('')}`;
   });
   parts.push(
@@ -423,7 +480,8 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   facts.push(row('Relative residual', formatSignificant(s.relativeResidual, 3)));
   if (s.tolerance !== undefined) facts.push(row('Tolerance', formatSignificant(s.tolerance, 3)));
   if (s.criterion) facts.push(row('Stopping rule', e(s.criterion)));
-  if (s.convergenceFactor !== undefined && s.convergenceFactor !== null) facts.push(row('Residual reduction per iteration', formatSignificant(s.convergenceFactor, 4)));
+  if (s.convergenceFactor !== undefined && s.convergenceFactor !== null)
+    facts.push(row('Residual reduction per iteration', formatSignificant(s.convergenceFactor, 4)));
   if (s.setupSeconds !== undefined) facts.push(row('Setup time', `${formatSignificant(s.setupSeconds, 3)} s`));
   if (s.solveSeconds !== undefined) facts.push(row('Solve time', `${formatSignificant(s.solveSeconds, 3)} s`));
   if (run.head) facts.push(row('Head range', `${formatFixed(run.head.min, 3)} \u2013 ${formatFixed(run.head.max, 3)} ${e(L)}`));
@@ -448,13 +506,15 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
       `<th scope="col" class="num">Row</th><th scope="col" class="num">Column</th><th scope="col" class="num">Rate (${e(flowUnit)})</th>` +
       `<th scope="col" class="num">Cell head (${e(L)})</th>${hasDd ? `<th scope="col" class="num">Cell-head drawdown (${e(L)})</th>` : ''}` +
       `${hasBore ? `<th scope="col" class="num">Well-bore head (${e(L)})</th>` : ''}${hasDd ? `<th scope="col" class="num">Well-bore drawdown (${e(L)})</th>` : ''}`;
-    const rows = run.wells.slice(0, REPORT_TABLE_ROWS).map(
-      (w) =>
-        `<tr><th scope="row">${e(w.id)}</th>${hasXY ? num(w.x, 2) + num(w.y, 2) : ''}<td class="num">${w.row}</td><td class="num">${w.col}</td>${num(w.rate, 2)}${num(w.cellHead, 3)}` +
-        `${hasDd ? num(w.cellDrawdown, 3, `${run.name}.well.${w.id}.cellDrawdown`) : ''}` +
-        `${hasBore ? `<td class="num" data-key="${e(`${run.name}.well.${w.id}.wellboreHead`)}">${formatFixed(w.wellboreHead, 3)}${w.belowMinimum ? ' <span class="bad">(below minimum)</span>' : ''}</td>` : ''}` +
-        `${hasDd ? num(w.wellboreDrawdown, 3, `${run.name}.well.${w.id}.wellboreDrawdown`) : ''}</tr>`,
-    );
+    const rows = run.wells
+      .slice(0, REPORT_TABLE_ROWS)
+      .map(
+        (w) =>
+          `<tr><th scope="row">${e(w.id)}</th>${hasXY ? num(w.x, 2) + num(w.y, 2) : ''}<td class="num">${w.row}</td><td class="num">${w.col}</td>${num(w.rate, 2)}${num(w.cellHead, 3)}` +
+          `${hasDd ? num(w.cellDrawdown, 3, `${run.name}.well.${w.id}.cellDrawdown`) : ''}` +
+          `${hasBore ? `<td class="num" data-key="${e(`${run.name}.well.${w.id}.wellboreHead`)}">${formatFixed(w.wellboreHead, 3)}${w.belowMinimum ? ' <span class="bad">(below minimum)</span>' : ''}</td>` : ''}` +
+          `${hasDd ? num(w.wellboreDrawdown, 3, `${run.name}.well.${w.id}.wellboreDrawdown`) : ''}</tr>`,
+      );
     parts.push(`<div class="scroll"><table class="data"><thead><tr>${head}</tr></thead><tbody>${rows.join('')}</tbody></table></div>`);
     parts.push(moreRows(run.wells.length, 'wells'));
     parts.push(
@@ -467,9 +527,12 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
   if (run.observations.length === 0) parts.push('<p class="quiet">No observation points.</p>');
   else {
     const hasDd = run.observations.some((o) => o.drawdown !== undefined);
-    const rows = run.observations.slice(0, REPORT_TABLE_ROWS).map(
-      (o) => `<tr><th scope="row">${e(o.id)}</th>${num(o.observed, 3)}${num(o.simulated, 3)}${num(o.residual, 3)}${hasDd ? num(o.drawdown, 3) : ''}</tr>`,
-    );
+    const rows = run.observations
+      .slice(0, REPORT_TABLE_ROWS)
+      .map(
+        (o) =>
+          `<tr><th scope="row">${e(o.id)}</th>${num(o.observed, 3)}${num(o.simulated, 3)}${num(o.residual, 3)}${hasDd ? num(o.drawdown, 3) : ''}</tr>`,
+      );
     let sum = 0;
     let sumSq = 0;
     let count = 0;
@@ -502,7 +565,8 @@ function runSection(run: ReportRun, input: ReportInput, L: string, flowUnit: str
     }
   }
   if (run.tracking) parts.push(trackingSectionHtml(run.tracking, L, input.units.time));
-  if (run.warnings?.length) parts.push(`<h3>Warnings for this run</h3><ul class="warnings">${run.warnings.map((w) => `<li>${e(w)}</li>`).join('')}</ul>`);
+  if (run.warnings?.length)
+    parts.push(`<h3>Warnings for this run</h3><ul class="warnings">${run.warnings.map((w) => `<li>${e(w)}</li>`).join('')}</ul>`);
   parts.push('</section>');
   return parts.join('\n');
 }

@@ -12,7 +12,18 @@ import { contourField, decimalsOf, finiteRange, type ContourSet } from '../analy
 import { colourCells, drawdownRamp, headRamp, rampHex, type ColourRamp } from './colour.js';
 import { dataUrl, encodePng, MAP_FONT_STACK, svgToPng } from './png.js';
 import { escapeMarkup, formatFixed, formatSignificant, niceTicks, wrapText } from './text.js';
-import { isFree, placePointLabels, rotatedBox, symbolBox, textBox, textWidth, type Box, type LabelBox, type PlacedPointLabel, type PointLabelRequest } from './labels.js';
+import {
+  isFree,
+  placePointLabels,
+  rotatedBox,
+  symbolBox,
+  textBox,
+  textWidth,
+  type Box,
+  type LabelBox,
+  type PlacedPointLabel,
+  type PointLabelRequest,
+} from './labels.js';
 import type { MapCellStyle } from '../discretisation/terms/types.js';
 import type { MapOverlay } from './trackingLayer.js';
 
@@ -117,7 +128,9 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   const subtitle =
     input.subtitle ??
     `${input.quantity === 'head' ? 'Head' : 'Drawdown (positive = lowered)'}, ${input.units.length} \u00b7 ${nx} \u00d7 ${ny} cells of ${fmtLength(dx)} \u00d7 ${fmtLength(dy)} ${input.units.length} \u00b7 ${crsLabel(grid.crs)}` +
-      (input.quantity === 'drawdown' && input.noiseLevel ? ` \u00b7 |change| below ${formatSignificant(input.noiseLevel, 2)} ${input.units.length} shown as none` : '');
+      (input.quantity === 'drawdown' && input.noiseLevel
+        ? ` \u00b7 |change| below ${formatSignificant(input.noiseLevel, 2)} ${input.units.length} shown as none`
+        : '');
   const textSpace = width - 2 * MARGIN;
   const titleLines = wrapToWidth(input.title, textSpace, TITLE_SIZE, true);
   const subtitleLines = wrapToWidth(subtitle, textSpace, SUBTITLE_SIZE, false);
@@ -166,7 +179,15 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   const placedPoints = placePointLabels(points, symbols, frameBox);
   points.forEach((p, k) => labels.push({ ...placedPoints[k]!.box, text: p.text, kind: 'point' }));
 
-  const contourSvg = contourLayer(contours, levelDecimals, px, py, input.quantity, [...symbols, ...placedPoints.map((p) => p.box)], frameBox);
+  const contourSvg = contourLayer(
+    contours,
+    levelDecimals,
+    px,
+    py,
+    input.quantity,
+    [...symbols, ...placedPoints.map((p) => p.box)],
+    frameBox,
+  );
   for (const l of contourSvg.labels) labels.push({ ...l.box, text: l.text, kind: 'contour' });
 
   // Legend (its height decides the drawing's).
@@ -187,7 +208,12 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   parts.push(...header);
 
   // Lines (contours, arrows) stop short of every label: a mask with a hole per label box.
-  const gaps = [...contourSvg.labels.map((l) => l.gap), ...placedPoints.map((p) => `<rect x="${r1(p.box.x0)}" y="${r1(p.box.y0)}" width="${r1(p.box.x1 - p.box.x0)}" height="${r1(p.box.y1 - p.box.y0)}"/>`)];
+  const gaps = [
+    ...contourSvg.labels.map((l) => l.gap),
+    ...placedPoints.map(
+      (p) => `<rect x="${r1(p.box.x0)}" y="${r1(p.box.y0)}" width="${r1(p.box.x1 - p.box.x0)}" height="${r1(p.box.y1 - p.box.y0)}"/>`,
+    ),
+  ];
   parts.push(
     `<defs><mask id="label-gaps" maskUnits="userSpaceOnUse" x="0" y="0" width="${width}" height="${height}"><rect width="${width}" height="${height}" fill="#ffffff"/><g fill="#000000">${gaps.join('')}</g></mask></defs>`,
   );
@@ -195,19 +221,26 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   // Map body, clipped to the frame.
   const clip = `<clipPath id="frame"><rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}"/></clipPath>`;
   parts.push(`<defs>${clip}</defs><g clip-path="url(#frame)">`);
-  parts.push(`<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="url(#nodata)"/>`);
+  parts.push(
+    `<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="url(#nodata)"/>`,
+  );
   parts.push(cellImage(values, nx, ny, ramp, frame));
-  for (const layer of layers) parts.push(layerPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy, layer.id, layer.style));
+  for (const layer of layers)
+    parts.push(layerPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy, layer.id, layer.style));
   parts.push(`<g mask="url(#label-gaps)">${contourSvg.lines}</g>`);
   parts.push(contourSvg.labelSvg);
-  if (input.flux) parts.push(`<g mask="url(#label-gaps)">${arrowLayer(input.flux, values, grid, frame, cellPx, cellPy, options.arrowSpacing ?? 40)}</g>`);
+  if (input.flux)
+    parts.push(`<g mask="url(#label-gaps)">${arrowLayer(input.flux, values, grid, frame, cellPx, cellPy, options.arrowSpacing ?? 40)}</g>`);
   for (const overlay of input.overlays ?? []) parts.push(overlay.draw(px, py));
   parts.push(residualSvg);
   parts.push(pointLayer(points, placedPoints));
-  if (dense.observations) parts.push(densityLayer(input.observations ?? [], px, py, frame, OBSERVATION_DENSITY_COLOUR, 'observation-density'));
+  if (dense.observations)
+    parts.push(densityLayer(input.observations ?? [], px, py, frame, OBSERVATION_DENSITY_COLOUR, 'observation-density'));
   if (dense.wells) parts.push(densityLayer(input.wells ?? [], px, py, frame, INK, 'well-density'));
   parts.push('</g>');
-  parts.push(`<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="none" stroke="${INK}" stroke-width="1"/>`);
+  parts.push(
+    `<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="none" stroke="${INK}" stroke-width="1"/>`,
+  );
 
   parts.push(northArrow(frame.left + frame.width - 30, frame.top + 14, t[5] < 0));
   if (!grid.crs?.geographic) parts.push(scaleBar(frame, nx * dx, scale, input.units.length));
@@ -426,7 +459,9 @@ function contourLayer(
     }
     const path = d.join('');
     const widthPx = zero ? 1.8 : index ? 1.6 : 0.9;
-    casing.push(`<path d="${path}" fill="none" stroke="#ffffff" stroke-opacity="0.4" stroke-width="${widthPx + 1.4}" stroke-linejoin="round"/>`);
+    casing.push(
+      `<path d="${path}" fill="none" stroke="#ffffff" stroke-opacity="0.4" stroke-width="${widthPx + 1.4}" stroke-linejoin="round"/>`,
+    );
     ink.push(
       `<path d="${path}" fill="none" stroke="${INK}" stroke-width="${widthPx}" stroke-linejoin="round"${zero ? ' stroke-dasharray="6 3"' : ''} data-level="${level}"/>`,
     );
@@ -440,7 +475,11 @@ function contourLayer(
       return `<g transform="${transform}"><text text-anchor="middle" dy="3.8" font-size="${CONTOUR_LABEL_SIZE}" fill="${INK}">${escapeMarkup(l.text)}</text></g>`;
     })
     .join('');
-  return { lines: `<g class="contours">${casing.join('')}${ink.join('')}</g>`, labelSvg: `<g class="contour-labels">${labelSvg}</g>`, labels };
+  return {
+    lines: `<g class="contours">${casing.join('')}${ink.join('')}</g>`,
+    labelSvg: `<g class="contour-labels">${labelSvg}</g>`,
+    labels,
+  };
 }
 
 function polylinePath(s: Float64Array): string {
@@ -556,7 +595,9 @@ function arrowLayer(
     const ay = tipY - head * (uy * 0.87 + ux * 0.5);
     const bx = tipX - head * (ux * 0.87 + uy * 0.5);
     const by = tipY - head * (uy * 0.87 - ux * 0.5);
-    d.push(`M${r1(cx - ux * half)} ${r1(cy - uy * half)}L${r1(tipX)} ${r1(tipY)}M${r1(ax)} ${r1(ay)}L${r1(tipX)} ${r1(tipY)}L${r1(bx)} ${r1(by)}`);
+    d.push(
+      `M${r1(cx - ux * half)} ${r1(cy - uy * half)}L${r1(tipX)} ${r1(tipY)}M${r1(ax)} ${r1(ay)}L${r1(tipX)} ${r1(tipY)}L${r1(bx)} ${r1(by)}`,
+    );
   }
   const path = d.join('');
   return (
@@ -616,7 +657,11 @@ function densityLayer(
     paths[cls]!.push(`M${r1(x)} ${r1(y)}h${DENSITY_SQUARE}v${DENSITY_SQUARE}h-${DENSITY_SQUARE}Z`);
   }
   const layers = paths
-    .map((d, cls) => (d.length ? `<path d="${d.join('')}" fill="${colour}" fill-opacity="${DENSITY_CLASSES[cls]!.opacity}" stroke="#ffffff" stroke-width="0.4"/>` : ''))
+    .map((d, cls) =>
+      d.length
+        ? `<path d="${d.join('')}" fill="${colour}" fill-opacity="${DENSITY_CLASSES[cls]!.opacity}" stroke="#ffffff" stroke-width="0.4"/>`
+        : '',
+    )
     .join('');
   return `<g class="${name}">${layers}</g>`;
 }
@@ -626,7 +671,10 @@ function densityLegend(what: string, count: number, colour: string, x: number, r
   row('', `${count.toLocaleString('en-US')} ${what}, too many to`);
   row('', `draw: number per ${DENSITY_SQUARE} px square`);
   for (const cls of DENSITY_CLASSES) {
-    row(`<rect x="${x + 6}" y="-6" width="12" height="12" fill="${colour}" fill-opacity="${cls.opacity}" stroke="${MUTED}" stroke-width="0.6"/>`, `${cls.label} per square`);
+    row(
+      `<rect x="${x + 6}" y="-6" width="12" height="12" fill="${colour}" fill-opacity="${cls.opacity}" stroke="${MUTED}" stroke-width="0.6"/>`,
+      `${cls.label} per square`,
+    );
   }
 }
 
@@ -669,10 +717,14 @@ function pointRequests(
   py: (y: number) => number,
 ): Array<PointLabelRequest & { kind: PointKind; point: MapPoint }> {
   const out: Array<PointLabelRequest & { kind: PointKind; point: MapPoint }> = [];
-  if (!dense.wells) for (const w of input.wells ?? []) out.push({ x: px(w.x), y: py(w.y), radius: 6.5, text: w.id, size: 11.5, bold: true, kind: 'well', point: w });
-  for (const r of input.receptors ?? []) out.push({ x: px(r.x), y: py(r.y), radius: 7, text: r.id, size: 11, bold: false, kind: 'receptor', point: r });
+  if (!dense.wells)
+    for (const w of input.wells ?? [])
+      out.push({ x: px(w.x), y: py(w.y), radius: 6.5, text: w.id, size: 11.5, bold: true, kind: 'well', point: w });
+  for (const r of input.receptors ?? [])
+    out.push({ x: px(r.x), y: py(r.y), radius: 7, text: r.id, size: 11, bold: false, kind: 'receptor', point: r });
   if (!dense.observations) {
-    for (const o of input.observations ?? []) out.push({ x: px(o.x), y: py(o.y), radius: 6.5, text: o.id, size: 11, bold: false, kind: 'observation', point: o });
+    for (const o of input.observations ?? [])
+      out.push({ x: px(o.x), y: py(o.y), radius: 6.5, text: o.id, size: 11, bold: false, kind: 'observation', point: o });
   }
   return out;
 }
@@ -698,7 +750,9 @@ function residualLayer(points: readonly MapPoint[], px: (x: number) => number, p
   for (const o of points) {
     if (o.residual === undefined || !Number.isFinite(o.residual)) continue;
     const colour = o.residual > 0 ? RESIDUAL_ABOVE : RESIDUAL_BELOW;
-    parts.push(`<circle cx="${r1(px(o.x))}" cy="${r1(py(o.y))}" r="${r1(residualRadius(o.residual, largest))}" fill="${colour}" fill-opacity="0.45" stroke="${colour}" stroke-width="1.2"/>`);
+    parts.push(
+      `<circle cx="${r1(px(o.x))}" cy="${r1(py(o.y))}" r="${r1(residualRadius(o.residual, largest))}" fill="${colour}" fill-opacity="0.45" stroke="${colour}" stroke-width="1.2"/>`,
+    );
   }
   parts.push('</g>');
   return parts.join('');
@@ -769,7 +823,9 @@ function legend(
   const parts: string[] = ['<g class="legend">'];
   const labels: LabelBox[] = [];
   const text = (tx: number, ty: number, content: string, size: number, colour = INK, bold = false) => {
-    parts.push(`<text x="${r1(tx)}" y="${r1(ty)}" font-size="${size}"${bold ? ' font-weight="bold"' : ''} fill="${colour}">${escapeMarkup(content)}</text>`);
+    parts.push(
+      `<text x="${r1(tx)}" y="${r1(ty)}" font-size="${size}"${bold ? ' font-weight="bold"' : ''} fill="${colour}">${escapeMarkup(content)}</text>`,
+    );
     labels.push({ ...textBox(content, tx, ty, size, 'start', bold), text: content, kind: 'legend' });
   };
   const unit = input.units.length;
@@ -820,7 +876,12 @@ function legend(
   if (drawn.length > 0) row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="0.9"/>`, contourLabel);
   else row('', 'No contours (no change above the noise level)');
   if (interval !== null && contours.levels.some((l) => isIndexLevel(contours, l.level))) {
-    row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.6"/>`, labelsEveryLevel(contours) ? `Every ${formatFixed(5 * interval, decimals)} ${unit}` : `Every ${formatFixed(5 * interval, decimals)} ${unit}, labelled`);
+    row(
+      `<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.6"/>`,
+      labelsEveryLevel(contours)
+        ? `Every ${formatFixed(5 * interval, decimals)} ${unit}`
+        : `Every ${formatFixed(5 * interval, decimals)} ${unit}, labelled`,
+    );
   }
   if (input.quantity === 'drawdown' && contours.levels.some((l) => l.level === 0 && l.lines.length > 0)) {
     row(`<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="${INK}" stroke-width="1.8" stroke-dasharray="6 3"/>`, 'Zero drawdown');
@@ -852,8 +913,14 @@ function legend(
     row(observationSymbol(x + 12, y + 1), 'Observation point');
     const largest = largestResidual(observations);
     if (largest > 0) {
-      row(`<circle cx="${x + 12}" cy="${y}" r="7" fill="${RESIDUAL_ABOVE}" fill-opacity="0.45" stroke="${RESIDUAL_ABOVE}" stroke-width="1.2"/>`, 'Residual: simulated above observed');
-      row(`<circle cx="${x + 12}" cy="${y}" r="7" fill="${RESIDUAL_BELOW}" fill-opacity="0.45" stroke="${RESIDUAL_BELOW}" stroke-width="1.2"/>`, 'Residual: simulated below observed');
+      row(
+        `<circle cx="${x + 12}" cy="${y}" r="7" fill="${RESIDUAL_ABOVE}" fill-opacity="0.45" stroke="${RESIDUAL_ABOVE}" stroke-width="1.2"/>`,
+        'Residual: simulated above observed',
+      );
+      row(
+        `<circle cx="${x + 12}" cy="${y}" r="7" fill="${RESIDUAL_BELOW}" fill-opacity="0.45" stroke="${RESIDUAL_BELOW}" stroke-width="1.2"/>`,
+        'Residual: simulated below observed',
+      );
       y += 8;
       row(
         `<circle cx="${x + 12}" cy="${y}" r="${RESIDUAL_RADIUS}" fill="none" stroke="${MUTED}" stroke-width="1"/>`,
@@ -863,10 +930,17 @@ function legend(
     }
   }
   for (const layer of layers) {
-    row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#${layer.id})" stroke="${escapeMarkup(layer.style.colour)}" stroke-width="${layer.style.pattern === 'outline' ? 1.8 : 0.8}"/>`, layer.legend);
+    row(
+      `<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#${layer.id})" stroke="${escapeMarkup(layer.style.colour)}" stroke-width="${layer.style.pattern === 'outline' ? 1.8 : 0.8}"/>`,
+      layer.legend,
+    );
   }
   for (const overlay of input.overlays ?? []) for (const item of overlay.legend) row(item.symbol(x, y), item.label);
-  if (showInactive) row(`<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#nodata)" stroke="${MUTED}" stroke-width="0.8"/>`, 'Inactive (no flow)');
+  if (showInactive)
+    row(
+      `<rect x="${x}" y="${y - 8}" width="24" height="16" fill="url(#nodata)" stroke="${MUTED}" stroke-width="0.8"/>`,
+      'Inactive (no flow)',
+    );
   parts.push('</g>');
   return { svg: parts.join(''), height: y - top, labels };
 }

@@ -71,7 +71,9 @@ export function convergencePlotSvg(history: readonly number[], options: Converge
   );
   if (tol !== null) {
     const y = sy(tol).toFixed(1);
-    parts.push(`<line x1="${pad.left}" x2="${pad.left + plotW}" y1="${y}" y2="${y}" stroke="#b5651d" stroke-dasharray="5 4" stroke-width="1.2"/>`);
+    parts.push(
+      `<line x1="${pad.left}" x2="${pad.left + plotW}" y1="${y}" y2="${y}" stroke="#b5651d" stroke-dasharray="5 4" stroke-width="1.2"/>`,
+    );
     parts.push(
       `<text x="${pad.left + plotW - 4}" y="${(sy(tol) - 5).toFixed(1)}" font-size="11" text-anchor="end" fill="#8a4a12">tolerance ${formatSignificant(options.tolerance!, 2)}</text>`,
     );
@@ -135,7 +137,11 @@ export function sourcesChartSvg(bars: readonly SourceBar[], options: { title?: s
   const title = escapeMarkup(options.title ?? 'Sources of the added pumping');
   let lo = 0;
   let hi = 100;
-  for (const b of bars) if (Number.isFinite(b.percent)) { lo = Math.min(lo, b.percent); hi = Math.max(hi, b.percent); }
+  for (const b of bars)
+    if (Number.isFinite(b.percent)) {
+      lo = Math.min(lo, b.percent);
+      hi = Math.max(hi, b.percent);
+    }
   const plotW = width - pad.left - pad.right;
   const sx = (v: number) => pad.left + ((v - lo) / (hi - lo)) * plotW;
   const parts: string[] = [
@@ -143,8 +149,12 @@ export function sourcesChartSvg(bars: readonly SourceBar[], options: { title?: s
   ];
   for (const tick of [lo, 0, 50, 100, hi].filter((v, k, all) => all.indexOf(v) === k && v >= lo && v <= hi)) {
     const x = sx(tick);
-    parts.push(`<line x1="${x.toFixed(1)}" y1="${pad.top}" x2="${x.toFixed(1)}" y2="${height - pad.bottom}" stroke="${tick === 0 ? '#1d2327' : '#d9dee1'}" stroke-width="${tick === 0 ? 1.2 : 1}"/>`);
-    parts.push(`<text x="${x.toFixed(1)}" y="${height - pad.bottom + 16}" font-size="11" text-anchor="middle" fill="#5b6770">${escapeMarkup(formatSignificant(tick, 3))} %</text>`);
+    parts.push(
+      `<line x1="${x.toFixed(1)}" y1="${pad.top}" x2="${x.toFixed(1)}" y2="${height - pad.bottom}" stroke="${tick === 0 ? '#1d2327' : '#d9dee1'}" stroke-width="${tick === 0 ? 1.2 : 1}"/>`,
+    );
+    parts.push(
+      `<text x="${x.toFixed(1)}" y="${height - pad.bottom + 16}" font-size="11" text-anchor="middle" fill="#5b6770">${escapeMarkup(formatSignificant(tick, 3))} %</text>`,
+    );
   }
   bars.forEach((b, k) => {
     const y = pad.top + k * rowH;
@@ -152,8 +162,12 @@ export function sourcesChartSvg(bars: readonly SourceBar[], options: { title?: s
     const x0 = sx(Math.min(0, p));
     const x1 = sx(Math.max(0, p));
     parts.push(`<text x="${pad.left - 8}" y="${y + 17}" font-size="12" text-anchor="end" fill="#1d2327">${escapeMarkup(b.term)}</text>`);
-    parts.push(`<rect x="${x0.toFixed(1)}" y="${y + 5}" width="${Math.max(0.8, x1 - x0).toFixed(1)}" height="${rowH - 10}" fill="${p >= 0 ? '#1f4e79' : '#b5651d'}"/>`);
-    parts.push(`<text x="${(x1 + 6).toFixed(1)}" y="${y + 17}" font-size="12" fill="#1d2327">${escapeMarkup(formatSignificant(b.percent, 4))} %</text>`);
+    parts.push(
+      `<rect x="${x0.toFixed(1)}" y="${y + 5}" width="${Math.max(0.8, x1 - x0).toFixed(1)}" height="${rowH - 10}" fill="${p >= 0 ? '#1f4e79' : '#b5651d'}"/>`,
+    );
+    parts.push(
+      `<text x="${(x1 + 6).toFixed(1)}" y="${y + 17}" font-size="12" fill="#1d2327">${escapeMarkup(formatSignificant(b.percent, 4))} %</text>`,
+    );
   });
   parts.push('</svg>');
   return parts.join('');
@@ -170,14 +184,18 @@ export interface ObservedSimulated {
  * Observed against simulated head with the 1:1 line (a perfect fit lies on it), both axes over the same range;
  * each point labelled with its id when there are at most 30. Inline SVG.
  */
-export function observedSimulatedSvg(points: readonly ObservedSimulated[], options: { unit?: string; size?: number; title?: string } = {}): string {
+export function observedSimulatedSvg(
+  points: readonly ObservedSimulated[],
+  options: { unit?: string; size?: number; title?: string } = {},
+): string {
   const size = options.size ?? 360;
   const pad = { left: 58, right: 14, top: 12, bottom: 46 };
   const unit = escapeMarkup(options.unit ?? 'm');
   const title = escapeMarkup(options.title ?? 'Observed against simulated head');
   const finite = points.filter((p) => Number.isFinite(p.observed) && Number.isFinite(p.simulated));
   const head = `<svg xmlns="http://www.w3.org/2000/svg" class="observed-simulated" width="${size}" height="${size}" viewBox="0 0 ${size} ${size}" role="img" aria-label="${title}">`;
-  if (finite.length === 0) return `${head}<text x="${size / 2}" y="${size / 2}" text-anchor="middle" font-size="13" fill="#5b6770">no observation points</text></svg>`;
+  if (finite.length === 0)
+    return `${head}<text x="${size / 2}" y="${size / 2}" text-anchor="middle" font-size="13" fill="#5b6770">no observation points</text></svg>`;
   let lo = Infinity;
   let hi = -Infinity;
   for (const p of finite) {
@@ -195,12 +213,20 @@ export function observedSimulatedSvg(points: readonly ObservedSimulated[], optio
   const ticks = niceTicks(lo, hi, 5);
   for (const t of ticks.ticks) {
     if (t < lo || t > hi) continue;
-    parts.push(`<line x1="${sx(t).toFixed(1)}" y1="${pad.top + plot}" x2="${sx(t).toFixed(1)}" y2="${pad.top + plot + 4}" stroke="#1d2327"/>`);
-    parts.push(`<text x="${sx(t).toFixed(1)}" y="${pad.top + plot + 16}" font-size="11" text-anchor="middle" fill="#5b6770">${formatFixed(t, ticks.decimals)}</text>`);
+    parts.push(
+      `<line x1="${sx(t).toFixed(1)}" y1="${pad.top + plot}" x2="${sx(t).toFixed(1)}" y2="${pad.top + plot + 4}" stroke="#1d2327"/>`,
+    );
+    parts.push(
+      `<text x="${sx(t).toFixed(1)}" y="${pad.top + plot + 16}" font-size="11" text-anchor="middle" fill="#5b6770">${formatFixed(t, ticks.decimals)}</text>`,
+    );
     parts.push(`<line x1="${pad.left - 4}" y1="${sy(t).toFixed(1)}" x2="${pad.left}" y2="${sy(t).toFixed(1)}" stroke="#1d2327"/>`);
-    parts.push(`<text x="${pad.left - 7}" y="${(sy(t) + 4).toFixed(1)}" font-size="11" text-anchor="end" fill="#5b6770">${formatFixed(t, ticks.decimals)}</text>`);
+    parts.push(
+      `<text x="${pad.left - 7}" y="${(sy(t) + 4).toFixed(1)}" font-size="11" text-anchor="end" fill="#5b6770">${formatFixed(t, ticks.decimals)}</text>`,
+    );
   }
-  parts.push(`<line class="one-to-one" x1="${sx(lo).toFixed(1)}" y1="${sy(lo).toFixed(1)}" x2="${sx(hi).toFixed(1)}" y2="${sy(hi).toFixed(1)}" stroke="#5b6770" stroke-width="1" stroke-dasharray="5 3"/>`);
+  parts.push(
+    `<line class="one-to-one" x1="${sx(lo).toFixed(1)}" y1="${sy(lo).toFixed(1)}" x2="${sx(hi).toFixed(1)}" y2="${sy(hi).toFixed(1)}" stroke="#5b6770" stroke-width="1" stroke-dasharray="5 3"/>`,
+  );
   // "1:1" above the line where it is farthest from every point (and so from their labels).
   let at = lo + 0.5 * (hi - lo);
   let clearance = -1;
@@ -213,14 +239,25 @@ export function observedSimulatedSvg(points: readonly ObservedSimulated[], optio
       at = v;
     }
   }
-  parts.push(`<text x="${(sx(at) - 6).toFixed(1)}" y="${(sy(at) - 6).toFixed(1)}" font-size="11" text-anchor="end" fill="#5b6770">1:1</text>`);
+  parts.push(
+    `<text x="${(sx(at) - 6).toFixed(1)}" y="${(sy(at) - 6).toFixed(1)}" font-size="11" text-anchor="end" fill="#5b6770">1:1</text>`,
+  );
   for (const p of finite) {
     const colour = p.simulated > p.observed ? '#c0392b' : '#2166ac';
-    parts.push(`<circle cx="${sx(p.observed).toFixed(1)}" cy="${sy(p.simulated).toFixed(1)}" r="4" fill="${colour}" fill-opacity="0.75" stroke="#1d2327" stroke-width="0.6"><title>${escapeMarkup(p.id)}</title></circle>`);
-    if (finite.length <= 30) parts.push(`<text x="${(sx(p.observed) + 6).toFixed(1)}" y="${(sy(p.simulated) - 5).toFixed(1)}" font-size="10.5" fill="#1d2327">${escapeMarkup(p.id)}</text>`);
+    parts.push(
+      `<circle cx="${sx(p.observed).toFixed(1)}" cy="${sy(p.simulated).toFixed(1)}" r="4" fill="${colour}" fill-opacity="0.75" stroke="#1d2327" stroke-width="0.6"><title>${escapeMarkup(p.id)}</title></circle>`,
+    );
+    if (finite.length <= 30)
+      parts.push(
+        `<text x="${(sx(p.observed) + 6).toFixed(1)}" y="${(sy(p.simulated) - 5).toFixed(1)}" font-size="10.5" fill="#1d2327">${escapeMarkup(p.id)}</text>`,
+      );
   }
-  parts.push(`<text x="${pad.left + plot / 2}" y="${size - 8}" font-size="12" text-anchor="middle" fill="#1d2327">Observed head (${unit})</text>`);
-  parts.push(`<text transform="translate(14 ${pad.top + plot / 2}) rotate(-90)" font-size="12" text-anchor="middle" fill="#1d2327">Simulated head (${unit})</text>`);
+  parts.push(
+    `<text x="${pad.left + plot / 2}" y="${size - 8}" font-size="12" text-anchor="middle" fill="#1d2327">Observed head (${unit})</text>`,
+  );
+  parts.push(
+    `<text transform="translate(14 ${pad.top + plot / 2}) rotate(-90)" font-size="12" text-anchor="middle" fill="#1d2327">Simulated head (${unit})</text>`,
+  );
   parts.push('</svg>');
   return parts.join('');
 }

@@ -43,10 +43,7 @@ let fontFiles: string[] | null = null;
 function loadRenderer(): { module: ResvgModule; fonts: string[] } {
   try {
     resvg ??= require('@resvg/resvg-js') as ResvgModule;
-    fontFiles ??= [
-      require.resolve('dejavu-fonts-ttf/ttf/DejaVuSans.ttf'),
-      require.resolve('dejavu-fonts-ttf/ttf/DejaVuSans-Bold.ttf'),
-    ];
+    fontFiles ??= [require.resolve('dejavu-fonts-ttf/ttf/DejaVuSans.ttf'), require.resolve('dejavu-fonts-ttf/ttf/DejaVuSans-Bold.ttf')];
   } catch (thrown) {
     throw new PiezomapError('internal', `cannot load the map renderer: ${describeThrown(thrown)}`, {
       hint: 'reinstall piezomap with its dependencies (npm ci); @resvg/resvg-js and dejavu-fonts-ttf are needed for PNG maps',

@@ -44,7 +44,8 @@ export function niceTicks(min: number, max: number, target = 5): { ticks: number
   // loop below never ended: then the two ends are the ticks. The loop is bounded by a count in any case.
   if (!Number.isSafeInteger(first)) return { ticks: [min, max], step: max - min, decimals };
   const ticks: number[] = [];
-  for (let k = first; k * step <= max + 1e-9 * step && ticks.length <= 4 * target + 4; k++) ticks.push(Number((k * step).toFixed(decimals)));
+  for (let k = first; k * step <= max + 1e-9 * step && ticks.length <= 4 * target + 4; k++)
+    ticks.push(Number((k * step).toFixed(decimals)));
   return { ticks, step, decimals };
 }
 

@@ -62,7 +62,9 @@ export function trackingOverlay(run: TrackingRun, units: { time: string }): MapO
       const dash = dashOf(k, times.length);
       const width = k === null ? 2.2 : 1.6;
       parts.push(`<path d="${d}" fill="none" stroke="#ffffff" stroke-width="${width + 2}" stroke-opacity="0.85" stroke-linejoin="round"/>`);
-      parts.push(`<path d="${d}" fill="none" stroke="${colour}" stroke-width="${width}" stroke-linejoin="round"${dash ? ` stroke-dasharray="${dash}"` : ''}><title>${escapeMarkup(zone.properties.well)}</title></path>`);
+      parts.push(
+        `<path d="${d}" fill="none" stroke="${colour}" stroke-width="${width}" stroke-linejoin="round"${dash ? ` stroke-dasharray="${dash}"` : ''}><title>${escapeMarkup(zone.properties.well)}</title></path>`,
+      );
     }
     // Forward tracks from points, with their start and id.
     for (const track of run.points) {
@@ -80,22 +82,59 @@ export function trackingOverlay(run: TrackingRun, units: { time: string }): MapO
   const legend: MapOverlay['legend'] = [];
   wells.forEach((id) => {
     const colour = colourOf.get(id)!;
-    legend.push({ symbol: (x, y) => `<rect x="${x + 1}" y="${y - 7}" width="22" height="14" fill="none" stroke="${colour}" stroke-width="2.2"/>`, label: `Capture zone of ${id}` });
+    legend.push({
+      symbol: (x, y) => `<rect x="${x + 1}" y="${y - 7}" width="22" height="14" fill="none" stroke="${colour}" stroke-width="2.2"/>`,
+      label: `Capture zone of ${id}`,
+    });
   });
   if (wells.length) {
-    legend.push({ symbol: (x, y) => `<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="#555" stroke-width="2.2"/>`, label: 'steady (all water reaching it)' });
+    legend.push({
+      symbol: (x, y) => `<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="#555" stroke-width="2.2"/>`,
+      label: 'steady (all water reaching it)',
+    });
     times.forEach((t, k) => {
       legend.push({
-        symbol: (x, y) => `<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="#555" stroke-width="1.6" stroke-dasharray="${dashOf(k, times.length)}"/>`,
+        symbol: (x, y) =>
+          `<line x1="${x}" y1="${y}" x2="${x + 24}" y2="${y}" stroke="#555" stroke-width="1.6" stroke-dasharray="${dashOf(k, times.length)}"/>`,
         label: `within ${t.toLocaleString('en-US')} ${units.time}`,
       });
     });
   }
   if (run.capture.pathlines.length) {
-    legend.push({ symbol: (x, y) => arrowedLine([[x, y], [x + 24, y]], false, (v) => v, (v) => v, PATH_GREY, 0.9, 12), label: 'Pathline to a well' });
+    legend.push({
+      symbol: (x, y) =>
+        arrowedLine(
+          [
+            [x, y],
+            [x + 24, y],
+          ],
+          false,
+          (v) => v,
+          (v) => v,
+          PATH_GREY,
+          0.9,
+          12,
+        ),
+      label: 'Pathline to a well',
+    });
   }
   if (run.points.length) {
-    legend.push({ symbol: (x, y) => arrowedLine([[x, y], [x + 24, y]], false, (v) => v, (v) => v, POINT_INK, 1.3, 12), label: 'Track from a point' });
+    legend.push({
+      symbol: (x, y) =>
+        arrowedLine(
+          [
+            [x, y],
+            [x + 24, y],
+          ],
+          false,
+          (v) => v,
+          (v) => v,
+          POINT_INK,
+          1.3,
+          12,
+        ),
+      label: 'Track from a point',
+    });
   }
   return { draw, legend };
 }
@@ -135,7 +174,9 @@ function arrowedLine(
       const ux = sx / len;
       const uy = sy / len;
       const s = 2.5 + 1.5 * width;
-      heads.push(`M${r1(ax + ux * s)} ${r1(ay + uy * s)}L${r1(ax - ux * s - uy * s * 0.7)} ${r1(ay - uy * s + ux * s * 0.7)}L${r1(ax - ux * s + uy * s * 0.7)} ${r1(ay - uy * s - ux * s * 0.7)}Z`);
+      heads.push(
+        `M${r1(ax + ux * s)} ${r1(ay + uy * s)}L${r1(ax - ux * s - uy * s * 0.7)} ${r1(ay - uy * s + ux * s * 0.7)}L${r1(ax - ux * s + uy * s * 0.7)} ${r1(ay - uy * s - ux * s * 0.7)}Z`,
+      );
       next += ARROW_EVERY;
     }
     along += len;

@@ -69,7 +69,9 @@ export function trackingSectionHtml(t: ReportTracking, L: string, T: string): st
     );
   }
   if (t.lostZones?.length) {
-    parts.push(`<p>Wells of the baseline that capture no water here: ${t.lostZones.map((z) => `${e(z.well)} (steady zone ${area(z.area)} ${e(L)}\u00b2 in the baseline)`).join(', ')}.</p>`);
+    parts.push(
+      `<p>Wells of the baseline that capture no water here: ${t.lostZones.map((z) => `${e(z.well)} (steady zone ${area(z.area)} ${e(L)}\u00b2 in the baseline)`).join(', ')}.</p>`,
+    );
   }
   if (t.points.length) {
     const rows = t.points.slice(0, ROWS).map((p) => {

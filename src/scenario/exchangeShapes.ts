@@ -50,7 +50,8 @@ export function exchangeCells(
 ): ExchangeCells {
   const n = grid.nx * grid.ny;
   const heads: FeatureHead[] = collection.features.map((f) => featureHead(f, head, where));
-  const bottoms: FeatureHead[] | null = bottomProperty === null ? null : collection.features.map((f) => featureHead(f, { headProperty: bottomProperty }, where));
+  const bottoms: FeatureHead[] | null =
+    bottomProperty === null ? null : collection.features.map((f) => featureHead(f, { headProperty: bottomProperty }, where));
   const weight = new Float64Array(n);
   const weightedHead = new Float64Array(n);
   const weightedBottom = new Float64Array(n);
@@ -138,7 +139,12 @@ export function reachNames(collection: ShapeCollection): string[] {
   const used = new Set<string>();
   return collection.features.map((feature) => {
     const props = feature.properties;
-    const given = typeof props.name === 'string' && props.name.trim() ? props.name.trim() : typeof props.id === 'string' || typeof props.id === 'number' ? String(props.id) : `feature ${feature.index}`;
+    const given =
+      typeof props.name === 'string' && props.name.trim()
+        ? props.name.trim()
+        : typeof props.id === 'string' || typeof props.id === 'number'
+          ? String(props.id)
+          : `feature ${feature.index}`;
     let name = given;
     for (let k = 2; used.has(name); k++) name = `${given} (${k})`;
     used.add(name);
@@ -167,7 +173,10 @@ export function polygonCellAreas(grid: Grid, rings: readonly Float64Array[]): Ma
     return out;
   });
   const outer = uv[0]!;
-  let u0 = Infinity, u1 = -Infinity, v0 = Infinity, v1 = -Infinity;
+  let u0 = Infinity,
+    u1 = -Infinity,
+    v0 = Infinity,
+    v1 = -Infinity;
   for (let k = 0; k < outer.length; k += 2) {
     u0 = Math.min(u0, outer[k]!);
     u1 = Math.max(u1, outer[k]!);
@@ -216,8 +225,10 @@ function clippedArea(ring: Float64Array, ua: number, ub: number, va: number, vb:
     let out = 0;
     for (let k = 0; k < m; k++) {
       const j = k === 0 ? m - 1 : k - 1;
-      const pu = src[2 * j]!, pv = src[2 * j + 1]!;
-      const qu = src[2 * k]!, qv = src[2 * k + 1]!;
+      const pu = src[2 * j]!,
+        pv = src[2 * j + 1]!;
+      const qu = src[2 * k]!,
+        qv = src[2 * k + 1]!;
       const pc = axis === 0 ? pu : pv;
       const qc = axis === 0 ? qu : qv;
       const pIn = keepAbove ? pc >= bound : pc <= bound;
@@ -244,4 +255,3 @@ function clippedArea(ring: Float64Array, ua: number, ub: number, va: number, vb:
   }
   return Math.abs(twice) / 2;
 }
-

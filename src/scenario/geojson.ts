@@ -54,20 +54,25 @@ export function readShapes(json: unknown, label: string): ShapeCollection {
   } else if (typeof type === 'string' && GEOMETRY_TYPES.has(type)) {
     features = [{ index: 0, label: 'geometry', geometry: readGeometry(json, `${label} geometry`), properties: {} }];
   } else {
-    throw inputError(`${label}: "type" is ${JSON.stringify(type) ?? 'missing'}, not a GeoJSON FeatureCollection, Feature or geometry`, { hint: GEOJSON_HINT });
+    throw inputError(`${label}: "type" is ${JSON.stringify(type) ?? 'missing'}, not a GeoJSON FeatureCollection, Feature or geometry`, {
+      hint: GEOJSON_HINT,
+    });
   }
-  if (features.length === 0) throw inputError(`${label}: the FeatureCollection has no features`, { hint: 'the file needs at least one polygon or line' });
+  if (features.length === 0)
+    throw inputError(`${label}: the FeatureCollection has no features`, { hint: 'the file needs at least one polygon or line' });
   return { epsg, crsFromMember: fromMember, features };
 }
 
-const GEOJSON_HINT = 'expected GeoJSON (RFC 7946) polygons or lines, e.g. exported with: ogr2ogr -f GeoJSON -t_srs EPSG:4326 out.geojson in.shp';
+const GEOJSON_HINT =
+  'expected GeoJSON (RFC 7946) polygons or lines, e.g. exported with: ogr2ogr -f GeoJSON -t_srs EPSG:4326 out.geojson in.shp';
 
 function readFeature(value: unknown, index: number, file: string): ShapeFeature {
   const id = isObject(value) && (typeof value.id === 'string' || typeof value.id === 'number') ? value.id : undefined;
   const label = id === undefined ? `feature ${index}` : `feature ${index} (id ${JSON.stringify(id)})`;
   const where = `${file} ${label}`;
   if (!isObject(value)) throw inputError(`${where}: not a GeoJSON Feature object (found ${kindOf(value)})`, { hint: GEOJSON_HINT });
-  if (value.type !== 'Feature') throw inputError(`${where}: "type" is ${JSON.stringify(value.type) ?? 'missing'}, not "Feature"`, { hint: GEOJSON_HINT });
+  if (value.type !== 'Feature')
+    throw inputError(`${where}: "type" is ${JSON.stringify(value.type) ?? 'missing'}, not "Feature"`, { hint: GEOJSON_HINT });
   if (value.geometry === null || value.geometry === undefined) {
     throw inputError(`${where} has no geometry`, { hint: 'give every feature a polygon or a line, or delete the feature' });
   }
@@ -75,7 +80,12 @@ function readFeature(value: unknown, index: number, file: string): ShapeFeature 
   if (properties !== null && properties !== undefined && !isObject(properties)) {
     throw inputError(`${where}: "properties" must be an object or null (found ${kindOf(properties)})`);
   }
-  return { index, label, geometry: readGeometry(value.geometry, where), properties: (properties as Record<string, unknown> | null | undefined) ?? {} };
+  return {
+    index,
+    label,
+    geometry: readGeometry(value.geometry, where),
+    properties: (properties as Record<string, unknown> | null | undefined) ?? {},
+  };
 }
 
 function readGeometry(value: unknown, where: string): ShapeGeometry {
@@ -95,13 +105,18 @@ function readGeometry(value: unknown, where: string): ShapeGeometry {
     case 'LineString':
       return { type: 'line', lines: [readLine(coordinates, where, 'coordinates')] };
     case 'MultiLineString':
-      return { type: 'line', lines: readList(coordinates, where, 'coordinates', 'lines').map((line, i) => readLine(line, where, `coordinates[${i}]`)) };
+      return {
+        type: 'line',
+        lines: readList(coordinates, where, 'coordinates', 'lines').map((line, i) => readLine(line, where, `coordinates[${i}]`)),
+      };
     case 'Polygon':
       return { type: 'polygon', polygons: [readPolygon(coordinates, where, 'coordinates')] };
     case 'MultiPolygon':
       return {
         type: 'polygon',
-        polygons: readList(coordinates, where, 'coordinates', 'polygons').map((polygon, i) => readPolygon(polygon, where, `coordinates[${i}]`)),
+        polygons: readList(coordinates, where, 'coordinates', 'polygons').map((polygon, i) =>
+          readPolygon(polygon, where, `coordinates[${i}]`),
+        ),
       };
     default:
       throw inputError(`${where}: geometry "type" is ${JSON.stringify(type) ?? 'missing'}, not a GeoJSON geometry type`, {
@@ -112,8 +127,12 @@ function readGeometry(value: unknown, where: string): ShapeGeometry {
 
 /** A non-empty JSON array, else an error naming the path inside the geometry. */
 function readList(value: unknown, where: string, path: string, what: string): unknown[] {
-  if (!Array.isArray(value)) throw inputError(`${where}: ${path} must be a list of ${what} (found ${kindOf(value)})`, { hint: GEOJSON_HINT });
-  if (value.length === 0) throw inputError(`${where}: ${path} is empty (the geometry has no ${what})`, { hint: 'delete the empty feature or give it coordinates' });
+  if (!Array.isArray(value))
+    throw inputError(`${where}: ${path} must be a list of ${what} (found ${kindOf(value)})`, { hint: GEOJSON_HINT });
+  if (value.length === 0)
+    throw inputError(`${where}: ${path} is empty (the geometry has no ${what})`, {
+      hint: 'delete the empty feature or give it coordinates',
+    });
   return value;
 }
 
@@ -124,7 +143,8 @@ function readPolygon(value: unknown, where: string, path: string): Float64Array[
     const m = xy.length >> 1;
     // The closing vertex repeats the first (RFC 7946 section 3.1.6); drop it, the fill joins last to first anyway.
     if (m > 1 && xy[0] === xy[2 * m - 2] && xy[1] === xy[2 * m - 1]) xy = xy.slice(0, 2 * m - 2);
-    if (xy.length < 6) throw inputError(`${where}: ${ringPath} is not a ring: it needs at least 3 different vertices`, { hint: GEOJSON_HINT });
+    if (xy.length < 6)
+      throw inputError(`${where}: ${ringPath} is not a ring: it needs at least 3 different vertices`, { hint: GEOJSON_HINT });
     return xy;
   });
 }
@@ -144,9 +164,12 @@ function readPositions(value: unknown, where: string, path: string): Float64Arra
     const x = Array.isArray(position) ? position[0] : undefined;
     const y = Array.isArray(position) ? position[1] : undefined;
     if (typeof x !== 'number' || typeof y !== 'number' || !Number.isFinite(x) || !Number.isFinite(y)) {
-      throw inputError(`${where}: ${path}[${k}] is not a position [x, y] of two numbers (found ${JSON.stringify(position) ?? kindOf(position)})`, {
-        hint: GEOJSON_HINT,
-      });
+      throw inputError(
+        `${where}: ${path}[${k}] is not a position [x, y] of two numbers (found ${JSON.stringify(position) ?? kindOf(position)})`,
+        {
+          hint: GEOJSON_HINT,
+        },
+      );
     }
     xy[2 * k] = x;
     xy[2 * k + 1] = y;
@@ -161,7 +184,8 @@ function readPositions(value: unknown, where: string, path: string): Float64Arra
 function crsOf(json: Record<string, unknown>, label: string): { epsg: number; fromMember: boolean } {
   const crs = json.crs;
   if (crs === undefined || crs === null) return { epsg: 4326, fromMember: false };
-  const hint = 'RFC 7946 GeoJSON is WGS 84 longitude/latitude without a "crs" member; write it so, e.g. ogr2ogr -f GeoJSON -t_srs EPSG:4326 out.geojson in.geojson';
+  const hint =
+    'RFC 7946 GeoJSON is WGS 84 longitude/latitude without a "crs" member; write it so, e.g. ogr2ogr -f GeoJSON -t_srs EPSG:4326 out.geojson in.geojson';
   if (isObject(crs) && isObject(crs.properties)) {
     if (crs.type === 'name' && typeof crs.properties.name === 'string') {
       const name = crs.properties.name.trim();
@@ -229,7 +253,9 @@ export function featureHead(feature: ShapeFeature, spec: HeadSpec, where: string
   if (!(name in feature.properties)) {
     const known = Object.keys(feature.properties);
     throw inputError(`${at} has no property "${name}" for its head`, {
-      hint: known.length ? `its properties are: ${known.join(', ')}` : 'the feature has no properties; give "head" in the scenario instead of "headProperty"',
+      hint: known.length
+        ? `its properties are: ${known.join(', ')}`
+        : 'the feature has no properties; give "head" in the scenario instead of "headProperty"',
     });
   }
   const value = feature.properties[name];
@@ -251,7 +277,12 @@ export function featureHead(feature: ShapeFeature, spec: HeadSpec, where: string
         hint: 'a MultiLineString needs one list of vertex heads per line: [[h, ...], [h, ...]]',
       });
     }
-    return { type: 'vertices', heads: lists.map((list: unknown, i: number) => vertexHeads(list, geometry.lines[i]!.length >> 1, `${at}: property "${name}"${multi ? `[${i}]` : ''}`)) };
+    return {
+      type: 'vertices',
+      heads: lists.map((list: unknown, i: number) =>
+        vertexHeads(list, geometry.lines[i]!.length >> 1, `${at}: property "${name}"${multi ? `[${i}]` : ''}`),
+      ),
+    };
   }
   const shown = typeof value === 'string' ? `the text ${JSON.stringify(value)}` : JSON.stringify(value);
   throw inputError(`${at}: property "${name}" is ${shown}, not a number`, {
@@ -262,7 +293,9 @@ export function featureHead(feature: ShapeFeature, spec: HeadSpec, where: string
 function vertexHeads(list: unknown, vertices: number, at: string): Float64Array {
   if (!Array.isArray(list)) throw inputError(`${at} is not a list of vertex heads (found ${kindOf(list)})`);
   if (list.length !== vertices) {
-    throw inputError(`${at} has ${list.length} value(s) for a line of ${vertices} vertices`, { hint: 'give one head per vertex, null where unknown (it is interpolated)' });
+    throw inputError(`${at} has ${list.length} value(s) for a line of ${vertices} vertices`, {
+      hint: 'give one head per vertex, null where unknown (it is interpolated)',
+    });
   }
   const heads = new Float64Array(vertices);
   for (let k = 0; k < vertices; k++) {

@@ -138,7 +138,7 @@ function valueAt(input: unknown, path: readonly PathSegment[]): { found: boolean
   let current: unknown = input;
   for (const segment of path) {
     if (current === null || typeof current !== 'object') return { found: false, value: undefined };
-    if (!Object.prototype.hasOwnProperty.call(current, segment)) return { found: false, value: undefined };
+    if (!Object.hasOwn(current, segment)) return { found: false, value: undefined };
     current = (current as Record<PropertyKey, unknown>)[segment];
   }
   return { found: current !== undefined, value: current };

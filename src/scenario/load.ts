@@ -37,7 +37,16 @@ import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
 import { numberProperty, readPointFeatures, type PointFeature } from './pointFeatures.js';
 import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import { checkMagnitudes } from './magnitudes.js';
-import type { ConditioningPoint, EnsembleInput, FixedHeadInput, ModelInput, ObservationInput, ReceptorInput, TrackingSettings, WellInput } from './types.js';
+import type {
+  ConditioningPoint,
+  EnsembleInput,
+  FixedHeadInput,
+  ModelInput,
+  ObservationInput,
+  ReceptorInput,
+  TrackingSettings,
+  WellInput,
+} from './types.js';
 import { fieldAt } from '../field.js';
 import { loadHeadDependent, loadLeakage } from './loadHeadDependent.js';
 
@@ -106,7 +115,9 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
       if (isActiveValue(conductivity[p]!) && !(b > 0)) lost++;
     }
     if (lost > 0) {
-      loader.warn(`aquifer.thickness "${raw.aquifer.thickness}": ${lost} cell(s) with a conductivity have no thickness > 0 there and are inactive`);
+      loader.warn(
+        `aquifer.thickness "${raw.aquifer.thickness}": ${lost} cell(s) with a conductivity have no thickness > 0 there and are inactive`,
+      );
     }
   }
   if (raw.aquifer.inactiveShapes?.length) await loader.inactiveShapes(raw.aquifer.inactiveShapes, grid, conductivity);
@@ -149,17 +160,23 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
       else if (!(n > 0 && n <= 1)) {
         throw inputError(
           `${loader.label}: aquifer.porosity "${raw.aquifer.porosity}": value ${n} at row ${Math.floor(p / grid.nx)}, col ${p % grid.nx} is not a porosity in (0, 1]`,
-          { file: raw.aquifer.porosity, key: 'aquifer.porosity', hint: 'give porosity as a fraction (0.25, not 25); use nodata where it is unknown' },
+          {
+            file: raw.aquifer.porosity,
+            key: 'aquifer.porosity',
+            hint: 'give porosity as a fraction (0.25, not 25); use nodata where it is unknown',
+          },
         );
       }
     }
-    if (missing > 0) loader.warn(`aquifer.porosity "${raw.aquifer.porosity}": ${missing} active cell(s) have no porosity; no velocity is given there`);
+    if (missing > 0)
+      loader.warn(`aquifer.porosity "${raw.aquifer.porosity}": ${missing} active cell(s) have no porosity; no velocity is given there`);
   } else {
     porosity = raw.aquifer.porosity;
   }
 
   // Optional elevations for the sanity warnings: numbers, or rasters on the conductivity grid (nodata = not known).
-  const elevations: { aquiferTop?: Float64Array | number; aquiferBottom?: Float64Array | number; groundSurface?: Float64Array | number } = {};
+  const elevations: { aquiferTop?: Float64Array | number; aquiferBottom?: Float64Array | number; groundSurface?: Float64Array | number } =
+    {};
   const elevationKeys = [
     ['aquiferTop', 'aquifer.top', raw.aquifer.top],
     ['aquiferBottom', 'aquifer.bottom', raw.aquifer.bottom],
@@ -181,7 +198,11 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   const wells = await loader.wells(raw.wells, transform);
   const observations = await loader.observations(raw.observations, transform);
   const receptors = await loader.receptors(raw.receptors, transform, grid, conductivityPath);
-  const tracking = raw.tracking ? resolveTracking(raw, loader.label, porosity, transform, grid, conductivity, thickness, (t, x, y, what) => loader.projectPoint(t, x, y, what)) : undefined;
+  const tracking = raw.tracking
+    ? resolveTracking(raw, loader.label, porosity, transform, grid, conductivity, thickness, (t, x, y, what) =>
+        loader.projectPoint(t, x, y, what),
+      )
+    : undefined;
   const ensemble = raw.ensemble ? await loader.ensemble(raw.ensemble, transform) : undefined;
 
   const solver = raw.solver ?? solverSchema.parse({});
@@ -214,7 +235,11 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
     inputFiles: [...loader.inputFiles],
     warnings: loader.warnings,
   };
-  checkMagnitudes(model, loader.label, { conductivity: conductivityPath, ...(raw.aquifer.thickness === undefined ? {} : { thickness: raw.aquifer.thickness }), ...(raw.recharge === undefined ? {} : { recharge: raw.recharge }) });
+  checkMagnitudes(model, loader.label, {
+    conductivity: conductivityPath,
+    ...(raw.aquifer.thickness === undefined ? {} : { thickness: raw.aquifer.thickness }),
+    ...(raw.recharge === undefined ? {} : { recharge: raw.recharge }),
+  });
   return model;
 }
 
@@ -235,10 +260,13 @@ function resolveTracking(
   const spec = raw.tracking!;
   if (!(grid.transform[1] > 0 && grid.transform[5] < 0)) {
     // The tracking engine's frame is north-up; refused here rather than after a long solve.
-    throw inputError(`${label}: tracking needs a north-up grid (positive pixel width, negative pixel height); this grid's geotransform is [${grid.transform.join(', ')}]`, {
-      key: 'tracking',
-      hint: 'warp the rasters to a north-up grid (e.g. gdalwarp) before tracking, or drop "tracking"',
-    });
+    throw inputError(
+      `${label}: tracking needs a north-up grid (positive pixel width, negative pixel height); this grid's geotransform is [${grid.transform.join(', ')}]`,
+      {
+        key: 'tracking',
+        hint: 'warp the rasters to a north-up grid (e.g. gdalwarp) before tracking, or drop "tracking"',
+      },
+    );
   }
   if (porosity === undefined) {
     throw inputError(`${label}: tracking needs aquifer.porosity (the effective porosity turns Darcy flux into particle velocity)`, {
@@ -249,11 +277,14 @@ function resolveTracking(
   if (typeof porosity !== 'number') {
     for (let p = 0; p < porosity.length; p++) {
       if (isActive(conductivity, thickness, p) && !(porosity[p]! > 0 && porosity[p]! <= 1)) {
-        throw inputError(`${label}: tracking needs aquifer.porosity on every active cell; it has none at row ${Math.floor(p / grid.nx)}, col ${p % grid.nx}`, {
-          key: 'aquifer.porosity',
-          cell: { row: Math.floor(p / grid.nx), col: p % grid.nx },
-          hint: 'fill the porosity raster on the active area (nodata only where the aquifer is inactive)',
-        });
+        throw inputError(
+          `${label}: tracking needs aquifer.porosity on every active cell; it has none at row ${Math.floor(p / grid.nx)}, col ${p % grid.nx}`,
+          {
+            key: 'aquifer.porosity',
+            cell: { row: Math.floor(p / grid.nx), col: p % grid.nx },
+            hint: 'fill the porosity raster on the active area (nodata only where the aquifer is inactive)',
+          },
+        );
       }
     }
   }
@@ -327,7 +358,10 @@ function parseJsonText(text: string, label: string, absolute: string): unknown {
     const problem = findJsonSyntaxError(text);
     const where = problem ? ` line ${problem.line}, column ${problem.column}` : '';
     const what = problem ? problem.problem : describeThrown(thrown);
-    throw inputError(`${label}${where}: invalid JSON: ${what}`, { file: absolute, hint: problem?.hint ?? 'fix the JSON syntax (a JSON validator or editor will point at the same place)' });
+    throw inputError(`${label}${where}: invalid JSON: ${what}`, {
+      file: absolute,
+      hint: problem?.hint ?? 'fix the JSON syntax (a JSON validator or editor will point at the same place)',
+    });
   }
   const duplicate = findJsonSyntaxError(text, { duplicateKeys: true });
   if (duplicate) {
@@ -349,7 +383,8 @@ function fileProblem(thrown: unknown, given: string, absolute: string, what: str
     });
   }
   if (code === 'EISDIR') return inputError(`${what} "${given}" is a folder, not a file (${absolute})`, detail);
-  if (code === 'EACCES' || code === 'EPERM') return inputError(`${what} "${given}" cannot be read: permission denied (${absolute})`, detail);
+  if (code === 'EACCES' || code === 'EPERM')
+    return inputError(`${what} "${given}" cannot be read: permission denied (${absolute})`, detail);
   return inputError(`${what} "${given}" cannot be read (${absolute}): ${describeThrown(thrown)}`, detail);
 }
 
@@ -408,10 +443,11 @@ class Loader {
         continue;
       }
       if (Number.isFinite(t) && !(t > z)) {
-        throw inputError(
-          `${this.label}: aquifer.top ${t} is not above aquifer.bottom ${z} at row ${Math.floor(p / nx)}, col ${p % nx}`,
-          { key: 'aquifer.top', cell: { row: Math.floor(p / nx), col: p % nx }, hint: 'top and bottom are elevations in length units; check that they were not swapped' },
-        );
+        throw inputError(`${this.label}: aquifer.top ${t} is not above aquifer.bottom ${z} at row ${Math.floor(p / nx)}, col ${p % nx}`, {
+          key: 'aquifer.top',
+          cell: { row: Math.floor(p / nx), col: p % nx },
+          hint: 'top and bottom are elevations in length units; check that they were not swapped',
+        });
       }
       if (initialHead !== undefined && !Number.isFinite(fieldAt(initialHead, p))) {
         throw inputError(`${this.label}: aquifer.initialHead has no value at row ${Math.floor(p / nx)}, col ${p % nx}, an active cell`, {
@@ -423,7 +459,10 @@ class Loader {
       thickness[p] = Number.isFinite(t) ? t - z : 1;
     }
     if (noBottom > 0) this.warn(`aquifer.bottom: ${noBottom} cell(s) with a conductivity have no bottom elevation there and are inactive`);
-    if (noTop > 0) this.warn(`aquifer.top: ${noTop} cell(s) with a conductivity have no top elevation there and are inactive (a convertible aquifer needs both)`);
+    if (noTop > 0)
+      this.warn(
+        `aquifer.top: ${noTop} cell(s) with a conductivity have no top elevation there and are inactive (a convertible aquifer needs both)`,
+      );
     return { thickness, bottom, ...(top === undefined ? {} : { top }), ...(initialHead === undefined ? {} : { initialHead }) };
   }
 
@@ -442,7 +481,8 @@ class Loader {
       raster = await readRaster(absolute, { label: `${key} "${given}"`, maxBytes: rasterBudget() });
     } catch (thrown) {
       // The reader names the raster by the label given; add the scenario file, the path and the key.
-      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
+      if (thrown instanceof PiezomapError)
+        throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
       throw inputError(`${this.label}: ${key}: "${given}" cannot be read as a GeoTIFF: ${describeThrown(thrown)}`, { file: absolute, key });
     }
     this.inputFiles.add(absolute);
@@ -450,11 +490,14 @@ class Loader {
     const quantity = quantityOf(key);
     if (raster.unit !== null && !unitMatches(raster.unit, quantity, this.units)) {
       const expected = describeExpectedUnit(quantity, this.units);
-      throw inputError(`${this.label}: ${key} "${given}" declares its values in "${raster.unit}", but ${key} is taken in ${expected} (units in the scenario); piezomap converts no units`, {
-        file: absolute,
-        key,
-        hint: `convert the values to ${expected} and declare that unit (e.g. gdal_calc.py, then gdal_edit.py -units), or set "units" in the scenario to match`,
-      });
+      throw inputError(
+        `${this.label}: ${key} "${given}" declares its values in "${raster.unit}", but ${key} is taken in ${expected} (units in the scenario); piezomap converts no units`,
+        {
+          file: absolute,
+          key,
+          hint: `convert the values to ${expected} and declare that unit (e.g. gdal_calc.py, then gdal_edit.py -units), or set "units" in the scenario to match`,
+        },
+      );
     }
     // Several bands: which one holds the values cannot be guessed, and a wrong guess gives a plausible-looking result.
     if (raster.bandCount > 1) {
@@ -501,12 +544,17 @@ class Loader {
       ['aquifer.initialHead', raw.aquifer.initialHead],
       ['groundSurface', raw.groundSurface],
       ['recharge', raw.recharge],
-      ...raw.fixedHeads.map((entry, i): [string, string | undefined] => [`fixedHeads[${i}].raster`, 'raster' in entry ? entry.raster : undefined]),
-      ...(raw.headDependent ?? []).flatMap((entry, i): Array<[string, string | number | undefined]> => [
-        [`headDependent[${i}].raster`, entry.raster],
-        [`headDependent[${i}].conductance`, entry.conductance],
-        [`headDependent[${i}].bottom`, entry.bottom],
+      ...raw.fixedHeads.map((entry, i): [string, string | undefined] => [
+        `fixedHeads[${i}].raster`,
+        'raster' in entry ? entry.raster : undefined,
       ]),
+      ...(raw.headDependent ?? []).flatMap(
+        (entry, i): Array<[string, string | number | undefined]> => [
+          [`headDependent[${i}].raster`, entry.raster],
+          [`headDependent[${i}].conductance`, entry.conductance],
+          [`headDependent[${i}].bottom`, entry.bottom],
+        ],
+      ),
       ['leakage.sourceHead', raw.leakage?.sourceHead],
       ['leakage.leakance', raw.leakage?.leakance],
     ];
@@ -517,16 +565,28 @@ class Loader {
       await this.requireFile(key, given, absolute, 'raster');
       try {
         const header = await readRasterHeader(absolute, { label: `${key} "${given}"` });
-        footprints.push({ key, given, width: header.width, height: header.height, valueBytes: header.valueBytes, readBytes: header.readBytes });
+        footprints.push({
+          key,
+          given,
+          width: header.width,
+          height: header.height,
+          valueBytes: header.valueBytes,
+          readBytes: header.readBytes,
+        });
       } catch (thrown) {
-        if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
+        if (thrown instanceof PiezomapError)
+          throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
         throw thrown;
       }
     }
     try {
       checkRasterMemory(footprints);
     } catch (thrown) {
-      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, { ...thrown.detail, file: thrown.detail.file && this.path(thrown.detail.file) });
+      if (thrown instanceof PiezomapError)
+        throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, {
+          ...thrown.detail,
+          file: thrown.detail.file && this.path(thrown.detail.file),
+        });
       throw thrown;
     }
   }
@@ -545,7 +605,11 @@ class Loader {
     if (grid.crs?.geographic) {
       throw inputError(
         `${this.label}: aquifer.conductivity "${given}" is in a geographic CRS (${crsLabel(grid.crs)}): its cell sizes are degrees, not lengths`,
-        { file: this.path(given), key: 'aquifer.conductivity', hint: 'reproject the rasters to a projected CRS in metres or feet, e.g. gdalwarp -t_srs EPSG:326zz (WGS 84 / UTM zone zz north)' },
+        {
+          file: this.path(given),
+          key: 'aquifer.conductivity',
+          hint: 'reproject the rasters to a projected CRS in metres or feet, e.g. gdalwarp -t_srs EPSG:326zz (WGS 84 / UTM zone zz north)',
+        },
       );
     }
     const epsg = grid.crs?.epsg;
@@ -554,7 +618,9 @@ class Loader {
       const metres = /met(er|re)/i.test(unit);
       const feet = /(foot|feet|\bft\b)/i.test(unit);
       if ((metres && lengthUnit === 'ft') || (feet && lengthUnit === 'm')) {
-        this.warn(`units.length is "${lengthUnit}" but the CRS of "${given}" measures in ${unit}: cell sizes are taken in ${unit}; keep the other inputs consistent`);
+        this.warn(
+          `units.length is "${lengthUnit}" but the CRS of "${given}" measures in ${unit}: cell sizes are taken in ${unit}; keep the other inputs consistent`,
+        );
       }
     }
   }
@@ -604,7 +670,13 @@ class Loader {
     return { name: name ?? basename(given, extname(given)), source, cells, heads };
   }
 
-  private fixedHeadEdge(edge: 'west' | 'east' | 'north' | 'south', head: number, name: string | undefined, source: string, grid: Grid): FixedHeadInput {
+  private fixedHeadEdge(
+    edge: 'west' | 'east' | 'north' | 'south',
+    head: number,
+    name: string | undefined,
+    source: string,
+    grid: Grid,
+  ): FixedHeadInput {
     const { nx, ny } = grid;
     // Outer row/column by map direction, so that grids stored south-up or east-to-west are handled too.
     const northRow = grid.transform[5] < 0 ? 0 : ny - 1;
@@ -677,16 +749,23 @@ class Loader {
       const collection = readShapes(parseJsonText(text, where, absolute), where);
       const to = grid.crs?.epsg ?? null;
       if (to === null) {
-        throw inputError(`${where} is in EPSG:${collection.epsg}, but the rasters have no EPSG code (${crsLabel(grid.crs)} CRS), so the shapes cannot be reprojected into them`, {
-          hint: 'assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)',
-        });
+        throw inputError(
+          `${where} is in EPSG:${collection.epsg}, but the rasters have no EPSG code (${crsLabel(grid.crs)} CRS), so the shapes cannot be reprojected into them`,
+          {
+            hint: 'assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)',
+          },
+        );
       }
       let transform: PointTransform | null = null;
       if (collection.epsg !== to) {
         try {
           transform = makeTransform(collection.epsg, to);
         } catch (thrown) {
-          if (thrown instanceof PiezomapError) throw inputError(`${where}: reprojecting from EPSG:${collection.epsg} to the rasters' EPSG:${to}: ${thrown.message}`, thrown.detail);
+          if (thrown instanceof PiezomapError)
+            throw inputError(
+              `${where}: reprojecting from EPSG:${collection.epsg} to the rasters' EPSG:${to}: ${thrown.message}`,
+              thrown.detail,
+            );
           throw thrown;
         }
       }
@@ -701,11 +780,15 @@ class Loader {
   warnOutside(where: string, outside: string[], total: number, consequence: string): void {
     if (outside.length === 0) return;
     if (outside.length === total) {
-      this.warn(`${where}: no feature covers a cell of the grid (all lie outside it, or are too small to hold a cell centre), so ${consequence}`);
+      this.warn(
+        `${where}: no feature covers a cell of the grid (all lie outside it, or are too small to hold a cell centre), so ${consequence}`,
+      );
       return;
     }
     const listed = outside.length > 5 ? `${outside.slice(0, 5).join(', ')} and ${outside.length - 5} more` : outside.join(', ');
-    this.warn(`${where}: ${listed} cover${outside.length === 1 ? 's' : ''} no cell of the grid (outside it, or too small to hold a cell centre) and ${outside.length === 1 ? 'is' : 'are'} ignored`);
+    this.warn(
+      `${where}: ${listed} cover${outside.length === 1 ? 's' : ''} no cell of the grid (outside it, or too small to hold a cell centre) and ${outside.length === 1 ? 'is' : 'are'} ignored`,
+    );
   }
 
   /** The transform from `pointCrs` to the raster CRS, or null when points are already in the raster CRS. */
@@ -717,7 +800,10 @@ class Loader {
     if (to === null) {
       throw inputError(
         `${this.label}: ${key} is ${pointCrs}, but aquifer.conductivity "${conductivityPath}" has no EPSG code (${crsLabel(grid.crs)} CRS), so points cannot be reprojected into it`,
-        { key, hint: 'give the points in the raster CRS and drop "pointCrs", or assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)' },
+        {
+          key,
+          hint: 'give the points in the raster CRS and drop "pointCrs", or assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)',
+        },
       );
     }
     if (from === to) return null;
@@ -725,7 +811,11 @@ class Loader {
       return makeTransform(from, to);
     } catch (thrown) {
       if (thrown instanceof PiezomapError) {
-        throw new PiezomapError(thrown.code, `${this.label}: ${key}: reprojecting points from EPSG:${from} to the rasters' EPSG:${to}: ${thrown.message}`, { ...thrown.detail, key });
+        throw new PiezomapError(
+          thrown.code,
+          `${this.label}: ${key}: reprojecting points from EPSG:${from} to the rasters' EPSG:${to}: ${thrown.message}`,
+          { ...thrown.detail, key },
+        );
       }
       throw thrown;
     }
@@ -743,11 +833,11 @@ class Loader {
               projected: true,
             }))
           : typeof layer.wells === 'string'
-          ? (await this.pointCsv(`${layer.source}`, layer.wells, ['id', 'x', 'y', 'rate'], ['radius', 'minimumhead'])).map((record) => ({
-              change: wellFromRecord(record),
-              source: record.source,
-            }))
-          : layer.wells.map((change, index) => ({ change, source: `${layer.source}[${index}]` }));
+            ? (await this.pointCsv(`${layer.source}`, layer.wells, ['id', 'x', 'y', 'rate'], ['radius', 'minimumhead'])).map((record) => ({
+                change: wellFromRecord(record),
+                source: record.source,
+              }))
+            : layer.wells.map((change, index) => ({ change, source: `${layer.source}[${index}]` }));
       for (const { change, source, projected } of changes) {
         const existing = byId.get(change.id);
         const mergedChange: Partial<WellChange> = { ...(existing?.change ?? {}) };
@@ -760,10 +850,13 @@ class Loader {
     for (const [id, { change, source, projected }] of byId) {
       const missing = (['x', 'y', 'rate'] as const).filter((key) => change[key] === undefined);
       if (missing.length) {
-        throw inputError(`${this.label}: ${source}: well "${id}" is new here, so it needs ${missing.join(', ')} (no earlier well has this id)`, {
-          key: source,
-          hint: 'a variant changes a baseline well by giving its id; check the id for typos',
-        });
+        throw inputError(
+          `${this.label}: ${source}: well "${id}" is new here, so it needs ${missing.join(', ')} (no earlier well has this id)`,
+          {
+            key: source,
+            hint: 'a variant changes a baseline well by giving its id; check the id for typos',
+          },
+        );
       }
       if (change.rate === 0) continue;
       const point = projected ? { x: change.x!, y: change.y! } : this.project(transform, change.x!, change.y!, `well "${id}" (${source})`);
@@ -780,7 +873,8 @@ class Loader {
     if (typeof spec === 'string' && isGeoJsonPath(spec)) {
       return (await this.pointGeoJson('observations', spec, 'observation')).map(({ feature, source, x, y }) => {
         const head = numberProperty(feature, source, 'head');
-        if (head === undefined) throw inputError(`${source} (id "${feature.id}"): has no "head" property (the observed head)`, { key: 'observations' });
+        if (head === undefined)
+          throw inputError(`${source} (id "${feature.id}"): has no "head" property (the observed head)`, { key: 'observations' });
         return { id: feature.id, x, y, head, source };
       });
     }
@@ -801,10 +895,20 @@ class Loader {
   }
 
   /** Receptors: in pointCrs (or the raster CRS), unless an entry names its own `crs`. */
-  async receptors(spec: ScenarioJson['receptors'], transform: PointTransform | null, grid: Grid, conductivityPath: string): Promise<ReceptorInput[]> {
+  async receptors(
+    spec: ScenarioJson['receptors'],
+    transform: PointTransform | null,
+    grid: Grid,
+    conductivityPath: string,
+  ): Promise<ReceptorInput[]> {
     if (spec === undefined) return [];
     if (typeof spec === 'string' && isGeoJsonPath(spec)) {
-      return (await this.pointGeoJson('receptors', spec, 'receptor')).map(({ feature, source, x, y }) => ({ id: feature.id, x, y, source }));
+      return (await this.pointGeoJson('receptors', spec, 'receptor')).map(({ feature, source, x, y }) => ({
+        id: feature.id,
+        x,
+        y,
+        source,
+      }));
     }
     const entries: Array<ReceptorEntry & { source: string }> =
       typeof spec === 'string'
@@ -840,9 +944,17 @@ class Loader {
         const id = record.values.get('id')!;
         const k = csvNumber(record, 'k');
         if (!(k > 0) || !Number.isFinite(k)) {
-          throw inputError(`${this.label}: ensemble.conditioning ${record.source} (id "${id}"): k = ${k} is not a conductivity > 0`, { key: 'ensemble.conditioning', file: this.path(spec.conditioning) });
+          throw inputError(`${this.label}: ensemble.conditioning ${record.source} (id "${id}"): k = ${k} is not a conductivity > 0`, {
+            key: 'ensemble.conditioning',
+            file: this.path(spec.conditioning),
+          });
         }
-        const point = this.project(transform, csvNumber(record, 'x'), csvNumber(record, 'y'), `measured conductivity "${id}" (${record.source})`);
+        const point = this.project(
+          transform,
+          csvNumber(record, 'x'),
+          csvNumber(record, 'y'),
+          `measured conductivity "${id}" (${record.source})`,
+        );
         conditioning.push({ id, x: point.x, y: point.y, k, source: record.source });
       }
     }
@@ -863,14 +975,19 @@ class Loader {
   pointFrame: { grid: Grid; conductivityPath: string } | null = null;
 
   /** Point features of a GeoJSON file, reprojected from WGS 84 (or its legacy `crs`) into the raster CRS. */
-  async pointGeoJson(key: string, given: string, what: string): Promise<Array<{ feature: PointFeature; source: string; x: number; y: number }>> {
+  async pointGeoJson(
+    key: string,
+    given: string,
+    what: string,
+  ): Promise<Array<{ feature: PointFeature; source: string; x: number; y: number }>> {
     const { absolute, text } = await this.readText(key, given, 'GeoJSON');
     const json = parseJsonText(text, given, absolute);
     let collection;
     try {
       collection = readPointFeatures(json, given, what);
     } catch (thrown) {
-      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${key}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
+      if (thrown instanceof PiezomapError)
+        throw new PiezomapError(thrown.code, `${this.label}: ${key}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
       throw thrown;
     }
     const frame = this.pointFrame!;
@@ -913,7 +1030,8 @@ class Loader {
       throw thrown;
     }
     const expected = required.join(',');
-    if (records.length === 0) throw inputError(`${name}: the file is empty (expected a header line "${expected}")`, { file: absolute, key });
+    if (records.length === 0)
+      throw inputError(`${name}: the file is empty (expected a header line "${expected}")`, { file: absolute, key });
     const header = records[0]!;
     const columns = header.fields.map((field) => field.trim().toLowerCase());
     if (columns.length === 1 && /[;\t]/.test(columns[0]!)) {
@@ -925,16 +1043,20 @@ class Loader {
     }
     const seen = new Set<string>();
     for (const column of columns) {
-      if (seen.has(column)) throw inputError(`${name} line ${header.line}: column "${column}" appears twice in the header`, { file: absolute, key });
+      if (seen.has(column))
+        throw inputError(`${name} line ${header.line}: column "${column}" appears twice in the header`, { file: absolute, key });
       seen.add(column);
     }
     const missing = required.filter((column) => !seen.has(column));
     if (missing.length) {
-      throw inputError(`${name} line ${header.line}: the header lacks the column(s) ${missing.map((c) => `"${c}"`).join(', ')} (found: ${columns.join(',')})`, {
-        file: absolute,
-        key,
-        hint: `the header must be "${expected}"${optional.length ? ` (optional: ${optional.join(', ')})` : ''}`,
-      });
+      throw inputError(
+        `${name} line ${header.line}: the header lacks the column(s) ${missing.map((c) => `"${c}"`).join(', ')} (found: ${columns.join(',')})`,
+        {
+          file: absolute,
+          key,
+          hint: `the header must be "${expected}"${optional.length ? ` (optional: ${optional.join(', ')})` : ''}`,
+        },
+      );
     }
     const ignored = columns.filter((column) => !required.includes(column) && !optional.includes(column));
     if (ignored.length) this.warn(`${name}: column(s) ${ignored.map((c) => `"${c}"`).join(', ')} ignored`);
@@ -956,7 +1078,11 @@ class Loader {
       if (id === '') throw inputError(`${name} line ${record.line}: the id is empty`, { file: absolute, key });
       const earlier = firstLine.get(id);
       if (earlier !== undefined) {
-        throw inputError(`${name} line ${record.line}: duplicate id "${id}" (also on line ${earlier})`, { file: absolute, key, hint: 'ids must be unique within a list' });
+        throw inputError(`${name} line ${record.line}: duplicate id "${id}" (also on line ${earlier})`, {
+          file: absolute,
+          key,
+          hint: 'ids must be unique within a list',
+        });
       }
       firstLine.set(id, record.line);
       result.push({ source: `${given} line ${record.line}`, file: absolute, values });
@@ -1019,7 +1145,12 @@ function csvNumber(record: PointRecord, column: string): number {
 
 /** A PiezomapError with the file and scenario key at fault added to its detail (other throws pass unchanged). */
 function withPlace(thrown: unknown, file: string, key: string): unknown {
-  if (thrown instanceof PiezomapError) return new PiezomapError(thrown.code, thrown.message, { ...thrown.detail, file: thrown.detail.file ?? file, key: thrown.detail.key ?? key });
+  if (thrown instanceof PiezomapError)
+    return new PiezomapError(thrown.code, thrown.message, {
+      ...thrown.detail,
+      file: thrown.detail.file ?? file,
+      key: thrown.detail.key ?? key,
+    });
   return thrown;
 }
 

@@ -53,10 +53,13 @@ export async function loadHeadDependent(
     const source = `headDependent[${index}]`;
     const earlier = names.get(entry.name);
     if (earlier !== undefined || RESERVED.has(entry.name)) {
-      throw inputError(`${loader.label}: ${source}.name: "${entry.name}" is already ${earlier ? `the name of ${earlier}` : 'a budget term'}`, {
-        key: `${source}.name`,
-        hint: 'each entry names one term of the water budget: give it a name of its own',
-      });
+      throw inputError(
+        `${loader.label}: ${source}.name: "${entry.name}" is already ${earlier ? `the name of ${earlier}` : 'a budget term'}`,
+        {
+          key: `${source}.name`,
+          hint: 'each entry names one term of the water budget: give it a name of its own',
+        },
+      );
     }
     names.set(entry.name, source);
     const resolved = await resolveEntry(loader, entry, source, reference);
@@ -66,7 +69,12 @@ export async function loadHeadDependent(
   return out;
 }
 
-async function resolveEntry(loader: ExchangeLoader, entry: HeadDependentEntry, source: string, reference: RasterData): Promise<HeadDependentInput> {
+async function resolveEntry(
+  loader: ExchangeLoader,
+  entry: HeadDependentEntry,
+  source: string,
+  reference: RasterData,
+): Promise<HeadDependentInput> {
   const grid = reference.grid;
   const base = { name: entry.name, kind: entry.kind, source } as const;
   let cells: Int32Array;
@@ -107,10 +115,13 @@ async function resolveEntry(loader: ExchangeLoader, entry: HeadDependentEntry, s
       where,
     );
     if (byLeakance && shapes.hasLines && entry.width === undefined) {
-      throw inputError(`${loader.label}: ${source}: "${entry.shape}" has lines, so "leakance" needs "width" (the wetted width of the bed)`, {
-        key: `${source}.width`,
-        hint: 'conductance of a line cell = leakance x length in the cell x width',
-      });
+      throw inputError(
+        `${loader.label}: ${source}: "${entry.shape}" has lines, so "leakance" needs "width" (the wetted width of the bed)`,
+        {
+          key: `${source}.width`,
+          hint: 'conductance of a line cell = leakance x length in the cell x width',
+        },
+      );
     }
     loader.warnOutside(where, shapes.outside, collection.features.length, 'the entry exchanges no water');
     cells = shapes.cells;
@@ -134,11 +145,14 @@ async function resolveEntry(loader: ExchangeLoader, entry: HeadDependentEntry, s
     for (let k = 0; k < cells.length; k++) {
       const c = values[cells[k]!]!;
       if (!(Number.isFinite(c) && c >= 0)) {
-        throw inputError(`${loader.label}: ${key} "${entry.conductance}": ${c < 0 ? `negative conductance ${Number(c.toPrecision(6))}` : 'no conductance'} at ${cellText(grid, cells[k]!)}, a cell of "${entry.name}"`, {
-          key,
-          cell: { row: Math.floor(cells[k]! / grid.nx), col: cells[k]! % grid.nx },
-          hint: 'a conductance is >= 0 (length²/time) on every cell of the entry',
-        });
+        throw inputError(
+          `${loader.label}: ${key} "${entry.conductance}": ${c < 0 ? `negative conductance ${Number(c.toPrecision(6))}` : 'no conductance'} at ${cellText(grid, cells[k]!)}, a cell of "${entry.name}"`,
+          {
+            key,
+            cell: { row: Math.floor(cells[k]! / grid.nx), col: cells[k]! % grid.nx },
+            hint: 'a conductance is >= 0 (length²/time) on every cell of the entry',
+          },
+        );
       }
       conductance[k] = c;
     }
@@ -161,11 +175,14 @@ async function resolveEntry(loader: ExchangeLoader, entry: HeadDependentEntry, s
 function checkMagnitude(loader: ExchangeLoader, key: string, what: string, value: number, grid: Grid, p: number, head: boolean): void {
   const bad = head ? Math.abs(value) > HEAD_LIMIT : value !== 0 && !(value >= CARRIED_RANGE.min && value <= CARRIED_RANGE.max);
   if (!bad) return;
-  throw inputError(`${loader.label}: ${key}: ${what} ${value.toExponential(3)} at ${cellText(grid, p)} ${head ? 'exceeds 1e15' : 'lies outside 1e-100 to 1e100'}, the range the flow arithmetic carries`, {
-    key,
-    cell: { row: Math.floor(p / grid.nx), col: p % grid.nx },
-    hint: 'check the units and the nodata value',
-  });
+  throw inputError(
+    `${loader.label}: ${key}: ${what} ${value.toExponential(3)} at ${cellText(grid, p)} ${head ? 'exceeds 1e15' : 'lies outside 1e-100 to 1e100'}, the range the flow arithmetic carries`,
+    {
+      key,
+      cell: { row: Math.floor(p / grid.nx), col: p % grid.nx },
+      hint: 'check the units and the nodata value',
+    },
+  );
 }
 
 /** The warnings of an entry: perched river reaches, drains below the aquifer bottom. */
@@ -202,7 +219,9 @@ function checkEntry(loader: ExchangeLoader, entry: HeadDependentInput, grid: Gri
       }
     }
     if (below > 0) {
-      loader.warn(`${entry.source} ("${entry.name}"): the drain level lies below aquifer.bottom at ${below} cell(s) (first at ${cellText(grid, first)}): check the levels`);
+      loader.warn(
+        `${entry.source} ("${entry.name}"): the drain level lies below aquifer.bottom at ${below} cell(s) (first at ${cellText(grid, first)}): check the levels`,
+      );
     }
   }
 }
@@ -241,11 +260,14 @@ export async function loadLeakage(
     if (key === 'leakance') {
       for (let p = 0; p < values.length; p++) {
         if (values[p]! < 0) {
-          throw inputError(`${loader.label}: leakage.leakance "${given}": negative leakance ${Number(values[p]!.toPrecision(6))} at ${cellText(reference.grid, p)}`, {
-            key: 'leakage.leakance',
-            cell: { row: Math.floor(p / reference.grid.nx), col: p % reference.grid.nx },
-            hint: 'a leakance K\'/b\' is >= 0 (1/time); use nodata where there is no leakage',
-          });
+          throw inputError(
+            `${loader.label}: leakage.leakance "${given}": negative leakance ${Number(values[p]!.toPrecision(6))} at ${cellText(reference.grid, p)}`,
+            {
+              key: 'leakage.leakance',
+              cell: { row: Math.floor(p / reference.grid.nx), col: p % reference.grid.nx },
+              hint: "a leakance K'/b' is >= 0 (1/time); use nodata where there is no leakage",
+            },
+          );
         }
       }
     }
@@ -282,7 +304,14 @@ export function exchangeDifference(
   for (let i = 0; i < x.length; i++) {
     const p = x[i]!;
     const q = y[i]!;
-    if (p.name !== q.name || p.kind !== q.kind || !same(p.cells, q.cells) || !same(p.heads, q.heads) || !same(p.conductance, q.conductance) || !same(p.bottom, q.bottom)) {
+    if (
+      p.name !== q.name ||
+      p.kind !== q.kind ||
+      !same(p.cells, q.cells) ||
+      !same(p.heads, q.heads) ||
+      !same(p.conductance, q.conductance) ||
+      !same(p.bottom, q.bottom)
+    ) {
       return 'headDependent differs';
     }
   }
@@ -292,4 +321,3 @@ export function exchangeDifference(
   if (la && lb && (la.name !== lb.name || !same(la.sourceHead, lb.sourceHead) || !same(la.leakance, lb.leakance))) return 'leakage differs';
   return null;
 }
-

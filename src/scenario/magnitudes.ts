@@ -127,36 +127,48 @@ export function checkMagnitudes(model: ModelInput, label: string, paths: Magnitu
   const rechargeOutside = (r: number) => Math.abs(r) > CARRIED_RANGE.max || Math.abs(r * area) > CARRIED_RANGE.max;
   if (typeof recharge === 'number') {
     if (rechargeOutside(recharge)) {
-      throw inputError(`${label}: recharge ${show(recharge)} (${show(recharge * area)} per cell) exceeds ${MAX_TEXT}, the magnitude the flow arithmetic carries`, {
-        key: 'recharge',
-        hint: 'recharge is a rate in length/time, e.g. 0.0005 m/d',
-      });
+      throw inputError(
+        `${label}: recharge ${show(recharge)} (${show(recharge * area)} per cell) exceeds ${MAX_TEXT}, the magnitude the flow arithmetic carries`,
+        {
+          key: 'recharge',
+          hint: 'recharge is a rate in length/time, e.g. 0.0005 m/d',
+        },
+      );
     }
   } else {
     for (let p = 0; p < recharge.length; p++) {
       if (rechargeOutside(recharge[p]!)) {
         const cell = cellOf(p, nx);
-        throw inputError(`${label}: ${rechargeKey}: ${show(recharge[p]!)} at row ${cell.row}, col ${cell.col} exceeds ${MAX_TEXT} (per cell area), the magnitude the flow arithmetic carries`, {
-          key: 'recharge',
-          cell,
-          hint: UNITS_HINT,
-        });
+        throw inputError(
+          `${label}: ${rechargeKey}: ${show(recharge[p]!)} at row ${cell.row}, col ${cell.col} exceeds ${MAX_TEXT} (per cell area), the magnitude the flow arithmetic carries`,
+          {
+            key: 'recharge',
+            cell,
+            hint: UNITS_HINT,
+          },
+        );
       }
     }
   }
 
   for (const well of model.wells) {
     if (Math.abs(well.rate) > CARRIED_RANGE.max) {
-      throw inputError(`${label}: well "${well.id}" (${well.source}): rate ${show(well.rate)} exceeds ${MAX_TEXT}, the magnitude the flow arithmetic carries`, {
-        key: well.source,
-        hint: 'rates are in length^3/time, e.g. -500 m3/d',
-      });
+      throw inputError(
+        `${label}: well "${well.id}" (${well.source}): rate ${show(well.rate)} exceeds ${MAX_TEXT}, the magnitude the flow arithmetic carries`,
+        {
+          key: well.source,
+          hint: 'rates are in length^3/time, e.g. -500 m3/d',
+        },
+      );
     }
     if (well.minimumHead !== undefined && Math.abs(well.minimumHead) > HEAD_LIMIT) {
-      throw inputError(`${label}: well "${well.id}" (${well.source}): minimumHead ${show(well.minimumHead)} exceeds ${HEAD_TEXT} in magnitude`, {
-        key: well.source,
-        hint: headHint(),
-      });
+      throw inputError(
+        `${label}: well "${well.id}" (${well.source}): minimumHead ${show(well.minimumHead)} exceeds ${HEAD_TEXT} in magnitude`,
+        {
+          key: well.source,
+          hint: headHint(),
+        },
+      );
     }
   }
 
@@ -176,10 +188,13 @@ export function checkMagnitudes(model: ModelInput, label: string, paths: Magnitu
   }
   for (const observation of model.observations) {
     if (Math.abs(observation.head) > HEAD_LIMIT) {
-      throw inputError(`${label}: observation "${observation.id}" (${observation.source}): head ${show(observation.head)} exceeds ${HEAD_TEXT} in magnitude`, {
-        key: observation.source,
-        hint: headHint(),
-      });
+      throw inputError(
+        `${label}: observation "${observation.id}" (${observation.source}): head ${show(observation.head)} exceeds ${HEAD_TEXT} in magnitude`,
+        {
+          key: observation.source,
+          hint: headHint(),
+        },
+      );
     }
   }
   for (const [key, field] of [

@@ -25,4 +25,3 @@ export function wellLayers(wells: ScenarioJson['wells']): WellLayer[] {
   if (typeof wells === 'string' || Array.isArray(wells)) return [{ source: 'wells', wells }];
   return wells.layers;
 }
-

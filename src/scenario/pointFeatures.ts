@@ -35,7 +35,13 @@ function isObject(value: unknown): value is Record<string, unknown> {
 }
 
 function kindOf(value: unknown): string {
-  return Array.isArray(value) ? 'a list' : value === null ? 'null' : typeof value === 'object' ? 'an object' : `${typeof value} ${JSON.stringify(value)}`;
+  return Array.isArray(value)
+    ? 'a list'
+    : value === null
+      ? 'null'
+      : typeof value === 'object'
+        ? 'an object'
+        : `${typeof value} ${JSON.stringify(value)}`;
 }
 
 /** The EPSG code of a legacy `crs` member, 4326 without one. */
@@ -63,20 +69,34 @@ export function readPointFeatures(json: unknown, label: string, what: string): P
   } else if (json.type === 'Feature') {
     list = [json];
   } else {
-    throw inputError(`${label}: "type" is ${JSON.stringify(json.type) ?? 'missing'}, not a GeoJSON FeatureCollection or Feature`, { hint: HINT });
+    throw inputError(`${label}: "type" is ${JSON.stringify(json.type) ?? 'missing'}, not a GeoJSON FeatureCollection or Feature`, {
+      hint: HINT,
+    });
   }
   const features: PointFeature[] = [];
   const firstIndex = new Map<string, number>();
   list.forEach((feature, index) => {
     const where = `${label} feature ${index}`;
-    if (!isObject(feature) || feature.type !== 'Feature') throw inputError(`${where}: not a GeoJSON Feature (found ${kindOf(feature)})`, { hint: HINT });
+    if (!isObject(feature) || feature.type !== 'Feature')
+      throw inputError(`${where}: not a GeoJSON Feature (found ${kindOf(feature)})`, { hint: HINT });
     const geometry = feature.geometry;
     if (!isObject(geometry)) throw inputError(`${where}: has no geometry`, { hint: `each ${what} needs a Point geometry` });
     let position: unknown;
     if (geometry.type === 'Point') position = geometry.coordinates;
-    else if (geometry.type === 'MultiPoint' && Array.isArray(geometry.coordinates) && geometry.coordinates.length === 1) position = geometry.coordinates[0];
-    else throw inputError(`${where}: geometry is ${JSON.stringify(geometry.type)}, not a Point`, { hint: `each ${what} is one Point feature` });
-    if (!Array.isArray(position) || position.length < 2 || typeof position[0] !== 'number' || typeof position[1] !== 'number' || !Number.isFinite(position[0]) || !Number.isFinite(position[1])) {
+    else if (geometry.type === 'MultiPoint' && Array.isArray(geometry.coordinates) && geometry.coordinates.length === 1)
+      position = geometry.coordinates[0];
+    else
+      throw inputError(`${where}: geometry is ${JSON.stringify(geometry.type)}, not a Point`, {
+        hint: `each ${what} is one Point feature`,
+      });
+    if (
+      !Array.isArray(position) ||
+      position.length < 2 ||
+      typeof position[0] !== 'number' ||
+      typeof position[1] !== 'number' ||
+      !Number.isFinite(position[0]) ||
+      !Number.isFinite(position[1])
+    ) {
       throw inputError(`${where}: coordinates ${JSON.stringify(position)} are not [longitude, latitude] numbers`, { hint: HINT });
     }
     const [x, y] = position as [number, number];
@@ -90,7 +110,8 @@ export function readPointFeatures(json: unknown, label: string, what: string): P
     const id = typeof rawId === 'number' && Number.isInteger(rawId) ? String(rawId) : typeof rawId === 'string' ? rawId.trim() : '';
     if (id === '') throw inputError(`${where}: has no id (a text "id" property)`, { hint: `each ${what} needs an id` });
     const earlier = firstIndex.get(id);
-    if (earlier !== undefined) throw inputError(`${where}: duplicate ${what} id "${id}" (also feature ${earlier})`, { hint: 'ids must be unique within a list' });
+    if (earlier !== undefined)
+      throw inputError(`${where}: duplicate ${what} id "${id}" (also feature ${earlier})`, { hint: 'ids must be unique within a list' });
     firstIndex.set(id, index);
     features.push({ index, id, x, y, properties });
   });

@@ -98,16 +98,27 @@ export const aquiferSchema = strict({
   // Which keys each type needs: ../shared/spec/interface.md ("Extensions").
   const type = aquifer.type ?? 'confined';
   if (type === 'confined') {
-    if (aquifer.thickness === undefined) ctx.addIssue({ code: 'custom', path: ['thickness'], message: 'is required for a confined aquifer (type "confined", the default)' });
-    if (aquifer.initialHead !== undefined) ctx.addIssue({ code: 'custom', path: ['initialHead'], message: 'applies only to unconfined and convertible aquifers (a confined solve needs no starting heads)' });
+    if (aquifer.thickness === undefined)
+      ctx.addIssue({ code: 'custom', path: ['thickness'], message: 'is required for a confined aquifer (type "confined", the default)' });
+    if (aquifer.initialHead !== undefined)
+      ctx.addIssue({
+        code: 'custom',
+        path: ['initialHead'],
+        message: 'applies only to unconfined and convertible aquifers (a confined solve needs no starting heads)',
+      });
     return;
   }
   const an = type === 'unconfined' ? 'an' : 'a';
   if (aquifer.thickness !== undefined) {
-    ctx.addIssue({ code: 'custom', path: ['thickness'], message: `must not be given for ${an} ${type} aquifer: its saturated thickness comes from the heads, top and bottom` });
+    ctx.addIssue({
+      code: 'custom',
+      path: ['thickness'],
+      message: `must not be given for ${an} ${type} aquifer: its saturated thickness comes from the heads, top and bottom`,
+    });
   }
   if (aquifer.bottom === undefined) ctx.addIssue({ code: 'custom', path: ['bottom'], message: `is required for ${an} ${type} aquifer` });
-  if (type === 'convertible' && aquifer.top === undefined) ctx.addIssue({ code: 'custom', path: ['top'], message: 'is required for a convertible aquifer' });
+  if (type === 'convertible' && aquifer.top === undefined)
+    ctx.addIssue({ code: 'custom', path: ['top'], message: 'is required for a convertible aquifer' });
 });
 
 export const edgeNames = ['west', 'east', 'north', 'south'] as const;
@@ -170,7 +181,10 @@ export const headDependentSchema = strict({
   shape: filePath.optional(),
   head: finite.optional(),
   headProperty: nonEmpty.optional(),
-  conductance: numberOrPath(finite.gte(0, { error: 'a conductance cannot be negative' }), 'a conductance >= 0 (length²/time per cell) or the path of a GeoTIFF').optional(),
+  conductance: numberOrPath(
+    finite.gte(0, { error: 'a conductance cannot be negative' }),
+    'a conductance >= 0 (length²/time per cell) or the path of a GeoTIFF',
+  ).optional(),
   leakance: finite.gte(0, { error: 'a leakance cannot be negative' }).optional(),
   width: finite.gt(0).optional(),
   bottom: numberOrPath(finite, 'a bed-bottom elevation or the path of a GeoTIFF').optional(),
@@ -181,18 +195,30 @@ export const headDependentSchema = strict({
     ctx.addIssue({
       code: 'custom',
       path: places.length ? [places[1]!] : [],
-      message: places.length ? `give one of "raster", "edge" or "shape", not ${places.map((k) => `"${k}"`).join(' and ')}` : 'needs a location: "raster" (stages or levels), "edge" with "head", or "shape" with "head" or "headProperty"',
+      message: places.length
+        ? `give one of "raster", "edge" or "shape", not ${places.map((k) => `"${k}"`).join(' and ')}`
+        : 'needs a location: "raster" (stages or levels), "edge" with "head", or "shape" with "head" or "headProperty"',
     });
     return;
   }
   const place = places[0]!;
   if (place === 'raster' && (entry.head !== undefined || entry.headProperty !== undefined)) {
-    ctx.addIssue({ code: 'custom', path: [entry.head !== undefined ? 'head' : 'headProperty'], message: 'a raster entry takes its stages or levels from the raster; remove this key' });
+    ctx.addIssue({
+      code: 'custom',
+      path: [entry.head !== undefined ? 'head' : 'headProperty'],
+      message: 'a raster entry takes its stages or levels from the raster; remove this key',
+    });
   }
-  if (place === 'edge' && entry.head === undefined) ctx.addIssue({ code: 'custom', path: ['head'], message: 'an edge needs "head" (its stage or level)' });
-  if (place === 'edge' && entry.headProperty !== undefined) ctx.addIssue({ code: 'custom', path: ['headProperty'], message: '"headProperty" is for shapes only' });
+  if (place === 'edge' && entry.head === undefined)
+    ctx.addIssue({ code: 'custom', path: ['head'], message: 'an edge needs "head" (its stage or level)' });
+  if (place === 'edge' && entry.headProperty !== undefined)
+    ctx.addIssue({ code: 'custom', path: ['headProperty'], message: '"headProperty" is for shapes only' });
   if (place === 'shape' && (entry.head === undefined) === (entry.headProperty === undefined)) {
-    ctx.addIssue({ code: 'custom', path: [entry.head === undefined ? 'head' : 'headProperty'], message: 'a shape needs "head" or "headProperty", not both and not neither' });
+    ctx.addIssue({
+      code: 'custom',
+      path: [entry.head === undefined ? 'head' : 'headProperty'],
+      message: 'a shape needs "head" or "headProperty", not both and not neither',
+    });
   }
   if (place !== 'shape' && (entry.leakance !== undefined || entry.width !== undefined || entry.bottomProperty !== undefined)) {
     const key = entry.leakance !== undefined ? 'leakance' : entry.width !== undefined ? 'width' : 'bottomProperty';
@@ -202,13 +228,21 @@ export const headDependentSchema = strict({
     ctx.addIssue({
       code: 'custom',
       path: [entry.conductance === undefined ? 'conductance' : 'leakance'],
-      message: entry.conductance === undefined ? 'needs "conductance" (length²/time per cell), or for a shape "leakance" (1/time)' : 'give either "conductance" or "leakance", not both',
+      message:
+        entry.conductance === undefined
+          ? 'needs "conductance" (length²/time per cell), or for a shape "leakance" (1/time)'
+          : 'give either "conductance" or "leakance", not both',
     });
   }
   if (entry.kind !== 'river' && (entry.bottom !== undefined || entry.bottomProperty !== undefined)) {
-    ctx.addIssue({ code: 'custom', path: [entry.bottom !== undefined ? 'bottom' : 'bottomProperty'], message: `only a river has a bed bottom (this entry is a ${entry.kind})` });
+    ctx.addIssue({
+      code: 'custom',
+      path: [entry.bottom !== undefined ? 'bottom' : 'bottomProperty'],
+      message: `only a river has a bed bottom (this entry is a ${entry.kind})`,
+    });
   }
-  if (entry.bottom !== undefined && entry.bottomProperty !== undefined) ctx.addIssue({ code: 'custom', path: ['bottomProperty'], message: 'give either "bottom" or "bottomProperty", not both' });
+  if (entry.bottom !== undefined && entry.bottomProperty !== undefined)
+    ctx.addIssue({ code: 'custom', path: ['bottomProperty'], message: 'give either "bottom" or "bottomProperty", not both' });
 });
 
 /** Areal leakage through a confining bed: Q = L·A·(Hs - h). */
@@ -250,7 +284,10 @@ export const receptorSchema = strict({
   id: identifier,
   x: finite,
   y: finite,
-  crs: z.string().regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' }).optional(),
+  crs: z
+    .string()
+    .regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' })
+    .optional(),
 });
 
 export const solverSchema = strict({
@@ -284,7 +321,8 @@ export const trackingSchema = strict({
       const seen = new Map<string, number>();
       entries.forEach((item, index) => {
         const first = seen.get(item.id);
-        if (first !== undefined) ctx.addIssue({ code: 'custom', path: [index, 'id'], message: `duplicate tracking point id "${item.id}" (also at [${first}])` });
+        if (first !== undefined)
+          ctx.addIssue({ code: 'custom', path: [index, 'id'], message: `duplicate tracking point id "${item.id}" (also at [${first}])` });
         else seen.set(item.id, index);
       });
     })
@@ -292,9 +330,7 @@ export const trackingSchema = strict({
   maxTime: finite.gt(0, { error: 'must be a time limit > 0 (time units)' }).optional(),
 });
 
-export const pointCrsSchema = z
-  .string()
-  .regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' });
+export const pointCrsSchema = z.string().regex(/^\s*EPSG\s*:\s*\d{3,6}\s*$/i, { error: 'must be an EPSG code such as "EPSG:4326"' });
 
 /**
  * Marks a `fixedHeads: []` beside head-dependent boundaries or leakage, which may hold the level instead
@@ -313,8 +349,12 @@ function markOtherAnchors(value: unknown): unknown {
 /** The fixed-head list: at least one entry, unless marked by markOtherAnchors. */
 function fixedHeadList() {
   const list = z.array(fixedHeadSchema);
-  const nonEmpty = list.min(1, { error: 'needs at least one entry: without a fixed head (or a head-dependent boundary or leakage) the head is undetermined' });
-  return dispatch<FixedHeadEntry[]>('a list of fixed-head entries', (value) => (Array.isArray(value) && OTHER_ANCHORS in value ? list : nonEmpty));
+  const nonEmpty = list.min(1, {
+    error: 'needs at least one entry: without a fixed head (or a head-dependent boundary or leakage) the head is undetermined',
+  });
+  return dispatch<FixedHeadEntry[]>('a list of fixed-head entries', (value) =>
+    Array.isArray(value) && OTHER_ANCHORS in value ? list : nonEmpty,
+  );
 }
 
 /** Uncertainty ensembles (`piezomap ensemble`): realisations of ln K multiplying the conductivity raster. Baseline only. */
@@ -350,37 +390,47 @@ const replaceableFields = {
   tracking: trackingSchema.optional(),
 };
 
-export const variantSchema = z.preprocess(markOtherAnchors, strict({
-  name: z
-    .string()
-    .regex(/^[A-Za-z0-9_-]+$/, { error: 'must use only letters, digits, "-" and "_" (it names a result folder)' })
-    .refine((name) => name.toLowerCase() !== 'baseline', { error: '"baseline" is reserved for the scenario itself' }),
-  ...replaceableFields,
-  wells: listOrCsv(wellChangeSchema, 'well').optional(),
-}));
+export const variantSchema = z.preprocess(
+  markOtherAnchors,
+  strict({
+    name: z
+      .string()
+      .regex(/^[A-Za-z0-9_-]+$/, { error: 'must use only letters, digits, "-" and "_" (it names a result folder)' })
+      .refine((name) => name.toLowerCase() !== 'baseline', { error: '"baseline" is reserved for the scenario itself' }),
+    ...replaceableFields,
+    wells: listOrCsv(wellChangeSchema, 'well').optional(),
+  }),
+);
 
-export const scenarioSchema = z.preprocess(markOtherAnchors, strict({
-  ...replaceableFields,
-  aquifer: aquiferSchema,
-  fixedHeads: fixedHeadList(),
-  ensemble: ensembleSchema.optional(),
-  variants: z
-    .array(variantSchema)
-    .superRefine((variants, ctx) => {
-      const seen = new Map<string, number>();
-      variants.forEach((variant, index) => {
-        // Folder names: compare without case so that "Wet" and "wet" cannot overwrite each other on any file system.
-        const key = variant.name.toLowerCase();
-        const first = seen.get(key);
-        if (first !== undefined) {
-          ctx.addIssue({ code: 'custom', path: [index, 'name'], message: `duplicate variant name "${variant.name}" (also variants[${first}])` });
-        } else {
-          seen.set(key, index);
-        }
-      });
-    })
-    .optional(),
-}));
+export const scenarioSchema = z.preprocess(
+  markOtherAnchors,
+  strict({
+    ...replaceableFields,
+    aquifer: aquiferSchema,
+    fixedHeads: fixedHeadList(),
+    ensemble: ensembleSchema.optional(),
+    variants: z
+      .array(variantSchema)
+      .superRefine((variants, ctx) => {
+        const seen = new Map<string, number>();
+        variants.forEach((variant, index) => {
+          // Folder names: compare without case so that "Wet" and "wet" cannot overwrite each other on any file system.
+          const key = variant.name.toLowerCase();
+          const first = seen.get(key);
+          if (first !== undefined) {
+            ctx.addIssue({
+              code: 'custom',
+              path: [index, 'name'],
+              message: `duplicate variant name "${variant.name}" (also variants[${first}])`,
+            });
+          } else {
+            seen.set(key, index);
+          }
+        });
+      })
+      .optional(),
+  }),
+);
 
 export type Units = z.output<typeof unitsSchema>;
 export type AquiferJson = z.output<typeof aquiferSchema>;

@@ -163,7 +163,17 @@ class PieceList {
  * distance. Boundaries are recomputed from u0, v0 at every step (no accumulated t increments), so long segments do
  * not drift.
  */
-function traverseSegment(u0: number, v0: number, du: number, dv: number, nx: number, ny: number, start: number, length: number, out: PieceList): void {
+function traverseSegment(
+  u0: number,
+  v0: number,
+  du: number,
+  dv: number,
+  nx: number,
+  ny: number,
+  start: number,
+  length: number,
+  out: PieceList,
+): void {
   // Liang-Barsky clip against [0, nx] x [0, ny]: boundary i has p_i t <= q_i.
   let tIn = 0;
   let tOut = 1;
@@ -340,7 +350,10 @@ export function markShapeCells(grid: Grid, collection: ShapeCollection, mask: Ui
     let touched = 0;
     const parts = feature.geometry.type === 'polygon' ? feature.geometry.polygons : feature.geometry.lines;
     for (const part of parts) {
-      const cells = feature.geometry.type === 'polygon' ? rasterisePolygon(grid, part as Float64Array[]) : rasteriseLine(grid, part as Float64Array).cells;
+      const cells =
+        feature.geometry.type === 'polygon'
+          ? rasterisePolygon(grid, part as Float64Array[])
+          : rasteriseLine(grid, part as Float64Array).cells;
       for (let k = 0; k < cells.length; k++) mask[cells[k]!] = 1;
       touched += cells.length;
     }
@@ -357,9 +370,12 @@ export function checkLineLengths(collection: ShapeCollection, where: string): vo
       let length = 0;
       for (let k = 2; k < line.length; k += 2) length += Math.hypot(line[k]! - line[k - 2]!, line[k + 1]! - line[k - 1]!);
       if (!(length > 0)) {
-        throw inputError(`${where} ${feature.label}: ${feature.geometry.type === 'line' && feature.geometry.lines.length > 1 ? `line ${i}` : 'the line'} has zero length (all its vertices are at one place)`, {
-          hint: 'a line needs two different vertices; for a single place use a small polygon',
-        });
+        throw inputError(
+          `${where} ${feature.label}: ${feature.geometry.type === 'line' && feature.geometry.lines.length > 1 ? `line ${i}` : 'the line'} has zero length (all its vertices are at one place)`,
+          {
+            hint: 'a line needs two different vertices; for a single place use a small polygon',
+          },
+        );
       }
     });
   }

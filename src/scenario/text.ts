@@ -174,8 +174,14 @@ class JsonScanner {
       this.depth--;
       return;
     }
-    if (ch === '"') return this.string();
-    if (ch === '-' || (ch >= '0' && ch <= '9')) return this.number();
+    if (ch === '"') {
+      this.string();
+      return;
+    }
+    if (ch === '-' || (ch >= '0' && ch <= '9')) {
+      this.number();
+      return;
+    }
     if (ch === "'") this.stop('strings need double quotes ("), not single quotes');
     for (const word of ['true', 'false', 'null']) {
       if (this.text.startsWith(word, this.i)) {
@@ -275,13 +281,13 @@ class JsonScanner {
       }
       if (code < 0x20) this.stop('line break or control character inside a string (missing closing "?)');
       if (code === 0x5c) {
-        const escape = this.text[this.i + 1];
-        if (escape === 'u') {
+        const escaped = this.text[this.i + 1];
+        if (escaped === 'u') {
           if (!/^[0-9a-fA-F]{4}$/.test(this.text.slice(this.i + 2, this.i + 6))) this.stop('bad \\u escape (needs 4 hex digits)');
           this.i += 6;
           continue;
         }
-        if (escape === undefined || !'"\\/bfnrt'.includes(escape)) {
+        if (escaped === undefined || !'"\\/bfnrt'.includes(escaped)) {
           this.stop('bad escape in a string (write a backslash as \\\\, e.g. in Windows paths, or use /)');
         }
         this.i += 2;

@@ -53,12 +53,7 @@ export function applyDot(a: Bands, x: Float64Array, out: Float64Array): number {
   }
   const interiorEnd = n - nx;
   for (let p = nx; p < interiorEnd; p++) {
-    const v =
-      diag[p]! * x[p]! -
-      east[p - 1]! * x[p - 1]! -
-      east[p]! * x[p + 1]! -
-      south[p - nx]! * x[p - nx]! -
-      south[p]! * x[p + nx]!;
+    const v = diag[p]! * x[p]! - east[p - 1]! * x[p - 1]! - east[p]! * x[p + 1]! - south[p - nx]! * x[p - nx]! - south[p]! * x[p + nx]!;
     out[p] = v;
     s += v * x[p]!;
   }
@@ -84,12 +79,7 @@ export function residual(a: Bands, b: Float64Array, x: Float64Array, r: Float64A
   const interiorEnd = n - nx;
   for (let p = nx; p < interiorEnd; p++) {
     const v =
-      b[p]! -
-      diag[p]! * x[p]! +
-      east[p - 1]! * x[p - 1]! +
-      east[p]! * x[p + 1]! +
-      south[p - nx]! * x[p - nx]! +
-      south[p]! * x[p + nx]!;
+      b[p]! - diag[p]! * x[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!;
     r[p] = v;
     s += v * v;
   }
@@ -134,8 +124,7 @@ export function gaussSeidelSweep(
     }
     for (let p = nx; p < interiorEnd; p++) {
       const gs =
-        (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) *
-        invDiag[p]!;
+        (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * invDiag[p]!;
       x[p] = keep * x[p]! + omega * gs;
     }
     for (let p = Math.max(interiorEnd, nx); p < n; p++) {
@@ -147,8 +136,7 @@ export function gaussSeidelSweep(
     }
     for (let p = interiorEnd - 1; p >= nx; p--) {
       const gs =
-        (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) *
-        invDiag[p]!;
+        (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * invDiag[p]!;
       x[p] = keep * x[p]! + omega * gs;
     }
     for (let p = Math.min(nx, n) - 1; p >= 0; p--) {
@@ -161,14 +149,7 @@ export function gaussSeidelSweep(
  * One red–black SOR half-sweep in place: updates the cells with (row + col) % 2 === colour.
  * For the five-point stencil the two colours decouple, so the order within a colour does not matter.
  */
-export function redBlackSweep(
-  a: Bands,
-  invDiag: ArrayLike<number>,
-  b: Float64Array,
-  x: Float64Array,
-  colour: 0 | 1,
-  omega: number,
-): void {
+export function redBlackSweep(a: Bands, invDiag: ArrayLike<number>, b: Float64Array, x: Float64Array, colour: 0 | 1, omega: number): void {
   const { nx, ny, east, south } = a;
   const n = nx * ny;
   const keep = 1 - omega;
@@ -183,8 +164,7 @@ export function redBlackSweep(
     } else {
       for (let p = start; p < end; p += 2) {
         const gs =
-          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) *
-          invDiag[p]!;
+          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * invDiag[p]!;
         x[p] = keep * x[p]! + omega * gs;
       }
     }

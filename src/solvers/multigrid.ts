@@ -89,11 +89,7 @@ function makeLevel(nx: number, ny: number, diag: Coefficients, east: Coefficient
  * aggregate is strongly coupled inside and weakly outside. Only unknown children belong to an aggregate; an
  * aggregate without unknowns is an identity row.
  */
-function coarsen(
-  fine: Level,
-  unknown: Uint8Array,
-  excess: Float64Array,
-): { level: Level; unknown: Uint8Array; excess: Float64Array } {
+function coarsen(fine: Level, unknown: Uint8Array, excess: Float64Array): { level: Level; unknown: Uint8Array; excess: Float64Array } {
   const { nx, ny, east, south } = fine;
   const cx = (nx + 1) >> 1;
   const cy = (ny + 1) >> 1;
@@ -195,7 +191,21 @@ function finestLevels(
     }
   }
   const empty = new Float64Array(0);
-  const fine: Level = { nx, ny, n, diag: d32, east: e32, south: s32, invDiag: inv, rhs: empty, v1: empty, w1: empty, r2: empty, v2: empty, w2: empty };
+  const fine: Level = {
+    nx,
+    ny,
+    n,
+    diag: d32,
+    east: e32,
+    south: s32,
+    invDiag: inv,
+    rhs: empty,
+    v1: empty,
+    w1: empty,
+    r2: empty,
+    v2: empty,
+    w2: empty,
+  };
   if (!build) return { fine, coarse: null };
   return { fine, coarse: { level: coarseLevel(cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess } };
 }
@@ -363,8 +373,7 @@ function prolongAndSmooth(a: Level, e: Float64Array, b: Float64Array, x: Float64
     if (i > 0 && i < ny - 1) {
       for (let p = row + nx - 1; p >= row; p--) {
         x[p] =
-          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) *
-          invDiag[p]!;
+          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * invDiag[p]!;
       }
     } else {
       for (let p = row + nx - 1; p >= row; p--) {

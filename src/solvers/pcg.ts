@@ -60,7 +60,9 @@ export class PcgSolver implements Solver {
       const pq = applyDot(op, p, q);
       if (!(pq > 0) || !(rz > 0)) {
         stop = 'breakdown';
-        notes.push(`curvature p·Ap = ${pq.toExponential(3)} or r·z = ${rz.toExponential(3)} is not positive: operator or preconditioner not positive definite`);
+        notes.push(
+          `curvature p·Ap = ${pq.toExponential(3)} or r·z = ${rz.toExponential(3)} is not positive: operator or preconditioner not positive definite`,
+        );
         break;
       }
       const alpha = rz / pq;

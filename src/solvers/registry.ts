@@ -100,7 +100,7 @@ export function solverBytesPerCell(method: string): number {
     for (const entry of Object.values(solverRegistry)) most = Math.max(most, entry.bytesPerCell ?? DEFAULT_BYTES_PER_CELL);
     return most;
   }
-  const entry = Object.prototype.hasOwnProperty.call(solverRegistry, method) ? solverRegistry[method] : undefined;
+  const entry = Object.hasOwn(solverRegistry, method) ? solverRegistry[method] : undefined;
   return entry?.bytesPerCell ?? DEFAULT_BYTES_PER_CELL;
 }
 
@@ -122,7 +122,7 @@ export function solverMethodNames(): string[] {
 /** Builds the solver named `method` for `op` (setup work happens here); `auto` resolves via chooseAutoMethod. */
 export function createSolver(method: string, op: StencilOperator, config: SolverConfig = {}): Solver {
   const name = method === 'auto' ? chooseAutoMethod(op) : method;
-  const entry = Object.prototype.hasOwnProperty.call(solverRegistry, name) ? solverRegistry[name] : undefined;
+  const entry = Object.hasOwn(solverRegistry, name) ? solverRegistry[name] : undefined;
   if (!entry) {
     throw new PiezomapError('usage', `unknown solver method "${method}"`, {
       key: 'solver.method',

@@ -44,14 +44,7 @@ export interface VariablePreconditioner extends Preconditioner {
 }
 
 /** Why an iteration stopped. */
-export type StopReason =
-  | 'converged'
-  | 'iteration-limit'
-  | 'time-limit'
-  | 'breakdown'
-  | 'diverging'
-  | 'too-slow'
-  | 'interrupted';
+export type StopReason = 'converged' | 'iteration-limit' | 'time-limit' | 'breakdown' | 'diverging' | 'too-slow' | 'interrupted';
 
 export interface SolveOptions {
   /** Stop when ||b - A x|| <= absoluteTolerance + tolerance * ||b|| (2-norms). */

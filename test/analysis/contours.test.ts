@@ -46,19 +46,15 @@ function allPoints(set: ContourSet, level: number): Array<[number, number]> {
 describe('roundInterval', () => {
   it('picks 1, 2, 2.5 or 5 times a power of ten giving 10 to 25 levels (common practice for contour intervals)', () => {
     fc.assert(
-      fc.property(
-        fc.double({ min: -1e4, max: 1e4, noNaN: true }),
-        fc.double({ min: 1e-3, max: 1e4, noNaN: true }),
-        (min, range) => {
-          const max = min + range;
-          const interval = roundInterval(min, max)!;
-          const mantissa = interval / Math.pow(10, Math.floor(Math.log10(interval) + 1e-9));
-          expect([1, 2, 2.5, 5].some((m) => Math.abs(m - mantissa) < 1e-9)).toBe(true);
-          const count = contourLevels(min, max, interval).length;
-          expect(count).toBeGreaterThanOrEqual(10);
-          expect(count).toBeLessThanOrEqual(25);
-        },
-      ),
+      fc.property(fc.double({ min: -1e4, max: 1e4, noNaN: true }), fc.double({ min: 1e-3, max: 1e4, noNaN: true }), (min, range) => {
+        const max = min + range;
+        const interval = roundInterval(min, max)!;
+        const mantissa = interval / Math.pow(10, Math.floor(Math.log10(interval) + 1e-9));
+        expect([1, 2, 2.5, 5].some((m) => Math.abs(m - mantissa) < 1e-9)).toBe(true);
+        const count = contourLevels(min, max, interval).length;
+        expect(count).toBeGreaterThanOrEqual(10);
+        expect(count).toBeLessThanOrEqual(25);
+      }),
       { numRuns: 300 },
     );
   });
@@ -183,7 +179,9 @@ describe('contourField', () => {
     const set = contourField(grid, head, { levels });
 
     // Plain d3-contour smoothing, run on the same field, traces the hole's outline (the hazard we remove).
-    const raw = d3Contours().size([grid.nx, grid.ny]).contour(head as unknown as number[], 45);
+    const raw = d3Contours()
+      .size([grid.nx, grid.ny])
+      .contour(head as unknown as number[], 45);
     const rawXs = raw.coordinates.flat(2).map((p) => grid.transform[0] + p[0]! * grid.transform[1]);
     expect(rawXs.some((x) => Math.abs(x - (grid.transform[0] + (h0 - 45) / g)) > 1)).toBe(true);
 
@@ -274,7 +272,7 @@ describe('contoursToGeoJson', () => {
 
   it('keeps native coordinates when no transform is given and says which CRS they are in', () => {
     const collection = contoursToGeoJson(set, { quantity: 'head', units: 'm', crsLabel: 'EPSG:32633' });
-    expect(String(collection['coordinateSystem'])).toMatch(/EPSG:32633.*not RFC 7946/);
+    expect(String(collection.coordinateSystem)).toMatch(/EPSG:32633.*not RFC 7946/);
     const first = collection.features[0]!;
     const expectedX = grid.transform[0] + (h0 - first.properties.level) / g;
     for (const [x] of first.geometry.coordinates as number[][]) expect(x).toBeCloseTo(expectedX, 3);

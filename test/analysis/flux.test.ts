@@ -130,7 +130,10 @@ describe('faceFlows', () => {
     const grid = makeGrid(6, 5, 1, 1);
     const n = 30;
     let seed = 7;
-    const random = () => ((seed = (seed * 16807) % 2147483647) / 2147483647);
+    const random = () => {
+      seed = (seed * 16807) % 2147483647;
+      return seed / 2147483647;
+    };
     const head = new Float64Array(n).map(() => 10 * random());
     const east = new Float64Array(n).map((_, p) => ((p + 1) % 6 === 0 ? 0 : random()));
     const south = new Float64Array(n).map((_, p) => (p >= 24 ? 0 : random()));
@@ -152,7 +155,11 @@ describe('faceFlows', () => {
 
 describe('linearVelocity', () => {
   const grid = makeGrid(3, 1, 1, 1);
-  const flux = { qx: Float64Array.from([0.3, 0.6, NaN]), qy: Float64Array.from([0, 0.2, NaN]), magnitude: Float64Array.from([0.3, Math.hypot(0.6, 0.2), NaN]) };
+  const flux = {
+    qx: Float64Array.from([0.3, 0.6, NaN]),
+    qy: Float64Array.from([0, 0.2, NaN]),
+    magnitude: Float64Array.from([0.3, Math.hypot(0.6, 0.2), NaN]),
+  };
 
   it('divides the Darcy flux by the effective porosity, v = q / n_e (Freeze & Cherry 1979; from memory)', () => {
     const v = linearVelocity(grid, flux, 0.25);
@@ -165,7 +172,9 @@ describe('linearVelocity', () => {
   });
 
   it('rejects a porosity outside (0, 1] with an input error naming the key', () => {
-    expect(() => linearVelocity(grid, flux, 0)).toThrowError(expect.objectContaining({ code: 'input', detail: expect.objectContaining({ key: 'porosity' }) }));
+    expect(() => linearVelocity(grid, flux, 0)).toThrowError(
+      expect.objectContaining({ code: 'input', detail: expect.objectContaining({ key: 'porosity' }) }),
+    );
     expect(() => linearVelocity(grid, flux, 25)).toThrow(/porosity must lie in \(0, 1\]/);
     expect(() => linearVelocity(grid, flux, Float64Array.from([0.2, 1.5, 0.2]))).toThrow(/row 0, column 1/);
   });
@@ -213,7 +222,13 @@ describe('darcyFlux with the assembled system', () => {
     const system = assembleSystem(model);
     const budget = waterBudget(system, head);
     const westTerm = budget.terms.find((t) => t.term === 'west')!;
-    const flux = darcyFlux({ grid, head, eastConductance: system.conductanceEast, southConductance: system.conductanceSouth, thickness: 8 });
+    const flux = darcyFlux({
+      grid,
+      head,
+      eastConductance: system.conductanceEast,
+      southConductance: system.conductanceSouth,
+      thickness: 8,
+    });
     const darcy = kByRow.reduce((sum, k) => sum + k * 8 * 20 * (10 / ((nx - 1) * 50)), 0);
     expect(westTerm.inflow).toBeCloseTo(darcy, 9);
     for (let j = 1; j < nx - 1; j++) {

@@ -85,11 +85,17 @@ describe('sanity warnings', () => {
       writeFileSync(join(dir, 'small.tif'), encodeFloat32GeoTiff(testGrid(5, 3, 100), new Float64Array(15).fill(40)));
       const scenario = (aquifer: Record<string, unknown>, groundSurface?: string) => {
         const path = join(dir, 's.json');
-        writeFileSync(path, JSON.stringify({
-          aquifer: { conductivity: 'k.tif', thickness: 10, ...aquifer },
-          fixedHeads: [{ edge: 'west', head: 50 }, { edge: 'east', head: 45 }],
-          ...(groundSurface ? { groundSurface } : {}),
-        }));
+        writeFileSync(
+          path,
+          JSON.stringify({
+            aquifer: { conductivity: 'k.tif', thickness: 10, ...aquifer },
+            fixedHeads: [
+              { edge: 'west', head: 50 },
+              { edge: 'east', head: 45 },
+            ],
+            ...(groundSurface ? { groundSurface } : {}),
+          }),
+        );
         return path;
       };
       const { model } = await loadScenario(scenario({ top: 20, bottom: 'ground.tif' }, 'ground.tif'));
@@ -110,8 +116,15 @@ describe('input plausibility warnings', () => {
   // recharge below the greatest recorded annual rainfall, about 26.5 m, from memory; a well below 10 m3/s, from
   // memory; heads within the Earth's relief, about -11 km to +8.85 km, from memory). Units: 1 ft = 0.3048 m exactly.
   it('warns of a thickness above 10 km in the declared units (40 000 ft = 12.2 km; 30 000 ft = 9.1 km is not)', () => {
-    expect(matching(solveModel(strip({ units: { length: 'ft', time: 'd' }, thickness: 40000 })).warnings, /aquifer\.thickness: 40000\.00 ft .*aquifer thickness/)).toHaveLength(1);
-    expect(matching(solveModel(strip({ units: { length: 'ft', time: 'd' }, thickness: 30000 })).warnings, /aquifer\.thickness/)).toEqual([]);
+    expect(
+      matching(
+        solveModel(strip({ units: { length: 'ft', time: 'd' }, thickness: 40000 })).warnings,
+        /aquifer\.thickness: 40000\.00 ft .*aquifer thickness/,
+      ),
+    ).toHaveLength(1);
+    expect(matching(solveModel(strip({ units: { length: 'ft', time: 'd' }, thickness: 30000 })).warnings, /aquifer\.thickness/)).toEqual(
+      [],
+    );
   });
 
   it('warns of recharge above the greatest annual rainfall as a rate (0.1 m/d = 36.5 m/yr; 0.05 m/d = 18.3 m/yr is not)', () => {

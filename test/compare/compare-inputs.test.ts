@@ -47,7 +47,10 @@ describe('GeoJSON point lists', () => {
   it('reads wells from Point features in WGS 84 lon/lat, reprojected into the raster CRS, with rate, radius and minimumHead', async () => {
     write('wells.geojson', {
       type: 'FeatureCollection',
-      features: [point('PW-1', P1.lon, P1.lat, { rate: -250, radius: 0.15, minimumHead: 92, owner: 'ignored' }), point(7, P2.lon, P2.lat, { rate: -100 })],
+      features: [
+        point('PW-1', P1.lon, P1.lat, { rate: -250, radius: 0.15, minimumHead: 92, owner: 'ignored' }),
+        point(7, P2.lon, P2.lat, { rate: -100 }),
+      ],
     });
     const { model } = await loadScenario(write('geo.json', { ...base, wells: 'wells.geojson' }));
     expect(model.wells.map((w) => w.id)).toEqual(['PW-1', '7']);
@@ -61,7 +64,20 @@ describe('GeoJSON point lists', () => {
   it('merges a variant that changes a GeoJSON well by id without moving it (no second reprojection)', async () => {
     write('wells2.geojson', { type: 'FeatureCollection', features: [point('PW-1', P1.lon, P1.lat, { rate: -250 })] });
     const { model, raw } = await loadScenario(
-      write('geo-variant.json', { ...base, pointCrs: 'EPSG:4326', wells: 'wells2.geojson', variants: [{ name: 'more', wells: [{ id: 'PW-1', rate: -400 }, { id: 'PW-2', x: P2.lon, y: P2.lat, rate: -50 }] }] }),
+      write('geo-variant.json', {
+        ...base,
+        pointCrs: 'EPSG:4326',
+        wells: 'wells2.geojson',
+        variants: [
+          {
+            name: 'more',
+            wells: [
+              { id: 'PW-1', rate: -400 },
+              { id: 'PW-2', x: P2.lon, y: P2.lat, rate: -50 },
+            ],
+          },
+        ],
+      }),
     );
     const [variant] = await resolveVariants(model, raw);
     const [w1, w2] = variant!.model.wells;
@@ -75,12 +91,43 @@ describe('GeoJSON point lists', () => {
 
   it('names the bad feature by its index', async () => {
     const cases: Array<[unknown, RegExp]> = [
-      [{ type: 'FeatureCollection', features: [point('A', P1.lon, P1.lat, { rate: -1 }), { type: 'Feature', geometry: { type: 'LineString', coordinates: [[15, 45], [15.1, 45]] }, properties: { id: 'B' } }] }, /bad\.geojson feature 1: geometry is "LineString", not a Point/],
-      [{ type: 'FeatureCollection', features: [point('A', P1.lon, P1.lat, { rate: -1 }), point('A', P2.lon, P2.lat, { rate: -2 })] }, /bad\.geojson feature 1: duplicate well id "A" \(also feature 0\)/],
-      [{ type: 'FeatureCollection', features: [point('A', P1.lon, P1.lat, { rate: 'lots' })] }, /bad\.geojson feature 0 \(id "A"\): property "rate" is "lots", not a number/],
-      [{ type: 'FeatureCollection', features: [point('A', P1.x, P1.y, { rate: -1 })] }, /bad\.geojson feature 0: \[540833.*\] is not a WGS 84 longitude\/latitude/],
+      [
+        {
+          type: 'FeatureCollection',
+          features: [
+            point('A', P1.lon, P1.lat, { rate: -1 }),
+            {
+              type: 'Feature',
+              geometry: {
+                type: 'LineString',
+                coordinates: [
+                  [15, 45],
+                  [15.1, 45],
+                ],
+              },
+              properties: { id: 'B' },
+            },
+          ],
+        },
+        /bad\.geojson feature 1: geometry is "LineString", not a Point/,
+      ],
+      [
+        { type: 'FeatureCollection', features: [point('A', P1.lon, P1.lat, { rate: -1 }), point('A', P2.lon, P2.lat, { rate: -2 })] },
+        /bad\.geojson feature 1: duplicate well id "A" \(also feature 0\)/,
+      ],
+      [
+        { type: 'FeatureCollection', features: [point('A', P1.lon, P1.lat, { rate: 'lots' })] },
+        /bad\.geojson feature 0 \(id "A"\): property "rate" is "lots", not a number/,
+      ],
+      [
+        { type: 'FeatureCollection', features: [point('A', P1.x, P1.y, { rate: -1 })] },
+        /bad\.geojson feature 0: \[540833.*\] is not a WGS 84 longitude\/latitude/,
+      ],
       [{ type: 'FeatureCollection', features: [point('', P1.lon, P1.lat, { rate: -1 })] }, /bad\.geojson feature 0: has no id/],
-      [{ type: 'FeatureCollection', features: [point('A', P1.lon, P1.lat)] }, /bad\.geojson feature 0: well "A" is new here, so it needs rate/],
+      [
+        { type: 'FeatureCollection', features: [point('A', P1.lon, P1.lat)] },
+        /bad\.geojson feature 0: well "A" is new here, so it needs rate/,
+      ],
       [[1, 2], /bad\.geojson: not a GeoJSON object \(found a list\)/],
     ];
     for (const [json, message] of cases) {
@@ -98,7 +145,9 @@ describe('GeoJSON point lists', () => {
     expect(model.receptors![0]!.id).toBe('spring');
     expect(model.receptors![0]!.y).toBeCloseTo(P1.y, 3);
     write('obs-nohead.geojson', { type: 'FeatureCollection', features: [point('OB-1', P2.lon, P2.lat)] });
-    await expect(loadScenario(write('geo-nohead.json', { ...base, observations: 'obs-nohead.geojson' }))).rejects.toThrow(/obs-nohead\.geojson feature 0 \(id "OB-1"\): has no "head" property/);
+    await expect(loadScenario(write('geo-nohead.json', { ...base, observations: 'obs-nohead.geojson' }))).rejects.toThrow(
+      /obs-nohead\.geojson feature 0 \(id "OB-1"\): has no "head" property/,
+    );
   });
 });
 
@@ -106,15 +155,36 @@ describe('receptors and minimumHead', () => {
   it('takes receptors in pointCrs, or in their own crs, or from a CSV file', async () => {
     write('rec.csv', `id,x,y\nwetland-edge,${P2.x},${P2.y}\n`);
     const { model } = await loadScenario(
-      write('rec.json', { ...base, receptors: [{ id: 'neighbour', x: 539000, y: 5007000 }, { id: 'spring', x: P1.lon, y: P1.lat, crs: 'EPSG:4326' }] }),
+      write('rec.json', {
+        ...base,
+        receptors: [
+          { id: 'neighbour', x: 539000, y: 5007000 },
+          { id: 'spring', x: P1.lon, y: P1.lat, crs: 'EPSG:4326' },
+        ],
+      }),
     );
-    expect(model.receptors!.map((r) => [r.id, r.source])).toEqual([['neighbour', 'receptors[0]'], ['spring', 'receptors[1]']]);
+    expect(model.receptors!.map((r) => [r.id, r.source])).toEqual([
+      ['neighbour', 'receptors[0]'],
+      ['spring', 'receptors[1]'],
+    ]);
     expect(model.receptors![0]).toMatchObject({ x: 539000, y: 5007000 });
     expect(model.receptors![1]!.x).toBeCloseTo(P1.x, 3);
     const csv = await loadScenario(write('rec-csv.json', { ...base, receptors: 'rec.csv' }));
     expect(csv.model.receptors![0]).toMatchObject({ id: 'wetland-edge', x: P2.x, y: P2.y, source: 'rec.csv line 2' });
-    await expect(loadScenario(write('rec-bad.json', { ...base, receptors: [{ id: 'r', x: 1, y: 2, crs: 'EPSG:abc' }] }))).rejects.toThrow(/receptors\[0\]\.crs/);
-    await expect(loadScenario(write('rec-dup.json', { ...base, receptors: [{ id: 'r', x: 1, y: 2 }, { id: 'r', x: 3, y: 4 }] }))).rejects.toThrow(/duplicate receptor id "r"/);
+    await expect(loadScenario(write('rec-bad.json', { ...base, receptors: [{ id: 'r', x: 1, y: 2, crs: 'EPSG:abc' }] }))).rejects.toThrow(
+      /receptors\[0\]\.crs/,
+    );
+    await expect(
+      loadScenario(
+        write('rec-dup.json', {
+          ...base,
+          receptors: [
+            { id: 'r', x: 1, y: 2 },
+            { id: 'r', x: 3, y: 4 },
+          ],
+        }),
+      ),
+    ).rejects.toThrow(/duplicate receptor id "r"/);
   });
 
   it('reads minimumHead from JSON wells and the minimumHead column of a well CSV', async () => {
@@ -122,7 +192,9 @@ describe('receptors and minimumHead', () => {
     const { model } = await loadScenario(write('min.json', { ...base, wells: 'wells.csv' }));
     expect(model.wells[0]).toMatchObject({ id: 'A', radius: 0.2, minimumHead: 88.5 });
     expect(model.wells[1]!.minimumHead).toBeUndefined();
-    const json = await loadScenario(write('min2.json', { ...base, wells: [{ id: 'A', x: 539000, y: 5007000, rate: -10, minimumHead: 90 }] }));
+    const json = await loadScenario(
+      write('min2.json', { ...base, wells: [{ id: 'A', x: 539000, y: 5007000, rate: -10, minimumHead: 90 }] }),
+    );
     expect(json.model.wells[0]!.minimumHead).toBe(90);
   });
 });

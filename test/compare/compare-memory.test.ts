@@ -21,7 +21,8 @@ describe('memory of a comparison', () => {
   const n = 300;
   const grid = testGrid(n, n, 10);
   const base = makeModel(grid, { conductivity: new Float64Array(n * n).fill(1), fixedHeads: [fixedColumn(grid, 0, 10, 'west')] });
-  const variants = (count: number) => Array.from({ length: count }, (_, k) => ({ name: `v${k}`, model: { ...base, wells: [well(grid, `W${k}`, 100, 100 + k, -10)] } }));
+  const variants = (count: number) =>
+    Array.from({ length: count }, (_, k) => ({ name: `v${k}`, model: { ...base, wells: [well(grid, `W${k}`, 100, 100 + k, -10)] } }));
   // A limit that holds the baseline's run and five variants' results, not thirty.
   const limitMiB = (estimateRunBytes(n * n, solverBytesPerCell('auto')) + 5 * COMPARE_VARIANT_BYTES_PER_CELL * n * n) / MiB;
 

@@ -64,11 +64,15 @@ describe('compareModels', () => {
     // (Theis 1940; the budget's own balance, common practice).
     const base = patchyModel();
     const grid = base.grid;
-    const c = compareModels(base, [{ name: 'more', model: { ...base, wells: [well(grid, 'A', 8, 10, -600), well(grid, 'B', 22, 30, -900)] } }]);
+    const c = compareModels(base, [
+      { name: 'more', model: { ...base, wells: [well(grid, 'A', 8, 10, -600), well(grid, 'B', 22, 30, -900)] } },
+    ]);
     const v = c.variants[0]!;
     expect(v.sources.addedPumping).toBeCloseTo(1500, 9);
     const net = v.sources.terms.reduce((sum, t) => sum + t.netChange, 0);
-    const allowed = (Math.abs(c.baseline.budget.discrepancyPercent) / 100) * c.baseline.budget.totalIn + (Math.abs(v.result.budget.discrepancyPercent) / 100) * v.result.budget.totalIn;
+    const allowed =
+      (Math.abs(c.baseline.budget.discrepancyPercent) / 100) * c.baseline.budget.totalIn +
+      (Math.abs(v.result.budget.discrepancyPercent) / 100) * v.result.budget.totalIn;
     expect(Math.abs(net - 1500)).toBeLessThanOrEqual(allowed + 1e-9 * 1500);
     expect(v.sources.totalPercent!).toBeCloseTo(100, 6);
     // Recharge is unchanged, so all the water comes from the two boundaries; both give some.
@@ -108,14 +112,18 @@ describe('compareModels', () => {
     expect(v.sharedOperator).toBe(false);
     expect(v.sharing).toMatch(/aquifer\.thickness differs/);
     const alone = solveModel(thicker);
-    expect(Array.from(v.drawdown!).every((s, p) => Number.isNaN(s) || Math.abs(s - (c.baseline.head[p]! - alone.head[p]!)) < 1e-8)).toBe(true);
+    expect(Array.from(v.drawdown!).every((s, p) => Number.isNaN(s) || Math.abs(s - (c.baseline.head[p]! - alone.head[p]!)) < 1e-8)).toBe(
+      true,
+    );
   });
 
   it('operatorDifference: shares only when the aquifer, fixed heads and solver method are the same', () => {
     const base = patchyModel();
     const grid = base.grid;
     // Same values in new arrays (as a variant re-reads its rasters): still shared; nodata (NaN) equals nodata.
-    expect(operatorDifference(base, { ...base, conductivity: Float64Array.from(base.conductivity), wells: [well(grid, 'A', 1, 1, -5)] })).toBeNull();
+    expect(
+      operatorDifference(base, { ...base, conductivity: Float64Array.from(base.conductivity), wells: [well(grid, 'A', 1, 1, -5)] }),
+    ).toBeNull();
     expect(operatorDifference(base, { ...base, solver: { ...base.solver, tolerance: 1e-6 } })).toBeNull();
     const k = Float64Array.from(base.conductivity);
     k[5] = 6;
@@ -131,18 +139,33 @@ describe('compareModels', () => {
   it('refuses variant names that cannot name a folder, and duplicates', () => {
     const base = patchyModel();
     expect(() => compareModels(base, [{ name: 'a/b', model: base }])).toThrow(/cannot name a result folder/);
-    expect(() => compareModels(base, [{ name: 'x', model: base }, { name: 'X', model: base }])).toThrow(/duplicate variant name/);
+    expect(() =>
+      compareModels(base, [
+        { name: 'x', model: base },
+        { name: 'X', model: base },
+      ]),
+    ).toThrow(/duplicate variant name/);
   });
 
   it('method of images: a well near a long fixed-head boundary matches s = Q/(4 pi T) ln(r_image^2 / r^2)', () => {
     // Image-well solution for a well near a straight constant-head boundary (Ferris, Knowles, Brown & Stallman 1962,
     // Theory of aquifer tests, USGS Water-Supply Paper 1536-E). The model's boundary is the centre line of
     // column 0; the other edges are no-flow and far enough away to change the result by under 2 %.
-    const nx = 201, ny = 401, dx = 10;
+    const nx = 201,
+      ny = 401,
+      dx = 10;
     const grid = testGrid(nx, ny, dx);
-    const K = 10, b = 20, T = K * b, Q = -1000;
-    const row = 200, col = 10;
-    const base = makeModel(grid, { conductivity: new Float64Array(nx * ny).fill(K), thickness: b, fixedHeads: [fixedColumn(grid, 0, 50, 'river')] });
+    const K = 10,
+      b = 20,
+      T = K * b,
+      Q = -1000;
+    const row = 200,
+      col = 10;
+    const base = makeModel(grid, {
+      conductivity: new Float64Array(nx * ny).fill(K),
+      thickness: b,
+      fixedHeads: [fixedColumn(grid, 0, 50, 'river')],
+    });
     const c = compareModels(base, [{ name: 'w', model: { ...base, wells: [well(grid, 'W', row, col, Q)] } }]);
     const s = c.variants[0]!.drawdown!;
     let checked = 0;
@@ -175,7 +198,11 @@ describe('well-bore heads (Peaceman)', () => {
   function radialCase(dx: number, dy: number, anisotropy: number) {
     const n = 101;
     const grid = testGrid(n, n, dx, dy);
-    const K = 5, b = 20, H = 80, Q = -800, R = 40 * Math.max(dx, dy);
+    const K = 5,
+      b = 20,
+      H = 80,
+      Q = -800,
+      R = 40 * Math.max(dx, dy);
     const k4 = Math.pow(anisotropy, 0.25); // (Ty/Tx)^(1/4): x' = x k4, y' = y / k4 makes the medium isotropic
     const cells: Array<[number, number]> = [];
     for (let i = 0; i < n; i++) {
@@ -228,7 +255,11 @@ describe('well-bore heads (Peaceman)', () => {
     // In the frame x' = x (Ty/Tx)^(1/4), y' = y (Tx/Ty)^(1/4) the flow is isotropic with T = sqrt(Tx Ty); the circular
     // bore becomes an ellipse with semi-axes r_w k and r_w / k (k = (Ty/Tx)^(1/4)), whose equivalent circle has radius
     // r_w (k + 1/k) / 2 (conformal mapping of an ellipse; derived here, consistent with Peaceman 1983).
-    for (const [dx, dy, anisotropy] of [[10, 20, 1], [10, 10, 4], [20, 10, 0.5]] as const) {
+    for (const [dx, dy, anisotropy] of [
+      [10, 20, 1],
+      [10, 10, 4],
+      [20, 10, 0.5],
+    ] as const) {
       const c = radialCase(dx, dy, anisotropy);
       const bore = c.result.wellbore[0]!;
       const thiem = thiemWellbore(c, (0.15 * (c.k4 + 1 / c.k4)) / 2);

@@ -17,7 +17,14 @@ function column(grid: Grid, col: number): Int32Array {
   return Int32Array.from({ length: grid.ny }, (_, i) => i * grid.nx + col);
 }
 
-function entry(name: string, kind: HeadDependentInput['kind'], cells: Int32Array, head: number, conductance: number, bottom?: number): HeadDependentInput {
+function entry(
+  name: string,
+  kind: HeadDependentInput['kind'],
+  cells: Int32Array,
+  head: number,
+  conductance: number,
+  bottom?: number,
+): HeadDependentInput {
   return {
     name,
     kind,
@@ -38,7 +45,14 @@ function term(result: ReturnType<typeof solveModel>, name: string) {
 describe('Bessel K0 (test helper)', () => {
   it('matches tabulated values (Abramowitz & Stegun 1964, table 9.8, from memory) and the integral K0(x) = ∫0^∞ exp(-x cosh t) dt (A&S 9.6.24)', () => {
     // [x, K0(x), half a unit of the last digit given]: the approximation's own error is below 2e-7 relative.
-    const table: Array<[number, number, number]> = [[0.1, 2.4270690, 5e-8], [0.5, 0.9244191, 5e-8], [1, 0.4210244, 5e-8], [2, 0.1138939, 5e-8], [5, 0.0036911, 5e-8], [10, 1.778006e-5, 5e-13]];
+    const table: Array<[number, number, number]> = [
+      [0.1, 2.427069, 5e-8],
+      [0.5, 0.9244191, 5e-8],
+      [1, 0.4210244, 5e-8],
+      [2, 0.1138939, 5e-8],
+      [5, 0.0036911, 5e-8],
+      [10, 1.778006e-5, 5e-13],
+    ];
     for (const [x, k0, rounding] of table) expect(Math.abs(besselK0(x) - k0)).toBeLessThan(rounding + 2e-7 * k0);
     for (const x of [0.03, 0.3, 1.5, 2.5, 4]) {
       // Trapezoid rule on t in [0, 12], h = 1e-3: the integrand is smooth and decays doubly exponentially.
@@ -76,7 +90,14 @@ describe('areal leakage', () => {
   it('gives the Hantush & Jacob (1955) steady drawdown s = Q/(2 pi T) K0(r/B), B = sqrt(T/L), around a well in a leaky aquifer', () => {
     // 161 x 161 cells of 10 m, T = 100 m²/d, L = 0.01 /d: B = 100 m = 10 cells. No fixed head at all: the
     // leakage anchors the level (physics.md). Edges are 80 cells = 8 B away: their image wells add K0(>= 8) <~ 1e-4 of s.
-    const half = 80, n = 2 * half + 1, dx = 10, K = 10, b = 10, L = 0.01, Q = 1000, Hs = 50;
+    const half = 80,
+      n = 2 * half + 1,
+      dx = 10,
+      K = 10,
+      b = 10,
+      L = 0.01,
+      Q = 1000,
+      Hs = 50;
     const T = K * b;
     const B = Math.sqrt(T / L);
     const grid = testGrid(n, n, dx);
@@ -89,7 +110,17 @@ describe('areal leakage', () => {
     const r = solveModel(model);
     expect(r.stats.converged).toBe(true);
     const lambda = (L * dx * dx) / T;
-    const points: Array<[number, number]> = [[0, 3], [0, 5], [0, 10], [0, 20], [0, 40], [3, 3], [7, 7], [20, 20], [12, 5]];
+    const points: Array<[number, number]> = [
+      [0, 3],
+      [0, 5],
+      [0, 10],
+      [0, 20],
+      [0, 40],
+      [3, 3],
+      [7, 7],
+      [20, 20],
+      [12, 5],
+    ];
     for (const [di, dj] of points) {
       const rCells = Math.hypot(di, dj);
       const s = Hs - r.head[(half + di) * n + half + dj]!;
@@ -114,7 +145,14 @@ describe('areal leakage', () => {
 describe('a river along one edge', () => {
   // 40 x 3 cells of 20 m, T = 200 m²/d; river cells in column 0 with bed conductance C per cell, a fixed head in
   // the last column. No flow north and south, so every row is the same 1-D problem.
-  const nx = 40, ny = 3, dx = 20, K = 20, b = 10, T = K * b, C = 50, stage = 30;
+  const nx = 40,
+    ny = 3,
+    dx = 20,
+    K = 20,
+    b = 10,
+    T = K * b,
+    C = 50,
+    stage = 30;
   const grid = testGrid(nx, ny, dx);
   const run = (eastHead: number, bottom?: number, c = C) =>
     solveModel(
@@ -170,7 +208,13 @@ describe('a river along one edge', () => {
 
 describe('drains', () => {
   // 30 x 2 cells of 10 m, T = 50 m²/d, fixed head 20 m in column 0, a drain (level E, conductance C) in the last column.
-  const nx = 30, ny = 2, dx = 10, K = 5, b = 10, T = K * b, C = 40;
+  const nx = 30,
+    ny = 2,
+    dx = 10,
+    K = 5,
+    b = 10,
+    T = K * b,
+    C = 40;
   const grid = testGrid(nx, ny, dx);
   const run = (level: number, recharge = 0) =>
     solveModel(
@@ -227,18 +271,34 @@ describe('drains', () => {
 describe('every kind together', () => {
   // 14 x 11 cells, heterogeneous K, a fixed head, a river with a bed bottom (some cells below it), a drain (some
   // cells dry), a linear exchange, leakage, recharge and wells.
-  const nx = 14, ny = 11, dx = 50, dy = 40;
+  const nx = 14,
+    ny = 11,
+    dx = 50,
+    dy = 40;
   const grid = testGrid(nx, ny, dx, dy);
   const K = new Float64Array(nx * ny);
   for (let p = 0; p < K.length; p++) K[p] = 5 + 20 * (0.5 + 0.5 * Math.sin(p * 1.7));
   K[5 * nx + 7] = NaN;
   const b = 12;
-  const river = entry('river', 'river', Int32Array.from({ length: ny }, (_, i) => i * nx + 3), 0, 60, 0);
+  const river = entry(
+    'river',
+    'river',
+    Int32Array.from({ length: ny }, (_, i) => i * nx + 3),
+    0,
+    60,
+    0,
+  );
   for (let k = 0; k < river.cells.length; k++) {
     river.heads[k] = 31 - 0.4 * k;
     river.bottom![k] = 29.5 - 0.4 * k;
   }
-  const ditch = entry('ditch', 'drain', Int32Array.from({ length: 8 }, (_, j) => 9 * nx + 4 + j), 27.5, 30);
+  const ditch = entry(
+    'ditch',
+    'drain',
+    Int32Array.from({ length: 8 }, (_, j) => 9 * nx + 4 + j),
+    27.5,
+    30,
+  );
   const far = entry('far-field', 'linear', column(grid, nx - 1), 26, 15);
   const base = (wells: ModelInput['wells']) =>
     makeModel(grid, {
@@ -313,7 +373,11 @@ function denseWithSwitches(model: ModelInput): Float64Array {
   for (const g of model.fixedHeads) g.cells.forEach((p, k) => fixed.set(p, g.heads[k]!));
   const unknowns: number[] = [];
   const index = new Map<number, number>();
-  for (let p = 0; p < n; p++) if (active(p) && !fixed.has(p)) { index.set(p, unknowns.length); unknowns.push(p); }
+  for (let p = 0; p < n; p++)
+    if (active(p) && !fixed.has(p)) {
+      index.set(p, unknowns.length);
+      unknowns.push(p);
+    }
   const entries = model.headDependent ?? [];
   const on = entries.map((e) => new Uint8Array(e.cells.length).fill(1));
   const harmonic = (u: number, v: number) => (2 * u * v) / (u + v);
@@ -323,7 +387,8 @@ function denseWithSwitches(model: ModelInput): Float64Array {
     const A = Matrix.zeros(m, m);
     const rhs = Matrix.zeros(m, 1);
     unknowns.forEach((p, r) => {
-      const i = Math.floor(p / nx), j = p % nx;
+      const i = Math.floor(p / nx),
+        j = p % nx;
       const neighbours: Array<[number, number]> = [];
       if (j > 0) neighbours.push([p - 1, (dy / dx) * harmonic(K[p]! * b, K[p - 1]! * b)]);
       if (j < nx - 1) neighbours.push([p + 1, (dy / dx) * harmonic(K[p]! * b, K[p + 1]! * b)]);

@@ -10,7 +10,11 @@ import { fixedCells, fixedColumn, makeModel, seededRandom, testGrid, well } from
 
 describe('solveModel on analytical cases', () => {
   it('gives a linear head and Darcy flux between two fixed-head columns (Darcy 1856)', () => {
-    const nx = 41, ny = 3, dx = 25, K = 12, b = 15;
+    const nx = 41,
+      ny = 3,
+      dx = 25,
+      K = 12,
+      b = 15;
     const grid = testGrid(nx, ny, dx);
     const model = makeModel(grid, {
       conductivity: new Float64Array(nx * ny).fill(K),
@@ -36,7 +40,10 @@ describe('solveModel on analytical cases', () => {
 
   it('gives the harmonic-mean effective conductivity for layers in series (standard hydrogeology texts, e.g. Freeze & Cherry 1979, sec. 2.4)', () => {
     // Three layers across the flow direction: 10 cells of K=1, 10 of K=50, 10 of K=4 (plus fixed end cells).
-    const nx = 32, ny = 2, dx = 10, b = 20;
+    const nx = 32,
+      ny = 2,
+      dx = 10,
+      b = 20;
     const grid = testGrid(nx, ny, dx);
     const K = new Float64Array(nx * ny);
     const layerK = (j: number) => (j <= 10 ? 1 : j <= 20 ? 50 : 4);
@@ -57,7 +64,13 @@ describe('solveModel on analytical cases', () => {
   });
 
   it('matches the Thiem (1906) equation around a pumping well, and the well cell matches Thiem at Peaceman (1978) r0 = 0.208 dx', () => {
-    const half = 60, nx = 2 * half + 1, dx = 10, K = 10, b = 10, Q = 1000, H0 = 50;
+    const half = 60,
+      nx = 2 * half + 1,
+      dx = 10,
+      K = 10,
+      b = 10,
+      Q = 1000,
+      H0 = 50;
     const T = K * b;
     const grid = testGrid(nx, nx, dx);
     const R = half * dx; // radius beyond which heads are fixed at the Thiem values
@@ -94,19 +107,31 @@ describe('solveModel on analytical cases', () => {
 
 /** An independent assembly straight from the spec's formulas, solved densely with ml-matrix. */
 function denseReference(
-  nx: number, ny: number, dx: number, dy: number, K: Float64Array, b: Float64Array, a: number,
-  fixed: Map<number, number>, source: Float64Array,
+  nx: number,
+  ny: number,
+  dx: number,
+  dy: number,
+  K: Float64Array,
+  b: Float64Array,
+  a: number,
+  fixed: Map<number, number>,
+  source: Float64Array,
 ): Float64Array {
   const active = (p: number) => K[p]! > 0 && b[p]! > 0 && Number.isFinite(K[p]!);
   const unknowns: number[] = [];
   const index = new Map<number, number>();
-  for (let p = 0; p < nx * ny; p++) if (active(p) && !fixed.has(p)) { index.set(p, unknowns.length); unknowns.push(p); }
+  for (let p = 0; p < nx * ny; p++)
+    if (active(p) && !fixed.has(p)) {
+      index.set(p, unknowns.length);
+      unknowns.push(p);
+    }
   const m = unknowns.length;
   const A = Matrix.zeros(m, m);
   const rhs = Matrix.zeros(m, 1);
   const harmonic = (u: number, v: number) => (2 * u * v) / (u + v);
   unknowns.forEach((p, r) => {
-    const i = Math.floor(p / nx), j = p % nx;
+    const i = Math.floor(p / nx),
+      j = p % nx;
     const neighbours: Array<[number, number]> = [];
     if (j > 0) neighbours.push([p - 1, (dy / dx) * harmonic(K[p]! * b[p]!, K[p - 1]! * b[p - 1]!)]);
     if (j < nx - 1) neighbours.push([p + 1, (dy / dx) * harmonic(K[p]! * b[p]!, K[p + 1]! * b[p + 1]!)]);
@@ -130,7 +155,11 @@ function denseReference(
 
 describe('solveModel against a dense direct solve (ml-matrix, general-purpose linear algebra)', () => {
   it('agrees to 1e-8 relative on a heterogeneous, anisotropic grid with inactive holes and non-square cells', () => {
-    const nx = 17, ny = 13, dx = 40, dy = 25, a = 0.3;
+    const nx = 17,
+      ny = 13,
+      dx = 40,
+      dy = 25,
+      a = 0.3;
     const grid = testGrid(nx, ny, dx, dy);
     const rand = seededRandom(7);
     const K = new Float64Array(nx * ny);
@@ -144,7 +173,10 @@ describe('solveModel against a dense direct solve (ml-matrix, general-purpose li
     K[2 * nx + 3] = 0;
     K[9 * nx + 12] = -1;
     const west = fixedColumn(grid, 0, (i) => 120 - i * 0.5, 'west');
-    const lake = fixedCells('lake', [[10 * nx + 8, 95], [10 * nx + 9, 95.5]]);
+    const lake = fixedCells('lake', [
+      [10 * nx + 8, 95],
+      [10 * nx + 9, 95.5],
+    ]);
     const wells = [well(grid, 'P1', 3, 12, -300), well(grid, 'P2', 8, 4, -150), well(grid, 'P3', 8, 4, -50), well(grid, 'I1', 11, 14, 80)];
     const recharge = new Float64Array(nx * ny).fill(0.0005);
     const model = makeModel(grid, { conductivity: K, thickness: b, anisotropy: a, fixedHeads: [west, lake], wells, recharge });
@@ -156,7 +188,8 @@ describe('solveModel against a dense direct solve (ml-matrix, general-purpose li
     const source = new Float64Array(nx * ny);
     for (let p = 0; p < nx * ny; p++) source[p] = 0.0005 * dx * dy;
     for (const w of wells) {
-      const col = Math.floor((w.x - 500000) / dx), row = Math.floor((4100000 - w.y) / dy);
+      const col = Math.floor((w.x - 500000) / dx),
+        row = Math.floor((4100000 - w.y) / dy);
       source[row * nx + col]! += w.rate;
     }
     const reference = denseReference(nx, ny, dx, dy, K, b, a, fixedMap, source);
@@ -186,11 +219,17 @@ describe('assembleSystem checks', () => {
 
   it('refuses a well outside the grid, in an inactive cell or in a fixed-head cell, naming the well', () => {
     const base = { conductivity: K(), fixedHeads: [fixedColumn(grid, 0, 10, 'west')] };
-    expect(() => assembleSystem(makeModel(grid, { ...base, wells: [{ id: 'FAR', x: 0, y: 0, rate: -1, source: 'wells[0]' }] }))).toThrowError(/well "FAR".*outside the grid/);
+    expect(() =>
+      assembleSystem(makeModel(grid, { ...base, wells: [{ id: 'FAR', x: 0, y: 0, rate: -1, source: 'wells[0]' }] })),
+    ).toThrowError(/well "FAR".*outside the grid/);
     const k = K();
     k[1 * 6 + 4] = NaN;
-    expect(() => assembleSystem(makeModel(grid, { ...base, conductivity: k, wells: [well(grid, 'DRY', 1, 4, -1)] }))).toThrowError(/well "DRY".*inactive cell \(row 1, col 4\)/);
-    expect(() => assembleSystem(makeModel(grid, { ...base, wells: [well(grid, 'EDGE', 2, 0, -1)] }))).toThrowError(/well "EDGE".*fixed-head cell of "west"/);
+    expect(() => assembleSystem(makeModel(grid, { ...base, conductivity: k, wells: [well(grid, 'DRY', 1, 4, -1)] }))).toThrowError(
+      /well "DRY".*inactive cell \(row 1, col 4\)/,
+    );
+    expect(() => assembleSystem(makeModel(grid, { ...base, wells: [well(grid, 'EDGE', 2, 0, -1)] }))).toThrowError(
+      /well "EDGE".*fixed-head cell of "west"/,
+    );
   });
 
   it('counts fixed-head data on inactive cells and ignores it; later entries win where they overlap', () => {

@@ -113,7 +113,14 @@ describe('outer iteration', () => {
     const r = solve(chain());
     expect(r.outer).toEqual({ iterations: 1, stopReason: 'linear', history: [], innerIterations: r.stats.iterations });
     const system = chain();
-    const result = solveModel(makeModel(system.grid, { conductivity: new Float64Array(3).fill(2), thickness: 5, fixedHeads: [fixedCells('left', [[0, 10]])], recharge: 0.1 }));
+    const result = solveModel(
+      makeModel(system.grid, {
+        conductivity: new Float64Array(3).fill(2),
+        thickness: 5,
+        fixedHeads: [fixedCells('left', [[0, 10]])],
+        recharge: 0.1,
+      }),
+    );
     expect(result.outer.iterations).toBe(1);
     expect(buildSummary(result, [], 'test').solver).not.toHaveProperty('outerIterations');
     expect(resultProblem(result)).toBeNull();
@@ -146,7 +153,14 @@ describe('outer iteration', () => {
   it('stops on a switch state seen before (a cycle) and at the iteration cap, saying which', () => {
     const flip = (system: FlowSystem): FlowTerm => {
       let state = 0;
-      return { ...drain(1, 0, 1, system), updateState: () => ((state ^= 1), 1), stateKey: () => String(state) };
+      return {
+        ...drain(1, 0, 1, system),
+        updateState: () => {
+          state ^= 1;
+          return 1;
+        },
+        stateKey: () => String(state),
+      };
     };
     const cycling = chain();
     cycling.terms.push(flip(cycling));
@@ -156,7 +170,14 @@ describe('outer iteration', () => {
 
     const wandering = chain();
     let count = 0;
-    wandering.terms.push({ ...drain(1, 0, 1, wandering), updateState: () => (count++, 1), stateKey: () => String(count) });
+    wandering.terms.push({
+      ...drain(1, 0, 1, wandering),
+      updateState: () => {
+        count++;
+        return 1;
+      },
+      stateKey: () => String(count),
+    });
     const w = solve(wandering, { headTolerance: 1e-6, maxOuterIterations: 4 });
     expect(w.outer.stopReason).toBe('iteration-limit');
     expect(w.outer.iterations).toBe(4);
@@ -164,12 +185,19 @@ describe('outer iteration', () => {
 });
 
 describe('mapCellLayers', () => {
-  it('gives every fixed-head group its own layer, legend row and style, and passes a new term\'s own style through', () => {
+  it("gives every fixed-head group its own layer, legend row and style, and passes a new term's own style through", () => {
     const grid = testGrid(6, 4, 10);
     const model = makeModel(grid, {
       conductivity: new Float64Array(24).fill(2),
       thickness: 5,
-      fixedHeads: [fixedCells('river', [[0, 10], [6, 10]]), fixedCells('lake', [[5, 9]]), fixedCells('edge', [[23, 8]])],
+      fixedHeads: [
+        fixedCells('river', [
+          [0, 10],
+          [6, 10],
+        ]),
+        fixedCells('lake', [[5, 9]]),
+        fixedCells('edge', [[23, 8]]),
+      ],
     });
     const system = assembleSystem(model);
     // A head-dependent boundary to come supplies its legend and style; the map code needs no change for it.

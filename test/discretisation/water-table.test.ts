@@ -19,7 +19,16 @@ const solver = { method: 'auto', tolerance: 1e-12, maxIterations: 50000 };
  * One row band (ny rows) between fixed heads h1 (first column) and h2 (last column), flat bottom at z, uniform K and
  * recharge W: Dupuit-Forchheimer flow with recharge.
  */
-function dupuitStrip(nx: number, dx: number, h1: number, h2: number, z: number, k: number, w: number, extra: Partial<ModelInput> = {}): ModelInput {
+function dupuitStrip(
+  nx: number,
+  dx: number,
+  h1: number,
+  h2: number,
+  z: number,
+  k: number,
+  w: number,
+  extra: Partial<ModelInput> = {},
+): ModelInput {
   const grid = testGrid(nx, 3, dx);
   return makeModel(grid, {
     conductivity: new Float64Array(nx * 3).fill(k),
@@ -127,7 +136,7 @@ describe('unconfined aquifer: radial flow to a well', () => {
     return worst;
   }
 
-  it('matches Thiem\'s unconfined form, with an error that shrinks on a refined grid', () => {
+  it("matches Thiem's unconfined form, with an error that shrinks on a refined grid", () => {
     const coarse = worstError(41, 50);
     const fine = worstError(81, 25);
     // The discrete equations are the five-point Laplacian of (h - z)^2 (physics.md), whose solution for a point sink
@@ -150,14 +159,16 @@ describe('convertible aquifer: confined upstream, unconfined downstream', () => 
 
   function strip(nx: number, dx: number) {
     const grid = testGrid(nx, 3, dx);
-    return solveModel(makeModel(grid, {
-      conductivity: new Float64Array(nx * 3).fill(k),
-      aquiferType: 'convertible',
-      aquiferTop: top,
-      aquiferBottom: 0,
-      fixedHeads: [fixedColumn(grid, 0, 30, 'west'), fixedColumn(grid, nx - 1, 10, 'east')],
-      solver,
-    }));
+    return solveModel(
+      makeModel(grid, {
+        conductivity: new Float64Array(nx * 3).fill(k),
+        aquiferType: 'convertible',
+        aquiferTop: top,
+        aquiferBottom: 0,
+        fixedHeads: [fixedColumn(grid, 0, 30, 'west'), fixedColumn(grid, nx - 1, 10, 'east')],
+        solver,
+      }),
+    );
   }
 
   function worstAgainstStrack(nx: number, dx: number): number {
@@ -186,22 +197,24 @@ describe('convertible aquifer: confined upstream, unconfined downstream', () => 
     const [nx, ny, dx] = [41, 21, 25];
     const grid = testGrid(nx, ny, dx);
     const rate = -600;
-    const result = solveModel(makeModel(grid, {
-      conductivity: new Float64Array(nx * ny).fill(k),
-      aquiferType: 'convertible',
-      aquiferTop: top,
-      aquiferBottom: 0,
-      fixedHeads: [fixedColumn(grid, 0, 24, 'west')],
-      wells: [well(grid, 'W1', 10, 32, rate)],
-      solver,
-    }));
+    const result = solveModel(
+      makeModel(grid, {
+        conductivity: new Float64Array(nx * ny).fill(k),
+        aquiferType: 'convertible',
+        aquiferTop: top,
+        aquiferBottom: 0,
+        fixedHeads: [fixedColumn(grid, 0, 24, 'west')],
+        wells: [well(grid, 'W1', 10, 32, rate)],
+        solver,
+      }),
+    );
     expect(resultProblem(result)).toBeNull();
     // The well cell stays wet: the whole rate is pumped.
     expect(result.wellbore[0]!.undeliveredRate).toBe(0);
     const { head, system } = result;
     let confined = 0;
     let unconfined = 0;
-    for (let p = 0; p < head.length; p++) (head[p]! >= top ? confined++ : unconfined++);
+    for (let p = 0; p < head.length; p++) head[p]! >= top ? confined++ : unconfined++;
     expect(confined).toBeGreaterThan(0);
     expect(unconfined).toBeGreaterThan(0);
     // Mass conservation (continuity): without recharge and with no-flow edges elsewhere, every vertical section
@@ -231,14 +244,16 @@ describe('a well that dries its cell', () => {
     const [nx, ny, dx] = [21, 21, 20];
     const grid = testGrid(nx, ny, dx);
     const rate = -500;
-    const result = solveModel(makeModel(grid, {
-      conductivity: new Float64Array(nx * ny).fill(2),
-      aquiferType: 'unconfined',
-      aquiferBottom: 10,
-      fixedHeads: [fixedColumn(grid, 0, 12, 'west'), fixedColumn(grid, nx - 1, 12, 'east')],
-      wells: [well(grid, 'W1', 10, 10, rate)],
-      solver: { ...solver, tolerance: 1e-10 },
-    }));
+    const result = solveModel(
+      makeModel(grid, {
+        conductivity: new Float64Array(nx * ny).fill(2),
+        aquiferType: 'unconfined',
+        aquiferBottom: 10,
+        fixedHeads: [fixedColumn(grid, 0, 12, 'west'), fixedColumn(grid, nx - 1, 12, 'east')],
+        wells: [well(grid, 'W1', 10, 10, rate)],
+        solver: { ...solver, tolerance: 1e-10 },
+      }),
+    );
     expect(resultProblem(result)).toBeNull();
     for (let p = 0; p < result.head.length; p++) expect(Number.isFinite(result.head[p]!)).toBe(true);
     const w = result.wellbore[0]!;
@@ -263,7 +278,12 @@ describe('an outer iteration that does not settle', () => {
       (function* () {
         const session = yield* openSession(system.operator, { method: 'auto' });
         // Two outer iterations cannot settle from a start 25 m too high.
-        const a = yield* solveOuter(system, session, { tolerance: 1e-12, maxIterations: 1000 }, { ...DEFAULT_OUTER, maxOuterIterations: 2 });
+        const a = yield* solveOuter(
+          system,
+          session,
+          { tolerance: 1e-12, maxIterations: 1000 },
+          { ...DEFAULT_OUTER, maxOuterIterations: 2 },
+        );
         yield* closeSession(session);
         return a;
       })(),

@@ -34,7 +34,10 @@ function writeScenario(name: string, overrides: Record<string, unknown> = {}, ed
     title: 'CLI test aquifer',
     units: { length: 'm', time: 'd' },
     aquifer: { conductivity: `${name}.k.tif`, thickness: 25 },
-    fixedHeads: [{ edge: 'west', head: 50 }, { edge: 'east', head: 45, name: 'outlet' }],
+    fixedHeads: [
+      { edge: 'west', head: 50 },
+      { edge: 'east', head: 45, name: 'outlet' },
+    ],
     recharge: 0.0002,
     wells: [{ id: 'PW-1', x: 501050, y: 4098950, rate: -400 }],
     observations: [{ id: 'OB-1', x: 502050, y: 4099050, head: 48.1 }],
@@ -132,7 +135,17 @@ describe('piezomap CLI', () => {
   });
 
   it('--json prints the summary as JSON on stdout', () => {
-    const r = run(['solve', writeScenario('json.json'), '-o', join(dir, 'result-json'), '--json', '--tolerance', '1e-9', '--max-iterations', '4321']);
+    const r = run([
+      'solve',
+      writeScenario('json.json'),
+      '-o',
+      join(dir, 'result-json'),
+      '--json',
+      '--tolerance',
+      '1e-9',
+      '--max-iterations',
+      '4321',
+    ]);
     expect(r.code).toBe(0);
     const summary = JSON.parse(r.stdout);
     // The summary reports the settings that applied: command-line overrides win over the scenario's.
@@ -171,7 +184,12 @@ describe('piezomap CLI', () => {
       [writeScenario('badraster.json', { aquifer: { conductivity: 'nope.tif', thickness: 25 } }), /nope\.tif/],
       [writeScenario('nofixed.json', { fixedHeads: [] }), /fixedHeads.*without a fixed head/],
       // An inactive wall cuts off the east: that region has no fixed head (caught by the assembly).
-      [writeScenario('floating.json', { fixedHeads: [{ edge: 'west', head: 50 }] }, (k) => { for (let i = 0; i < 20; i++) k[i * 30 + 5] = NaN; }), /no fixed head/],
+      [
+        writeScenario('floating.json', { fixedHeads: [{ edge: 'west', head: 50 }] }, (k) => {
+          for (let i = 0; i < 20; i++) k[i * 30 + 5] = NaN;
+        }),
+        /no fixed head/,
+      ],
     ];
     cases.forEach(([scenario, message], k) => {
       const out = join(dir, `bad-${k}`);
@@ -198,14 +216,21 @@ describe('piezomap CLI', () => {
   it('inspect makes the input checks solve makes: the same unit and plausibility warnings, also in --json, with units', () => {
     // Declared in metres per second, a conductivity of 8 lies above the published range (1 m/s, Freeze & Cherry
     // 1979, Table 2.2) and a recharge of 0.0002 m/s (17 m/d) beyond any plausible rate: solve warns of both.
-    const path = writeScenario('units.json', { units: { length: 'm', time: 's' }, recharge: 0.0002, wells: [{ id: 'PW-1', x: 501050, y: 4098950, rate: -0.004 }] });
+    const path = writeScenario('units.json', {
+      units: { length: 'm', time: 's' },
+      recharge: 0.0002,
+      wells: [{ id: 'PW-1', x: 501050, y: 4098950, rate: -0.004 }],
+    });
     const out = join(dir, 'units-out');
     const solved = run(['solve', path, '-o', out, '--json']);
     const solveWarnings = (JSON.parse(solved.stdout) as { warnings: string[] }).warnings;
     const fromInputs = solveWarnings.filter((w) => w.startsWith('aquifer.') || w.startsWith('recharge'));
     expect(fromInputs.some((w) => w.startsWith('aquifer.conductivity'))).toBe(true);
     expect(fromInputs.some((w) => w.startsWith('recharge'))).toBe(true);
-    const inspected = JSON.parse(run(['inspect', path, '--json']).stdout) as { warnings: string[]; units: { length: string; time: string } };
+    const inspected = JSON.parse(run(['inspect', path, '--json']).stdout) as {
+      warnings: string[];
+      units: { length: string; time: string };
+    };
     for (const w of fromInputs) expect(inspected.warnings).toContain(w);
     for (const w of inspected.warnings) expect(solveWarnings).toContain(w);
     expect(inspected.units).toEqual({ length: 'm', time: 's' });
@@ -217,7 +242,8 @@ describe('piezomap CLI', () => {
   });
 
   it('shows -o as required in the help of solve and compare', () => {
-    for (const command of ['solve', 'compare']) expect(run([command, '--help']).stdout).toMatch(/-o, --out <dir>\s+result folder \(required\)/);
+    for (const command of ['solve', 'compare'])
+      expect(run([command, '--help']).stdout).toMatch(/-o, --out <dir>\s+result folder \(required\)/);
   });
 
   it('states the default tolerance in the README as the scenario schema has it', () => {
@@ -226,7 +252,9 @@ describe('piezomap CLI', () => {
   });
 
   it('titles a variant without its own title after the baseline, with the trailing "baseline" replaced', () => {
-    expect(variantTitle('Talvorin valley wellfield (invented demo), baseline', 'more')).toBe('Talvorin valley wellfield (invented demo), variant more');
+    expect(variantTitle('Talvorin valley wellfield (invented demo), baseline', 'more')).toBe(
+      'Talvorin valley wellfield (invented demo), variant more',
+    );
     expect(variantTitle('Valley wellfield (baseline)', 'dry-year')).toBe('Valley wellfield, variant dry-year');
     expect(variantTitle('Valley wellfield', 'more')).toBe('Valley wellfield, variant more');
   });

@@ -49,14 +49,20 @@ function writeScenario(name: string, variants: unknown[], extra: Record<string, 
   const scenario = {
     title: 'compare test aquifer',
     aquifer: { conductivity: 'k.tif', thickness: 25 },
-    fixedHeads: [{ edge: 'west', head: 50, name: 'river' }, { edge: 'east', head: 45, name: 'outlet' }],
+    fixedHeads: [
+      { edge: 'west', head: 50, name: 'river' },
+      { edge: 'east', head: 45, name: 'outlet' },
+    ],
     recharge: 0.0002,
     wells: [{ id: 'PW-1', ...centre(10, 10), rate: -400 }],
     observations: [
       { id: 'OB-1', ...centre(10, 14), head: 48.1 },
       { id: 'OB-2', ...centre(4, 22), head: 46.9 },
     ],
-    receptors: [{ id: 'R-1', ...centre(12, 16) }, { id: 'R-2', x: lon, y: lat, crs: 'EPSG:4326' }],
+    receptors: [
+      { id: 'R-1', ...centre(12, 16) },
+      { id: 'R-2', x: lon, y: lat, crs: 'EPSG:4326' },
+    ],
     solver: { method: 'auto', tolerance: 1e-10 },
     variants,
     ...extra,
@@ -75,7 +81,10 @@ async function readTif(path: string): Promise<Float32Array> {
 }
 
 function parseCsv(text: string): Array<Record<string, string>> {
-  const [header, ...rows] = text.trim().split('\n').map((l) => l.split(','));
+  const [header, ...rows] = text
+    .trim()
+    .split('\n')
+    .map((l) => l.split(','));
   return rows.map((r) => Object.fromEntries(header!.map((h, i) => [h, r[i]!])));
 }
 
@@ -87,7 +96,13 @@ afterAll(() => rmSync(dir, { recursive: true, force: true }));
 describe('piezomap compare', () => {
   it('writes every folder, drawdown rasters, comparison.csv and summary.json that agree with the printed table', async () => {
     const scenario = writeScenario('plans.json', [
-      { name: 'more', wells: [{ id: 'PW-1', rate: -600 }, { id: 'PW-2', ...centre(6, 18), rate: -300, radius: 0.2 }] },
+      {
+        name: 'more',
+        wells: [
+          { id: 'PW-1', rate: -600 },
+          { id: 'PW-2', ...centre(6, 18), rate: -300, radius: 0.2 },
+        ],
+      },
       { name: 'thin', aquifer: { conductivity: 'k.tif', thickness: 15 } },
     ]);
     const out = join(dir, 'out');
@@ -95,7 +110,9 @@ describe('piezomap compare', () => {
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     expect(readdirSync(out).sort()).toEqual(['baseline', 'comparison.csv', 'more', 'report.html', 'summary.json', 'thin']);
-    expect(readdirSync(join(out, 'more'))).toEqual(expect.arrayContaining(['drawdown.tif', 'drawdown-contours.geojson', 'drawdown-map.png', 'report.html']));
+    expect(readdirSync(join(out, 'more'))).toEqual(
+      expect.arrayContaining(['drawdown.tif', 'drawdown-contours.geojson', 'drawdown-map.png', 'report.html']),
+    );
     expect(existsSync(join(out, 'baseline', 'drawdown.tif'))).toBe(false);
     for (const folder of ['baseline', 'more', 'thin']) {
       for (const file of ['head.tif', 'budget.csv', 'summary.json']) expect(existsSync(join(out, folder, file))).toBe(true);
@@ -139,7 +156,10 @@ describe('piezomap compare', () => {
     expect(rows[1]!.source_total_percent).toBe('');
     expect(summary.variants[0].wells.find((w: { id: string }) => w.id === 'PW-2').wellboreDrawdown).toBeGreaterThan(0);
     const variantSummary = JSON.parse(readFileSync(join(out, 'more', 'summary.json'), 'utf8'));
-    expect(variantSummary.wells.map((w: { id: string; radius: number }) => [w.id, w.radius])).toEqual([['PW-1', 0.1], ['PW-2', 0.2]]);
+    expect(variantSummary.wells.map((w: { id: string; radius: number }) => [w.id, w.radius])).toEqual([
+      ['PW-1', 0.1],
+      ['PW-2', 0.2],
+    ]);
     expect(variantSummary.calibration.count).toBe(2);
     expect(r.stdout.trimEnd().endsWith(CAUTION)).toBe(true);
     const report = readFileSync(join(out, 'report.html'), 'utf8');
@@ -176,7 +196,9 @@ describe('piezomap compare', () => {
   });
 
   it('exits 3 without solving the variants when the baseline does not converge', async () => {
-    const scenario = writeScenario('stuck-base.json', [{ name: 'v', wells: [{ id: 'PW-1', rate: -500 }] }], { solver: { method: 'jacobi', maxIterations: 3 } });
+    const scenario = writeScenario('stuck-base.json', [{ name: 'v', wells: [{ id: 'PW-1', rate: -500 }] }], {
+      solver: { method: 'jacobi', maxIterations: 3 },
+    });
     const out = join(dir, 'stuck-base');
     const r = await runHere(['compare', scenario, '-o', out, '--no-maps']);
     expect(r.code).toBe(3);
@@ -187,12 +209,21 @@ describe('piezomap compare', () => {
   });
 
   it('inspect checks the variants as compare would, without solving', async () => {
-    const ok = await runHere(['inspect', writeScenario('inspect.json', [{ name: 'more', wells: [{ id: 'PW-1', rate: -600 }] }, { name: 'thin', aquifer: { conductivity: 'k.tif', thickness: 15 } }])]);
+    const ok = await runHere([
+      'inspect',
+      writeScenario('inspect.json', [
+        { name: 'more', wells: [{ id: 'PW-1', rate: -600 }] },
+        { name: 'thin', aquifer: { conductivity: 'k.tif', thickness: 15 } },
+      ]),
+    ]);
     expect(ok.code).toBe(0);
     expect(ok.stdout).toMatch(/Receptors +2/);
     expect(ok.stdout).toMatch(/Variant +more: 1 well\(s\); same aquifer, fixed heads and solver/);
     expect(ok.stdout).toMatch(/Variant +thin: 1 well\(s\); solved afresh: aquifer\.thickness differs/);
-    const bad = await runHere(['inspect', writeScenario('inspect-bad.json', [{ name: 'far', wells: [{ id: 'PW-9', x: 10, y: 10, rate: -5 }] }])]);
+    const bad = await runHere([
+      'inspect',
+      writeScenario('inspect-bad.json', [{ name: 'far', wells: [{ id: 'PW-9', x: 10, y: 10, rate: -5 }] }]),
+    ]);
     expect(bad.code).toBe(2);
     expect(bad.stderr).toMatch(/well "PW-9" \(variants "far"\.wells\[0\]\) at x=10, y=10 lies outside the grid/);
   });
@@ -201,7 +232,13 @@ describe('piezomap compare', () => {
     const none = await runHere(['compare', writeScenario('none.json', []), '-o', join(dir, 'none'), '--no-maps']);
     expect(none.code).toBe(2);
     expect(none.stderr).toMatch(/no "variants"/);
-    const far = await runHere(['compare', writeScenario('far.json', [{ name: 'v', recharge: 0.0003 }], { receptors: [{ id: 'spring-9', x: 10, y: 10 }] }), '-o', join(dir, 'far'), '--no-maps']);
+    const far = await runHere([
+      'compare',
+      writeScenario('far.json', [{ name: 'v', recharge: 0.0003 }], { receptors: [{ id: 'spring-9', x: 10, y: 10 }] }),
+      '-o',
+      join(dir, 'far'),
+      '--no-maps',
+    ]);
     expect(far.code).toBe(2);
     expect(far.stderr).toMatch(/receptor "spring-9" \(receptors\[0\]\).*outside the grid/);
     expect(far.stderr).not.toMatch(/\n\s+at /);

@@ -94,13 +94,28 @@ describe('determinism', () => {
     const withVariant = join(dir, 'compare.json');
     writeFileSync(
       withVariant,
-      JSON.stringify({ ...baseScenario(), variants: [{ name: 'more', wells: [{ id: 'W9', ...centre(3, 2), rate: -40 }] }, { name: 'wetter', recharge: 0.0005 }] }),
+      JSON.stringify({
+        ...baseScenario(),
+        variants: [
+          { name: 'more', wells: [{ id: 'W9', ...centre(3, 2), rate: -40 }] },
+          { name: 'wetter', recharge: 0.0005 },
+        ],
+      }),
     );
     const out = join(dir, 'cli-compare');
     const r = spawnSync(process.execPath, [BIN, 'compare', withVariant, '-o', out, '--quiet', '--no-maps'], { encoding: 'utf8' });
     expect(r.status, r.stderr).toBe(0);
     const { files } = comparisonFiles(await compareScenario(withVariant), { maps: false });
-    for (const name of ['baseline/head.tif', 'baseline/budget.csv', 'more/head.tif', 'more/drawdown.tif', 'more/budget.csv', 'wetter/head.tif', 'wetter/drawdown.tif', 'comparison.csv']) {
+    for (const name of [
+      'baseline/head.tif',
+      'baseline/budget.csv',
+      'more/head.tif',
+      'more/drawdown.tif',
+      'more/budget.csv',
+      'wetter/head.tif',
+      'wetter/drawdown.tif',
+      'comparison.csv',
+    ]) {
       const mine = files.find((f) => f.name === name);
       expect(mine, name).toBeDefined();
       expect(Buffer.compare(Buffer.from(mine!.bytes), readFileSync(join(out, name))), name).toBe(0);

@@ -62,12 +62,28 @@ function expectCleanInputError(thrown: unknown): void {
 const k = baseConductivity();
 const seeds: Array<{ name: string; bytes: Uint8Array }> = [
   { name: 'tiled DEFLATE + float predictor', bytes: encodeFloat32GeoTiff(baseGrid, k, { tileSize: 16 }) },
-  { name: 'uncompressed strips', bytes: stripTiff({ width: 12, height: 8, pixels: float32Pixels(k.map((v) => (Number.isNaN(v) ? -9999 : v))), rowsPerStrip: 3, nodata: '-9999' }) },
+  {
+    name: 'uncompressed strips',
+    bytes: stripTiff({
+      width: 12,
+      height: 8,
+      pixels: float32Pixels(k.map((v) => (Number.isNaN(v) ? -9999 : v))),
+      rowsPerStrip: 3,
+      nodata: '-9999',
+    }),
+  },
 ];
 
 // GDAL-made files of the raster reader's tests: LZW, ZSTD, big-endian, band-interleaved, BigTIFF.
 const FIXTURES = resolve(__dirname, '../fixtures/rasters');
-for (const name of ['f32-strip-lzw-pred3.tif', 'f32-bigendian-lzw.tif', 'f32-tiled-zstd-nan.tif', 'f32-3band-band.tif', 'f32-bigtiff.tif', 'i16-strip-lzw-pred2.tif']) {
+for (const name of [
+  'f32-strip-lzw-pred3.tif',
+  'f32-bigendian-lzw.tif',
+  'f32-tiled-zstd-nan.tif',
+  'f32-3band-band.tif',
+  'f32-bigtiff.tif',
+  'i16-strip-lzw-pred2.tif',
+]) {
   seeds.push({ name, bytes: new Uint8Array(readFileSync(join(FIXTURES, name))) });
 }
 
@@ -168,17 +184,67 @@ describe('fuzzing the GeoTIFF reader', () => {
 
 /** Paths into the base scenario where a value can be replaced. */
 const scenarioPaths: Array<Array<string | number>> = [
-  ['title'], ['units'], ['units', 'length'], ['units', 'time'], ['aquifer'], ['aquifer', 'conductivity'], ['aquifer', 'thickness'],
-  ['aquifer', 'anisotropy'], ['fixedHeads'], ['fixedHeads', 0], ['fixedHeads', 0, 'edge'], ['fixedHeads', 0, 'head'], ['fixedHeads', 1, 'name'],
-  ['recharge'], ['wells'], ['wells', 0], ['wells', 0, 'id'], ['wells', 0, 'x'], ['wells', 0, 'y'], ['wells', 0, 'rate'], ['wells', 0, 'radius'],
-  ['observations'], ['observations', 0, 'head'], ['observations', 0, 'x'], ['pointCrs'], ['solver'], ['solver', 'method'], ['solver', 'tolerance'],
-  ['solver', 'maxIterations'], ['variants'], ['unknownKey'], ['aquifer', 'porosity'],
+  ['title'],
+  ['units'],
+  ['units', 'length'],
+  ['units', 'time'],
+  ['aquifer'],
+  ['aquifer', 'conductivity'],
+  ['aquifer', 'thickness'],
+  ['aquifer', 'anisotropy'],
+  ['fixedHeads'],
+  ['fixedHeads', 0],
+  ['fixedHeads', 0, 'edge'],
+  ['fixedHeads', 0, 'head'],
+  ['fixedHeads', 1, 'name'],
+  ['recharge'],
+  ['wells'],
+  ['wells', 0],
+  ['wells', 0, 'id'],
+  ['wells', 0, 'x'],
+  ['wells', 0, 'y'],
+  ['wells', 0, 'rate'],
+  ['wells', 0, 'radius'],
+  ['observations'],
+  ['observations', 0, 'head'],
+  ['observations', 0, 'x'],
+  ['pointCrs'],
+  ['solver'],
+  ['solver', 'method'],
+  ['solver', 'tolerance'],
+  ['solver', 'maxIterations'],
+  ['variants'],
+  ['unknownKey'],
+  ['aquifer', 'porosity'],
 ];
 
 /** Values that are plausible mistakes: wrong types, edge numbers, paths to things that are not rasters. */
 const oddValue = fc.oneof(
   fc.jsonValue({ maxDepth: 2 }),
-  fc.constantFrom(0, -1, 1e308, -1e-308, 2 ** 53, 0.5, 'k.tif', '', ' ', '.', '..', '/', 'k.json', 'missing.tif', 'EPSG:4326', 'EPSG:3857', 'west', 'auto', 'jacobi', null, [], {}),
+  fc.constantFrom(
+    0,
+    -1,
+    1e308,
+    -1e-308,
+    2 ** 53,
+    0.5,
+    'k.tif',
+    '',
+    ' ',
+    '.',
+    '..',
+    '/',
+    'k.json',
+    'missing.tif',
+    'EPSG:4326',
+    'EPSG:3857',
+    'west',
+    'auto',
+    'jacobi',
+    null,
+    [],
+    {},
+  ),
 );
 
 const edit = fc.record({ path: fc.constantFrom(...scenarioPaths), value: fc.option(oddValue, { nil: undefined }) });
@@ -197,7 +263,11 @@ function applyEdit(target: Record<string, unknown>, path: Array<string | number>
 }
 
 /** Text damage: a character deleted, replaced or inserted. */
-const textEdit = fc.record({ at: fc.nat(), remove: fc.integer({ min: 0, max: 3 }), insert: fc.constantFrom('', '"', ',', '{', '}', '[', ']', ':', '0', '-', 'e', '\\', '\u0000', '\ufeff', 'NaN', '1e999') });
+const textEdit = fc.record({
+  at: fc.nat(),
+  remove: fc.integer({ min: 0, max: 3 }),
+  insert: fc.constantFrom('', '"', ',', '{', '}', '[', ']', ':', '0', '-', 'e', '\\', '\u0000', '\ufeff', 'NaN', '1e999'),
+});
 
 async function loadAndAssemble(path: string): Promise<void> {
   const { model } = await loadScenario(path);
@@ -269,28 +339,58 @@ describe('fuzzing GeoJSON shapes', () => {
     const lake = {
       type: 'FeatureCollection',
       crs: { type: 'name', properties: { name: 'urn:ogc:def:crs:EPSG::32633' } },
-      features: [{ type: 'Feature', properties: { level: 46.5 }, geometry: { type: 'Polygon', coordinates: [[[x0, y0], [x0 + 250, y0], [x0 + 250, y0 + 250], [x0, y0 + 250], [x0, y0]]] } }],
+      features: [
+        {
+          type: 'Feature',
+          properties: { level: 46.5 },
+          geometry: {
+            type: 'Polygon',
+            coordinates: [
+              [
+                [x0, y0],
+                [x0 + 250, y0],
+                [x0 + 250, y0 + 250],
+                [x0, y0 + 250],
+                [x0, y0],
+              ],
+            ],
+          },
+        },
+      ],
     };
     const text = JSON.stringify(lake);
     const scenario = join(dir, 'lake-scenario.json');
-    writeFileSync(scenario, JSON.stringify({ ...baseScenario(), fixedHeads: [{ edge: 'west', head: 50 }, { shape: 'lake.geojson', headProperty: 'level' }] }));
-    await fc.assert(
-      fc.asyncProperty(fc.array(textEdit, { minLength: 1, maxLength: 3 }), fc.option(oddValue, { nil: undefined }), async (edits, value) => {
-        let damaged = text;
-        if (value !== undefined) damaged = damaged.replace('46.5', JSON.stringify(value) ?? 'null');
-        for (const e of edits) {
-          const at = e.at % (damaged.length + 1);
-          damaged = damaged.slice(0, at) + e.insert + damaged.slice(at + e.remove);
-        }
-        writeFileSync(join(dir, 'lake.geojson'), damaged);
-        await timed(async () => {
-          try {
-            await loadAndAssemble(scenario);
-          } catch (thrown) {
-            expectCleanInputError(thrown);
-          }
-        });
+    writeFileSync(
+      scenario,
+      JSON.stringify({
+        ...baseScenario(),
+        fixedHeads: [
+          { edge: 'west', head: 50 },
+          { shape: 'lake.geojson', headProperty: 'level' },
+        ],
       }),
+    );
+    await fc.assert(
+      fc.asyncProperty(
+        fc.array(textEdit, { minLength: 1, maxLength: 3 }),
+        fc.option(oddValue, { nil: undefined }),
+        async (edits, value) => {
+          let damaged = text;
+          if (value !== undefined) damaged = damaged.replace('46.5', JSON.stringify(value) ?? 'null');
+          for (const e of edits) {
+            const at = e.at % (damaged.length + 1);
+            damaged = damaged.slice(0, at) + e.insert + damaged.slice(at + e.remove);
+          }
+          writeFileSync(join(dir, 'lake.geojson'), damaged);
+          await timed(async () => {
+            try {
+              await loadAndAssemble(scenario);
+            } catch (thrown) {
+              expectCleanInputError(thrown);
+            }
+          });
+        },
+      ),
       { seed: 5501 + SEED_OFFSET, numRuns: Math.round(120 * RUN_SCALE) },
     );
   }, 120_000);
@@ -346,7 +446,11 @@ describe('fuzzed inputs through the command line', () => {
     });
     const codes: number[] = [];
     scenarios.forEach((path, i) => {
-      const r = spawnSync(process.execPath, [BIN, 'inspect', path], { encoding: 'utf8', timeout: 60_000, env: { ...process.env, PIEZOMAP_MEMORY_LIMIT_MB: String(LIMIT_MB) } });
+      const r = spawnSync(process.execPath, [BIN, 'inspect', path], {
+        encoding: 'utf8',
+        timeout: 60_000,
+        env: { ...process.env, PIEZOMAP_MEMORY_LIMIT_MB: String(LIMIT_MB) },
+      });
       codes.push(r.status ?? -1);
       expect([0, 2], `${path}: ${r.stderr}`).toContain(r.status);
       expect(r.stderr).not.toMatch(/\n\s+at |internal error/);

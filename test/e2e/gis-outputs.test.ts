@@ -13,7 +13,8 @@ import { writeSolveResults } from '../../src/output/solveFiles.js';
 import { compareScenario } from '../../src/compare/run.js';
 import { writeComparisonResults } from '../../src/output/comparisonFiles.js';
 
-const gdalPresent = spawnSync('gdalinfo', ['--version'], { encoding: 'utf8' }).status === 0 && spawnSync('ogrinfo', ['--version']).status === 0;
+const gdalPresent =
+  spawnSync('gdalinfo', ['--version'], { encoding: 'utf8' }).status === 0 && spawnSync('ogrinfo', ['--version']).status === 0;
 const onCi = process.env.CI === 'true';
 if (!gdalPresent && !onCi) console.warn('gis-outputs.test.ts: gdalinfo/ogrinfo not on PATH; skipped (install gdal-bin to run it)');
 

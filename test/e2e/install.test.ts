@@ -98,44 +98,65 @@ describe('the packed package installed into another project', () => {
     expect(install.code, install.output).toBe(0);
   }, 150_000);
 
-    it('ships the built library, the command, its types and the demo data, and not the sources or tests', () => {
-      const installed = join(consumer, 'node_modules', 'piezomap');
-      for (const file of ['bin/piezomap.js', 'dist/src/index.js', 'dist/src/index.d.ts', 'dist/src/executor/solveWorker.js', 'data/valley.json']) {
-        expect(existsSync(join(installed, file)), file).toBe(true);
-      }
-      for (const folder of ['src', 'test', 'dist/bench', 'dist/scripts', 'node_modules/typescript']) expect(existsSync(join(installed, folder)), folder).toBe(false);
-    });
+  it('ships the built library, the command, its types and the demo data, and not the sources or tests', () => {
+    const installed = join(consumer, 'node_modules', 'piezomap');
+    for (const file of [
+      'bin/piezomap.js',
+      'dist/src/index.js',
+      'dist/src/index.d.ts',
+      'dist/src/executor/solveWorker.js',
+      'data/valley.json',
+    ]) {
+      expect(existsSync(join(installed, file)), file).toBe(true);
+    }
+    for (const folder of ['src', 'test', 'dist/bench', 'dist/scripts', 'node_modules/typescript'])
+      expect(existsSync(join(installed, folder)), folder).toBe(false);
+  });
 
-    it('runs `npx piezomap --help` and `--version`', () => {
-      const help = run('npx', ['--no-install', 'piezomap', '--help'], consumer);
-      expect(help.code, help.output).toBe(0);
-      expect(help.stdout).toMatch(/^Usage: piezomap /);
-      for (const command of ['solve', 'compare', 'inspect', 'demo']) expect(help.stdout).toContain(command);
-      const version = run('npx', ['--no-install', 'piezomap', '--version'], consumer);
-      expect(version.stdout.trim()).toBe(JSON.parse(readFileSync(join(root, 'package.json'), 'utf8')).version);
-    });
+  it('runs `npx piezomap --help` and `--version`', () => {
+    const help = run('npx', ['--no-install', 'piezomap', '--help'], consumer);
+    expect(help.code, help.output).toBe(0);
+    expect(help.stdout).toMatch(/^Usage: piezomap /);
+    for (const command of ['solve', 'compare', 'inspect', 'demo']) expect(help.stdout).toContain(command);
+    const version = run('npx', ['--no-install', 'piezomap', '--version'], consumer);
+    expect(version.stdout.trim()).toBe(JSON.parse(readFileSync(join(root, 'package.json'), 'utf8')).version);
+  });
 
-    it("type-checks and runs the README's library example against the installed package", () => {
-      writeFileSync(join(consumer, 'example.ts'), readmeExample());
-      // Compiled with the project's TypeScript against the installed package's own declarations (its "types").
-      const tsc = run(
-        process.execPath,
-        [TSC, '--strict', '--target', 'es2022', '--module', 'nodenext', '--moduleResolution', 'nodenext', '--skipLibCheck',
-          '--typeRoots', join(root, 'node_modules', '@types'), '--types', 'node', 'example.ts'],
-        consumer,
-      );
-      expect(tsc.code, tsc.output).toBe(0);
-      const example = run(process.execPath, ['example.js'], consumer);
-      expect(example.code, example.output).toBe(0);
-      const lines = example.stdout.trim().split('\n');
-      expect(lines[0]).toMatch(/^baseline: \d+ iterations, discrepancy -?\d\.\de[-+]\d+ %$/);
-      expect(lines).toHaveLength(4);
-      const drawdowns = lines.slice(1).map((l) => Number(/max drawdown (\d+\.\d+) m/.exec(l)?.[1]));
-      // Linearity of the confined system (common practice: superposition): drawdown scales with the added rate.
-      expect(drawdowns[0]).toBeGreaterThan(0);
-      expect(drawdowns[1]! / drawdowns[0]!).toBeCloseTo(2, 1);
-      expect(drawdowns[2]! / drawdowns[0]!).toBeCloseTo(3, 1);
-    });
+  it("type-checks and runs the README's library example against the installed package", () => {
+    writeFileSync(join(consumer, 'example.ts'), readmeExample());
+    // Compiled with the project's TypeScript against the installed package's own declarations (its "types").
+    const tsc = run(
+      process.execPath,
+      [
+        TSC,
+        '--strict',
+        '--target',
+        'es2022',
+        '--module',
+        'nodenext',
+        '--moduleResolution',
+        'nodenext',
+        '--skipLibCheck',
+        '--typeRoots',
+        join(root, 'node_modules', '@types'),
+        '--types',
+        'node',
+        'example.ts',
+      ],
+      consumer,
+    );
+    expect(tsc.code, tsc.output).toBe(0);
+    const example = run(process.execPath, ['example.js'], consumer);
+    expect(example.code, example.output).toBe(0);
+    const lines = example.stdout.trim().split('\n');
+    expect(lines[0]).toMatch(/^baseline: \d+ iterations, discrepancy -?\d\.\de[-+]\d+ %$/);
+    expect(lines).toHaveLength(4);
+    const drawdowns = lines.slice(1).map((l) => Number(/max drawdown (\d+\.\d+) m/.exec(l)?.[1]));
+    // Linearity of the confined system (common practice: superposition): drawdown scales with the added rate.
+    expect(drawdowns[0]).toBeGreaterThan(0);
+    expect(drawdowns[1]! / drawdowns[0]!).toBeCloseTo(2, 1);
+    expect(drawdowns[2]! / drawdowns[0]!).toBeCloseTo(3, 1);
+  });
 });
 
 it('bin/piezomap.js says in one line, without a stack trace, when dist/ has not been built', () => {

@@ -27,7 +27,10 @@ beforeAll(() => {
     JSON.stringify({
       title: 'slow solve',
       aquifer: { conductivity: 'k.tif', thickness: 10 },
-      fixedHeads: [{ edge: 'west', head: 20 }, { edge: 'east', head: 10 }],
+      fixedHeads: [
+        { edge: 'west', head: 20 },
+        { edge: 'east', head: 10 },
+      ],
       recharge: 0.001,
       solver: { method: 'jacobi', tolerance: 1e-14, maxIterations: 100000000 },
     }),
@@ -39,10 +42,18 @@ beforeAll(() => {
     JSON.stringify({
       title: 'slow compare',
       aquifer: { conductivity: 'k.tif', thickness: 10 },
-      fixedHeads: [{ edge: 'west', head: 20 }, { edge: 'east', head: 10 }],
+      fixedHeads: [
+        { edge: 'west', head: 20 },
+        { edge: 'east', head: 10 },
+      ],
       recharge: 0.001,
       solver: { method: 'jacobi', tolerance: 1e-14, maxIterations: 100000000 },
-      variants: [{ name: 'more-pumping', wells: [{ id: 'W1', x: testGrid(n, n, 10).transform[0] + 1505, y: testGrid(n, n, 10).transform[3] - 1505, rate: -500 }] }],
+      variants: [
+        {
+          name: 'more-pumping',
+          wells: [{ id: 'W1', x: testGrid(n, n, 10).transform[0] + 1505, y: testGrid(n, n, 10).transform[3] - 1505, rate: -500 }],
+        },
+      ],
     }),
   );
 });
@@ -55,7 +66,9 @@ async function interruptDuringSolve(signal: 'SIGINT' | 'SIGTERM', out: string, c
   const child = spawn(process.execPath, [BIN, command, file, '-o', out], { env: { ...process.env, FORCE_COLOR: '0' } });
   let stderr = '';
   child.stderr.on('data', (d) => (stderr += d));
-  const exited = new Promise<{ code: number | null; signal: NodeJS.Signals | null }>((r) => child.on('exit', (code, sig) => r({ code, signal: sig })));
+  const exited = new Promise<{ code: number | null; signal: NodeJS.Signals | null }>((r) =>
+    child.on('exit', (code, sig) => r({ code, signal: sig })),
+  );
   // The output folder is made just before the solve starts; give the solver a moment to be well inside its loop.
   for (let i = 0; i < 600 && !existsSync(out); i++) await sleep(50);
   expect(existsSync(out), 'the run reached the solve').toBe(true);
@@ -67,7 +80,10 @@ async function interruptDuringSolve(signal: 'SIGINT' | 'SIGTERM', out: string, c
 }
 
 describe('interrupting a solve', () => {
-  for (const [signal, code] of [['SIGINT', 130], ['SIGTERM', 143]] as const) {
+  for (const [signal, code] of [
+    ['SIGINT', 130],
+    ['SIGTERM', 143],
+  ] as const) {
     it(`${signal} ends the run promptly with exit ${code}, a message, and an empty result folder`, async () => {
       const out = join(dir, `out-${signal}`);
       const r = await interruptDuringSolve(signal, out);
@@ -83,7 +99,10 @@ describe('interrupting a solve', () => {
 
 describe('interrupting a comparison', () => {
   // Before compare ran through the executor, SIGTERM waited for the current variant's solve to end (issue 9, item 10).
-  for (const [signal, code] of [['SIGINT', 130], ['SIGTERM', 143]] as const) {
+  for (const [signal, code] of [
+    ['SIGINT', 130],
+    ['SIGTERM', 143],
+  ] as const) {
     it(`${signal} ends compare promptly with exit ${code}, a message, and an empty result folder`, async () => {
       const out = join(dir, `compare-${signal}`);
       const r = await interruptDuringSolve(signal, out, 'compare');

@@ -14,7 +14,12 @@ afterAll(() => rmSync(out, { recursive: true, force: true }));
 
 describe('examples/compare-wells.ts', () => {
   it('compares two rates of a planned well on the demo scenario', async () => {
-    const [half, full] = await compareWellRates(demoScenarioPath(), { id: 'PW-3', x: 505272, y: 4105068 }, [-500, -1000], join(out, 'rates'));
+    const [half, full] = await compareWellRates(
+      demoScenarioPath(),
+      { id: 'PW-3', x: 505272, y: 4105068 },
+      [-500, -1000],
+      join(out, 'rates'),
+    );
     // The demo's river (bed bottom) and drain switch, so each variant is set up afresh (docs/compare.md).
     expect(half!.sharedOperator || full!.sharedOperator).toBe(false);
     // Linearity of confined steady flow (common practice: superposition): twice the rate, twice the drawdown,
@@ -40,7 +45,9 @@ describe('examples/compare-wells.ts', () => {
       const reaches = Object.values(o.reaches).reduce((sum: number, v) => sum + (v ?? 0), 0);
       expect(reaches).toBeCloseTo(o.sources.river!, 6);
     }
-    const csv = readFileSync(join(out, 'rates', 'comparison.csv'), 'utf8').trim().split('\n');
+    const csv = readFileSync(join(out, 'rates', 'comparison.csv'), 'utf8')
+      .trim()
+      .split('\n');
     expect(csv.slice(1).map((line) => line.split(',')[0])).toEqual(['PW-3-500', 'PW-3-1000']);
   });
 });

@@ -60,10 +60,21 @@ beforeAll(async () => {
   const n = 60;
   writeFileSync(join(dir, 'inputs', 'k.tif'), encodeFloat32GeoTiff(testGrid(n, n, 10), new Float64Array(n * n).fill(3)));
   // Two runs whose every result file differs: other fixed heads, other titles.
-  for (const [run, west] of [['A', 20], ['B', 26]] as const) {
+  for (const [run, west] of [
+    ['A', 20],
+    ['B', 26],
+  ] as const) {
     writeFileSync(
       scenario(run),
-      JSON.stringify({ title: `run ${run}`, aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ edge: 'west', head: west }, { edge: 'east', head: 10 }], recharge: 0.001 }),
+      JSON.stringify({
+        title: `run ${run}`,
+        aquifer: { conductivity: 'k.tif', thickness: 10 },
+        fixedHeads: [
+          { edge: 'west', head: west },
+          { edge: 'east', head: 10 },
+        ],
+        recharge: 0.001,
+      }),
     );
   }
   for (const run of ['A', 'B'] as const) {
@@ -83,7 +94,8 @@ function belongs(name: string, bytes: Buffer, run: string): boolean {
   const expected = join(ref(run as 'A' | 'B'), name);
   return existsSync(expected) && bytes.equals(readFileSync(expected));
 }
-const runOf = (summary: Record<string, unknown>) => (summary.title === 'run A' ? 'A' : summary.title === 'run B' ? 'B' : `unknown (${String(summary.title)})`);
+const runOf = (summary: Record<string, unknown>) =>
+  summary.title === 'run A' ? 'A' : summary.title === 'run B' ? 'B' : `unknown (${String(summary.title)})`;
 const stateOf = (out: string) => folderState(out, runOf, belongs);
 
 /**
@@ -107,7 +119,9 @@ describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
     let wroteAt = NaN;
     const t0 = performance.now();
     mkdirSync(out);
-    const first = await cli(['solve', scenario('A'), '-o', out, '--quiet'], (child) => onFirstWrite(out, child, () => (wroteAt = performance.now())));
+    const first = await cli(['solve', scenario('A'), '-o', out, '--quiet'], (child) =>
+      onFirstWrite(out, child, () => (wroteAt = performance.now())),
+    );
     expect(first.code, first.stderr).toBe(0);
     const typicalMs = first.seconds * 1000;
     const writingMs = Number.isFinite(wroteAt) ? Math.max(5, first.seconds * 1000 - (wroteAt - t0)) : 100;
@@ -151,16 +165,23 @@ describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
         tally.signals++;
         tally.sigint++;
         const hiddenAfter = filesBelow(out).filter((f) => f.startsWith('.'));
-        expect(hiddenAfter.filter((f) => !hiddenBefore.includes(f)), what).toEqual([]);
+        expect(
+          hiddenAfter.filter((f) => !hiddenBefore.includes(f)),
+          what,
+        ).toEqual([]);
       } else if (r.code === 130) {
         tally.signals++;
         tally.sigint++;
         // A signal the process answers leaves nothing of its own behind (what an earlier kill left may remain, when the
         // signal came before this run reached the folder), and its message matches what is there.
         const hiddenAfter = filesBelow(out).filter((f) => f.startsWith('.'));
-        expect(hiddenAfter.filter((f) => !hiddenBefore.includes(f)), what).toEqual([]);
+        expect(
+          hiddenAfter.filter((f) => !hiddenBefore.includes(f)),
+          what,
+        ).toEqual([]);
         if (existsSync(join(out, LOCK_FILE))) expect(JSON.parse(readFileSync(join(out, LOCK_FILE), 'utf8')).pid, what).not.toBe(r.pid);
-        if (/no result files were completed/.test(r.stderr)) expect(state.kind === 'complete' && state.run === run, `${what}: ${r.stderr}`).toBe(false);
+        if (/no result files were completed/.test(r.stderr))
+          expect(state.kind === 'complete' && state.run === run, `${what}: ${r.stderr}`).toBe(false);
         else expect(r.stderr, what).toMatch(/were complete before it/);
       } else {
         tally.finishedFirst++;
@@ -200,7 +221,7 @@ describe('SIGKILL and SIGINT at random instants of solve --overwrite', () => {
 });
 
 describe('two runs into one folder at once', () => {
-  it('refuses the second naming the first; a killed holder\'s stale lock is taken over with a note', async () => {
+  it("refuses the second naming the first; a killed holder's stale lock is taken over with a note", async () => {
     // A solve that runs for minutes (Jacobi on 300 x 300 cells to 1e-14), as in interrupt.test.ts.
     const slowDir = join(dir, 'slow');
     mkdirSync(slowDir);
@@ -208,7 +229,15 @@ describe('two runs into one folder at once', () => {
     writeFileSync(join(slowDir, 'k.tif'), encodeFloat32GeoTiff(testGrid(n, n, 10), new Float64Array(n * n).fill(3)));
     writeFileSync(
       join(slowDir, 'slow.json'),
-      JSON.stringify({ title: 'slow', aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ edge: 'west', head: 20 }, { edge: 'east', head: 10 }], solver: { method: 'jacobi', tolerance: 1e-14, maxIterations: 100000000 } }),
+      JSON.stringify({
+        title: 'slow',
+        aquifer: { conductivity: 'k.tif', thickness: 10 },
+        fixedHeads: [
+          { edge: 'west', head: 20 },
+          { edge: 'east', head: 10 },
+        ],
+        solver: { method: 'jacobi', tolerance: 1e-14, maxIterations: 100000000 },
+      }),
     );
     const out = join(dir, 'shared');
     let holder: ReturnType<typeof spawn> | undefined;
@@ -225,7 +254,9 @@ describe('two runs into one folder at once', () => {
     expect(existsSync(join(out, LOCK_FILE))).toBe(true);
     const third = await cli(['solve', scenario('A'), '-o', out]);
     expect(third.code, third.stderr).toBe(0);
-    expect(third.stderr).toMatch(new RegExp(`note: took over the stale lock of an earlier run into .*shared \\(PID ${holder!.pid} on host .*no longer running\\)`));
+    expect(third.stderr).toMatch(
+      new RegExp(`note: took over the stale lock of an earlier run into .*shared \\(PID ${holder!.pid} on host .*no longer running\\)`),
+    );
     const summary = JSON.parse(readFileSync(join(out, 'summary.json'), 'utf8')) as { warnings: string[] };
     expect(summary.warnings.join('\n')).toMatch(new RegExp(`stale lock .*PID ${holder!.pid}`));
     expect(stateOf(out)).toMatchObject({ kind: 'complete', run: 'A' });
@@ -238,10 +269,20 @@ describe('a result folder holding the inputs', () => {
     const own = join(dir, 'own');
     mkdirSync(own);
     const n = 20;
-    const headBytes = encodeFloat32GeoTiff(testGrid(n, n, 10), new Float64Array(n * n).map((_, p) => (p % n === 0 ? 20 : Number.NaN)));
+    const headBytes = encodeFloat32GeoTiff(
+      testGrid(n, n, 10),
+      new Float64Array(n * n).map((_, p) => (p % n === 0 ? 20 : Number.NaN)),
+    );
     writeFileSync(join(own, 'k.tif'), encodeFloat32GeoTiff(testGrid(n, n, 10), new Float64Array(n * n).fill(3)));
     writeFileSync(join(own, 'head.tif'), headBytes);
-    writeFileSync(join(own, 's.json'), JSON.stringify({ title: 'own', aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ raster: 'head.tif' }, { edge: 'east', head: 10 }] }));
+    writeFileSync(
+      join(own, 's.json'),
+      JSON.stringify({
+        title: 'own',
+        aquifer: { conductivity: 'k.tif', thickness: 10 },
+        fixedHeads: [{ raster: 'head.tif' }, { edge: 'east', head: 10 }],
+      }),
+    );
     const before = filesBelow(own).map((f) => [f, readFileSync(join(own, f))] as const);
     for (const flags of [[], ['--overwrite']]) {
       const r = await cli(['solve', join(own, 's.json'), '-o', own, '--quiet', ...flags]);

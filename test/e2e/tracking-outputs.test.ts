@@ -12,7 +12,8 @@ import { cpSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:f
 import { tmpdir } from 'node:os';
 import { join, resolve } from 'node:path';
 
-const gdalPresent = spawnSync('gdalinfo', ['--version'], { encoding: 'utf8' }).status === 0 && spawnSync('ogrinfo', ['--version']).status === 0;
+const gdalPresent =
+  spawnSync('gdalinfo', ['--version'], { encoding: 'utf8' }).status === 0 && spawnSync('ogrinfo', ['--version']).status === 0;
 const onCi = process.env.CI === 'true';
 if (!gdalPresent && !onCi) console.warn('tracking-outputs.test.ts: gdalinfo/ogrinfo not on PATH; skipped (install gdal-bin to run it)');
 
@@ -29,7 +30,10 @@ function cli(args: string[]): { status: number | null; stdout: string; stderr: s
 
 /** Attribute values of every feature, in order, as ogrinfo prints them (`name (Type) = value`). */
 function attributes(path: string, layer?: string): Array<Record<string, string>> {
-  const text = execFileSync('ogrinfo', ['-ro', '-al', '-geom=NO', path, ...(layer ? [layer] : [])], { encoding: 'utf8', maxBuffer: 64 << 20 });
+  const text = execFileSync('ogrinfo', ['-ro', '-al', '-geom=NO', path, ...(layer ? [layer] : [])], {
+    encoding: 'utf8',
+    maxBuffer: 64 << 20,
+  });
   const features: Array<Record<string, string>> = [];
   for (const line of text.split('\n')) {
     if (/^OGRFeature/.test(line)) features.push({});
@@ -84,7 +88,9 @@ describe.runIf(gdalPresent || onCi)('tracking files of solve and compare, read b
     const full = execFileSync('ogrinfo', ['-ro', '-al', path], { encoding: 'utf8', maxBuffer: 64 << 20 });
     expect((full.match(/^\s*(MULTI)?POLYGON \(/gm) ?? []).length).toBe(6);
     const features = attributes(path);
-    expect(features.map((f) => `${f.well}@${f.time}`).sort()).toEqual(['PW-1@(null)', 'PW-1@365', 'PW-1@3650', 'PW-2@(null)', 'PW-2@365', 'PW-2@3650'].sort());
+    expect(features.map((f) => `${f.well}@${f.time}`).sort()).toEqual(
+      ['PW-1@(null)', 'PW-1@365', 'PW-1@3650', 'PW-2@(null)', 'PW-2@365', 'PW-2@3650'].sort(),
+    );
     // Longitude/latitude of the invented demo area (UTM 33N around 505 km E, 4105 km N).
     const extent = /Extent: \(([-\d.]+), ([-\d.]+)\) - \(([-\d.]+), ([-\d.]+)\)/.exec(summary)!.slice(1).map(Number);
     expect(extent[0]).toBeGreaterThan(14.9);
@@ -116,7 +122,10 @@ describe.runIf(gdalPresent || onCi)('tracking files of solve and compare, read b
   });
 
   it('the area property equals the planar area SpatiaLite computes from the native polygons', () => {
-    const rows = sql(join(solveOut, 'capture-zones.native.geojson'), 'SELECT area, ST_Area(geometry) AS measured FROM "capture-zones.native"');
+    const rows = sql(
+      join(solveOut, 'capture-zones.native.geojson'),
+      'SELECT area, ST_Area(geometry) AS measured FROM "capture-zones.native"',
+    );
     expect(rows).toHaveLength(6);
     for (const r of rows) expect(Math.abs(Number(r.area) - Number(r.measured)) / Number(r.measured)).toBeLessThan(1e-6);
   });
@@ -152,7 +161,10 @@ describe.runIf(gdalPresent || onCi)('tracking files of solve and compare, read b
     const numbers = new Set(wells.map((v) => v[2]).filter((v) => v !== -9999));
     expect([...numbers].sort()).toEqual([0, 1, 2]);
     const summary = JSON.parse(readFileSync(join(solveOut, 'summary.json'), 'utf8')).tracking;
-    expect(summary.wells.map((w: { id: string; rasterValue: number }) => [w.id, w.rasterValue])).toEqual([['PW-1', 1], ['PW-2', 2]]);
+    expect(summary.wells.map((w: { id: string; rasterValue: number }) => [w.id, w.rasterValue])).toEqual([
+      ['PW-1', 1],
+      ['PW-2', 2],
+    ]);
     let captured = 0;
     for (let k = 0; k < wells.length; k++) {
       const w = wells[k]![2];
@@ -188,7 +200,13 @@ describe.runIf(gdalPresent || onCi)('tracking files of solve and compare, read b
     // Zone area changes against each run's own summary.
     const comparison = JSON.parse(readFileSync(join(first, 'summary.json'), 'utf8'));
     const baseWells = JSON.parse(readFileSync(join(first, 'baseline', 'summary.json'), 'utf8')).tracking.wells;
-    const zones = comparison.variants[0].capture.zones as Array<{ well: string; time: number | null; baselineArea: number | null; variantArea: number | null; areaChange: number }>;
+    const zones = comparison.variants[0].capture.zones as Array<{
+      well: string;
+      time: number | null;
+      baselineArea: number | null;
+      variantArea: number | null;
+      areaChange: number;
+    }>;
     const pw1Steady = zones.find((z) => z.well === 'PW-1' && z.time === null)!;
     const pw1Base = baseWells.find((w: { id: string }) => w.id === 'PW-1').zones.find((z: { time: number | null }) => z.time === null).area;
     expect(pw1Steady.baselineArea).toBeCloseTo(pw1Base, 3);
@@ -199,7 +217,9 @@ describe.runIf(gdalPresent || onCi)('tracking files of solve and compare, read b
       expect(z.baselineArea).toBeNull();
       expect(z.areaChange).toBe(z.variantArea);
     }
-    expect(comparison.variants[0].capture.receptorsInNewCaptureZones.map((r: { receptor: string }) => r.receptor)).not.toContain('spring-new');
+    expect(comparison.variants[0].capture.receptorsInNewCaptureZones.map((r: { receptor: string }) => r.receptor)).not.toContain(
+      'spring-new',
+    );
 
     // The same comparison with a spring placed in that cell: it is named in the summary, printout and report.
     const copy = join(dir, 'data');

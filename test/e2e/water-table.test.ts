@@ -28,7 +28,11 @@ function stats(path: string): { min: number; max: number } {
 }
 
 describe.runIf(gdalPresent || onCi)('the unconfined demo, end to end', () => {
-  let summary: { grid: { activeCells: number; nx: number; ny: number }; aquifer: { type: string; dryCells: number }; solver: { outerStopReason: string } };
+  let summary: {
+    grid: { activeCells: number; nx: number; ny: number };
+    aquifer: { type: string; dryCells: number };
+    solver: { outerStopReason: string };
+  };
   beforeAll(async () => {
     dir = mkdtempSync(join(tmpdir(), 'piezomap-water-table-'));
     const solved = await solveScenarioFile(demo);
@@ -42,8 +46,14 @@ describe.runIf(gdalPresent || onCi)('the unconfined demo, end to end', () => {
     expect(summary.solver.outerStopReason).toBe('settled');
     const { nx, ny, activeCells } = summary.grid;
     // Every cell value as GDAL reads it (XYZ text), nodata counted.
-    const xyz = execFileSync('gdal_translate', ['-q', '-of', 'XYZ', join(dir, 'head.tif'), '/vsistdout/'], { encoding: 'utf8', maxBuffer: 1 << 26 });
-    const values = xyz.trim().split('\n').map((line) => Number(line.split(' ')[2]));
+    const xyz = execFileSync('gdal_translate', ['-q', '-of', 'XYZ', join(dir, 'head.tif'), '/vsistdout/'], {
+      encoding: 'utf8',
+      maxBuffer: 1 << 26,
+    });
+    const values = xyz
+      .trim()
+      .split('\n')
+      .map((line) => Number(line.split(' ')[2]));
     expect(values).toHaveLength(nx * ny);
     expect(values.filter((v) => v !== -9999)).toHaveLength(activeCells - summary.aquifer.dryCells);
     expect(summary.aquifer.dryCells).toBeGreaterThan(0);

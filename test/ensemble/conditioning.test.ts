@@ -39,9 +39,12 @@ describe('conditioning on measured ln K', () => {
   });
 
   it('refuses two measurements in one cell', () => {
-    expect(() => new Conditioner(spec, [
-      { id: 'A', row: 1, col: 1, y: 0 },
-      { id: 'B', row: 1, col: 1, y: 1 },
-    ])).toThrow(/"A" and "B" fall in the same cell/);
+    expect(
+      () =>
+        new Conditioner(spec, [
+          { id: 'A', row: 1, col: 1, y: 0 },
+          { id: 'B', row: 1, col: 1, y: 1 },
+        ]),
+    ).toThrow(/"A" and "B" fall in the same cell/);
   });
 });

@@ -45,7 +45,10 @@ function writeScenario(name: string, ensemble: Record<string, unknown>): string 
     JSON.stringify({
       title: 'ensemble test aquifer',
       aquifer: { conductivity: 'k.tif', thickness: 20 },
-      fixedHeads: [{ edge: 'west', head: 50, name: 'river' }, { edge: 'east', head: 47, name: 'outlet' }],
+      fixedHeads: [
+        { edge: 'west', head: 50, name: 'river' },
+        { edge: 'east', head: 47, name: 'outlet' },
+      ],
       recharge: 0.0002,
       wells: [{ id: 'PW-1', ...centre(8, 8), rate: -300 }],
       observations: [{ id: 'OB-1', ...centre(4, 12), head: 49 }],
@@ -161,7 +164,10 @@ describe('piezomap ensemble', () => {
       expect(probability).toBe(fraction);
     }
     // The thresholds were chosen to split this ensemble: not all 0 or all 1.
-    expect(receptor.exceedance.some((e: { probability: number }) => e.probability > 0 && e.probability < 1), drawdowns.join(" ")).toBe(true);
+    expect(
+      receptor.exceedance.some((e: { probability: number }) => e.probability > 0 && e.probability < 1),
+      drawdowns.join(' '),
+    ).toBe(true);
   });
 
   it('the same seed gives identical files, another seed other ones', () => {
@@ -193,7 +199,10 @@ describe('piezomap ensemble', () => {
   });
 
   it('conditioned realisations take the measured K at its cell', async () => {
-    writeFileSync(join(dir, 'k_measured.csv'), `id,x,y,k\nM1,${centre(5, 5).x},${centre(5, 5).y},12.5\nM2,${centre(12, 18).x},${centre(12, 18).y},2.25\n`);
+    writeFileSync(
+      join(dir, 'k_measured.csv'),
+      `id,x,y,k\nM1,${centre(5, 5).x},${centre(5, 5).y},12.5\nM2,${centre(12, 18).x},${centre(12, 18).y},2.25\n`,
+    );
     const scenario = writeScenario('cond.json', ensembleKey({ conditioning: 'k_measured.csv' }));
     const { model, raw } = await loadScenario(scenario);
     const ctx = prepareEnsemble(model, await resolveVariants(model, raw));

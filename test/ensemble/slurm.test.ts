@@ -20,7 +20,11 @@ const BIN = resolve(__dirname, '../../bin/piezomap.js');
 const TOOLS = ['munged', 'slurmctld', 'slurmd', 'sbatch', 'sinfo', 'scontrol'];
 const missing = TOOLS.filter((t) => spawnSync('sh', ['-c', `command -v ${t}`]).status !== 0);
 const isRoot = process.getuid?.() === 0;
-const why = missing.length ? `Slurm/munge not installed (${missing.join(', ')} missing; apt-get install slurm-wlm munge)` : !isRoot ? 'not root (the single-node Slurm of this test runs as root)' : null;
+const why = missing.length
+  ? `Slurm/munge not installed (${missing.join(', ')} missing; apt-get install slurm-wlm munge)`
+  : !isRoot
+    ? 'not root (the single-node Slurm of this test runs as root)'
+    : null;
 const inCi = process.env.CI === 'true';
 if (why && !inCi) console.warn(`slurm.test.ts: skipped: ${why}`);
 
@@ -45,7 +49,14 @@ function startCluster(): void {
   const key = join(dir, 'munge.key');
   writeFileSync(key, randomBytes(1024));
   chmodSync(key, 0o400);
-  const m = sh('munged', ['--force', `--socket=${dir}/munge.sock`, `--key-file=${key}`, `--pid-file=${dir}/munged.pid`, `--log-file=${dir}/munged.log`, `--seed-file=${dir}/munge.seed`]);
+  const m = sh('munged', [
+    '--force',
+    `--socket=${dir}/munge.sock`,
+    `--key-file=${key}`,
+    `--pid-file=${dir}/munged.pid`,
+    `--log-file=${dir}/munged.log`,
+    `--seed-file=${dir}/munge.seed`,
+  ]);
   if (m.code !== 0) throw new Error(`munged did not start: ${m.out}\n${logs()}`);
   mungePid = Number(readFileSync(join(dir, 'munged.pid'), 'utf8').trim());
   mkdirSync(join(dir, 'spool'));
@@ -155,31 +166,53 @@ describe.skipIf(why !== null && !inCi)('ensemble as a Slurm job array', () => {
     const ny = 14;
     const grid = testGrid(nx, ny, 100);
     const random = seededRandom(2);
-    writeFileSync(join(dir, 'k.tif'), encodeFloat32GeoTiff(grid, Float64Array.from({ length: nx * ny }, () => 5 * Math.exp(random() - 0.5))));
+    writeFileSync(
+      join(dir, 'k.tif'),
+      encodeFloat32GeoTiff(
+        grid,
+        Float64Array.from({ length: nx * ny }, () => 5 * Math.exp(random() - 0.5)),
+      ),
+    );
     const at = (row: number, col: number) => ({ x: 500000 + (col + 0.5) * 100, y: 4100000 - (row + 0.5) * 100 });
     const scenario = join(dir, 'ens.json');
     writeFileSync(
       scenario,
       JSON.stringify({
         aquifer: { conductivity: 'k.tif', thickness: 15 },
-        fixedHeads: [{ edge: 'west', head: 30 }, { edge: 'east', head: 28 }],
+        fixedHeads: [
+          { edge: 'west', head: 30 },
+          { edge: 'east', head: 28 },
+        ],
         wells: [{ id: 'W1', ...at(7, 8), rate: -200 }],
         receptors: [{ id: 'R1', ...at(7, 12) }],
         variants: [{ name: 'more', wells: [{ id: 'W1', rate: -400 }] }],
-        ensemble: { realisations: 9, seed: 21, logConductivity: { sd: 0.5, correlationLength: 400 }, drawdownThresholds: [0.5], percentiles: [50, 90] },
+        ensemble: {
+          realisations: 9,
+          seed: 21,
+          logConductivity: { sd: 0.5, correlationLength: 400 },
+          drawdownThresholds: [0.5],
+          percentiles: [50, 90],
+        },
       }),
     );
     const job = join(dir, 'job.sh');
-    writeFileSync(job, `#!/bin/sh\nexec "${process.execPath}" "${BIN}" ensemble "${scenario}" -o "${dir}/shard-$SLURM_ARRAY_TASK_ID" --shard auto --workers 1\n`);
+    writeFileSync(
+      job,
+      `#!/bin/sh\nexec "${process.execPath}" "${BIN}" ensemble "${scenario}" -o "${dir}/shard-$SLURM_ARRAY_TASK_ID" --shard auto --workers 1\n`,
+    );
     chmodSync(job, 0o755);
     const t0 = performance.now();
     const sub = sh('sbatch', ['--wait', '--array=0-2', '--cpus-per-task=1', `--output=${dir}/task-%a.log`, job]);
     const seconds = (performance.now() - t0) / 1000;
-    const taskLogs = [0, 1, 2].map((k) => (existsSync(join(dir, `task-${k}.log`)) ? readFileSync(join(dir, `task-${k}.log`), 'utf8') : '(no log)')).join('\n');
+    const taskLogs = [0, 1, 2]
+      .map((k) => (existsSync(join(dir, `task-${k}.log`)) ? readFileSync(join(dir, `task-${k}.log`), 'utf8') : '(no log)'))
+      .join('\n');
     expect(sub.code, `${sub.out}\n${taskLogs}\n${logs()}`).toBe(0);
     console.info(`slurm.test.ts: job array of 3 shards took ${seconds.toFixed(1)} s (sbatch --wait)`);
     const merged = join(dir, 'merged');
-    const m = spawnSync(process.execPath, [BIN, 'ensemble', 'merge', `${dir}/shard-0`, `${dir}/shard-1`, `${dir}/shard-2`, '-o', merged], { encoding: 'utf8' });
+    const m = spawnSync(process.execPath, [BIN, 'ensemble', 'merge', `${dir}/shard-0`, `${dir}/shard-1`, `${dir}/shard-2`, '-o', merged], {
+      encoding: 'utf8',
+    });
     expect(m.status, m.stderr).toBe(0);
     const one = join(dir, 'one');
     const r = spawnSync(process.execPath, [BIN, 'ensemble', scenario, '-o', one], { encoding: 'utf8' });

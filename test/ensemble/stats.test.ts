@@ -16,7 +16,7 @@ describe('ensemble statistics', () => {
     expect(quantileSorted([1, 2, 3, 4], 25)).toBe(1.75);
   });
 
-  it.skipIf(!numpy && process.env.CI !== 'true')('mean, sd and percentiles per cell equal NumPy\'s', () => {
+  it.skipIf(!numpy && process.env.CI !== 'true')("mean, sd and percentiles per cell equal NumPy's", () => {
     const random = seededRandom(9);
     const cells = 7;
     const stack = Array.from({ length: 13 }, () => Float32Array.from({ length: cells }, () => 10 * random() - 3));

@@ -24,7 +24,12 @@ export function fixedColumn(grid: Grid, col: number, head: number | ((row: numbe
 }
 
 export function fixedCells(name: string, list: Array<[number, number]>): FixedHeadInput {
-  return { name, source: `fixedHeads(${name})`, cells: Int32Array.from(list.map((c) => c[0])), heads: Float64Array.from(list.map((c) => c[1])) };
+  return {
+    name,
+    source: `fixedHeads(${name})`,
+    cells: Int32Array.from(list.map((c) => c[0])),
+    heads: Float64Array.from(list.map((c) => c[1])),
+  };
 }
 
 export function well(grid: Grid, id: string, row: number, col: number, rate: number): WellInput {

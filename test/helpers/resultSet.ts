@@ -18,12 +18,18 @@ export function filesBelow(folder: string): string[] {
   if (!existsSync(folder) || !statSync(folder).isDirectory()) return [];
   return readdirSync(folder, { recursive: true, withFileTypes: true })
     .filter((e) => e.isFile())
-    .map((e) => join(e.parentPath, e.name).slice(folder.length + 1).split('\\').join('/'))
+    .map((e) =>
+      join(e.parentPath, e.name)
+        .slice(folder.length + 1)
+        .split('\\')
+        .join('/'),
+    )
     .sort();
 }
 
 /** The lock, and the lock file being made (`.piezomap-lock-new-PID-...`, when a run is killed while taking the lock). */
-const recognised = (name: string) => name.startsWith(LOCK_FILE) || name.startsWith(`${STAGING_FOLDER}/`) || name.startsWith(`${COMMIT_FOLDER}/`);
+const recognised = (name: string) =>
+  name.startsWith(LOCK_FILE) || name.startsWith(`${STAGING_FOLDER}/`) || name.startsWith(`${COMMIT_FOLDER}/`);
 
 /**
  * Classify a folder; throw when it breaks the invariant. `runOf(summary)` names the run a summary.json describes;

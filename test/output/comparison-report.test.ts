@@ -15,12 +15,23 @@ import { loadScenario } from '../../src/scenario/load.js';
 
 /** Displayed number -> value: minus sign U+2212, thousands separators, exponent form. */
 function parseShown(text: string): number {
-  return Number(text.replace(/\u2212/g, '-').replace(/,/g, '').replace(/<[^>]*>/g, '').replace(/\s*\(.*\)$/, '').trim());
+  return Number(
+    text
+      .replace(/\u2212/g, '-')
+      .replace(/,/g, '')
+      .replace(/<[^>]*>/g, '')
+      .replace(/\s*\(.*\)$/, '')
+      .trim(),
+  );
 }
 
 /** Half a unit of the last digit shown (the rounding a displayed number carries). */
 function halfUnit(text: string): number {
-  const t = text.replace(/\u2212/g, '-').replace(/,/g, '').replace(/<[^>]*>/g, '').trim();
+  const t = text
+    .replace(/\u2212/g, '-')
+    .replace(/,/g, '')
+    .replace(/<[^>]*>/g, '')
+    .trim();
   const m = /^-?\d*(?:\.(\d*))?(?:e([-+]?\d+))?/.exec(t)!;
   const decimals = m[1]?.length ?? 0;
   const exponent = m[2] ? Number(m[2]) : 0;
@@ -43,7 +54,8 @@ beforeAll(async () => {
   summary = s;
   html = String(files.find((f) => f.name === 'report.html')!.bytes);
   printed = formatComparison(summary, null);
-  for (const m of html.matchAll(/data-key="([^"]+)"[^>]*>([^<]*(?:<span[^>]*>[^<]*<\/span>)?[^<]*)</g)) cells.set(m[1]!.replace(/&quot;/g, '"'), m[2]!);
+  for (const m of html.matchAll(/data-key="([^"]+)"[^>]*>([^<]*(?:<span[^>]*>[^<]*<\/span>)?[^<]*)</g))
+    cells.set(m[1]!.replace(/&quot;/g, '"'), m[2]!);
 }, 60_000);
 
 describe('comparison report against summary.json', () => {
@@ -64,7 +76,11 @@ describe('comparison report against summary.json', () => {
       wells: Array<{ id: string; wellboreHead: number | null; wellboreDrawdown: number | null }>;
       withdrawal: number;
       budget: { discrepancyPercent: number };
-      sourcesOfWater: { addedPumping: number; terms: Array<{ term: string; netChange: number; percentOfAddedPumping: number | null }>; totalPercent: number | null };
+      sourcesOfWater: {
+        addedPumping: number;
+        terms: Array<{ term: string; netChange: number; percentOfAddedPumping: number | null }>;
+        totalPercent: number | null;
+      };
       calibration: Record<string, number | null>;
     };
     let checked = 0;
@@ -92,11 +108,13 @@ describe('comparison report against summary.json', () => {
         check(`${v.name}.source.${t.term}.percent`, t.percentOfAddedPumping);
       }
       check(`${v.name}.sourcesTotalPercent`, v.sourcesOfWater.totalPercent);
-      for (const stat of ['meanError', 'meanAbsoluteError', 'rmsError', 'scaledRmsPercent']) check(`${v.name}.calibration.${stat}`, v.calibration[stat]);
+      for (const stat of ['meanError', 'meanAbsoluteError', 'rmsError', 'scaledRmsPercent'])
+        check(`${v.name}.calibration.${stat}`, v.calibration[stat]);
     }
     const base = summary.baseline as { wells: Array<{ id: string; wellboreHead: number }>; calibration: Record<string, number | null> };
     for (const w of base.wells) check(`baseline.well.${w.id}.wellboreHead`, w.wellboreHead);
-    for (const stat of ['meanError', 'meanAbsoluteError', 'rmsError', 'scaledRmsPercent']) check(`baseline.calibration.${stat}`, base.calibration[stat]);
+    for (const stat of ['meanError', 'meanAbsoluteError', 'rmsError', 'scaledRmsPercent'])
+      check(`baseline.calibration.${stat}`, base.calibration[stat]);
     // The demo: 1 variant, 2 receptors, 3 observation points, 3 wells, 4 budget terms.
     expect(checked).toBeGreaterThanOrEqual(30);
   });
@@ -113,7 +131,8 @@ describe('comparison report against summary.json', () => {
     header.forEach((h, k) => {
       let key: string | null = null;
       if (h === 'max s') key = `${name}.maxDrawdown`;
-      else if (h.startsWith('s ')) key = receptorIds.includes(h.slice(2)) ? `${name}.receptor.${h.slice(2)}` : `${name}.observation.${h.slice(2)}`;
+      else if (h.startsWith('s '))
+        key = receptorIds.includes(h.slice(2)) ? `${name}.receptor.${h.slice(2)}` : `${name}.observation.${h.slice(2)}`;
       else if (h.startsWith('withdrawal')) key = `${name}.withdrawal`;
       else if (h === 'discrepancy %') key = `${name}.discrepancyPercent`;
       else if (h.endsWith(' %')) key = `${name}.source.${h.slice(0, -2)}.percent`;
@@ -149,7 +168,11 @@ describe('comparison report: inputs, calibration plot, sources chart', () => {
     const { model, system } = comparison.baseline;
     let logSum = 0;
     let n = 0;
-    for (let p = 0; p < system.active.length; p++) if (system.active[p]) { logSum += Math.log(model.conductivity[p]!); n++; }
+    for (let p = 0; p < system.active.length; p++)
+      if (system.active[p]) {
+        logSum += Math.log(model.conductivity[p]!);
+        n++;
+      }
     const mean = Math.exp(logSum / n);
     const text = /geometric mean ([\d.]+) m\/d/.exec(html);
     expect(text).not.toBeNull();
@@ -167,7 +190,9 @@ describe('comparison report: inputs, calibration plot, sources chart', () => {
       expect(cells, name).toBe(system.terms.find((t) => t.label === name)!.cells.length);
     }
     // The east edge is fixed at 99 m in the scenario: both ends of its head range.
-    expect(html).toMatch(/<th scope="row">downstream-edge<\/th><td[^>]*>[\d,]+<\/td><td class="num">99\.000<\/td><td class="num">99\.000<\/td>/);
+    expect(html).toMatch(
+      /<th scope="row">downstream-edge<\/th><td[^>]*>[\d,]+<\/td><td class="num">99\.000<\/td><td class="num">99\.000<\/td>/,
+    );
   });
 
   it('draws observed against simulated heads with the 1:1 line beside the statistics, and a sources chart per variant', () => {
@@ -203,7 +228,9 @@ describe('drawdown noise', () => {
     expect(v.maxRise).toBe(0);
     for (const r of v.receptors) expect(r.drawdown).toBe(0);
     const { files } = comparisonFiles(c);
-    const contours = JSON.parse(String(files.find((f) => f.name === 'other-solver/drawdown-contours.geojson')!.bytes)) as { features: unknown[] };
+    const contours = JSON.parse(String(files.find((f) => f.name === 'other-solver/drawdown-contours.geojson')!.bytes)) as {
+      features: unknown[];
+    };
     expect(contours.features).toHaveLength(0);
   }, 60_000);
 
@@ -218,7 +245,7 @@ describe('drawdown noise', () => {
 });
 
 describe('docs/compare.md', () => {
-  it('shows the printed table of today\'s output (PIEZOMAP_UPDATE_DOCS=1 rewrites it)', () => {
+  it("shows the printed table of today's output (PIEZOMAP_UPDATE_DOCS=1 rewrites it)", () => {
     const lines = printed.split('\n');
     const from = lines.findIndex((l) => l.startsWith('Drawdown ('));
     // Up to the warnings, the results line or the blank line before the caution: nothing that changes per run.
@@ -227,7 +254,11 @@ describe('docs/compare.md', () => {
     const doc = readFileSync('docs/compare.md', 'utf8');
     const block = /(\*\*Printed table\*\*[^\n]*\n\n```text\n)([\s\S]*?)(\n```)/;
     expect(doc).toMatch(block);
-    if (process.env.PIEZOMAP_UPDATE_DOCS === '1') writeFileSync('docs/compare.md', doc.replace(block, (_, a: string, _b: string, c: string) => a + sample + c));
+    if (process.env.PIEZOMAP_UPDATE_DOCS === '1')
+      writeFileSync(
+        'docs/compare.md',
+        doc.replace(block, (_, a: string, _b: string, c: string) => a + sample + c),
+      );
     else expect(block.exec(doc)![2]).toBe(sample);
   });
 });

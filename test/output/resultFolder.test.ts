@@ -56,7 +56,8 @@ const state = (dir: string) =>
   folderState(
     dir,
     (s) => String(s.run),
-    (name, bytes, run) => (name.endsWith('summary.json') ? JSON.parse(bytes.toString()).run === run : bytes.toString() === `${run}:${name}\n`),
+    (name, bytes, run) =>
+      name.endsWith('summary.json') ? JSON.parse(bytes.toString()).run === run : bytes.toString() === `${run}:${name}\n`,
   );
 
 async function withOldSet(): Promise<string> {
@@ -104,7 +105,9 @@ describe('replacing results (--overwrite), cut short after every step', () => {
     writeFileSync(join(dir, STAGING_FOLDER, 'a', 'head.tif'), 'new:a/head.tif\n');
     expect(state(dir)).toMatchObject({ kind: 'complete', run: 'old' });
     const folder = await prepareResultFolder(dir, true);
-    expect(folder.notes.join('\n')).toMatch(/removed 1 leftover temporary file\(s\) or folder\(s\) of an interrupted earlier run .*\.piezomap-staging/);
+    expect(folder.notes.join('\n')).toMatch(
+      /removed 1 leftover temporary file\(s\) or folder\(s\) of an interrupted earlier run .*\.piezomap-staging/,
+    );
     expect(existsSync(join(dir, STAGING_FOLDER))).toBe(false);
     expect(state(dir)).toMatchObject({ kind: 'complete', run: 'old' });
     await writeResultFiles(folder, NEW);
@@ -118,7 +121,9 @@ describe('replacing results (--overwrite), cut short after every step', () => {
     writeFileSync(join(dir, 'a', '.piezomap-tmp-4242-1'), Buffer.alloc(1000));
     writeFileSync(join(dir, '.hidden-note-of-the-user'), 'mine\n');
     const folder = await prepareResultFolder(dir, true);
-    expect(folder.notes.join('\n')).toMatch(/removed 2 leftover temporary file\(s\).*\(3\.9 KiB: \.piezomap-tmp-4242-0, a\/\.piezomap-tmp-4242-1\)/);
+    expect(folder.notes.join('\n')).toMatch(
+      /removed 2 leftover temporary file\(s\).*\(3\.9 KiB: \.piezomap-tmp-4242-0, a\/\.piezomap-tmp-4242-1\)/,
+    );
     expect(existsSync(join(dir, '.piezomap-tmp-4242-0'))).toBe(false);
     expect(existsSync(join(dir, 'a', '.piezomap-tmp-4242-1'))).toBe(false);
     // Only piezomap's own names are touched.
@@ -135,11 +140,13 @@ describe('replacing results (--overwrite), cut short after every step', () => {
     expect(state(dir)).toMatchObject({ kind: 'complete', run: 'old' });
   });
 
-  it('a file at a result name that no earlier summary lists is the user\'s: refused, never replaced', async () => {
+  it("a file at a result name that no earlier summary lists is the user's: refused, never replaced", async () => {
     const dir = freshDir();
     mkdirSync(dir);
     writeFileSync(join(dir, 'head-map.png'), 'the user drew this\n');
-    await expect(writeResultFiles(dir, resultSet('new', ['head.tif', 'head-map.png']))).rejects.toThrow(/already holds head-map\.png, which no earlier piezomap run there lists/);
+    await expect(writeResultFiles(dir, resultSet('new', ['head.tif', 'head-map.png']))).rejects.toThrow(
+      /already holds head-map\.png, which no earlier piezomap run there lists/,
+    );
     expect(readFileSync(join(dir, 'head-map.png'), 'utf8')).toBe('the user drew this\n');
     expect(filesBelow(dir)).toEqual(['head-map.png']);
   });
@@ -150,7 +157,9 @@ describe('a result folder holding inputs of the run', () => {
     const dir = freshDir();
     mkdirSync(dir);
     writeFileSync(join(dir, 'head.tif'), 'fixed heads of the user\n');
-    await expect(prepareResultFolder(dir, true, [join(root, 'elsewhere.json'), join(dir, 'head.tif')])).rejects.toThrow(/holds an input of this run \(.*head\.tif\)/);
+    await expect(prepareResultFolder(dir, true, [join(root, 'elsewhere.json'), join(dir, 'head.tif')])).rejects.toThrow(
+      /holds an input of this run \(.*head\.tif\)/,
+    );
     expect(filesBelow(dir)).toEqual(['head.tif']);
     // Deeper in the folder counts as well.
     mkdirSync(join(dir, 'baseline'));
@@ -193,7 +202,9 @@ describe('the lock of a result folder', () => {
     await new Promise((started) => sleeper.once('spawn', started));
     try {
       writeFileSync(join(dir, LOCK_FILE), lockOf(sleeper.pid!));
-      await expect(prepareResultFolder(dir, false)).rejects.toThrow(new RegExp(`in use by another piezomap run \\(PID ${sleeper.pid} on host ${hostname()}`));
+      await expect(prepareResultFolder(dir, false)).rejects.toThrow(
+        new RegExp(`in use by another piezomap run \\(PID ${sleeper.pid} on host ${hostname()}`),
+      );
       // The holder's lock is left as it was.
       expect(JSON.parse(readFileSync(join(dir, LOCK_FILE), 'utf8')).pid).toBe(sleeper.pid);
     } finally {
@@ -205,7 +216,9 @@ describe('the lock of a result folder', () => {
     const dir = freshDir();
     mkdirSync(dir);
     writeFileSync(join(dir, LOCK_FILE), lockOf(1, 'some-other-host.invalid'));
-    await expect(prepareResultFolder(dir, false)).rejects.toThrow(/in use by another piezomap run \(PID 1 on host some-other-host\.invalid/);
+    await expect(prepareResultFolder(dir, false)).rejects.toThrow(
+      /in use by another piezomap run \(PID 1 on host some-other-host\.invalid/,
+    );
   });
 
   it('takes over a lock whose PID now belongs to a process started after the lock was taken (Linux /proc)', async () => {
@@ -217,7 +230,9 @@ describe('the lock of a result folder', () => {
       // The lock claims to be an hour old; the process now holding its PID has just started.
       writeFileSync(join(dir, LOCK_FILE), lockOf(sleeper.pid!, hostname(), new Date(Date.now() - 3600_000).toISOString()));
       const folder = await prepareResultFolder(dir, false);
-      expect(folder.notes.join('\n')).toMatch(new RegExp(`took over the stale lock .*PID ${sleeper.pid} .*its PID now belongs to a process started later`));
+      expect(folder.notes.join('\n')).toMatch(
+        new RegExp(`took over the stale lock .*PID ${sleeper.pid} .*its PID now belongs to a process started later`),
+      );
       releaseResultFolder(dir);
     } finally {
       sleeper.kill('SIGKILL');
@@ -244,7 +259,9 @@ describe('the lock of a result folder', () => {
     const pid = Number(gone.stdout);
     writeFileSync(join(dir, LOCK_FILE), lockOf(pid));
     const folder = await prepareResultFolder(dir, false);
-    expect(folder.notes.join('\n')).toMatch(new RegExp(`took over the stale lock of an earlier run .*PID ${pid} on host ${hostname()}.*no longer running`));
+    expect(folder.notes.join('\n')).toMatch(
+      new RegExp(`took over the stale lock of an earlier run .*PID ${pid} on host ${hostname()}.*no longer running`),
+    );
     expect(JSON.parse(readFileSync(join(dir, LOCK_FILE), 'utf8')).pid).toBe(process.pid);
     releaseResultFolder(dir);
     expect(filesBelow(dir)).toEqual([]);

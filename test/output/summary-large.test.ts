@@ -29,7 +29,11 @@ describe('outputs of a run with 200 000 wells', () => {
     // Without maps here: the map of many points has its own test (test/report/map-dense.test.ts).
     const bundle = resultBundle(result, '', { maps: false });
     expect(bundle.files.map((f) => f.name)).toContain('head.tif');
-    const summary = buildSummary(result, bundle.files.map((f) => f.name), 'test');
+    const summary = buildSummary(
+      result,
+      bundle.files.map((f) => f.name),
+      'test',
+    );
     expect(summary.wells).toHaveLength(200_000);
     const text = formatSummary(summary, null);
     expect(text).toContain(`... and ${(200_000 - MAX_PRINTED_ROWS).toLocaleString('en-US')} more wells (all in summary.json)`);

@@ -154,7 +154,7 @@ describe('readRaster reads every GDAL-written layout as GDAL does', () => {
     expect([i16.gdalType, i16.scale, i16.offset, i16.unit]).toEqual(['Int16', 0.004, 100, 'm']);
   });
 
-  it('readRaster counts the cells of an internal mask as missing, as GDAL\'s mask band does', async () => {
+  it("readRaster counts the cells of an internal mask as missing, as GDAL's mask band does", async () => {
     const masked = expected.good.filter((r) => r.masked);
     expect(masked.map((r) => r.file).sort()).toEqual(['f32-mask-strip-ovr.tif', 'f32-mask-tiled.tif', 'f32-translate-mask.tif']);
     for (const record of masked) {
@@ -288,11 +288,23 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     const strip = (bytes: Uint8Array, i: number) => new DataView(bytes.buffer).getUint32(offsetsAt + 4 * i, true);
     const cases: Array<[string, (bytes: Uint8Array) => void, RegExp]> = [
       ['strip-in-header', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 2, 0, true), /strip 2 .*overlaps the TIFF header/],
-      ['strip-in-ifd', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 1, ifd, true), /strip 1 .*overlaps the image file directory 0/],
-      ['strip-in-offsets', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 3, offsetsAt, true), /strip 3 .*overlaps the values of tag 273/],
+      [
+        'strip-in-ifd',
+        (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 1, ifd, true),
+        /strip 1 .*overlaps the image file directory 0/,
+      ],
+      [
+        'strip-in-offsets',
+        (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 3, offsetsAt, true),
+        /strip 3 .*overlaps the values of tag 273/,
+      ],
       ['strips-overlap', (b) => new DataView(b.buffer).setUint32(offsetsAt + 4 * 4, strip(b, 3) + 8, true), /strip 4 .*overlaps strip 3/],
       // the same class of damage in the tags: the tie point's doubles read from the IFD's own entries
-      ['tiepoint-in-ifd', (b) => new DataView(b.buffer).setUint32(entryOf(33922) + 8, ifd + 2, true), /the values of tag 33922 .*overlap the image file directory 0/],
+      [
+        'tiepoint-in-ifd',
+        (b) => new DataView(b.buffer).setUint32(entryOf(33922) + 8, ifd + 2, true),
+        /the values of tag 33922 .*overlap the image file directory 0/,
+      ],
     ];
     for (const [name, damage, message] of cases) {
       const bytes = source.slice();
@@ -352,11 +364,15 @@ describe('readRaster refuses bad files with an input error naming the file', () 
       ['fill-order', retagged(266, 2), /bits of each byte are stored in reverse order \(FillOrder 2\)/],
       ['orientation', retagged(274, 3), /another order than top-left first \(Orientation 3\)/],
       ['sub-images', retagged(330, 8), /sub-images \(SubIFDs\)/],
-      ['ifd-loop', (() => {
-        const bytes = source.slice();
-        new DataView(bytes.buffer).setUint32(ifd + 2 + 12 * entries, ifd, true); // the next IFD is this one
-        return bytes;
-      })(), /the file is damaged: its image file directories loop back or overlap/],
+      [
+        'ifd-loop',
+        (() => {
+          const bytes = source.slice();
+          new DataView(bytes.buffer).setUint32(ifd + 2 + 12 * entries, ifd, true); // the next IFD is this one
+          return bytes;
+        })(),
+        /the file is damaged: its image file directories loop back or overlap/,
+      ],
     ];
     for (const [name, bytes, message] of cases) {
       const path = join(tmp, `${name}.tif`);
@@ -406,7 +422,11 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     const imageStrip1 = new DataView(source.buffer).getUint32(list(imageOffsets, typeOf(imageOffsets)) + 4, true);
     const cases: Array<[string, (b: Uint8Array) => void, RegExp]> = [
       ['mask-missing-block', (b) => write(b, maskCounts, 0, 0), /mask strip 0 is missing/],
-      ['mask-over-image', (b) => write(b, maskOffsets, 0, imageStrip1), /the file is damaged: (mask strip 0 .*overlaps strip 1|strip 1 .*overlaps mask strip 0)/],
+      [
+        'mask-over-image',
+        (b) => write(b, maskOffsets, 0, imageStrip1),
+        /the file is damaged: (mask strip 0 .*overlaps strip 1|strip 1 .*overlaps mask strip 0)/,
+      ],
     ];
     for (const [name, damage, message] of cases) {
       const bytes = source.slice();
@@ -419,7 +439,6 @@ describe('readRaster refuses bad files with an input error naming the file', () 
     }
   });
 });
-
 
 describe('readRasterHeader reads size and sample type without decoding', () => {
   it('readRasterHeader reports what GDAL reports for the size, bands and type, and what reading would take', async () => {

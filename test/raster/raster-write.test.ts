@@ -118,7 +118,7 @@ describe('encodeFloat32GeoTiff round trips', () => {
     expect(raster.grid.crs!.geoKeys).toMatchObject({ GTModelTypeGeoKey: 2, GeographicTypeGeoKey: 4326 });
   });
 
-  it("a user-defined CRS read from a GDAL file keeps all its GeoKeys through our writer", async () => {
+  it('a user-defined CRS read from a GDAL file keeps all its GeoKeys through our writer', async () => {
     const source = await readRaster(join(fixtures, 'f32-userdefined-crs.tif'));
     const out = await readRaster(write('userdefined.tif', encodeFloat32GeoTiff(source.grid, source.values)));
     expect(out.grid.crs!.geoKeys).toEqual(source.grid.crs!.geoKeys);
@@ -170,7 +170,8 @@ describe('encodeFloat32GeoTiff refuses what it cannot write faithfully', () => {
   };
 
   it('a rotated geotransform', () => refuses(() => encodeFloat32GeoTiff(grid(4, 3, [0, 1, 0.1, 0, 0, -1]), v), /rotated/));
-  it('values that do not fill the grid', () => refuses(() => encodeFloat32GeoTiff(g, new Float64Array(11)), /11 values given for a 4 x 3 grid/));
+  it('values that do not fill the grid', () =>
+    refuses(() => encodeFloat32GeoTiff(g, new Float64Array(11)), /11 values given for a 4 x 3 grid/));
   it('a tile size that is not a multiple of 16', () => refuses(() => encodeFloat32GeoTiff(g, v, { tileSize: 100 }), /tileSize 100/));
   it('a nodata value Float32 cannot hold exactly', () => refuses(() => encodeFloat32GeoTiff(g, v, { nodata: 0.1 }), /nodata 0.1/));
   it('an unknown option name', () => refuses(() => encodeFloat32GeoTiff(g, v, { tilesize: 32 } as never), /unknown option "tilesize"/));
@@ -196,13 +197,14 @@ describe.runIf(gdalPresent || onCi)('GDAL reads our GeoTIFFs as we wrote them', 
   const g = grid(nx, ny, [512345.5, 30, 0, 4123456.5, 0, -30]);
   const values = surface(nx, ny);
   const path = write('gdal-check.tif', encodeFloat32GeoTiff(g, values, { tileSize: 64 }));
-  const info = () => JSON.parse(execFileSync('gdalinfo', ['-json', path], { encoding: 'utf8' })) as {
-    size: number[];
-    geoTransform: number[];
-    stac?: { 'proj:epsg'?: number };
-    bands: Array<{ type: string; noDataValue?: number; block: number[] }>;
-    metadata?: Record<string, Record<string, string>>;
-  };
+  const info = () =>
+    JSON.parse(execFileSync('gdalinfo', ['-json', path], { encoding: 'utf8' })) as {
+      size: number[];
+      geoTransform: number[];
+      stac?: { 'proj:epsg'?: number };
+      bands: Array<{ type: string; noDataValue?: number; block: number[] }>;
+      metadata?: Record<string, Record<string, string>>;
+    };
 
   it('gdalinfo reports our size, geotransform, EPSG code, nodata, type and tiling', () => {
     const report = info();
@@ -219,12 +221,22 @@ describe.runIf(gdalPresent || onCi)('GDAL reads our GeoTIFFs as we wrote them', 
 
   it('gdalinfo shows our description as the TIFF image description', () => {
     const described = write('gdal-described.tif', encodeFloat32GeoTiff(grid(20, 10), surface(20, 10), { description: 'head, baseline' }));
-    const report = JSON.parse(execFileSync('gdalinfo', ['-json', described], { encoding: 'utf8' })) as { metadata: Record<string, Record<string, string>> };
+    const report = JSON.parse(execFileSync('gdalinfo', ['-json', described], { encoding: 'utf8' })) as {
+      metadata: Record<string, Record<string, string>>;
+    };
     expect(report.metadata['']?.TIFFTAG_IMAGEDESCRIPTION).toBe('head, baseline');
   });
 
   it('gdallocationinfo gives our value at chosen cells, and nodata where we wrote NaN', () => {
-    const cells: Array<[number, number]> = [[0, 1], [5, 63], [5, 64], [100, 299], [169, 0], [169, 298], [12, 22]];
+    const cells: Array<[number, number]> = [
+      [0, 1],
+      [5, 63],
+      [5, 64],
+      [100, 299],
+      [169, 0],
+      [169, 298],
+      [12, 22],
+    ];
     const input = cells.map(([r, c]) => `${c} ${r}`).join('\n');
     const out = execFileSync('gdallocationinfo', ['-valonly', path], { input, encoding: 'utf8' }).trim().split('\n');
     expect(out).toHaveLength(cells.length);
@@ -261,7 +273,8 @@ describe.runIf(gdalPresent || onCi)('GDAL reads our GeoTIFFs as we wrote them', 
   it('GDAL reads a south-up grid and a BigTIFF of ours with the geotransform we wrote', () => {
     const southUp = write('gdal-south-up.tif', encodeFloat32GeoTiff(grid(40, 30, [500000, 25, 0, 4100000, 0, 25]), surface(40, 30)));
     const big = write('gdal-bigtiff.tif', encodeFloat32GeoTiff(grid(40, 30), surface(40, 30), { bigTiff: true, tileSize: 16 }));
-    const gt = (p: string) => (JSON.parse(execFileSync('gdalinfo', ['-json', p], { encoding: 'utf8' })) as { geoTransform: number[] }).geoTransform;
+    const gt = (p: string) =>
+      (JSON.parse(execFileSync('gdalinfo', ['-json', p], { encoding: 'utf8' })) as { geoTransform: number[] }).geoTransform;
     expect(gt(southUp)).toEqual([500000, 25, 0, 4100000, 0, 25]);
     expect(gt(big)).toEqual([500000, 50, 0, 4110000, 0, -50]);
     const value = execFileSync('gdallocationinfo', ['-valonly', big, '3', '2'], { encoding: 'utf8' }).trim();

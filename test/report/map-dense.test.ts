@@ -8,19 +8,34 @@ import type { Grid } from '../../src/grid.js';
 import { MAX_POINT_SYMBOLS, renderMapPng, renderMapSvg, type MapInput, type MapPoint } from '../../src/report/map.js';
 import { niceTicks } from '../../src/report/text.js';
 
-const CAUTION = 'Screening-level result. Outputs need review by a qualified hydrogeologist before any decision; local regulations and licensed practice govern.';
+const CAUTION =
+  'Screening-level result. Outputs need review by a qualified hydrogeologist before any decision; local regulations and licensed practice govern.';
 
 /** An invented 40 x 30 grid of 50 m cells with a head falling to the east. */
 function base(wells: MapPoint[], observations: MapPoint[] = []): MapInput {
   const grid: Grid = { nx: 40, ny: 30, transform: [600000, 50, 0, 5000000, 0, -50], crs: { epsg: 32633, geographic: false, geoKeys: {} } };
   const values = new Float64Array(1200);
   for (let p = 0; p < values.length; p++) values[p] = 100 - 0.1 * (p % 40);
-  return { grid, values, quantity: 'head', units: { length: 'm', time: 'd' }, title: 'Dense points (invented)', caution: CAUTION, wells, observations };
+  return {
+    grid,
+    values,
+    quantity: 'head',
+    units: { length: 'm', time: 'd' },
+    title: 'Dense points (invented)',
+    caution: CAUTION,
+    wells,
+    observations,
+  };
 }
 
 /** `count` wells at the centre of cell (row, col). */
 function cluster(count: number, row: number, col: number, start: number): MapPoint[] {
-  return Array.from({ length: count }, (_, k) => ({ id: `W${start + k}`, x: 600000 + (col + 0.5) * 50, y: 5000000 - (row + 0.5) * 50, rate: -1 }));
+  return Array.from({ length: count }, (_, k) => ({
+    id: `W${start + k}`,
+    x: 600000 + (col + 0.5) * 50,
+    y: 5000000 - (row + 0.5) * 50,
+    rate: -1,
+  }));
 }
 
 /** Number of element tags in an SVG text. */
@@ -51,7 +66,8 @@ describe('renderMapSvg with dense points', () => {
 
   it('keeps the drawing small and renders 200 000 wells and 2 000 observation points to PNG', () => {
     const wells: MapPoint[] = [];
-    for (let k = 0; k < 200_000; k++) wells.push({ id: `W${k}`, x: 600000 + ((k * 7919) % 2000), y: 5000000 - ((k * 104729) % 1500), rate: -1 });
+    for (let k = 0; k < 200_000; k++)
+      wells.push({ id: `W${k}`, x: 600000 + ((k * 7919) % 2000), y: 5000000 - ((k * 104729) % 1500), rate: -1 });
     const observations = cluster(2000, 12, 12, 0).map((o, k) => ({ ...o, id: `OB${k}` }));
     const input = base(wells, observations);
     const small = renderMapSvg(base(cluster(3, 5, 5, 0)));

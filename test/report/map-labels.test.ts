@@ -17,17 +17,20 @@ import { headMapInput } from '../../src/output/products.js';
 import { boxesIntersect, placePointLabels, type Box, type LabelBox } from '../../src/report/labels.js';
 import { renderMapSvg, type MapDrawing, type MapInput } from '../../src/report/map.js';
 
-const CAUTION = 'Screening-level result. Outputs need review by a qualified hydrogeologist before any decision; local regulations and licensed practice govern.';
+const CAUTION =
+  'Screening-level result. Outputs need review by a qualified hydrogeologist before any decision; local regulations and licensed practice govern.';
 
 function collisions(drawing: MapDrawing): string[] {
   const found: string[] = [];
   const { labels, symbols } = drawing;
   for (let a = 0; a < labels.length; a++) {
     for (let b = a + 1; b < labels.length; b++) {
-      if (boxesIntersect(labels[a]!, labels[b]!)) found.push(`"${labels[a]!.text}" (${labels[a]!.kind}) overlaps "${labels[b]!.text}" (${labels[b]!.kind})`);
+      if (boxesIntersect(labels[a]!, labels[b]!))
+        found.push(`"${labels[a]!.text}" (${labels[a]!.kind}) overlaps "${labels[b]!.text}" (${labels[b]!.kind})`);
     }
     if (labels[a]!.kind === 'point' || labels[a]!.kind === 'contour') {
-      for (const s of symbols) if (boxesIntersect(labels[a]!, s)) found.push(`"${labels[a]!.text}" covers a symbol at ${Math.round(s.x0)}, ${Math.round(s.y0)}`);
+      for (const s of symbols)
+        if (boxesIntersect(labels[a]!, s)) found.push(`"${labels[a]!.text}" covers a symbol at ${Math.round(s.x0)}, ${Math.round(s.y0)}`);
     }
   }
   return found;
@@ -50,12 +53,16 @@ describe('demo maps', () => {
       expect(collisions(drawing), name).toEqual([]);
       const points = drawing.labels.filter((l) => l.kind === 'point').map((l) => l.text);
       // Wells, observation points and receptors of the demo: each labelled once.
-      for (const id of ['PW-1', 'PW-2', 'OB-1', 'OB-2', 'OB-3', 'farm-well', 'wetland-edge']) expect(points.filter((t) => t === id), `${name}: ${id}`).toHaveLength(1);
+      for (const id of ['PW-1', 'PW-2', 'OB-1', 'OB-2', 'OB-3', 'farm-well', 'wetland-edge'])
+        expect(
+          points.filter((t) => t === id),
+          `${name}: ${id}`,
+        ).toHaveLength(1);
       expect(drawing.labels.filter((l) => l.kind === 'contour').length, name).toBeGreaterThanOrEqual(1);
     }
   });
 
-  it('cut every contour line at its labels: one hole in the lines\' mask per label', () => {
+  it("cut every contour line at its labels: one hole in the lines' mask per label", () => {
     for (const [name, drawing] of Object.entries(drawings)) {
       const mask = /<mask id="label-gaps"[\s\S]*?<\/mask>/.exec(drawing.svg)![0];
       const contourLabels = drawing.labels.filter((l) => l.kind === 'contour').length;
@@ -81,7 +88,10 @@ describe('demo maps', () => {
   it('give each fixed-head group and each head-dependent entry its own legend row and its own pattern', () => {
     const svg = drawings.head!.svg;
     const rows = ['Fixed head: downstream-edge', 'Fixed head: gravel-pit'];
-    const legend = drawings.head!.labels.filter((l) => l.kind === 'legend').map((l) => l.text).join(' ');
+    const legend = drawings
+      .head!.labels.filter((l) => l.kind === 'legend')
+      .map((l) => l.text)
+      .join(' ');
     // A long row wraps onto a second line: compare with the lines joined.
     for (const row of rows) expect(legend).toContain(row.split(': ')[1]);
     expect(legend.match(/Fixed head:/g)).toHaveLength(2);
@@ -95,7 +105,10 @@ describe('demo maps', () => {
 
   it('draw receptors with their own symbol and legend row, and state the noise level on the drawdown map', () => {
     const { svg, labels } = drawings.drawdown!;
-    const legend = labels.filter((l) => l.kind === 'legend').map((l) => l.text).join(' ');
+    const legend = labels
+      .filter((l) => l.kind === 'legend')
+      .map((l) => l.text)
+      .join(' ');
     expect(legend).toContain('Receptor');
     expect(svg.match(/<path d="M[^"]*" fill="#ffffff" stroke="#8b1e3f"/g)?.length).toBe(3); // two receptors + legend
     expect(legend).toMatch(/\|Change\| < [\d.e-]+ m/);
@@ -116,7 +129,14 @@ describe('placePointLabels', () => {
   });
 
   it('keeps twelve labels of a tight cluster apart, with leader lines for those moved away', () => {
-    const requests = Array.from({ length: 12 }, (_, k) => ({ x: 300 + (k % 4) * 9, y: 200 + Math.floor(k / 4) * 9, radius: 4, text: `W-${k + 1}`, size: 11, bold: false }));
+    const requests = Array.from({ length: 12 }, (_, k) => ({
+      x: 300 + (k % 4) * 9,
+      y: 200 + Math.floor(k / 4) * 9,
+      radius: 4,
+      text: `W-${k + 1}`,
+      size: 11,
+      bold: false,
+    }));
     const symbols = requests.map((r) => ({ x0: r.x - r.radius, y0: r.y - r.radius, x1: r.x + r.radius, y1: r.y + r.radius }));
     const placed = placePointLabels(requests, symbols, bounds);
     for (let a = 0; a < placed.length; a++) {
@@ -131,7 +151,8 @@ describe('renderMapSvg header', () => {
   it('wraps a long title instead of cutting it off, every word kept, every line inside the drawing', () => {
     const grid: Grid = { nx: 20, ny: 10, transform: [0, 10, 0, 100, 0, -10], crs: null };
     const values = Float64Array.from({ length: 200 }, (_, k) => 100 + (k % 20) * 0.1);
-    const title = 'Invented wellfield with a very long descriptive title that names the variant, the pumping plan, the season and the reviewer for the record';
+    const title =
+      'Invented wellfield with a very long descriptive title that names the variant, the pumping plan, the season and the reviewer for the record';
     const input: MapInput = { grid, values, quantity: 'head', units: { length: 'm', time: 'd' }, title, caution: CAUTION };
     const drawing = renderMapSvg(input, { width: 800 });
     const lines = drawing.labels.filter((l) => l.kind === 'header');
@@ -164,7 +185,15 @@ describe('label boxes against the browser', () => {
     const context = await chromium.launchPersistentContext(userDataDir, {
       executablePath,
       headless: true,
-      args: ['--headless', '--no-sandbox', '--disable-gpu', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
+      args: [
+        '--headless',
+        '--no-sandbox',
+        '--disable-gpu',
+        '--no-first-run',
+        '--disable-background-networking',
+        '--disable-component-update',
+        '--disable-sync',
+      ],
     });
     try {
       for (const [name, drawing] of Object.entries(drawings)) {
@@ -191,11 +220,13 @@ describe('label boxes against the browser', () => {
           }
         }
         // Horizontal texts: the layout's box holds the browser's (the widths the layout avoids are large enough).
-        const level: Array<{ text: string; x0: number; y0: number; x1: number; y1: number }> = await page.$$eval('.points text:not([stroke]), .legend text', (list) =>
-          list.map((t) => {
-            const r = t.getBoundingClientRect();
-            return { text: t.textContent ?? '', x0: r.left, y0: r.top, x1: r.right, y1: r.bottom };
-          }),
+        const level: Array<{ text: string; x0: number; y0: number; x1: number; y1: number }> = await page.$$eval(
+          '.points text:not([stroke]), .legend text',
+          (list) =>
+            list.map((t) => {
+              const r = t.getBoundingClientRect();
+              return { text: t.textContent ?? '', x0: r.left, y0: r.top, x1: r.right, y1: r.bottom };
+            }),
         );
         for (const m of level) {
           const ours = drawing.labels.find((l: LabelBox) => l.text === m.text && Math.abs(l.x0 - m.x0) < 3 && Math.abs(l.y1 - m.y1) < 8);
@@ -209,4 +240,3 @@ describe('label boxes against the browser', () => {
     }
   }, 60_000);
 });
-

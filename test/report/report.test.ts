@@ -132,18 +132,39 @@ describe('renderMapSvg on other grids', () => {
   it('draws no scale bar on a lon/lat grid and turns the north arrow for rows that run north', () => {
     const values = Float64Array.from({ length: 12 }, (_, k) => k);
     const geographic: Grid = { nx: 4, ny: 3, transform: [10, 0.01, 0, 45, 0, -0.01], crs: { epsg: 4326, geographic: true, geoKeys: {} } };
-    const lonLat = renderMapSvg({ grid: geographic, values, quantity: 'head', units: { length: 'm', time: 'd' }, title: 't', caution: CAUTION });
+    const lonLat = renderMapSvg({
+      grid: geographic,
+      values,
+      quantity: 'head',
+      units: { length: 'm', time: 'd' },
+      title: 't',
+      caution: CAUTION,
+    });
     expect(lonLat.svg).not.toContain('class="scale-bar"');
     expect(lonLat.svg).toContain('rotate(0)');
     const southUp: Grid = { nx: 4, ny: 3, transform: [0, 10, 0, 0, 0, 10], crs: null };
-    const flipped = renderMapSvg({ grid: southUp, values, quantity: 'head', units: { length: 'ft', time: 'd' }, title: 't', caution: CAUTION });
+    const flipped = renderMapSvg({
+      grid: southUp,
+      values,
+      quantity: 'head',
+      units: { length: 'ft', time: 'd' },
+      title: 't',
+      caution: CAUTION,
+    });
     expect(flipped.svg).toContain('rotate(180)');
     expect(flipped.svg).toMatch(/class="scale-bar"[\s\S]*? ft</);
   });
 
   it('copes with a field that has no active cell', () => {
     const grid: Grid = { nx: 3, ny: 2, transform: [0, 1, 0, 0, 0, -1], crs: null };
-    const { svg } = renderMapSvg({ grid, values: new Float64Array(6).fill(NaN), quantity: 'drawdown', units: { length: 'm', time: 'd' }, title: 'empty', caution: CAUTION });
+    const { svg } = renderMapSvg({
+      grid,
+      values: new Float64Array(6).fill(NaN),
+      quantity: 'drawdown',
+      units: { length: 'm', time: 'd' },
+      title: 'empty',
+      caution: CAUTION,
+    });
     expect(svg).toContain('Inactive (no flow)');
     expect(svg).not.toContain('data-level=');
   });
@@ -164,7 +185,14 @@ describe('renderMapPng', () => {
 
   it('paints each active cell in the published cividis colour of its head and leaves inactive cells blank', () => {
     // No arrows, wells or contours here so that cell pixels are unobstructed.
-    const bare: MapInput = { ...input, flux: undefined, wells: [], observations: [], cellLayers: [], contours: { levels: [], interval: 1 } };
+    const bare: MapInput = {
+      ...input,
+      flux: undefined,
+      wells: [],
+      observations: [],
+      cellLayers: [],
+      contours: { levels: [], interval: 1 },
+    };
     const drawing = renderMapPng(bare);
     const image = decode(drawing.png);
     const { grid, values } = bare;
@@ -180,7 +208,12 @@ describe('renderMapPng', () => {
       const o = 4 * (y * image.width + x);
       return [image.data[o]!, image.data[o + 1]!, image.data[o + 2]!];
     };
-    for (const [i, j] of [[5, 30], [20, 10], [30, 45], [55, 85]] as const) {
+    for (const [i, j] of [
+      [5, 30],
+      [20, 10],
+      [30, 45],
+      [55, 85],
+    ] as const) {
       const v = values[i * grid.nx + j]!;
       // The ramp uses cividis from 0.1 to 1 (Nunez et al. 2018, via d3-scale-chromatic as the reference).
       const expected = parseColour(interpolateCividis(0.1 + (0.9 * (v - min)) / (max - min)));
@@ -198,7 +231,16 @@ describe('renderMapPng', () => {
     const dd = new Float64Array(drawdown.length);
     for (let p = 0; p < dd.length; p++) dd[p] = Number.isFinite(drawdown[p]!) ? (p % grid.nx < 45 ? 0 : 2) : NaN;
     dd[0] = -2; // symmetric limits -2..2
-    const drawing = renderMapPng({ ...input, values: dd, quantity: 'drawdown', flux: undefined, wells: [], observations: [], cellLayers: [], contours: { levels: [], interval: null } });
+    const drawing = renderMapPng({
+      ...input,
+      values: dd,
+      quantity: 'drawdown',
+      flux: undefined,
+      wells: [],
+      observations: [],
+      cellLayers: [],
+      contours: { levels: [], interval: null },
+    });
     const image = decode(drawing.png);
     const scale = Math.min((1100 - 40 - 250) / (grid.nx * 25), 720 / (grid.ny * 25));
     const at = (i: number, j: number) => {
@@ -220,7 +262,13 @@ describe('renderMapPng', () => {
     mkdirSync(OUT, { recursive: true });
     const head = renderMapPng(input);
     writeFileSync(join(OUT, 'map-head.png'), head.png);
-    const dd = renderMapPng({ ...input, values: input.drawdown, quantity: 'drawdown', title: 'Variant expanded: drawdown', flux: undefined });
+    const dd = renderMapPng({
+      ...input,
+      values: input.drawdown,
+      quantity: 'drawdown',
+      title: 'Variant expanded: drawdown',
+      flux: undefined,
+    });
     writeFileSync(join(OUT, 'map-drawdown.png'), dd.png);
     expect(existsSync(join(OUT, 'map-head.png'))).toBe(true);
   });
@@ -245,12 +293,36 @@ describe('convergencePlotSvg', () => {
 function reportInput(kind: 'solve' | 'compare'): ReportInput {
   const input = inventedCase();
   const headMap = renderMapSvg(input).svg;
-  const ddMap = renderMapSvg({ ...input, values: input.drawdown, quantity: 'drawdown', title: 'Variant <i>x</i>: drawdown', flux: undefined }).svg;
+  const ddMap = renderMapSvg({
+    ...input,
+    values: input.drawdown,
+    quantity: 'drawdown',
+    title: 'Variant <i>x</i>: drawdown',
+    flux: undefined,
+  }).svg;
   const history = Array.from({ length: 140 }, (_, k) => Math.pow(0.88, k) * (1 + 0.2 * Math.sin(k)));
   const baseRun = {
     name: 'baseline',
-    solver: { method: 'pcg', converged: true, stopReason: 'converged', iterations: 139, relativeResidual: 1.4e-8, tolerance: 1e-8, criterion: '||r|| <= 1e-8 ||b||', solveSeconds: 0.042, history, notes: [`note with ${HOSTILE_ID}`] },
-    budget: { terms: [{ term: `west river ${HOSTILE_ID}`, inflow: 1520.5, outflow: 320.1 }, { term: 'wells', inflow: 300, outflow: 1500 }, { term: 'recharge', inflow: 0, outflow: 0 }], discrepancyPercent: 0.0002 },
+    solver: {
+      method: 'pcg',
+      converged: true,
+      stopReason: 'converged',
+      iterations: 139,
+      relativeResidual: 1.4e-8,
+      tolerance: 1e-8,
+      criterion: '||r|| <= 1e-8 ||b||',
+      solveSeconds: 0.042,
+      history,
+      notes: [`note with ${HOSTILE_ID}`],
+    },
+    budget: {
+      terms: [
+        { term: `west river ${HOSTILE_ID}`, inflow: 1520.5, outflow: 320.1 },
+        { term: 'wells', inflow: 300, outflow: 1500 },
+        { term: 'recharge', inflow: 0, outflow: 0 },
+      ],
+      discrepancyPercent: 0.0002,
+    },
     head: { min: 93.1, max: 100.2 },
     wells: input.wells!.map((w, k) => ({ id: w.id, x: w.x, y: w.y, row: 20 + k, col: 30 + k, rate: w.rate!, cellHead: 97 - k })),
     observations: [
@@ -277,7 +349,16 @@ function reportInput(kind: 'solve' | 'compare'): ReportInput {
     runs,
     variants:
       kind === 'compare'
-        ? [{ name: 'expanded', maxDrawdown: 2.7, totalWithdrawal: 1500, discrepancyPercent: 0.001, converged: true, observationDrawdowns: [0.4, 1.1] }]
+        ? [
+            {
+              name: 'expanded',
+              maxDrawdown: 2.7,
+              totalWithdrawal: 1500,
+              discrepancyPercent: 0.001,
+              converged: true,
+              observationDrawdowns: [0.4, 1.1],
+            },
+          ]
         : undefined,
     observationIds: ['OB-A', '<script>alert(3)</script>'],
     warnings: [`cell (3, 4): thickness below 1 m ${HOSTILE_ID}`],
@@ -370,7 +451,7 @@ describe('HTML report in headless Chromium', () => {
           expect(img.width).toBeGreaterThan(500);
           expect(img.height).toBeGreaterThan(300);
         }
-        const text = await page.innerText('body');
+        const text = await page.textContent('body');
         expect(text).toContain('<script>alert(1)</script>');
         expect(text).toContain('"><img src=x onerror=alert(2)>');
         expect(text).toContain('Screening-level result.');

@@ -21,8 +21,12 @@ describe('aquifer.type', () => {
   });
 
   it('refuses a thickness for unconfined and convertible aquifers, naming the key', () => {
-    expect(problem({ type: 'unconfined', bottom: 50, thickness: 20 })).toMatch(/aquifer\.thickness.*must not be given for an unconfined aquifer/);
-    expect(problem({ type: 'convertible', top: 90, bottom: 50, thickness: 20 })).toMatch(/aquifer\.thickness.*must not be given for a convertible aquifer/);
+    expect(problem({ type: 'unconfined', bottom: 50, thickness: 20 })).toMatch(
+      /aquifer\.thickness.*must not be given for an unconfined aquifer/,
+    );
+    expect(problem({ type: 'convertible', top: 90, bottom: 50, thickness: 20 })).toMatch(
+      /aquifer\.thickness.*must not be given for a convertible aquifer/,
+    );
   });
 
   it('needs a bottom (and for convertible a top)', () => {

@@ -16,7 +16,11 @@ import { solveModel } from '../../src/pipeline.js';
 
 const CRS = 'urn:ogc:def:crs:EPSG::32633';
 // 20 x 10 cells of 10 m, north-up, upper-left corner (500000, 4100100).
-const X0 = 500000, Y0 = 4100100, CELL = 10, NX = 20, NY = 10;
+const X0 = 500000,
+  Y0 = 4100100,
+  CELL = 10,
+  NX = 20,
+  NY = 10;
 const g: Grid = { nx: NX, ny: NY, transform: [X0, CELL, 0, Y0, 0, -CELL], crs: { epsg: 32633, geographic: false, geoKeys: {} } };
 
 let dir: string;
@@ -39,7 +43,12 @@ function scenario(name: string, extra: Record<string, unknown>): string {
   const path = join(dir, name);
   writeFileSync(
     path,
-    JSON.stringify({ aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ edge: 'west', head: 50 }], solver: { tolerance: 1e-12 }, ...extra }),
+    JSON.stringify({
+      aquifer: { conductivity: 'k.tif', thickness: 10 },
+      fixedHeads: [{ edge: 'west', head: 50 }],
+      solver: { tolerance: 1e-12 },
+      ...extra,
+    }),
   );
   return path;
 }
@@ -89,8 +98,20 @@ describe('headDependent entries from shapes', () => {
     // Two reaches along row 4 (y = Y0 - 45): x 55..105 and 105..175, i.e. 5 and 7 cells of 10 m.
     const y = Y0 - 45;
     shapes('creek.geojson', [
-      line([[X0 + 55, y], [X0 + 105, y]], { name: 'upper', stage: 49.5 }),
-      line([[X0 + 105, y], [X0 + 175, y]], { name: 'lower', stage: 49 }),
+      line(
+        [
+          [X0 + 55, y],
+          [X0 + 105, y],
+        ],
+        { name: 'upper', stage: 49.5 },
+      ),
+      line(
+        [
+          [X0 + 105, y],
+          [X0 + 175, y],
+        ],
+        { name: 'lower', stage: 49 },
+      ),
     ]);
     const path = scenario('creek.json', {
       headDependent: [{ name: 'creek', kind: 'river', shape: 'creek.geojson', headProperty: 'stage', leakance: 0.5, width: 4 }],
@@ -114,8 +135,27 @@ describe('headDependent entries from shapes', () => {
 
   it('gives polygon cells leakance x the cell area inside the polygon', async () => {
     // A 25 m x 20 m pond from x 100..125, y (Y0 - 60)..(Y0 - 40): cols 10-11 whole, col 12 half; rows 4-5.
-    shapes('pond.geojson', [{ type: 'Feature', properties: {}, geometry: { type: 'Polygon', coordinates: [[[X0 + 100, Y0 - 60], [X0 + 125, Y0 - 60], [X0 + 125, Y0 - 40], [X0 + 100, Y0 - 40], [X0 + 100, Y0 - 60]]] } }]);
-    const path = scenario('pond.json', { headDependent: [{ name: 'pond', kind: 'linear', shape: 'pond.geojson', head: 48, leakance: 0.1 }] });
+    shapes('pond.geojson', [
+      {
+        type: 'Feature',
+        properties: {},
+        geometry: {
+          type: 'Polygon',
+          coordinates: [
+            [
+              [X0 + 100, Y0 - 60],
+              [X0 + 125, Y0 - 60],
+              [X0 + 125, Y0 - 40],
+              [X0 + 100, Y0 - 40],
+              [X0 + 100, Y0 - 60],
+            ],
+          ],
+        },
+      },
+    ]);
+    const path = scenario('pond.json', {
+      headDependent: [{ name: 'pond', kind: 'linear', shape: 'pond.geojson', head: 48, leakance: 0.1 }],
+    });
     const { model } = await loadScenario(path);
     const entry = model.headDependent![0]!;
     expect(Array.from(entry.cells)).toEqual([4 * NX + 10, 4 * NX + 11, 4 * NX + 12, 5 * NX + 10, 5 * NX + 11, 5 * NX + 12]);
@@ -125,10 +165,26 @@ describe('headDependent entries from shapes', () => {
 
   it('warns of a perched river reach (bed bottom above the stage) and takes the bottom at the stage there', async () => {
     const y = Y0 - 45;
-    shapes('perched.geojson', [line([[X0 + 55, y], [X0 + 105, y]], { stage: 49, bed: [48, 49.5] })]);
-    const path = scenario('perched.json', { headDependent: [{ name: 'brook', kind: 'river', shape: 'perched.geojson', headProperty: 'stage', bottomProperty: 'bed', leakance: 1, width: 2 }] });
+    shapes('perched.geojson', [
+      line(
+        [
+          [X0 + 55, y],
+          [X0 + 105, y],
+        ],
+        { stage: 49, bed: [48, 49.5] },
+      ),
+    ]);
+    const path = scenario('perched.json', {
+      headDependent: [
+        { name: 'brook', kind: 'river', shape: 'perched.geojson', headProperty: 'stage', bottomProperty: 'bed', leakance: 1, width: 2 },
+      ],
+    });
     const { model } = await loadScenario(path);
-    expect(model.warnings.some((w) => /headDependent\[0\] \("brook"\): the bed bottom lies above the river stage at \d+ cell\(s\).*perched/.test(w))).toBe(true);
+    expect(
+      model.warnings.some((w) =>
+        /headDependent\[0\] \("brook"\): the bed bottom lies above the river stage at \d+ cell\(s\).*perched/.test(w),
+      ),
+    ).toBe(true);
     const entry = model.headDependent![0]!;
     for (let k = 0; k < entry.cells.length; k++) expect(entry.bottom![k]!).toBeLessThanOrEqual(entry.heads[k]!);
   });
@@ -139,19 +195,35 @@ describe('headDependent entries from shapes', () => {
       headDependent: [{ name: 'sump', kind: 'drain', edge: 'east', head: 25, conductance: 5 }],
     });
     const { model } = await loadScenario(path);
-    expect(model.warnings.some((w) => /headDependent\[0\] \("sump"\): the drain level lies below aquifer\.bottom at 10 cell\(s\)/.test(w))).toBe(true);
+    expect(
+      model.warnings.some((w) => /headDependent\[0\] \("sump"\): the drain level lies below aquifer\.bottom at 10 cell\(s\)/.test(w)),
+    ).toBe(true);
   });
 
   it('warns when a shape has no cell inside the grid', async () => {
-    shapes('far.geojson', [line([[X0 + 5000, Y0 - 45], [X0 + 5100, Y0 - 45]], { stage: 49 })]);
-    const path = scenario('far.json', { headDependent: [{ name: 'far', kind: 'drain', shape: 'far.geojson', headProperty: 'stage', conductance: 5 }] });
+    shapes('far.geojson', [
+      line(
+        [
+          [X0 + 5000, Y0 - 45],
+          [X0 + 5100, Y0 - 45],
+        ],
+        { stage: 49 },
+      ),
+    ]);
+    const path = scenario('far.json', {
+      headDependent: [{ name: 'far', kind: 'drain', shape: 'far.geojson', headProperty: 'stage', conductance: 5 }],
+    });
     const { model } = await loadScenario(path);
     expect(model.warnings.some((w) => /far\.geojson.*no feature covers a cell of the grid.*exchanges no water/.test(w))).toBe(true);
   });
 
   it('tells compare that a variant with other boundaries cannot share the baseline operator', async () => {
-    const a = (await loadScenario(scenario('a.json', { headDependent: [{ name: 'e', kind: 'linear', edge: 'east', head: 48, conductance: 5 }] }))).model;
-    const b = (await loadScenario(scenario('b.json', { headDependent: [{ name: 'e', kind: 'linear', edge: 'east', head: 48, conductance: 6 }] }))).model;
+    const a = (
+      await loadScenario(scenario('a.json', { headDependent: [{ name: 'e', kind: 'linear', edge: 'east', head: 48, conductance: 5 }] }))
+    ).model;
+    const b = (
+      await loadScenario(scenario('b.json', { headDependent: [{ name: 'e', kind: 'linear', edge: 'east', head: 48, conductance: 6 }] }))
+    ).model;
     const c = (await loadScenario(scenario('c.json', { leakage: { sourceHead: 51, leakance: 1e-3 } }))).model;
     expect(exchangeDifference(a, a)).toBeNull();
     expect(exchangeDifference(a, b)).toBe('headDependent differs');
@@ -166,13 +238,16 @@ describe('fixedHeads beside other boundaries', () => {
     // under the west cells is H + Q / C.
     const R = 0.001;
     const path = join(dir, 'no-fixed.json');
-    writeFileSync(path, JSON.stringify({
-      aquifer: { conductivity: 'k.tif', thickness: 10 },
-      fixedHeads: [],
-      recharge: R,
-      headDependent: [{ name: 'west-bank', kind: 'linear', edge: 'west', head: 50, conductance: 4 }],
-      solver: { tolerance: 1e-12 },
-    }));
+    writeFileSync(
+      path,
+      JSON.stringify({
+        aquifer: { conductivity: 'k.tif', thickness: 10 },
+        fixedHeads: [],
+        recharge: R,
+        headDependent: [{ name: 'west-bank', kind: 'linear', edge: 'west', head: 50, conductance: 4 }],
+        solver: { tolerance: 1e-12 },
+      }),
+    );
     const { model } = await loadScenario(path);
     const r = solveModel(model);
     const q = R * NX * CELL * CELL;
@@ -200,7 +275,8 @@ describe('headDependent and leakage from rasters', () => {
     }
     const leakance = new Float64Array(NX * NY).fill(1e-3);
     leakance[3 * NX + 7] = NaN;
-    const raster = (name: string, values: Float64Array) => writeFileSync(join(dir, name), encodeFloat32GeoTiff(g, values, { nodata: -9999 }));
+    const raster = (name: string, values: Float64Array) =>
+      writeFileSync(join(dir, name), encodeFloat32GeoTiff(g, values, { nodata: -9999 }));
     raster('stage.tif', stage);
     raster('cond.tif', conductance);
     raster('bed.tif', bottom);

@@ -4,14 +4,19 @@
  * binary64); heads within 1e15, where doubles are still 0.125 apart. Errors name the key and the cell.
  */
 import { describe, expect, it } from 'vitest';
-import { PiezomapError } from '../../src/errors.js';
+import type { PiezomapError } from '../../src/errors.js';
 import { checkMagnitudes } from '../../src/scenario/magnitudes.js';
 import type { ModelInput } from '../../src/scenario/types.js';
 import { fixedColumn, makeModel, testGrid, well } from '../helpers/model.js';
 
 function model(parts: Partial<ModelInput> = {}, k = 5): ModelInput {
   const grid = testGrid(6, 4, 10);
-  return makeModel(grid, { conductivity: new Float64Array(24).fill(k), thickness: 20, fixedHeads: [fixedColumn(grid, 0, 50, 'west')], ...parts });
+  return makeModel(grid, {
+    conductivity: new Float64Array(24).fill(k),
+    thickness: 20,
+    fixedHeads: [fixedColumn(grid, 0, 50, 'west')],
+    ...parts,
+  });
 }
 
 function caught(m: ModelInput): PiezomapError | null {
@@ -38,7 +43,9 @@ describe('checkMagnitudes', () => {
     k[20] = 1e99;
     const error = caught(model({ conductivity: k }));
     expect(error?.code).toBe('input');
-    expect(error?.message).toMatch(/aquifer\.conductivity "k\.tif": transmissivity K·b = 1\.000e\+99 × 2\.000e\+1 = 2\.000e\+100 at row 1, col 3 \(and 1 more/);
+    expect(error?.message).toMatch(
+      /aquifer\.conductivity "k\.tif": transmissivity K·b = 1\.000e\+99 × 2\.000e\+1 = 2\.000e\+100 at row 1, col 3 \(and 1 more/,
+    );
     expect(error?.detail.cell).toEqual({ row: 1, col: 3 });
   });
 
@@ -46,6 +53,8 @@ describe('checkMagnitudes', () => {
     expect(caught(model({ thickness: 1e-300 }))?.message).toMatch(/aquifer\.thickness 1\.000e-300/);
     const grid = testGrid(6, 4, 10);
     expect(caught(model({ wells: [well(grid, 'P-1', 1, 2, -1e101)] }))?.message).toMatch(/well "P-1" .*rate -1\.000e\+101 exceeds 1e100/);
-    expect(caught(model({ fixedHeads: [fixedColumn(grid, 0, 2e15, 'west')] }))?.message).toMatch(/"west"\): head 2\.000e\+15 at row 0, col 0 exceeds 1e15/);
+    expect(caught(model({ fixedHeads: [fixedColumn(grid, 0, 2e15, 'west')] }))?.message).toMatch(
+      /"west"\): head 2\.000e\+15 at row 0, col 0 exceeds 1e15/,
+    );
   });
 });

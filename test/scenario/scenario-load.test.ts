@@ -36,7 +36,11 @@ function writeTestRaster(path: string, g: TestGrid, values: number[], noData: nu
   const geographic = g.epsg === 4326;
   const crs: Crs =
     g.epsg === 32767
-      ? { epsg: null, geographic: false, geoKeys: { GTModelTypeGeoKey: 1, GTRasterTypeGeoKey: 1, ProjectedCSTypeGeoKey: 32767, PCSCitationGeoKey: 'invented local grid' } }
+      ? {
+          epsg: null,
+          geographic: false,
+          geoKeys: { GTModelTypeGeoKey: 1, GTRasterTypeGeoKey: 1, ProjectedCSTypeGeoKey: 32767, PCSCitationGeoKey: 'invented local grid' },
+        }
       : { epsg: g.epsg, geographic, geoKeys: {} };
   mkdirSync(resolve(path, '..'), { recursive: true });
   const cells = values.map((v) => (v === noData ? NaN : v));
@@ -76,15 +80,30 @@ beforeAll(() => {
   writeTestRaster(join(dir, 'k.tif'), grid, [5, 5, 5, nodata, 5, 6, 7, 8, 0, 5, 5, 5], nodata);
   writeTestRaster(join(dir, 'b.tif'), grid, [10, 10, 10, 10, 10, -1, 10, nodata, 10, 10, 10, 10], nodata);
   // River stage on the east column only; other cells have no data.
-  writeTestRaster(join(dir, 'river_stage.tif'), grid, [nodata, nodata, nodata, 95, nodata, nodata, nodata, 94.5, nodata, nodata, nodata, 94], nodata);
-  writeTestRaster(join(dir, 'recharge.tif'), grid, [0.001, 0.001, nodata, 0.001, 0.001, 0.001, 0.001, 0.001, 0.001, 0.001, 0.001, 0.001], nodata);
+  writeTestRaster(
+    join(dir, 'river_stage.tif'),
+    grid,
+    [nodata, nodata, nodata, 95, nodata, nodata, nodata, 94.5, nodata, nodata, nodata, 94],
+    nodata,
+  );
+  writeTestRaster(
+    join(dir, 'recharge.tif'),
+    grid,
+    [0.001, 0.001, nodata, 0.001, 0.001, 0.001, 0.001, 0.001, 0.001, 0.001, 0.001, 0.001],
+    nodata,
+  );
   writeTestRaster(join(dir, 'k_5x3.tif'), { ...grid, nx: 5 }, new Array(15).fill(1), nodata);
   writeTestRaster(join(dir, 'k_shifted.tif'), { ...grid, transform: [x0 + 50, 100, 0, y0, 0, -100] }, new Array(12).fill(1), nodata);
   writeTestRaster(join(dir, 'k_32634.tif'), { ...grid, epsg: 32634 }, new Array(12).fill(1), nodata);
   writeTestRaster(join(dir, 'k_none.tif'), grid, new Array(12).fill(nodata), nodata);
   writeTestRaster(join(dir, 'k_userdefined.tif'), { ...grid, epsg: 32767 }, new Array(12).fill(1), nodata);
   writeFileSync(join(dir, 'not_a_tiff.tif'), 'id,x,y\n');
-  writeTestRaster(join(dir, 'k_lonlat.tif'), { nx, ny, transform: [15, 0.001, 0, 45.2, 0, -0.001], epsg: 4326 }, new Array(12).fill(1), nodata);
+  writeTestRaster(
+    join(dir, 'k_lonlat.tif'),
+    { nx, ny, transform: [15, 0.001, 0, 45.2, 0, -0.001], epsg: 4326 },
+    new Array(12).fill(1),
+    nodata,
+  );
 });
 
 afterAll(() => {
@@ -129,7 +148,9 @@ describe('loadScenario', () => {
     expect([...(model.recharge as Float64Array)].slice(0, 4)).toEqual([r, r, 0, r]);
     expect(model.warnings).toContain('recharge "recharge.tif": 1 active cell(s) have no data; their recharge is taken as 0');
     // Thickness -1 (cell 5) and nodata (cell 7) where K has data: 2 cells made inactive.
-    expect(model.warnings).toContain('aquifer.thickness "b.tif": 2 cell(s) with a conductivity have no thickness > 0 there and are inactive');
+    expect(model.warnings).toContain(
+      'aquifer.thickness "b.tif": 2 cell(s) with a conductivity have no thickness > 0 there and are inactive',
+    );
     expect(model.wells).toEqual([{ id: 'W1', x: 539150, y: 5005150, rate: -50, radius: 0.1, source: 'wells[0]' }]);
     expect(model.observations).toEqual([{ id: 'OB1', x: 539150, y: 5005250, head: 99.5, source: 'obs.csv line 2' }]);
     expect(model.solver).toEqual({ method: 'auto', tolerance: 1e-9, maxIterations: 20000 });
@@ -155,11 +176,16 @@ describe('loadScenario', () => {
   it('warns when units.length disagrees with the linear unit of the raster CRS', async () => {
     const { model } = await loadScenario(scenario('feet.json', { ...base, units: { length: 'ft' } }));
     expect(model.units).toEqual({ length: 'ft', time: 'd' });
-    expect(model.warnings).toEqual(['units.length is "ft" but the CRS of "k.tif" measures in metre: cell sizes are taken in metre; keep the other inputs consistent']);
+    expect(model.warnings).toEqual([
+      'units.length is "ft" but the CRS of "k.tif" measures in metre: cell sizes are taken in metre; keep the other inputs consistent',
+    ]);
   });
 
   it('resolves an inline scenario against a given folder', async () => {
-    const inline: ScenarioJson = { aquifer: { conductivity: 'k.tif', thickness: 10, anisotropy: 1 }, fixedHeads: [{ edge: 'west', head: 100 }] };
+    const inline: ScenarioJson = {
+      aquifer: { conductivity: 'k.tif', thickness: 10, anisotropy: 1 },
+      fixedHeads: [{ edge: 'west', head: 100 }],
+    };
     const model = await resolveScenario(inline, dir, '<inline>');
     expect(model.title).toBe('Untitled scenario');
     expect(model.scenarioPath).toBe('<inline>');
@@ -189,7 +215,14 @@ describe('loadScenario', () => {
   it('finds the north row by map direction on a grid stored south-up', async () => {
     writeTestRaster(join(dir, 'k_southup.tif'), { ...grid, transform: [x0, 100, 0, y0 - 300, 0, 100] }, new Array(12).fill(1), nodata);
     const { model } = await loadScenario(
-      scenario('southup.json', { ...base, aquifer: { conductivity: 'k_southup.tif', thickness: 10 }, fixedHeads: [{ edge: 'north', head: 1 }, { edge: 'west', head: 2 }] }),
+      scenario('southup.json', {
+        ...base,
+        aquifer: { conductivity: 'k_southup.tif', thickness: 10 },
+        fixedHeads: [
+          { edge: 'north', head: 1 },
+          { edge: 'west', head: 2 },
+        ],
+      }),
     );
     expect(model.grid.transform[5]).toBe(100);
     expect(model.fixedHeads.map((g) => [g.name, [...g.cells]])).toEqual([
@@ -199,7 +232,15 @@ describe('loadScenario', () => {
   });
 
   it('refuses two fixed-head groups with the same name', async () => {
-    const error = await loadError(scenario('dupnames.json', { ...base, fixedHeads: [{ edge: 'west', head: 1 }, { raster: 'river_stage.tif', name: 'west' }] }));
+    const error = await loadError(
+      scenario('dupnames.json', {
+        ...base,
+        fixedHeads: [
+          { edge: 'west', head: 1 },
+          { raster: 'river_stage.tif', name: 'west' },
+        ],
+      }),
+    );
     expect(error.message).toContain('fixedHeads[1]: the fixed-head group name "west" is already used by fixedHeads[0]');
   });
 
@@ -212,7 +253,15 @@ describe('loadScenario', () => {
   });
 
   it('names type errors with their path', async () => {
-    const error = await loadError(scenario('types.json', { ...base, wells: [{ id: 'W1', x: 1, y: 2, rate: -1 }, { id: 'W2', x: 1, y: 2, rate: 'high' }] }));
+    const error = await loadError(
+      scenario('types.json', {
+        ...base,
+        wells: [
+          { id: 'W1', x: 1, y: 2, rate: -1 },
+          { id: 'W2', x: 1, y: 2, rate: 'high' },
+        ],
+      }),
+    );
     expect(error.message).toMatch(/: wells\[1\]\.rate: expected a number, got the string "high"$/);
   });
 
@@ -224,7 +273,10 @@ describe('loadScenario', () => {
   });
 
   it('refuses a key given twice, which JSON.parse would silently resolve', async () => {
-    const path = write('twice.json', JSON.stringify(base, null, 2).replace('"title"', '"recharge": 0.001,\n  "recharge": 0.002,\n  "title"'));
+    const path = write(
+      'twice.json',
+      JSON.stringify(base, null, 2).replace('"title"', '"recharge": 0.001,\n  "recharge": 0.002,\n  "title"'),
+    );
     const error = await loadError(path);
     expect(error.message).toBe(`${path} line 3, column 3: the key "recharge" appears twice in the same object`);
   });
@@ -259,10 +311,14 @@ describe('loadScenario', () => {
     const size = await loadError(scenario('mismatch-size.json', { ...base, recharge: 'k_5x3.tif' }));
     expect(size.message).toContain('recharge "k_5x3.tif" is not on the grid of aquifer.conductivity "k.tif": size 4x3 vs 5x3');
     expect(size.describe()).toContain('gdalwarp -t_srs EPSG:32633 -te 539000 5005000 539400 5005300 -ts 4 3 k_5x3.tif');
-    const shifted = await loadError(scenario('mismatch-transform.json', { ...base, aquifer: { conductivity: 'k.tif', thickness: 'k_shifted.tif' } }));
+    const shifted = await loadError(
+      scenario('mismatch-transform.json', { ...base, aquifer: { conductivity: 'k.tif', thickness: 'k_shifted.tif' } }),
+    );
     expect(shifted.message).toContain('aquifer.thickness "k_shifted.tif" is not on the grid of aquifer.conductivity "k.tif": geotransform');
     const crs = await loadError(scenario('mismatch-crs.json', { ...base, fixedHeads: [{ raster: 'k_32634.tif' }] }));
-    expect(crs.message).toContain('fixedHeads[0].raster "k_32634.tif" is not on the grid of aquifer.conductivity "k.tif": CRS EPSG:32633 vs EPSG:32634');
+    expect(crs.message).toContain(
+      'fixedHeads[0].raster "k_32634.tif" is not on the grid of aquifer.conductivity "k.tif": CRS EPSG:32633 vs EPSG:32634',
+    );
   });
 
   it('passes on a raster reader error with the scenario file and key in front', async () => {
@@ -313,10 +369,14 @@ describe('point lists from CSV', () => {
     expect(fields.message).toBe('wells-comma.csv line 2: 5 field(s) where the header has 4');
 
     write('wells-empty-x.csv', 'id,x,y,rate\nW1,,5005150,-50\n');
-    expect((await loadError(scenario('csv-empty.json', { ...base, wells: 'wells-empty-x.csv' }))).message).toBe('wells-empty-x.csv line 2: x is empty');
+    expect((await loadError(scenario('csv-empty.json', { ...base, wells: 'wells-empty-x.csv' }))).message).toBe(
+      'wells-empty-x.csv line 2: x is empty',
+    );
 
     write('obs-hex.csv', 'id,x,y,head\nOB1,0x10,5005150,3\n');
-    expect((await loadError(scenario('csv-hex.json', { ...base, observations: 'obs-hex.csv' }))).message).toBe('obs-hex.csv line 2: x "0x10" is not a number');
+    expect((await loadError(scenario('csv-hex.json', { ...base, observations: 'obs-hex.csv' }))).message).toBe(
+      'obs-hex.csv line 2: x "0x10" is not a number',
+    );
   });
 
   it('names a missing header column and a semicolon-separated file', async () => {
@@ -346,7 +406,12 @@ describe('pointCrs', () => {
   it('reprojects wells and observations from EPSG:4326 lon/lat to the raster CRS', async () => {
     write('obs-lonlat.csv', 'id,x,y,head\nOB1,15.5,45.2,99\n');
     const { model } = await loadScenario(
-      scenario('lonlat-points.json', { ...base, pointCrs: 'EPSG:4326', wells: [{ id: 'W1', x: 15.5, y: 45.2, rate: -10 }], observations: 'obs-lonlat.csv' }),
+      scenario('lonlat-points.json', {
+        ...base,
+        pointCrs: 'EPSG:4326',
+        wells: [{ id: 'W1', x: 15.5, y: 45.2, rate: -10 }],
+        observations: 'obs-lonlat.csv',
+      }),
     );
     // Reference: GDAL 3.6.2, `echo "15.5 45.2" | gdaltransform -s_srs EPSG:4326 -t_srs EPSG:32633 -output_xy`
     // printed 539270.307445004 5005289.84167271.
@@ -357,20 +422,32 @@ describe('pointCrs', () => {
   });
 
   it('leaves points alone when pointCrs is the raster CRS', async () => {
-    const { model } = await loadScenario(scenario('same-crs.json', { ...base, pointCrs: 'EPSG:32633', wells: [{ id: 'W1', x: 539150, y: 5005150, rate: -1 }] }));
+    const { model } = await loadScenario(
+      scenario('same-crs.json', { ...base, pointCrs: 'EPSG:32633', wells: [{ id: 'W1', x: 539150, y: 5005150, rate: -1 }] }),
+    );
     expect(model.wells[0]).toMatchObject({ x: 539150, y: 5005150 });
   });
 
   it('names an unknown EPSG code and a code needing a grid-shift file', async () => {
-    const unknown = await loadError(scenario('crs-unknown.json', { ...base, pointCrs: 'EPSG:99999', wells: [{ id: 'W1', x: 1, y: 2, rate: -1 }] }));
+    const unknown = await loadError(
+      scenario('crs-unknown.json', { ...base, pointCrs: 'EPSG:99999', wells: [{ id: 'W1', x: 1, y: 2, rate: -1 }] }),
+    );
     expect(unknown.code).toBe('input');
-    expect(unknown.message).toContain("pointCrs: reprojecting points from EPSG:99999 to the rasters' EPSG:32633: EPSG:99999 is not a known EPSG code");
-    const grid = await loadError(scenario('crs-grid.json', { ...base, pointCrs: 'EPSG:27700', wells: [{ id: 'W1', x: 1, y: 2, rate: -1 }] }));
+    expect(unknown.message).toContain(
+      "pointCrs: reprojecting points from EPSG:99999 to the rasters' EPSG:32633: EPSG:99999 is not a known EPSG code",
+    );
+    const grid = await loadError(
+      scenario('crs-grid.json', { ...base, pointCrs: 'EPSG:27700', wells: [{ id: 'W1', x: 1, y: 2, rate: -1 }] }),
+    );
     expect(grid.message).toContain('needs the datum grid-shift file');
   });
 
   it('refuses pointCrs when the rasters have no EPSG code, and loads them without it', async () => {
-    const userDefined = { ...base, aquifer: { conductivity: 'k_userdefined.tif', thickness: 10 }, wells: [{ id: 'W1', x: 539150, y: 5005150, rate: -1 }] };
+    const userDefined = {
+      ...base,
+      aquifer: { conductivity: 'k_userdefined.tif', thickness: 10 },
+      wells: [{ id: 'W1', x: 539150, y: 5005150, rate: -1 }],
+    };
     const { model } = await loadScenario(scenario('crs-user.json', userDefined));
     expect(model.grid.crs?.epsg ?? null).toBeNull();
     const error = await loadError(scenario('crs-user-points.json', { ...userDefined, pointCrs: 'EPSG:4326' }));
@@ -378,7 +455,9 @@ describe('pointCrs', () => {
   });
 
   it('names the well whose coordinates are not lon/lat', async () => {
-    const error = await loadError(scenario('crs-range.json', { ...base, pointCrs: 'EPSG:4326', wells: [{ id: 'W7', x: 539150, y: 5005150, rate: -1 }] }));
+    const error = await loadError(
+      scenario('crs-range.json', { ...base, pointCrs: 'EPSG:4326', wells: [{ id: 'W7', x: 539150, y: 5005150, rate: -1 }] }),
+    );
     expect(error.message).toContain('well "W7" (wells[0]): (539150, 5005150) is not a longitude/latitude pair');
   });
 });
@@ -421,14 +500,22 @@ describe('variants', () => {
 
   it('merges variant wells into baseline wells read from CSV', async () => {
     write('base-wells.csv', 'id,x,y,rate\nA,539150,5005150,-5\nB,539250,5005150,-6\n');
-    const path = scenario('variants-csv.json', { ...base, wells: 'base-wells.csv', variants: [{ name: 'b-off', wells: [{ id: 'B', rate: 0 }] }] });
+    const path = scenario('variants-csv.json', {
+      ...base,
+      wells: 'base-wells.csv',
+      variants: [{ name: 'b-off', wells: [{ id: 'B', rate: 0 }] }],
+    });
     const { raw } = await loadScenario(path);
     const model = await resolveScenario(mergeVariant(raw, raw.variants![0]!), dir, path);
     expect(model.wells.map((w) => [w.id, w.rate, w.source])).toEqual([['A', -5, 'base-wells.csv line 2']]);
   });
 
   it('names a new well in a variant that lacks coordinates or rate', async () => {
-    const path = scenario('variants-new.json', { ...base, wells: [{ id: 'W1', x: 539150, y: 5005150, rate: -5 }], variants: [{ name: 'typo', wells: [{ id: 'w1', rate: 0 }] }] });
+    const path = scenario('variants-new.json', {
+      ...base,
+      wells: [{ id: 'W1', x: 539150, y: 5005150, rate: -5 }],
+      variants: [{ name: 'typo', wells: [{ id: 'w1', rate: 0 }] }],
+    });
     const { raw } = await loadScenario(path);
     let error: unknown;
     try {
@@ -437,16 +524,23 @@ describe('variants', () => {
       error = thrown;
     }
     expect(error).toBeInstanceOf(PiezomapError);
-    expect((error as PiezomapError).message).toContain('variants "typo".wells[0]: well "w1" is new here, so it needs x, y (no earlier well has this id)');
+    expect((error as PiezomapError).message).toContain(
+      'variants "typo".wells[0]: well "w1" is new here, so it needs x, y (no earlier well has this id)',
+    );
   });
 
   it('takes scaled rasters in GDAL unscaled values and accepts a declared unit that matches its key (GDAL-written fixtures)', async () => {
     // u16-scale.tif: UInt16 with scale 0.001 (e.g. mm/d stored, m/d meant); i16-scale-offset.tif: Int16 x 0.004 + 100,
     // unit "m". expected.json holds GDAL 3.6's unscaled values (scripts/make-raster-fixtures.sh).
     const fixtures = resolve(__dirname, '../fixtures/rasters');
-    const expected = JSON.parse(readFileSync(join(fixtures, 'expected.json'), 'utf8')) as { good: Array<{ file: string; bands: Array<{ values: Array<number | null> }> }> };
+    const expected = JSON.parse(readFileSync(join(fixtures, 'expected.json'), 'utf8')) as {
+      good: Array<{ file: string; bands: Array<{ values: Array<number | null> }> }>;
+    };
     const gdalValues = (file: string) => expected.good.find((r) => r.file === file)!.bands[0]!.values;
-    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'i16-scale-offset.tif', anisotropy: 1 }, fixedHeads: [{ edge: 'west', head: 10 }] } as unknown as ScenarioJson;
+    const raw = {
+      aquifer: { conductivity: 'u16-scale.tif', thickness: 'i16-scale-offset.tif', anisotropy: 1 },
+      fixedHeads: [{ edge: 'west', head: 10 }],
+    } as unknown as ScenarioJson;
     const model = await resolveScenario(raw, fixtures, '<inline>');
     const k = gdalValues('u16-scale.tif');
     const b = gdalValues('i16-scale-offset.tif');
@@ -462,7 +556,10 @@ describe('variants', () => {
   it('refuses a raster whose declared unit is not the one its key is taken in; accepts it when the scenario units match', async () => {
     const fixtures = resolve(__dirname, '../fixtures/rasters');
     // f32-vertical-ftus.tif: GDAL gives its band the unit of its vertical CRS, the US survey foot
-    const raw = { aquifer: { conductivity: 'u16-scale.tif', thickness: 'f32-vertical-ftus.tif', anisotropy: 1 }, fixedHeads: [{ edge: 'west', head: 10 }] };
+    const raw = {
+      aquifer: { conductivity: 'u16-scale.tif', thickness: 'f32-vertical-ftus.tif', anisotropy: 1 },
+      fixedHeads: [{ edge: 'west', head: 10 }],
+    };
     let error: unknown;
     try {
       await resolveScenario(raw as unknown as ScenarioJson, fixtures, '<inline>');
@@ -479,4 +576,3 @@ describe('variants', () => {
     expect(inFeet.thickness).toBeInstanceOf(Float64Array);
   });
 });
-

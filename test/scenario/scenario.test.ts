@@ -112,7 +112,9 @@ describe('parseScenarioJson', () => {
   });
 
   it('refuses non-finite numbers (JSON.parse turns 1e400 into Infinity)', () => {
-    expect(errorsOf(JSON.parse(`{"aquifer": {"conductivity": "k.tif", "thickness": 1e400}, "fixedHeads": [{"edge": "west", "head": -1e400}]}`))).toEqual([
+    expect(
+      errorsOf(JSON.parse(`{"aquifer": {"conductivity": "k.tif", "thickness": 1e400}, "fixedHeads": [{"edge": "west", "head": -1e400}]}`)),
+    ).toEqual([
       'scenario.json: aquifer.thickness: expected a number, got Infinity',
       'scenario.json: fixedHeads[0].head: expected a number, got -Infinity',
     ]);
@@ -145,7 +147,9 @@ describe('parseScenarioJson', () => {
     expect(errorsOf({ ...minimal, wells: [{ id: 'W1', x: 0, y: 0, rate: -1, radius: 0 }] })).toEqual([
       'scenario.json: wells[0].radius: must be > 0 (got 0)',
     ]);
-    expect(errorsOf({ ...minimal, wells: 12 })).toEqual(['scenario.json: wells: expected a list of wells or the path of a CSV or GeoJSON file, got 12']);
+    expect(errorsOf({ ...minimal, wells: 12 })).toEqual([
+      'scenario.json: wells: expected a list of wells or the path of a CSV or GeoJSON file, got 12',
+    ]);
   });
 
   it('takes a whole-number id as text, and refuses an empty one', () => {
@@ -177,7 +181,13 @@ describe('parseScenarioJson', () => {
   it('checks variant names: pattern, reserved "baseline", unique; variants cannot nest', () => {
     const lines = errorsOf({
       ...minimal,
-      variants: [{ name: 'baseline' }, { name: 'a b' }, { name: 'wet', variants: [] }, { name: 'WET' }, { name: 'dry', aquifer: { thickness: 'x' } }],
+      variants: [
+        { name: 'baseline' },
+        { name: 'a b' },
+        { name: 'wet', variants: [] },
+        { name: 'WET' },
+        { name: 'dry', aquifer: { thickness: 'x' } },
+      ],
     });
     expect(lines).toEqual([
       'scenario.json: variants[0].name: "baseline" is reserved for the scenario itself',
@@ -208,7 +218,11 @@ describe('closest', () => {
 describe('findJsonSyntaxError', () => {
   it('gives the line and column of the first syntax error', () => {
     const text = '{\n  "title": "x",\n  "recharge": 0.001\n  "wells": []\n}';
-    expect(findJsonSyntaxError(text)).toEqual({ line: 4, column: 3, problem: 'expected "," or "}" after a value, found the string "wells"' });
+    expect(findJsonSyntaxError(text)).toEqual({
+      line: 4,
+      column: 3,
+      problem: 'expected "," or "}" after a value, found the string "wells"',
+    });
     expect(findJsonSyntaxError('[1 2]')?.problem).toBe('expected "," or "]" after a value, found "2"');
     expect(findJsonSyntaxError('{"a" 1}')?.problem).toBe('expected ":" after a key, found "1"');
     expect(findJsonSyntaxError('{\n  "a": 1,\n}')).toEqual({ line: 2, column: 9, problem: 'trailing comma before "}"' });
@@ -223,12 +237,31 @@ describe('findJsonSyntaxError', () => {
   it('finds a key repeated in one object only when asked', () => {
     const text = '{\n  "wells": [],\n  "aquifer": {"a": 1, "b": {"a": 2}},\n  "wells": "w.csv"\n}';
     expect(findJsonSyntaxError(text)).toBeNull();
-    expect(findJsonSyntaxError(text, { duplicateKeys: true })).toEqual({ line: 4, column: 3, problem: 'the key "wells" appears twice in the same object' });
-    expect(findJsonSyntaxError('{"a": {"x": 1}, "b": {"x": 1}, "\\u0061": 2}', { duplicateKeys: true })?.problem).toBe('the key "a" appears twice in the same object');
+    expect(findJsonSyntaxError(text, { duplicateKeys: true })).toEqual({
+      line: 4,
+      column: 3,
+      problem: 'the key "wells" appears twice in the same object',
+    });
+    expect(findJsonSyntaxError('{"a": {"x": 1}, "b": {"x": 1}, "\\u0061": 2}', { duplicateKeys: true })?.problem).toBe(
+      'the key "a" appears twice in the same object',
+    );
   });
 
   it('agrees with JSON.parse on what is valid (RFC 8259 grammar)', () => {
-    const samples = ['{}', '[]', '{"a":[1,-2.5e3,true,false,null,"\\u00e9\\n"]}', ' \n{"a" : { "b" : [ ] } }\r\n', '"x"', '1', '{"a":1,}', '[1 2]', '{"a":-}', '[.5]', '[1.]', '{"a":"\t"}'];
+    const samples = [
+      '{}',
+      '[]',
+      '{"a":[1,-2.5e3,true,false,null,"\\u00e9\\n"]}',
+      ' \n{"a" : { "b" : [ ] } }\r\n',
+      '"x"',
+      '1',
+      '{"a":1,}',
+      '[1 2]',
+      '{"a":-}',
+      '[.5]',
+      '[1.]',
+      '{"a":"\t"}',
+    ];
     for (const sample of samples) {
       let parses = true;
       try {
@@ -307,7 +340,10 @@ describe('crs', () => {
     } catch {
       return; // GDAL not installed: the literal references above still run.
     }
-    const expected = gdal.trim().split('\n').map((line) => line.trim().split(/\s+/).map(Number));
+    const expected = gdal
+      .trim()
+      .split('\n')
+      .map((line) => line.trim().split(/\s+/).map(Number));
     const t = makeTransform(4326, 32633);
     const points: Array<[number, number]> = [
       [12.1, 0.5],
@@ -374,11 +410,23 @@ describe('mergeVariant', () => {
   });
 
   it('stacks variant wells on the baseline wells, to merge by id when resolved', () => {
-    const merged = mergeVariant(base, { name: 'v', wells: [{ id: 'W1', rate: 0 }, { id: 'W3', x: 1, y: 2, rate: -5 }] });
+    const merged = mergeVariant(base, {
+      name: 'v',
+      wells: [
+        { id: 'W1', rate: 0 },
+        { id: 'W3', x: 1, y: 2, rate: -5 },
+      ],
+    });
     expect(merged.wells).toEqual({
       layers: [
         { source: 'wells', wells: base.wells },
-        { source: 'variants "v".wells', wells: [{ id: 'W1', rate: 0 }, { id: 'W3', x: 1, y: 2, rate: -5 }] },
+        {
+          source: 'variants "v".wells',
+          wells: [
+            { id: 'W1', rate: 0 },
+            { id: 'W3', x: 1, y: 2, rate: -5 },
+          ],
+        },
       ],
     });
     const csvBase = { ...base, wells: 'wells.csv' };

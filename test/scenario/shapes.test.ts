@@ -67,8 +67,20 @@ describe('rasterisePolygon', () => {
   it('fills a square lake with a hole by cell centre (literal 6 x 6 grid)', () => {
     // 1 m cells, origin (0, 6), north-up: cell (row, col) has its centre at (col + 0.5, 5.5 - row).
     const g = grid(6, 6, [0, 1, 0, 6, 0, -1]);
-    const outer: [number, number][] = [[0.8, 0.8], [5.2, 0.8], [5.2, 5.2], [0.8, 5.2], [0.8, 0.8]];
-    const hole: [number, number][] = [[2.2, 2.2], [2.2, 3.8], [3.8, 3.8], [3.8, 2.2], [2.2, 2.2]];
+    const outer: [number, number][] = [
+      [0.8, 0.8],
+      [5.2, 0.8],
+      [5.2, 5.2],
+      [0.8, 5.2],
+      [0.8, 0.8],
+    ];
+    const hole: [number, number][] = [
+      [2.2, 2.2],
+      [2.2, 3.8],
+      [3.8, 3.8],
+      [3.8, 2.2],
+      [2.2, 2.2],
+    ];
     const cells = Array.from(rasterisePolygon(g, [xy(outer), xy(hole)]));
     // Centres 1.5 .. 4.5 in x and y are inside the outer ring; 2.5 and 3.5 (both axes) are in the hole.
     const expected: number[] = [];
@@ -83,7 +95,12 @@ describe('rasterisePolygon', () => {
 
   it('gives the same cells whether the ring is closed or not and whichever way it winds', () => {
     const g = grid(8, 5, [100, 10, 0, 200, 0, -10]);
-    const ring: [number, number][] = [[103, 197], [171, 190], [150, 152], [112, 160]];
+    const ring: [number, number][] = [
+      [103, 197],
+      [171, 190],
+      [150, 152],
+      [112, 160],
+    ];
     const closed = rasterisePolygon(g, [xy([...ring, ring[0]!])]);
     const reversed = rasterisePolygon(g, [xy([...ring].reverse())]);
     expect(closed.length).toBeGreaterThan(3);
@@ -108,7 +125,10 @@ describe('rasterisePolygon', () => {
       const ringArb = fc.array(point, { minLength: 3, maxLength: 12 });
       fc.assert(
         fc.property(fc.array(ringArb, { minLength: 1, maxLength: 3 }), (rings) => {
-          const cells = rasterisePolygon(g, rings.map((ring) => xy(ring)));
+          const cells = rasterisePolygon(
+            g,
+            rings.map((ring) => xy(ring)),
+          );
           const got = new Set(cells);
           expect(got.size).toBe(cells.length); // no cell twice
           for (let k = 1; k < cells.length; k++) expect(cells[k]!).toBeGreaterThan(cells[k - 1]!);
@@ -135,7 +155,13 @@ describe('rasteriseLine', () => {
     // 1 m cells, origin (0, 3), north-up. The line y = 2.5 - (x - 0.5) / 2 meets column lines at x = 1, 2, 3, 4
     // (y = 2.25, 1.75, 1.25, 0.75) and row lines at y = 2 (x = 1.5) and y = 1 (x = 3.5); worked out by hand.
     const g = grid(5, 3, [0, 1, 0, 3, 0, -1]);
-    const pieces = rasteriseLine(g, xy([[0.5, 2.5], [4.5, 0.5]]));
+    const pieces = rasteriseLine(
+      g,
+      xy([
+        [0.5, 2.5],
+        [4.5, 0.5],
+      ]),
+    );
     expect(Array.from(pieces.cells)).toEqual([0, 1, 6, 7, 8, 13, 14]);
     // Piece ends at the crossings, as along-line distances (length of the line per unit of x: sqrt(1.25)).
     const s = Math.sqrt(1.25);
@@ -147,22 +173,46 @@ describe('rasteriseLine', () => {
 
   it('does not mark the cells a 45 degree line only touches at their corners', () => {
     const g = grid(4, 4, [0, 1, 0, 4, 0, -1]);
-    const pieces = rasteriseLine(g, xy([[0, 4], [4, 0]]));
+    const pieces = rasteriseLine(
+      g,
+      xy([
+        [0, 4],
+        [4, 0],
+      ]),
+    );
     expect(Array.from(pieces.cells)).toEqual([0, 5, 10, 15]);
     // Passing a rounding error away from the corners (as after a reprojection) changes nothing.
-    const nearly = rasteriseLine(g, xy([[0, 4 + 1e-13], [4, 1e-13]]));
+    const nearly = rasteriseLine(
+      g,
+      xy([
+        [0, 4 + 1e-13],
+        [4, 1e-13],
+      ]),
+    );
     expect(Array.from(nearly.cells)).toEqual([0, 5, 10, 15]);
   });
 
   it('puts a line along a cell edge in the cells south of it (the rule of cellAt)', () => {
     const g = grid(3, 3, [0, 1, 0, 3, 0, -1]);
-    const pieces = rasteriseLine(g, xy([[0.2, 2], [2.7, 2]]));
+    const pieces = rasteriseLine(
+      g,
+      xy([
+        [0.2, 2],
+        [2.7, 2],
+      ]),
+    );
     expect(Array.from(pieces.cells)).toEqual([3, 4, 5]);
   });
 
   it('keeps only the part inside the grid, with distances still measured from the first vertex', () => {
     const g = grid(4, 1, [0, 10, 0, 10, 0, -10]);
-    const pieces = rasteriseLine(g, xy([[-25, 5], [15, 5]]));
+    const pieces = rasteriseLine(
+      g,
+      xy([
+        [-25, 5],
+        [15, 5],
+      ]),
+    );
     expect(Array.from(pieces.cells)).toEqual([0, 1]);
     expect(pieces.from[0]).toBeCloseTo(25, 12);
     expect(pieces.to[1]).toBeCloseTo(40, 12);
@@ -208,7 +258,8 @@ describe('rasteriseLine', () => {
         for (const p of sampled) expect(lengthIn.has(p), `sampled cell ${p}`).toBe(true);
         // A marked cell that no sample hit is crossed over less than two sample spacings.
         let longestSegment = 0;
-        for (let s = 0; s + 1 < points.length; s++) longestSegment = Math.max(longestSegment, Math.hypot(points[s + 1]![0] - points[s]![0], points[s + 1]![1] - points[s]![1]));
+        for (let s = 0; s + 1 < points.length; s++)
+          longestSegment = Math.max(longestSegment, Math.hypot(points[s + 1]![0] - points[s]![0], points[s + 1]![1] - points[s]![1]));
         for (const [p, length] of lengthIn) {
           if (!sampled.has(p)) expect(length, `unsampled cell ${p}`).toBeLessThan((2 * longestSegment) / 4000);
         }
@@ -317,10 +368,27 @@ describe('fixedHeads shape entries', () => {
     // A square of +-0.0002 degrees (about 16 m east-west, 22 m north-south) around each reference point holds exactly
     // the centre of the 100 m cell the point is the centre of.
     const features = UTM_TO_LONLAT.map(({ lonLat: [lon, lat] }, k) =>
-      feature({ type: 'Polygon', coordinates: [[[lon - 2e-4, lat - 2e-4], [lon + 2e-4, lat - 2e-4], [lon + 2e-4, lat + 2e-4], [lon - 2e-4, lat + 2e-4], [lon - 2e-4, lat - 2e-4]]] }, { stage: 90 + k }),
+      feature(
+        {
+          type: 'Polygon',
+          coordinates: [
+            [
+              [lon - 2e-4, lat - 2e-4],
+              [lon + 2e-4, lat - 2e-4],
+              [lon + 2e-4, lat + 2e-4],
+              [lon - 2e-4, lat + 2e-4],
+              [lon - 2e-4, lat - 2e-4],
+            ],
+          ],
+        },
+        { stage: 90 + k },
+      ),
     );
     writeJson('ponds.geojson', collection(features));
-    const path = writeJson('ponds.json', { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ shape: 'ponds.geojson', headProperty: 'stage' }] });
+    const path = writeJson('ponds.json', {
+      aquifer: { conductivity: 'k.tif', thickness: 10 },
+      fixedHeads: [{ shape: 'ponds.geojson', headProperty: 'stage' }],
+    });
     const { model } = await loadScenario(path);
     const group = model.fixedHeads[0]!;
     expect(group.name).toBe('ponds');
@@ -334,8 +402,14 @@ describe('fixedHeads shape entries', () => {
   });
 
   it('reprojects a lon/lat river line onto the cells its GDAL-reprojected vertices cross', async () => {
-    writeJson('river.geojson', collection([feature({ type: 'LineString', coordinates: LONLAT_TO_UTM.map((p) => p.lonLat) }, { stages: [101, 99] })]));
-    const path = writeJson('river.json', { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ shape: 'river.geojson', headProperty: 'stages', name: 'river' }] });
+    writeJson(
+      'river.geojson',
+      collection([feature({ type: 'LineString', coordinates: LONLAT_TO_UTM.map((p) => p.lonLat) }, { stages: [101, 99] })]),
+    );
+    const path = writeJson('river.json', {
+      aquifer: { conductivity: 'k.tif', thickness: 10 },
+      fixedHeads: [{ shape: 'river.geojson', headProperty: 'stages', name: 'river' }],
+    });
     const { model } = await loadScenario(path);
     const reference = rasteriseLine(utmGrid, xy(LONLAT_TO_UTM.map((p) => p.utm)));
     const expectedCells = [...new Set(reference.cells)].sort((a, b) => a - b);
@@ -355,7 +429,11 @@ describe('fixedHeads shape entries', () => {
   });
 
   it('reads the legacy crs member GDAL writes: the river in lon/lat and as reprojected by ogr2ogr give the same cells and stages', async () => {
-    const lonLat = [[16.39, 44.355], [16.4, 44.35], [16.405, 44.348]];
+    const lonLat = [
+      [16.39, 44.355],
+      [16.4, 44.35],
+      [16.405, 44.348],
+    ];
     writeJson('river-lonlat.geojson', collection([feature({ type: 'LineString', coordinates: lonLat }, { stage: [101, null, 99] })]));
     // Output of GDAL 3.6.2: ogr2ogr -f GeoJSON -t_srs EPSG:32633 river-utm.geojson river-lonlat.geojson (verbatim).
     writeFileSync(
@@ -371,7 +449,14 @@ describe('fixedHeads shape entries', () => {
 `,
     );
     const load = async (file: string) =>
-      (await loadScenario(writeJson(`${file}.json`, { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ shape: `${file}.geojson`, headProperty: 'stage' }] }))).model.fixedHeads[0]!;
+      (
+        await loadScenario(
+          writeJson(`${file}.json`, {
+            aquifer: { conductivity: 'k.tif', thickness: 10 },
+            fixedHeads: [{ shape: `${file}.geojson`, headProperty: 'stage' }],
+          }),
+        )
+      ).model.fixedHeads[0]!;
     const a = await load('river-lonlat');
     const b = await load('river-utm');
     expect(a.cells.length).toBeGreaterThan(10);
@@ -385,8 +470,30 @@ describe('fixedHeads shape entries', () => {
     const g = grid(10, 3, [600000, 10, 0, 4900030, 0, -10]);
     writeRaster('k-small.tif', g, new Float64Array(30).fill(5));
     const y = 4900015;
-    writeJson('stages.geojson', collection([feature({ type: 'LineString', coordinates: [[600000, y], [600030, y], [600045, y], [600100, y]] }, { stage: [50, null, 48, 40] })], 'urn:ogc:def:crs:EPSG::32633'));
-    const path = writeJson('stages.json', { aquifer: { conductivity: 'k-small.tif', thickness: 10 }, fixedHeads: [{ shape: 'stages.geojson', headProperty: 'stage' }] });
+    writeJson(
+      'stages.geojson',
+      collection(
+        [
+          feature(
+            {
+              type: 'LineString',
+              coordinates: [
+                [600000, y],
+                [600030, y],
+                [600045, y],
+                [600100, y],
+              ],
+            },
+            { stage: [50, null, 48, 40] },
+          ),
+        ],
+        'urn:ogc:def:crs:EPSG::32633',
+      ),
+    );
+    const path = writeJson('stages.json', {
+      aquifer: { conductivity: 'k-small.tif', thickness: 10 },
+      fixedHeads: [{ shape: 'stages.geojson', headProperty: 'stage' }],
+    });
     const { model } = await loadScenario(path);
     const group = model.fixedHeads[0]!;
     expect(Array.from(group.cells)).toEqual([10, 11, 12, 13, 14, 15, 16, 17, 18, 19]);
@@ -415,8 +522,20 @@ describe('fixedHeads shape entries', () => {
     const cx = x0 + 22.5 * dx;
     const cy = y0 - 22.5 * dx;
     const crs = 'EPSG:32633';
-    writeJson('lake.geojson', collection([feature({ type: 'Polygon', coordinates: [circle(cx, cy, 200), circle(cx, cy, 180).reverse()] }, { level: 100 }, 'ring-lake')], crs));
-    const square: [number, number][] = [[x0 - 1, y0 + 1], [x0 + n * dx + 1, y0 + 1], [x0 + n * dx + 1, y0 - n * dx - 1], [x0 - 1, y0 - n * dx - 1], [x0 - 1, y0 + 1]];
+    writeJson(
+      'lake.geojson',
+      collection(
+        [feature({ type: 'Polygon', coordinates: [circle(cx, cy, 200), circle(cx, cy, 180).reverse()] }, { level: 100 }, 'ring-lake')],
+        crs,
+      ),
+    );
+    const square: [number, number][] = [
+      [x0 - 1, y0 + 1],
+      [x0 + n * dx + 1, y0 + 1],
+      [x0 + n * dx + 1, y0 - n * dx - 1],
+      [x0 - 1, y0 - n * dx - 1],
+      [x0 - 1, y0 + 1],
+    ];
     writeJson('outside.geojson', collection([feature({ type: 'Polygon', coordinates: [square, circle(cx, cy, 200.5)] })], crs));
     const rate = -500;
     const path = writeJson('lake.json', {
@@ -452,9 +571,15 @@ describe('aquifer.inactiveShapes', () => {
     // 6 x 4 cells of 10 m; a line from (600005, 4900040) to (600055, 4900000) in the raster CRS.
     const g = grid(6, 4, [600000, 10, 0, 4900040, 0, -10]);
     writeRaster('k-wall.tif', g, new Float64Array(24).fill(5));
-    const line = [[600005, 4900040], [600055, 4900000]];
+    const line = [
+      [600005, 4900040],
+      [600055, 4900000],
+    ];
     writeJson('wall.geojson', collection([feature({ type: 'LineString', coordinates: line })], 'EPSG:32633'));
-    const path = writeJson('wall.json', { aquifer: { conductivity: 'k-wall.tif', thickness: 10, inactiveShapes: ['wall.geojson'] }, fixedHeads: [{ edge: 'west', head: 1 }] });
+    const path = writeJson('wall.json', {
+      aquifer: { conductivity: 'k-wall.tif', thickness: 10, inactiveShapes: ['wall.geojson'] },
+      fixedHeads: [{ edge: 'west', head: 1 }],
+    });
     const { model } = await loadScenario(path);
     const expected = new Set(rasteriseLine(g, xy(line as [number, number][])).cells);
     expect(expected.size).toBeGreaterThan(4);
@@ -487,15 +612,33 @@ describe('aquifer.inactiveShapes', () => {
 });
 
 describe('shape errors name the file and the feature', () => {
-  async function shapeError(name: string, geojson: unknown, entry: Record<string, unknown> = { headProperty: 'stage' }): Promise<PiezomapError> {
+  async function shapeError(
+    name: string,
+    geojson: unknown,
+    entry: Record<string, unknown> = { headProperty: 'stage' },
+  ): Promise<PiezomapError> {
     writeJson(`${name}.geojson`, geojson);
-    const path = writeJson(`${name}.json`, { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ shape: `${name}.geojson`, ...entry }] });
+    const path = writeJson(`${name}.json`, {
+      aquifer: { conductivity: 'k.tif', thickness: 10 },
+      fixedHeads: [{ shape: `${name}.geojson`, ...entry }],
+    });
     const error = await loadError(path);
     expect(error.code).toBe('input');
     expect(error.message).toContain(`fixedHeads[0].shape "${name}.geojson"`);
     return error;
   }
-  const square = (x: number, y: number) => ({ type: 'Polygon', coordinates: [[[x, y], [x + 1e-3, y], [x + 1e-3, y + 1e-3], [x, y + 1e-3], [x, y]]] });
+  const square = (x: number, y: number) => ({
+    type: 'Polygon',
+    coordinates: [
+      [
+        [x, y],
+        [x + 1e-3, y],
+        [x + 1e-3, y + 1e-3],
+        [x, y + 1e-3],
+        [x, y],
+      ],
+    ],
+  });
   const lon = 16.4;
   const lat = 44.345;
 
@@ -515,50 +658,115 @@ describe('shape errors name the file and the feature', () => {
   });
 
   it('a missing head property, listing the properties there are', async () => {
-    const error = await shapeError('noprop', collection([feature(square(lon, lat), { stage: 1 }), feature(square(lon, lat), { level: 2 })]));
+    const error = await shapeError(
+      'noprop',
+      collection([feature(square(lon, lat), { stage: 1 }), feature(square(lon, lat), { level: 2 })]),
+    );
     expect(error.message).toContain('feature 1 has no property "stage"');
     expect(error.detail.hint).toContain('level');
     expect(error.detail.key).toBe('fixedHeads[0].headProperty');
   });
 
   it('a head that is text or not finite', async () => {
-    expect((await shapeError('text', collection([feature(square(lon, lat), { stage: '101,5' })]))).message).toContain('feature 0: property "stage" is the text "101,5", not a number');
+    expect((await shapeError('text', collection([feature(square(lon, lat), { stage: '101,5' })]))).message).toContain(
+      'feature 0: property "stage" is the text "101,5", not a number',
+    );
     // JSON has no Infinity, but 1e999 parses to it.
-    writeFileSync(join(dir, 'inf.geojson'), `{"type":"FeatureCollection","features":[{"type":"Feature","properties":{"stage":1e999},"geometry":${JSON.stringify(square(lon, lat))}}]}`);
-    const path = writeJson('inf.json', { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ shape: 'inf.geojson', headProperty: 'stage' }] });
+    writeFileSync(
+      join(dir, 'inf.geojson'),
+      `{"type":"FeatureCollection","features":[{"type":"Feature","properties":{"stage":1e999},"geometry":${JSON.stringify(square(lon, lat))}}]}`,
+    );
+    const path = writeJson('inf.json', {
+      aquifer: { conductivity: 'k.tif', thickness: 10 },
+      fixedHeads: [{ shape: 'inf.geojson', headProperty: 'stage' }],
+    });
     expect((await loadError(path)).message).toContain('feature 0: property "stage" is Infinity, not a finite head');
   });
 
   it('per-vertex heads that do not match the line', async () => {
-    const line = { type: 'LineString', coordinates: [[lon, lat], [lon + 0.01, lat], [lon + 0.02, lat]] };
-    expect((await shapeError('short', collection([feature(line, { stage: [1, 2] })]))).message).toContain('has 2 value(s) for a line of 3 vertices');
-    expect((await shapeError('open', collection([feature(line, { stage: [1, 2, null] })]))).message).toContain('the first and last vertex need a head');
-    expect((await shapeError('onpoly', collection([feature(square(lon, lat), { stage: [1, 2] })]))).message).toContain('per-vertex heads are only for lines');
+    const line = {
+      type: 'LineString',
+      coordinates: [
+        [lon, lat],
+        [lon + 0.01, lat],
+        [lon + 0.02, lat],
+      ],
+    };
+    expect((await shapeError('short', collection([feature(line, { stage: [1, 2] })]))).message).toContain(
+      'has 2 value(s) for a line of 3 vertices',
+    );
+    expect((await shapeError('open', collection([feature(line, { stage: [1, 2, null] })]))).message).toContain(
+      'the first and last vertex need a head',
+    );
+    expect((await shapeError('onpoly', collection([feature(square(lon, lat), { stage: [1, 2] })]))).message).toContain(
+      'per-vertex heads are only for lines',
+    );
   });
 
   it('invalid coordinates, with their place in the geometry', async () => {
-    const bad = { type: 'Polygon', coordinates: [[[lon, lat], [lon + 1e-3, 'x'], [lon, lat + 1e-3]]] };
-    expect((await shapeError('coords', collection([feature(square(lon, lat), { stage: 1 }), feature(bad, { stage: 1 })]))).message).toContain('feature 1: coordinates[0][1] is not a position');
-    const degenerate = { type: 'LineString', coordinates: [[lon, lat], [lon, lat]] };
+    const bad = {
+      type: 'Polygon',
+      coordinates: [
+        [
+          [lon, lat],
+          [lon + 1e-3, 'x'],
+          [lon, lat + 1e-3],
+        ],
+      ],
+    };
+    expect(
+      (await shapeError('coords', collection([feature(square(lon, lat), { stage: 1 }), feature(bad, { stage: 1 })]))).message,
+    ).toContain('feature 1: coordinates[0][1] is not a position');
+    const degenerate = {
+      type: 'LineString',
+      coordinates: [
+        [lon, lat],
+        [lon, lat],
+      ],
+    };
     const zero = await shapeError('zero', collection([feature(degenerate, { stage: 1 })]));
     expect(zero.message).toContain('feature 0: the line has zero length');
     expect(zero.detail.key).toBe('fixedHeads[0].shape');
   });
 
   it('projected coordinates without a crs member, with a hint about RFC 7946 longitude/latitude', async () => {
-    const error = await shapeError('utm', collection([feature({ type: 'Polygon', coordinates: [[[611000, 4911000], [611300, 4911000], [611300, 4911300], [611000, 4911000]]] }, { stage: 1 })]));
+    const error = await shapeError(
+      'utm',
+      collection([
+        feature(
+          {
+            type: 'Polygon',
+            coordinates: [
+              [
+                [611000, 4911000],
+                [611300, 4911000],
+                [611300, 4911300],
+                [611000, 4911000],
+              ],
+            ],
+          },
+          { stage: 1 },
+        ),
+      ]),
+    );
     expect(error.message).toContain('feature 0');
     expect(error.detail.hint).toContain('"crs" member');
   });
 
   it('a crs member that names no EPSG code', async () => {
-    const error = await shapeError('crs', { ...collection([feature(square(lon, lat), { stage: 1 })]), crs: { type: 'name', properties: { name: 'my-local-grid' } } });
+    const error = await shapeError('crs', {
+      ...collection([feature(square(lon, lat), { stage: 1 })]),
+      crs: { type: 'name', properties: { name: 'my-local-grid' } },
+    });
     expect(error.message).toContain('"my-local-grid"');
   });
 
   it('not JSON, with line and column', async () => {
     writeFileSync(join(dir, 'broken.geojson'), '{"type": "FeatureCollection",\n "features": [ }');
-    const path = writeJson('broken.json', { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ shape: 'broken.geojson', head: 5 }] });
+    const path = writeJson('broken.json', {
+      aquifer: { conductivity: 'k.tif', thickness: 10 },
+      fixedHeads: [{ shape: 'broken.geojson', head: 5 }],
+    });
     const error = await loadError(path);
     expect(error.message).toMatch(/fixedHeads\[0\]\.shape "broken\.geojson" line 2, column \d+: invalid JSON/);
   });
@@ -573,8 +781,17 @@ describe('shape errors name the file and the feature', () => {
   });
 
   it('a feature outside the grid is a warning, not an error', async () => {
-    writeJson('partly.geojson', collection([feature(square(16.3983322944157 - 2e-4, 44.3495629473253 - 2e-4), { stage: 1 }), feature(square(17.5, 45.5), { stage: 2 }, 'far-away')]));
-    const path = writeJson('partly.json', { aquifer: { conductivity: 'k.tif', thickness: 10 }, fixedHeads: [{ shape: 'partly.geojson', headProperty: 'stage' }] });
+    writeJson(
+      'partly.geojson',
+      collection([
+        feature(square(16.3983322944157 - 2e-4, 44.3495629473253 - 2e-4), { stage: 1 }),
+        feature(square(17.5, 45.5), { stage: 2 }, 'far-away'),
+      ]),
+    );
+    const path = writeJson('partly.json', {
+      aquifer: { conductivity: 'k.tif', thickness: 10 },
+      fixedHeads: [{ shape: 'partly.geojson', headProperty: 'stage' }],
+    });
     const { model } = await loadScenario(path);
     expect(model.fixedHeads[0]!.cells.length).toBe(1);
     expect(model.warnings.join('\n')).toContain('feature 1 (id "far-away") covers no cell of the grid');

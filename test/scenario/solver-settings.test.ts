@@ -11,7 +11,11 @@ import { parseSolverOption, resolveSolverSettings } from '../../src/scenario/sol
 const scenarioDefaults = { method: 'auto', tolerance: 1e-8, maxIterations: 20000 };
 
 function jsonProblem(solver: Record<string, unknown>): string {
-  const parsed = parseScenarioJson({ aquifer: { conductivity: 'k.tif', thickness: 1 }, fixedHeads: [{ edge: 'west', head: 1 }], solver }, 'scenario.json', 10);
+  const parsed = parseScenarioJson(
+    { aquifer: { conductivity: 'k.tif', thickness: 1 }, fixedHeads: [{ edge: 'west', head: 1 }], solver },
+    'scenario.json',
+    10,
+  );
   expect(parsed.ok).toBe(false);
   return parsed.ok ? '' : parsed.message;
 }

@@ -114,7 +114,8 @@ export function heterogeneousCase(nx: number, ny: number, seed: number): TestCas
   // inactive holes: a rectangle and scattered cells (never on the fixed-head columns)
   const hi = Math.floor(ny / 3);
   const hj = Math.floor(nx / 3);
-  for (let i = hi; i < hi + Math.max(1, Math.floor(ny / 5)); i++) for (let j = hj; j < hj + Math.max(1, Math.floor(nx / 6)); j++) k[i * nx + j] = NaN;
+  for (let i = hi; i < hi + Math.max(1, Math.floor(ny / 5)); i++)
+    for (let j = hj; j < hj + Math.max(1, Math.floor(nx / 6)); j++) k[i * nx + j] = NaN;
   for (let s = 0; s < n / 20; s++) {
     const j = 1 + Math.floor(rnd() * (nx - 2));
     const i = Math.floor(rnd() * ny);

@@ -81,7 +81,17 @@ describe('AggregationMultigrid at extreme magnitudes', () => {
     const fixedHead = new Float64Array(nx * ny).fill(Number.NaN);
     for (let i = 0; i < ny; i++) fixedHead[i * nx] = 1;
     const base = buildSystem({ nx, ny, dx: 1, dy: 1, k, thickness: 1, anisotropy: 1, fixedHead, source: new Float64Array(nx * ny) });
-    const big = buildSystem({ nx, ny, dx: 1, dy: 1, k: k.map((v) => v * 2 ** 100), thickness: 1, anisotropy: 1, fixedHead, source: new Float64Array(nx * ny) });
+    const big = buildSystem({
+      nx,
+      ny,
+      dx: 1,
+      dy: 1,
+      k: k.map((v) => v * 2 ** 100),
+      thickness: 1,
+      anisotropy: 1,
+      fixedHead,
+      source: new Float64Array(nx * ny),
+    });
     const r = new Float64Array(nx * ny).map(() => random() - 0.5);
     const z1 = new Float64Array(r.length);
     const z2 = new Float64Array(r.length);

@@ -51,7 +51,7 @@ describe('SOR with the optimal relaxation factor', () => {
     expect(ratio).toBeLessThan(2.6);
   });
 
-  it('automatic relaxation factor agrees with Young\'s formula for rho = cos(pi/(n+1))', () => {
+  it("automatic relaxation factor agrees with Young's formula for rho = cos(pi/(n+1))", () => {
     const n = 32;
     const { op } = buildSystem(poissonCase(n));
     const solver = createSolver('sor', op);

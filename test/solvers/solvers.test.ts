@@ -87,7 +87,11 @@ describe('stopping rules', () => {
   const { op, b } = buildSystem(heterogeneousCase(40, 30, 4));
 
   it('stops with reason time-limit when the time budget is spent', () => {
-    const stats = createSolver('pcg-jacobi', op).solve(b, new Float64Array(op.n), { tolerance: 1e-14, maxIterations: 100_000, timeLimitSeconds: 0 });
+    const stats = createSolver('pcg-jacobi', op).solve(b, new Float64Array(op.n), {
+      tolerance: 1e-14,
+      maxIterations: 100_000,
+      timeLimitSeconds: 0,
+    });
     expect(stats.stopReason).toBe('time-limit');
     expect(stats.converged).toBe(false);
   });

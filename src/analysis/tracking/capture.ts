@@ -234,7 +234,12 @@ export function captureZones(field: TrackingField, stopLabel: Int32Array, option
       zones.push({
         type: 'Feature',
         geometry: outline.geometry,
-        properties: { well: id, time, area: outline.area, cellArea: (outline.seeds * cellArea) / (window.subdivisions * window.subdivisions) },
+        properties: {
+          well: id,
+          time,
+          area: outline.area,
+          cellArea: (outline.seeds * cellArea) / (window.subdivisions * window.subdivisions),
+        },
       });
     }
   }
@@ -298,7 +303,13 @@ function perimeterPoint(along: number, dx: number, dy: number): [number, number]
 }
 
 /** A finished track as a GeoJSON LineString feature (a track that never moved gets its point twice). */
-export function pathlineFeature(id: string, direction: 'backward' | 'forward', tracker: Tracker, path: PathBuffer, project: Project | null): PathlineFeature {
+export function pathlineFeature(
+  id: string,
+  direction: 'backward' | 'forward',
+  tracker: Tracker,
+  path: PathBuffer,
+  project: Project | null,
+): PathlineFeature {
   const coordinates: number[][] = [];
   const v = path.data;
   for (let i = 0; i < path.count; i++) coordinates.push(project ? project(v[2 * i]!, v[2 * i + 1]!) : [v[2 * i]!, v[2 * i + 1]!]);

@@ -115,7 +115,13 @@ const STRONG_SINK_OUTFLOW = 1e-9;
  * (L^3/T, positive = the cell puts water into the aquifer). For a solved model this is W + R on unknown cells
  * (to the solver's residual) and the boundary exchange on fixed-head cells, consistent with the budget.
  */
-export function internalExchange(nx: number, ny: number, faceEast: Float64Array, faceSouth: Float64Array, out = new Float64Array(nx * ny)): Float64Array {
+export function internalExchange(
+  nx: number,
+  ny: number,
+  faceEast: Float64Array,
+  faceSouth: Float64Array,
+  out = new Float64Array(nx * ny),
+): Float64Array {
   out.fill(0);
   for (let i = 0; i < ny; i++) {
     for (let j = 0; j < nx; j++) {
@@ -249,5 +255,6 @@ function positive(v: number): number {
 }
 
 function checkLength(what: string, length: number, n: number): void {
-  if (length !== n) throw inputError(`${what} has ${length} values, the grid has ${n} cells`, { hint: 'pass one value per cell, row-major' });
+  if (length !== n)
+    throw inputError(`${what} has ${length} values, the grid has ${n} cells`, { hint: 'pass one value per cell, row-major' });
 }

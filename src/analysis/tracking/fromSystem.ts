@@ -36,10 +36,13 @@ export function trackingInputFromSystem(system: FlowSystem, head: Float64Array, 
   const { nx, ny } = grid;
   if (!(grid.transform[1] > 0 && grid.transform[5] < 0)) {
     // The engine's frame is north-up (columns east, rows south); mapping other orientations is not done here.
-    throw inputError(`particle tracking needs a north-up grid (positive pixel width, negative pixel height); this grid's geotransform is [${grid.transform.join(', ')}]`, {
-      key: 'tracking',
-      hint: 'warp the rasters to a north-up grid (e.g. gdalwarp) before tracking',
-    });
+    throw inputError(
+      `particle tracking needs a north-up grid (positive pixel width, negative pixel height); this grid's geotransform is [${grid.transform.join(', ')}]`,
+      {
+        key: 'tracking',
+        hint: 'warp the rasters to a north-up grid (e.g. gdalwarp) before tracking',
+      },
+    );
   }
   const n = nx * ny;
   const flows = faceFlows(grid, head, system.conductanceEast, system.conductanceSouth);

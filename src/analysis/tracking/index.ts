@@ -2,7 +2,15 @@
  * Particle tracking (Pollock's semi-analytical method) on the budget's face flows: the field, the tracker, the
  * per-cell end rasters, capture zones and tracking from points. Re-exports only.
  */
-export { buildTrackingField, internalExchange, type TrackingInput, type TrackingField, type StopLabel, type StopKind, type WeakSink } from './field.js';
+export {
+  buildTrackingField,
+  internalExchange,
+  type TrackingInput,
+  type TrackingField,
+  type StopLabel,
+  type StopKind,
+  type WeakSink,
+} from './field.js';
 export {
   Tracker,
   PathBuffer,
@@ -14,7 +22,19 @@ export {
   END_STALLED,
   type EndReason,
 } from './pollock.js';
-export { endRasters, trackCellCentres, trackSeeds, trackBand, bandRows, seedOrder, SEED_BANDS, NO_LABEL, type EndRasters, type EndRasterOptions, type SeedWindow } from './rasters.js';
+export {
+  endRasters,
+  trackCellCentres,
+  trackSeeds,
+  trackBand,
+  bandRows,
+  seedOrder,
+  SEED_BANDS,
+  NO_LABEL,
+  type EndRasters,
+  type EndRasterOptions,
+  type SeedWindow,
+} from './rasters.js';
 export {
   captureZones,
   checkCaptureTimes,

@@ -122,7 +122,13 @@ export function bandRows(ny: number, k: number, bands = SEED_BANDS): [number, nu
 }
 
 /** Forward tracks from the centres of band k's cells into `out` (the band's rows only); returns stalled tracks. */
-export function trackBand(field: TrackingField, k: number, out: EndRasters, cache: FaceCache | null, options: EndRasterOptions = {}): number {
+export function trackBand(
+  field: TrackingField,
+  k: number,
+  out: EndRasters,
+  cache: FaceCache | null,
+  options: EndRasterOptions = {},
+): number {
   const [rowStart, rowEnd] = bandRows(field.ny, k);
   cache?.reset();
   const order = options.potential ? seedOrder(options.potential, field.nx, rowStart, rowEnd) : null;

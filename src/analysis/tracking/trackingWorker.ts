@@ -22,7 +22,10 @@ port.once('message', (request: BandRequest) => {
       const cells = (rowEnd - rowStart) * field.nx;
       const out = { label: new Int32Array(cells), time: new Float64Array(cells), stalled: 0 };
       out.stalled = trackBand(field, band, out, cache, request.options);
-      send({ kind: 'band', band, label: out.label, time: out.time, stalled: out.stalled }, [out.label.buffer as ArrayBuffer, out.time.buffer as ArrayBuffer]);
+      send({ kind: 'band', band, label: out.label, time: out.time, stalled: out.stalled }, [
+        out.label.buffer as ArrayBuffer,
+        out.time.buffer as ArrayBuffer,
+      ]);
     }
     send({ kind: 'done' });
   } catch (thrown) {

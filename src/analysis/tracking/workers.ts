@@ -67,7 +67,9 @@ function runWorker(request: BandRequest, out: EndRasters): Promise<void> {
       else finish(new PiezomapError('internal', `tracking worker failed: ${message.message}`));
     });
     worker.on('error', (error) => finish(new PiezomapError('internal', `tracking worker failed: ${describeThrown(error)}`)));
-    worker.on('exit', (code) => finish(code === 0 ? undefined : new PiezomapError('internal', `tracking worker stopped with code ${code}`)));
+    worker.on('exit', (code) =>
+      finish(code === 0 ? undefined : new PiezomapError('internal', `tracking worker stopped with code ${code}`)),
+    );
     worker.postMessage(request);
   });
 }

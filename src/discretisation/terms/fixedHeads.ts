@@ -61,7 +61,14 @@ function groupStyle(g: number): MapCellStyle {
   return { pattern: round % 2 === 0 ? 'hatch' : 'cross-hatch', colour: GROUP_INKS[g % GROUP_INKS.length]!, angle: g % 2 === 0 ? 45 : -45 };
 }
 
-function fixedHeadTerm(label: string, cells: Int32Array, heads: Float64Array, ignoredCells: number, context: TermContext, g: number): FlowTerm {
+function fixedHeadTerm(
+  label: string,
+  cells: Int32Array,
+  heads: Float64Array,
+  ignoredCells: number,
+  context: TermContext,
+  g: number,
+): FlowTerm {
   return {
     kind: 'fixed-head',
     label,
@@ -96,7 +103,9 @@ function fixedHeadTerm(label: string, cells: Int32Array, heads: Float64Array, ig
       }
     },
     notes: (done) =>
-      ignoredCells > 0 ? [`${ignoredCells} fixed-head cell(s) of "${label}" fall on inactive cells and ${done ? 'were' : 'will be'} ignored`] : [],
+      ignoredCells > 0
+        ? [`${ignoredCells} fixed-head cell(s) of "${label}" fall on inactive cells and ${done ? 'were' : 'will be'} ignored`]
+        : [],
   };
 }
 

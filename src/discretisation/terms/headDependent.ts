@@ -46,14 +46,24 @@ function headDependentTerm(entry: HeadDependentInput, context: TermContext): Flo
     if (fixed[p]) {
       throw inputError(
         `${entry.source} ("${entry.name}") and the fixed-head entry "${groups[fixedGroup[p]!]}" both hold the cell at row ${cell.row}, col ${cell.col}: a cell is either fixed-head or head-dependent`,
-        { key: entry.source, cell, hint: `remove the cell from one of them (a fixed head already takes any water; "${entry.name}" would add nothing there)` },
+        {
+          key: entry.source,
+          cell,
+          hint: `remove the cell from one of them (a fixed head already takes any water; "${entry.name}" would add nothing there)`,
+        },
       );
     }
     if (!Number.isFinite(entry.heads[k]!)) {
-      throw inputError(`${entry.source} ("${entry.name}"): the ${entry.kind === 'drain' ? 'level' : 'stage'} at row ${cell.row}, col ${cell.col} is not a finite number`, { key: entry.source, cell });
+      throw inputError(
+        `${entry.source} ("${entry.name}"): the ${entry.kind === 'drain' ? 'level' : 'stage'} at row ${cell.row}, col ${cell.col} is not a finite number`,
+        { key: entry.source, cell },
+      );
     }
     if (!(entry.conductance[k]! >= 0) || !Number.isFinite(entry.conductance[k]!)) {
-      throw inputError(`${entry.source} ("${entry.name}"): the conductance at row ${cell.row}, col ${cell.col} is ${entry.conductance[k]}, not a number >= 0`, { key: entry.source, cell });
+      throw inputError(
+        `${entry.source} ("${entry.name}"): the conductance at row ${cell.row}, col ${cell.col} is ${entry.conductance[k]}, not a number >= 0`,
+        { key: entry.source, cell },
+      );
     }
     keep[k] = 1;
     kept++;

@@ -9,10 +9,18 @@ import { seededUniform } from '../../../src/random.js';
 import { solveForTracking, type Solved } from './solved.js';
 
 // Uniform regional flow with one pumping well (confined, K = 10 m/d, b = 10 m, gradient 0.001 -> q = 0.01 m/d).
-const K = 10, b = 10, i = 0.001, q = K * i, Q = 40, dx = 10;
+const K = 10,
+  b = 10,
+  i = 0.001,
+  q = K * i,
+  Q = 40,
+  dx = 10;
 // The no-flow north and south edges 2 km from the well act as image wells that narrow the zone; at 1.5 km
 // upgradient that is a few metres (checked against 1 km edges, where it reached 13 m), inside the limits below.
-const NX = 401, NY = 401, WELL_ROW = 200, WELL_COL = 250;
+const NX = 401,
+  NY = 401,
+  WELL_ROW = 200,
+  WELL_COL = 250;
 let uniformCache: { solved: Solved; capture: CaptureResult } | null = null;
 function uniformWithWell() {
   if (uniformCache) return uniformCache;
@@ -25,7 +33,11 @@ function uniformWithWell() {
     wells: [well(grid, 'W1', WELL_ROW, WELL_COL, -Q)],
   });
   const solved = solveForTracking(model, 0.25);
-  const capture = captureZones(solved.field, solved.input.stopLabel, { captureTimes: [2000, 10000, 40000], particlesPerWell: 24, rasters: { potential: solved.head } });
+  const capture = captureZones(solved.field, solved.input.stopLabel, {
+    captureTimes: [2000, 10000, 40000],
+    particlesPerWell: 24,
+    rasters: { potential: solved.head },
+  });
   uniformCache = { solved, capture };
   return uniformCache;
 }
@@ -33,7 +45,8 @@ function uniformWithWell() {
 /** Half-width y of the Javandel & Tsang (1986) capture curve at distance L upgradient: L = -y / tan(2 pi b q y / Q). */
 function javandelTsangHalfWidth(L: number): number {
   const Y = Q / (2 * b * q);
-  let lo = Y / 2, hi = Y * (1 - 1e-12);
+  let lo = Y / 2,
+    hi = Y * (1 - 1e-12);
   for (let k = 0; k < 200; k++) {
     const mid = (lo + hi) / 2;
     if (-mid / Math.tan((Math.PI * mid) / Y) < L) lo = mid;
@@ -57,7 +70,8 @@ describe('capture zone of one well in uniform flow', () => {
     let xs = NaN;
     for (let col = WELL_COL + 1; col < NX; col++) {
       const p = WELL_ROW * NX + col;
-      const vw = v[4 * p]!, ve = v[4 * p + 1]!;
+      const vw = v[4 * p]!,
+        ve = v[4 * p + 1]!;
       if (vw < 0 && ve > 0) {
         xs = (col - WELL_COL - 0.5) * dx + (-vw / (ve - vw)) * dx; // Pollock's linear velocity vanishes here
         break;
@@ -123,10 +137,15 @@ describe('capture zone of one well in uniform flow', () => {
     }
   });
 
-  it('writes RFC 7946 rings (exterior counter-clockwise) through the caller\'s projection', () => {
+  it("writes RFC 7946 rings (exterior counter-clockwise) through the caller's projection", () => {
     const { solved } = uniformWithWell();
     const shift = (x: number, y: number): [number, number] => [x - 500000, y - 4100000];
-    const capture = captureZones(solved.field, solved.input.stopLabel, { captureTimes: [2000], particlesPerWell: 4, project: shift }, uniformWithWell().capture.ends);
+    const capture = captureZones(
+      solved.field,
+      solved.input.stopLabel,
+      { captureTimes: [2000], particlesPerWell: 4, project: shift },
+      uniformWithWell().capture.ends,
+    );
     const zone = capture.zones[0]!;
     expect(zone.geometry?.type).toBe('Polygon');
     const rings = (zone.geometry as { coordinates: number[][][] }).coordinates;
@@ -136,7 +155,7 @@ describe('capture zone of one well in uniform flow', () => {
     expect(capture.pathlines[0]!.geometry.coordinates[0]![0]!).toBeLessThan(10000);
   });
 
-  it('lets a particle released in the well cell\'s upstream neighbour end in that well', () => {
+  it("lets a particle released in the well cell's upstream neighbour end in that well", () => {
     const { solved } = uniformWithWell();
     const { x0, y0 } = solved.field;
     const [track] = trackPoints(solved.field, [{ id: 'p', x: x0 + (WELL_COL - 0.5) * dx, y: y0 - (WELL_ROW + 0.5) * dx }]);
@@ -172,7 +191,10 @@ function inZone(zone: CaptureZoneFeature, pt: [number, number]): boolean {
 
 describe('capture zones fed by recharge only', () => {
   // No-flow edges, a river (fixed head) on the east column that only gains, recharge the only source.
-  const NXR = 60, NYR = 40, DX = 20, R = 0.001;
+  const NXR = 60,
+    NYR = 40,
+    DX = 20,
+    R = 0.001;
   const rates = { A: 50, B: 30 };
   function rechargeModel(): Solved {
     const grid = testGrid(NXR, NYR, DX);
@@ -211,8 +233,14 @@ describe('capture zones fed by recharge only', () => {
           const p = r * NXR + c;
           const mine = capture.capturingWell[p] === k;
           if (mine) cells++;
-          const differs = [[0, 1], [0, -1], [1, 0], [-1, 0]].some(([di, dj]) => {
-            const rr = r + di!, cc = c + dj!;
+          const differs = [
+            [0, 1],
+            [0, -1],
+            [1, 0],
+            [-1, 0],
+          ].some(([di, dj]) => {
+            const rr = r + di!,
+              cc = c + dj!;
             return rr >= 0 && rr < NYR && cc >= 0 && cc < NXR && (capture.capturingWell[rr * NXR + cc] === k) !== mine;
           });
           if (differs) edgeCells++;
@@ -258,7 +286,9 @@ describe('capture zones fed by recharge only', () => {
     // spacing along a perimeter of about sqrt(4 pi A) (as above, with the seed spacing in place of the cell size).
     const expected = faceInflow / R + DX * DX;
     const seedSpacing = DX / 4;
-    expect(Math.abs(zone.properties.cellArea - expected)).toBeLessThanOrEqual((Math.sqrt(4 * Math.PI * expected) / seedSpacing / 2) * seedSpacing * seedSpacing);
+    expect(Math.abs(zone.properties.cellArea - expected)).toBeLessThanOrEqual(
+      (Math.sqrt(4 * Math.PI * expected) / seedSpacing / 2) * seedSpacing * seedSpacing,
+    );
     expect(zone.properties.area).toBeGreaterThan(0);
   });
 
@@ -277,7 +307,8 @@ describe('capture zones fed by recharge only', () => {
 
 describe('pathlines in a heterogeneous field', () => {
   // Random conductivity, an inactive block (no-flow faces around it), one well.
-  const N = 40, DX = 25;
+  const N = 40,
+    DX = 25;
   function heterogeneous(): Solved {
     const grid = testGrid(N, N, DX);
     const rnd = seededUniform(11);
@@ -323,7 +354,8 @@ describe('pathlines in a heterogeneous field', () => {
     for (let p = 1; p < N * N; p += 37) {
       // Not from the west fixed-head column: it is where water enters, so a backward track stops on entering it.
       if (!field.active[p] || p % N === 0) continue;
-      const x = 0.23 * DX, y = 0.71 * DX;
+      const x = 0.23 * DX,
+        y = 0.71 * DX;
       tracker.track(p, x, y, 1, 2000);
       const limit = tracker.time; // the time limit, or the arrival time at a well or boundary
       back.track(tracker.cell, tracker.localX, tracker.localY, -1, limit);

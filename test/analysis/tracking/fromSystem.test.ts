@@ -59,7 +59,12 @@ describe('trackingInputFromSystem', () => {
   it('labels the cells of any non-areal term by the term label where its flow is not zero, and ignores areal terms', () => {
     const withTerms: FlowSystem = {
       ...system,
-      terms: [...system.terms, standInTerm('field-drain', [7, 10], -0.5), standInTerm('dry-drain', [13], 0), standInTerm('seepage', [19, 20], -0.1, true)],
+      terms: [
+        ...system.terms,
+        standInTerm('field-drain', [7, 10], -0.5),
+        standInTerm('dry-drain', [13], 0),
+        standInTerm('seepage', [19, 20], -0.1, true),
+      ],
     };
     const input = trackingInputFromSystem(withTerms, head, { wells: model.wells, thickness: 1, porosity: 0.2 });
     const drain = input.labels.findIndex((l) => l.name === 'field-drain');
@@ -75,10 +80,18 @@ describe('trackingInputFromSystem', () => {
     // One row, flow from west (10) to east (9), a stand-in drain in column 3 taking water out: the exchange there is
     // read from the face flows, so give heads whose face flows converge on column 3 (a trough).
     const g = testGrid(7, 1, 10);
-    const m = makeModel(g, { conductivity: new Float64Array(7).fill(1), fixedHeads: [fixedColumn(g, 0, 10, 'west'), fixedColumn(g, 6, 10, 'east')], wells: [] });
+    const m = makeModel(g, {
+      conductivity: new Float64Array(7).fill(1),
+      fixedHeads: [fixedColumn(g, 0, 10, 'west'), fixedColumn(g, 6, 10, 'east')],
+      wells: [],
+    });
     const s = assembleSystem(m);
     const h = Float64Array.from([10, 9.5, 9.1, 9, 9.1, 9.5, 10]);
-    const input = trackingInputFromSystem({ ...s, terms: [...s.terms, standInTerm('field-drain', [3], -1)] }, h, { wells: [], thickness: 1, porosity: 0.2 });
+    const input = trackingInputFromSystem({ ...s, terms: [...s.terms, standInTerm('field-drain', [3], -1)] }, h, {
+      wells: [],
+      thickness: 1,
+      porosity: 0.2,
+    });
     const field = buildTrackingField(input);
     const tracker = new Tracker(field);
     tracker.track(1, 5, 5, 1, Infinity, new PathBuffer());

@@ -7,13 +7,25 @@ import { PiezomapError } from '../../../src/errors.js';
 // A 4 x 2 strip of 10 m cells, uniform eastward flow 1 m3/d per face row, the east column a boundary sink,
 // cell (1, 1) inactive.
 function strip() {
-  const nx = 4, ny = 2;
+  const nx = 4,
+    ny = 2;
   const faceEast = new Float64Array([1, 1, 1, 0, 0, 0, 0, 0]);
   const active = new Uint8Array([1, 1, 1, 1, 1, 0, 1, 1]);
   const stopLabel = new Int32Array([-1, -1, -1, 0, -1, -1, -1, 0]);
   return buildTrackingField({
-    nx, ny, dx: 10, dy: 10, x0: 1000, y0: 2000, faceEast, faceSouth: new Float64Array(8), active,
-    thickness: 1, porosity: 0.5, stopLabel, labels: [{ kind: 'boundary', name: 'drain' }],
+    nx,
+    ny,
+    dx: 10,
+    dy: 10,
+    x0: 1000,
+    y0: 2000,
+    faceEast,
+    faceSouth: new Float64Array(8),
+    active,
+    thickness: 1,
+    porosity: 0.5,
+    stopLabel,
+    labels: [{ kind: 'boundary', name: 'drain' }],
   });
 }
 
@@ -39,7 +51,11 @@ describe('trackPoints', () => {
 
   it('refuses a point outside the grid or on an inactive cell, naming it and its key', () => {
     const field = strip();
-    const outside = () => trackPoints(field, [{ id: 'ok', x: 1015, y: 1995 }, { id: 'far', x: 0, y: 0 }]);
+    const outside = () =>
+      trackPoints(field, [
+        { id: 'ok', x: 1015, y: 1995 },
+        { id: 'far', x: 0, y: 0 },
+      ]);
     expect(outside).toThrow(/"far" .* outside the grid/);
     try {
       outside();

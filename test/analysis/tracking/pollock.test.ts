@@ -51,9 +51,16 @@ describe('Tracker.track', () => {
     // Cell 1 of a 3 x 3 block: east-west velocity grows from vW to vE, north-south from vN to vS (positive south).
     // Analytic (Pollock 1988): v(t) = v_p exp(A t); exit time t = ln(v_e / v_p) / A; the other coordinate
     // y(t) = y_p + v_py (exp(A_y t) - 1) / A_y.
-    const dx = 10, dy = 6, b = 5, n = 0.3;
-    const Qw = 2, Qe = 5, Qn = 0.4, Qs = 0.9;
-    const nx = 3, ny = 3;
+    const dx = 10,
+      dy = 6,
+      b = 5,
+      n = 0.3;
+    const Qw = 2,
+      Qe = 5,
+      Qn = 0.4,
+      Qs = 0.9;
+    const nx = 3,
+      ny = 3;
     const faceEast = new Float64Array(9);
     const faceSouth = new Float64Array(9);
     const c = 4; // centre cell
@@ -62,13 +69,28 @@ describe('Tracker.track', () => {
     faceSouth[c - nx] = Qn;
     faceSouth[c] = Qs;
     const field = buildTrackingField({
-      nx, ny, dx, dy, faceEast, faceSouth, active: new Uint8Array(9).fill(1), thickness: b, porosity: n,
-      stopLabel: new Int32Array(9).fill(-1), labels: [],
+      nx,
+      ny,
+      dx,
+      dy,
+      faceEast,
+      faceSouth,
+      active: new Uint8Array(9).fill(1),
+      thickness: b,
+      porosity: n,
+      stopLabel: new Int32Array(9).fill(-1),
+      labels: [],
     });
-    const vW = Qw / (dy * b * n), vE = Qe / (dy * b * n), vN = Qn / (dx * b * n), vS = Qs / (dx * b * n);
-    const xp = 2.5, yp = 1.5;
-    const Ax = (vE - vW) / dx, Ay = (vS - vN) / dy;
-    const vpx = vW + Ax * xp, vpy = vN + Ay * yp;
+    const vW = Qw / (dy * b * n),
+      vE = Qe / (dy * b * n),
+      vN = Qn / (dx * b * n),
+      vS = Qs / (dx * b * n);
+    const xp = 2.5,
+      yp = 1.5;
+    const Ax = (vE - vW) / dx,
+      Ay = (vS - vN) / dy;
+    const vpx = vW + Ax * xp,
+      vpy = vN + Ay * yp;
     const tEast = Math.log(vE / vpx) / Ax;
     const tSouth = Math.log(vS / vpy) / Ay;
     expect(tEast).toBeLessThan(tSouth); // leaves through the east face
@@ -125,7 +147,13 @@ describe('Tracker.track', () => {
 describe('weak sinks', () => {
   // A well in cell 2 takes 4 of the 10 units flowing in; the rest goes on to the outlet (cell 5).
   function weakWell(weakSinkFraction: number) {
-    const input = strip([10, 10, 6, 6, 6], { weakSinkFraction, labels: [{ kind: 'boundary', name: 'outlet' }, { kind: 'well', name: 'W1' }] });
+    const input = strip([10, 10, 6, 6, 6], {
+      weakSinkFraction,
+      labels: [
+        { kind: 'boundary', name: 'outlet' },
+        { kind: 'well', name: 'W1' },
+      ],
+    });
     input.stopLabel[2] = 1;
     return buildTrackingField(input);
   }

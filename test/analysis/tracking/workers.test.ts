@@ -9,7 +9,9 @@ const compiled = new URL('../../../dist/src/analysis/tracking/workers.js', impor
 
 describe('endRastersInWorkers', () => {
   it.skipIf(!existsSync(compiled))('gives the same rasters, value for value, as one thread, for any number of workers', async () => {
-    const { endRastersInWorkers, trackingWorkersAvailable } = (await import(compiled.href)) as typeof import('../../../src/analysis/tracking/workers.js');
+    const { endRastersInWorkers, trackingWorkersAvailable } = (await import(
+      compiled.href
+    )) as typeof import('../../../src/analysis/tracking/workers.js');
     expect(trackingWorkersAvailable()).toBe(true);
     const N = 48;
     const grid = testGrid(N, N, 10);
