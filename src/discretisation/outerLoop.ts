@@ -127,6 +127,7 @@ export function* solveOuter(
   const seen = new Set<string>();
   const history: OuterIteration[] = [];
   let innerTotal = 0;
+  let solveSecondsTotal = 0;
   let damping = 1;
   let lastChange = Infinity;
   let lastLimited = 0;
@@ -139,6 +140,7 @@ export function* solveOuter(
     const innerTolerance = waterTable ? Math.max(linear.tolerance, Math.min(0.1, INNER_REDUCTION * flowResidual)) : linear.tolerance;
     const answer: LinearAnswer = yield* solveLinear(session, { ...linear, tolerance: innerTolerance, rhs: system.rhs, x });
     innerTotal += answer.stats.iterations;
+    solveSecondsTotal += answer.stats.solveSeconds;
     headsFromSolution(system, answer.x, next);
     const rawChange = largestChange(next, head, unknown);
     // Damping (water tables): halve when the step grows, recover towards 1 while it shrinks.
@@ -230,8 +232,12 @@ export function* solveOuter(
       limitedCells: limited,
       rebuilt,
     });
-    if (stopReason)
-      return { x, stats: answer.stats, outer: { iterations: history.length, stopReason, history, innerIterations: innerTotal } };
+    if (stopReason) {
+      // The run's statistics count every inner solve (the last one alone often needs no iteration at all); the
+      // residual, stop reason and history are the last inner solve's.
+      const stats = { ...answer.stats, iterations: innerTotal, solveSeconds: solveSecondsTotal };
+      return { x, stats, outer: { iterations: history.length, stopReason, history, innerIterations: innerTotal } };
+    }
   }
 }
 
