@@ -211,7 +211,9 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
   const program = new Command();
   program
     .name('piezomap')
-    .description('Steady groundwater heads, drawdown, water budgets and capture zones from GeoTIFF rasters and a JSON scenario file.\n' + CAUTION)
+    .description(
+      'Steady groundwater heads, drawdown, water budgets and capture zones from GeoTIFF rasters and a JSON scenario file.\n' + CAUTION,
+    )
     .version(VERSION, '--version', 'print the version')
     .showHelpAfterError('(run with --help for usage)')
     .configureOutput({ writeOut: io.stdout, writeErr: io.stderr })
