@@ -41,6 +41,23 @@ const DITCH_LEAKANCE = 1.0; // 1/d
 const DITCH_WIDTH = 1.5; // m
 const DITCH_DEPTH = 0.8; // m, the ditch level below the head the aquifer has there without it
 const POROSITY = 0.2; // effective porosity of sand and gravel (handbook range 0.15-0.30, from memory)
+
+/** The boundaries both demo scenarios share: the downstream edge and the gravel-pit lake as fixed heads. */
+const DEMO_FIXED_HEADS = [
+  { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
+  { shape: 'gravel_pit.geojson', headProperty: 'level', name: 'gravel-pit' },
+];
+
+/** The river as a head-dependent boundary with its bed resistance and bed bottom, in both demo scenarios. */
+const DEMO_RIVER = {
+  name: 'river',
+  kind: 'river',
+  shape: 'river.geojson',
+  headProperty: 'stage',
+  bottomProperty: 'bed',
+  leakance: RIVER_LEAKANCE,
+  width: RIVER_WIDTH,
+};
 const SPILL_SITE = { x: 503580, y: 4106030 }; // invented farmyard fuel spill upstream of PW-1
 
 const grid: Grid = {
@@ -365,20 +382,9 @@ async function main(): Promise<void> {
     title: 'Talvorin valley wellfield (invented demo), baseline',
     units: { length: 'm', time: 'd' },
     aquifer: { conductivity: 'conductivity.tif', thickness: 'thickness.tif', anisotropy: 1.0, porosity: POROSITY },
-    fixedHeads: [
-      { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
-      { shape: 'gravel_pit.geojson', headProperty: 'level', name: 'gravel-pit' },
-    ],
+    fixedHeads: DEMO_FIXED_HEADS,
     headDependent: [
-      {
-        name: 'river',
-        kind: 'river',
-        shape: 'river.geojson',
-        headProperty: 'stage',
-        bottomProperty: 'bed',
-        leakance: RIVER_LEAKANCE,
-        width: RIVER_WIDTH,
-      },
+      DEMO_RIVER,
       ...(withDitch
         ? [
             {
@@ -484,22 +490,9 @@ async function writeUnconfinedValley(
     title: 'Talvorin valley fill, unconfined (invented demo), baseline',
     units: { length: 'm', time: 'd' },
     aquifer: { type: 'unconfined', conductivity: 'conductivity.tif', bottom: 'bottom.tif', anisotropy: 1.0 },
-    fixedHeads: [
-      { edge: 'east', head: EAST_EDGE_HEAD, name: 'downstream-edge' },
-      { shape: 'gravel_pit.geojson', headProperty: 'level', name: 'gravel-pit' },
-    ],
+    fixedHeads: DEMO_FIXED_HEADS,
     // The same river as the confined demo: a head-dependent boundary with its bed resistance and bed bottom.
-    headDependent: [
-      {
-        name: 'river',
-        kind: 'river',
-        shape: 'river.geojson',
-        headProperty: 'stage',
-        bottomProperty: 'bed',
-        leakance: RIVER_LEAKANCE,
-        width: RIVER_WIDTH,
-      },
-    ],
+    headDependent: [DEMO_RIVER],
     recharge: RECHARGE,
     wells,
     receptors,
