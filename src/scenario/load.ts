@@ -2,7 +2,8 @@
  * Scenario loading: read the JSON, validate it (schema.ts), read every raster and CSV it names (paths relative to
  * the scenario file), check that all rasters share the conductivity raster's grid, reproject points given in
  * `pointCrs`, and return a ModelInput. Variants are merged into the baseline's JSON (mergeVariant) and resolved
- * the same way (resolveScenario).
+ * the same way (resolveScenario). Point lists (wells, observations, receptors, measured conductivities) are read by
+ * loadPoints.ts, head-dependent boundaries and leakage by loadHeadDependent.ts, through this module's file access.
  *
  * Decisions (documented for users in the README's scenario tour):
  * - Recharge raster cells without data count as 0 recharge; a warning gives the count on active cells.
@@ -18,37 +19,16 @@ import { readRaster, readRasterHeader } from '../raster/read.js';
 import { checkRasterMemory, rasterBudget, type RasterFootprint } from '../memory.js';
 import type { RasterData } from '../raster/types.js';
 import { describeExpectedUnit, unitMatches, type Quantity, type ValueUnits } from '../raster/units.js';
-import { linearUnitOf, makeTransform, parseEpsg, type PointTransform } from '../crs.js';
-import {
-  parseScenarioJson,
-  solverSchema,
-  type EnsembleJson,
-  type FixedHeadEntry,
-  type FixedHeadShapeEntry,
-  type ReceptorEntry,
-  type ScenarioJson,
-  type WellChange,
-  type WellEntry,
-  type WellLayers,
-} from './schema.js';
-import { wellLayers } from './merge.js';
+import { linearUnitOf, makeTransform, type PointTransform } from '../crs.js';
+import { parseScenarioJson, solverSchema, type FixedHeadEntry, type FixedHeadShapeEntry, type ScenarioJson } from './schema.js';
 import { readShapes, reprojectShapes, type ShapeCollection } from './geojson.js';
 import { checkLineLengths, markShapeCells, shapeFixedHeads } from './shapes.js';
-import { numberProperty, readPointFeatures, type PointFeature } from './pointFeatures.js';
-import { CsvSyntaxError, findJsonSyntaxError, parseCsv } from './text.js';
 import { checkMagnitudes } from './magnitudes.js';
-import type {
-  ConditioningPoint,
-  EnsembleInput,
-  FixedHeadInput,
-  ModelInput,
-  ObservationInput,
-  ReceptorInput,
-  TrackingSettings,
-  WellInput,
-} from './types.js';
+import type { FixedHeadInput, ModelInput, TrackingSettings } from './types.js';
 import { fieldAt } from '../field.js';
 import { loadHeadDependent, loadLeakage } from './loadHeadDependent.js';
+import { PointLoader } from './loadPoints.js';
+import { parseJsonText } from './text.js';
 
 export type { ScenarioJson, VariantJson } from './schema.js';
 export { mergeVariant } from './merge.js';
@@ -193,17 +173,17 @@ export async function resolveScenario(raw: ScenarioJson, baseDir: string, scenar
   const headDependent = await loadHeadDependent(loader, raw.headDependent, conductivityRaster, fixedHeads, elevations.aquiferBottom);
   const leakage = await loadLeakage(loader, raw.leakage, conductivityRaster, [...fixedHeads, ...headDependent]);
 
-  const transform = loader.pointTransform(raw.pointCrs, grid, conductivityPath);
-  loader.pointFrame = { grid, conductivityPath };
-  const wells = await loader.wells(raw.wells, transform);
-  const observations = await loader.observations(raw.observations, transform);
-  const receptors = await loader.receptors(raw.receptors, transform, grid, conductivityPath);
+  const points = new PointLoader(loader, grid, conductivityPath);
+  const transform = points.pointTransform(raw.pointCrs, grid, conductivityPath);
+  const wells = await points.wells(raw.wells, transform);
+  const observations = await points.observations(raw.observations, transform);
+  const receptors = await points.receptors(raw.receptors, transform, grid, conductivityPath);
   const tracking = raw.tracking
     ? resolveTracking(raw, loader.label, porosity, transform, grid, conductivity, thickness, (t, x, y, what) =>
-        loader.projectPoint(t, x, y, what),
+        points.projectPoint(t, x, y, what),
       )
     : undefined;
-  const ensemble = raw.ensemble ? await loader.ensemble(raw.ensemble, transform) : undefined;
+  const ensemble = raw.ensemble ? await points.ensemble(raw.ensemble, transform) : undefined;
 
   const solver = raw.solver ?? solverSchema.parse({});
   const title = raw.title ?? (inline ? 'Untitled scenario' : basename(scenarioPath, extname(scenarioPath)));
@@ -349,30 +329,6 @@ function countActive(conductivity: Float64Array, thickness: Float64Array | numbe
   return count;
 }
 
-/** JSON text to a value; a syntax error names the file, line and column. */
-function parseJsonText(text: string, label: string, absolute: string): unknown {
-  let value: unknown;
-  try {
-    value = JSON.parse(text.charCodeAt(0) === 0xfeff ? text.slice(1) : text);
-  } catch (thrown) {
-    const problem = findJsonSyntaxError(text);
-    const where = problem ? ` line ${problem.line}, column ${problem.column}` : '';
-    const what = problem ? problem.problem : describeThrown(thrown);
-    throw inputError(`${label}${where}: invalid JSON: ${what}`, {
-      file: absolute,
-      hint: problem?.hint ?? 'fix the JSON syntax (a JSON validator or editor will point at the same place)',
-    });
-  }
-  const duplicate = findJsonSyntaxError(text, { duplicateKeys: true });
-  if (duplicate) {
-    throw inputError(`${label} line ${duplicate.line}, column ${duplicate.column}: ${duplicate.problem}`, {
-      file: absolute,
-      hint: duplicate.hint ?? 'keep one of them: otherwise the last one would silently win',
-    });
-  }
-  return value;
-}
-
 function fileProblem(thrown: unknown, given: string, absolute: string, what: string, key?: string): PiezomapError {
   const code = (thrown as { code?: string } | null)?.code;
   const detail = { file: absolute, ...(key ? { key } : {}) };
@@ -387,9 +343,6 @@ function fileProblem(thrown: unknown, given: string, absolute: string, what: str
     return inputError(`${what} "${given}" cannot be read: permission denied (${absolute})`, detail);
   return inputError(`${what} "${given}" cannot be read (${absolute}): ${describeThrown(thrown)}`, detail);
 }
-
-/** One CSV record: `source` names the file and line for messages; `file` is the absolute path. */
-type PointRecord = { source: string; file: string; values: Map<string, string> };
 
 /** The I/O of one resolve: paths, files read, warnings. */
 class Loader {
@@ -728,7 +681,7 @@ class Loader {
   }
 
   /** The text of a file a key names (GeoJSON or CSV), recorded as an input; missing or unreadable files are named. */
-  private async readText(key: string, given: string, kind: 'GeoJSON' | 'CSV'): Promise<{ absolute: string; text: string }> {
+  async readText(key: string, given: string, kind: 'GeoJSON' | 'CSV'): Promise<{ absolute: string; text: string }> {
     const absolute = this.path(given);
     await this.requireFile(key, given, absolute, kind);
     let text: string;
@@ -790,357 +743,6 @@ class Loader {
       `${where}: ${listed} cover${outside.length === 1 ? 's' : ''} no cell of the grid (outside it, or too small to hold a cell centre) and ${outside.length === 1 ? 'is' : 'are'} ignored`,
     );
   }
-
-  /** The transform from `pointCrs` to the raster CRS, or null when points are already in the raster CRS. */
-  pointTransform(pointCrs: string | undefined, grid: Grid, conductivityPath: string, key = 'pointCrs'): PointTransform | null {
-    if (pointCrs === undefined) return null;
-    const from = parseEpsg(pointCrs);
-    if (from === null) throw inputError(`${this.label}: ${key}: "${pointCrs}" is not an EPSG code such as "EPSG:4326"`, { key });
-    const to = grid.crs?.epsg ?? null;
-    if (to === null) {
-      throw inputError(
-        `${this.label}: ${key} is ${pointCrs}, but aquifer.conductivity "${conductivityPath}" has no EPSG code (${crsLabel(grid.crs)} CRS), so points cannot be reprojected into it`,
-        {
-          key,
-          hint: 'give the points in the raster CRS and drop "pointCrs", or assign the rasters an EPSG code (gdal_edit.py -a_srs EPSG:nnnn)',
-        },
-      );
-    }
-    if (from === to) return null;
-    try {
-      return makeTransform(from, to);
-    } catch (thrown) {
-      if (thrown instanceof PiezomapError) {
-        throw new PiezomapError(
-          thrown.code,
-          `${this.label}: ${key}: reprojecting points from EPSG:${from} to the rasters' EPSG:${to}: ${thrown.message}`,
-          { ...thrown.detail, key },
-        );
-      }
-      throw thrown;
-    }
-  }
-
-  async wells(spec: WellEntry[] | string | WellLayers | undefined, transform: PointTransform | null): Promise<WellInput[]> {
-    // `projected`: the well's x, y are already in the raster CRS (GeoJSON points are reprojected when read).
-    const byId = new Map<string, { change: Partial<WellChange>; source: string; projected: boolean }>();
-    for (const layer of wellLayers(spec)) {
-      const changes: { change: WellChange; source: string; projected?: boolean }[] =
-        typeof layer.wells === 'string' && isGeoJsonPath(layer.wells)
-          ? (await this.pointGeoJson(layer.source, layer.wells, 'well')).map(({ feature, source, x, y }) => ({
-              change: wellFromFeature(feature, source, x, y),
-              source,
-              projected: true,
-            }))
-          : typeof layer.wells === 'string'
-            ? (await this.pointCsv(`${layer.source}`, layer.wells, ['id', 'x', 'y', 'rate'], ['radius', 'minimumhead'])).map((record) => ({
-                change: wellFromRecord(record),
-                source: record.source,
-              }))
-            : layer.wells.map((change, index) => ({ change, source: `${layer.source}[${index}]` }));
-      for (const { change, source, projected } of changes) {
-        const existing = byId.get(change.id);
-        const mergedChange: Partial<WellChange> = { ...(existing?.change ?? {}) };
-        for (const [key, value] of Object.entries(change)) if (value !== undefined) (mergedChange as Record<string, unknown>)[key] = value;
-        const moved = change.x !== undefined || change.y !== undefined;
-        byId.set(change.id, { change: mergedChange, source, projected: moved ? Boolean(projected) : (existing?.projected ?? false) });
-      }
-    }
-    const wells: WellInput[] = [];
-    for (const [id, { change, source, projected }] of byId) {
-      const missing = (['x', 'y', 'rate'] as const).filter((key) => change[key] === undefined);
-      if (missing.length) {
-        throw inputError(
-          `${this.label}: ${source}: well "${id}" is new here, so it needs ${missing.join(', ')} (no earlier well has this id)`,
-          {
-            key: source,
-            hint: 'a variant changes a baseline well by giving its id; check the id for typos',
-          },
-        );
-      }
-      if (change.rate === 0) continue;
-      const point = projected ? { x: change.x!, y: change.y! } : this.project(transform, change.x!, change.y!, `well "${id}" (${source})`);
-      const well: WellInput = { id, x: point.x, y: point.y, rate: change.rate!, source };
-      if (change.radius !== undefined) well.radius = change.radius;
-      if (change.minimumHead !== undefined) well.minimumHead = change.minimumHead;
-      wells.push(well);
-    }
-    return wells;
-  }
-
-  async observations(spec: ScenarioJson['observations'], transform: PointTransform | null): Promise<ObservationInput[]> {
-    if (spec === undefined) return [];
-    if (typeof spec === 'string' && isGeoJsonPath(spec)) {
-      return (await this.pointGeoJson('observations', spec, 'observation')).map(({ feature, source, x, y }) => {
-        const head = numberProperty(feature, source, 'head');
-        if (head === undefined)
-          throw inputError(`${source} (id "${feature.id}"): has no "head" property (the observed head)`, { key: 'observations' });
-        return { id: feature.id, x, y, head, source };
-      });
-    }
-    const entries =
-      typeof spec === 'string'
-        ? (await this.pointCsv('observations', spec, ['id', 'x', 'y', 'head'], [])).map((record) => ({
-            id: record.values.get('id')!,
-            x: csvNumber(record, 'x'),
-            y: csvNumber(record, 'y'),
-            head: csvNumber(record, 'head'),
-            source: record.source,
-          }))
-        : spec.map((entry, index) => ({ ...entry, source: `observations[${index}]` }));
-    return entries.map((entry) => {
-      const point = this.project(transform, entry.x, entry.y, `observation "${entry.id}" (${entry.source})`);
-      return { id: entry.id, x: point.x, y: point.y, head: entry.head, source: entry.source };
-    });
-  }
-
-  /** Receptors: in pointCrs (or the raster CRS), unless an entry names its own `crs`. */
-  async receptors(
-    spec: ScenarioJson['receptors'],
-    transform: PointTransform | null,
-    grid: Grid,
-    conductivityPath: string,
-  ): Promise<ReceptorInput[]> {
-    if (spec === undefined) return [];
-    if (typeof spec === 'string' && isGeoJsonPath(spec)) {
-      return (await this.pointGeoJson('receptors', spec, 'receptor')).map(({ feature, source, x, y }) => ({
-        id: feature.id,
-        x,
-        y,
-        source,
-      }));
-    }
-    const entries: Array<ReceptorEntry & { source: string }> =
-      typeof spec === 'string'
-        ? (await this.pointCsv('receptors', spec, ['id', 'x', 'y'], ['crs'])).map((record) => {
-            const crs = record.values.get('crs');
-            return {
-              id: record.values.get('id')!,
-              x: csvNumber(record, 'x'),
-              y: csvNumber(record, 'y'),
-              ...(crs ? { crs } : {}),
-              source: record.source,
-            };
-          })
-        : spec.map((entry, index) => ({ ...entry, source: `receptors[${index}]` }));
-    return entries.map((entry) => {
-      const own = entry.crs === undefined ? transform : this.pointTransform(entry.crs, grid, conductivityPath, `${entry.source}.crs`);
-      const point = this.project(own, entry.x, entry.y, `receptor "${entry.id}" (${entry.source})`);
-      return { id: entry.id, x: point.x, y: point.y, source: entry.source };
-    });
-  }
-
-  /** The `ensemble` key: repeated thresholds or percentiles refused, conditioning points (CSV id,x,y,k) read and projected. */
-  async ensemble(spec: EnsembleJson, transform: PointTransform | null): Promise<EnsembleInput> {
-    for (const key of ['drawdownThresholds', 'percentiles'] as const) {
-      const values = spec[key];
-      const repeated = values.find((v, i) => values.indexOf(v) !== i);
-      if (repeated !== undefined) throw inputError(`${this.label}: ensemble.${key} lists ${repeated} twice`, { key: `ensemble.${key}` });
-    }
-    const lengths = spec.logConductivity.correlationLength;
-    const conditioning: ConditioningPoint[] = [];
-    if (spec.conditioning !== undefined) {
-      for (const record of await this.pointCsv('ensemble.conditioning', spec.conditioning, ['id', 'x', 'y', 'k'], [])) {
-        const id = record.values.get('id')!;
-        const k = csvNumber(record, 'k');
-        if (!(k > 0) || !Number.isFinite(k)) {
-          throw inputError(`${this.label}: ensemble.conditioning ${record.source} (id "${id}"): k = ${k} is not a conductivity > 0`, {
-            key: 'ensemble.conditioning',
-            file: this.path(spec.conditioning),
-          });
-        }
-        const point = this.project(
-          transform,
-          csvNumber(record, 'x'),
-          csvNumber(record, 'y'),
-          `measured conductivity "${id}" (${record.source})`,
-        );
-        conditioning.push({ id, x: point.x, y: point.y, k, source: record.source });
-      }
-    }
-    return {
-      realisations: spec.realisations,
-      seed: spec.seed,
-      sd: spec.logConductivity.sd,
-      correlationLength: typeof lengths === 'number' ? [lengths, lengths] : [lengths[0], lengths[1]],
-      model: spec.logConductivity.model,
-      conditioning,
-      ...(spec.conditioning !== undefined ? { conditioningFile: spec.conditioning } : {}),
-      drawdownThresholds: [...spec.drawdownThresholds],
-      percentiles: [...spec.percentiles],
-    };
-  }
-
-  /** Grid and conductivity path, for reprojecting GeoJSON points (set before the point lists are read). */
-  pointFrame: { grid: Grid; conductivityPath: string } | null = null;
-
-  /** Point features of a GeoJSON file, reprojected from WGS 84 (or its legacy `crs`) into the raster CRS. */
-  async pointGeoJson(
-    key: string,
-    given: string,
-    what: string,
-  ): Promise<Array<{ feature: PointFeature; source: string; x: number; y: number }>> {
-    const { absolute, text } = await this.readText(key, given, 'GeoJSON');
-    const json = parseJsonText(text, given, absolute);
-    let collection;
-    try {
-      collection = readPointFeatures(json, given, what);
-    } catch (thrown) {
-      if (thrown instanceof PiezomapError)
-        throw new PiezomapError(thrown.code, `${this.label}: ${key}: ${thrown.message}`, { ...thrown.detail, file: absolute, key });
-      throw thrown;
-    }
-    const frame = this.pointFrame!;
-    const transform = this.pointTransform(`EPSG:${collection.epsg}`, frame.grid, frame.conductivityPath, `${key} "${given}"`);
-    return collection.features.map((feature) => {
-      const source = `${given} feature ${feature.index}`;
-      const point = this.project(transform, feature.x, feature.y, `${what} "${feature.id}" (${source})`);
-      return { feature, source, x: point.x, y: point.y };
-    });
-  }
-
-  /** A point in pointCrs (or the raster CRS) in the raster CRS, for point lists resolved outside the loader. */
-  projectPoint(transform: PointTransform | null, x: number, y: number, what: string): { x: number; y: number } {
-    return this.project(transform, x, y, what);
-  }
-
-  private project(transform: PointTransform | null, x: number, y: number, what: string): { x: number; y: number } {
-    if (!transform) return { x, y };
-    try {
-      return transform.forward(x, y, what);
-    } catch (thrown) {
-      if (thrown instanceof PiezomapError) throw new PiezomapError(thrown.code, `${this.label}: ${thrown.message}`, thrown.detail);
-      throw thrown;
-    }
-  }
-
-  /**
-   * Records of a point CSV: header with the required columns (any order, any case), one record per line.
-   * Unknown columns are ignored with a warning; a record with the wrong number of fields, an empty id or a
-   * duplicate id is an error naming the file and line.
-   */
-  async pointCsv(key: string, given: string, required: string[], optional: string[]): Promise<PointRecord[]> {
-    const { absolute, text } = await this.readText(key, given, 'CSV');
-    const name = given;
-    let records;
-    try {
-      records = parseCsv(text);
-    } catch (thrown) {
-      if (thrown instanceof CsvSyntaxError) throw inputError(`${name} line ${thrown.line}: ${thrown.message}`, { file: absolute, key });
-      throw thrown;
-    }
-    const expected = required.join(',');
-    if (records.length === 0)
-      throw inputError(`${name}: the file is empty (expected a header line "${expected}")`, { file: absolute, key });
-    const header = records[0]!;
-    const columns = header.fields.map((field) => field.trim().toLowerCase());
-    if (columns.length === 1 && /[;\t]/.test(columns[0]!)) {
-      throw inputError(`${name} line ${header.line}: the header "${header.fields[0]}" is not separated by commas`, {
-        file: absolute,
-        key,
-        hint: `write the columns as "${expected}" with commas (and "." as the decimal point)`,
-      });
-    }
-    const seen = new Set<string>();
-    for (const column of columns) {
-      if (seen.has(column))
-        throw inputError(`${name} line ${header.line}: column "${column}" appears twice in the header`, { file: absolute, key });
-      seen.add(column);
-    }
-    const missing = required.filter((column) => !seen.has(column));
-    if (missing.length) {
-      throw inputError(
-        `${name} line ${header.line}: the header lacks the column(s) ${missing.map((c) => `"${c}"`).join(', ')} (found: ${columns.join(',')})`,
-        {
-          file: absolute,
-          key,
-          hint: `the header must be "${expected}"${optional.length ? ` (optional: ${optional.join(', ')})` : ''}`,
-        },
-      );
-    }
-    const ignored = columns.filter((column) => !required.includes(column) && !optional.includes(column));
-    if (ignored.length) this.warn(`${name}: column(s) ${ignored.map((c) => `"${c}"`).join(', ')} ignored`);
-
-    const result: PointRecord[] = [];
-    const firstLine = new Map<string, number>();
-    for (let r = 1; r < records.length; r++) {
-      const record = records[r]!;
-      if (record.fields.length !== columns.length) {
-        throw inputError(`${name} line ${record.line}: ${record.fields.length} field(s) where the header has ${columns.length}`, {
-          file: absolute,
-          key,
-          hint: 'quote a field that contains a comma ("like, this"); use "." as the decimal point',
-        });
-      }
-      const values = new Map<string, string>();
-      columns.forEach((column, c) => values.set(column, record.fields[c]!.trim()));
-      const id = values.get('id')!;
-      if (id === '') throw inputError(`${name} line ${record.line}: the id is empty`, { file: absolute, key });
-      const earlier = firstLine.get(id);
-      if (earlier !== undefined) {
-        throw inputError(`${name} line ${record.line}: duplicate id "${id}" (also on line ${earlier})`, {
-          file: absolute,
-          key,
-          hint: 'ids must be unique within a list',
-        });
-      }
-      firstLine.set(id, record.line);
-      result.push({ source: `${given} line ${record.line}`, file: absolute, values });
-    }
-    return result;
-  }
-}
-
-/** Point lists given as GeoJSON files are told apart from CSV files by the extension. */
-function isGeoJsonPath(given: string): boolean {
-  return /\.(geo)?json$/i.test(given.trim());
-}
-
-function wellFromFeature(feature: PointFeature, source: string, x: number, y: number): WellChange {
-  const well: WellChange = { id: feature.id, x, y };
-  const rate = numberProperty(feature, source, 'rate');
-  if (rate !== undefined) well.rate = rate;
-  const radius = numberProperty(feature, source, 'radius');
-  if (radius !== undefined) {
-    if (!(radius > 0)) throw inputError(`${source} (id "${feature.id}"): radius ${radius} must be > 0 (or left out)`);
-    well.radius = radius;
-  }
-  const minimumHead = numberProperty(feature, source, 'minimumHead');
-  if (minimumHead !== undefined) well.minimumHead = minimumHead;
-  return well;
-}
-
-function wellFromRecord(record: PointRecord): WellChange {
-  const well: WellChange = {
-    id: record.values.get('id')!,
-    x: csvNumber(record, 'x'),
-    y: csvNumber(record, 'y'),
-    rate: csvNumber(record, 'rate'),
-  };
-  const radius = record.values.get('radius');
-  if (radius !== undefined && radius !== '') {
-    const value = csvNumber(record, 'radius');
-    if (!(value > 0)) throw inputError(`${record.source}: radius ${value} must be > 0 (or left empty)`, { file: record.file });
-    well.radius = value;
-  }
-  const minimumHead = record.values.get('minimumhead');
-  if (minimumHead !== undefined && minimumHead !== '') well.minimumHead = csvNumber(record, 'minimumhead');
-  return well;
-}
-
-/** A finite number from a CSV field, else an error naming the file, line and column. */
-function csvNumber(record: PointRecord, column: string): number {
-  const text = record.values.get(column) ?? '';
-  // Number('') is 0 and Number('0x10') is 16: accept only decimal notation.
-  const value = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(text) ? Number(text) : NaN;
-  if (!Number.isFinite(value)) {
-    const hint = /^[+-]?\d+,\d+$/.test(text) ? 'use "." as the decimal point (and quote nothing)' : undefined;
-    throw inputError(`${record.source}: ${column} ${text === '' ? 'is empty' : `"${text}" is not a number`}`, {
-      file: record.file,
-      ...(hint ? { hint } : {}),
-    });
-  }
-  return value;
 }
 
 /** A PiezomapError with the file and scenario key at fault added to its detail (other throws pass unchanged). */

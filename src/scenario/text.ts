@@ -1,7 +1,9 @@
 /**
  * Plain-text formats of the scenario: CSV point lists (RFC 4180: quoted fields, "" escapes, CRLF, a leading BOM)
- * and JSON syntax errors located by line and column (JSON, RFC 8259). Pure functions; load.ts does the file I/O.
+ * and JSON syntax errors located by line and column (JSON, RFC 8259), and JSON text parsed with those errors as
+ * input errors. Pure functions; load.ts does the file I/O.
  */
+import { describeThrown, inputError } from '../errors.js';
 
 export interface CsvRecord {
   /** 1-based line where the record starts (a quoted field may span lines). */
@@ -327,4 +329,28 @@ class JsonScanner {
   private stop(message: string, offset: number = this.i): never {
     throw new JsonStop(message, offset);
   }
+}
+
+/** JSON text to a value; a syntax error names the file, line and column. */
+export function parseJsonText(text: string, label: string, absolute: string): unknown {
+  let value: unknown;
+  try {
+    value = JSON.parse(text.charCodeAt(0) === 0xfeff ? text.slice(1) : text);
+  } catch (thrown) {
+    const problem = findJsonSyntaxError(text);
+    const where = problem ? ` line ${problem.line}, column ${problem.column}` : '';
+    const what = problem ? problem.problem : describeThrown(thrown);
+    throw inputError(`${label}${where}: invalid JSON: ${what}`, {
+      file: absolute,
+      hint: problem?.hint ?? 'fix the JSON syntax (a JSON validator or editor will point at the same place)',
+    });
+  }
+  const duplicate = findJsonSyntaxError(text, { duplicateKeys: true });
+  if (duplicate) {
+    throw inputError(`${label} line ${duplicate.line}, column ${duplicate.column}: ${duplicate.problem}`, {
+      file: absolute,
+      hint: duplicate.hint ?? 'keep one of them: otherwise the last one would silently win',
+    });
+  }
+  return value;
 }
