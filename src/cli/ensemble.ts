@@ -9,7 +9,7 @@ import { CAUTION } from '../caution.js';
 import { prepareResultFolder, releaseResultFolder, writeResultFiles } from '../output/resultFolder.js';
 import { parseSolverOption } from '../scenario/solverSettings.js';
 import { solverMethodNames } from '../solvers/registry.js';
-import { ensembleFiles, shardFiles, type EnsembleSummaryJson } from '../ensemble/files.js';
+import { ensembleFiles, recordSource, shardFiles, type EnsembleSummaryJson } from '../ensemble/files.js';
 import { loadEnsemble, parseShard, runEnsemble, type EnsembleOptions } from '../ensemble/run.js';
 import { readShards } from '../ensemble/shard.js';
 /** Where the command prints (the CLI's streams, or a test's). */
@@ -114,7 +114,7 @@ async function runEnsembleCommand(scenario: string, flags: EnsembleFlags, io: Cl
       io.stdout(flags.json ? JSON.stringify({ shard: options.shard, range: run.range, run: run.runInfo }, null, 2) + '\n' : text);
       return 0;
     }
-    const { files, summary } = ensembleFiles(run.setup, run.records, {
+    const { files, summary } = ensembleFiles(recordSource(run.setup, run.records), {
       ...run.runInfo,
       ...(folder.notes.length ? { notes: folder.notes } : {}),
     });
@@ -137,13 +137,21 @@ function noneConverged(summary: EnsembleSummaryJson, io: CliIO): number {
 async function runMerge(dirs: string[], flags: EnsembleFlags, io: CliIO): Promise<number> {
   requireOut(flags);
   const merged = await readShards(dirs);
-  const folder = await prepareResultFolder(flags.out!, Boolean(flags.overwrite), merged.folders);
+  let folder: Awaited<ReturnType<typeof prepareResultFolder>>;
   try {
-    const { files, summary } = ensembleFiles(merged.setup, merged.records, merged.runInfo);
+    folder = await prepareResultFolder(flags.out!, Boolean(flags.overwrite), merged.folders);
+  } catch (thrown) {
+    merged.close();
+    throw thrown;
+  }
+  try {
+    const { files, summary } = ensembleFiles(merged.source, merged.runInfo);
+    merged.close();
     await writeResultFiles(folder, files);
     io.stdout(flags.json ? JSON.stringify(summary, null, 2) + '\n' : formatEnsemble(summary, flags.out!));
     return noneConverged(summary, io);
   } finally {
+    merged.close();
     releaseResultFolder(folder.dir);
   }
 }

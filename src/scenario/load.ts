@@ -968,6 +968,7 @@ class Loader {
       ...(spec.conditioning !== undefined ? { conditioningFile: spec.conditioning } : {}),
       drawdownThresholds: [...spec.drawdownThresholds],
       percentiles: [...spec.percentiles],
+      captureProbability: spec.captureProbability,
     };
   }
 
