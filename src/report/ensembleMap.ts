@@ -13,7 +13,7 @@
 import { interpolatePuBu, interpolateYlOrRd } from 'd3-scale-chromatic';
 import { cellHeight, cellWidth, crsLabel, type Grid } from '../grid.js';
 import { colourCells, headRamp, parseColour, rampHex, type ColourRamp } from './colour.js';
-import { placePointLabels, symbolBox, textWidth, type PointLabelRequest } from './labels.js';
+import { placePointLabels, symbolBox, type PointLabelRequest } from './labels.js';
 import { dataUrl, encodePng, MAP_FONT_STACK, svgToPng } from './png.js';
 import { escapeMarkup, formatFixed, niceTicks, wrapText } from './text.js';
 
@@ -195,15 +195,19 @@ export function ensembleMapSvg(
   // Legend: a vertical colour bar with round ticks, then the point symbols and the no-data swatch.
   const lx = frame.left + frame.width + 28;
   let ly = frame.top + 4;
+  // Titles of at most two short lines: the legend column is LEGEND_WIDTH wide.
   const legendTitle =
     kind.quantity === 'head'
-      ? `Mean head (${L})`
+      ? [`Mean head (${L})`]
       : kind.quantity === 'sd'
-        ? `Standard deviation (${L})`
+        ? ['Standard deviation', `of head (${L})`]
         : kind.well !== undefined
-          ? 'Probability of capture'
-          : 'Probability';
-  parts.push(`<text x="${lx}" y="${ly + 10}" font-size="12.5" font-weight="bold" fill="${INK}">${escapeMarkup(legendTitle)}</text>`);
+          ? ['Probability of capture']
+          : ['Probability'];
+  legendTitle.forEach((line, k) =>
+    parts.push(`<text x="${lx}" y="${ly + 10 + 16 * k}" font-size="12.5" font-weight="bold" fill="${INK}">${escapeMarkup(line)}</text>`),
+  );
+  ly += 16 * (legendTitle.length - 1);
   ly += 20;
   const barHeight = Math.min(220, Math.max(120, frame.height - 120));
   const steps = 64;
@@ -246,7 +250,6 @@ export function ensembleMapSvg(
     'inactive (no data)',
   );
   const legendBottom = ly;
-  const legendRight = Math.max(...[legendTitle, 'inactive (no data)'].map((s) => lx + 22 + textWidth(s, 12.5)));
 
   // Footer: the caution in its own band.
   const body = Math.max(frame.height, legendBottom - frame.top);
@@ -261,7 +264,7 @@ export function ensembleMapSvg(
     parts.push(
       `<text x="${width - MARGIN}" y="${height - 8}" font-size="10.5" fill="${MUTED}" text-anchor="end">${escapeMarkup(ctx.footnote)}</text>`,
     );
-  const w = Math.max(width, Math.ceil(legendRight + MARGIN));
+  const w = width;
   const svg = [
     `<svg xmlns="http://www.w3.org/2000/svg" width="${w}" height="${height}" viewBox="0 0 ${w} ${height}" font-family="${MAP_FONT_STACK}" role="img" aria-label="${escapeMarkup(caption)}">`,
     '<defs><pattern id="nodata" width="6" height="6" patternUnits="userSpaceOnUse"><rect width="6" height="6" fill="#ffffff"/><circle cx="3" cy="3" r="0.8" fill="#b9bec2"/></pattern>',
