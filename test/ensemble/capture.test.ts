@@ -166,7 +166,7 @@ describe('capture-zone probability', () => {
     const wellIds: string[] = summary.tracking.wells.map((w: { id: string }) => w.id);
     const captureWell = await decodeTif(readFileSync(join(out, 'capture-well.tif')));
     const travel = await decodeTif(readFileSync(join(out, 'travel-time.tif')));
-    for (const [k, well] of run.setup.capture!.wells[0]!.entries()) {
+    for (const well of run.setup.capture!.wells[0]!) {
       const number = wellIds.indexOf(well.id) + 1;
       expect(number).toBeGreaterThan(0);
       for (const [z, t] of TIMES.concat(Infinity).entries()) {
