@@ -81,6 +81,16 @@ function formatEnsemble(summary: EnsembleSummaryJson, outDir: string): string {
         `    receptor ${p.id}: mean drawdown ${p.mean === null ? 'n/a' : p.mean.toFixed(3)} ${summary.units.length}${exc.length ? '; ' + exc.join(', ') : ''}`,
       );
     }
+    const L = summary.units.length;
+    for (const well of run.captureProbability ?? []) {
+      const steady = well.zones[well.zones.length - 1]!;
+      const area = (a: number) => `${Math.round(a)} ${L}²`;
+      const inside = steady.receptors.filter((r) => r.probability !== null && r.probability > 0);
+      lines.push(
+        `    capture zone of ${well.well} (steady): expected area ${area(steady.expectedArea)}, P >= 0.5 on ${area(steady.areaP50)}, P >= 0.9 on ${area(steady.areaP90)}` +
+          (inside.length ? `; ${inside.map((r) => `receptor ${r.id} inside with P = ${r.probability!.toFixed(3)}`).join(', ')}` : ''),
+      );
+    }
   }
   lines.push(`  results in ${outDir}`, `  ${CAUTION}`);
   return lines.join('\n') + '\n';
