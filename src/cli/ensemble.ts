@@ -30,6 +30,7 @@ interface EnsembleFlags {
   tolerance?: number;
   maxIterations?: number;
   relaxation?: number;
+  blockRows?: number;
 }
 
 function positiveInteger(name: string) {
@@ -155,7 +156,7 @@ async function runMerge(dirs: string[], flags: EnsembleFlags, io: CliIO): Promis
     throw thrown;
   }
   try {
-    const { files, summary } = ensembleFiles(merged.source, merged.runInfo);
+    const { files, summary } = ensembleFiles(merged.source, merged.runInfo, flags.blockRows ? { blockRows: flags.blockRows } : {});
     merged.close();
     await writeResultFiles(folder, files);
     io.stdout(flags.json ? JSON.stringify(summary, null, 2) + '\n' : formatEnsemble(summary, flags.out!));
@@ -203,7 +204,9 @@ export function addEnsembleCommand(program: Command, io: CliIO, run: (fn: () => 
     ensemble
       .command('merge')
       .description('combine shard folders of one ensemble into its results (identical to a one-machine run)')
-      .argument('<shards...>', 'shard folders'),
+      .argument('<shards...>', 'shard folders')
+      // Internal: rows per block of the out-of-core statistics (default: as many as fit 64 MiB), for tests and measurements.
+      .addOption(new Option('--block-rows <n>', 'rows per block').argParser(positiveInteger('--block-rows')).hideHelp()),
   ).action(async (shards: string[], flags: EnsembleFlags) => {
     // Options written after "merge" may be taken by `ensemble` itself (commander's global options): use both.
     const given = {
