@@ -134,16 +134,22 @@ describe('capture-zone probability', () => {
           const name = `${run.name}/capture-probability-${well.stem}-${label}.tif`;
           const raster = await decodeTif(oneFiles.get(name)!);
           let expected = 0;
+          let above50 = 0;
+          let above90 = 0;
           for (let p = 0; p < NX * NY; p++) {
             const fraction = counts[k]![z]![p]! / n;
             expect(raster[p], `${name} cell ${p}`).toBe(Math.fround(fraction));
             expect(raster[p]! >= 0 && raster[p]! <= 1).toBe(true);
             if (fraction > 0 && fraction < 1) between++;
             expected += fraction * DX * DX;
+            if (fraction >= 0.5) above50++;
+            if (fraction >= 0.9) above90++;
           }
           const zone = summaryRun.captureProbability![k]!.zones[z]!;
           expect(zone.file).toBe(name);
-          expect(zone.expectedArea).toBeCloseTo(expected, 6);
+          // Same sum, other rounding order: equal to a relative 1e-12.
+          expect(Math.abs(zone.expectedArea - expected)).toBeLessThanOrEqual(1e-12 * expected);
+          expect([zone.areaP50, zone.areaP90]).toEqual([above50 * DX * DX, above90 * DX * DX]);
         }
       }
     }
