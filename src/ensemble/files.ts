@@ -256,48 +256,59 @@ export function ensembleFiles(
         .filter((c) => c.kind === 'receptor')
         .map((c) => ({ id: c.id, cell: cellAt(grid, c.x, c.y) }))
         .map(({ id, cell }) => ({ id, p: cell ? cell.row * grid.nx + cell.col : -1 }));
-      summary.captureProbability = wells.map((well, k) => ({
-        well: well.id,
-        zones: Array.from({ length: zones }, (_, j) => {
-          const label = zoneLabel(setup, j);
-          const file = `${folder}capture-probability-${well.stem}-${label}.tif`;
-          const probability = new Float64Array(cells);
-          let expected = 0;
-          let above50 = 0;
-          let above90 = 0;
-          const offset = (k * zones + j) * cells;
-          for (let p = 0; p < cells; p++) {
-            // Cells with no head in any realisation (inactive) are nodata, as in head-mean.tif.
-            if (n === 0 || heads.count[p] === 0) {
-              probability[p] = NaN;
-              continue;
+      summary.captureProbability = wells.map((well, k) => {
+        const timed: Float64Array[] = [];
+        return {
+          well: well.id,
+          zones: Array.from({ length: zones }, (_, j) => {
+            const label = zoneLabel(setup, j);
+            const file = `${folder}capture-probability-${well.stem}-${label}.tif`;
+            const probability = new Float64Array(cells);
+            let expected = 0;
+            let above50 = 0;
+            let above90 = 0;
+            const offset = (k * zones + j) * cells;
+            for (let p = 0; p < cells; p++) {
+              // Cells with no head in any realisation (inactive) are nodata, as in head-mean.tif.
+              if (n === 0 || heads.count[p] === 0) {
+                probability[p] = NaN;
+                continue;
+              }
+              const v = counts[offset + p]! / n;
+              probability[p] = v;
+              expected += v;
+              if (v >= 0.5) above50++;
+              if (v >= 0.9) above90++;
             }
-            const v = counts[offset + p]! / n;
-            probability[p] = v;
-            expected += v;
-            if (v >= 0.5) above50++;
-            if (v >= 0.9) above90++;
-          }
-          const when = j < zones - 1 ? `within ${label} ${setup.units.time}` : 'steady zone';
-          raster(file, probability, `probability (0-1) that the cell lies in the capture zone of well ${well.id} (${when})`);
-          if (j === zones - 1)
-            map(
-              `${folder}capture-probability-${well.stem}-${label}-map.png`,
-              probability,
-              { quantity: 'probability', well: well.id },
-              `${name}: probability of capture by well ${well.id} (steady zone)`,
-              r,
-            );
-          return {
-            time: j < zones - 1 ? setup.capture!.times[j]! : null,
-            file,
-            expectedArea: expected * cellArea,
-            areaP50: above50 * cellArea,
-            areaP90: above90 * cellArea,
-            receptors: receptorCells.map(({ id, p }) => ({ id, probability: p >= 0 && n > 0 ? counts[offset + p]! / n : null })),
-          };
-        }),
-      }));
+            const when = j < zones - 1 ? `within ${label} ${setup.units.time}` : 'steady zone';
+            raster(file, probability, `probability (0-1) that the cell lies in the capture zone of well ${well.id} (${when})`);
+            if (j < zones - 1) timed.push(probability);
+            else
+              map(
+                `${folder}capture-probability-${well.stem}-${label}-map.png`,
+                probability,
+                {
+                  quantity: 'probability',
+                  well: well.id,
+                  outlines: timed.map((values, t) => ({
+                    values,
+                    label: `P = 0.5 within ${zoneLabel(setup, t)} ${setup.units.time}`,
+                  })),
+                },
+                `${name}: probability of capture by well ${well.id} (steady zone)`,
+                r,
+              );
+            return {
+              time: j < zones - 1 ? setup.capture!.times[j]! : null,
+              file,
+              expectedArea: expected * cellArea,
+              areaP50: above50 * cellArea,
+              areaP90: above90 * cellArea,
+              receptors: receptorCells.map(({ id, p }) => ({ id, probability: p >= 0 && n > 0 ? counts[offset + p]! / n : null })),
+            };
+          }),
+        };
+      });
     }
     runs.push(summary);
   });

@@ -3,13 +3,15 @@
  * rasterised to PNG with the project's renderer (png.ts). Layers, bottom to top: the "no data" dot pattern
  * (inactive cells), the cell colours as an embedded PNG scaled nearest-neighbour, then receptors and wells with
  * their labels (placed by labels.ts so that none overlaps another); around it the title, the subtitle (what is
- * shown, grid, realisations), a colour bar with ticks and units, and the caution line.
+ * shown, grid, realisations), a colour bar with ticks and units, and the caution line. A capture map may carry
+ * dashed lines where the probability of a travel-time zone is 0.5.
  *
  * Ramps (256-entry tables from d3-scale-chromatic, as colour.ts builds them):
  *  - mean head: cividis, the head maps' ramp (colour.ts);
  *  - standard deviation: PuBu, sequential, from 0 (ColorBrewer 2.0, Brewer; listed there as colour-blind safe);
  *  - probability: YlOrRd, sequential over the fixed range 0..1 (ColorBrewer 2.0), so maps compare at a glance.
  */
+import { contours as d3Contours } from 'd3-contour';
 import { interpolatePuBu, interpolateYlOrRd } from 'd3-scale-chromatic';
 import { cellHeight, cellWidth, crsLabel, type Grid } from '../grid.js';
 import { colourCells, headRamp, parseColour, rampHex, type ColourRamp } from './colour.js';
@@ -36,6 +38,30 @@ export interface EnsembleMapContext {
 export interface EnsembleMapKind {
   quantity: 'head' | 'sd' | 'probability';
   well?: string;
+  /**
+   * Lines where other per-cell probabilities equal 0.5 (e.g. of the travel-time zones on the steady zone's map),
+   * each dashed in its own way, with its legend text; at most four.
+   */
+  outlines?: ReadonlyArray<{ values: Float64Array; label: string }>;
+}
+
+/** Dash patterns of the outlines, in order. */
+const OUTLINE_DASHES = ['5 3', '1.5 2.5', '9 3 2 3', ''];
+
+/**
+ * The line where `values` (per cell) equal `level`, traced by d3-contour between cell centres (NaN as 0), as an SVG
+ * path in px: d3-contour's coordinates count cells from the grid's north-west corner.
+ */
+function outlinePath(values: Float64Array, nx: number, ny: number, level: number, x0: number, y0: number, cw: number, ch: number): string {
+  const grid = Array.from(values, (v) => (v === v ? v : 0));
+  const [shape] = d3Contours().size([nx, ny]).thresholds([level]).smooth(true)(grid);
+  const parts: string[] = [];
+  for (const polygon of shape!.coordinates) {
+    for (const ring of polygon) {
+      parts.push(`M${ring.map(([u, v]) => `${r1(x0 + u! * cw)},${r1(y0 + v! * ch)}`).join('L')}Z`);
+    }
+  }
+  return parts.join('');
 }
 
 const INK = '#1d2327';
@@ -138,6 +164,18 @@ export function ensembleMapSvg(
     `<image ${box} preserveAspectRatio="none" image-rendering="optimizeSpeed" style="image-rendering:pixelated" href="${dataUrl('image/png', image)}"/>`,
   );
 
+  // Outlines (over the cells, under the points), clipped to the frame.
+  const outlines = (kind.outlines ?? []).slice(0, OUTLINE_DASHES.length);
+  const cellPx = dx * scale;
+  const cellPy = dy * scale;
+  outlines.forEach((o, k) => {
+    const d = outlinePath(o.values, nx, ny, 0.5, frame.left, frame.top, cellPx, cellPy);
+    if (!d) return;
+    parts.push(
+      `<path d="${d}" fill="none" stroke="#ffffff" stroke-width="3.2" stroke-opacity="0.8" clip-path="url(#frame)"/><path d="${d}" fill="none" stroke="${INK}" stroke-width="1.6"${OUTLINE_DASHES[k] ? ` stroke-dasharray="${OUTLINE_DASHES[k]}"` : ''} clip-path="url(#frame)"/>`,
+    );
+  });
+
   // Points: the highlighted well first (its label placed first), then the other wells, then receptors.
   const wells = [...ctx.wells].sort((a, b) => Number(b.id === kind.well) - Number(a.id === kind.well));
   const requests: Array<PointLabelRequest & { shape: string }> = [];
@@ -231,6 +269,12 @@ export function ensembleMapSvg(
     parts.push(`<text x="${lx + 22}" y="${ly + 4}" font-size="11.5" fill="${INK}">${escapeMarkup(text)}</text>`);
     ly += 20;
   };
+  outlines.forEach((o, k) =>
+    legendRow(
+      `<line x1="${lx}" y1="${ly}" x2="${lx + 16}" y2="${ly}" stroke="${INK}" stroke-width="1.6"${OUTLINE_DASHES[k] ? ` stroke-dasharray="${OUTLINE_DASHES[k]}"` : ''}/>`,
+      o.label,
+    ),
+  );
   if (ctx.wells.length)
     legendRow(
       `<polygon points="${lx + 8},${ly - 5} ${lx + 13},${ly + 4} ${lx + 3},${ly + 4}" fill="${INK}"/>`,
