@@ -9,7 +9,9 @@
  *    travel-time.tif;
  *  - eight shard folders merged a block of one row (and of three rows) at a time give the one-machine files byte
  *    for byte, and the merge never asks for more than one block of every realisation at once;
- *  - the PNG maps decode with pngjs (the PNG library the project uses) to the size the drawing declares.
+ *  - the PNG maps decode with pngjs (the PNG library the project uses) to the size the drawing declares, and a
+ *    travel-time outline at P = 0.5 around a block of cells runs along its outer cell edges (linear interpolation
+ *    between cell centres, as d3-contour's marching squares do).
  * Runs in this thread (inline), on a 20 x 14 grid, 8 realisations.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -263,5 +265,23 @@ describe('capture-zone probability', () => {
       expect(decoded.width, name).toBe(drawing.width);
       expect(decoded.height, name).toBeGreaterThan(300);
     }
+    // A travel-time outline at P = 0.5 around an indicator of cells (rows 3-5, columns 4-8): with linear
+    // interpolation between cell centres (d3-contour's marching squares) the 0.5 line runs along the outer cell
+    // edges, so its x coordinates span columns 4 to 9 in px (frame at x = 20, 670 px for 20 columns).
+    const indicator = new Float64Array(NX * NY);
+    for (let i = 3; i <= 5; i++) for (let j = 4; j <= 8; j++) indicator[i * NX + j] = 1;
+    const outlined = ensembleMapSvg(
+      ctx,
+      indicator,
+      { quantity: 'probability', well: 'PW-1', outlines: [{ values: indicator, label: 'P = 0.5 within 2000 d' }] },
+      'outline',
+    );
+    const path = /<path d="([^"]+)" fill="none" stroke="#1d2327" stroke-width="1.6" stroke-dasharray/.exec(outlined.svg);
+    expect(path).not.toBeNull();
+    const xs = [...path![1]!.matchAll(/[ML]([-\d.]+),/g)].map((m) => Number(m[1]));
+    const cell = 670 / NX;
+    expect(Math.min(...xs)).toBeCloseTo(20 + 4 * cell, 0);
+    expect(Math.max(...xs)).toBeCloseTo(20 + 9 * cell, 0);
+    expect(outlined.svg).toContain('P = 0.5 within 2000 d');
   });
 });
