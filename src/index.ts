@@ -108,7 +108,16 @@ export { saturatedThickness } from './discretisation/thickness.js';
 
 // Uncertainty ensembles (docs/ensembles.md).
 export { runEnsemble, loadEnsemble, parseShard, shardRange, type EnsembleOptions, type EnsembleRun } from './ensemble/run.js';
-export { ensembleFiles, ensembleCsv, shardFiles, type EnsembleSummaryJson } from './ensemble/files.js';
+export {
+  ensembleFiles,
+  ensembleCsv,
+  shardFiles,
+  recordSource,
+  captureCounts,
+  type EnsembleSource,
+  type EnsembleFileOptions,
+  type EnsembleSummaryJson,
+} from './ensemble/files.js';
 export { readShards } from './ensemble/shard.js';
 export { GaussianFieldGenerator, covariance, type FieldSpec, type CovarianceModel } from './ensemble/field.js';
 export { Conditioner, type ConditioningDatum } from './ensemble/conditioning.js';

@@ -9,7 +9,7 @@ import { CAUTION } from '../caution.js';
 import { prepareResultFolder, releaseResultFolder, writeResultFiles } from '../output/resultFolder.js';
 import { parseSolverOption } from '../scenario/solverSettings.js';
 import { solverMethodNames } from '../solvers/registry.js';
-import { ensembleFiles, shardFiles, type EnsembleSummaryJson } from '../ensemble/files.js';
+import { ensembleFiles, recordSource, shardFiles, type EnsembleSummaryJson } from '../ensemble/files.js';
 import { loadEnsemble, parseShard, runEnsemble, type EnsembleOptions } from '../ensemble/run.js';
 import { readShards } from '../ensemble/shard.js';
 /** Where the command prints (the CLI's streams, or a test's). */
@@ -30,6 +30,7 @@ interface EnsembleFlags {
   tolerance?: number;
   maxIterations?: number;
   relaxation?: number;
+  blockRows?: number;
 }
 
 function positiveInteger(name: string) {
@@ -81,6 +82,16 @@ function formatEnsemble(summary: EnsembleSummaryJson, outDir: string): string {
         `    receptor ${p.id}: mean drawdown ${p.mean === null ? 'n/a' : p.mean.toFixed(3)} ${summary.units.length}${exc.length ? '; ' + exc.join(', ') : ''}`,
       );
     }
+    const L = summary.units.length;
+    for (const well of run.captureProbability ?? []) {
+      const steady = well.zones[well.zones.length - 1]!;
+      const area = (a: number) => `${Math.round(a)} ${L}²`;
+      const inside = steady.receptors.filter((r) => r.probability !== null && r.probability > 0);
+      lines.push(
+        `    capture zone of ${well.well} (steady): expected area ${area(steady.expectedArea)}, P >= 0.5 on ${area(steady.areaP50)}, P >= 0.9 on ${area(steady.areaP90)}` +
+          (inside.length ? `; ${inside.map((r) => `receptor ${r.id} inside with P = ${r.probability!.toFixed(3)}`).join(', ')}` : ''),
+      );
+    }
   }
   lines.push(`  results in ${outDir}`, `  ${CAUTION}`);
   return lines.join('\n') + '\n';
@@ -114,7 +125,7 @@ async function runEnsembleCommand(scenario: string, flags: EnsembleFlags, io: Cl
       io.stdout(flags.json ? JSON.stringify({ shard: options.shard, range: run.range, run: run.runInfo }, null, 2) + '\n' : text);
       return 0;
     }
-    const { files, summary } = ensembleFiles(run.setup, run.records, {
+    const { files, summary } = ensembleFiles(recordSource(run.setup, run.records), {
       ...run.runInfo,
       ...(folder.notes.length ? { notes: folder.notes } : {}),
     });
@@ -137,13 +148,21 @@ function noneConverged(summary: EnsembleSummaryJson, io: CliIO): number {
 async function runMerge(dirs: string[], flags: EnsembleFlags, io: CliIO): Promise<number> {
   requireOut(flags);
   const merged = await readShards(dirs);
-  const folder = await prepareResultFolder(flags.out!, Boolean(flags.overwrite), merged.folders);
+  let folder: Awaited<ReturnType<typeof prepareResultFolder>>;
   try {
-    const { files, summary } = ensembleFiles(merged.setup, merged.records, merged.runInfo);
+    folder = await prepareResultFolder(flags.out!, Boolean(flags.overwrite), merged.folders);
+  } catch (thrown) {
+    merged.close();
+    throw thrown;
+  }
+  try {
+    const { files, summary } = ensembleFiles(merged.source, merged.runInfo, flags.blockRows ? { blockRows: flags.blockRows } : {});
+    merged.close();
     await writeResultFiles(folder, files);
     io.stdout(flags.json ? JSON.stringify(summary, null, 2) + '\n' : formatEnsemble(summary, flags.out!));
     return noneConverged(summary, io);
   } finally {
+    merged.close();
     releaseResultFolder(folder.dir);
   }
 }
@@ -185,7 +204,9 @@ export function addEnsembleCommand(program: Command, io: CliIO, run: (fn: () => 
     ensemble
       .command('merge')
       .description('combine shard folders of one ensemble into its results (identical to a one-machine run)')
-      .argument('<shards...>', 'shard folders'),
+      .argument('<shards...>', 'shard folders')
+      // Internal: rows per block of the out-of-core statistics (default: as many as fit 64 MiB), for tests and measurements.
+      .addOption(new Option('--block-rows <n>', 'rows per block').argParser(positiveInteger('--block-rows')).hideHelp()),
   ).action(async (shards: string[], flags: EnsembleFlags) => {
     // Options written after "merge" may be taken by `ensemble` itself (commander's global options): use both.
     const given = {

@@ -46,6 +46,7 @@ port.on('message', (request: EnsembleWorkerRequest) => {
       for (const run of record.runs) {
         if (run.head) transfer.push(run.head.buffer as ArrayBuffer);
         if (run.drawdown) transfer.push(run.drawdown.buffer as ArrayBuffer);
+        if (run.capture) transfer.push(run.capture.buffer as ArrayBuffer);
       }
       send({ kind: 'record', record }, transfer);
     } catch (thrown) {

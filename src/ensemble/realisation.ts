@@ -6,7 +6,7 @@
  * Pure computation on a prepared context; the same function runs in a worker thread or inline, so results do not
  * depend on where they were computed.
  */
-import { headAtPoint } from '../analysis/points.js';
+import { headAtPoint, wellCells } from '../analysis/points.js';
 import { resultProblem, type SolveResult } from '../analysis/result.js';
 import { comparePlan, prepareComparison } from '../compare/run.js';
 import { inputError } from '../errors.js';
@@ -14,10 +14,10 @@ import { runInline } from '../executor/plan.js';
 import { fieldsEqual } from '../field.js';
 import { cellAt, cellHeight, cellWidth, type Grid } from '../grid.js';
 import type { RunOptions } from '../pipeline.js';
-import type { EnsembleInput, ModelInput } from '../scenario/types.js';
+import type { EnsembleInput, ModelInput, WellInput } from '../scenario/types.js';
 import { Conditioner, type ConditioningDatum } from './conditioning.js';
 import { GaussianFieldGenerator, type EmbeddingReport } from './field.js';
-import type { PointColumn, RealisationRecord, RunRecord } from './types.js';
+import type { CaptureSetup, CaptureWell, PointColumn, RealisationRecord, RunRecord } from './types.js';
 
 export interface EnsembleContext {
   baseline: ModelInput;
@@ -29,6 +29,52 @@ export interface EnsembleContext {
   measured: Array<{ cell: number; k: number }>;
   columns: PointColumn[];
   options: RunOptions;
+  /** Capture-zone probability: capture times and each run's wells; null when not counted. */
+  capture: CaptureSetup | null;
+}
+
+/**
+ * The capture wells of a run as particle tracking labels them (src/analysis/tracking/fromSystem.ts): wells sharing a
+ * cell form one, named by their ids joined with "+", in scenario order; kept when their rates sum to a withdrawal.
+ * File stems as `exchange-NAME.tif` makes them: letters, digits, "-" and "_", unique ignoring case.
+ */
+export function captureWells(grid: Grid, wells: readonly WellInput[]): CaptureWell[] {
+  const cells = wellCells(grid, wells);
+  const groups = new Map<number, { id: string; rate: number }>();
+  wells.forEach((w, k) => {
+    const cell = cells[k]!;
+    if (cell < 0) return;
+    const group = groups.get(cell);
+    if (group) {
+      group.id = `${group.id}+${w.id}`;
+      group.rate += w.rate;
+    } else groups.set(cell, { id: w.id, rate: w.rate });
+  });
+  const used = new Set<string>();
+  const out: CaptureWell[] = [];
+  for (const { id, rate } of groups.values()) {
+    if (!(rate < 0)) continue;
+    const base = id.replace(/[^A-Za-z0-9_-]+/g, '-');
+    let stem = base;
+    for (let k = 2; used.has(stem.toLowerCase()); k++) stem = `${base}-${k}`;
+    used.add(stem.toLowerCase());
+    out.push({ id, stem });
+  }
+  return out;
+}
+
+/**
+ * The model a realisation solves: tracking reduced to what the capture probability needs (no pathlines, no point
+ * tracks), or dropped when capture probability is off.
+ */
+function ensembleModel(model: ModelInput, capture: CaptureSetup | null): ModelInput {
+  if (!model.tracking) return model;
+  if (!capture) {
+    const { tracking: _dropped, ...rest } = model;
+    return rest;
+  }
+  // Every run counts the baseline's capture times (travel times are exact up to the largest of them).
+  return { ...model, tracking: { ...model.tracking, captureTimes: [...capture.times], particlesPerWell: 0, points: [] } };
 }
 
 /** The point columns of ensemble.csv: wells (baseline's, then those only variants have), observations, receptors. */
@@ -100,7 +146,25 @@ export function prepareEnsemble(
     );
   }
   const conditioner = data.length ? new Conditioner(spec, data) : null;
-  return { baseline, variants, settings, generator, conditioner, measured, columns: pointColumns(baseline, variants), options };
+  const counted = settings.captureProbability && baseline.tracking !== undefined;
+  const runs = [{ model: baseline }, ...variants];
+  const capture: CaptureSetup | null = counted
+    ? {
+        times: [...baseline.tracking!.captureTimes],
+        wells: runs.map(({ model }) => (model.tracking ? captureWells(grid, model.wells) : [])),
+      }
+    : null;
+  return {
+    baseline: ensembleModel(baseline, capture),
+    variants: variants.map((v) => ({ name: v.name, model: ensembleModel(v.model, capture) })),
+    settings,
+    generator,
+    conditioner,
+    measured,
+    columns: pointColumns(baseline, variants),
+    options,
+    capture,
+  };
 }
 
 /** The realisation's conductivity: the raster's K times exp(Y); measured cells as measured. */
@@ -129,9 +193,50 @@ function pointHeads(grid: Grid, head: Float64Array, columns: readonly PointColum
   });
 }
 
-function runRecord(ctx: EnsembleContext, result: SolveResult | null, reason: string | null, drawdown: Float64Array | null): RunRecord {
+/**
+ * The capture code per cell (RunRecord.capture) from the run's capture result: the capturing-well raster of
+ * `solve`'s tracking and the travel time to that well.
+ */
+function captureCodes(ctx: EnsembleContext, run: number, result: SolveResult): Int16Array | null {
+  const setup = ctx.capture;
+  if (!setup) return null;
+  const capture = result.tracking?.capture;
+  const out = new Int16Array(result.head.length).fill(-1);
+  if (!capture) return out;
+  const times = setup.times;
+  const T = times.length;
+  const index = new Map(setup.wells[run]!.map((w, k) => [w.id, k]));
+  const toSetup = Int32Array.from(capture.wells, (w) => index.get(w.id) ?? -1);
+  const { capturingWell, travelTime } = capture;
+  for (let p = 0; p < out.length; p++) {
+    const i = capturingWell[p]!;
+    if (i < 0) continue;
+    const k = toSetup[i]!;
+    if (k < 0) continue;
+    const t = travelTime[p]!;
+    let c = 0;
+    while (c < T && !(t <= times[c]!)) c++;
+    out[p] = k * (T + 1) + c;
+  }
+  return out;
+}
+
+function runRecord(
+  ctx: EnsembleContext,
+  run: number,
+  result: SolveResult | null,
+  reason: string | null,
+  drawdown: Float64Array | null,
+): RunRecord {
   if (!result || reason !== null)
-    return { converged: false, reason: reason ?? 'not solved', head: null, drawdown: null, points: ctx.columns.map(() => null) };
+    return {
+      converged: false,
+      reason: reason ?? 'not solved',
+      head: null,
+      drawdown: null,
+      points: ctx.columns.map(() => null),
+      capture: null,
+    };
   const model = result.model;
   const present = new Set<string>([
     ...model.wells.map((w) => w.id),
@@ -149,6 +254,7 @@ function runRecord(ctx: EnsembleContext, result: SolveResult | null, reason: str
     head: Float32Array.from(result.head),
     drawdown: drawdown ? Float32Array.from(drawdown) : null,
     points: pointHeads(model.grid, result.head, columns, present),
+    capture: captureCodes(ctx, run, result),
   };
 }
 
@@ -173,11 +279,11 @@ export function solveRealisation(ctx: EnsembleContext, index: number): Realisati
   }));
   const comparison = runInline(comparePlan(prepareComparison(baseline, variants, ctx.options), ctx.options));
   const baseProblem = resultProblem(comparison.baseline);
-  const runs: RunRecord[] = [runRecord(ctx, comparison.baseline, baseProblem ? baseProblem.message : null, null)];
+  const runs: RunRecord[] = [runRecord(ctx, 0, comparison.baseline, baseProblem ? baseProblem.message : null, null)];
   for (let k = 0; k < ctx.variants.length; k++) {
     const v = comparison.variants[k];
-    if (!v) runs.push(runRecord(ctx, null, 'the baseline of this realisation did not give a sound result', null));
-    else runs.push(runRecord(ctx, v.result, v.problem ? v.problem.message : null, v.drawdown));
+    if (!v) runs.push(runRecord(ctx, k + 1, null, 'the baseline of this realisation did not give a sound result', null));
+    else runs.push(runRecord(ctx, k + 1, v.result, v.problem ? v.problem.message : null, v.drawdown));
   }
   return { index, runs };
 }

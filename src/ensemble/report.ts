@@ -1,11 +1,19 @@
 /**
  * The ensemble's short report (report.html, self-contained, no script, no network): the settings, realisations
- * left out, and per variant a histogram of the drawdown at every receptor with its mean, percentiles and exceedance
- * probabilities, and the caution. Built only from the summary and the records, without timings, so a merge of
+ * left out, per variant a histogram of the drawdown at every receptor with its mean, percentiles and exceedance
+ * probabilities, the capture-zone probabilities per well, the maps (embedded PNGs), and the caution. Built only from the summary and the records, without timings, so a merge of
  * shards writes the same bytes as a one-machine run.
  */
 import { CAUTION } from '../caution.js';
-import type { EnsembleSetup, EnsembleSummaryJson, RealisationRecord } from './types.js';
+import { dataUrl } from '../report/png.js';
+import type { EnsembleSetup, EnsembleSummaryJson, RealisationPoints } from './types.js';
+
+/** A map of the result folder, shown in the report too. */
+export interface EnsembleMapFile {
+  file: string;
+  caption: string;
+  png: Uint8Array;
+}
 
 const esc = (t: string) => t.replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/"/g, '&quot;');
 const num = (v: number | null, digits = 3) => (v === null || !Number.isFinite(v) ? 'n/a' : v.toFixed(digits));
@@ -51,7 +59,12 @@ export function histogramSvg(values: readonly number[], thresholds: readonly num
   );
 }
 
-export function ensembleReportHtml(setup: EnsembleSetup, records: readonly RealisationRecord[], summary: EnsembleSummaryJson): string {
+export function ensembleReportHtml(
+  setup: EnsembleSetup,
+  records: readonly RealisationPoints[],
+  summary: EnsembleSummaryJson,
+  maps: readonly EnsembleMapFile[] = [],
+): string {
   const unit = setup.units.length;
   const parts: string[] = [];
   parts.push(`<h1>${esc(setup.title)}: ensemble</h1>`);
@@ -89,6 +102,33 @@ export function ensembleReportHtml(setup: EnsembleSetup, records: readonly Reali
       parts.push(histogramSvg(values, setup.drawdownThresholds, unit, c.id));
     }
   });
+  const area = `${esc(unit)}²`;
+  for (const run of summary.runs) {
+    if (!run.captureProbability?.length) continue;
+    parts.push(`<h2>${esc(run.name)}: capture-zone probability</h2>`);
+    parts.push(
+      `<p>Per well and zone (travel time in ${esc(setup.units.time)}, or steady): the expected zone area (sum of cell probability × cell area) and the area of the cells in the zone in at least 50 % and 90 % of the ${run.converged} converged realisations.</p>`,
+    );
+    parts.push(
+      `<table><tr><th>well</th><th>zone</th><th>expected area (${area})</th><th>P ≥ 0.5 (${area})</th><th>P ≥ 0.9 (${area})</th></tr>`,
+    );
+    for (const w of run.captureProbability) {
+      for (const z of w.zones) {
+        parts.push(
+          `<tr><td>${esc(w.well)}</td><td>${z.time === null ? 'steady' : `${z.time} ${esc(setup.units.time)}`}</td><td>${num(z.expectedArea, 0)}</td><td>${num(z.areaP50, 0)}</td><td>${num(z.areaP90, 0)}</td></tr>`,
+        );
+      }
+    }
+    parts.push('</table>');
+  }
+  if (maps.length) {
+    parts.push('<h2>Maps</h2>');
+    for (const m of maps) {
+      parts.push(
+        `<figure><img src="${dataUrl('image/png', m.png)}" alt="${esc(m.caption)}" style="max-width:100%"><figcaption>${esc(m.caption)} (${esc(m.file)})</figcaption></figure>`,
+      );
+    }
+  }
   parts.push(`<p>Files: ${summary.files.map(esc).join(', ')}</p>`);
   return (
     '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8"><title>' +

@@ -119,6 +119,8 @@ export function ensembleSetup(ctx: EnsembleContext, raw: ScenarioJson, overrides
     drawdownThresholds: s.drawdownThresholds,
     runs: ['baseline', ...ctx.variants.map((v) => v.name)],
     columns: ctx.columns,
+    runWells: [m, ...ctx.variants.map((v) => v.model)].map((model) => model.wells.map(({ id, x, y, rate }) => ({ id, x, y, rate }))),
+    capture: ctx.capture,
     warnings: [...m.warnings],
   };
   if (ctx.generator.report.clipped > 0)
@@ -126,17 +128,17 @@ export function ensembleSetup(ctx: EnsembleContext, raw: ScenarioJson, overrides
   return JSON.parse(JSON.stringify(setup)) as EnsembleSetup;
 }
 
-/** Bytes the records of `count` realisations hold (Float32 fields), checked against the memory limit. */
+/** Bytes the records of `count` realisations hold (Float32 fields, Int16 capture codes), checked against the memory limit. */
 function checkEnsembleMemory(setup: EnsembleSetup, count: number): void {
   const fields = 2 * setup.runs.length - 1;
-  const bytes = count * fields * setup.grid.nx * setup.grid.ny * 4;
+  const bytes = count * (fields * 4 + (setup.capture ? setup.runs.length * 2 : 0)) * setup.grid.nx * setup.grid.ny;
   const limit = memoryLimit();
   if (bytes > 0.5 * limit.bytes) {
     throw inputError(
       `ensemble: ${count} realisation(s) of ${fields} field(s) on ${setup.grid.nx} × ${setup.grid.ny} cells keep ${formatBytes(bytes)} of values, more than half of the memory limit (${limit.source})`,
       {
         key: 'ensemble.realisations',
-        hint: 'run it as shards (--shard K/N) on several machines, fewer realisations, or a coarser grid; the merge holds every value too',
+        hint: 'run it as shards (--shard K/N) on several machines and merge them (the merge reads the values a block of rows at a time), fewer realisations, or a coarser grid',
       },
     );
   }

@@ -5,7 +5,8 @@
  * the numbers a one-machine run sees and gives identical files. Percentiles are therefore exact (no sketch):
  * the per-cell values are sorted and interpolated linearly between order statistics, definition 7 of Hyndman &
  * Fan 1996 ("Sample quantiles in statistical packages", Am. Stat. 50(4)), the default of R and NumPy.
- * Memory: realisations × cells × 4 bytes per field, checked by the caller before the run.
+ * Per cell, so a caller may give a block of rows of every realisation at a time (files.ts does: the merge reads
+ * shard files block by block) and get the same numbers as for the whole grid.
  *
  * The standard deviation is the sample one (divisor n − 1), by two passes (mean, then squared deviations), which
  * avoids the cancellation of sum-of-squares formulas. Exceedance: the fraction of values strictly above T.

@@ -19,6 +19,37 @@ export interface RunRecord {
   drawdown: Float32Array | null;
   /** Head at each point column; null where the run has no such point or is not converged. */
   points: Array<number | null>;
+  /**
+   * Capture zones of the run's withdrawal wells (when the setup has `capture`), one code per cell: -1 where no
+   * listed well captures the cell, else k * (T + 1) + c for well k of the run's list (`EnsembleSetup.capture`) and
+   * c the first capture time (of T, ascending) within which the water reaches the well, c = T: only in the
+   * steady zone. Null when not converged or without capture.
+   */
+  capture: Int16Array | null;
+}
+
+/** What the statistics need of a run besides its per-cell fields: flags and point values. */
+export type RunPoints = Pick<RunRecord, 'converged' | 'reason' | 'points'>;
+
+/** A realisation's flags and point values (what ensemble.csv, the point statistics and the report read). */
+export interface RealisationPoints {
+  index: number;
+  runs: RunPoints[];
+}
+
+/** A withdrawal well (or wells sharing a cell, ids joined with "+") whose capture zones are counted. */
+export interface CaptureWell {
+  id: string;
+  /** File-name stem: the id with characters other than letters, digits, "-" and "_" replaced by "-", made unique. */
+  stem: string;
+}
+
+/** Capture-zone probability settings of an ensemble: the capture times and each run's wells. */
+export interface CaptureSetup {
+  /** Capture times, ascending (scenario time units); the steady zone comes after them. */
+  times: number[];
+  /** Per run (baseline, then variants): its withdrawal wells, in scenario order. */
+  wells: CaptureWell[][];
 }
 
 export interface RealisationRecord {
@@ -48,6 +79,10 @@ export interface EnsembleSetup {
   /** 'baseline', then the variant names. */
   runs: string[];
   columns: PointColumn[];
+  /** Per run (baseline, then variants): its wells, for the maps. */
+  runWells: Array<Array<{ id: string; x: number; y: number; rate: number }>>;
+  /** Capture-zone probability (scenario with `tracking` and `ensemble.captureProbability` not false); else null. */
+  capture: CaptureSetup | null;
   warnings: string[];
 }
 
@@ -68,6 +103,23 @@ export interface PointSummary {
   percentiles: Record<string, number | null>;
 }
 
+/** One well's capture-zone probabilities in summary.json (per zone: each capture time, then steady = null). */
+export interface CaptureSummary {
+  well: string;
+  zones: Array<{
+    /** Capture time, null for the steady zone. */
+    time: number | null;
+    file: string;
+    /** Sum over cells of probability x cell area (square length units): the mean zone area. */
+    expectedArea: number;
+    /** Area of the cells with probability >= 0.5 and >= 0.9. */
+    areaP50: number;
+    areaP90: number;
+    /** Probability that each receptor's cell lies in the zone. */
+    receptors: Array<{ id: string; probability: number | null }>;
+  }>;
+}
+
 export interface EnsembleSummaryJson {
   piezomap: string;
   command: 'ensemble';
@@ -83,12 +135,15 @@ export interface EnsembleSummaryJson {
   percentiles: number[];
   drawdownThresholds: number[];
   percentileMethod: string;
+  /** With capture probability: the capture times of the zones (the steady zone comes after them). */
+  captureTimes?: number[];
   runs: Array<{
     name: string;
     converged: number;
     notConverged: Array<{ realisation: number; reason: string }>;
     headAtPoints: PointSummary[];
     drawdownAtPoints?: Array<PointSummary & { exceedance: Array<{ threshold: number; probability: number | null }> }>;
+    captureProbability?: CaptureSummary[];
   }>;
   files: string[];
   warnings: string[];

@@ -209,6 +209,7 @@ export class PointLoader {
       ...(spec.conditioning !== undefined ? { conditioningFile: spec.conditioning } : {}),
       drawdownThresholds: [...spec.drawdownThresholds],
       percentiles: [...spec.percentiles],
+      captureProbability: spec.captureProbability,
     };
   }
 

@@ -369,6 +369,8 @@ export const ensembleSchema = strict({
   conditioning: filePath.optional(),
   drawdownThresholds: z.array(finite.gt(0)).default([]),
   percentiles: z.array(finite.gt(0).lt(100)).default([5, 50, 95]),
+  /** With `tracking`: count each well's capture zones over the realisations (false skips the tracking). */
+  captureProbability: z.boolean().default(true),
 });
 
 /** Keys a variant may replace: every top-level key except `variants`. */

@@ -173,4 +173,6 @@ export interface EnsembleInput {
   conditioningFile?: string;
   drawdownThresholds: number[];
   percentiles: number[];
+  /** With `tracking`: capture-zone probability per well (false: no tracking in the realisations). */
+  captureProbability: boolean;
 }

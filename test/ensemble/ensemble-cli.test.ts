@@ -2,7 +2,8 @@
  * `piezomap ensemble` as users run it (../shared/spec/interface.md, section "Ensembles"), on a small aquifer:
  * shards merged equal a one-machine run byte for byte; the same seed gives identical files and another seed other
  * ones; sd = 0 gives every realisation the plain `solve`/`compare` heads; the exceedance probability at a receptor
- * in summary.json is the fraction counted from ensemble.csv; conditioned realisations take the measured K.
+ * in summary.json is the fraction counted from ensemble.csv; conditioned realisations take the measured K. The
+ * scenario has tracking, so the capture-zone probabilities and the PNG maps are among the files compared.
  * The pooled runs use the built program (`npm test` builds first) in a child process.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -44,7 +45,7 @@ function writeScenario(name: string, ensemble: Record<string, unknown>): string 
     path,
     JSON.stringify({
       title: 'ensemble test aquifer',
-      aquifer: { conductivity: 'k.tif', thickness: 20 },
+      aquifer: { conductivity: 'k.tif', thickness: 20, porosity: 0.2 },
       fixedHeads: [
         { edge: 'west', head: 50, name: 'river' },
         { edge: 'east', head: 47, name: 'outlet' },
@@ -54,6 +55,7 @@ function writeScenario(name: string, ensemble: Record<string, unknown>): string 
       observations: [{ id: 'OB-1', ...centre(4, 12), head: 49 }],
       receptors: [{ id: 'R-1', ...centre(9, 12) }],
       solver: { method: 'auto', tolerance: 1e-10 },
+      tracking: { captureTimes: [3000, 20000] },
       variants: [{ name: 'more', wells: [{ id: 'PW-2', ...centre(10, 14), rate: -400 }] }],
       ensemble,
     }),
@@ -127,6 +129,12 @@ describe('piezomap ensemble', () => {
     expect(filesBelow(merged).filter((f) => !f.startsWith('.'))).toEqual(files);
     expect(files).toContain('more/drawdown-exceedance-1.5.tif');
     expect(files).toContain('baseline/head-p90.tif');
+    // Capture-zone probability per well and zone, and the maps, are among the identical files.
+    expect(files).toContain('baseline/capture-probability-PW-1-3000.tif');
+    expect(files).toContain('more/capture-probability-PW-2-steady.tif');
+    expect(files).toContain('more/capture-probability-PW-2-steady-map.png');
+    expect(files).toContain('more/drawdown-exceedance-1.5-map.png');
+    expect(files).toContain('baseline/head-sd-map.png');
     for (const f of files) {
       if (f === 'summary.json') continue;
       expect(Buffer.compare(readFileSync(join(one, f)), readFileSync(join(merged, f))), f).toBe(0);
