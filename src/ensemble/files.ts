@@ -356,7 +356,7 @@ function mapContext(setup: EnsembleSetup, run: number): EnsembleMapContext {
   return {
     grid: setup.grid,
     units: setup.units,
-    title: setup.title,
+    title: setup.runTitles[run] ?? setup.title,
     realisations: setup.realisations,
     wells: setup.runWells[run]!,
     receptors: setup.columns.filter((c) => c.kind === 'receptor'),

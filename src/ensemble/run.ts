@@ -118,6 +118,7 @@ export function ensembleSetup(ctx: EnsembleContext, raw: ScenarioJson, overrides
     percentiles: s.percentiles,
     drawdownThresholds: s.drawdownThresholds,
     runs: ['baseline', ...ctx.variants.map((v) => v.name)],
+    runTitles: [m.title, ...ctx.variants.map((v) => v.model.title)],
     columns: ctx.columns,
     runWells: [m, ...ctx.variants.map((v) => v.model)].map((model) => model.wells.map(({ id, x, y, rate }) => ({ id, x, y, rate }))),
     capture: ctx.capture,

@@ -78,6 +78,8 @@ export interface EnsembleSetup {
   drawdownThresholds: number[];
   /** 'baseline', then the variant names. */
   runs: string[];
+  /** Per run: the title of the baseline scenario, then of each variant as merged (for the maps' subtitles). */
+  runTitles: string[];
   columns: PointColumn[];
   /** Per run (baseline, then variants): its wells, for the maps. */
   runWells: Array<Array<{ id: string; x: number; y: number; rate: number }>>;
