@@ -1,5 +1,6 @@
 import { PiezomapError } from '../errors.js';
 import { AggregationMultigrid } from './multigrid.js';
+import { PairwiseMultigrid } from './pairwiseMultigrid.js';
 import { PcgSolver } from './pcg.js';
 import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
 import { StationarySolver } from './stationary.js';
@@ -75,6 +76,16 @@ export const solverRegistry: Record<string, SolverEntry> = {
     },
     description: 'conjugate gradient preconditioned by aggregation multigrid (K-cycle); fast on large grids',
     bytesPerCell: 128, // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands and K-cycle vectors)
+  },
+  'pcg-pairwise': {
+    factory: (op) => {
+      const t0 = performance.now();
+      const mg = new PairwiseMultigrid(op);
+      return new PcgSolver('pcg-pairwise', op, mg, (performance.now() - t0) / 1000, [`pairwise multigrid ${mg.describe()}`]);
+    },
+    description:
+      'conjugate gradient preconditioned by aggregation multigrid whose aggregates follow strong conductances (pairwise aggregation, K-cycle); for conductivity that jumps by orders of magnitude between cells',
+    bytesPerCell: 160, // TODO count
   },
 };
 

@@ -1,0 +1,66 @@
+/**
+ * Symmetric sparse matrices in compressed-row form (CSR, every row stored whole) for the coarse levels of the
+ * pairwise-aggregation multigrid (./pairwise.ts), whose aggregates follow the conductances and so no longer form a
+ * raster. Like the five-point operator, a row keeps its diagonal apart and its off-diagonal entries as positive
+ * couplings c_ij = -a_ij:  (A x)_i = d_i x_i - sum_j c_ij x_j.
+ */
+
+/** Coefficient storage: single precision as a rule, double where the operator's range needs it (see operatorScale). */
+export type Coefficients = Float32Array | Float64Array;
+
+export interface CsrMatrix {
+  readonly n: number;
+  /** Row i's entries are rowStart[i] .. rowStart[i + 1] - 1. */
+  readonly rowStart: Int32Array;
+  readonly col: Int32Array;
+  /** Off-diagonal couplings c_ij = -a_ij (>= 0 for the M-matrices built here). */
+  readonly coupling: Coefficients;
+  readonly diag: Coefficients;
+}
+
+/** out = A x; returns x·out. */
+export function csrApplyDot(a: CsrMatrix, x: Float64Array, out: Float64Array): number {
+  const { n, rowStart, col, coupling, diag } = a;
+  let s = 0;
+  let k = rowStart[0]!;
+  for (let i = 0; i < n; i++) {
+    const end = rowStart[i + 1]!;
+    let v = diag[i]! * x[i]!;
+    for (; k < end; k++) v -= coupling[k]! * x[col[k]!]!;
+    out[i] = v;
+    s += v * x[i]!;
+  }
+  return s;
+}
+
+/** r = b - A x. */
+export function csrResidual(a: CsrMatrix, b: Float64Array, x: Float64Array, r: Float64Array): void {
+  const { n, rowStart, col, coupling, diag } = a;
+  let k = rowStart[0]!;
+  for (let i = 0; i < n; i++) {
+    const end = rowStart[i + 1]!;
+    let v = b[i]! - diag[i]! * x[i]!;
+    for (; k < end; k++) v += coupling[k]! * x[col[k]!]!;
+    r[i] = v;
+  }
+}
+
+/** One Gauss–Seidel sweep in place on A x = b, rows in increasing order (forward) or decreasing (backward). */
+export function csrGaussSeidel(a: CsrMatrix, invDiag: Coefficients, b: Float64Array, x: Float64Array, backward: boolean): void {
+  const { n, rowStart, col, coupling } = a;
+  if (!backward) {
+    for (let i = 0; i < n; i++) {
+      let v = b[i]!;
+      const end = rowStart[i + 1]!;
+      for (let k = rowStart[i]!; k < end; k++) v += coupling[k]! * x[col[k]!]!;
+      x[i] = v * invDiag[i]!;
+    }
+  } else {
+    for (let i = n - 1; i >= 0; i--) {
+      let v = b[i]!;
+      const end = rowStart[i + 1]!;
+      for (let k = rowStart[i]!; k < end; k++) v += coupling[k]! * x[col[k]!]!;
+      x[i] = v * invDiag[i]!;
+    }
+  }
+}
