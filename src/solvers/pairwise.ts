@@ -24,6 +24,8 @@ import type { StencilOperator } from './types.js';
 
 /** A pair is formed only when its quality mu is below this. */
 export const PAIR_QUALITY = 4;
+/** An aggregate of pairs is formed only when its quality (aggregateQualityBelow) is below this. */
+export const AGGREGATE_QUALITY = 4;
 /** Rows with diagonal >= DOMINANT x (sum of couplings) stay out of the aggregates. */
 const DOMINANT = 5;
 /** Not aggregated (in the set-up maps; the hierarchy maps it to a dummy coarse slot). */
@@ -426,7 +428,7 @@ export function pairPairs(base: BaseRows, members: Members, pairs: SetupMatrix, 
       if (second[I]! >= 0) rows[m++] = second[I]!;
       rows[m++] = first[J]!;
       if (second[J]! >= 0) rows[m++] = second[J]!;
-      if (aggregateQualityBelow(base, m, PAIR_QUALITY)) {
+      if (aggregateQualityBelow(base, m, AGGREGATE_QUALITY)) {
         best = J;
         break;
       }

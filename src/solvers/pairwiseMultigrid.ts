@@ -1,5 +1,5 @@
 import { BandedCholesky } from './banded.js';
-import { type Coefficients, type CsrMatrix, csrApplyDot, csrGaussSeidel, csrResidual } from './csr.js';
+import { type Coefficients, type CsrMatrix, csrApplyDot, csrGaussSeidel, csrSmoothRestrict, sortRows } from './csr.js';
 import { DenseCholesky } from './denseCholesky.js';
 import { dot } from './kernels.js';
 import { operatorScale } from './multigrid.js';
@@ -41,8 +41,8 @@ interface CoarseLevel {
   readonly r2: Float64Array;
   readonly v2: Float64Array;
   readonly w2: Float64Array;
-  /** Residual of this level's smoothed iterate (unused on the coarsest). */
-  readonly res: Float64Array;
+  /** Per row, where its entries right of the diagonal start (rows sorted by column). */
+  readonly upper: Int32Array;
 }
 
 function coarseLevel(a: SetupMatrix, precision: Float32ArrayConstructor | Float64ArrayConstructor): CoarseLevel {
@@ -50,6 +50,7 @@ function coarseLevel(a: SetupMatrix, precision: Float32ArrayConstructor | Float6
   const diag = new precision(a.diag);
   const invDiag = new precision(n);
   for (let i = 0; i < n; i++) invDiag[i] = 1 / a.diag[i]!;
+  const upper = sortRows(a.rowStart, a.col, a.coupling);
   const matrix: CsrMatrix = { n, rowStart: a.rowStart, col: a.col, coupling: new precision(a.coupling), diag };
   const rhsSlots = new Float64Array(n + 1);
   const v1Slots = new Float64Array(n + 1);
@@ -65,7 +66,7 @@ function coarseLevel(a: SetupMatrix, precision: Float32ArrayConstructor | Float6
     r2: v(),
     v2: v(),
     w2: v(),
-    res: v(),
+    upper,
   };
 }
 
@@ -185,13 +186,8 @@ export class PairwiseMultigrid implements VariablePreconditioner {
     const L = this.coarse[c]!;
     const C = this.coarse[c + 1]!;
     const map = this.maps[c + 1]!;
-    const { matrix, invDiag, res } = L;
-    x.fill(0);
-    csrGaussSeidel(matrix, invDiag, b, x, false);
-    csrResidual(matrix, b, x, res);
-    const rhs = C.rhsSlots;
-    rhs.fill(0);
-    for (let i = 0; i < res.length; i++) rhs[map[i]!]! += res[i]!;
+    const { matrix, invDiag, upper } = L;
+    csrSmoothRestrict(matrix, upper, invDiag, b, x, map, C.rhsSlots);
     this.correct(c + 1);
     const e = C.v1Slots;
     for (let i = 0; i < x.length; i++) x[i]! += e[map[i]!]!;
