@@ -2,6 +2,7 @@ import { PiezomapError } from '../errors.js';
 import { AggregationMultigrid } from './multigrid.js';
 import { PairwiseMultigrid } from './pairwiseMultigrid.js';
 import { PcgSolver } from './pcg.js';
+import { weakBlockShare } from './roughness.js';
 import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
 import { StationarySolver } from './stationary.js';
 import { warmUpKernels } from './warmup.js';
@@ -85,20 +86,35 @@ export const solverRegistry: Record<string, SolverEntry> = {
     },
     description:
       'conjugate gradient preconditioned by aggregation multigrid whose aggregates follow strong conductances (pairwise aggregation, K-cycle); for conductivity that jumps by orders of magnitude between cells',
-    bytesPerCell: 160, // TODO count
+    // r, z, p, q (32); fine-level bands and inverse diagonal in single precision (16) and its aggregate map (4);
+    // coarse levels of about half the fine rows in all, each row with 6 K-cycle vectors, its couplings and maps
+    // (measured 110 bytes per cell kept at 1024^2, rough or smooth); the set-up's temporary pair matrices and the
+    // double-precision levels some operators need come on top
+    bytesPerCell: 176,
   },
 };
 
 /**
- * The method `auto` stands for, chosen from the operator alone.
- * Rule: multigrid-preconditioned CG for every grid. Its iteration count stays nearly constant as the grid
- * grows (measured 14 iterations to 1e-10 at 512^2, 1024^2 and 2048^2 on the benchmark case with K spanning
- * several orders of magnitude, holes and a ragged border), where single-level preconditioners (IC(0), SSOR,
- * Jacobi) need iterations growing with the grid side; on grids of at most 1024 cells the hierarchy has one
- * level and the method is a direct banded Cholesky solve.
+ * Share of cells weakly tied to their 2 x 2 block (weakBlockShare, ./roughness.ts) from which `auto` takes the
+ * pairwise-aggregation multigrid instead of the 2 x 2 one.
  */
-export function chooseAutoMethod(_op: StencilOperator): string {
-  return 'pcg-multigrid';
+export const ROUGH_SHARE = 0.04;
+
+/**
+ * The method `auto` stands for, chosen from the operator alone.
+ * Rule: multigrid-preconditioned CG for every grid; the aggregates follow the conductances (`pcg-pairwise`) when
+ * at least ROUGH_SHARE of the cells are weakly tied to their 2 x 2 block (weakBlockShare: both conductances inside
+ * the block below a tenth of the cell's strongest), otherwise fixed 2 x 2 aggregates (`pcg-multigrid`), which are
+ * cheaper per iteration and to set up. Measured on the benchmark case at 512^2 (bench/README.md, "Rough
+ * conductivity"): smooth ln K (sigma 2, correlated over 8 cells) has a share of 0.1 % and pcg-multigrid needs 14
+ * iterations to 1e-10; white-noise ln K with sigma 1.5 / 2 / 2.5 / 3 has shares 1.1 / 3.0 / 5.2 / 7.2 %, where
+ * pcg-multigrid needs 27 / 40 / 60 / 97 iterations and pcg-pairwise 17 / 17 / 18 / 19, and their CPU times cross
+ * near 5 % (pcg-pairwise costs about three times as much per iteration and more to set up). Both iteration counts
+ * stay nearly constant as the grid grows (14 and 19 at 1024^2). On grids of at most 1024 cells both are a direct
+ * banded Cholesky solve.
+ */
+export function chooseAutoMethod(op: StencilOperator): string {
+  return weakBlockShare(op) >= ROUGH_SHARE ? 'pcg-pairwise' : 'pcg-multigrid';
 }
 
 /** Used for the memory budget of a method whose entry gives no estimate. */
