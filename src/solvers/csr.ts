@@ -16,33 +16,33 @@ export interface CsrMatrix {
   /** Off-diagonal couplings c_ij = -a_ij (>= 0 for the M-matrices built here). */
   readonly coupling: Coefficients;
   readonly diag: Coefficients;
+  /**
+   * The diagonal less the row's couplings, d_i - sum_j c_ij (>= 0: the row's conductance to fixed heads). Products
+   * are formed from it, not from the diagonal (csrApplyDot).
+   */
+  readonly excess: Coefficients;
 }
 
-/** out = A x; returns x·out. */
+/**
+ * out = A x in the difference form (A x)_i = e_i x_i + sum_j c_ij (x_i - x_j); returns x·out.
+ * The same product as d_i x_i - sum_j c_ij x_j, but without its cancellation: inside a block of cells tied by
+ * large conductances and held only by small ones (a high-K lens in low-K rock), d_i nearly equals sum_j c_ij, and a
+ * single-precision d_i (7 digits) would carry the small difference, which decides the block's slowest mode, with a
+ * large relative error (measured: 772 iterations instead of 14 on a checkerboard of 5 x 5 blocks, K 1 and 1e-6).
+ */
 export function csrApplyDot(a: CsrMatrix, x: Float64Array, out: Float64Array): number {
-  const { n, rowStart, col, coupling, diag } = a;
+  const { n, rowStart, col, coupling, excess } = a;
   let s = 0;
   let k = rowStart[0]!;
   for (let i = 0; i < n; i++) {
     const end = rowStart[i + 1]!;
-    let v = diag[i]! * x[i]!;
-    for (; k < end; k++) v -= coupling[k]! * x[col[k]!]!;
+    const xi = x[i]!;
+    let v = excess[i]! * xi;
+    for (; k < end; k++) v += coupling[k]! * (xi - x[col[k]!]!);
     out[i] = v;
-    s += v * x[i]!;
+    s += v * xi;
   }
   return s;
-}
-
-/** r = b - A x. */
-export function csrResidual(a: CsrMatrix, b: Float64Array, x: Float64Array, r: Float64Array): void {
-  const { n, rowStart, col, coupling, diag } = a;
-  let k = rowStart[0]!;
-  for (let i = 0; i < n; i++) {
-    const end = rowStart[i + 1]!;
-    let v = b[i]! - diag[i]! * x[i]!;
-    for (; k < end; k++) v += coupling[k]! * x[col[k]!]!;
-    r[i] = v;
-  }
 }
 
 /** One Gauss–Seidel sweep in place on A x = b, rows in increasing order (forward) or decreasing (backward). */

@@ -51,7 +51,14 @@ function coarseLevel(a: SetupMatrix, precision: Float32ArrayConstructor | Float6
   const invDiag = new precision(n);
   for (let i = 0; i < n; i++) invDiag[i] = 1 / a.diag[i]!;
   const upper = sortRows(a.rowStart, a.col, a.coupling);
-  const matrix: CsrMatrix = { n, rowStart: a.rowStart, col: a.col, coupling: new precision(a.coupling), diag };
+  const matrix: CsrMatrix = {
+    n,
+    rowStart: a.rowStart,
+    col: a.col,
+    coupling: new precision(a.coupling),
+    diag,
+    excess: new precision(a.excess),
+  };
   const rhsSlots = new Float64Array(n + 1);
   const v1Slots = new Float64Array(n + 1);
   const v = () => new Float64Array(n);
@@ -149,7 +156,8 @@ export class PairwiseMultigrid implements VariablePreconditioner {
     }
     for (let l = 0; l < maps.length; l++) this.maps.push(toSlots(maps[l]!, matrices[l]!.n));
     for (const m of matrices) this.coarse.push(coarseLevel(m, precision));
-    this.coarsest = new DenseCholesky(this.coarse[this.coarse.length - 1]!.matrix);
+    // factored from the double-precision set-up matrix (see csrApplyDot on single-precision diagonals)
+    this.coarsest = new DenseCholesky(matrices[matrices.length - 1]!);
   }
 
   /** Notes for the solve statistics. */
