@@ -318,8 +318,8 @@ const scratch = {
  * largest eigenvalue of  D_G (I - 1 (1^T D_G 1)^-1 1^T D_G) v = mu A_G v  (Napov & Notay 2012, eq. 3.3 with a
  * diagonal smoother): A_G the aggregate's rows with its outside couplings removed (diagonal = excess + inside
  * couplings), D_G their diagonals. With B = D^-1/2 A_G D^-1/2 and u = D^1/2 1 / |D^1/2 1|, 1/mu(G) is the least
- * eigenvalue of the Schur complement S = B - B u u^T B / (u^T B u) on the complement of u; so mu(G) < kappa exactly
- * when S + u u^T - I / kappa is positive definite, which a Cholesky factorisation tells.
+ * eigenvalue of the Schur complement S = B - B u u^T B / (u^T B u) on the complement of u (S u = 0); so mu(G) < kappa
+ * exactly when S + (1 + 1 / kappa) u u^T - I / kappa is positive definite, which a Cholesky factorisation tells.
  */
 function aggregateQualityBelow(base: BaseRows, m: number, kappa: number): boolean {
   const { d, e, c, b, u, bu, rows } = scratch;
@@ -354,7 +354,7 @@ function aggregateQualityBelow(base: BaseRows, m: number, kappa: number): boolea
   const shift = 1 / kappa;
   for (let i = 0; i < m; i++) {
     for (let k = 0; k < m; k++) {
-      let v = b[i * 4 + k]! + u[i]! * u[k]!;
+      let v = b[i * 4 + k]! + (1 + shift) * u[i]! * u[k]!;
       if (ubu > 0) v -= (bu[i]! * bu[k]!) / ubu;
       if (i === k) v -= shift;
       b[i * 4 + k] = v;

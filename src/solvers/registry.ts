@@ -98,7 +98,7 @@ export const solverRegistry: Record<string, SolverEntry> = {
  * Share of cells weakly tied to their 2 x 2 block (weakBlockShare, ./roughness.ts) from which `auto` takes the
  * pairwise-aggregation multigrid instead of the 2 x 2 one.
  */
-export const ROUGH_SHARE = 0.04;
+export const ROUGH_SHARE = 0.01;
 
 /**
  * The method `auto` stands for, chosen from the operator alone.

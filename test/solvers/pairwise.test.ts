@@ -3,19 +3,25 @@
  * iteration bounds where fixed 2 x 2 aggregation fails, identity rows, thin grids and extreme K scaling.
  */
 import { describe, expect, it } from 'vitest';
+import { inlineExecutor } from '../../src/executor/inline.js';
 import { BandedCholesky } from '../../src/solvers/banded.js';
 import { qualityBelow, pairQuality } from '../../src/solvers/pairwise.js';
-import { chooseAutoMethod, createSolver } from '../../src/solvers/registry.js';
+import { ROUGH_SHARE, chooseAutoMethod, createSolver } from '../../src/solvers/registry.js';
 import { weakBlockShare } from '../../src/solvers/roughness.js';
 import type { StencilOperator } from '../../src/solvers/types.js';
-import { buildSystem, denseSolve, maxRelativeError, random, type TestCase } from './fixtures.js';
+import { buildSystem, correlatedCase, denseSolve, maxRelativeError, random, type TestCase } from './fixtures.js';
 
 const TOLERANCE = 1e-10;
+/**
+ * Layers with K from 1e-6 to 1 in series make a badly conditioned system: a residual of 1e-10 bounds the head error
+ * only by 1e-10 ||b|| / lambda_min(A) (Golub & Van Loan 2.6), several micrometres here; these solves go to 1e-12.
+ */
+const SERIES_TOLERANCE = 1e-12;
 
-function solveWith(method: string, op: StencilOperator, b: Float64Array, maxIterations = 2000) {
+function solveWith(method: string, op: StencilOperator, b: Float64Array, tolerance = TOLERANCE) {
   const solver = createSolver(method, op);
   const x = new Float64Array(op.n);
-  const stats = solver.solve(b, x, { tolerance: TOLERANCE, maxIterations });
+  const stats = solver.solve(b, x, { tolerance, maxIterations: 2000 });
   return { x, stats };
 }
 
@@ -61,9 +67,9 @@ describe('pcg-pairwise against the series-conductance heads of layered K (Darcy)
   // so the head falls by q / C across each conductance C (Darcy's law for resistances in series; e.g. Bear,
   // Hydraulics of Groundwater, 1979, section 5.1, the equivalent conductivity of layers normal to the flow).
   // Here C between two cells is the harmonic mean of their transmissivities (../shared/spec/discretisation.md).
-  function layered(nx: number, ny: number, seed: number): { c: TestCase; heads: Float64Array } {
+  function layered(nx: number, ny: number, seed: number, decades: number): { c: TestCase; heads: Float64Array } {
     const rnd = random(seed);
-    const column = Array.from({ length: nx }, () => 10 ** (-6 + 6 * rnd()));
+    const column = Array.from({ length: nx }, () => 10 ** (-decades + decades * rnd()));
     const k = new Float64Array(nx * ny);
     for (let i = 0; i < ny; i++) for (let j = 0; j < nx; j++) k[i * nx + j] = column[j]!;
     const c = westEast(nx, ny, k);
@@ -83,13 +89,15 @@ describe('pcg-pairwise against the series-conductance heads of layered K (Darcy)
     return { c, heads };
   }
 
+  // A long line of layers is badly conditioned (lambda_min falls with the square of its length), so the thin grids
+  // take three decades of K and 1500 cells, still above the size that is solved directly (1024 cells).
   it.each([
-    [60, 40],
-    [3000, 1],
-  ])('%i x %i cells, K of each column between 1e-6 and 1', (nx, ny) => {
-    const { c, heads } = layered(nx, ny, 11);
+    [60, 40, 6],
+    [1500, 1, 3],
+  ])('%i x %i cells, K of each column spanning %i decades', (nx, ny, decades) => {
+    const { c, heads } = layered(nx, ny, 11, decades);
     const { op, b } = buildSystem(c);
-    const { x, stats } = solveWith('pcg-pairwise', op, b);
+    const { x, stats } = solveWith('pcg-pairwise', op, b, SERIES_TOLERANCE);
     expect(stats.converged).toBe(true);
     expect(stats.notes.join(' ')).toContain('levels of');
     // unknowns are heads here (no datum shift in the test systems); fixed cells are identity rows with x = 0
@@ -98,20 +106,19 @@ describe('pcg-pairwise against the series-conductance heads of layered K (Darcy)
     expect(worst).toBeLessThan(1e-6);
   });
 
-  it('a column of 3000 cells (1 x N), layers along it', () => {
-    const { c: row } = layered(3000, 1, 12);
+  it('a column of 1500 cells (1 x N), layers along it, K spanning 3 decades', () => {
+    const { c: row, heads } = layered(1500, 1, 12, 3);
     // the same layers turned north-south: fixed heads at the top and bottom cells
     const k = row.k;
-    const fixedHead = new Float64Array(3000).fill(NaN);
+    const fixedHead = new Float64Array(1500).fill(NaN);
     fixedHead[0] = 100;
-    fixedHead[2999] = 90;
-    const c: TestCase = { nx: 1, ny: 3000, dx: 10, dy: 10, k, thickness: 20, anisotropy: 1, fixedHead, source: new Float64Array(3000) };
+    fixedHead[1499] = 90;
+    const c: TestCase = { nx: 1, ny: 1500, dx: 10, dy: 10, k, thickness: 20, anisotropy: 1, fixedHead, source: new Float64Array(1500) };
     const { op, b } = buildSystem(c);
-    const { x, stats } = solveWith('pcg-pairwise', op, b);
+    const { x, stats } = solveWith('pcg-pairwise', op, b, SERIES_TOLERANCE);
     expect(stats.converged).toBe(true);
-    const { heads } = layered(3000, 1, 12);
     let worst = 0;
-    for (let p = 1; p < 2999; p++) worst = Math.max(worst, Math.abs(x[p]! - heads[p]!));
+    for (let p = 1; p < 1499; p++) worst = Math.max(worst, Math.abs(x[p]! - heads[p]!));
     expect(worst).toBeLessThan(1e-6);
   });
 });
@@ -131,29 +138,142 @@ describe('pcg-pairwise against direct solves on rough conductivity', () => {
     const { op, b } = buildSystem(roughCase(90, 70, seed, 3));
     const ref = new Float64Array(op.n);
     new BandedCholesky(op).solve(b, ref);
-    const pairwise = solveWith('pcg-pairwise', op, b);
-    const multigrid = solveWith('pcg-multigrid', op, b);
+    // to 1e-12: at 1e-10 the head error bound ||r|| / lambda_min (Golub & Van Loan 2.6) is about 1e-8 here
+    const pairwise = solveWith('pcg-pairwise', op, b, 1e-12);
+    const multigrid = solveWith('pcg-multigrid', op, b, 1e-12);
     expect(pairwise.stats.converged).toBe(true);
     expect(multigrid.stats.converged).toBe(true);
     expect(maxRelativeError(pairwise.x, ref)).toBeLessThan(1e-8);
-    expect(maxRelativeError(pairwise.x, multigrid.x)).toBeLessThan(1e-8);
+    expect(maxRelativeError(multigrid.x, ref)).toBeLessThan(1e-8);
+    // hence within 2e-8 of each other
+    expect(maxRelativeError(pairwise.x, multigrid.x)).toBeLessThan(2e-8);
     for (let p = 0; p < op.n; p++) if (!op.unknown[p]) expect(pairwise.x[p]).toBe(0);
   });
 });
 
+/** K = 1 in 5 x 5 blocks of a checkerboard whose other blocks have K = 1e-6: high-K lenses meeting at corners only. */
+function blockBoard(n: number, block: number): Float64Array {
+  const k = new Float64Array(n * n);
+  for (let i = 0; i < n; i++)
+    for (let j = 0; j < n; j++) k[i * n + j] = (Math.floor(i / block) + Math.floor(j / block)) % 2 === 0 ? 1 : 1e-6;
+  return k;
+}
+
+/** K = 1e-6 everywhere but a meandering channel two cells wide with K = 1 from the west edge to the east edge. */
+function channel(n: number): Float64Array {
+  const k = new Float64Array(n * n).fill(1e-6);
+  for (let j = 0; j < n; j++) {
+    const i = Math.round(n / 2 + (n / 4) * Math.sin((2 * Math.PI * j) / n));
+    k[i * n + j] = 1;
+    k[(i + 1) * n + j] = 1;
+  }
+  return k;
+}
+
 describe('pcg-pairwise where fixed 2 x 2 aggregates fail', () => {
-  it('probe', () => {
-    for (const n of [40, 64, 128]) for (const size of [4, 5, 6, 8]) {
-      const kb = new Float64Array(n * n);
-      for (let i = 0; i < n; i++)
-        for (let j = 0; j < n; j++) kb[i * n + j] = (Math.floor(i / size) + Math.floor(j / size)) % 2 === 0 ? 1 : 1e-6;
-      const { op, b } = buildSystem(westEast(n, n, kb));
-      const a = solveWith('pcg-pairwise', op, b);
-      const m = solveWith('pcg-multigrid', op, b);
-      console.log('B', n, size, a.stats.iterations, m.stats.iterations, a.stats.notes.join(' '));
+  // The bound: a multigrid method's iteration count should not depend on the coefficients' jumps when its coarse
+  // spaces follow them (common practice for algebraic multigrid; e.g. Napov & Notay 2012 report near-constant counts
+  // on discontinuous coefficients). 20 iterations to 1e-10 is 1.4 times the 14 of the smooth benchmark case.
+  // pcg-multigrid's 2 x 2 blocks straddle the jumps and need 130-360 iterations on these grids: if that method
+  // improves, the second expectation of each case says so and the case should be reconsidered.
+  const BOUND = 20;
+  it.each([
+    ['a checkerboard of 5 x 5 blocks, K 1 and 1e-6', () => blockBoard(128, 5)],
+    ['a checkerboard of 6 x 6 blocks, K 1 and 1e-6', () => blockBoard(128, 6)],
+    ['a channel of K 1 through K 1e-6', () => channel(128)],
+    ['white-noise ln K, sigma 3', () => roughK(128 * 128, 3, 3)],
+  ])('%s (128 x 128)', (_name, field) => {
+    const { op, b } = buildSystem(westEast(128, 128, field()));
+    const pairwise = solveWith('pcg-pairwise', op, b);
+    expect(pairwise.stats.converged).toBe(true);
+    expect(pairwise.stats.iterations).toBeLessThanOrEqual(BOUND);
+    const multigrid = solveWith('pcg-multigrid', op, b);
+    expect(multigrid.stats.iterations).toBeGreaterThan(BOUND);
+  });
+});
+
+describe('pcg-pairwise on any scale of K', () => {
+  it('gives the same heads for K times 1e-45 and times 3e38 as for K itself', () => {
+    // The heads do not depend on a common factor of K (Darcy's law is linear in K; with fixed heads and no sources
+    // the factor cancels). A power of two scales the levels (operatorScale); 1e-45 and 3e38 are not powers of two.
+    const c = roughCase(50, 40, 8, 3);
+    for (let p = 0; p < c.source.length; p++) c.source[p] = 0;
+    const reference = solveWith('pcg-pairwise', buildSystem(c).op, buildSystem(c).b);
+    expect(reference.stats.converged).toBe(true);
+    for (const factor of [1e-45, 3e38]) {
+      const scaled: TestCase = { ...c, k: c.k.map((v) => v * factor) };
+      const { op, b } = buildSystem(scaled);
+      const { x, stats } = solveWith('pcg-pairwise', op, b);
+      expect(stats.converged).toBe(true);
+      expect(stats.notes.join(' ')).toContain('levels of');
+      expect(maxRelativeError(x, reference.x)).toBeLessThan(1e-8);
     }
   });
 });
 
-void qualityBelow;
-void pairQuality;
+describe('pair and aggregate quality', () => {
+  const rows = (d: number[], e: number[], c: (i: number, k: number) => number) => ({
+    diag: (i: number) => d[i]!,
+    excess: (i: number) => e[i]!,
+    coupling: c,
+  });
+
+  it('the exact test of a pair agrees with the closed form', () => {
+    const rnd = random(4);
+    for (let t = 0; t < 200; t++) {
+      const c = 10 ** (-3 + 3 * rnd());
+      const d = [c + 10 ** (-3 + 4 * rnd()), c + 10 ** (-3 + 4 * rnd())];
+      const e = [rnd() < 0.5 ? 0 : (d[0]! - c) * rnd(), rnd() < 0.5 ? 0 : (d[1]! - c) * rnd()];
+      const mu = pairQuality(d[0]!, d[1]!, e[0]!, e[1]!, c);
+      const base = rows(d, e, () => c);
+      expect(qualityBelow(base, [0, 1], mu * 1.001)).toBe(true);
+      expect(qualityBelow(base, [0, 1], mu * 0.999)).toBe(false);
+    }
+  });
+
+  it('a 2 x 2 block of the five-point Laplacian has quality 2, a row of four 4 / (2 - sqrt 2)', () => {
+    // Inside couplings of the block form the cycle graph C4, whose Laplacian eigenvalues are 2 - 2 cos(2 pi k / 4) =
+    // 0, 2, 2, 4; a row of four is the path graph P4 with eigenvalues 2 - 2 cos(pi k / 4) (Chung, Spectral Graph
+    // Theory, 1997, section 1.2). With diagonal 4 and no excess, mu = 4 / (least non-zero eigenvalue).
+    const block = rows([4, 4, 4, 4], [0, 0, 0, 0], (i, k) => ((i ^ k) === 1 || (i ^ k) === 2 ? 1 : 0));
+    expect(qualityBelow(block, [0, 1, 2, 3], 2.001)).toBe(true);
+    expect(qualityBelow(block, [0, 1, 2, 3], 1.999)).toBe(false);
+    const line = rows([4, 4, 4, 4], [0, 0, 0, 0], (i, k) => (Math.abs(i - k) === 1 ? 1 : 0));
+    const mu = 4 / (2 - Math.SQRT2);
+    expect(qualityBelow(line, [0, 1, 2, 3], mu * 1.001)).toBe(true);
+    expect(qualityBelow(line, [0, 1, 2, 3], mu * 0.999)).toBe(false);
+  });
+});
+
+describe('auto on rough conductivity', () => {
+  it('takes pcg-pairwise on white-noise ln K and pcg-multigrid on a smooth correlated field', () => {
+    // The rule and its threshold: src/solvers/registry.ts (chooseAutoMethod); measured shares in bench/README.md.
+    const rough = buildSystem(roughCase(128, 128, 2, 3)).op;
+    const smooth = buildSystem(correlatedCase(128, 128, 2)).op;
+    expect(weakBlockShare(rough)).toBeGreaterThan(ROUGH_SHARE);
+    expect(chooseAutoMethod(rough)).toBe('pcg-pairwise');
+    expect(weakBlockShare(smooth)).toBeLessThan(ROUGH_SHARE);
+    expect(chooseAutoMethod(smooth)).toBe('pcg-multigrid');
+  });
+});
+
+describe('pcg-pairwise in a solver session', () => {
+  it('keeps its hierarchy as preconditioner of changed conductances, and rebuilds it on request', () => {
+    // As a water-table outer iteration does (src/discretisation/outerLoop.ts): the bands change in place; the answer
+    // is checked against the banded Cholesky solve of the changed system (Golub & Van Loan 4.3.5).
+    const c = roughCase(60, 50, 9, 3);
+    const { op } = buildSystem(c);
+    const session = inlineExecutor.openNow(op, { method: 'pcg-pairwise' });
+    expect(session.method).toBe('pcg-pairwise');
+    const changed = buildSystem({ ...c, k: c.k.map((v, p) => (p % 7 === 0 ? v * 3 : v)) });
+    const bands = { diag: changed.op.diag, east: changed.op.east, south: changed.op.south };
+    for (const rebuild of [false, true]) {
+      expect(session.setOperatorNow(bands, rebuild)).toBe(rebuild);
+      const ref = new Float64Array(op.n);
+      new BandedCholesky(changed.op).solve(changed.b, ref);
+      const answer = session.solveNow({ rhs: changed.b, x: new Float64Array(op.n), tolerance: 1e-12, maxIterations: 200 });
+      expect(answer.stats.converged).toBe(true);
+      expect(maxRelativeError(answer.x, ref)).toBeLessThan(1e-8);
+    }
+  });
+});
