@@ -10,8 +10,10 @@ import type { StencilOperator, VariablePreconditioner } from './types.js';
 const DIRECT_CELLS = 1024;
 /** Coarsening stops once a level has at most this many rows; that level is solved by dense Cholesky. */
 const COARSEST_ROWS = 400;
-/** ... or once two passes of pairing no longer shrink a level below this fraction of its rows. */
+/** ... or once two passes of pairing no longer shrink a level (of at most DENSE_ROWS) below this fraction of its rows. */
 const STALLED = 0.85;
+/** Largest coarsest level factored densely (n^3 / 6 multiply-adds: 0.6e9, and 8 n^2 bytes: 18 MB); a larger one is only smoothed (SweepSolve). */
+const DENSE_ROWS = 1500;
 /** K-cycle: skip the second inner Krylov step when the first reduced the coarse residual below this fraction. */
 const K_CYCLE_THRESHOLD = 0.25;
 
@@ -91,6 +93,21 @@ function compose(map: Int32Array, second: Int32Array): void {
   }
 }
 
+/** Stand-in for a coarsest solve where the dense factor would be too large: symmetric Gauss–Seidel sweeps from zero. */
+class SweepSolve {
+  static readonly SWEEPS = 4;
+  constructor(private readonly level: CoarseLevel) {}
+
+  solve(b: Float64Array, x: Float64Array): void {
+    const { matrix, invDiag } = this.level;
+    x.fill(0);
+    for (let s = 0; s < SweepSolve.SWEEPS; s++) {
+      csrGaussSeidel(matrix, invDiag, b, x, false);
+      csrGaussSeidel(matrix, invDiag, b, x, true);
+    }
+  }
+}
+
 /**
  * Aggregation multigrid preconditioner whose aggregates follow the conductances: two passes of pairwise
  * aggregation per level (./pairwise.ts; Notay 2010, Napov & Notay 2012), piecewise-constant interpolation,
@@ -108,7 +125,7 @@ export class PairwiseMultigrid implements VariablePreconditioner {
   /** Fine cell -> level-1 row; then level l row -> level l + 1 row (spare slot for rows outside any aggregate). */
   private readonly maps: Int32Array[] = [];
   private readonly coarse: CoarseLevel[] = [];
-  private readonly coarsest: DenseCholesky | null = null;
+  private readonly coarsest: DenseCholesky | SweepSolve | null = null;
   private readonly direct: BandedCholesky | null = null;
   private readonly scale: number;
   readonly doublePrecision: boolean;
@@ -148,7 +165,8 @@ export class PairwiseMultigrid implements VariablePreconditioner {
       const b = galerkin(a, map, members.first.length);
       next = new Int32Array(b.n);
       const c = galerkin(b, next, pairPairs(matrixRows(a), members, b, next));
-      if (c.n > STALLED * a.n) break;
+      // no progress at all, or slow progress once the level is small enough for the dense solve
+      if (c.n === a.n || (c.n > STALLED * a.n && a.n <= DENSE_ROWS)) break;
       compose(map, next);
       maps.push(map);
       matrices.push(c);
@@ -156,8 +174,10 @@ export class PairwiseMultigrid implements VariablePreconditioner {
     }
     for (let l = 0; l < maps.length; l++) this.maps.push(toSlots(maps[l]!, matrices[l]!.n));
     for (const m of matrices) this.coarse.push(coarseLevel(m, precision));
-    // factored from the double-precision set-up matrix (see csrApplyDot on single-precision diagonals)
-    this.coarsest = new DenseCholesky(matrices[matrices.length - 1]!);
+    // factored from the double-precision set-up matrix (see csrApplyDot on single-precision diagonals); a level that
+    // pairing could not shrink below DENSE_ROWS gets symmetric Gauss–Seidel sweeps instead, so memory stays bounded
+    const last = matrices[matrices.length - 1]!;
+    this.coarsest = last.n <= DENSE_ROWS ? new DenseCholesky(last) : new SweepSolve(this.coarse[this.coarse.length - 1]!);
   }
 
   /** Notes for the solve statistics. */
