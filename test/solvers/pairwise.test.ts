@@ -246,7 +246,7 @@ describe('pair and aggregate quality', () => {
 });
 
 describe('auto on rough conductivity', () => {
-  it('takes pcg-pairwise on white-noise ln K and pcg-multigrid on a smooth correlated field', () => {
+  it('takes pcg-pairwise on white-noise ln K and on a block checkerboard, pcg-multigrid on a smooth correlated field', () => {
     // The rule and its threshold: src/solvers/registry.ts (chooseAutoMethod); measured shares in bench/README.md.
     const rough = buildSystem(roughCase(128, 128, 2, 3)).op;
     const smooth = buildSystem(correlatedCase(128, 128, 2)).op;
@@ -254,6 +254,8 @@ describe('auto on rough conductivity', () => {
     expect(chooseAutoMethod(rough)).toBe('pcg-pairwise');
     expect(weakBlockShare(smooth)).toBeLessThan(ROUGH_SHARE);
     expect(chooseAutoMethod(smooth)).toBe('pcg-multigrid');
+    // the checkerboard of 5 x 5 blocks above, where 2 x 2 aggregates need more than 20 iterations
+    expect(chooseAutoMethod(buildSystem(westEast(128, 128, blockBoard(128, 5))).op)).toBe('pcg-pairwise');
   });
 });
 
