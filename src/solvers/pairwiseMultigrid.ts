@@ -17,7 +17,7 @@ const DENSE_ROWS = 1500;
 /** K-cycle: skip the second inner Krylov step when the first reduced the coarse residual below this fraction. */
 const K_CYCLE_THRESHOLD = 0.25;
 
-/** The five-point fine level: the operator's bands times `scale` in the levels' precision, and its aggregates. */
+/** The five-point fine level: the operator's bands times `scale` in the levels' precision (its aggregate map is maps[0]). */
 interface FineLevel {
   readonly nx: number;
   readonly ny: number;
