@@ -128,6 +128,12 @@ export class PairwiseMultigrid implements VariablePreconditioner {
   private readonly coarsest: DenseCholesky | SweepSolve | null = null;
   private readonly direct: BandedCholesky | null = null;
   private readonly scale: number;
+  /**
+   * Whether coarse level c may take the K-cycle's second step: only where the finer level has at least twice its
+   * rows, so that visiting it twice per visit of the finer level keeps the work per cycle bounded by a geometric
+   * sum; a level that pairing shrank less gets one step (a V-cycle there).
+   */
+  private readonly twoSteps: Uint8Array;
   readonly doublePrecision: boolean;
 
   constructor(op: StencilOperator) {
@@ -149,6 +155,7 @@ export class PairwiseMultigrid implements VariablePreconditioner {
     }
     this.fine = { nx, ny, diag, east, south, invDiag };
     if (n <= DIRECT_CELLS) {
+      this.twoSteps = new Uint8Array(0);
       this.direct = new BandedCholesky(op);
       return;
     }
@@ -174,6 +181,8 @@ export class PairwiseMultigrid implements VariablePreconditioner {
     }
     for (let l = 0; l < maps.length; l++) this.maps.push(toSlots(maps[l]!, matrices[l]!.n));
     for (const m of matrices) this.coarse.push(coarseLevel(m, precision));
+    this.twoSteps = new Uint8Array(matrices.length);
+    for (let c = 0; c < matrices.length; c++) this.twoSteps[c] = (c === 0 ? n : matrices[c - 1]!.n) >= 2 * matrices[c]!.n ? 1 : 0;
     // factored from the double-precision set-up matrix (see csrApplyDot on single-precision diagonals); a level that
     // pairing could not shrink below DENSE_ROWS gets symmetric Gauss–Seidel sweeps instead, so memory stays bounded
     const last = matrices[matrices.length - 1]!;
@@ -239,7 +248,7 @@ export class PairwiseMultigrid implements VariablePreconditioner {
       rr2 += v * v;
       rr += rhs[i]! * rhs[i]!;
     }
-    if (!(rho1 > 0) || rr2 <= K_CYCLE_THRESHOLD * K_CYCLE_THRESHOLD * rr) {
+    if (!(rho1 > 0) || !this.twoSteps[c] || rr2 <= K_CYCLE_THRESHOLD * K_CYCLE_THRESHOLD * rr) {
       const s = rho1 > 0 ? step1 : 0;
       for (let i = 0; i < n; i++) v1[i] = s * v1[i]!;
       return;
