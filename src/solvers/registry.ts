@@ -88,9 +88,9 @@ export const solverRegistry: Record<string, SolverEntry> = {
       'conjugate gradient preconditioned by aggregation multigrid whose aggregates follow strong conductances (pairwise aggregation, K-cycle); for conductivity that jumps by orders of magnitude between cells',
     // r, z, p, q (32); fine-level bands and inverse diagonal in single precision (16) and its aggregate map (4);
     // coarse levels of about half the fine rows in all, each row with 6 K-cycle vectors, its couplings and maps
-    // (measured 110 bytes per cell kept at 1024^2, rough or smooth); the set-up's temporary pair matrices and the
-    // double-precision levels some operators need come on top
-    bytesPerCell: 176,
+    // (measured 110 bytes per cell kept at 1024^2, rough or smooth); with the set-up's temporary pair matrices the
+    // resident memory grew by 199 bytes per cell over set-up and solve (1024^2, rough; pcg-multigrid: 88)
+    bytesPerCell: 200,
   },
 };
 
