@@ -211,6 +211,24 @@ describe('pcg-pairwise on any scale of K', () => {
   });
 });
 
+describe('pcg-pairwise with double-precision levels', () => {
+  it('takes double precision when the conductances span more than single precision carries, and agrees with the banded solve', () => {
+    // K of 1e-20 in the west half and 1e20 in the east half: diagonals 40 decades apart (2^120 is about 1.3e36).
+    // Reference: banded Cholesky (Golub & Van Loan 4.3.5), checked against ml-matrix in solvers.test.ts.
+    const nx = 48;
+    const ny = 40;
+    const k = roughK(nx * ny, 6, 1);
+    for (let p = 0; p < k.length; p++) k[p]! *= p % nx < nx / 2 ? 1e-20 : 1e20;
+    const { op, b } = buildSystem(westEast(nx, ny, k));
+    const ref = new Float64Array(op.n);
+    new BandedCholesky(op).solve(b, ref);
+    const { x, stats } = solveWith('pcg-pairwise', op, b, 1e-12);
+    expect(stats.converged).toBe(true);
+    expect(stats.notes.join(' ')).toContain('double-precision levels');
+    expect(maxRelativeError(x, ref)).toBeLessThan(1e-8);
+  });
+});
+
 describe('pair and aggregate quality', () => {
   const rows = (d: number[], e: number[], c: (i: number, k: number) => number) => ({
     diag: (i: number) => d[i]!,
