@@ -7,7 +7,7 @@
  *   npm run bench -- --table FILE.json   (prints the table of an earlier run)
  *   npm run bench -- --whole [--sizes 512,1024,2048] [--repeat 1]   whole `piezomap solve` runs against the reference
  *   npm run bench -- --write-stages [--sizes 1024,2048]   CPU per product, serial vs concurrent writer
- *   npm run bench -- --rough [--sizes 512,1024]   iterations on rough conductivity: auto vs smooth and vs pcg-ic0
+ *   npm run bench -- --rough [--sizes 512,1024]   rough vs smooth conductivity: auto, pcg-pairwise, pcg-multigrid, pcg-ic0
  *
  * The reference solver (hypre BoomerAMG-PCG, built from ../shared/bench-reference) is used when
  * PIEZOMAP_REFERENCE_DIR names the folder holding its hypre_pcg (./reference.ts).
@@ -405,9 +405,12 @@ function caseField(name: string): CaseField {
   return name as CaseField;
 }
 
+/** The methods of the rough-conductivity comparison, on both fields: `auto`, the two multigrid methods, IC(0). */
+const ROUGH_METHODS = ['auto', 'pcg-pairwise', 'pcg-multigrid', 'pcg-ic0'];
+
 /**
- * Iterations on the rough case (white-noise log K, sigma 3) against the smooth one: `auto` on both, `pcg-ic0` on the
- * rough one, and the reference's iterations on the rough one when it is there.
+ * Iterations and CPU time on the rough case (white-noise log K, sigma 3) against the smooth one, for ROUGH_METHODS
+ * on both, and the reference's on the rough one when it is there.
  */
 async function runRough(
   args: Map<string, string>,
@@ -432,11 +435,8 @@ async function runRough(
     '|---|---|---|---|---|---|---|---|---|',
   ];
   for (const size of sizes) {
-    const runs: Array<[CaseField, string]> = [
-      ['smooth', 'auto'],
-      ['rough', 'auto'],
-      ['rough', 'pcg-ic0'],
-    ];
+    const runs: Array<[CaseField, string]> = [];
+    for (const field of CASE_FIELDS) for (const method of ROUGH_METHODS) runs.push([field, method]);
     for (const [field, method] of runs) {
       const load = loadavg()[0]!;
       process.stderr.write(`size ${size}: ${method} on the ${field} case (load ${load.toFixed(1)})\n`);

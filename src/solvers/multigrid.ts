@@ -30,7 +30,7 @@ const FLOAT32_DIAGONAL_SPREAD = 2 ** 120;
  * preconditioner is the same one, divided by the factor; without it, conductances above about 8e37 or below about
  * 1e-38 (K = 3.4e38 m/d, or a thickness of 1e-40 m) would overflow to infinity or flush to zero in single precision.
  */
-function operatorScale(op: StencilOperator): { scale: number; precision: CoefficientArray } {
+export function operatorScale(op: StencilOperator): { scale: number; precision: CoefficientArray } {
   const { n, diag, unknown } = op;
   let largest = 0;
   let smallest = Infinity;

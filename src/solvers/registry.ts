@@ -1,6 +1,8 @@
 import { PiezomapError } from '../errors.js';
 import { AggregationMultigrid } from './multigrid.js';
+import { PairwiseMultigrid } from './pairwiseMultigrid.js';
 import { PcgSolver } from './pcg.js';
+import { weakBlockShare } from './roughness.js';
 import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
 import { StationarySolver } from './stationary.js';
 import { warmUpKernels } from './warmup.js';
@@ -76,18 +78,48 @@ export const solverRegistry: Record<string, SolverEntry> = {
     description: 'conjugate gradient preconditioned by aggregation multigrid (K-cycle); fast on large grids',
     bytesPerCell: 128, // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands and K-cycle vectors)
   },
+  'pcg-pairwise': {
+    factory: (op) => {
+      const t0 = performance.now();
+      const mg = new PairwiseMultigrid(op);
+      return new PcgSolver('pcg-pairwise', op, mg, (performance.now() - t0) / 1000, [`pairwise multigrid ${mg.describe()}`]);
+    },
+    description:
+      'conjugate gradient preconditioned by aggregation multigrid whose aggregates follow strong conductances (pairwise aggregation, K-cycle); for conductivity that jumps by orders of magnitude between cells',
+    // r, z, p, q (32); fine-level bands and inverse diagonal in single precision (16) and its aggregate map (4);
+    // coarse levels of about half the fine rows in all, each row with 6 K-cycle vectors, its couplings and maps
+    // (measured 110 bytes per cell kept at 1024^2, rough or smooth); with the set-up's temporary pair matrices the
+    // resident memory grew by 199 bytes per cell over set-up and solve (1024^2, rough; pcg-multigrid: 88)
+    bytesPerCell: 200,
+  },
 };
 
 /**
- * The method `auto` stands for, chosen from the operator alone.
- * Rule: multigrid-preconditioned CG for every grid. Its iteration count stays nearly constant as the grid
- * grows (measured 14 iterations to 1e-10 at 512^2, 1024^2 and 2048^2 on the benchmark case with K spanning
- * several orders of magnitude, holes and a ragged border), where single-level preconditioners (IC(0), SSOR,
- * Jacobi) need iterations growing with the grid side; on grids of at most 1024 cells the hierarchy has one
- * level and the method is a direct banded Cholesky solve.
+ * Share of cells weakly tied to their 2 x 2 block (weakBlockShare, ./roughness.ts) from which `auto` takes the
+ * pairwise-aggregation multigrid instead of the 2 x 2 one.
  */
-export function chooseAutoMethod(_op: StencilOperator): string {
-  return 'pcg-multigrid';
+export const ROUGH_SHARE = 0.02;
+
+/**
+ * The method `auto` stands for, chosen from the operator alone.
+ * Rule: multigrid-preconditioned CG for every grid; the aggregates follow the conductances (`pcg-pairwise`) when
+ * at least ROUGH_SHARE of the cells are weakly tied to their 2 x 2 block (weakBlockShare: both conductances inside
+ * the block below a tenth of the cell's strongest), otherwise fixed 2 x 2 aggregates (`pcg-multigrid`), which cost
+ * a third as much per iteration and almost nothing to set up. Measured on the benchmark case at 512^2 (CPU seconds of
+ * set-up + solve to 1e-10, best of 3, load average 5; bench/README.md, "Rough conductivity"): the smooth field
+ * (ln K sigma 2, correlated over 8 cells) has a share of 0.1 %: pcg-multigrid 14 iterations, 0.2 s, pcg-pairwise 16,
+ * 0.77 s. White-noise ln K with sigma 1 / 1.5 / 2 / 2.5 / 3 has shares 0.15 / 1.1 / 3.0 / 5.2 / 7.2 %, where
+ * pcg-multigrid needs 19 / 27 / 40 / 60 / 97 iterations (0.32 / 0.37 / 0.54 / 0.78 / 1.30 s) and pcg-pairwise
+ * 17 / 17 / 17 / 18 / 19 (0.98 / 0.93 / 0.72 / 0.79 / 0.73 s). At 2 % pcg-multigrid is past twice its smooth-case
+ * iterations and its time is within 1.3 times pcg-pairwise's; a checkerboard of 5 x 5 blocks of K 1 and 1e-6 (share
+ * 2.3 %, test/solvers/pairwise.test.ts) needs 200 iterations with 2 x 2 blocks and 14 with pairs. Both counts stay
+ * nearly constant as the grid grows (14 and 19 at 1024^2). A narrow channel of high K touches too few cells to pass
+ * the threshold (0.4 % for a channel two cells wide across 128^2); pcg-pairwise must then be asked for. On grids of
+ * at most 1024 cells both methods are a direct banded Cholesky solve. The share costs one pass over the bands
+ * (about 5 ms at 512^2).
+ */
+export function chooseAutoMethod(op: StencilOperator): string {
+  return weakBlockShare(op) >= ROUGH_SHARE ? 'pcg-pairwise' : 'pcg-multigrid';
 }
 
 /** Used for the memory budget of a method whose entry gives no estimate. */
