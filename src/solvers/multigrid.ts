@@ -1,5 +1,7 @@
 import { BandedCholesky } from './banded.js';
 import { applyDot, dot } from './kernels.js';
+import { PARALLEL_MIN_CELLS, sharedAlloc, type Team } from './team.js';
+import { OP } from './teamKernels.js';
 import type { StencilOperator, VariablePreconditioner } from './types.js';
 
 /** Coarsening stops once a level has at most this many cells; that level is solved directly. */
@@ -13,6 +15,24 @@ const K_CYCLE_THRESHOLD = 0.25;
  */
 type Coefficients = Float32Array | Float64Array;
 type CoefficientArray = Float32ArrayConstructor | Float64ArrayConstructor;
+
+/** Where the levels' arrays are allocated: ordinary memory, or shared memory when a thread team works on them. */
+interface Alloc {
+  f64(n: number): Float64Array;
+  f32(n: number): Float32Array;
+}
+const ordinaryAlloc: Alloc = { f64: (n) => new Float64Array(n), f32: (n) => new Float32Array(n) };
+
+function coefficients(alloc: Alloc, precision: CoefficientArray, n: number): Coefficients {
+  return precision === Float64Array ? alloc.f64(n) : alloc.f32(n);
+}
+
+/** A copy of `from` in the given precision. */
+function coefficientsFrom(alloc: Alloc, precision: CoefficientArray, from: Float64Array): Coefficients {
+  const c = coefficients(alloc, precision, from.length);
+  c.set(from);
+  return c;
+}
 
 /** Smallest positive normal single-precision number, 2^-126 (IEEE 754 binary32). */
 const FLOAT32_MIN_NORMAL = 2 ** -126;
@@ -72,11 +92,11 @@ interface Level {
 }
 
 /** A coarse level with its K-cycle workspaces. */
-function makeLevel(nx: number, ny: number, diag: Coefficients, east: Coefficients, south: Coefficients): Level {
+function makeLevel(alloc: Alloc, nx: number, ny: number, diag: Coefficients, east: Coefficients, south: Coefficients): Level {
   const n = nx * ny;
-  const invDiag = new (diag instanceof Float64Array ? Float64Array : Float32Array)(n);
+  const invDiag = diag instanceof Float64Array ? alloc.f64(n) : alloc.f32(n);
   for (let p = 0; p < n; p++) invDiag[p] = 1 / diag[p]!;
-  const v = () => new Float64Array(n);
+  const v = () => alloc.f64(n);
   return { nx, ny, n, diag, east, south, invDiag, rhs: v(), v1: v(), w1: v(), r2: v(), v2: v(), w2: v() };
 }
 
@@ -89,7 +109,7 @@ function makeLevel(nx: number, ny: number, diag: Coefficients, east: Coefficient
  * aggregate is strongly coupled inside and weakly outside. Only unknown children belong to an aggregate; an
  * aggregate without unknowns is an identity row.
  */
-function coarsen(fine: Level, unknown: Uint8Array, excess: Float64Array): { level: Level; unknown: Uint8Array; excess: Float64Array } {
+function coarsen(alloc: Alloc, fine: Level, unknown: Uint8Array, excess: Float64Array): { level: Level; unknown: Uint8Array; excess: Float64Array } {
   const { nx, ny, east, south } = fine;
   const cx = (nx + 1) >> 1;
   const cy = (ny + 1) >> 1;
@@ -112,11 +132,12 @@ function coarsen(fine: Level, unknown: Uint8Array, excess: Float64Array): { leve
     }
   }
   const precision = fine.diag instanceof Float64Array ? Float64Array : Float32Array;
-  return { level: coarseLevel(cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess };
+  return { level: coarseLevel(alloc, cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess };
 }
 
 /** Coarse level from summed couplings and excess: diagonal = excess + couplings (identity row without unknowns). */
 function coarseLevel(
+  alloc: Alloc,
   cx: number,
   cy: number,
   ce: Float64Array,
@@ -126,7 +147,7 @@ function coarseLevel(
   precision: CoefficientArray,
 ): Level {
   const cn = cx * cy;
-  const cd = new precision(cn);
+  const cd = coefficients(alloc, precision, cn);
   for (let c = 0; c < cn; c++) {
     if (!cu[c]) {
       cd[c] = 1;
@@ -137,7 +158,7 @@ function coarseLevel(
     if (c >= cx) d += cs[c - cx]!;
     cd[c] = d;
   }
-  return makeLevel(cx, cy, cd, new precision(ce), new precision(cs));
+  return makeLevel(alloc, cx, cy, cd, coefficientsFrom(alloc, precision, ce), coefficientsFrom(alloc, precision, cs));
 }
 
 /**
@@ -147,15 +168,16 @@ function coarseLevel(
  * couplings to unknown neighbours (its fixed-head conductances).
  */
 function finestLevels(
+  alloc: Alloc,
   op: StencilOperator,
   scale: number,
   precision: CoefficientArray,
 ): { fine: Level; coarse: { level: Level; unknown: Uint8Array; excess: Float64Array } | null } {
   const { nx, ny, n, diag, east, south, unknown } = op;
-  const d32 = new precision(n);
-  const e32 = new precision(n);
-  const s32 = new precision(n);
-  const inv = new precision(n);
+  const d32 = coefficients(alloc, precision, n);
+  const e32 = coefficients(alloc, precision, n);
+  const s32 = coefficients(alloc, precision, n);
+  const inv = coefficients(alloc, precision, n);
   const cx = (nx + 1) >> 1;
   const cy = (ny + 1) >> 1;
   const cn = cx * cy;
@@ -207,7 +229,7 @@ function finestLevels(
     w2: empty,
   };
   if (!build) return { fine, coarse: null };
-  return { fine, coarse: { level: coarseLevel(cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess } };
+  return { fine, coarse: { level: coarseLevel(alloc, cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess } };
 }
 
 /**
@@ -228,11 +250,22 @@ export class AggregationMultigrid implements VariablePreconditioner {
   /** Double-precision levels, for an operator whose range single precision cannot carry (see operatorScale). */
   readonly doublePrecision: boolean;
 
-  constructor(op: StencilOperator) {
+  /** The thread team sharing the cycle's work on big levels, or null (one thread). */
+  private readonly team: Team | null;
+  /** Per level: the team's ids of its arrays, or null where thread 0 runs the level alone. */
+  private readonly shares: Array<LevelShare | null>;
+
+  /**
+   * With a `team` the levels live in shared memory, and every level of at least `parallelMinCells` cells is worked on
+   * by the whole team (block-hybrid Gauss–Seidel: see ./teamKernels.ts); smaller levels by thread 0 alone.
+   */
+  constructor(op: StencilOperator, team: Team | null = null, parallelMinCells = PARALLEL_MIN_CELLS) {
     const { scale, precision } = operatorScale(op);
     this.scale = scale;
     this.doublePrecision = precision === Float64Array;
-    const first = finestLevels(op, scale, precision);
+    this.team = team;
+    const alloc = team ? sharedAlloc : ordinaryAlloc;
+    const first = finestLevels(alloc, op, scale, precision);
     const levels: Level[] = [first.fine];
     if (first.coarse) {
       levels.push(first.coarse.level);
@@ -240,7 +273,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
       for (;;) {
         const finer = levels[levels.length - 1]!;
         if (finer.n <= COARSEST_CELLS || (finer.nx === 1 && finer.ny === 1)) break;
-        const next = coarsen(finer, unknown, excess);
+        const next = coarsen(alloc, finer, unknown, excess);
         levels.push(next.level);
         unknown = next.unknown;
         excess = next.excess;
@@ -248,6 +281,13 @@ export class AggregationMultigrid implements VariablePreconditioner {
     }
     this.levels = levels;
     this.direct = new BandedCholesky(levels.length === 1 ? op : levels[levels.length - 1]!);
+    // the coarsest level is solved directly, by thread 0
+    this.shares = levels.map((L, l) => (team && l < levels.length - 1 && L.n >= parallelMinCells ? shareLevel(team, L) : null));
+  }
+
+  /** Threads working on each level (for the notes): the team's size on shared levels, 1 on the others. */
+  threadsPerLevel(): number[] {
+    return this.shares.map((s) => (s && this.team ? this.team.size : 1));
   }
 
   /** Notes for the solve statistics. */
@@ -261,6 +301,11 @@ export class AggregationMultigrid implements VariablePreconditioner {
       this.direct.solve(r, z);
       return;
     }
+    if (this.shares[0]) {
+      // the scaling is done by each thread on its block right after its last sweep
+      this.cycle(0, r, z, this.scale);
+      return;
+    }
     this.cycle(0, r, z);
     // (scale A)^-1 = A^-1 * scale
     const scale = this.scale;
@@ -268,7 +313,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
   }
 
   /** x ~= A_l^{-1} b on level l (x is overwritten). */
-  private cycle(l: number, b: Float64Array, x: Float64Array): void {
+  private cycle(l: number, b: Float64Array, x: Float64Array, scale = 1): void {
     const levels = this.levels;
     const L = levels[l]!;
     if (l === levels.length - 1) {
@@ -276,6 +321,16 @@ export class AggregationMultigrid implements VariablePreconditioner {
       return;
     }
     const C = levels[l + 1]!;
+    const share = this.shares[l];
+    if (share && this.team) {
+      const team = this.team;
+      const grid = [L.nx, L.ny, share.diag, share.east, share.south, share.invDiag];
+      team.run(OP.smoothRestrict, [...grid, team.id(b), team.id(x), team.id(C.rhs)]);
+      if (l + 1 === levels.length - 1) this.direct.solve(C.rhs, C.v1);
+      else this.krylovCorrection(l + 1);
+      team.run(OP.prolongSmooth, [...grid, team.id(C.v1), team.id(b), team.id(x), share.halo], [scale]);
+      return;
+    }
     smoothAndRestrict(L, b, x, C.rhs);
     // coarse correction into C.v1
     if (l + 1 === levels.length - 1) {
@@ -288,6 +343,10 @@ export class AggregationMultigrid implements VariablePreconditioner {
 
   /** Two flexible-CG steps on level c for A_c e = C.rhs, preconditioned by the cycle on c; e lands in C.v1. */
   private krylovCorrection(c: number): void {
+    if (this.shares[c]) {
+      this.teamKrylovCorrection(c);
+      return;
+    }
     const C = this.levels[c]!;
     const { rhs, v1, w1, r2, v2, w2 } = C;
     this.cycle(c, rhs, v1);
@@ -321,6 +380,62 @@ export class AggregationMultigrid implements VariablePreconditioner {
     const a2 = alpha2 / rho2;
     for (let i = 0; i < n; i++) v1[i] = a1 * v1[i]! + a2 * v2[i]!;
   }
+
+  /** krylovCorrection with every vector operation shared by the team (same steps, sums added in thread order). */
+  private teamKrylovCorrection(c: number): void {
+    const team = this.team!;
+    const C = this.levels[c]!;
+    const share = this.shares[c]!;
+    const { rhs, v1, v2 } = C;
+    const { nx, ny } = C;
+    const [iRhs, iV1, iW1, iR2, iV2, iW2] = [team.id(rhs), team.id(v1), team.id(C.w1), team.id(C.r2), team.id(v2), team.id(C.w2)];
+    const none = -1;
+    this.cycle(c, rhs, v1);
+    team.run(OP.applyDot, [nx, ny, share.diag, share.east, share.south, iV1, iW1, iV1, iRhs, none, none]);
+    const rho1 = team.sum(0);
+    const alpha1 = team.sum(1);
+    const step1 = alpha1 / rho1;
+    team.run(OP.krylovResidual, [nx, ny, iRhs, iW1, iR2], [step1]);
+    const rr2 = team.sum(0);
+    const rr = team.sum(1);
+    if (!(rho1 > 0) || rr2 <= K_CYCLE_THRESHOLD * K_CYCLE_THRESHOLD * rr) {
+      team.run(OP.combine, [nx, ny, iV1, none], [rho1 > 0 ? step1 : 0]);
+      return;
+    }
+    this.cycle(c, C.r2, v2);
+    team.run(OP.applyDot, [nx, ny, share.diag, share.east, share.south, iV2, iW2, iV2, iW1, iV2, iR2]);
+    const beta = team.sum(0);
+    const gamma = team.sum(1);
+    const alpha2 = team.sum(2);
+    const rho2 = beta - (gamma * gamma) / rho1;
+    if (!(rho2 > 0)) {
+      team.run(OP.combine, [nx, ny, iV1, none], [step1]);
+      return;
+    }
+    const a1 = step1 - (gamma * alpha2) / (rho1 * rho2);
+    const a2 = alpha2 / rho2;
+    team.run(OP.combine, [nx, ny, iV1, iV2], [a1, a2]);
+  }
+}
+
+/** The team's ids of a level's arrays, and the halo rows its prolongation–smoothing kernel needs. */
+interface LevelShare {
+  diag: number;
+  east: number;
+  south: number;
+  invDiag: number;
+  halo: number;
+}
+
+function shareLevel(team: Team, L: Level): LevelShare {
+  return {
+    diag: team.id(L.diag),
+    east: team.id(L.east),
+    south: team.id(L.south),
+    invDiag: team.id(L.invDiag),
+    // two rows per thread: the rows just north and south of its block, prolonged, as they were before the sweep
+    halo: team.id(sharedAlloc.f64(2 * team.size * L.nx)),
+  };
 }
 
 /**

@@ -4,10 +4,27 @@ import { PcgSolver } from './pcg.js';
 import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
 import { StationarySolver } from './stationary.js';
 import { warmUpKernels } from './warmup.js';
+import { inSharedMemory, PARALLEL_MIN_CELLS, type Team } from './team.js';
 
 /** Grids with more cells than this get a kernel warm-up before the multigrid setup (see warmup.ts). */
 const WARM_UP_ABOVE = 100_000;
 import type { Preconditioner, Solver, SolverConfig, SolverFactory, StencilOperator } from './types.js';
+
+/**
+ * The team a set-up shares its work with: the configured one, when it has more than one thread, the grid is big enough
+ * for it, and the operator's bands are in shared memory (the helpers cannot read others; they are not copied).
+ * Returns it (its arrays reset for the new set-up) with the note on threads for the statistics.
+ */
+function teamFor(op: StencilOperator, config: SolverConfig): { team: Team | null; note: string } {
+  const team = config.team ?? null;
+  if (!team || team.size < 2) return { team: null, note: 'threads: 1' };
+  if (op.n < (config.parallelMinCells ?? PARALLEL_MIN_CELLS)) return { team: null, note: 'threads: 1 (grid too small to share)' };
+  if (!inSharedMemory(op.diag) || !inSharedMemory(op.east) || !inSharedMemory(op.south)) {
+    return { team: null, note: 'threads: 1 (the operator is not in shared memory)' };
+  }
+  team.resetArrays();
+  return { team, note: `threads: ${team.size}` };
+}
 
 /** Wraps a preconditioner constructor as a PCG factory that times the setup. */
 function pcgFactory(method: string, build: ((op: StencilOperator, config: SolverConfig) => Preconditioner) | null): SolverFactory {
@@ -67,11 +84,13 @@ export const solverRegistry: Record<string, SolverEntry> = {
     bytesPerCell: 56, // r, z, p, q, inverse pivots, sweep vector
   },
   'pcg-multigrid': {
-    factory: (op) => {
+    factory: (op, config) => {
       const t0 = performance.now();
       if (op.n > WARM_UP_ABOVE) warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
-      const mg = new AggregationMultigrid(op);
-      return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, [`multigrid ${mg.describe()}`]);
+      const { team, note } = teamFor(op, config);
+      const mg = new AggregationMultigrid(op, team, config.parallelMinCells);
+      const notes = [`multigrid ${mg.describe()}`, team ? `${note}; levels per thread count: ${mg.threadsPerLevel().join(', ')}` : note];
+      return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, notes, team);
     },
     description: 'conjugate gradient preconditioned by aggregation multigrid (K-cycle); fast on large grids',
     bytesPerCell: 128, // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands and K-cycle vectors)

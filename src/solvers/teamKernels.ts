@@ -1,0 +1,473 @@
+/**
+ * The work a thread team (./team.ts) shares: kernels that every thread of the team runs on its own block of rows,
+ * the barrier they meet at, and the layout of the shared control block. Imported by thread 0 (the thread that runs
+ * the solver) and by every helper thread (./teamWorker.ts), so both sides run the same code on the same arrays.
+ *
+ * Blocks: thread t owns the rows [start, end) of `rowBlock(ny, size, t)`, with even boundaries so that a 2x2
+ * aggregate of the multigrid never straddles two blocks (each coarse row is written by one thread only).
+ * Gauss–Seidel runs within a block; across a block boundary it reads values fixed before the sweep (hybrid block
+ * Gauss–Seidel), so the result depends only on the team size, never on timing. Partial sums are combined by
+ * thread 0 in thread order (deterministic).
+ */
+
+/** Typed arrays a kernel may name: every one lives in shared memory. */
+export type TeamArray = Float64Array | Float32Array;
+
+/** Int32 slots of the control block. */
+export const CONTROL = {
+  /** Threads arrived at the current barrier. */
+  count: 0,
+  /** Barrier generation: bumped when the last thread arrives. */
+  generation: 1,
+  /** Kernel to run (an OP value). */
+  op: 2,
+  /** Set to 1 by a helper whose kernel threw. */
+  failed: 3,
+  /** Helpers that have started (start-up handshake). */
+  started: 4,
+  /** First integer argument of the kernel. */
+  args: 8,
+  /** Slots in all. */
+  length: 32,
+} as const;
+
+/** Float64 slots of the scalar block. */
+export const SCALARS = {
+  /** First floating-point argument of the kernel. */
+  args: 0,
+  /** Partial sums: thread t's k-th at partials + t * PARTIALS_PER_THREAD + k. */
+  partials: 8,
+} as const;
+export const PARTIALS_PER_THREAD = 4;
+
+/** Kernel codes. */
+export const OP = {
+  /** Receive new arrays from the port (appended to the table, or replacing it when the first int argument is 1). */
+  table: 1,
+  stop: 2,
+  smoothRestrict: 3,
+  prolongSmooth: 4,
+  applyDot: 5,
+  directionApply: 6,
+  pcgStep: 7,
+  dots: 8,
+  krylovResidual: 9,
+  combine: 10,
+  residual: 11,
+} as const;
+
+/**
+ * Spins before a waiting thread sleeps in Atomics.wait: long enough to cover the gap between two kernels of a
+ * multigrid cycle on a fine level (a futex wake costs tens of microseconds), short enough not to steal a busy core for
+ * long while thread 0 works alone on a coarse level.
+ */
+const SPINS = 4000;
+
+/** What a thread needs to run kernels: the team's shared blocks and its table of shared arrays. */
+export interface TeamContext {
+  readonly size: number;
+  readonly control: Int32Array;
+  readonly scalars: Float64Array;
+  readonly arrays: TeamArray[];
+}
+
+/** Central barrier on the control block: returns when all `size` threads have called it. */
+export function barrier(control: Int32Array, size: number): void {
+  const generation = Atomics.load(control, CONTROL.generation);
+  if (Atomics.add(control, CONTROL.count, 1) === size - 1) {
+    Atomics.store(control, CONTROL.count, 0);
+    Atomics.add(control, CONTROL.generation, 1);
+    Atomics.notify(control, CONTROL.generation);
+    return;
+  }
+  for (let i = 0; i < SPINS; i++) if (Atomics.load(control, CONTROL.generation) !== generation) return;
+  while (Atomics.load(control, CONTROL.generation) === generation) Atomics.wait(control, CONTROL.generation, generation);
+}
+
+/** Rows [start, end) of thread t's block on a grid of `ny` rows: whole row pairs, as even a share as can be. */
+export function rowBlock(ny: number, size: number, t: number): [number, number] {
+  const pairs = (ny + 1) >> 1;
+  const start = Math.min(ny, 2 * Math.floor((t * pairs) / size));
+  const end = Math.min(ny, 2 * Math.floor(((t + 1) * pairs) / size));
+  return [start, end];
+}
+
+/** Runs kernel `op` as thread t. Every thread of the team calls it with the same op and arguments. */
+export function runKernel(ctx: TeamContext, op: number, t: number): void {
+  const a = ctx.control;
+  const k = CONTROL.args;
+  const arr = ctx.arrays;
+  const f = ctx.scalars;
+  const out = SCALARS.partials + t * PARTIALS_PER_THREAD;
+  const nx = a[k]!;
+  const ny = a[k + 1]!;
+  const [start, end] = rowBlock(ny, ctx.size, t);
+  switch (op) {
+    case OP.smoothRestrict:
+      smoothRestrict(
+        ctx,
+        t,
+        nx,
+        ny,
+        start,
+        end,
+        arr[a[k + 2]!]!,
+        arr[a[k + 3]!]!,
+        arr[a[k + 4]!]!,
+        arr[a[k + 5]!]!,
+        f64(arr, a[k + 6]!),
+        f64(arr, a[k + 7]!),
+        f64(arr, a[k + 8]!),
+      );
+      return;
+    case OP.prolongSmooth:
+      prolongSmooth(
+        ctx,
+        t,
+        nx,
+        ny,
+        start,
+        end,
+        arr[a[k + 2]!]!,
+        arr[a[k + 3]!]!,
+        arr[a[k + 4]!]!,
+        arr[a[k + 5]!]!,
+        f64(arr, a[k + 6]!),
+        f64(arr, a[k + 7]!),
+        f64(arr, a[k + 8]!),
+        f64(arr, a[k + 9]!),
+        f[SCALARS.args]!,
+      );
+      return;
+    case OP.applyDot: {
+      const x = f64(arr, a[k + 5]!);
+      const y = f64(arr, a[k + 6]!);
+      f[out] = applyDotRows(nx, ny, start, end, arr[a[k + 2]!]!, arr[a[k + 3]!]!, arr[a[k + 4]!]!, x, y);
+      // optional extra dots over the block: (u, v) and (w, z); an id < 0 leaves them out
+      const u = a[k + 7]!;
+      const w = a[k + 9]!;
+      if (u >= 0) f[out + 1] = dotRange(f64(arr, u), f64(arr, a[k + 8]!), start * nx, end * nx);
+      if (w >= 0) f[out + 2] = dotRange(f64(arr, w), f64(arr, a[k + 10]!), start * nx, end * nx);
+      return;
+    }
+    case OP.directionApply: {
+      // p = z (copy) or p = z + beta p on the block; then, once every block is done, q = A p and p·q
+      const z = f64(arr, a[k + 5]!);
+      const p = f64(arr, a[k + 6]!);
+      const q = f64(arr, a[k + 7]!);
+      const lo = start * nx;
+      const hi = end * nx;
+      if (a[k + 8] === 1) for (let i = lo; i < hi; i++) p[i] = z[i]!;
+      else {
+        const beta = f[SCALARS.args]!;
+        for (let i = lo; i < hi; i++) p[i] = z[i]! + beta * p[i]!;
+      }
+      barrier(ctx.control, ctx.size);
+      f[out] = applyDotRows(nx, ny, start, end, arr[a[k + 2]!]!, arr[a[k + 3]!]!, arr[a[k + 4]!]!, p, q);
+      return;
+    }
+    case OP.pcgStep: {
+      // x += alpha p, r -= alpha q; r·r
+      const x = f64(arr, a[k + 2]!);
+      const p = f64(arr, a[k + 3]!);
+      const r = f64(arr, a[k + 4]!);
+      const q = f64(arr, a[k + 5]!);
+      const alpha = f[SCALARS.args]!;
+      let rr = 0;
+      for (let i = start * nx, hi = end * nx; i < hi; i++) {
+        x[i]! += alpha * p[i]!;
+        const ri = r[i]! - alpha * q[i]!;
+        r[i] = ri;
+        rr += ri * ri;
+      }
+      f[out] = rr;
+      return;
+    }
+    case OP.dots: {
+      const lo = start * nx;
+      const hi = end * nx;
+      f[out] = dotRange(f64(arr, a[k + 2]!), f64(arr, a[k + 3]!), lo, hi);
+      if (a[k + 4]! >= 0) f[out + 1] = dotRange(f64(arr, a[k + 4]!), f64(arr, a[k + 5]!), lo, hi);
+      return;
+    }
+    case OP.krylovResidual: {
+      // r2 = rhs - s w1; r2·r2 and rhs·rhs
+      const rhs = f64(arr, a[k + 2]!);
+      const w1 = f64(arr, a[k + 3]!);
+      const r2 = f64(arr, a[k + 4]!);
+      const s = f[SCALARS.args]!;
+      let rr2 = 0;
+      let rr = 0;
+      for (let i = start * nx, hi = end * nx; i < hi; i++) {
+        const v = rhs[i]! - s * w1[i]!;
+        r2[i] = v;
+        rr2 += v * v;
+        rr += rhs[i]! * rhs[i]!;
+      }
+      f[out] = rr2;
+      f[out + 1] = rr;
+      return;
+    }
+    case OP.combine: {
+      // v1 = a1 v1 + a2 v2 (v2 id < 0: v1 = a1 v1)
+      const v1 = f64(arr, a[k + 2]!);
+      const a1 = f[SCALARS.args]!;
+      const lo = start * nx;
+      const hi = end * nx;
+      if (a[k + 3]! < 0) for (let i = lo; i < hi; i++) v1[i] = a1 * v1[i]!;
+      else {
+        const v2 = f64(arr, a[k + 3]!);
+        const a2 = f[SCALARS.args + 1]!;
+        for (let i = lo; i < hi; i++) v1[i] = a1 * v1[i]! + a2 * v2[i]!;
+      }
+      return;
+    }
+    case OP.residual: {
+      f[out] = residualRows(nx, ny, start, end, arr[a[k + 2]!]!, arr[a[k + 3]!]!, arr[a[k + 4]!]!, f64(arr, a[k + 5]!), f64(arr, a[k + 6]!), f64(arr, a[k + 7]!));
+      return;
+    }
+    default:
+      throw new Error(`thread team: unknown kernel ${op}`);
+  }
+}
+
+function f64(arrays: TeamArray[], id: number): Float64Array {
+  return arrays[id] as Float64Array;
+}
+
+function dotRange(a: Float64Array, b: Float64Array, lo: number, hi: number): number {
+  let s = 0;
+  for (let i = lo; i < hi; i++) s += a[i]! * b[i]!;
+  return s;
+}
+
+/** out = A x on rows [start, end); returns x·out over them. The first and last grid rows are guarded. */
+function applyDotRows(
+  nx: number,
+  ny: number,
+  start: number,
+  end: number,
+  diag: TeamArray,
+  east: TeamArray,
+  south: TeamArray,
+  x: Float64Array,
+  out: Float64Array,
+): number {
+  const n = nx * ny;
+  let s = 0;
+  const lo = start * nx;
+  const hi = end * nx;
+  const interiorLo = Math.max(lo, nx);
+  const interiorHi = Math.min(hi, n - nx);
+  for (let p = lo; p < Math.min(hi, interiorLo); p++) {
+    const v = diag[p]! * x[p]! - neighbours(nx, n, east, south, x, p);
+    out[p] = v;
+    s += v * x[p]!;
+  }
+  for (let p = interiorLo; p < interiorHi; p++) {
+    const v = diag[p]! * x[p]! - east[p - 1]! * x[p - 1]! - east[p]! * x[p + 1]! - south[p - nx]! * x[p - nx]! - south[p]! * x[p + nx]!;
+    out[p] = v;
+    s += v * x[p]!;
+  }
+  for (let p = Math.max(interiorHi, interiorLo, lo); p < hi; p++) {
+    const v = diag[p]! * x[p]! - neighbours(nx, n, east, south, x, p);
+    out[p] = v;
+    s += v * x[p]!;
+  }
+  return s;
+}
+
+/** r = b - A x on rows [start, end); returns r·r over them. */
+function residualRows(
+  nx: number,
+  ny: number,
+  start: number,
+  end: number,
+  diag: TeamArray,
+  east: TeamArray,
+  south: TeamArray,
+  b: Float64Array,
+  x: Float64Array,
+  r: Float64Array,
+): number {
+  const n = nx * ny;
+  let s = 0;
+  const lo = start * nx;
+  const hi = end * nx;
+  const interiorLo = Math.max(lo, nx);
+  const interiorHi = Math.min(hi, n - nx);
+  for (let p = lo; p < Math.min(hi, interiorLo); p++) {
+    const v = b[p]! - diag[p]! * x[p]! + neighbours(nx, n, east, south, x, p);
+    r[p] = v;
+    s += v * v;
+  }
+  for (let p = interiorLo; p < interiorHi; p++) {
+    const v =
+      b[p]! - diag[p]! * x[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!;
+    r[p] = v;
+    s += v * v;
+  }
+  for (let p = Math.max(interiorHi, interiorLo, lo); p < hi; p++) {
+    const v = b[p]! - diag[p]! * x[p]! + neighbours(nx, n, east, south, x, p);
+    r[p] = v;
+    s += v * v;
+  }
+  return s;
+}
+
+/** Sum of the couplings times x at p, guarded at the grid's edges. */
+function neighbours(nx: number, n: number, east: TeamArray, south: TeamArray, x: Float64Array, p: number): number {
+  let v = 0;
+  if (p > 0) v += east[p - 1]! * x[p - 1]!;
+  if (p + 1 < n) v += east[p]! * x[p + 1]!;
+  if (p >= nx) v += south[p - nx]! * x[p - nx]!;
+  if (p + nx < n) v += south[p]! * x[p + nx]!;
+  return v;
+}
+
+/**
+ * The multigrid's pre-smoothing fused with the restriction (see smoothAndRestrict in ./multigrid.ts), on one
+ * block: forward Gauss–Seidel from a zero start, (D + L_block) x = b, where the block's first row sees its north
+ * neighbour at its value before the sweep, zero. The residual b - A x of a finished row (-U x within the block)
+ * goes into the coarse right-hand side one row behind; after a barrier (every block final) the block's last row
+ * adds its couplings to the next block and the first row its coupling to the previous one.
+ */
+function smoothRestrict(
+  ctx: TeamContext,
+  _t: number,
+  nx: number,
+  ny: number,
+  start: number,
+  end: number,
+  _diag: TeamArray,
+  east: TeamArray,
+  south: TeamArray,
+  invDiag: TeamArray,
+  b: Float64Array,
+  x: Float64Array,
+  coarseRhs: Float64Array,
+): void {
+  const inv = invDiag;
+  const cx = (nx + 1) >> 1;
+  if (start < end) {
+    coarseRhs.fill(0, (start >> 1) * cx, ((end + 1) >> 1) * cx);
+    const first = start * nx;
+    x[first] = b[first]! * inv[first]!;
+    for (let p = first + 1; p < first + nx; p++) x[p] = (b[p]! + east[p - 1]! * x[p - 1]!) * inv[p]!;
+    for (let i = start + 1; i < end; i++) {
+      const row = i * nx;
+      const rowEnd = row + nx;
+      for (let p = row; p < rowEnd; p++) {
+        x[p] = (b[p]! + east[p - 1]! * x[p - 1]! + south[p - nx]! * x[p - nx]!) * inv[p]!;
+      }
+      const prev = row - nx;
+      const crow = ((i - 1) >> 1) * cx;
+      for (let j = 0; j < nx; j++) {
+        const p = prev + j;
+        coarseRhs[crow + (j >> 1)]! += east[p]! * x[p + 1]! + south[p]! * x[p + nx]!;
+      }
+    }
+  }
+  barrier(ctx.control, ctx.size);
+  if (start >= end) return;
+  // the block's last row: east neighbours, and south neighbours in the next block (final now)
+  const last = (end - 1) * nx;
+  const crow = ((end - 1) >> 1) * cx;
+  if (end < ny) {
+    for (let j = 0; j < nx; j++) {
+      const p = last + j;
+      coarseRhs[crow + (j >> 1)]! += east[p]! * x[p + 1]! + south[p]! * x[p + nx]!;
+    }
+  } else {
+    for (let j = 0; j < nx - 1; j++) {
+      const p = last + j;
+      coarseRhs[crow + (j >> 1)]! += east[p]! * x[p + 1]!;
+    }
+  }
+  // the block's first row was swept with its north neighbour at zero: that coupling is part of its residual
+  if (start > 0) {
+    const first = start * nx;
+    const c0 = (start >> 1) * cx;
+    for (let j = 0; j < nx; j++) {
+      const p = first + j;
+      coarseRhs[c0 + (j >> 1)]! += south[p - nx]! * x[p - nx]!;
+    }
+  }
+}
+
+/**
+ * The multigrid's prolongation fused with post-smoothing (see prolongAndSmooth in ./multigrid.ts), on one block:
+ * x += P e row by row just ahead of a backward Gauss–Seidel sweep (D + U_block) over the block. The rows next to
+ * the block (owned by the neighbours) are read at their values before the sweep: each thread copies them, prolonged,
+ * into its halo rows before a barrier, and only then does any thread change x. With `scale` != 1 the block is
+ * multiplied by it after the sweep (the finest level's scaling, see AggregationMultigrid.apply).
+ */
+function prolongSmooth(
+  ctx: TeamContext,
+  t: number,
+  nx: number,
+  ny: number,
+  start: number,
+  end: number,
+  _diag: TeamArray,
+  east: TeamArray,
+  south: TeamArray,
+  invDiag: TeamArray,
+  e: Float64Array,
+  b: Float64Array,
+  x: Float64Array,
+  halo: Float64Array,
+  scale: number,
+): void {
+  const inv = invDiag;
+  const cx = (nx + 1) >> 1;
+  const northHalo = 2 * t * nx;
+  const southHalo = (2 * t + 1) * nx;
+  if (start < end) {
+    if (start > 0) prolongedRow(nx, cx, start - 1, e, x, halo, northHalo);
+    if (end < ny) prolongedRow(nx, cx, end, e, x, halo, southHalo);
+  }
+  barrier(ctx.control, ctx.size);
+  if (start >= end) return;
+  prolongRow(nx, cx, end - 1, e, x);
+  for (let i = end - 1; i >= start; i--) {
+    if (i > start) prolongRow(nx, cx, i - 1, e, x);
+    const row = i * nx;
+    if (i > start && i < end - 1) {
+      for (let p = row + nx - 1; p >= row; p--) {
+        x[p] =
+          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * inv[p]!;
+      }
+      continue;
+    }
+    // a row at the block's edge: its outside neighbour row from the halo (or none at the grid's edge)
+    const north = i > start ? x : start > 0 ? halo : null;
+    const northAt = i > start ? row - nx : northHalo;
+    const southRow = i < end - 1 ? x : end < ny ? halo : null;
+    const southAt = i < end - 1 ? row + nx : southHalo;
+    for (let j = nx - 1; j >= 0; j--) {
+      const p = row + j;
+      let s = b[p]!;
+      if (j > 0) s += east[p - 1]! * x[p - 1]!;
+      if (j < nx - 1) s += east[p]! * x[p + 1]!;
+      if (north) s += south[p - nx]! * north[northAt + j]!;
+      if (southRow) s += south[p]! * southRow[southAt + j]!;
+      x[p] = s * inv[p]!;
+    }
+  }
+  if (scale !== 1) for (let p = start * nx, hi = end * nx; p < hi; p++) x[p]! *= scale;
+}
+
+/** x += P e on row i: every cell gets its aggregate's correction. */
+function prolongRow(nx: number, cx: number, i: number, e: Float64Array, x: Float64Array): void {
+  const row = i * nx;
+  const crow = (i >> 1) * cx;
+  for (let j = 0; j < nx; j++) x[row + j]! += e[crow + (j >> 1)]!;
+}
+
+/** halo[at..] = row i of x + P e, x unchanged. */
+function prolongedRow(nx: number, cx: number, i: number, e: Float64Array, x: Float64Array, halo: Float64Array, at: number): void {
+  const row = i * nx;
+  const crow = (i >> 1) * cx;
+  for (let j = 0; j < nx; j++) halo[at + j] = x[row + j]! + e[crow + (j >> 1)]!;
+}
