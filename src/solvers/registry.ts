@@ -17,7 +17,7 @@ import type { Preconditioner, Solver, SolverConfig, SolverFactory, StencilOperat
  */
 function teamFor(op: StencilOperator, config: SolverConfig): { team: Team | null; note: string } {
   const team = config.team ?? null;
-  if (!team || team.size < 2) return { team: null, note: 'threads: 1' };
+  if (!team || (team.size < 2 && config.parallelMinCells === undefined)) return { team: null, note: 'threads: 1' };
   if (op.n < (config.parallelMinCells ?? PARALLEL_MIN_CELLS)) return { team: null, note: 'threads: 1 (grid too small to share)' };
   if (!inSharedMemory(op.diag) || !inSharedMemory(op.east) || !inSharedMemory(op.south)) {
     return { team: null, note: 'threads: 1 (the operator is not in shared memory)' };
@@ -43,6 +43,8 @@ export interface SolverEntry {
    * (src/memory.ts). Counted from the allocations in the solver's source; optional (a default is used).
    */
   bytesPerCell?: number;
+  /** True when the method shares its work with a thread team given in its config (SolverConfig.team). */
+  threads?: boolean;
 }
 
 /** Every solver method by the name users give in `solver.method`. */
@@ -93,6 +95,7 @@ export const solverRegistry: Record<string, SolverEntry> = {
       return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, notes, team);
     },
     description: 'conjugate gradient preconditioned by aggregation multigrid (K-cycle); fast on large grids',
+    threads: true,
     bytesPerCell: 128, // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands and K-cycle vectors)
   },
 };
@@ -107,6 +110,11 @@ export const solverRegistry: Record<string, SolverEntry> = {
  */
 export function chooseAutoMethod(_op: StencilOperator): string {
   return 'pcg-multigrid';
+}
+
+/** True when `method` (a registered name, not `auto`) shares its work with a thread team. */
+export function methodUsesThreads(method: string): boolean {
+  return Object.hasOwn(solverRegistry, method) && solverRegistry[method]!.threads === true;
 }
 
 /** Used for the memory budget of a method whose entry gives no estimate. */

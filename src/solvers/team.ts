@@ -77,7 +77,7 @@ export class Team {
 
   /** Starts `size - 1` helper threads and waits until they run. */
   constructor(size: number) {
-    if (!Number.isInteger(size) || size < 2) throw new PiezomapError('internal', `a thread team needs at least 2 threads, got ${size}`);
+    if (!Number.isInteger(size) || size < 1) throw new PiezomapError('internal', `a thread team needs at least 1 thread, got ${size}`);
     this.size = size;
     this.control = new Int32Array(new SharedArrayBuffer(4 * CONTROL.length));
     this.scalars = new Float64Array(new SharedArrayBuffer(8 * (SCALARS.partials + size * PARTIALS_PER_THREAD)));
