@@ -57,9 +57,12 @@ export class InlineSession implements SolverSession {
     operator: StencilOperator,
     private readonly choice: SolverChoice,
   ) {
+    const t0 = now();
     this.team = startTeam(operator, choice);
     this.operator = this.team ? sharedOperator(operator) : operator;
-    ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(this.operator, choice, this.team));
+    ({ solver: this.solver } = setUpSolver(this.operator, choice, this.team));
+    // the helper threads' start counts as set-up
+    this.setupSeconds = now() - t0;
   }
 
   /** Threads the session's solver shares its work with (1 without a team). */

@@ -1,7 +1,7 @@
 import { BandedCholesky } from './banded.js';
 import { applyDot, dot } from './kernels.js';
 import { PARALLEL_MIN_CELLS, sharedAlloc, type Team } from './team.js';
-import { OP } from './teamKernels.js';
+import { fineLevelRows, type FineRows, OP, type TeamArray } from './teamKernels.js';
 import type { StencilOperator, VariablePreconditioner } from './types.js';
 
 /** Coarsening stops once a level has at most this many cells; that level is solved directly. */
@@ -169,6 +169,7 @@ function coarseLevel(
  */
 function finestLevels(
   alloc: Alloc,
+  team: Team | null,
   op: StencilOperator,
   scale: number,
   precision: CoefficientArray,
@@ -182,36 +183,17 @@ function finestLevels(
   const cy = (ny + 1) >> 1;
   const cn = cx * cy;
   const build = n > COARSEST_CELLS && !(nx === 1 && ny === 1);
-  const ce = new Float64Array(build ? cn : 0);
-  const cs = new Float64Array(build ? cn : 0);
-  const cExcess = new Float64Array(build ? cn : 0);
-  const cu = new Uint8Array(build ? cn : 0);
-  for (let i = 0; i < ny; i++) {
-    const row = i * nx;
-    const crow = (i >> 1) * cx;
-    for (let j = 0; j < nx; j++) {
-      const p = row + j;
-      // couplings are zero on identity rows, so only an unknown row's diagonal is scaled
-      const d = unknown[p] ? diag[p]! * scale : diag[p]!;
-      const e = east[p]! * scale;
-      const s = south[p]! * scale;
-      d32[p] = d;
-      e32[p] = e;
-      s32[p] = s;
-      inv[p] = 1 / d;
-      if (!build) continue;
-      const c = crow + (j >> 1);
-      if (unknown[p]) {
-        let coupled = e + s;
-        if (j > 0) coupled += east[p - 1]! * scale;
-        if (i > 0) coupled += south[p - nx]! * scale;
-        cExcess[c]! += Math.max(0, d - coupled);
-        cu[c] = 1;
-      }
-      if (j & 1) ce[c]! += e;
-      if (i & 1) cs[c]! += s;
-    }
-  }
+  // shared with a team, whose threads fill them
+  const ce = alloc.f64(build ? cn : 0);
+  const cs = alloc.f64(build ? cn : 0);
+  const cExcess = alloc.f64(build ? cn : 0);
+  const cu = team ? sharedAlloc.u8(build ? cn : 0) : new Uint8Array(build ? cn : 0);
+  const rows: FineRows = { nx, ny, diag, east, south, unknown, d32, e32, s32, inv, ce, cs, cExcess, cu };
+  if (team) {
+    // each thread its block of rows: a coarse row gets its sums from one block only, in the same order as here
+    const id = (a: TeamArray | Uint8Array) => team.id(a);
+    team.run(OP.fineLevel, [nx, ny, id(diag), id(east), id(south), id(unknown), id(d32), id(e32), id(s32), id(inv), build ? id(ce) : -1, build ? id(cs) : -1, build ? id(cExcess) : -1, build ? id(cu) : -1], [scale]);
+  } else fineLevelRows(rows, scale, build, 0, ny);
   const empty = new Float64Array(0);
   const fine: Level = {
     nx,
@@ -265,7 +247,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
     this.doublePrecision = precision === Float64Array;
     this.team = team;
     const alloc = team ? sharedAlloc : ordinaryAlloc;
-    const first = finestLevels(alloc, op, scale, precision);
+    const first = finestLevels(alloc, team, op, scale, precision);
     const levels: Level[] = [first.fine];
     if (first.coarse) {
       levels.push(first.coarse.level);

@@ -3,11 +3,13 @@ import { AggregationMultigrid } from './multigrid.js';
 import { PcgSolver } from './pcg.js';
 import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
 import { StationarySolver } from './stationary.js';
-import { warmUpKernels } from './warmup.js';
+import { warmUpKernels, warmUpTeam } from './warmup.js';
 import { inSharedMemory, PARALLEL_MIN_CELLS, type Team } from './team.js';
 
 /** Grids with more cells than this get a kernel warm-up before the multigrid setup (see warmup.ts). */
 const WARM_UP_ABOVE = 100_000;
+/** The team's warm-up shares the warm-up grid's two finest levels (160x112 and 80x56), enough to compile every kernel. */
+const TEAM_WARM_UP_MIN_CELLS = 4096;
 import type { Preconditioner, Solver, SolverConfig, SolverFactory, StencilOperator } from './types.js';
 
 /**
@@ -19,7 +21,7 @@ function teamFor(op: StencilOperator, config: SolverConfig): { team: Team | null
   const team = config.team ?? null;
   if (!team || (team.size < 2 && config.parallelMinCells === undefined)) return { team: null, note: 'threads: 1' };
   if (op.n < (config.parallelMinCells ?? PARALLEL_MIN_CELLS)) return { team: null, note: 'threads: 1 (grid too small to share)' };
-  if (!inSharedMemory(op.diag) || !inSharedMemory(op.east) || !inSharedMemory(op.south)) {
+  if (!inSharedMemory(op.diag) || !inSharedMemory(op.east) || !inSharedMemory(op.south) || !inSharedMemory(op.unknown)) {
     return { team: null, note: 'threads: 1 (the operator is not in shared memory)' };
   }
   team.resetArrays();
@@ -90,6 +92,10 @@ export const solverRegistry: Record<string, SolverEntry> = {
       const t0 = performance.now();
       if (op.n > WARM_UP_ABOVE) warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
       const { team, note } = teamFor(op, config);
+      if (team && op.n > WARM_UP_ABOVE) {
+        warmUpTeam(team, (small) => solverRegistry['pcg-multigrid']!.factory(small, { team, parallelMinCells: TEAM_WARM_UP_MIN_CELLS }));
+        team.resetArrays();
+      }
       const mg = new AggregationMultigrid(op, team, config.parallelMinCells);
       const notes = [`multigrid ${mg.describe()}`, team ? `${note}; levels per thread count: ${mg.threadsPerLevel().join(', ')}` : note];
       return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, notes, team);

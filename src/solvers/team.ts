@@ -55,6 +55,7 @@ export function inSharedMemory(a: ArrayBufferView): boolean {
 export const sharedAlloc = {
   f64: (n: number): Float64Array => new Float64Array(new SharedArrayBuffer(8 * n)),
   f32: (n: number): Float32Array => new Float32Array(new SharedArrayBuffer(4 * n)),
+  u8: (n: number): Uint8Array => new Uint8Array(new SharedArrayBuffer(n)),
 };
 
 /** How long thread 0 waits for the helpers to start before it gives up. */
@@ -74,6 +75,8 @@ export class Team {
   private closed = false;
   /** Kernels run since the team started (for the statistics). */
   kernels = 0;
+  /** Set once the kernels have been compiled on a small grid in every thread (./warmup.ts). */
+  warmedUp = false;
 
   /** Starts `size - 1` helper threads and waits until they run. */
   constructor(size: number) {

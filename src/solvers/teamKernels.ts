@@ -11,7 +11,7 @@
  */
 
 /** Typed arrays a kernel may name: every one lives in shared memory. */
-export type TeamArray = Float64Array | Float32Array;
+export type TeamArray = Float64Array | Float32Array | Uint8Array;
 
 /** Int32 slots of the control block. */
 export const CONTROL = {
@@ -54,6 +54,7 @@ export const OP = {
   krylovResidual: 9,
   combine: 10,
   residual: 11,
+  fineLevel: 12,
 } as const;
 
 /**
@@ -226,8 +227,84 @@ export function runKernel(ctx: TeamContext, op: number, t: number): void {
       f[out] = residualRows(nx, ny, start, end, arr[a[k + 2]!]!, arr[a[k + 3]!]!, arr[a[k + 4]!]!, f64(arr, a[k + 5]!), f64(arr, a[k + 6]!), f64(arr, a[k + 7]!));
       return;
     }
+    case OP.fineLevel: {
+      const build = a[k + 10]! >= 0;
+      const none = new Float64Array(0);
+      const rows: FineRows = {
+        nx,
+        ny,
+        diag: f64(arr, a[k + 2]!),
+        east: f64(arr, a[k + 3]!),
+        south: f64(arr, a[k + 4]!),
+        unknown: arr[a[k + 5]!] as Uint8Array,
+        d32: arr[a[k + 6]!]!,
+        e32: arr[a[k + 7]!]!,
+        s32: arr[a[k + 8]!]!,
+        inv: arr[a[k + 9]!]!,
+        ce: build ? f64(arr, a[k + 10]!) : none,
+        cs: build ? f64(arr, a[k + 11]!) : none,
+        cExcess: build ? f64(arr, a[k + 12]!) : none,
+        cu: build ? (arr[a[k + 13]!] as Uint8Array) : new Uint8Array(0),
+      };
+      fineLevelRows(rows, f[SCALARS.args]!, build, start, end);
+      return;
+    }
     default:
       throw new Error(`thread team: unknown kernel ${op}`);
+  }
+}
+
+/** The arrays of the finest level's pass (see finestLevels in ./multigrid.ts): the operator in, the level 0 and the sums of level 1 out. */
+export interface FineRows {
+  nx: number;
+  ny: number;
+  diag: Float64Array;
+  east: Float64Array;
+  south: Float64Array;
+  unknown: Uint8Array;
+  d32: TeamArray;
+  e32: TeamArray;
+  s32: TeamArray;
+  inv: TeamArray;
+  ce: Float64Array;
+  cs: Float64Array;
+  cExcess: Float64Array;
+  cu: Uint8Array;
+}
+
+/**
+ * Rows [start, end) of the finest level's pass: the bands times `scale` and the inverse diagonal in the levels'
+ * precision, and (with `build`) the first coarse level's couplings and excess summed per 2x2 aggregate.
+ * `start` is even, so the aggregates of these rows get all their sums here.
+ */
+export function fineLevelRows(a: FineRows, scale: number, build: boolean, start: number, end: number): void {
+  const { nx, diag, east, south, unknown, d32, e32, s32, inv, ce, cs, cExcess, cu } = a;
+  const cx = (nx + 1) >> 1;
+  for (let i = start; i < end; i++) {
+    const row = i * nx;
+    const crow = (i >> 1) * cx;
+    for (let j = 0; j < nx; j++) {
+      const p = row + j;
+      // couplings are zero on identity rows, so only an unknown row's diagonal is scaled
+      const d = unknown[p] ? diag[p]! * scale : diag[p]!;
+      const e = east[p]! * scale;
+      const s = south[p]! * scale;
+      d32[p] = d;
+      e32[p] = e;
+      s32[p] = s;
+      inv[p] = 1 / d;
+      if (!build) continue;
+      const c = crow + (j >> 1);
+      if (unknown[p]) {
+        let coupled = e + s;
+        if (j > 0) coupled += east[p - 1]! * scale;
+        if (i > 0) coupled += south[p - nx]! * scale;
+        cExcess[c]! += Math.max(0, d - coupled);
+        cu[c] = 1;
+      }
+      if (j & 1) ce[c]! += e;
+      if (i & 1) cs[c]! += s;
+    }
   }
 }
 
