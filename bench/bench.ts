@@ -160,7 +160,14 @@ function runChild(
  * Set-up and solve seconds are the whole outer iteration's (set-ups included in solveSeconds after the first);
  * iterations are the inner iterations summed; notes give the outer iterations.
  */
-function runUnconfinedChild(size: number, method: string, tolerance: number, maxIterations: number, headsFile: string, threads: number): void {
+function runUnconfinedChild(
+  size: number,
+  method: string,
+  tolerance: number,
+  maxIterations: number,
+  headsFile: string,
+  threads: number,
+): void {
   const solverMethod = method.slice(0, -UNCONFINED_SUFFIX.length);
   let t = performance.now();
   const { model } = unconfinedBenchCase(size);
@@ -409,26 +416,27 @@ async function main(): Promise<void> {
     const refFile = join(scratch, `ref-${size}.f64`);
     const reference = spawnChild(size, 'pcg-multigrid', 1e-12, 3 * timeLimit, 1000, refFile);
     const refHeads = reference ? readHeads(refFile) : null;
-    for (const method of methods) for (const threads of threadCounts) {
-      process.stderr.write(`size ${size}: ${method}, ${threads} thread${threads > 1 ? 's' : ''}\n`);
-      const headsFile = join(scratch, `${method}-${size}.f64`);
-      const result = spawnChild(size, method, tolerance, timeLimit, maxIterations, headsFile, 'smooth', threads);
-      if (!result) continue;
-      const total = result.setupSeconds + result.solveSeconds;
-      const row: Row = {
-        ...result,
-        // The reference is the confined case's: no head comparison for the unconfined one.
-        maxRelativeHeadError:
-          refHeads && !method.endsWith(UNCONFINED_SUFFIX) ? maxRelativeDifference(readHeads(headsFile), refHeads) : null,
-        nsPerCell: (total / result.cells) * 1e9,
-        nsPerCellIteration: result.iterations > 0 ? (result.solveSeconds / result.iterations / result.cells) * 1e9 : null,
-      };
-      rmSync(headsFile, { force: true });
-      rows.push(row);
-      save();
-      const notes = result.notes.length ? ` (${result.notes.join('; ')})` : '';
-      process.stderr.write(`  ${result.stopReason} in ${result.iterations} iterations, ${total.toFixed(2)} s${notes}\n`);
-    }
+    for (const method of methods)
+      for (const threads of threadCounts) {
+        process.stderr.write(`size ${size}: ${method}, ${threads} thread${threads > 1 ? 's' : ''}\n`);
+        const headsFile = join(scratch, `${method}-${size}.f64`);
+        const result = spawnChild(size, method, tolerance, timeLimit, maxIterations, headsFile, 'smooth', threads);
+        if (!result) continue;
+        const total = result.setupSeconds + result.solveSeconds;
+        const row: Row = {
+          ...result,
+          // The reference is the confined case's: no head comparison for the unconfined one.
+          maxRelativeHeadError:
+            refHeads && !method.endsWith(UNCONFINED_SUFFIX) ? maxRelativeDifference(readHeads(headsFile), refHeads) : null,
+          nsPerCell: (total / result.cells) * 1e9,
+          nsPerCellIteration: result.iterations > 0 ? (result.solveSeconds / result.iterations / result.cells) * 1e9 : null,
+        };
+        rmSync(headsFile, { force: true });
+        rows.push(row);
+        save();
+        const notes = result.notes.length ? ` (${result.notes.join('; ')})` : '';
+        process.stderr.write(`  ${result.stopReason} in ${result.iterations} iterations, ${total.toFixed(2)} s${notes}\n`);
+      }
     rmSync(refFile, { force: true });
   }
   rmSync(scratch, { recursive: true, force: true });

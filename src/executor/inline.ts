@@ -9,7 +9,11 @@ import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, 
 const now = () => performance.now() / 1000;
 
 /** Set up a solver for `operator`: `auto` picks a method from the operator; returns the set-up time. */
-export function setUpSolver(operator: StencilOperator, choice: SolverChoice, team: Team | null = null): { solver: Solver; setupSeconds: number } {
+export function setUpSolver(
+  operator: StencilOperator,
+  choice: SolverChoice,
+  team: Team | null = null,
+): { solver: Solver; setupSeconds: number } {
   const method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method;
   const t0 = now();
   const config: SolverConfig = choice.relaxation === undefined ? {} : { relaxation: choice.relaxation };

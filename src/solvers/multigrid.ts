@@ -109,7 +109,12 @@ function makeLevel(alloc: Alloc, nx: number, ny: number, diag: Coefficients, eas
  * aggregate is strongly coupled inside and weakly outside. Only unknown children belong to an aggregate; an
  * aggregate without unknowns is an identity row.
  */
-function coarsen(alloc: Alloc, fine: Level, unknown: Uint8Array, excess: Float64Array): { level: Level; unknown: Uint8Array; excess: Float64Array } {
+function coarsen(
+  alloc: Alloc,
+  fine: Level,
+  unknown: Uint8Array,
+  excess: Float64Array,
+): { level: Level; unknown: Uint8Array; excess: Float64Array } {
   const { nx, ny, east, south } = fine;
   const cx = (nx + 1) >> 1;
   const cy = (ny + 1) >> 1;
@@ -192,7 +197,26 @@ function finestLevels(
   if (team) {
     // each thread its block of rows: a coarse row gets its sums from one block only, in the same order as here
     const id = (a: TeamArray | Uint8Array) => team.id(a);
-    team.run(OP.fineLevel, [nx, ny, id(diag), id(east), id(south), id(unknown), id(d32), id(e32), id(s32), id(inv), build ? id(ce) : -1, build ? id(cs) : -1, build ? id(cExcess) : -1, build ? id(cu) : -1], [scale]);
+    team.run(
+      OP.fineLevel,
+      [
+        nx,
+        ny,
+        id(diag),
+        id(east),
+        id(south),
+        id(unknown),
+        id(d32),
+        id(e32),
+        id(s32),
+        id(inv),
+        build ? id(ce) : -1,
+        build ? id(cs) : -1,
+        build ? id(cExcess) : -1,
+        build ? id(cu) : -1,
+      ],
+      [scale],
+    );
   } else fineLevelRows(rows, scale, build, 0, ny);
   const empty = new Float64Array(0);
   const fine: Level = {

@@ -51,7 +51,7 @@ export class PcgSolver implements Solver {
     // workspace's own (registering every caller's array would keep them all alive)
     shared.b.set(b);
     shared.x.set(x);
-    const stats = this.iterateShared(shared, shared.b, shared.x, options);
+    const stats = this.iterateShared(shared, options);
     x.set(shared.x);
     return stats;
   }
@@ -151,14 +151,15 @@ export class PcgSolver implements Solver {
   }
 
   /**
-   * The same iteration as `iterate`, every vector operation run by the team. The new direction p = z + beta p is
+   * The same iteration as `iterate` on the workspace's copies of b and x, every vector operation run by the team. The new direction p = z + beta p is
    * formed at the start of the next iteration, in the same kernel as q = A p (one fork–join instead of two).
    */
-  private iterateShared(ws: SharedWorkspace, b: Float64Array, x: Float64Array, options: SolveOptions): SolveStats {
+  private iterateShared(ws: SharedWorkspace, options: SolveOptions): SolveStats {
     const { op, r, z, monitor, preconditioner } = this;
     const { team, grid } = ws;
     const { nx, ny } = op;
     const flexible = preconditioner !== null && (preconditioner as Partial<VariablePreconditioner>).variable === true;
+    const x = ws.x;
     const iB = ws.bId;
     const iX = ws.xId;
     const none = -1;
@@ -264,7 +265,14 @@ interface SharedWorkspace {
   xId: number;
 }
 
-function shareWorkspace(team: Team, op: StencilOperator, r: Float64Array, z: Float64Array, p: Float64Array, q: Float64Array): SharedWorkspace {
+function shareWorkspace(
+  team: Team,
+  op: StencilOperator,
+  r: Float64Array,
+  z: Float64Array,
+  p: Float64Array,
+  q: Float64Array,
+): SharedWorkspace {
   const ids = {
     team,
     grid: [op.nx, op.ny, team.id(op.diag), team.id(op.east), team.id(op.south)],

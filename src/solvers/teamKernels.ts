@@ -224,7 +224,18 @@ export function runKernel(ctx: TeamContext, op: number, t: number): void {
       return;
     }
     case OP.residual: {
-      f[out] = residualRows(nx, ny, start, end, arr[a[k + 2]!]!, arr[a[k + 3]!]!, arr[a[k + 4]!]!, f64(arr, a[k + 5]!), f64(arr, a[k + 6]!), f64(arr, a[k + 7]!));
+      f[out] = residualRows(
+        nx,
+        ny,
+        start,
+        end,
+        arr[a[k + 2]!]!,
+        arr[a[k + 3]!]!,
+        arr[a[k + 4]!]!,
+        f64(arr, a[k + 5]!),
+        f64(arr, a[k + 6]!),
+        f64(arr, a[k + 7]!),
+      );
       return;
     }
     case OP.fineLevel: {
@@ -512,8 +523,7 @@ function prolongSmooth(
     const row = i * nx;
     if (i > start && i < end - 1) {
       for (let p = row + nx - 1; p >= row; p--) {
-        x[p] =
-          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * inv[p]!;
+        x[p] = (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * inv[p]!;
       }
       continue;
     }

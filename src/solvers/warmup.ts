@@ -26,7 +26,11 @@ export function warmUpTeam(team: Team, build: (op: StencilOperator) => Solver): 
   warmUpOn(sharedAlloc, build, 1);
 }
 
-function warmUpOn(alloc: { f64(n: number): Float64Array; u8(n: number): Uint8Array }, build: (op: StencilOperator) => Solver, rounds: number): void {
+function warmUpOn(
+  alloc: { f64(n: number): Float64Array; u8(n: number): Uint8Array },
+  build: (op: StencilOperator) => Solver,
+  rounds: number,
+): void {
   const nx = 160;
   const ny = 112;
   const n = nx * ny;
