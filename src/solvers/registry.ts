@@ -102,7 +102,9 @@ export const solverRegistry: Record<string, SolverEntry> = {
     },
     description: 'conjugate gradient preconditioned by aggregation multigrid (K-cycle); fast on large grids',
     threads: true,
-    bytesPerCell: 128, // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands and K-cycle vectors)
+    // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands
+    // and K-cycle vectors); with threads also the copies of b and x in shared memory (16)
+    bytesPerCell: 144,
   },
 };
 
