@@ -10,7 +10,7 @@
  * does not keep the process alive.
  */
 import { existsSync } from 'node:fs';
-import { availableParallelism } from 'node:os';
+import { availableParallelism, loadavg } from 'node:os';
 import { fileURLToPath } from 'node:url';
 import { MessageChannel, type MessagePort, Worker } from 'node:worker_threads';
 import { PiezomapError } from '../errors.js';
@@ -34,10 +34,21 @@ export const PARALLEL_MIN_CELLS = 32_768;
 /** A thread-count setting: a whole number >= 1, or 'auto'. */
 export type ThreadSetting = number | 'auto';
 
-/** The number of threads a solve on `cells` cells uses for a setting. */
-export function resolveThreads(setting: ThreadSetting | undefined, cells: number): number {
+/**
+ * The number of threads a solve on `cells` cells uses for a setting. `auto`: one below AUTO_THREADS_MIN_CELLS; above,
+ * the cores the machine offers (at most AUTO_THREADS_MAX) less those already busy with other work, going by the
+ * one-minute load average less this process's own running thread (as `make -l` does). The team's threads meet at a
+ * barrier hundreds of times a second, so a thread that has to wait for a core holds up all the others: on a machine
+ * whose cores are all taken, more threads make a solve slower, not faster (bench/README.md, "Threads").
+ */
+export function resolveThreads(setting: ThreadSetting | undefined, cells: number, load = loadavg()[0]!): number {
   if (setting === undefined) return 1;
-  if (setting === 'auto') return cells < AUTO_THREADS_MIN_CELLS ? 1 : Math.max(1, Math.min(availableParallelism(), AUTO_THREADS_MAX));
+  if (setting === 'auto') {
+    if (cells < AUTO_THREADS_MIN_CELLS) return 1;
+    const cores = Math.min(availableParallelism(), AUTO_THREADS_MAX);
+    const busy = Math.max(0, load - 1);
+    return Math.max(1, Math.min(cores, Math.round(cores - busy)));
+  }
   return Math.max(1, Math.floor(setting));
 }
 

@@ -8,6 +8,7 @@
  */
 import { afterAll, describe, expect, it } from 'vitest';
 import { readdirSync } from 'node:fs';
+import { availableParallelism } from 'node:os';
 import { BandedCholesky } from '../../src/solvers/banded.js';
 import { GridOperator } from '../../src/solvers/operator.js';
 import { createSolver } from '../../dist/src/solvers/registry.js';
@@ -158,11 +159,15 @@ describe('pcg-multigrid with a thread team', () => {
 });
 
 describe('thread count', () => {
-  it('auto uses one thread below the break-even grid size and more above it on a machine with several cores', () => {
-    expect(resolveThreads('auto', AUTO_THREADS_MIN_CELLS - 1)).toBe(1);
-    expect(resolveThreads('auto', AUTO_THREADS_MIN_CELLS)).toBeGreaterThanOrEqual(1);
-    expect(resolveThreads(undefined, 10_000_000)).toBe(1);
-    expect(resolveThreads(3, 10)).toBe(3);
+  it('auto uses one thread below the break-even grid size, and the idle cores (up to 8) above it', () => {
+    const cores = Math.min(availableParallelism(), 8);
+    expect(resolveThreads('auto', AUTO_THREADS_MIN_CELLS - 1, 0)).toBe(1);
+    // a quiet machine: only this process's own thread is running
+    expect(resolveThreads('auto', AUTO_THREADS_MIN_CELLS, 1)).toBe(cores);
+    // every core already busy with other work: one thread
+    expect(resolveThreads('auto', AUTO_THREADS_MIN_CELLS, availableParallelism() + 1)).toBe(1);
+    expect(resolveThreads(undefined, 10_000_000, 0)).toBe(1);
+    expect(resolveThreads(3, 10, 50)).toBe(3);
   });
 });
 
