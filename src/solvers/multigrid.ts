@@ -309,7 +309,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
     }
     if (this.shares[0]) {
       // the scaling is done by each thread on its block right after its last sweep
-      this.cycle(0, r, z, this.scale);
+      this.cycle(0, r, z, this.scale, -1);
       return;
     }
     this.cycle(0, r, z);
@@ -318,8 +318,24 @@ export class AggregationMultigrid implements VariablePreconditioner {
     if (scale !== 1) for (let p = 0; p < z.length; p++) z[p]! *= scale;
   }
 
-  /** x ~= A_l^{-1} b on level l (x is overwritten). */
-  private cycle(l: number, b: Float64Array, x: Float64Array, scale = 1): void {
+  /**
+   * z = M^{-1} r, and with a team on the finest level also the sums z·r and z·q, left in the team's partial sums 0
+   * and 1 (`team.sum(k)`). Returns false, computing no sums, where the finest level is not shared.
+   */
+  applyWithDots(r: Float64Array, z: Float64Array, q: Float64Array): boolean {
+    if (!this.shares[0] || !this.team || this.levels.length === 1) {
+      this.apply(r, z);
+      return false;
+    }
+    this.cycle(0, r, z, this.scale, this.team.id(q));
+    return true;
+  }
+
+  /**
+   * x ~= A_l^{-1} b on level l (x is overwritten). On a shared level, the last sweep scales x by `scale` and, with
+   * `dotWith` >= 0 (a team id), leaves x·b and x·(that array) in the team's partial sums.
+   */
+  private cycle(l: number, b: Float64Array, x: Float64Array, scale = 1, dotWith = -1): void {
     const levels = this.levels;
     const L = levels[l]!;
     if (l === levels.length - 1) {
@@ -334,7 +350,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
       team.run(OP.smoothRestrict, [...grid, team.id(b), team.id(x), team.id(C.rhs)]);
       if (l + 1 === levels.length - 1) this.direct.solve(C.rhs, C.v1);
       else this.krylovCorrection(l + 1);
-      team.run(OP.prolongSmooth, [...grid, team.id(C.v1), team.id(b), team.id(x), share.halo], [scale]);
+      team.run(OP.prolongSmooth, [...grid, team.id(C.v1), team.id(b), team.id(x), share.halo, dotWith], [scale]);
       return;
     }
     smoothAndRestrict(L, b, x, C.rhs);

@@ -41,6 +41,9 @@ export class PcgSolver implements Solver {
     this.p = f64(n);
     this.q = f64(n);
     this.shared = team ? shareWorkspace(team, op, this.r, this.z, this.p, this.q) : null;
+    if (this.shared && preconditioner && typeof (preconditioner as Partial<DotFusingPreconditioner>).applyWithDots === 'function') {
+      this.shared.fusedDots = preconditioner as unknown as DotFusingPreconditioner;
+    }
   }
 
   solve(b: Float64Array, x: Float64Array, options: SolveOptions): SolveStats {
@@ -225,9 +228,12 @@ export class PcgSolver implements Solver {
       }
       if (stop !== null) break;
       if (preconditioner) {
-        preconditioner.apply(r, z);
+        // a multigrid with a shared finest level computes z·r and z·q in its last kernel
+        let fused = false;
+        if (ws.fusedDots) fused = ws.fusedDots.applyWithDots(r, z, this.q);
+        else preconditioner.apply(r, z);
         if (flexible) {
-          team.run(OP.dots, [nx, ny, ws.z, ws.r, ws.z, ws.q]);
+          if (!fused) team.run(OP.dots, [nx, ny, ws.z, ws.r, ws.z, ws.q]);
           const zr = team.sum(0);
           const zq = team.sum(1);
           beta = (-alpha * zq) / rz;
@@ -263,6 +269,13 @@ interface SharedWorkspace {
   x: Float64Array;
   bId: number;
   xId: number;
+  /** The preconditioner when it can leave z·r and z·q in the team's sums as it applies itself (see iterateShared). */
+  fusedDots: DotFusingPreconditioner | null;
+}
+
+/** A preconditioner run by the same team that can compute z·r and z·q in its last kernel (AggregationMultigrid). */
+interface DotFusingPreconditioner {
+  applyWithDots(r: Float64Array, z: Float64Array, q: Float64Array): boolean;
 }
 
 function shareWorkspace(
@@ -283,5 +296,5 @@ function shareWorkspace(
   };
   const b = sharedAlloc.f64(op.n);
   const x = sharedAlloc.f64(op.n);
-  return { ...ids, b, x, bId: team.id(b), xId: team.id(x) };
+  return { ...ids, b, x, bId: team.id(b), xId: team.id(x), fusedDots: null };
 }

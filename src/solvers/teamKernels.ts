@@ -139,6 +139,13 @@ export function runKernel(ctx: TeamContext, op: number, t: number): void {
         f64(arr, a[k + 9]!),
         f[SCALARS.args]!,
       );
+      // optionally, on the finest level, the flexible CG's dots x·b and x·q over the block (z·r and z·q): one
+      // fork–join and one pass less per iteration
+      if (a[k + 10]! >= 0) {
+        const x = f64(arr, a[k + 8]!);
+        f[out] = dotRange(x, f64(arr, a[k + 7]!), start * nx, end * nx);
+        f[out + 1] = dotRange(x, f64(arr, a[k + 10]!), start * nx, end * nx);
+      }
       return;
     case OP.applyDot: {
       const x = f64(arr, a[k + 5]!);
