@@ -413,30 +413,19 @@ export class AggregationMultigrid implements VariablePreconditioner {
     const [iRhs, iV1, iW1, iR2, iV2, iW2] = [team.id(rhs), team.id(v1), team.id(C.w1), team.id(C.r2), team.id(v2), team.id(C.w2)];
     const none = -1;
     this.cycle(c, rhs, v1);
-    team.run(OP.applyDot, [nx, ny, share.diag, share.east, share.south, iV1, iW1, iV1, iRhs, none, none]);
+    // w1 = A v1 and r2 = rhs - step1 w1 in one kernel (the threads add up the sums between the two themselves)
+    team.run(OP.krylovFirst, [nx, ny, share.diag, share.east, share.south, iV1, iW1, iRhs, iR2]);
     const rho1 = team.sum(0);
-    const alpha1 = team.sum(1);
-    const step1 = alpha1 / rho1;
-    team.run(OP.krylovResidual, [nx, ny, iRhs, iW1, iR2], [step1]);
-    const rr2 = team.sum(0);
-    const rr = team.sum(1);
+    const step1 = team.sum(1) / rho1;
+    const rr2 = team.sum(2);
+    const rr = team.sum(3);
     if (!(rho1 > 0) || rr2 <= K_CYCLE_THRESHOLD * K_CYCLE_THRESHOLD * rr) {
       team.run(OP.combine, [nx, ny, iV1, none], [rho1 > 0 ? step1 : 0]);
       return;
     }
     this.cycle(c, C.r2, v2);
-    team.run(OP.applyDot, [nx, ny, share.diag, share.east, share.south, iV2, iW2, iV2, iW1, iV2, iR2]);
-    const beta = team.sum(0);
-    const gamma = team.sum(1);
-    const alpha2 = team.sum(2);
-    const rho2 = beta - (gamma * gamma) / rho1;
-    if (!(rho2 > 0)) {
-      team.run(OP.combine, [nx, ny, iV1, none], [step1]);
-      return;
-    }
-    const a1 = step1 - (gamma * alpha2) / (rho1 * rho2);
-    const a2 = alpha2 / rho2;
-    team.run(OP.combine, [nx, ny, iV1, iV2], [a1, a2]);
+    // w2 = A v2 and the combination of v1 and v2 in one kernel
+    team.run(OP.krylovSecond, [nx, ny, share.diag, share.east, share.south, iV2, iW2, iW1, iR2, iV1], [rho1, step1]);
   }
 }
 

@@ -47,14 +47,14 @@ export const OP = {
   stop: 2,
   smoothRestrict: 3,
   prolongSmooth: 4,
-  applyDot: 5,
   directionApply: 6,
   pcgStep: 7,
   dots: 8,
-  krylovResidual: 9,
   combine: 10,
   residual: 11,
   fineLevel: 12,
+  krylovFirst: 13,
+  krylovSecond: 14,
 } as const;
 
 /**
@@ -147,17 +147,6 @@ export function runKernel(ctx: TeamContext, op: number, t: number): void {
         f[out + 1] = dotRange(x, f64(arr, a[k + 10]!), start * nx, end * nx);
       }
       return;
-    case OP.applyDot: {
-      const x = f64(arr, a[k + 5]!);
-      const y = f64(arr, a[k + 6]!);
-      f[out] = applyDotRows(nx, ny, start, end, arr[a[k + 2]!]!, arr[a[k + 3]!]!, arr[a[k + 4]!]!, x, y);
-      // optional extra dots over the block: (u, v) and (w, z); an id < 0 leaves them out
-      const u = a[k + 7]!;
-      const w = a[k + 9]!;
-      if (u >= 0) f[out + 1] = dotRange(f64(arr, u), f64(arr, a[k + 8]!), start * nx, end * nx);
-      if (w >= 0) f[out + 2] = dotRange(f64(arr, w), f64(arr, a[k + 10]!), start * nx, end * nx);
-      return;
-    }
     case OP.directionApply: {
       // p = z (copy) or p = z + beta p on the block; then, once every block is done, q = A p and p·q
       const z = f64(arr, a[k + 5]!);
@@ -198,24 +187,6 @@ export function runKernel(ctx: TeamContext, op: number, t: number): void {
       if (a[k + 4]! >= 0) f[out + 1] = dotRange(f64(arr, a[k + 4]!), f64(arr, a[k + 5]!), lo, hi);
       return;
     }
-    case OP.krylovResidual: {
-      // r2 = rhs - s w1; r2·r2 and rhs·rhs
-      const rhs = f64(arr, a[k + 2]!);
-      const w1 = f64(arr, a[k + 3]!);
-      const r2 = f64(arr, a[k + 4]!);
-      const s = f[SCALARS.args]!;
-      let rr2 = 0;
-      let rr = 0;
-      for (let i = start * nx, hi = end * nx; i < hi; i++) {
-        const v = rhs[i]! - s * w1[i]!;
-        r2[i] = v;
-        rr2 += v * v;
-        rr += rhs[i]! * rhs[i]!;
-      }
-      f[out] = rr2;
-      f[out + 1] = rr;
-      return;
-    }
     case OP.combine: {
       // v1 = a1 v1 + a2 v2 (v2 id < 0: v1 = a1 v1)
       const v1 = f64(arr, a[k + 2]!);
@@ -243,6 +214,62 @@ export function runKernel(ctx: TeamContext, op: number, t: number): void {
         f64(arr, a[k + 6]!),
         f64(arr, a[k + 7]!),
       );
+      return;
+    }
+    case OP.krylovFirst: {
+      // the K-cycle's first step (see krylovCorrection in ./multigrid.ts): w1 = A v1, v1·w1 and v1·rhs; then, from
+      // the sums every thread adds up alike, r2 = rhs - (v1·rhs / v1·w1) w1 with r2·r2 and rhs·rhs (partials 2, 3)
+      const [diag, east, south] = [arr[a[k + 2]!]!, arr[a[k + 3]!]!, arr[a[k + 4]!]!];
+      const v1 = f64(arr, a[k + 5]!);
+      const w1 = f64(arr, a[k + 6]!);
+      const rhs = f64(arr, a[k + 7]!);
+      const r2 = f64(arr, a[k + 8]!);
+      const lo = start * nx;
+      const hi = end * nx;
+      f[out] = applyDotRows(nx, ny, start, end, diag, east, south, v1, w1);
+      f[out + 1] = dotRange(v1, rhs, lo, hi);
+      barrier(ctx.control, ctx.size);
+      const rho1 = allSum(ctx, 0);
+      const step1 = allSum(ctx, 1) / rho1;
+      let rr2 = 0;
+      let rr = 0;
+      for (let i = lo; i < hi; i++) {
+        const v = rhs[i]! - step1 * w1[i]!;
+        r2[i] = v;
+        rr2 += v * v;
+        rr += rhs[i]! * rhs[i]!;
+      }
+      f[out + 2] = rr2;
+      f[out + 3] = rr;
+      return;
+    }
+    case OP.krylovSecond: {
+      // the K-cycle's second step: w2 = A v2 with v2·w2, v2·w1, v2·r2; then, from the sums every thread adds up
+      // alike, v1 = a1 v1 + a2 v2 (or step1 v1 when the second direction brings no curvature)
+      const [diag, east, south] = [arr[a[k + 2]!]!, arr[a[k + 3]!]!, arr[a[k + 4]!]!];
+      const v2 = f64(arr, a[k + 5]!);
+      const w2 = f64(arr, a[k + 6]!);
+      const w1 = f64(arr, a[k + 7]!);
+      const r2 = f64(arr, a[k + 8]!);
+      const v1 = f64(arr, a[k + 9]!);
+      const rho1 = f[SCALARS.args]!;
+      const step1 = f[SCALARS.args + 1]!;
+      const lo = start * nx;
+      const hi = end * nx;
+      f[out] = applyDotRows(nx, ny, start, end, diag, east, south, v2, w2);
+      f[out + 1] = dotRange(v2, w1, lo, hi);
+      f[out + 2] = dotRange(v2, r2, lo, hi);
+      barrier(ctx.control, ctx.size);
+      const gamma = allSum(ctx, 1);
+      const alpha2 = allSum(ctx, 2);
+      const rho2 = allSum(ctx, 0) - (gamma * gamma) / rho1;
+      if (!(rho2 > 0)) {
+        for (let i = lo; i < hi; i++) v1[i] = step1 * v1[i]!;
+        return;
+      }
+      const a1 = step1 - (gamma * alpha2) / (rho1 * rho2);
+      const a2 = alpha2 / rho2;
+      for (let i = lo; i < hi; i++) v1[i] = a1 * v1[i]! + a2 * v2[i]!;
       return;
     }
     case OP.fineLevel: {
@@ -324,6 +351,13 @@ export function fineLevelRows(a: FineRows, scale: number, build: boolean, start:
       if (i & 1) cs[c]! += s;
     }
   }
+}
+
+/** Partial sum k of every thread added up in thread order: the same number in every thread (and in Team.sum). */
+function allSum(ctx: TeamContext, k: number): number {
+  let s = 0;
+  for (let t = 0; t < ctx.size; t++) s += ctx.scalars[SCALARS.partials + t * PARTIALS_PER_THREAD + k]!;
+  return s;
 }
 
 function f64(arrays: TeamArray[], id: number): Float64Array {
