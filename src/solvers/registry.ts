@@ -90,11 +90,14 @@ export const solverRegistry: Record<string, SolverEntry> = {
   'pcg-multigrid': {
     factory: (op, config) => {
       const t0 = performance.now();
-      if (op.n > WARM_UP_ABOVE) warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
       const { team, note } = teamFor(op, config);
-      if (team && op.n > WARM_UP_ABOVE) {
-        warmUpTeam(team, (small) => solverRegistry['pcg-multigrid']!.factory(small, { team, parallelMinCells: TEAM_WARM_UP_MIN_CELLS }));
-        team.resetArrays();
+      if (op.n > WARM_UP_ABOVE) {
+        // with a team every pass over a big level runs in the team's kernels: those are the ones to compile (the
+        // warm-up grid's small levels compile thread 0's own code on the way)
+        if (team) {
+          warmUpTeam(team, (small) => solverRegistry['pcg-multigrid']!.factory(small, { team, parallelMinCells: TEAM_WARM_UP_MIN_CELLS }));
+          team.resetArrays();
+        } else warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
       }
       const mg = new AggregationMultigrid(op, team, config.parallelMinCells);
       const notes = [`multigrid ${mg.describe()}`, team ? `${note}; levels per thread count: ${mg.threadsPerLevel().join(', ')}` : note];
