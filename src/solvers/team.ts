@@ -21,10 +21,11 @@ const WORKER_URL = new URL('./teamWorker.js', import.meta.url);
 /** Most threads `auto` uses: beyond this the stencil kernels are limited by memory bandwidth on common machines. */
 export const AUTO_THREADS_MAX = 8;
 /**
- * Fewest cells of a grid for which `auto` uses more than one thread. Measured on the benchmark case (bench/README.md):
- * below about 512^2 cells the barrier and start-up costs (a helper thread starts in about 40 ms) eat the gain.
+ * Fewest cells of a grid for which `auto` uses more than one thread. Measured on the benchmark case (bench/README.md,
+ * "Threads"): at 512^2 two threads spent 45 % more CPU time than one (helper start, the team's warm-up, barriers) for
+ * no gain; from 1024^2 on they pay.
  */
-export const AUTO_THREADS_MIN_CELLS = 250_000;
+export const AUTO_THREADS_MIN_CELLS = 1_000_000;
 /**
  * Fewest cells of a multigrid level (or of the grid, for the CG vectors) on which the team shares the work; smaller
  * levels are run by thread 0 alone while the helpers wait (a kernel there is shorter than the barriers around it).
