@@ -8,8 +8,11 @@ import { inSharedMemory, PARALLEL_MIN_CELLS, type Team } from './team.js';
 
 /** Grids with more cells than this get a kernel warm-up before the multigrid setup (see warmup.ts). */
 const WARM_UP_ABOVE = 100_000;
-/** The team's warm-up shares the warm-up grid's two finest levels (160x112 and 80x56), enough to compile every kernel. */
-const TEAM_WARM_UP_MIN_CELLS = 4096;
+/**
+ * The team's warm-up shares only the warm-up grid's finest level (160x112): every team kernel runs there, which is
+ * enough to compile it; the smaller levels compile thread 0's own code.
+ */
+const TEAM_WARM_UP_MIN_CELLS = 8192;
 import type { Preconditioner, Solver, SolverConfig, SolverFactory, StencilOperator } from './types.js';
 
 /**
