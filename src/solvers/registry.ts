@@ -103,7 +103,7 @@ export const solverRegistry: Record<string, SolverEntry> = {
         } else warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
       }
       const mg = new AggregationMultigrid(op, team, config.parallelMinCells);
-      const notes = [`multigrid ${mg.describe()}`, team ? `${note}; levels per thread count: ${mg.threadsPerLevel().join(', ')}` : note];
+      const notes = [`multigrid ${mg.describe()}`, team ? `${note}; threads per level: ${mg.threadsPerLevel().join(', ')}` : note];
       return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, notes, team);
     },
     description: 'conjugate gradient preconditioned by aggregation multigrid (K-cycle); fast on large grids',

@@ -157,7 +157,13 @@ export class Team {
     for (let i = 0; i < ints.length; i++) control[CONTROL.args + i] = ints[i]!;
     for (let i = 0; i < floats.length; i++) this.scalars[SCALARS.args + i] = floats[i]!;
     this.fork(op);
-    runKernel(this.ctx, op, 0);
+    try {
+      runKernel(this.ctx, op, 0);
+    } catch (thrown) {
+      // the helpers are now at a different barrier than thread 0: the team cannot be used again
+      void this.close();
+      throw thrown;
+    }
     this.join();
     this.kernels++;
   }
@@ -177,7 +183,8 @@ export class Team {
   private join(): void {
     barrier(this.control, this.size);
     if (Atomics.load(this.control, CONTROL.failed) !== 0) {
-      Atomics.store(this.control, CONTROL.failed, 0);
+      // a helper that threw may have skipped a barrier inside its kernel: the team cannot be used again
+      void this.close();
       throw new PiezomapError('internal', 'a helper thread of the solver failed in a kernel');
     }
   }

@@ -1,6 +1,6 @@
 /**
  * A helper thread of a thread team (./team.ts): waits at the team's barrier for a kernel, runs it on its own block,
- * meets the others at the barrier again, and so on until told to stop. New shared arrays arrive on its port and are
+ * meets the others at the barrier again, and so on until the team terminates it. New shared arrays arrive on its port and are
  * read synchronously (receiveMessageOnPort) when thread 0 asks for it, so the loop never returns to the event loop.
  */
 import { type MessagePort, receiveMessageOnPort, workerData } from 'node:worker_threads';

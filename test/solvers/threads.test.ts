@@ -158,6 +158,16 @@ describe('pcg-multigrid with a thread team', () => {
   });
 });
 
+describe('thread team', () => {
+  it('a kernel that fails ends the team: the error is raised, later use is refused, the helpers exit', async () => {
+    const t = new Team(2);
+    expect(() => t.run(999, [1, 1])).toThrow(/unknown kernel/);
+    expect(() => t.run(999, [1, 1])).toThrow(/used after close/);
+    await t.close();
+    for (const w of t.threads) expect(w.threadId).toBe(-1);
+  });
+});
+
 describe('thread count', () => {
   it('auto uses one thread below the break-even grid size, and the idle cores (up to 8) above it', () => {
     const cores = Math.min(availableParallelism(), 8);
