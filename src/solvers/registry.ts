@@ -3,16 +3,11 @@ import { AggregationMultigrid } from './multigrid.js';
 import { PcgSolver } from './pcg.js';
 import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
 import { StationarySolver } from './stationary.js';
-import { warmUpKernels, warmUpTeam } from './warmup.js';
+import { warmUpKernels } from './warmup.js';
 import { inSharedMemory, PARALLEL_MIN_CELLS, type Team } from './team.js';
 
 /** Grids with more cells than this get a kernel warm-up before the multigrid setup (see warmup.ts). */
 const WARM_UP_ABOVE = 100_000;
-/**
- * The team's warm-up shares only the warm-up grid's finest level (160x112): every team kernel runs there, which is
- * enough to compile it; the smaller levels compile thread 0's own code.
- */
-const TEAM_WARM_UP_MIN_CELLS = 8192;
 import type { Preconditioner, Solver, SolverConfig, SolverFactory, StencilOperator } from './types.js';
 
 /**
@@ -94,14 +89,9 @@ export const solverRegistry: Record<string, SolverEntry> = {
     factory: (op, config) => {
       const t0 = performance.now();
       const { team, note } = teamFor(op, config);
-      if (op.n > WARM_UP_ABOVE) {
-        // with a team every pass over a big level runs in the team's kernels: those are the ones to compile (the
-        // warm-up grid's small levels compile thread 0's own code on the way)
-        if (team) {
-          warmUpTeam(team, (small) => solverRegistry['pcg-multigrid']!.factory(small, { team, parallelMinCells: TEAM_WARM_UP_MIN_CELLS }));
-          team.resetArrays();
-        } else warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
-      }
+      // with a team every pass over a big level runs in the team's kernels, which each thread compiled as it started
+      // (warmUpAlone in ./teamKernels.ts); thread 0's own code runs on small levels only
+      if (op.n > WARM_UP_ABOVE && !team) warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
       const mg = new AggregationMultigrid(op, team, config.parallelMinCells);
       const notes = [`multigrid ${mg.describe()}`, team ? `${note}; threads per level: ${mg.threadsPerLevel().join(', ')}` : note];
       return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, notes, team);

@@ -14,7 +14,17 @@ import { availableParallelism, loadavg } from 'node:os';
 import { fileURLToPath } from 'node:url';
 import { MessageChannel, type MessagePort, Worker } from 'node:worker_threads';
 import { PiezomapError } from '../errors.js';
-import { barrier, CONTROL, OP, PARTIALS_PER_THREAD, runKernel, SCALARS, type TeamArray, type TeamContext } from './teamKernels.js';
+import {
+  barrier,
+  CONTROL,
+  OP,
+  PARTIALS_PER_THREAD,
+  runKernel,
+  SCALARS,
+  type TeamArray,
+  type TeamContext,
+  warmUpAlone,
+} from './teamKernels.js';
 
 const WORKER_URL = new URL('./teamWorker.js', import.meta.url);
 
@@ -87,8 +97,6 @@ export class Team {
   private closed = false;
   /** Kernels run since the team started (for the statistics). */
   kernels = 0;
-  /** Set once the kernels have been compiled on a small grid in every thread (./warmup.ts). */
-  warmedUp = false;
 
   /** Starts `size - 1` helper threads and waits until they run. */
   constructor(size: number) {
@@ -108,6 +116,8 @@ export class Team {
       this.workers.push(worker);
       this.ports.push(port1);
     }
+    // thread 0 compiles the kernels while the helpers start and do the same
+    warmUpAlone();
     const deadline = performance.now() + START_TIMEOUT_MS;
     for (;;) {
       const started = Atomics.load(this.control, CONTROL.started);

@@ -599,3 +599,65 @@ function prolongedRow(nx: number, cx: number, i: number, e: Float64Array, x: Flo
   const crow = (i >> 1) * cx;
   for (let j = 0; j < nx; j++) halo[at + j] = x[row + j]! + e[crow + (j >> 1)]!;
 }
+
+/**
+ * Runs every kernel on a small grid (64 x 64) in the calling thread alone, a few dozen times, so that the engine has
+ * compiled them — with the array types of a real solve: double-precision operator bands, single-precision levels —
+ * before the first pass over a multi-million-cell level (which would otherwise run largely unoptimised). Each thread of
+ * a team does this once as it starts, all at the same time and without a barrier.
+ */
+export function warmUpAlone(): void {
+  const nx = 64;
+  const ny = 64;
+  const n = nx * ny;
+  const cn = (nx / 2) * (ny / 2);
+  const diag = new Float64Array(n);
+  const east = new Float64Array(n);
+  const south = new Float64Array(n);
+  for (let p = 0; p < n; p++) {
+    east[p] = p % nx === nx - 1 ? 0 : 1 + (p % 3);
+    south[p] = p >= n - nx ? 0 : 1 + (p % 5);
+    diag[p] = 2 * (east[p]! + south[p]!) + 1;
+  }
+  const unknown = new Uint8Array(n).fill(1);
+  const d32 = Float32Array.from(diag);
+  const e32 = Float32Array.from(east);
+  const s32 = Float32Array.from(south);
+  const inv32 = Float32Array.from(diag, (d) => 1 / d);
+  const v = () => new Float64Array(n);
+  const [b, x, y, z, w, u] = [v(), v(), v(), v(), v(), v()];
+  const coarse = new Float64Array(cn);
+  const halo = new Float64Array(2 * nx);
+  const [ce, cs, cExcess] = [new Float64Array(cn), new Float64Array(cn), new Float64Array(cn)];
+  const cu = new Uint8Array(cn);
+  const arrays: TeamArray[] = [diag, east, south, unknown, d32, e32, s32, inv32, b, x, y, z, w, u, coarse, halo, ce, cs, cExcess, cu];
+  const id = (a: TeamArray) => arrays.indexOf(a);
+  const [D, E, S, U, D32, E32, S32, I32] = [id(diag), id(east), id(south), id(unknown), id(d32), id(e32), id(s32), id(inv32)];
+  const [B, X, Y, Z, W, V] = [id(b), id(x), id(y), id(z), id(w), id(u)];
+  const [C, H, CE, CS, CX, CU] = [id(coarse), id(halo), id(ce), id(cs), id(cExcess), id(cu)];
+  const ctx: TeamContext = {
+    size: 1,
+    control: new Int32Array(CONTROL.length),
+    scalars: new Float64Array(SCALARS.partials + PARTIALS_PER_THREAD),
+    arrays,
+  };
+  const run = (op: number, ints: number[], floats: number[] = []) => {
+    ctx.control.set(ints, CONTROL.args);
+    ctx.scalars.set(floats, SCALARS.args);
+    runKernel(ctx, op, 0);
+  };
+  for (let round = 0; round < 40; round++) {
+    b.fill(1);
+    x.fill(0);
+    run(OP.fineLevel, [nx, ny, D, E, S, U, D32, E32, S32, I32, CE, CS, CX, CU], [1]);
+    run(OP.smoothRestrict, [nx, ny, D32, E32, S32, I32, B, X, C]);
+    run(OP.prolongSmooth, [nx, ny, D32, E32, S32, I32, C, B, X, H, round & 1 ? Y : -1], [round & 1 ? 0.5 : 1]);
+    run(OP.krylovFirst, [nx, ny, D32, E32, S32, X, W, B, Z]);
+    run(OP.krylovSecond, [nx, ny, D32, E32, S32, Z, V, W, Z, X], [1, 0.5]);
+    run(OP.combine, [nx, ny, X, round & 1 ? Z : -1], [0.5, 0.5]);
+    run(OP.directionApply, [nx, ny, D, E, S, Z, X, Y, round & 1], [0.5]);
+    run(OP.pcgStep, [nx, ny, V, X, B, Y], [1e-3]);
+    run(OP.dots, [nx, ny, B, Z, round & 1 ? B : -1, Y]);
+    run(OP.residual, [nx, ny, D, E, S, B, X, W]);
+  }
+}

@@ -4,7 +4,7 @@
  * read synchronously (receiveMessageOnPort) when thread 0 asks for it, so the loop never returns to the event loop.
  */
 import { type MessagePort, receiveMessageOnPort, workerData } from 'node:worker_threads';
-import { barrier, CONTROL, OP, runKernel, type TeamArray, type TeamContext } from './teamKernels.js';
+import { barrier, CONTROL, OP, runKernel, type TeamArray, type TeamContext, warmUpAlone } from './teamKernels.js';
 
 interface HelperData {
   control: Int32Array;
@@ -23,6 +23,12 @@ const ctx: TeamContext = { size, control, scalars, arrays };
 
 Atomics.add(control, CONTROL.started, 1);
 Atomics.notify(control, CONTROL.started);
+// compile the kernels while thread 0 does the same (the first kernel's barrier waits for this)
+try {
+  warmUpAlone();
+} catch {
+  Atomics.store(control, CONTROL.failed, 1);
+}
 for (;;) {
   barrier(control, size);
   const op = control[CONTROL.op]!;

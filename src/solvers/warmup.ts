@@ -1,9 +1,7 @@
 import { GridOperator } from './operator.js';
-import { sharedAlloc, type Team } from './team.js';
 import type { Solver, StencilOperator } from './types.js';
 
 let warmedUp = false;
-const ordinary = { f64: (n: number) => new Float64Array(n), u8: (n: number) => new Uint8Array(n) };
 
 /**
  * Runs a solver once on a small synthetic system so that the JavaScript engine compiles the hot kernels
@@ -13,31 +11,13 @@ const ordinary = { f64: (n: number) => new Float64Array(n), u8: (n: number) => n
 export function warmUpKernels(build: (op: StencilOperator) => Solver): void {
   if (warmedUp) return;
   warmedUp = true;
-  warmUpOn(ordinary, build, 3);
-}
-
-/**
- * The same for a thread team's kernels, once per team (each helper thread compiles its own code): `build` gets an
- * operator in shared memory and should set the solver up with the team on every level.
- */
-export function warmUpTeam(team: Team, build: (op: StencilOperator) => Solver): void {
-  if (team.warmedUp) return;
-  team.warmedUp = true;
-  warmUpOn(sharedAlloc, build, 1);
-}
-
-function warmUpOn(
-  alloc: { f64(n: number): Float64Array; u8(n: number): Uint8Array },
-  build: (op: StencilOperator) => Solver,
-  rounds: number,
-): void {
   const nx = 160;
   const ny = 112;
   const n = nx * ny;
-  const diag = alloc.f64(n);
-  const east = alloc.f64(n);
-  const south = alloc.f64(n);
-  const unknown = alloc.u8(n);
+  const diag = new Float64Array(n);
+  const east = new Float64Array(n);
+  const south = new Float64Array(n);
+  const unknown = new Uint8Array(n);
   const b = new Float64Array(n);
   for (let i = 0; i < ny; i++) {
     for (let j = 0; j < nx; j++) {
@@ -70,7 +50,7 @@ function warmUpOn(
   const op = new GridOperator(nx, ny, diag, east, south, unknown);
   const solver = build(op);
   const x = new Float64Array(n);
-  for (let round = 0; round < rounds; round++) {
+  for (let round = 0; round < 3; round++) {
     x.fill(0);
     solver.solve(b, x, { tolerance: 1e-12, maxIterations: 60 });
   }
