@@ -1,7 +1,7 @@
 /** The executor that solves in the calling thread; also synchronously, for library callers that want no promise. */
 import { chooseAutoMethod, createSolver, methodUsesThreads } from '../solvers/registry.js';
 import { GridOperator } from '../solvers/operator.js';
-import { resolveThreads, Team } from '../solvers/team.js';
+import { PARALLEL_MIN_CELLS, resolveThreads, Team } from '../solvers/team.js';
 import type { Solver, SolverConfig, StencilOperator } from '../solvers/types.js';
 import { shared, sharedFloat64Array } from './shared.js';
 import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, SolverSession } from './types.js';
@@ -28,7 +28,8 @@ export function setUpSolver(
  */
 function startTeam(operator: StencilOperator, choice: SolverChoice): Team | null {
   const method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method;
-  if (!methodUsesThreads(method)) return null;
+  // below PARALLEL_MIN_CELLS no level would be shared: no helper threads at all
+  if (!methodUsesThreads(method) || operator.n < PARALLEL_MIN_CELLS) return null;
   return Team.start(resolveThreads(choice.threads, operator.n));
 }
 
