@@ -14,8 +14,8 @@ const MAX_RESTARTS = 5;
  * Convergence is confirmed on the true residual b - A x; if the recurrence has drifted, CG restarts from it.
  *
  * With a thread `team` every vector operation (operator product, dot products, updates) is shared by the team, each
- * thread on its block of rows, sums added in thread order; the workspaces then live in shared memory, and b and x
- * are copied there when they are not (see ./team.ts). The operator's bands must already be in shared memory.
+ * thread on its block of rows, sums added in thread order; the workspaces then live in shared memory, with copies of
+ * b and x made at each solve (see ./team.ts). The operator's bands must already be in shared memory.
  */
 export class PcgSolver implements Solver {
   private readonly r: Float64Array;
@@ -154,8 +154,9 @@ export class PcgSolver implements Solver {
   }
 
   /**
-   * The same iteration as `iterate` on the workspace's copies of b and x, every vector operation run by the team. The new direction p = z + beta p is
-   * formed at the start of the next iteration, in the same kernel as q = A p (one fork–join instead of two).
+   * The same iteration as `iterate` on the workspace's copies of b and x, every vector operation run by the team.
+   * The new direction p = z + beta p is formed at the start of the next iteration, in the same kernel as q = A p
+   * (one fork–join instead of two).
    */
   private iterateShared(ws: SharedWorkspace, options: SolveOptions): SolveStats {
     const { op, r, z, monitor, preconditioner } = this;
