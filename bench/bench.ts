@@ -3,7 +3,8 @@
  * each solve in its own child process so that its peak memory is its own.
  *
  *   npm run bench -- [--sizes 512,1024,2048] [--methods auto,pcg-multigrid,...] [--out bench-results]
- *                    [--tolerance 1e-10] [--max-iterations 20000] [--time-limit 240] [--write-case DIR --size N]
+ *                    [--threads 1,2] [--tolerance 1e-10] [--max-iterations 20000] [--time-limit 240]
+ *                    [--write-case DIR --size N]
  *   npm run bench -- --table FILE.json   (prints the table of an earlier run)
  *   npm run bench -- --whole [--sizes 512,1024,2048] [--repeat 1]   whole `piezomap solve` runs against the reference
  *   npm run bench -- --write-stages [--sizes 1024,2048]   CPU per product, serial vs concurrent writer
@@ -11,6 +12,9 @@
  *
  * The reference solver (hypre BoomerAMG-PCG, built from ../shared/bench-reference) is used when
  * PIEZOMAP_REFERENCE_DIR names the folder holding its hypre_pcg (./reference.ts).
+ *
+ * With `--threads 1,2` every method runs once per thread count (pcg-multigrid and `auto` share their work with a
+ * thread team; other methods ignore it) and a speed-up table follows (1-thread time / T-thread time).
  *
  * Prints a table and writes bench-results/bench-<stamp>.json. Heads are compared with a tighter multigrid
  * solve (relative residual 1e-12) of the same size: max |h - h_ref| / max |h_ref| over active cells.
@@ -28,6 +32,7 @@ import { referenceSolver, runReference, writeSystemFile } from './reference.js';
 import { printWhole, runWhole } from './whole.js';
 import { solveOuter } from '../src/discretisation/outerLoop.js';
 import { closeSession, openSession, runInline } from '../src/executor/plan.js';
+import { Team } from '../src/solvers/team.js';
 
 /** A method name ending in this suffix solves the unconfined case (water table, outer iteration) with that method. */
 const UNCONFINED_SUFFIX = '+unconfined';
@@ -38,6 +43,10 @@ interface ChildResult {
   unknowns: number;
   method: string;
   resolvedMethod: string;
+  /** Threads asked for (a team of that size for pcg-multigrid; the notes say what the solver used). */
+  threads: number;
+  /** One-minute load average when the child started: the machine's other work. */
+  loadAverage: number;
   caseSeconds: number;
   assembleSeconds: number;
   setupSeconds: number;
@@ -91,9 +100,10 @@ function runChild(
   maxIterations: number,
   headsFile: string,
   field: CaseField,
+  threads: number,
 ): void {
   if (method.endsWith(UNCONFINED_SUFFIX)) {
-    runUnconfinedChild(size, method, tolerance, maxIterations, headsFile);
+    runUnconfinedChild(size, method, tolerance, maxIterations, headsFile, threads);
     return;
   }
   let t = performance.now();
@@ -106,11 +116,17 @@ function runChild(
   (model as { conductivity: Float64Array | null }).conductivity = null;
   (globalThis as { gc?: () => void }).gc?.();
   const resolvedMethod = method === 'auto' ? chooseAutoMethod(system.operator) : method;
+  const loadAverage = loadavg()[0]!;
   const cpuStart = process.cpuUsage();
-  const solver = createSolver(method, system.operator);
+  // the team's start (helper threads) counts as set-up, as in a solver session
+  const t0 = performance.now();
+  const team = threads > 1 ? new Team(threads) : null;
+  const solver = createSolver(method, system.operator, { team });
+  const setupSeconds = (performance.now() - t0) / 1000;
   const x = new Float64Array(system.operator.n);
   const stats = solver.solve(system.rhs, x, { tolerance, maxIterations, timeLimitSeconds: timeLimit });
   const cpu = process.cpuUsage(cpuStart);
+  void team?.close();
   const head = headsFromSolution(system, x);
   const budget = waterBudget(system, head);
   if (headsFile) writeFileSync(headsFile, new Uint8Array(head.buffer, head.byteOffset, head.byteLength));
@@ -120,9 +136,11 @@ function runChild(
     unknowns: system.counts.unknowns,
     method,
     resolvedMethod,
+    threads,
+    loadAverage,
     caseSeconds,
     assembleSeconds,
-    setupSeconds: stats.setupSeconds,
+    setupSeconds,
     solveSeconds: stats.solveSeconds,
     cpuSeconds: (cpu.user + cpu.system) / 1e6,
     iterations: stats.iterations,
@@ -142,7 +160,14 @@ function runChild(
  * Set-up and solve seconds are the whole outer iteration's (set-ups included in solveSeconds after the first);
  * iterations are the inner iterations summed; notes give the outer iterations.
  */
-function runUnconfinedChild(size: number, method: string, tolerance: number, maxIterations: number, headsFile: string): void {
+function runUnconfinedChild(
+  size: number,
+  method: string,
+  tolerance: number,
+  maxIterations: number,
+  headsFile: string,
+  threads: number,
+): void {
   const solverMethod = method.slice(0, -UNCONFINED_SUFFIX.length);
   let t = performance.now();
   const { model } = unconfinedBenchCase(size);
@@ -150,11 +175,12 @@ function runUnconfinedChild(size: number, method: string, tolerance: number, max
   t = performance.now();
   const system = assembleSystem(model);
   const assembleSeconds = (performance.now() - t) / 1000;
+  const loadAverage = loadavg()[0]!;
   const cpuStart = process.cpuUsage();
   t = performance.now();
   const { answer, setupSeconds, resolvedMethod } = runInline(
     (function* () {
-      const session = yield* openSession(system.operator, { method: solverMethod });
+      const session = yield* openSession(system.operator, { method: solverMethod, threads });
       const firstSetup = session.setupSeconds;
       const answer = yield* solveOuter(system, session, { tolerance, maxIterations });
       yield* closeSession(session);
@@ -175,6 +201,8 @@ function runUnconfinedChild(size: number, method: string, tolerance: number, max
     unknowns: system.counts.unknowns,
     method,
     resolvedMethod: `${resolvedMethod}${UNCONFINED_SUFFIX}`,
+    threads,
+    loadAverage,
     caseSeconds,
     assembleSeconds,
     setupSeconds,
@@ -200,6 +228,7 @@ function spawnChild(
   maxIterations: number,
   headsFile: string,
   field: CaseField = 'smooth',
+  threads = 1,
 ): ChildResult | null {
   const script = fileURLToPath(import.meta.url);
   const args = [
@@ -213,6 +242,8 @@ function spawnChild(
     method,
     '--field',
     field,
+    '--threads',
+    String(threads),
   ];
   args.push(
     '--tolerance',
@@ -263,6 +294,7 @@ function printTable(rows: Row[]): void {
     'cells',
     'unknowns',
     'method',
+    'threads',
     'setup s',
     'solve s',
     'cpu s',
@@ -279,6 +311,7 @@ function printTable(rows: Row[]): void {
     String(r.cells),
     String(r.unknowns),
     r.method === r.resolvedMethod ? r.method : `${r.method}→${r.resolvedMethod}`,
+    String(r.threads ?? 1),
     fmt(r.setupSeconds, 3),
     fmt(r.solveSeconds, 3),
     fmt(r.cpuSeconds, 3),
@@ -305,7 +338,16 @@ async function main(): Promise<void> {
   const maxIterations = Number(args.get('max-iterations') ?? 20_000);
   const field = caseField(args.get('field') ?? 'smooth');
   if (args.has('child')) {
-    runChild(Number(args.get('size')), args.get('method')!, tolerance, timeLimit, maxIterations, args.get('heads') ?? '', field);
+    runChild(
+      Number(args.get('size')),
+      args.get('method')!,
+      tolerance,
+      timeLimit,
+      maxIterations,
+      args.get('heads') ?? '',
+      field,
+      Number(args.get('threads') ?? 1),
+    );
     return;
   }
   if (args.has('child-system')) {
@@ -361,7 +403,9 @@ async function main(): Promise<void> {
   mkdirSync(out, { recursive: true });
   const scratch = join(out, 'tmp-heads');
   mkdirSync(scratch, { recursive: true });
-  console.log(`piezomap solver benchmark — ${machine}; tolerance ${tolerance}`);
+  const threadCounts = (args.get('threads') ?? '1').split(',').map(Number);
+  if (threadCounts.some((t) => !Number.isInteger(t) || t < 1)) throw new Error('--threads must list whole numbers >= 1, e.g. 1,2');
+  console.log(`piezomap solver benchmark — ${machine}; tolerance ${tolerance}; load average at start ${loadavg()[0]!.toFixed(1)}`);
   const rows: Row[] = [];
   const file = join(out, `bench-${stamp}.json`);
   // rewritten after every solve, so a long run interrupted midway keeps what it measured
@@ -372,32 +416,50 @@ async function main(): Promise<void> {
     const refFile = join(scratch, `ref-${size}.f64`);
     const reference = spawnChild(size, 'pcg-multigrid', 1e-12, 3 * timeLimit, 1000, refFile);
     const refHeads = reference ? readHeads(refFile) : null;
-    for (const method of methods) {
-      process.stderr.write(`size ${size}: ${method}\n`);
-      const headsFile = join(scratch, `${method}-${size}.f64`);
-      const result = spawnChild(size, method, tolerance, timeLimit, maxIterations, headsFile);
-      if (!result) continue;
-      const total = result.setupSeconds + result.solveSeconds;
-      const row: Row = {
-        ...result,
-        // The reference is the confined case's: no head comparison for the unconfined one.
-        maxRelativeHeadError:
-          refHeads && !method.endsWith(UNCONFINED_SUFFIX) ? maxRelativeDifference(readHeads(headsFile), refHeads) : null,
-        nsPerCell: (total / result.cells) * 1e9,
-        nsPerCellIteration: result.iterations > 0 ? (result.solveSeconds / result.iterations / result.cells) * 1e9 : null,
-      };
-      rmSync(headsFile, { force: true });
-      rows.push(row);
-      save();
-      const notes = result.notes.length ? ` (${result.notes.join('; ')})` : '';
-      process.stderr.write(`  ${result.stopReason} in ${result.iterations} iterations, ${total.toFixed(2)} s${notes}\n`);
-    }
+    for (const method of methods)
+      for (const threads of threadCounts) {
+        process.stderr.write(`size ${size}: ${method}, ${threads} thread${threads > 1 ? 's' : ''}\n`);
+        const headsFile = join(scratch, `${method}-${size}.f64`);
+        const result = spawnChild(size, method, tolerance, timeLimit, maxIterations, headsFile, 'smooth', threads);
+        if (!result) continue;
+        const total = result.setupSeconds + result.solveSeconds;
+        const row: Row = {
+          ...result,
+          // The reference is the confined case's: no head comparison for the unconfined one.
+          maxRelativeHeadError:
+            refHeads && !method.endsWith(UNCONFINED_SUFFIX) ? maxRelativeDifference(readHeads(headsFile), refHeads) : null,
+          nsPerCell: (total / result.cells) * 1e9,
+          nsPerCellIteration: result.iterations > 0 ? (result.solveSeconds / result.iterations / result.cells) * 1e9 : null,
+        };
+        rmSync(headsFile, { force: true });
+        rows.push(row);
+        save();
+        const notes = result.notes.length ? ` (${result.notes.join('; ')})` : '';
+        process.stderr.write(`  ${result.stopReason} in ${result.iterations} iterations, ${total.toFixed(2)} s${notes}\n`);
+      }
     rmSync(refFile, { force: true });
   }
   rmSync(scratch, { recursive: true, force: true });
   printTable(rows);
+  if (threadCounts.length > 1) printSpeedUps(rows);
   save();
-  console.log(`written ${file}`);
+  console.log(`load average at end ${loadavg()[0]!.toFixed(1)}; written ${file}`);
+}
+
+/** Speed-up of every multi-thread row over the 1-thread row of the same size and method: 1-thread time / T-thread time. */
+function printSpeedUps(rows: Row[]): void {
+  console.log('\nspeed-up = 1-thread time / T-thread time (set-up + solve, and solve alone); cpu = CPU seconds of all threads');
+  for (const r of rows) {
+    if (r.threads === 1) continue;
+    const one = rows.find((o) => o.size === r.size && o.method === r.method && o.threads === 1);
+    if (!one) continue;
+    const total = (x: Row) => x.setupSeconds + x.solveSeconds;
+    console.log(
+      `  ${r.size}² ${r.method} ×${r.threads}: ${(total(one) / total(r)).toFixed(2)}x (solve alone ${(one.solveSeconds / r.solveSeconds).toFixed(2)}x); ` +
+        `cpu ${one.cpuSeconds.toFixed(2)} -> ${r.cpuSeconds.toFixed(2)} s; iterations ${one.iterations} -> ${r.iterations}; ` +
+        `load average ${one.loadAverage.toFixed(1)} / ${r.loadAverage.toFixed(1)}`,
+    );
+  }
 }
 
 function caseField(name: string): CaseField {

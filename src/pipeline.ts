@@ -131,9 +131,12 @@ export function addTracking(model: ModelInput, system: FlowSystem, result: Solve
   result.timings.tracking = tracking.seconds;
 }
 
-/** The solver a session sets up for these settings. */
-export function solverChoice(settings: SolverSettings): { method: string; relaxation?: number } {
-  return settings.relaxation === undefined ? { method: settings.method } : { method: settings.method, relaxation: settings.relaxation };
+/** The solver a session sets up for these settings (threads: 'auto' unless set). */
+export function solverChoice(settings: SolverSettings): { method: string; relaxation?: number; threads: number | 'auto' } {
+  const threads = settings.threads ?? 'auto';
+  return settings.relaxation === undefined
+    ? { method: settings.method, threads }
+    : { method: settings.method, relaxation: settings.relaxation, threads };
 }
 
 /** Everything after the solver: heads from the solution x = h - datum, the water budget, point results and warnings. */

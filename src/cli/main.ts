@@ -39,6 +39,7 @@ interface SolveFlags extends CommonFlags {
   tolerance?: number;
   maxIterations?: number;
   relaxation?: number;
+  threads?: number | 'auto';
   overwrite?: boolean;
   /** commander's negated --no-maps: false when given. */
   maps?: boolean;
@@ -97,6 +98,7 @@ function addSolverOptions(cmd: Command): Command {
     .option('--tolerance <number>', 'relative residual to reach (overrides the scenario)', solverOption('tolerance'))
     .option('--max-iterations <n>', 'iteration cap (overrides the scenario)', solverOption('maxIterations'))
     .option('--relaxation <omega>', 'relaxation factor for SOR (default: chosen automatically)', solverOption('relaxation'))
+    .option('--threads <n>', 'threads of the solve: a whole number or "auto" (default: all cores on large grids)', solverOption('threads'))
     .option('--overwrite', 'replace results already in the output folder')
     .option('--no-maps', 'write only rasters, tables and the summary: no contours, flux rasters, map or report')
     .option('--native-contours', "also write contours (and capture zones and pathlines) in the raster's own CRS (*.native.geojson)")
@@ -115,6 +117,7 @@ function runOptions(flags: SolveFlags): { options: RunOptions; progress: ReturnT
   if (flags.tolerance !== undefined) options.tolerance = flags.tolerance;
   if (flags.maxIterations !== undefined) options.maxIterations = flags.maxIterations;
   if (flags.relaxation !== undefined) options.relaxation = flags.relaxation;
+  if (flags.threads !== undefined) options.threads = flags.threads;
   return { options, progress };
 }
 

@@ -277,7 +277,9 @@ export function solveRealisation(ctx: EnsembleContext, index: number): Realisati
         : realisedConductivity(model.conductivity, y, ctx.measured),
     },
   }));
-  const comparison = runInline(comparePlan(prepareComparison(baseline, variants, ctx.options), ctx.options));
+  // one thread per solve: the realisations themselves run in parallel, one per worker (no oversubscription)
+  const options = { ...ctx.options, threads: 1 };
+  const comparison = runInline(comparePlan(prepareComparison(baseline, variants, options), options));
   const baseProblem = resultProblem(comparison.baseline);
   const runs: RunRecord[] = [runRecord(ctx, 0, comparison.baseline, baseProblem ? baseProblem.message : null, null)];
   for (let k = 0; k < ctx.variants.length; k++) {

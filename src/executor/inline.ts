@@ -1,17 +1,43 @@
 /** The executor that solves in the calling thread; also synchronously, for library callers that want no promise. */
-import { chooseAutoMethod, createSolver } from '../solvers/registry.js';
+import { chooseAutoMethod, createSolver, methodUsesThreads } from '../solvers/registry.js';
 import { GridOperator } from '../solvers/operator.js';
-import type { Solver, StencilOperator } from '../solvers/types.js';
+import { PARALLEL_MIN_CELLS, resolveThreads, Team } from '../solvers/team.js';
+import type { Solver, SolverConfig, StencilOperator } from '../solvers/types.js';
+import { shared, sharedFloat64Array } from './shared.js';
 import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, SolverSession } from './types.js';
 
 const now = () => performance.now() / 1000;
 
 /** Set up a solver for `operator`: `auto` picks a method from the operator; returns the set-up time. */
-export function setUpSolver(operator: StencilOperator, choice: SolverChoice): { solver: Solver; setupSeconds: number } {
+export function setUpSolver(
+  operator: StencilOperator,
+  choice: SolverChoice,
+  team: Team | null = null,
+): { solver: Solver; setupSeconds: number } {
   const method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method;
   const t0 = now();
-  const solver = createSolver(method, operator, choice.relaxation === undefined ? {} : { relaxation: choice.relaxation });
+  const config: SolverConfig = choice.relaxation === undefined ? {} : { relaxation: choice.relaxation };
+  if (team) config.team = team;
+  const solver = createSolver(method, operator, config);
   return { solver, setupSeconds: now() - t0 };
+}
+
+/**
+ * The thread team a session on `operator` uses: started once when the choice asks for more than one thread on a grid
+ * this size and the method shares its work (pcg-multigrid), kept across set-ups and solves, closed with the session.
+ */
+function startTeam(operator: StencilOperator, choice: SolverChoice): Team | null {
+  const method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method;
+  // below PARALLEL_MIN_CELLS no level would be shared: no helper threads at all
+  if (!methodUsesThreads(method) || operator.n < PARALLEL_MIN_CELLS) return null;
+  return Team.start(resolveThreads(choice.threads, operator.n));
+}
+
+/** The operator with its bands in shared memory (copied there once when they are not), for a thread team. */
+function sharedOperator(op: StencilOperator): StencilOperator {
+  const [diag, east, south, unknown] = [shared(op.diag), shared(op.east), shared(op.south), shared(op.unknown)];
+  if (diag === op.diag && east === op.east && south === op.south) return op;
+  return new GridOperator(op.nx, op.ny, diag, east, south, unknown);
 }
 
 /** Solve one right-hand side with a set-up solver, keeping the residual history. */
@@ -28,13 +54,25 @@ export function runSolver(solver: Solver, request: LinearSolve): LinearAnswer {
 
 export class InlineSession implements SolverSession {
   private solver: Solver;
+  private operator: StencilOperator;
+  private readonly team: Team | null;
   setupSeconds: number;
 
   constructor(
-    private operator: StencilOperator,
+    operator: StencilOperator,
     private readonly choice: SolverChoice,
   ) {
-    ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(operator, choice));
+    const t0 = now();
+    this.team = startTeam(operator, choice);
+    this.operator = this.team ? sharedOperator(operator) : operator;
+    ({ solver: this.solver } = setUpSolver(this.operator, choice, this.team));
+    // the helper threads' start counts as set-up
+    this.setupSeconds = now() - t0;
+  }
+
+  /** Threads the session's solver shares its work with (1 without a team). */
+  get threads(): number {
+    return this.team?.size ?? 1;
   }
 
   get method(): string {
@@ -47,8 +85,11 @@ export class InlineSession implements SolverSession {
 
   setDiagonalNow(diag: Float64Array): void {
     const op = this.operator;
-    this.operator = new GridOperator(op.nx, op.ny, Float64Array.from(diag), op.east, op.south, op.unknown);
-    ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(this.operator, this.choice));
+    // a copy of its own, in shared memory so that a thread team can read it
+    const own = sharedFloat64Array(diag.length);
+    own.set(diag);
+    this.operator = new GridOperator(op.nx, op.ny, own, op.east, op.south, op.unknown);
+    ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(this.operator, this.choice, this.team));
   }
 
   /** See SolverSession.setOperator. Returns true when the solver was set up again. */
@@ -60,7 +101,7 @@ export class InlineSession implements SolverSession {
     if (bands.south !== op.south) op.south.set(bands.south);
     // Only the conjugate-gradient methods keep an older preconditioner: they apply the operator itself each step.
     if (rebuild || !this.solver.method.startsWith('pcg')) {
-      ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(this.operator, this.choice));
+      ({ solver: this.solver, setupSeconds: this.setupSeconds } = setUpSolver(this.operator, this.choice, this.team));
       return true;
     }
     return false;
@@ -80,7 +121,10 @@ export class InlineSession implements SolverSession {
     return Promise.resolve();
   }
 
-  close(): void {}
+  /** Ends the session's helper threads (if any); the promise resolves when they have exited. */
+  close(): Promise<void> {
+    return this.team ? this.team.close() : Promise.resolve();
+  }
 }
 
 export const inlineExecutor: Executor & { openNow(operator: StencilOperator, choice: SolverChoice): InlineSession } = {

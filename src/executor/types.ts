@@ -15,6 +15,11 @@ import type { SolveStats, StencilOperator } from '../solvers/types.js';
 export interface SolverChoice {
   method: string;
   relaxation?: number;
+  /**
+   * Threads the solve may use (pcg-multigrid shares its work; other methods run on one): a whole number >= 1, or
+   * 'auto' (all cores up to a cap, one thread on small grids: see resolveThreads in ../solvers/team.ts). Default 1.
+   */
+  threads?: number | 'auto';
 }
 
 export interface LinearSolve {

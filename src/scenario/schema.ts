@@ -298,6 +298,8 @@ export const solverSchema = strict({
   tolerance: finite.gt(0).lt(1).default(1e-8),
   maxIterations: z.int().gt(0).default(20000),
   relaxation: finite.gt(0).lt(2).optional(),
+  /** Threads of the solve: a whole number (1 = single-threaded) or "auto" (the default: see solvers/team.ts). */
+  threads: z.union([z.int().gte(1).lte(256), z.literal('auto')], { error: 'must be a whole number from 1 to 256 or "auto"' }).optional(),
 });
 
 /** A point tracked forward (a spill site, a field); in pointCrs like the other point lists. */

@@ -18,6 +18,7 @@ export const SOLVER_OPTION_FLAGS: Readonly<Record<keyof SolverSettings, string>>
   tolerance: '--tolerance',
   maxIterations: '--max-iterations',
   relaxation: '--relaxation',
+  threads: '--threads',
 };
 
 function check(key: keyof SolverSettings, value: unknown, label: string): void {
@@ -37,7 +38,7 @@ function check(key: keyof SolverSettings, value: unknown, label: string): void {
 /** A setting's value from command-line text, checked as the scenario key is. */
 export function parseSolverOption(key: keyof SolverSettings, text: string): string | number {
   const flag = SOLVER_OPTION_FLAGS[key];
-  const value = key === 'method' ? text : text.trim() === '' ? NaN : Number(text);
+  const value = key === 'method' ? text : key === 'threads' && text.trim() === 'auto' ? 'auto' : text.trim() === '' ? NaN : Number(text);
   if (typeof value === 'number' && Number.isNaN(value)) {
     throw new PiezomapError('usage', `${flag}: expected a number, got "${text}"`, { key: `solver.${key}` });
   }

@@ -103,6 +103,8 @@ export interface SolverSettings {
   tolerance: number;
   maxIterations: number;
   relaxation?: number;
+  /** Threads of the solve: a whole number >= 1 or 'auto' (absent: 'auto'). */
+  threads?: number | 'auto';
 }
 
 /** A scenario with every raster read, every path resolved and every point in the raster CRS. */

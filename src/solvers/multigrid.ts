@@ -1,5 +1,7 @@
 import { BandedCholesky } from './banded.js';
 import { applyDot, dot } from './kernels.js';
+import { PARALLEL_MIN_CELLS, sharedAlloc, type Team } from './team.js';
+import { fineLevelRows, type FineRows, OP, type TeamArray } from './teamKernels.js';
 import type { StencilOperator, VariablePreconditioner } from './types.js';
 
 /** Coarsening stops once a level has at most this many cells; that level is solved directly. */
@@ -13,6 +15,24 @@ const K_CYCLE_THRESHOLD = 0.25;
  */
 type Coefficients = Float32Array | Float64Array;
 type CoefficientArray = Float32ArrayConstructor | Float64ArrayConstructor;
+
+/** Where the levels' arrays are allocated: ordinary memory, or shared memory when a thread team works on them. */
+interface Alloc {
+  f64(n: number): Float64Array;
+  f32(n: number): Float32Array;
+}
+const ordinaryAlloc: Alloc = { f64: (n) => new Float64Array(n), f32: (n) => new Float32Array(n) };
+
+function coefficients(alloc: Alloc, precision: CoefficientArray, n: number): Coefficients {
+  return precision === Float64Array ? alloc.f64(n) : alloc.f32(n);
+}
+
+/** A copy of `from` in the given precision. */
+function coefficientsFrom(alloc: Alloc, precision: CoefficientArray, from: Float64Array): Coefficients {
+  const c = coefficients(alloc, precision, from.length);
+  c.set(from);
+  return c;
+}
 
 /** Smallest positive normal single-precision number, 2^-126 (IEEE 754 binary32). */
 const FLOAT32_MIN_NORMAL = 2 ** -126;
@@ -72,11 +92,11 @@ interface Level {
 }
 
 /** A coarse level with its K-cycle workspaces. */
-function makeLevel(nx: number, ny: number, diag: Coefficients, east: Coefficients, south: Coefficients): Level {
+function makeLevel(alloc: Alloc, nx: number, ny: number, diag: Coefficients, east: Coefficients, south: Coefficients): Level {
   const n = nx * ny;
-  const invDiag = new (diag instanceof Float64Array ? Float64Array : Float32Array)(n);
+  const invDiag = diag instanceof Float64Array ? alloc.f64(n) : alloc.f32(n);
   for (let p = 0; p < n; p++) invDiag[p] = 1 / diag[p]!;
-  const v = () => new Float64Array(n);
+  const v = () => alloc.f64(n);
   return { nx, ny, n, diag, east, south, invDiag, rhs: v(), v1: v(), w1: v(), r2: v(), v2: v(), w2: v() };
 }
 
@@ -89,7 +109,12 @@ function makeLevel(nx: number, ny: number, diag: Coefficients, east: Coefficient
  * aggregate is strongly coupled inside and weakly outside. Only unknown children belong to an aggregate; an
  * aggregate without unknowns is an identity row.
  */
-function coarsen(fine: Level, unknown: Uint8Array, excess: Float64Array): { level: Level; unknown: Uint8Array; excess: Float64Array } {
+function coarsen(
+  alloc: Alloc,
+  fine: Level,
+  unknown: Uint8Array,
+  excess: Float64Array,
+): { level: Level; unknown: Uint8Array; excess: Float64Array } {
   const { nx, ny, east, south } = fine;
   const cx = (nx + 1) >> 1;
   const cy = (ny + 1) >> 1;
@@ -112,11 +137,12 @@ function coarsen(fine: Level, unknown: Uint8Array, excess: Float64Array): { leve
     }
   }
   const precision = fine.diag instanceof Float64Array ? Float64Array : Float32Array;
-  return { level: coarseLevel(cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess };
+  return { level: coarseLevel(alloc, cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess };
 }
 
 /** Coarse level from summed couplings and excess: diagonal = excess + couplings (identity row without unknowns). */
 function coarseLevel(
+  alloc: Alloc,
   cx: number,
   cy: number,
   ce: Float64Array,
@@ -126,7 +152,7 @@ function coarseLevel(
   precision: CoefficientArray,
 ): Level {
   const cn = cx * cy;
-  const cd = new precision(cn);
+  const cd = coefficients(alloc, precision, cn);
   for (let c = 0; c < cn; c++) {
     if (!cu[c]) {
       cd[c] = 1;
@@ -137,7 +163,7 @@ function coarseLevel(
     if (c >= cx) d += cs[c - cx]!;
     cd[c] = d;
   }
-  return makeLevel(cx, cy, cd, new precision(ce), new precision(cs));
+  return makeLevel(alloc, cx, cy, cd, coefficientsFrom(alloc, precision, ce), coefficientsFrom(alloc, precision, cs));
 }
 
 /**
@@ -147,49 +173,51 @@ function coarseLevel(
  * couplings to unknown neighbours (its fixed-head conductances).
  */
 function finestLevels(
+  alloc: Alloc,
+  team: Team | null,
   op: StencilOperator,
   scale: number,
   precision: CoefficientArray,
 ): { fine: Level; coarse: { level: Level; unknown: Uint8Array; excess: Float64Array } | null } {
   const { nx, ny, n, diag, east, south, unknown } = op;
-  const d32 = new precision(n);
-  const e32 = new precision(n);
-  const s32 = new precision(n);
-  const inv = new precision(n);
+  const d32 = coefficients(alloc, precision, n);
+  const e32 = coefficients(alloc, precision, n);
+  const s32 = coefficients(alloc, precision, n);
+  const inv = coefficients(alloc, precision, n);
   const cx = (nx + 1) >> 1;
   const cy = (ny + 1) >> 1;
   const cn = cx * cy;
   const build = n > COARSEST_CELLS && !(nx === 1 && ny === 1);
-  const ce = new Float64Array(build ? cn : 0);
-  const cs = new Float64Array(build ? cn : 0);
-  const cExcess = new Float64Array(build ? cn : 0);
-  const cu = new Uint8Array(build ? cn : 0);
-  for (let i = 0; i < ny; i++) {
-    const row = i * nx;
-    const crow = (i >> 1) * cx;
-    for (let j = 0; j < nx; j++) {
-      const p = row + j;
-      // couplings are zero on identity rows, so only an unknown row's diagonal is scaled
-      const d = unknown[p] ? diag[p]! * scale : diag[p]!;
-      const e = east[p]! * scale;
-      const s = south[p]! * scale;
-      d32[p] = d;
-      e32[p] = e;
-      s32[p] = s;
-      inv[p] = 1 / d;
-      if (!build) continue;
-      const c = crow + (j >> 1);
-      if (unknown[p]) {
-        let coupled = e + s;
-        if (j > 0) coupled += east[p - 1]! * scale;
-        if (i > 0) coupled += south[p - nx]! * scale;
-        cExcess[c]! += Math.max(0, d - coupled);
-        cu[c] = 1;
-      }
-      if (j & 1) ce[c]! += e;
-      if (i & 1) cs[c]! += s;
-    }
-  }
+  // shared with a team, whose threads fill them
+  const ce = alloc.f64(build ? cn : 0);
+  const cs = alloc.f64(build ? cn : 0);
+  const cExcess = alloc.f64(build ? cn : 0);
+  const cu = team ? sharedAlloc.u8(build ? cn : 0) : new Uint8Array(build ? cn : 0);
+  const rows: FineRows = { nx, ny, diag, east, south, unknown, d32, e32, s32, inv, ce, cs, cExcess, cu };
+  if (team) {
+    // each thread its block of rows: a coarse row gets its sums from one block only, in the same order as here
+    const id = (a: TeamArray | Uint8Array) => team.id(a);
+    team.run(
+      OP.fineLevel,
+      [
+        nx,
+        ny,
+        id(diag),
+        id(east),
+        id(south),
+        id(unknown),
+        id(d32),
+        id(e32),
+        id(s32),
+        id(inv),
+        build ? id(ce) : -1,
+        build ? id(cs) : -1,
+        build ? id(cExcess) : -1,
+        build ? id(cu) : -1,
+      ],
+      [scale],
+    );
+  } else fineLevelRows(rows, scale, build, 0, ny);
   const empty = new Float64Array(0);
   const fine: Level = {
     nx,
@@ -207,7 +235,7 @@ function finestLevels(
     w2: empty,
   };
   if (!build) return { fine, coarse: null };
-  return { fine, coarse: { level: coarseLevel(cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess } };
+  return { fine, coarse: { level: coarseLevel(alloc, cx, cy, ce, cs, cExcess, cu, precision), unknown: cu, excess: cExcess } };
 }
 
 /**
@@ -228,11 +256,22 @@ export class AggregationMultigrid implements VariablePreconditioner {
   /** Double-precision levels, for an operator whose range single precision cannot carry (see operatorScale). */
   readonly doublePrecision: boolean;
 
-  constructor(op: StencilOperator) {
+  /** The thread team sharing the cycle's work on big levels, or null (one thread). */
+  private readonly team: Team | null;
+  /** Per level: the team's ids of its arrays, or null where thread 0 runs the level alone. */
+  private readonly shares: Array<LevelShare | null>;
+
+  /**
+   * With a `team` the levels live in shared memory, and every level of at least `parallelMinCells` cells is worked on
+   * by the whole team (block-hybrid Gauss–Seidel: see ./teamKernels.ts); smaller levels by thread 0 alone.
+   */
+  constructor(op: StencilOperator, team: Team | null = null, parallelMinCells = PARALLEL_MIN_CELLS) {
     const { scale, precision } = operatorScale(op);
     this.scale = scale;
     this.doublePrecision = precision === Float64Array;
-    const first = finestLevels(op, scale, precision);
+    this.team = team;
+    const alloc = team ? sharedAlloc : ordinaryAlloc;
+    const first = finestLevels(alloc, team, op, scale, precision);
     const levels: Level[] = [first.fine];
     if (first.coarse) {
       levels.push(first.coarse.level);
@@ -240,7 +279,7 @@ export class AggregationMultigrid implements VariablePreconditioner {
       for (;;) {
         const finer = levels[levels.length - 1]!;
         if (finer.n <= COARSEST_CELLS || (finer.nx === 1 && finer.ny === 1)) break;
-        const next = coarsen(finer, unknown, excess);
+        const next = coarsen(alloc, finer, unknown, excess);
         levels.push(next.level);
         unknown = next.unknown;
         excess = next.excess;
@@ -248,6 +287,13 @@ export class AggregationMultigrid implements VariablePreconditioner {
     }
     this.levels = levels;
     this.direct = new BandedCholesky(levels.length === 1 ? op : levels[levels.length - 1]!);
+    // the coarsest level is solved directly, by thread 0
+    this.shares = levels.map((L, l) => (team && l < levels.length - 1 && L.n >= parallelMinCells ? shareLevel(team, L) : null));
+  }
+
+  /** Threads working on each level (for the notes): the team's size on shared levels, 1 on the others. */
+  threadsPerLevel(): number[] {
+    return this.shares.map((s) => (s && this.team ? this.team.size : 1));
   }
 
   /** Notes for the solve statistics. */
@@ -261,14 +307,35 @@ export class AggregationMultigrid implements VariablePreconditioner {
       this.direct.solve(r, z);
       return;
     }
+    if (this.shares[0]) {
+      // the scaling is done by each thread on its block right after its last sweep
+      this.cycle(0, r, z, this.scale, -1);
+      return;
+    }
     this.cycle(0, r, z);
     // (scale A)^-1 = A^-1 * scale
     const scale = this.scale;
     if (scale !== 1) for (let p = 0; p < z.length; p++) z[p]! *= scale;
   }
 
-  /** x ~= A_l^{-1} b on level l (x is overwritten). */
-  private cycle(l: number, b: Float64Array, x: Float64Array): void {
+  /**
+   * z = M^{-1} r, and with a team on the finest level also the sums z·r and z·q, left in the team's partial sums 0
+   * and 1 (`team.sum(k)`). Returns false, computing no sums, where the finest level is not shared.
+   */
+  applyWithDots(r: Float64Array, z: Float64Array, q: Float64Array): boolean {
+    if (!this.shares[0] || !this.team || this.levels.length === 1) {
+      this.apply(r, z);
+      return false;
+    }
+    this.cycle(0, r, z, this.scale, this.team.id(q));
+    return true;
+  }
+
+  /**
+   * x ~= A_l^{-1} b on level l (x is overwritten). On a shared level, the last sweep scales x by `scale` and, with
+   * `dotWith` >= 0 (a team id), leaves x·b and x·(that array) in the team's partial sums.
+   */
+  private cycle(l: number, b: Float64Array, x: Float64Array, scale = 1, dotWith = -1): void {
     const levels = this.levels;
     const L = levels[l]!;
     if (l === levels.length - 1) {
@@ -276,6 +343,16 @@ export class AggregationMultigrid implements VariablePreconditioner {
       return;
     }
     const C = levels[l + 1]!;
+    const share = this.shares[l];
+    if (share && this.team) {
+      const team = this.team;
+      const grid = [L.nx, L.ny, share.diag, share.east, share.south, share.invDiag];
+      team.run(OP.smoothRestrict, [...grid, team.id(b), team.id(x), team.id(C.rhs)]);
+      if (l + 1 === levels.length - 1) this.direct.solve(C.rhs, C.v1);
+      else this.krylovCorrection(l + 1);
+      team.run(OP.prolongSmooth, [...grid, team.id(C.v1), team.id(b), team.id(x), share.halo, dotWith], [scale]);
+      return;
+    }
     smoothAndRestrict(L, b, x, C.rhs);
     // coarse correction into C.v1
     if (l + 1 === levels.length - 1) {
@@ -288,6 +365,10 @@ export class AggregationMultigrid implements VariablePreconditioner {
 
   /** Two flexible-CG steps on level c for A_c e = C.rhs, preconditioned by the cycle on c; e lands in C.v1. */
   private krylovCorrection(c: number): void {
+    if (this.shares[c]) {
+      this.teamKrylovCorrection(c);
+      return;
+    }
     const C = this.levels[c]!;
     const { rhs, v1, w1, r2, v2, w2 } = C;
     this.cycle(c, rhs, v1);
@@ -321,6 +402,51 @@ export class AggregationMultigrid implements VariablePreconditioner {
     const a2 = alpha2 / rho2;
     for (let i = 0; i < n; i++) v1[i] = a1 * v1[i]! + a2 * v2[i]!;
   }
+
+  /** krylovCorrection with every vector operation shared by the team (same steps, sums added in thread order). */
+  private teamKrylovCorrection(c: number): void {
+    const team = this.team!;
+    const C = this.levels[c]!;
+    const share = this.shares[c]!;
+    const { rhs, v1, v2 } = C;
+    const { nx, ny } = C;
+    const [iRhs, iV1, iW1, iR2, iV2, iW2] = [team.id(rhs), team.id(v1), team.id(C.w1), team.id(C.r2), team.id(v2), team.id(C.w2)];
+    const none = -1;
+    this.cycle(c, rhs, v1);
+    // w1 = A v1 and r2 = rhs - step1 w1 in one kernel (the threads add up the sums between the two themselves)
+    team.run(OP.krylovFirst, [nx, ny, share.diag, share.east, share.south, iV1, iW1, iRhs, iR2]);
+    const rho1 = team.sum(0);
+    const step1 = team.sum(1) / rho1;
+    const rr2 = team.sum(2);
+    const rr = team.sum(3);
+    if (!(rho1 > 0) || rr2 <= K_CYCLE_THRESHOLD * K_CYCLE_THRESHOLD * rr) {
+      team.run(OP.combine, [nx, ny, iV1, none], [rho1 > 0 ? step1 : 0]);
+      return;
+    }
+    this.cycle(c, C.r2, v2);
+    // w2 = A v2 and the combination of v1 and v2 in one kernel
+    team.run(OP.krylovSecond, [nx, ny, share.diag, share.east, share.south, iV2, iW2, iW1, iR2, iV1], [rho1, step1]);
+  }
+}
+
+/** The team's ids of a level's arrays, and the halo rows its prolongation–smoothing kernel needs. */
+interface LevelShare {
+  diag: number;
+  east: number;
+  south: number;
+  invDiag: number;
+  halo: number;
+}
+
+function shareLevel(team: Team, L: Level): LevelShare {
+  return {
+    diag: team.id(L.diag),
+    east: team.id(L.east),
+    south: team.id(L.south),
+    invDiag: team.id(L.invDiag),
+    // two rows per thread: the rows just north and south of its block, prolonged, as they were before the sweep
+    halo: team.id(sharedAlloc.f64(2 * team.size * L.nx)),
+  };
 }
 
 /**

@@ -6,10 +6,27 @@ import { weakBlockShare } from './roughness.js';
 import { IncompleteCholeskyPreconditioner, JacobiPreconditioner, SsorPreconditioner } from './preconditioners.js';
 import { StationarySolver } from './stationary.js';
 import { warmUpKernels } from './warmup.js';
+import { inSharedMemory, PARALLEL_MIN_CELLS, type Team } from './team.js';
 
 /** Grids with more cells than this get a kernel warm-up before the multigrid setup (see warmup.ts). */
 const WARM_UP_ABOVE = 100_000;
 import type { Preconditioner, Solver, SolverConfig, SolverFactory, StencilOperator } from './types.js';
+
+/**
+ * The team a set-up shares its work with: the configured one, when it has more than one thread, the grid is big enough
+ * for it, and the operator's bands are in shared memory (the helpers cannot read others; they are not copied).
+ * Returns it (its arrays reset for the new set-up) with the note on threads for the statistics.
+ */
+function teamFor(op: StencilOperator, config: SolverConfig): { team: Team | null; note: string } {
+  const team = config.team ?? null;
+  if (!team || (team.size < 2 && config.parallelMinCells === undefined)) return { team: null, note: 'threads: 1' };
+  if (op.n < (config.parallelMinCells ?? PARALLEL_MIN_CELLS)) return { team: null, note: 'threads: 1 (grid too small to share)' };
+  if (!inSharedMemory(op.diag) || !inSharedMemory(op.east) || !inSharedMemory(op.south) || !inSharedMemory(op.unknown)) {
+    return { team: null, note: 'threads: 1 (the operator is not in shared memory)' };
+  }
+  team.resetArrays();
+  return { team, note: `threads: ${team.size}` };
+}
 
 /** Wraps a preconditioner constructor as a PCG factory that times the setup. */
 function pcgFactory(method: string, build: ((op: StencilOperator, config: SolverConfig) => Preconditioner) | null): SolverFactory {
@@ -28,6 +45,8 @@ export interface SolverEntry {
    * (src/memory.ts). Counted from the allocations in the solver's source; optional (a default is used).
    */
   bytesPerCell?: number;
+  /** True when the method shares its work with a thread team given in its config (SolverConfig.team). */
+  threads?: boolean;
 }
 
 /** Every solver method by the name users give in `solver.method`. */
@@ -69,14 +88,21 @@ export const solverRegistry: Record<string, SolverEntry> = {
     bytesPerCell: 56, // r, z, p, q, inverse pivots, sweep vector
   },
   'pcg-multigrid': {
-    factory: (op) => {
+    factory: (op, config) => {
       const t0 = performance.now();
-      if (op.n > WARM_UP_ABOVE) warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
-      const mg = new AggregationMultigrid(op);
-      return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, [`multigrid ${mg.describe()}`]);
+      const { team, note } = teamFor(op, config);
+      // with a team every pass over a big level runs in the team's kernels, which each thread compiled as it started
+      // (warmUpAlone in ./teamKernels.ts); thread 0's own code runs on small levels only
+      if (op.n > WARM_UP_ABOVE && !team) warmUpKernels((small) => solverRegistry['pcg-multigrid']!.factory(small, {}));
+      const mg = new AggregationMultigrid(op, team, config.parallelMinCells);
+      const notes = [`multigrid ${mg.describe()}`, team ? `${note}; threads per level: ${mg.threadsPerLevel().join(', ')}` : note];
+      return new PcgSolver('pcg-multigrid', op, mg, (performance.now() - t0) / 1000, notes, team);
     },
     description: 'conjugate gradient preconditioned by aggregation multigrid (K-cycle); fast on large grids',
-    bytesPerCell: 128, // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands and K-cycle vectors)
+    threads: true,
+    // r, z, p, q, fine-level smoother data, coarse levels (about a third of the fine grid in total, each with bands
+    // and K-cycle vectors); with threads also the copies of b and x in shared memory (16)
+    bytesPerCell: 144,
   },
   'pcg-pairwise': {
     factory: (op) => {
@@ -120,6 +146,11 @@ export const ROUGH_SHARE = 0.02;
  */
 export function chooseAutoMethod(op: StencilOperator): string {
   return weakBlockShare(op) >= ROUGH_SHARE ? 'pcg-pairwise' : 'pcg-multigrid';
+}
+
+/** True when `method` (a registered name, not `auto`) shares its work with a thread team. */
+export function methodUsesThreads(method: string): boolean {
+  return Object.hasOwn(solverRegistry, method) && solverRegistry[method]!.threads === true;
 }
 
 /** Used for the memory budget of a method whose entry gives no estimate. */

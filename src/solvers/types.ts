@@ -1,3 +1,5 @@
+import type { Team } from './team.js';
+
 /**
  * The seams of the solver suite: operator, preconditioner, workspace-owning solver, statistics.
  * A solver is set up once per operator (factorisations, multigrid hierarchy, workspaces) and may then
@@ -91,4 +93,11 @@ export type SolverFactory = (op: StencilOperator, config: SolverConfig) => Solve
 export interface SolverConfig {
   /** Relaxation factor for SOR-type methods; undefined = choose automatically. */
   relaxation?: number;
+  /**
+   * A thread team to share the work (used by pcg-multigrid; the other methods run on one thread). The caller owns
+   * it: it is reused by every set-up it is given to and closed by the caller (./team.ts).
+   */
+  team?: Team | null;
+  /** Fewest cells of a level the team works on (default PARALLEL_MIN_CELLS; tests lower it to reach small grids). */
+  parallelMinCells?: number;
 }

@@ -67,7 +67,7 @@ describe('parseScenarioJson', () => {
     expect(errorsOf({ ...minimal, titel: 'x' })).toEqual(['scenario.json: titel: unknown key (did you mean "title"?)']);
     // Far from every key: the allowed keys are listed instead of a guess.
     expect(errorsOf({ ...minimal, solver: { banana: 1 } })[0]).toBe(
-      'scenario.json: solver.banana: unknown key (allowed here: method, tolerance, maxIterations, relaxation)',
+      'scenario.json: solver.banana: unknown key (allowed here: method, tolerance, maxIterations, relaxation, threads)',
     );
   });
 
