@@ -10,7 +10,7 @@
  * does not keep the process alive.
  */
 import { existsSync } from 'node:fs';
-import { availableParallelism, loadavg } from 'node:os';
+import { availableParallelism } from 'node:os';
 import { fileURLToPath } from 'node:url';
 import { MessageChannel, type MessagePort, Worker } from 'node:worker_threads';
 import { PiezomapError } from '../errors.js';
@@ -47,18 +47,17 @@ export type ThreadSetting = number | 'auto';
 
 /**
  * The number of threads a solve on `cells` cells uses for a setting. `auto`: one below AUTO_THREADS_MIN_CELLS; above,
- * the cores the machine offers (at most AUTO_THREADS_MAX) less those already busy with other work, going by the
- * one-minute load average less this process's own running thread (as `make -l` does). The team's threads meet at a
- * barrier hundreds of times a second, so a thread that has to wait for a core holds up all the others: on a machine
- * whose cores are all taken, more threads make a solve slower, not faster (bench/README.md, "Threads").
+ * the cores the machine offers, at most AUTO_THREADS_MAX. It depends on the machine and the grid only, never on the
+ * load at the moment: the thread count decides how the block Gauss–Seidel smoother splits the rows, so a run's heads
+ * are the same bytes every time it is repeated on the same machine. On a machine whose cores are all taken by other
+ * work more threads make a solve slower (a thread waiting for a core holds up the others at every barrier,
+ * bench/README.md, "Threads"): there, `--threads 1` is the better choice, and the README says so.
  */
-export function resolveThreads(setting: ThreadSetting | undefined, cells: number, load = loadavg()[0]!): number {
+export function resolveThreads(setting: ThreadSetting | undefined, cells: number): number {
   if (setting === undefined) return 1;
   if (setting === 'auto') {
     if (cells < AUTO_THREADS_MIN_CELLS) return 1;
-    const cores = Math.min(availableParallelism(), AUTO_THREADS_MAX);
-    const busy = Math.max(0, load - 1);
-    return Math.max(1, Math.min(cores, Math.round(cores - busy)));
+    return Math.max(1, Math.min(availableParallelism(), AUTO_THREADS_MAX));
   }
   return Math.max(1, Math.floor(setting));
 }
