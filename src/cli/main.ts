@@ -22,6 +22,7 @@ import { comparisonProblem } from '../compare/types.js';
 import { parseSolverOption } from '../scenario/solverSettings.js';
 import type { SolverSettings } from '../scenario/types.js';
 import { abandonResultFoldersSync, prepareResultFolder } from '../output/resultFolder.js';
+import { startWritePool, type WritePool } from '../output/writePool.js';
 import { formatInspect, inspectReport } from './inspect.js';
 import { makeProgress, clearProgress } from './progress.js';
 import { addEnsembleCommand } from './ensemble.js';
@@ -129,6 +130,16 @@ function writersModule(): Promise<typeof import('../output/solveFiles.js')> {
 }
 
 async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  // The result-writing threads start first: they load their modules on the other cores while this one loads and solves.
+  const pool = startWritePool();
+  try {
+    return await solveAndWrite(scenario, outDir, flags, io, pool);
+  } finally {
+    void pool?.close();
+  }
+}
+
+async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags, io: CliIO, pool: WritePool | null): Promise<number> {
   const { options, progress } = runOptions(flags);
   const t0 = performance.now();
   progress?.({ stage: 'load', message: `reading ${scenario}` });
@@ -142,7 +153,7 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
   const result = await solveModelWith(model, executor(), options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const { writeSolveResults } = await writers;
-  const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
+  const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), pool, ...productOptions(flags) });
   clearProgress();
   const problem = resultProblem(result);
   if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');

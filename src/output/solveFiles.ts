@@ -6,12 +6,15 @@
 import { resultProblem, type SolveResult } from '../analysis/result.js';
 import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff, encodeFloat32GeoTiffAsync } from '../raster/write.js';
+import { settleFiles, type LaterFile } from './pending.js';
+import type { WritePool } from './writePool.js';
 import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
 import {
-  exchangeRasters,
+  exchangeRastersWith,
   reportInputs,
   reportRun,
+  solveProductsOnPool,
   solveProductsWith,
   type PendingFile,
   type ProductOptions,
@@ -20,7 +23,7 @@ import {
 } from './products.js';
 import { prepareResultFolder, releaseResultFolder, RESULT_MARKER, writeResultFiles, type OutputFile } from './resultFolder.js';
 import { budgetCsv, buildSummary, convergenceCsv, outerConvergenceCsv, type SummaryJson } from './summary.js';
-import { trackingFiles } from './tracking.js';
+import { trackingFilesWith } from './tracking.js';
 import { headsForOutput, saturatedThicknessField } from '../discretisation/aquifer.js';
 
 export const REPORT_FILE = 'report.html';
@@ -46,6 +49,25 @@ function bundleWith<B extends Uint8Array | Promise<Uint8Array>>(
   options: ProductOptions,
   encode: RasterEncoder<B>,
 ): { files: Array<PendingFile<B>>; maps: RenderedMap[] } {
+  const files = tableFiles(result, prefix, encode);
+  if (resultProblem(result) !== null) return { files, maps: [] };
+  files.push(...exchangeRastersWith(result, prefix, encode));
+  const products = solveProductsWith(result, options, prefix, encode);
+  for (const w of products.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
+  files.push(...products.files);
+  // Capture zones, pathlines and their rasters are data (written with or without maps).
+  const tracking = trackingFilesWith(result, prefix, options, encode);
+  for (const w of tracking.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
+  files.push(...tracking.files);
+  return { files, maps: products.maps };
+}
+
+/** The head raster (head.tif, or head-not-converged.tif), budget and convergence tables, and the saturated thickness of a water table. */
+function tableFiles<B extends Uint8Array | Promise<Uint8Array>>(
+  result: SolveResult,
+  prefix: string,
+  encode: RasterEncoder<B>,
+): Array<PendingFile<B>> {
   const sound = resultProblem(result) === null;
   const files: Array<PendingFile<B>> = [];
   const description = `piezomap ${VERSION} head (${result.model.units.length}): ${result.model.title}. ${CAUTION}`;
@@ -58,22 +80,13 @@ function bundleWith<B extends Uint8Array | Promise<Uint8Array>>(
   files.push({ name: prefix + 'convergence.csv', bytes: outer ? outerConvergenceCsv(outer) : convergenceCsv(result.stats.history) });
   if (table !== null) {
     const thicknessDescription = `piezomap ${VERSION} saturated thickness (${result.model.units.length}; 0 = dry): ${result.model.title}. ${CAUTION}`;
-    const bytes = encodeFloat32GeoTiff(result.model.grid, saturatedThicknessField(table, result.head), {
+    const bytes = encode(result.model.grid, saturatedThicknessField(table, result.head), {
       nodata: -9999,
       description: thicknessDescription,
     });
     files.push({ name: prefix + (sound ? 'saturated-thickness.tif' : 'saturated-thickness-not-converged.tif'), bytes });
   }
-  if (!sound) return { files, maps: [] };
-  files.push(...exchangeRasters(result, prefix));
-  const products = solveProductsWith(result, options, prefix, encode);
-  for (const w of products.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
-  files.push(...products.files);
-  // Capture zones, pathlines and their rasters are data (written with or without maps).
-  const tracking = trackingFiles(result, prefix, options);
-  for (const w of tracking.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
-  files.push(...tracking.files);
-  return { files, maps: products.maps };
+  return files;
 }
 
 /**
@@ -85,6 +98,38 @@ export async function resultBundleConcurrent(result: SolveResult, prefix = '', o
   // all at once, so that no rejection waits unobserved behind another file
   const bytes = await Promise.all(bundle.files.map((f) => f.bytes));
   return { files: bundle.files.map((f, i) => ({ name: f.name, bytes: bytes[i]! })), maps: bundle.maps };
+}
+
+/**
+ * As resultBundle, the same files in the same order, built on a write pool (./writePool.ts): rasters, contour
+ * tracing and the map in its worker threads, the tables and GeoJSON here. The product jobs go first (the contours,
+ * then the map, are the longest chain). Resolves once every file is complete; a failure is that of the first file
+ * (in order) that failed, as with resultBundle.
+ */
+export async function resultBundleOnPool(
+  result: SolveResult,
+  prefix: string,
+  options: ProductOptions,
+  pool: WritePool,
+): Promise<ResultBundle> {
+  const encode: RasterEncoder<Promise<Uint8Array>> = (grid, values, encodeOptions) => pool.geotiff(grid, values, encodeOptions);
+  const sound = resultProblem(result) === null;
+  const products = sound ? solveProductsOnPool(result, options, prefix, pool) : null;
+  const files: LaterFile[] = tableFiles(result, prefix, encode);
+  let trackingWarnings: string[] = [];
+  if (products) {
+    files.push(...exchangeRastersWith(result, prefix, encode));
+    files.push(...products.files);
+    const tracking = trackingFilesWith(result, prefix, options, encode);
+    files.push(...tracking.files);
+    trackingWarnings = tracking.warnings;
+  }
+  const done = await settleFiles(files, products ? [products.maps, products.warnings] : []);
+  if (!products) return { files: done, maps: [] };
+  // the warnings in resultBundle's order: the products', then the tracking's
+  for (const w of await products.warnings) if (!result.warnings.includes(w)) result.warnings.push(w);
+  for (const w of trackingWarnings) if (!result.warnings.includes(w)) result.warnings.push(w);
+  return { files: done, maps: await products.maps };
 }
 
 export function resultFiles(result: SolveResult, prefix = '', options: ProductOptions = {}): OutputFile[] {
@@ -124,16 +169,20 @@ export function solveFolderFiles(
   return folderFromBundle(result, bundle, prefix, extra, extraMaps);
 }
 
-/** As solveFolderFiles, the same files, with the rasters compressed concurrently (resultBundleConcurrent). */
+/**
+ * As solveFolderFiles, the same files, built concurrently: on `pool` when given (resultBundleOnPool), else with the
+ * rasters compressed on the thread pool (resultBundleConcurrent).
+ */
 export async function solveFolderFilesConcurrent(
   result: SolveResult,
   prefix: string,
   options: ProductOptions,
   extra: OutputFile[] = [],
   extraMaps: RenderedMap[] = [],
+  pool: WritePool | null = null,
 ): Promise<{ files: OutputFile[]; maps: RenderedMap[]; summary: SummaryJson }> {
   const t = performance.now();
-  const bundle = await resultBundleConcurrent(result, prefix, options);
+  const bundle = pool ? await resultBundleOnPool(result, prefix, options, pool) : await resultBundleConcurrent(result, prefix, options);
   if (prefix === '') result.timings.write = (performance.now() - t) / 1000;
   return folderFromBundle(result, bundle, prefix, extra, extraMaps);
 }
@@ -160,18 +209,20 @@ function folderFromBundle(
 /**
  * Write the result folder of one solve: refuses a folder holding any input of the run, or (unless `overwrite`)
  * earlier results; locks it for the run; replaces earlier results all-or-nothing (src/output/resultFolder.ts).
+ * With `pool` (./writePool.ts, started early by the caller so that its threads are ready), the products are built
+ * in its worker threads.
  * What the folder preparation cleaned up (leftovers of interrupted runs) goes into the warnings.
  * Returns the summary that was written.
  */
 export async function writeSolveResults(
   result: SolveResult,
   outDir: string,
-  options: { overwrite?: boolean } & ProductOptions = {},
+  options: { overwrite?: boolean; pool?: WritePool | null } & ProductOptions = {},
 ): Promise<SummaryJson> {
   const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), result.model.inputFiles);
   for (const note of folder.notes) if (!result.warnings.includes(note)) result.warnings.push(note);
   try {
-    const { files, summary } = await solveFolderFilesConcurrent(result, '', options);
+    const { files, summary } = await solveFolderFilesConcurrent(result, '', options, [], [], options.pool ?? null);
     await writeResultFiles(folder, files);
     return summary;
   } finally {

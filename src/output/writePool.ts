@@ -1,0 +1,213 @@
+/**
+ * Result products built on a small pool of worker threads (`piezomap solve` and `compare`): GeoTIFF encoding
+ * (tiles, predictor, DEFLATE), contour tracing (the levels of one field split between the threads) and the map
+ * (SVG drawn and rasterised to PNG). Each job runs the same code as the one-after-another writer (./solveFiles.ts
+ * `resultBundle`), so the bytes are the same; the main thread only hands out jobs and assembles the files, and stays
+ * free for the report and for signals.
+ *
+ * Large arrays go to the workers in shared memory (src/executor/shared.ts), not copied per job: an array is copied
+ * there once (`WritePool.share`, remembered per array) and every job that reads it uses that copy. Results come back
+ * transferred (GeoTIFF bytes, PNG bytes, contour polylines), not copied.
+ *
+ * Scheduling: the workers take the next job when they are free, `urgent` jobs first (contours and maps, the longest
+ * chain: contours -> map), then the others in the order given. Workers hold the process open only while they have
+ * work; `close()` ends them.
+ */
+import { Worker } from 'node:worker_threads';
+import { existsSync } from 'node:fs';
+import { availableParallelism } from 'node:os';
+import { fileURLToPath } from 'node:url';
+import { PiezomapError, type ErrorCode, type ErrorDetail } from '../errors.js';
+import type { Grid } from '../grid.js';
+import type { EncodeOptions } from '../raster/write.js';
+import type { ContourLevel, ContourOptions, ContourSet } from '../analysis/contours.js';
+import { contourPlan } from '../analysis/contours.js';
+import type { MapInput, MapOptions } from '../report/index.js';
+import type { TrackingRun } from '../analysis/tracking/run.js';
+import { shared } from '../executor/shared.js';
+
+/** A map to draw in a worker: MapInput without its overlays (functions), with the tracking run they are drawn from. */
+export interface MapJobInput extends Omit<MapInput, 'overlays'> {
+  tracking?: { run: TrackingRun; units: { time: string } };
+}
+
+/** Main thread to worker. */
+export type WriteJob =
+  | { kind: 'geotiff'; grid: Grid; values: Float64Array; options: EncodeOptions }
+  | { kind: 'contours'; grid: Grid; values: Float64Array; levels: number[] }
+  | { kind: 'map'; input: MapJobInput; options: MapOptions };
+
+export interface WriteRequest {
+  id: number;
+  job: WriteJob;
+}
+
+/** Worker to main thread. */
+export type WriteReply =
+  | { id: number; ok: true; bytes: Uint8Array }
+  | { id: number; ok: true; levels: ContourLevel[] }
+  | { id: number; ok: false; code: ErrorCode; message: string; detail: ErrorDetail; stack?: string | undefined };
+
+const WORKER_URL = new URL('./writeWorker.js', import.meta.url);
+
+/** True when the compiled worker script is there (it is not when running from TypeScript sources). */
+export function writeWorkersAvailable(): boolean {
+  return existsSync(fileURLToPath(WORKER_URL));
+}
+
+/** Workers a pool starts by default: one per core, at most 4 (there are rarely more than 4 jobs at once). */
+export function defaultWriteThreads(): number {
+  return Math.max(1, Math.min(4, availableParallelism()));
+}
+
+interface Task {
+  id: number;
+  job: WriteJob;
+  resolve: (reply: WriteReply) => void;
+  reject: (error: Error) => void;
+}
+
+interface Slot {
+  worker: Worker;
+  task: Task | null;
+}
+
+export class WritePool {
+  private readonly slots: Slot[] = [];
+  private readonly urgent: Task[] = [];
+  private readonly normal: Task[] = [];
+  private readonly sharedCopies = new WeakMap<ArrayBufferView, Float64Array>();
+  private failure: Error | null = null;
+  private closed = false;
+  private nextId = 1;
+
+  constructor(readonly threads: number) {
+    for (let k = 0; k < threads; k++) {
+      // workerData must be an object: geotiff's web-worker shim reads workerData.mod when loaded off the main thread.
+      const worker = new Worker(WORKER_URL, { workerData: {} });
+      const slot: Slot = { worker, task: null };
+      worker.unref();
+      worker.on('message', (reply: WriteReply) => this.settle(slot, reply));
+      worker.on('error', (thrown) => this.fail(new PiezomapError('internal', `a result-writing thread failed: ${thrown.message}`)));
+      worker.on('exit', (code) => {
+        if (!this.closed) this.fail(new PiezomapError('internal', `a result-writing thread stopped unexpectedly (exit code ${code})`));
+      });
+      this.slots.push(slot);
+    }
+  }
+
+  /** `values` in shared memory: itself when it is there, else one copy made on the first call and reused after. */
+  share(values: Float64Array): Float64Array {
+    let copy = this.sharedCopies.get(values);
+    if (!copy) {
+      copy = shared(values);
+      this.sharedCopies.set(values, copy);
+    }
+    return copy;
+  }
+
+  /** A Float32 GeoTIFF of `values`, as encodeFloat32GeoTiff gives it. */
+  async geotiff(grid: Grid, values: Float64Array, options: EncodeOptions): Promise<Uint8Array> {
+    const reply = await this.run({ kind: 'geotiff', grid, values: this.share(values), options }, false);
+    return (reply as { bytes: Uint8Array }).bytes;
+  }
+
+  /** The contours contourField gives, with the levels traced in parallel, several levels per job. */
+  async contours(grid: Grid, values: Float64Array, options: ContourOptions = {}): Promise<ContourSet> {
+    const plan = contourPlan(grid, values, options);
+    const sharedValues = this.share(values);
+    // Interleaved chunks (levels k, k + c, k + 2c, ...) cost about the same; two per thread balance the rest.
+    const chunks = Math.min(plan.levels.length, 2 * this.threads);
+    const jobs: Array<Promise<ContourLevel[]>> = [];
+    for (let c = 0; c < chunks; c++) {
+      const levels = plan.levels.filter((_, i) => i % chunks === c);
+      jobs.push(
+        this.run({ kind: 'contours', grid, values: sharedValues, levels }, true).then((r) => (r as { levels: ContourLevel[] }).levels),
+      );
+    }
+    const traced = await Promise.all(jobs);
+    const levels = plan.levels.map((_, i) => traced[i % chunks]![Math.floor(i / chunks)]!);
+    return { levels, interval: plan.interval, note: plan.note };
+  }
+
+  /** The map as PNG bytes, as renderMapPng draws it. */
+  async mapPng(input: MapJobInput, options: MapOptions = {}): Promise<Uint8Array> {
+    const job: MapJobInput = { ...input, values: this.share(input.values) };
+    if (input.flux) job.flux = { qx: this.share(input.flux.qx), qy: this.share(input.flux.qy) };
+    const reply = await this.run({ kind: 'map', input: job, options }, true);
+    return (reply as { bytes: Uint8Array }).bytes;
+  }
+
+  /**
+   * End the workers. Jobs still pending are dropped, not refused: they belong to a write that has already failed
+   * (its caller is gone), and a refusal nobody waits for would end the process as an unhandled rejection.
+   */
+  async close(): Promise<void> {
+    if (this.closed) return;
+    this.closed = true;
+    this.failure ??= new PiezomapError('internal', 'the result-writing threads were closed');
+    this.urgent.length = 0;
+    this.normal.length = 0;
+    await Promise.all(this.slots.map((s) => s.worker.terminate()));
+  }
+
+  private run(job: WriteJob, urgent: boolean): Promise<WriteReply> {
+    if (this.failure) return Promise.reject(this.failure);
+    return new Promise((resolve, reject) => {
+      (urgent ? this.urgent : this.normal).push({ id: this.nextId++, job, resolve, reject });
+      this.dispatch();
+    });
+  }
+
+  private dispatch(): void {
+    for (const slot of this.slots) {
+      if (slot.task) continue;
+      const task = this.urgent.shift() ?? this.normal.shift();
+      if (!task) break;
+      slot.task = task;
+      // a worker with work holds the process open; an idle one does not
+      slot.worker.ref();
+      try {
+        slot.worker.postMessage({ id: task.id, job: task.job } satisfies WriteRequest);
+      } catch (error) {
+        // e.g. an array that cannot be cloned
+        slot.task = null;
+        slot.worker.unref();
+        task.reject(
+          new PiezomapError('internal', `cannot hand a ${task.job.kind} job to a result-writing thread: ${(error as Error).message}`),
+        );
+      }
+    }
+  }
+
+  private settle(slot: Slot, reply: WriteReply): void {
+    const task = slot.task;
+    if (!task || task.id !== reply.id) return;
+    slot.task = null;
+    slot.worker.unref();
+    if (reply.ok) task.resolve(reply);
+    else {
+      const error = new PiezomapError(reply.code, reply.message, reply.detail);
+      if (reply.stack) error.stack = reply.stack;
+      task.reject(error);
+    }
+    this.dispatch();
+  }
+
+  private fail(error: Error): void {
+    this.failure ??= error;
+    const pending = [...this.urgent.splice(0), ...this.normal.splice(0)];
+    for (const slot of this.slots) {
+      if (slot.task) pending.push(slot.task);
+      slot.task = null;
+      slot.worker.unref();
+    }
+    for (const task of pending) task.reject(this.failure);
+  }
+}
+
+/** A pool of `threads` result-writing workers (default: one per core, at most 4), or null when the compiled worker is not there. */
+export function startWritePool(threads = defaultWriteThreads()): WritePool | null {
+  if (!writeWorkersAvailable() || !(threads >= 1)) return null;
+  return new WritePool(Math.floor(threads));
+}

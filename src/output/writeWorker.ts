@@ -1,0 +1,44 @@
+/**
+ * The worker-thread side of ./writePool.ts: one job at a time, answered with its bytes (GeoTIFF, PNG) or contour
+ * lines, transferred, not copied. The code is the one the one-after-another writer runs, so the bytes are the same.
+ */
+import { parentPort } from 'node:worker_threads';
+import { PiezomapError, describeThrown } from '../errors.js';
+import { encodeFloat32GeoTiff } from '../raster/write.js';
+import { traceContourLevels } from '../analysis/contours.js';
+import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
+import type { WriteReply, WriteRequest } from './writePool.js';
+
+const port = parentPort;
+if (!port) throw new Error('writeWorker.js runs only as a worker thread');
+
+port.on('message', ({ id, job }: WriteRequest) => {
+  try {
+    if (job.kind === 'geotiff') {
+      const bytes = encodeFloat32GeoTiff(job.grid, job.values, job.options);
+      port.postMessage({ id, ok: true, bytes } satisfies WriteReply, [bytes.buffer as ArrayBuffer]);
+    } else if (job.kind === 'contours') {
+      const levels = traceContourLevels(job.grid, job.values, job.levels);
+      const transfer = [...new Set(levels.flatMap((l) => l.lines.map((line) => line.buffer as ArrayBuffer)))];
+      port.postMessage({ id, ok: true, levels } satisfies WriteReply, transfer);
+    } else {
+      const { tracking, ...rest } = job.input;
+      const input: MapInput = tracking ? { ...rest, overlays: [trackingOverlay(tracking.run, tracking.units)] } : rest;
+      const bytes = renderMapPng(input, job.options).png;
+      port.postMessage({ id, ok: true, bytes } satisfies WriteReply, [bytes.buffer as ArrayBuffer]);
+    }
+  } catch (thrown) {
+    const error =
+      thrown instanceof PiezomapError
+        ? thrown
+        : new PiezomapError('internal', `${job.kind} in a result-writing thread: ${describeThrown(thrown)}`);
+    port.postMessage({
+      id,
+      ok: false,
+      code: error.code,
+      message: error.message,
+      detail: error.detail,
+      stack: error.stack,
+    } satisfies WriteReply);
+  }
+});
