@@ -3,14 +3,12 @@
  * quick-look map and the pieces of the HTML report. Pure functions of a SolveResult: no file system here.
  */
 import { dryCells, headsForOutput, saturatedThicknessField } from '../discretisation/aquifer.js';
-import { contourField, contoursToGeoJson, type ContourOptions, type ContourSet } from '../analysis/contours.js';
+import type { ContourSet } from '../analysis/contours.js';
 import { darcyFlux, linearVelocity, type DarcyFlux } from '../analysis/flux.js';
-import { crsLabel, type Grid } from '../grid.js';
 import { CAUTION } from '../caution.js';
 import { PiezomapError } from '../errors.js';
 import { VERSION } from '../version.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
-import { makeTransform } from '../crs.js';
 import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
 import type { ReportInputs, ReportRun, ReportMap } from '../report/index.js';
 import type { SolveResult } from '../analysis/result.js';
@@ -45,66 +43,8 @@ export interface Products {
 
 export type { PendingFile, RasterEncoder } from './pending.js';
 
-const WGS84 = 4326;
-
-/** Contour GeoJSON files for a field: RFC 7946 (WGS 84) when the raster has an EPSG code, native on request. */
-export function contourFiles(
-  grid: Grid,
-  field: Float64Array,
-  quantity: 'head' | 'drawdown',
-  units: string,
-  options: ProductOptions,
-  prefix: string,
-): { files: OutputFile[]; contours: ContourSet; warnings: string[] } {
-  const contours = contourField(grid, field, contourOptions(options));
-  return { ...contourFilesOf(grid, contours, quantity, units, options, prefix), contours };
-}
-
-/** The contour options of the product options. */
-export function contourOptions(options: ProductOptions): ContourOptions {
-  return options.contourInterval ? { interval: options.contourInterval } : {};
-}
-
-/** The names contourFiles gives its files, known before the contours are traced. */
-export function contourFileNames(grid: Grid, quantity: 'head' | 'drawdown', options: ProductOptions, prefix: string): string[] {
-  const epsg = grid.crs?.epsg ?? null;
-  const names: string[] = [];
-  if (epsg !== null) names.push(`${prefix}${quantity}-contours.geojson`);
-  if (options.nativeContours || epsg === null) names.push(`${prefix}${quantity}-contours.native.geojson`);
-  return names;
-}
-
-/** The files and warnings of contourFiles for contours already traced. */
-export function contourFilesOf(
-  grid: Grid,
-  contours: ContourSet,
-  quantity: 'head' | 'drawdown',
-  units: string,
-  options: ProductOptions,
-  prefix: string,
-): { files: OutputFile[]; warnings: string[] } {
-  const files: OutputFile[] = [];
-  const warnings: string[] = contours.note ? [`${quantity} contours: ${contours.note}`] : [];
-  const epsg = grid.crs?.epsg ?? null;
-  if (epsg !== null) {
-    const transform = makeTransform(epsg, WGS84);
-    const collection = contoursToGeoJson(contours, {
-      quantity,
-      units,
-      toLonLat: (x, y) => transform.forward(x, y, `${quantity} contour vertex`),
-    });
-    files.push({ name: `${prefix}${quantity}-contours.geojson`, bytes: JSON.stringify(collection) + '\n' });
-  } else {
-    warnings.push(
-      `the raster has no EPSG code, so ${quantity} contours are written only in its own coordinates (${quantity}-contours.native.geojson)`,
-    );
-  }
-  if (options.nativeContours || epsg === null) {
-    const collection = contoursToGeoJson(contours, { quantity, units, crsLabel: crsLabel(grid.crs) });
-    files.push({ name: `${prefix}${quantity}-contours.native.geojson`, bytes: JSON.stringify(collection) + '\n' });
-  }
-  return { files, warnings };
-}
+export { contourFileNames, contourFiles, contourFilesOf, contourOptions } from './contourFiles.js';
+import { contourFileNames, contourFiles, contourOptions } from './contourFiles.js';
 
 function fluxOf(result: SolveResult): DarcyFlux {
   return darcyFlux({
@@ -240,9 +180,9 @@ export function solveProductsOnPool(
     const velocity = linearVelocity(model.grid, flux, model.porosity);
     rasters.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity', encode));
   }
-  // The map is handed out as soon as the contours are back, before their GeoJSON is written here.
+  // The map is handed out as soon as the contours are back, then their GeoJSON (both in the workers).
   const png = observed(contours.then((c) => pool.mapPng(mapJobInput(headMapInput(result, c, flux), result))));
-  const contourOut = observed(contours.then((c) => contourFilesOf(model.grid, c, 'head', model.units.length, options, prefix)));
+  const contourOut = observed(contours.then((c) => pool.contourFiles(model.grid, c, 'head', model.units.length, options, prefix)));
   const files: LaterFile[] = contourFileNames(model.grid, 'head', options, prefix).map((name) => ({
     name,
     bytes: contourOut.then((out) => out.files.find((f) => f.name === name)!.bytes),

@@ -25,6 +25,8 @@ import { contourPlan } from '../analysis/contours.js';
 import type { MapInput, MapOptions } from '../report/index.js';
 import type { TrackingRun } from '../analysis/tracking/run.js';
 import { shared } from '../executor/shared.js';
+import type { ContourFileOptions } from './contourFiles.js';
+import type { OutputFile } from './resultFolder.js';
 
 /** A map to draw in a worker: MapInput without its overlays (functions), with the tracking run they are drawn from. */
 export interface MapJobInput extends Omit<MapInput, 'overlays'> {
@@ -35,7 +37,16 @@ export interface MapJobInput extends Omit<MapInput, 'overlays'> {
 export type WriteJob =
   | { kind: 'geotiff'; grid: Grid; values: Float64Array; options: EncodeOptions }
   | { kind: 'contours'; grid: Grid; values: Float64Array; levels: number[] }
-  | { kind: 'map'; input: MapJobInput; options: MapOptions };
+  | { kind: 'map'; input: MapJobInput; options: MapOptions }
+  | {
+      kind: 'contourFiles';
+      grid: Grid;
+      contours: ContourSet;
+      quantity: 'head' | 'drawdown';
+      units: string;
+      options: ContourFileOptions;
+      prefix: string;
+    };
 
 export interface WriteRequest {
   id: number;
@@ -46,6 +57,7 @@ export interface WriteRequest {
 export type WriteReply =
   | { id: number; ok: true; bytes: Uint8Array }
   | { id: number; ok: true; levels: ContourLevel[] }
+  | { id: number; ok: true; files: OutputFile[]; warnings: string[] }
   | { id: number; ok: false; code: ErrorCode; message: string; detail: ErrorDetail; stack?: string | undefined };
 
 const WORKER_URL = new URL('./writeWorker.js', import.meta.url);
@@ -136,6 +148,23 @@ export class WritePool {
     if (input.flux) job.flux = { qx: this.share(input.flux.qx), qy: this.share(input.flux.qy) };
     const reply = await this.run({ kind: 'map', input: job, options }, true);
     return (reply as { bytes: Uint8Array }).bytes;
+  }
+
+  /** The contour GeoJSON files of contourFilesOf (./contourFiles.ts), written in a worker (which holds proj4 for the WGS 84 ones). */
+  async contourFiles(
+    grid: Grid,
+    contours: ContourSet,
+    quantity: 'head' | 'drawdown',
+    units: string,
+    options: ContourFileOptions,
+    prefix: string,
+  ): Promise<{ files: OutputFile[]; warnings: string[] }> {
+    const picked: ContourFileOptions = {};
+    if (options.nativeContours !== undefined) picked.nativeContours = options.nativeContours;
+    if (options.contourInterval !== undefined) picked.contourInterval = options.contourInterval;
+    const reply = await this.run({ kind: 'contourFiles', grid, contours, quantity, units, options: picked, prefix }, true);
+    const { files, warnings } = reply as { files: OutputFile[]; warnings: string[] };
+    return { files, warnings };
   }
 
   /**

@@ -7,6 +7,7 @@ import { PiezomapError, describeThrown } from '../errors.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { traceContourLevels } from '../analysis/contours.js';
 import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
+import { contourFilesOf } from './contourFiles.js';
 import type { WriteReply, WriteRequest } from './writePool.js';
 
 const port = parentPort;
@@ -21,6 +22,9 @@ port.on('message', ({ id, job }: WriteRequest) => {
       const levels = traceContourLevels(job.grid, job.values, job.levels);
       const transfer = [...new Set(levels.flatMap((l) => l.lines.map((line) => line.buffer as ArrayBuffer)))];
       port.postMessage({ id, ok: true, levels } satisfies WriteReply, transfer);
+    } else if (job.kind === 'contourFiles') {
+      const { files, warnings } = contourFilesOf(job.grid, job.contours, job.quantity, job.units, job.options, job.prefix);
+      port.postMessage({ id, ok: true, files, warnings } satisfies WriteReply);
     } else {
       const { tracking, ...rest } = job.input;
       const input: MapInput = tracking ? { ...rest, overlays: [trackingOverlay(tracking.run, tracking.units)] } : rest;
