@@ -167,6 +167,15 @@ async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags
 }
 
 async function runCompare(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  const pool = startWritePool();
+  try {
+    return await compareAndWrite(scenario, outDir, flags, io, pool);
+  } finally {
+    void pool?.close();
+  }
+}
+
+async function compareAndWrite(scenario: string, outDir: string, flags: SolveFlags, io: CliIO, pool: WritePool | null): Promise<number> {
   const { options, progress } = runOptions(flags);
   progress?.({ stage: 'load', message: `reading ${scenario}` });
   const [{ loadScenario }, { compareModelsWith, resolveVariants }, { comparisonProblem }, { prepareResultFolder }, { formatComparison }] =
@@ -195,7 +204,7 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
   const comparison = await compareModelsWith(loaded.model, variants, await executor(), options);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const { writeComparisonResults } = await writers;
-  const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
+  const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), pool, ...productOptions(flags) });
   clearProgress();
   if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');
   else io.stdout(formatComparison(summary, outDir));

@@ -18,6 +18,8 @@ type Pool = typeof import('../../src/output/writePool.js');
 type Pipeline = typeof import('../../src/pipeline.js');
 type Contours = typeof import('../../src/analysis/contours.js');
 type Errors = typeof import('../../src/errors.js');
+type CompareRun = typeof import('../../src/compare/run.js');
+type ComparisonFiles = typeof import('../../src/output/comparisonFiles.js');
 type SolveResult = import('../../src/analysis/result.js').SolveResult;
 
 const same = (a: Uint8Array | string, b: Uint8Array | string) => Buffer.from(a).equals(Buffer.from(b));
@@ -28,9 +30,15 @@ describe.skipIf(!compiled)('write pool', () => {
   let pipeline: Pipeline;
   let contours: Contours;
   let errors: Errors;
+  let compare: CompareRun;
+  let comparisonFiles: ComparisonFiles;
   let pool: import('../../src/output/writePool.js').WritePool;
 
   beforeAll(async () => {
+    [compare, comparisonFiles] = await Promise.all([
+      import(dist('compare/run.js').href) as Promise<CompareRun>,
+      import(dist('output/comparisonFiles.js').href) as Promise<ComparisonFiles>,
+    ]);
     [files, pools, pipeline, contours, errors] = await Promise.all([
       import(dist('output/solveFiles.js').href) as Promise<SolveFiles>,
       import(dist('output/writePool.js').href) as Promise<Pool>,
@@ -78,6 +86,22 @@ describe.skipIf(!compiled)('write pool', () => {
       expect(pooledWarnings).toEqual(serialWarnings);
     }, 60_000);
   }
+
+  it("gives comparisonFiles' files for the demo comparison (baseline and variants, drawdown products), byte for byte", async () => {
+    // each writer adds warnings to the results it is given: each gets a comparison of its own
+    const serial = comparisonFiles.comparisonFiles(await compare.compareScenario(data('valley.json')), {});
+    const pooled = await comparisonFiles.comparisonFilesOnPool(await compare.compareScenario(data('valley.json')), {}, pool);
+    const names = serial.files.map((f) => f.name);
+    expect(pooled.files.map((f) => f.name)).toEqual(names);
+    expect(names.filter((n) => n.endsWith('/drawdown-map.png')).length).toBeGreaterThan(0);
+    for (let i = 0; i < serial.files.length; i++) {
+      const [a, b] = [serial.files[i]!, pooled.files[i]!];
+      // summaries and reports carry each run's timings; every other file is the same byte for byte
+      if (a.name.endsWith('summary.json') || a.name.endsWith('report.html')) continue;
+      expect(same(b.bytes, a.bytes), a.name).toBe(true);
+    }
+    expect(pooled.summary.warnings).toEqual(serial.summary.warnings);
+  }, 120_000);
 
   it('traces the contours contourField traces, whatever the number of levels', async () => {
     const grid = { nx: 61, ny: 47, transform: [0, 10, 0, 470, 0, -10] as const, crs: null };
