@@ -3,7 +3,6 @@
  * maps per variant, comparison.csv, the comparison report and summary.json (last). Built from a ComparisonResult
  * (src/compare/types.ts); no solving here.
  */
-import type { SolveResult } from '../analysis/result.js';
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare/types.js';
 import type { ContourSet } from '../analysis/contours.js';
