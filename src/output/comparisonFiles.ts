@@ -11,6 +11,7 @@ import { PiezomapError } from '../errors.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderMapPng, renderReportHtml, type MapInput, type ReportRun } from '../report/index.js';
 import { VERSION } from '../version.js';
+import { resultRasterOptions } from './rasterOptions.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
 import { comparisonCsv, comparisonSummary, variantStatus, type ComparisonSummaryJson } from './comparison.js';
 import { contourFiles, mapJobInput, reportInputs, reportRun, type ProductOptions, type RenderedMap } from './products.js';
@@ -84,7 +85,7 @@ function drawdownFiles(v: VariantComparison, grid: Grid, units: { length: string
   const warnings: string[] = [];
   if (!v.drawdown) return { files, maps, warnings };
   const description = drawdownDescription(v, units);
-  files.push({ name: `${v.name}/drawdown.tif`, bytes: encodeFloat32GeoTiff(grid, v.drawdown, { nodata: -9999, description }) });
+  files.push({ name: `${v.name}/drawdown.tif`, bytes: encodeFloat32GeoTiff(grid, v.drawdown, resultRasterOptions(description)) });
   if (options.maps !== false) {
     const contours = contourFiles(grid, v.drawdown, 'drawdown', units.length, options, `${v.name}/`);
     files.push(...contours.files);
@@ -108,7 +109,7 @@ async function drawdownFilesOnPool(
   if (!v.drawdown) return { files: [], maps: [], warnings: [] };
   const drawdown = v.drawdown;
   const files: LaterFile[] = [
-    { name: `${v.name}/drawdown.tif`, bytes: pool.geotiff(grid, drawdown, { nodata: -9999, description: drawdownDescription(v, units) }) },
+    { name: `${v.name}/drawdown.tif`, bytes: pool.geotiff(grid, drawdown, resultRasterOptions(drawdownDescription(v, units))) },
   ];
   if (options.maps === false) return { files: await settleFiles(files), maps: [], warnings: [] };
   const prefix = `${v.name}/`;

@@ -8,6 +8,7 @@ import { darcyFlux, linearVelocity, type DarcyFlux } from '../analysis/flux.js';
 import { CAUTION } from '../caution.js';
 import { PiezomapError } from '../errors.js';
 import { VERSION } from '../version.js';
+import { resultRasterOptions } from './rasterOptions.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
 import type { ReportInputs, ReportRun, ReportMap } from '../report/index.js';
@@ -67,10 +68,11 @@ function raster<B extends Uint8Array | Promise<Uint8Array>>(
   const { units, title } = result.model;
   return {
     name,
-    bytes: encode(result.model.grid, values, {
-      nodata: -9999,
-      description: `piezomap ${VERSION} ${what} (${units.length}/${units.time}): ${title}. ${CAUTION}`,
-    }),
+    bytes: encode(
+      result.model.grid,
+      values,
+      resultRasterOptions(`piezomap ${VERSION} ${what} (${units.length}/${units.time}): ${title}. ${CAUTION}`),
+    ),
   };
 }
 
@@ -104,7 +106,7 @@ export function exchangeRastersWith<B extends Uint8Array | Promise<Uint8Array>>(
     used.add(name.toLowerCase());
     const { units, title } = result.model;
     const description = `piezomap ${VERSION} exchange with "${term.label}" per cell, into the aquifer positive (${units.length}3/${units.time}): ${title}. ${CAUTION}`;
-    files.push({ name: `${prefix}${name}.tif`, bytes: encode(result.model.grid, values, { nodata: -9999, description }) });
+    files.push({ name: `${prefix}${name}.tif`, bytes: encode(result.model.grid, values, resultRasterOptions(description)) });
   }
   return files;
 }

@@ -10,6 +10,7 @@ import { settleFiles, type LaterFile } from './pending.js';
 import type { WritePool } from './writePool.js';
 import { renderReportHtml } from '../report/index.js';
 import { VERSION } from '../version.js';
+import { resultRasterOptions } from './rasterOptions.js';
 import {
   exchangeRastersWith,
   reportInputs,
@@ -73,17 +74,14 @@ function tableFiles<B extends Uint8Array | Promise<Uint8Array>>(
   const description = `piezomap ${VERSION} head (${result.model.units.length}): ${result.model.title}. ${CAUTION}`;
   const table = result.system.waterTable;
   // Dry cells of a water-table aquifer are nodata in head.tif (physics.md).
-  const headBytes = encode(result.model.grid, headsForOutput(table, result.head), { nodata: -9999, description });
+  const headBytes = encode(result.model.grid, headsForOutput(table, result.head), resultRasterOptions(description));
   files.push({ name: prefix + (sound ? 'head.tif' : 'head-not-converged.tif'), bytes: headBytes });
   files.push({ name: prefix + 'budget.csv', bytes: budgetCsv(result.budget) });
   const outer = result.outer.stopReason === 'linear' ? null : result.outer;
   files.push({ name: prefix + 'convergence.csv', bytes: outer ? outerConvergenceCsv(outer) : convergenceCsv(result.stats.history) });
   if (table !== null) {
     const thicknessDescription = `piezomap ${VERSION} saturated thickness (${result.model.units.length}; 0 = dry): ${result.model.title}. ${CAUTION}`;
-    const bytes = encode(result.model.grid, saturatedThicknessField(table, result.head), {
-      nodata: -9999,
-      description: thicknessDescription,
-    });
+    const bytes = encode(result.model.grid, saturatedThicknessField(table, result.head), resultRasterOptions(thicknessDescription));
     files.push({ name: prefix + (sound ? 'saturated-thickness.tif' : 'saturated-thickness-not-converged.tif'), bytes });
   }
   return files;

@@ -21,6 +21,7 @@ import { makeTransform } from '../crs.js';
 import { crsLabel, type Grid } from '../grid.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { VERSION } from '../version.js';
+import { resultRasterOptions } from './rasterOptions.js';
 import type { PendingFile, RasterEncoder } from './pending.js';
 
 const WGS84 = 4326;
@@ -119,7 +120,7 @@ function raster<B extends Uint8Array | Promise<Uint8Array>>(
   encode: RasterEncoder<B>,
 ): PendingFile<B> {
   const description = `piezomap ${VERSION} ${what}: ${result.model.title}. ${CAUTION}`;
-  return { name, bytes: encode(grid, values, { nodata: -9999, description }) };
+  return { name, bytes: encode(grid, values, resultRasterOptions(description)) };
 }
 
 function json(value: unknown): string {
