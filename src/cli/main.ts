@@ -135,7 +135,6 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
 
 async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags, io: CliIO, pool: WritePool | null): Promise<number> {
   const { options, progress } = runOptions(flags);
-  const t0 = performance.now();
   progress?.({ stage: 'load', message: `reading ${scenario}` });
   const [{ loadScenario }, { solveModelWith }, { prepareResultFolder }, { resultProblem }, { formatSummary }] = await Promise.all([
     import('../scenario/load.js'),
@@ -144,6 +143,8 @@ async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags
     import('../analysis/result.js'),
     import('../output/summary.js'),
   ]);
+  // the load stage is reading the scenario and its rasters, as before; module loading is start-up
+  const t0 = performance.now();
   const { model } = await loadScenario(scenario);
   const timings: Record<string, number> = { load: (performance.now() - t0) / 1000 };
   // Check (and lock) the output folder before the long work.

@@ -220,7 +220,9 @@ export class WritePool {
       if (reply.stack) error.stack = reply.stack;
       task.reject(error);
     }
-    this.dispatch();
+    // The next job is picked once the answer's continuations have run: the last contour job's answer completes the
+    // contours, and the map they hand out (urgent) then goes before the rasters already waiting.
+    setImmediate(() => this.dispatch());
   }
 
   private fail(error: Error): void {

@@ -13,6 +13,31 @@ import type { WriteReply, WriteRequest } from './writePool.js';
 const port = parentPort;
 if (!port) throw new Error('writeWorker.js runs only as a worker thread');
 
+/**
+ * Contour tracing and GeoTIFF encoding once on a small synthetic field, at start: the engine then compiles their hot
+ * loops before the first real job, which otherwise runs them largely unoptimised in every worker (measured at 1024²:
+ * the contour jobs about 60 ms of CPU faster for about 40 ms of warm-up per worker). The pool starts before the
+ * scenario is loaded, so this runs while the main thread loads, assembles and solves. Nothing of it is kept.
+ */
+function warmUp(): void {
+  const nx = 120;
+  const ny = 90;
+  const grid = { nx, ny, transform: [0, 10, 0, 900, 0, -10] as const, crs: null };
+  const values = new Float64Array(nx * ny);
+  for (let p = 0; p < values.length; p++) values[p] = 50 + 5 * Math.sin((p % nx) / 17) + 3 * Math.cos(Math.floor(p / nx) / 11);
+  values[nx + 1] = Number.NaN;
+  const levels: number[] = [];
+  for (let level = 43; level <= 57; level += 0.5) levels.push(level);
+  traceContourLevels(grid, values, levels);
+  encodeFloat32GeoTiff(grid, values, { nodata: -9999, compressionLevel: 1 });
+}
+
+try {
+  warmUp();
+} catch {
+  // a failed warm-up costs only speed; the real job reports its own failure
+}
+
 port.on('message', ({ id, job }: WriteRequest) => {
   try {
     if (job.kind === 'geotiff') {
