@@ -8,7 +8,7 @@ import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff, encodeFloat32GeoTiffAsync } from '../raster/write.js';
 import { settleFiles, type LaterFile } from './pending.js';
 import type { WritePool } from './writePool.js';
-import { renderReportHtml } from '../report/index.js';
+import { renderReportHtml, type ReportInputs } from '../report/index.js';
 import { VERSION } from '../version.js';
 import { resultRasterOptions } from './rasterOptions.js';
 import {
@@ -135,7 +135,12 @@ export function resultFiles(result: SolveResult, prefix = '', options: ProductOp
 }
 
 /** The HTML report of one solve. */
-export function solveReport(result: SolveResult, summary: SummaryJson, maps: RenderedMap[]): string {
+export function solveReport(
+  result: SolveResult,
+  summary: SummaryJson,
+  maps: RenderedMap[],
+  inputs: ReportInputs = reportInputs(result),
+): string {
   const g = summary.grid as { nx: number; ny: number; dx: number; dy: number; crs: string; activeCells: number; fixedHeadCells: number };
   return renderReportHtml({
     kind: 'solve',
@@ -143,7 +148,7 @@ export function solveReport(result: SolveResult, summary: SummaryJson, maps: Ren
     units: result.model.units,
     grid: { nx: g.nx, ny: g.ny, dx: g.dx, dy: g.dy, crs: g.crs, activeCells: g.activeCells, fixedHeadCells: g.fixedHeadCells },
     runs: [reportRun('baseline', result, maps)],
-    inputs: reportInputs(result),
+    inputs,
     warnings: result.warnings,
     caution: CAUTION,
     scenarioFile: result.model.scenarioPath,
@@ -180,9 +185,12 @@ export async function solveFolderFilesConcurrent(
   pool: WritePool | null = null,
 ): Promise<{ files: OutputFile[]; maps: RenderedMap[]; summary: SummaryJson }> {
   const t = performance.now();
-  const bundle = pool ? await resultBundleOnPool(result, prefix, options, pool) : await resultBundleConcurrent(result, prefix, options);
+  const pending = pool ? resultBundleOnPool(result, prefix, options, pool) : resultBundleConcurrent(result, prefix, options);
+  // While the products are built elsewhere: the report's table of inputs (a pass over every cell).
+  const inputs = options.maps === false && extraMaps.length === 0 ? undefined : reportInputs(result);
+  const bundle = await pending;
   if (prefix === '') result.timings.write = (performance.now() - t) / 1000;
-  return folderFromBundle(result, bundle, prefix, extra, extraMaps);
+  return folderFromBundle(result, bundle, prefix, extra, extraMaps, inputs);
 }
 
 function folderFromBundle(
@@ -191,6 +199,7 @@ function folderFromBundle(
   prefix: string,
   extra: OutputFile[],
   extraMaps: RenderedMap[],
+  inputs?: ReportInputs,
 ): { files: OutputFile[]; maps: RenderedMap[]; summary: SummaryJson } {
   const files = [...bundle.files, ...extra];
   const maps = [...extraMaps, ...bundle.maps];
@@ -199,7 +208,7 @@ function folderFromBundle(
   const summary = buildSummary(result, names, VERSION);
   // Map paths are relative to OUTDIR; inside the run's folder they are not prefixed.
   const local = maps.map((m) => ({ ...m, file: m.file.startsWith(prefix) ? m.file.slice(prefix.length) : m.file }));
-  if (withReport) files.push({ name: prefix + REPORT_FILE, bytes: solveReport(result, summary, local) });
+  if (withReport) files.push({ name: prefix + REPORT_FILE, bytes: solveReport(result, summary, local, inputs) });
   files.push({ name: prefix + RESULT_MARKER, bytes: JSON.stringify(summary, null, 2) + '\n' });
   return { files, maps, summary };
 }
