@@ -18,6 +18,7 @@ import { contourFiles, mapJobInput, reportInputs, reportRun, type ProductOptions
 import { contourFileNames, contourOptions } from './contourFiles.js';
 import { observed, settleFiles, type LaterFile } from './pending.js';
 import type { WritePool } from './writePool.js';
+import { runWriteJob } from './writeJobs.js';
 import { reportTracking } from './tracking.js';
 import { prepareResultFolder, releaseResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './resultFolder.js';
 import { REPORT_FILE, solveFolderFiles, solveFolderFilesConcurrent } from './solveFiles.js';
@@ -53,6 +54,7 @@ export async function comparisonFilesOnPool(
   options: ProductOptions,
   pool: WritePool,
 ): Promise<{ files: OutputFile[]; summary: ComparisonSummaryJson }> {
+  pool.lendMainThread(runWriteJob);
   const { grid, units } = c.baseline.model;
   const baseline = observed(solveFolderFilesConcurrent(c.baseline, 'baseline/', options, [], [], pool));
   // A variant's drawdown warnings go into its result before its folder's (as comparisonFiles has them).

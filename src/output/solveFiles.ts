@@ -8,6 +8,7 @@ import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff, encodeFloat32GeoTiffAsync } from '../raster/write.js';
 import { settleFiles, type LaterFile } from './pending.js';
 import type { WritePool } from './writePool.js';
+import { runWriteJob } from './writeJobs.js';
 import { renderReportHtml, type ReportInputs } from '../report/index.js';
 import { VERSION } from '../version.js';
 import { resultRasterOptions } from './rasterOptions.js';
@@ -110,6 +111,7 @@ export async function resultBundleOnPool(
   options: ProductOptions,
   pool: WritePool,
 ): Promise<ResultBundle> {
+  pool.lendMainThread(runWriteJob);
   const encode: RasterEncoder<Promise<Uint8Array>> = (grid, values, encodeOptions) => pool.geotiff(grid, values, encodeOptions);
   const sound = resultProblem(result) === null;
   const products = sound ? solveProductsOnPool(result, options, prefix, pool) : null;

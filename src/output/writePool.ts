@@ -1,15 +1,16 @@
 /**
- * Result products built on a small pool of worker threads (`piezomap solve` and `compare`): GeoTIFF encoding
- * (tiles, predictor, DEFLATE), contour tracing (the levels of one field split between the threads) and the map
- * (SVG drawn and rasterised to PNG). Each job runs the same code as the one-after-another writer (./solveFiles.ts
- * `resultBundle`), so the bytes are the same; the main thread only hands out jobs and assembles the files, and stays
- * free for the report and for signals.
+ * Result products built on a small pool of threads (`piezomap solve` and `compare`): GeoTIFF encoding (tiles,
+ * predictor, DEFLATE), contour tracing (the levels of one field split between the threads), the contour GeoJSON and
+ * the map (SVG drawn and rasterised to PNG). The pool is worker threads plus, once lent (`lendMainThread`), the main
+ * thread itself, which takes jobs between its own work like a worker: on a machine of n cores, n - 1 workers and the
+ * main thread keep every core busy without the start-up, module loading and compilation of one more worker (about
+ * 0.3 s of CPU). Each job runs the code the one-after-another writer runs (./writeJobs.ts), so the bytes are the same.
  *
  * Large arrays go to the workers in shared memory (src/executor/shared.ts), not copied per job: an array is copied
- * there once (`WritePool.share`, remembered per array) and every job that reads it uses that copy. Results come back
- * transferred (GeoTIFF bytes, PNG bytes, contour polylines), not copied.
+ * there once (`WritePool.share`, remembered per array; arrays handed to the pool must not change afterwards) and
+ * every job that reads it uses that copy. Results come back transferred (GeoTIFF bytes, PNG bytes, contour polylines).
  *
- * Scheduling: the workers take the next job when they are free, `urgent` jobs first (contours and maps, the longest
+ * Scheduling: a thread takes the next job when it is free, `urgent` jobs first (contours and maps, the longest
  * chain: contours -> map), then the others in the order given. Workers hold the process open only while they have
  * work; `close()` ends them.
  */
@@ -67,10 +68,13 @@ export function writeWorkersAvailable(): boolean {
   return existsSync(fileURLToPath(WORKER_URL));
 }
 
-/** Workers a pool starts by default: one per core, at most 4 (there are rarely more than 4 jobs at once). */
+/** Workers a pool starts by default: one per core but the main thread's, at least 1, at most 3. */
 export function defaultWriteThreads(): number {
-  return Math.max(1, Math.min(4, availableParallelism()));
+  return Math.max(1, Math.min(3, availableParallelism() - 1));
 }
+
+/** Runs one job in this thread (./writeJobs.ts `runWriteJob`), for the main thread's slot. */
+export type WriteJobRunner = (id: number, job: WriteJob) => { reply: WriteReply };
 
 interface Task {
   id: number;
@@ -92,9 +96,12 @@ export class WritePool {
   private failure: Error | null = null;
   private closed = false;
   private nextId = 1;
+  /** The main thread's slot: its runner once lent, and whether it has a job. */
+  private runner: WriteJobRunner | null = null;
+  private runnerBusy = false;
 
-  constructor(readonly threads: number) {
-    for (let k = 0; k < threads; k++) {
+  constructor(readonly workers: number) {
+    for (let k = 0; k < workers; k++) {
       // workerData must be an object: geotiff's web-worker shim reads workerData.mod when loaded off the main thread.
       const worker = new Worker(WORKER_URL, { workerData: {} });
       const slot: Slot = { worker, task: null };
@@ -106,6 +113,22 @@ export class WritePool {
       });
       this.slots.push(slot);
     }
+  }
+
+  /** Threads that take jobs: the workers, and the main thread once lent. */
+  get threads(): number {
+    return this.workers + (this.runner ? 1 : 0);
+  }
+
+  /**
+   * Let the main thread take jobs too, between its own work (each job in a turn of the event loop of its own).
+   * `runner` is ./writeJobs.ts `runWriteJob`, handed in by the caller, which loads it with the other writers, so
+   * that this module stays light to load at start-up.
+   */
+  lendMainThread(runner: WriteJobRunner): void {
+    if (this.runner) return;
+    this.runner = runner;
+    this.dispatch();
   }
 
   /** `values` in shared memory: itself when it is there, else one copy made on the first call and reused after. */
@@ -189,6 +212,7 @@ export class WritePool {
   }
 
   private dispatch(): void {
+    if (this.closed) return;
     for (const slot of this.slots) {
       if (slot.task) continue;
       const task = this.urgent.shift() ?? this.normal.shift();
@@ -207,6 +231,19 @@ export class WritePool {
         );
       }
     }
+    const runner = this.runner;
+    if (runner && !this.runnerBusy) {
+      const task = this.urgent.shift() ?? this.normal.shift();
+      if (!task) return;
+      this.runnerBusy = true;
+      // in a turn of its own, so that the main thread first finishes what it is doing (e.g. handing out more jobs)
+      setImmediate(() => {
+        const { reply } = runner(task.id, task.job);
+        this.runnerBusy = false;
+        this.answer(task, reply);
+        setImmediate(() => this.dispatch());
+      });
+    }
   }
 
   private settle(slot: Slot, reply: WriteReply): void {
@@ -214,15 +251,19 @@ export class WritePool {
     if (!task || task.id !== reply.id) return;
     slot.task = null;
     slot.worker.unref();
+    this.answer(task, reply);
+    // The next job is picked once the answer's continuations have run: the last contour job's answer completes the
+    // contours, and the map they hand out (urgent) then goes before the rasters already waiting.
+    setImmediate(() => this.dispatch());
+  }
+
+  private answer(task: Task, reply: WriteReply): void {
     if (reply.ok) task.resolve(reply);
     else {
       const error = new PiezomapError(reply.code, reply.message, reply.detail);
       if (reply.stack) error.stack = reply.stack;
       task.reject(error);
     }
-    // The next job is picked once the answer's continuations have run: the last contour job's answer completes the
-    // contours, and the map they hand out (urgent) then goes before the rasters already waiting.
-    setImmediate(() => this.dispatch());
   }
 
   private fail(error: Error): void {
@@ -237,8 +278,8 @@ export class WritePool {
   }
 }
 
-/** A pool of `threads` result-writing workers (default: one per core, at most 4), or null when the compiled worker is not there. */
-export function startWritePool(threads = defaultWriteThreads()): WritePool | null {
-  if (!writeWorkersAvailable() || !(threads >= 1)) return null;
-  return new WritePool(Math.floor(threads));
+/** A pool of `workers` result-writing workers (default: defaultWriteThreads), or null when the compiled worker is not there. */
+export function startWritePool(workers = defaultWriteThreads()): WritePool | null {
+  if (!writeWorkersAvailable() || !(workers >= 1)) return null;
+  return new WritePool(Math.floor(workers));
 }
