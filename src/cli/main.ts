@@ -150,8 +150,14 @@ async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags
   // Check (and lock) the output folder before the long work.
   const folder = await prepareResultFolder(outDir, Boolean(flags.overwrite), model.inputFiles);
   printNotes(folder.notes, io);
-  // The writers (maps, report) load while the worker thread solves, off the critical path.
+  // The writers (maps, report) load while the worker thread solves, off the critical path, and compile the loops
+  // this thread runs for the write pool.
   const writers = writersModule();
+  if (pool)
+    writers.then(
+      (m) => m.prepareWriting(),
+      () => undefined,
+    );
   const result = await solveModelWith(model, await executor(), options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const { writeSolveResults } = await writers;

@@ -8,7 +8,7 @@ import { CAUTION } from '../caution.js';
 import { encodeFloat32GeoTiff, encodeFloat32GeoTiffAsync } from '../raster/write.js';
 import { settleFiles, type LaterFile } from './pending.js';
 import type { WritePool } from './writePool.js';
-import { runWriteJob } from './writeJobs.js';
+import { runWriteJob, warmUpWriteJobs } from './writeJobs.js';
 import { renderReportHtml, type ReportInputs } from '../report/index.js';
 import { VERSION } from '../version.js';
 import { resultRasterOptions } from './rasterOptions.js';
@@ -97,6 +97,14 @@ export async function resultBundleConcurrent(result: SolveResult, prefix = '', o
   // all at once, so that no rejection waits unobserved behind another file
   const bytes = await Promise.all(bundle.files.map((f) => f.bytes));
   return { files: bundle.files.map((f, i) => ({ name: f.name, bytes: bytes[i]! })), maps: bundle.maps };
+}
+
+/**
+ * Compile the hot loops of the jobs this thread takes from a write pool (contours, GeoTIFFs) and of the Darcy flux,
+ * on a small field: for a caller that waits anyway (the CLI calls it while the solve runs in its worker).
+ */
+export function prepareWriting(): void {
+  warmUpWriteJobs();
 }
 
 /**

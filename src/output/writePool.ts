@@ -233,7 +233,7 @@ export class WritePool {
     }
     const runner = this.runner;
     if (runner && !this.runnerBusy) {
-      const task = this.urgent.shift() ?? this.normal.shift();
+      const task = takeFor(this.urgent) ?? takeFor(this.normal);
       if (!task) return;
       this.runnerBusy = true;
       // in a turn of its own, so that the main thread first finishes what it is doing (e.g. handing out more jobs)
@@ -276,6 +276,15 @@ export class WritePool {
     }
     for (const task of pending) task.reject(this.failure);
   }
+}
+
+/**
+ * The first job of `queue` the main thread takes (removed from it): contours and GeoTIFFs, whose code it has warmed
+ * up (solveFiles.ts prepareWriting); maps and GeoJSON are left to the workers, which warm up their renderer and proj4.
+ */
+function takeFor(queue: Task[]): Task | undefined {
+  const k = queue.findIndex((t) => t.job.kind === 'contours' || t.job.kind === 'geotiff');
+  return k < 0 ? undefined : queue.splice(k, 1)[0];
 }
 
 /** A pool of `workers` result-writing workers (default: defaultWriteThreads), or null when the compiled worker is not there. */

@@ -10,7 +10,7 @@ import type { WriteRequest } from './writePool.js';
 const port = parentPort;
 if (!port) throw new Error('writeWorker.js runs only as a worker thread');
 
-warmUpWriteJobs();
+warmUpWriteJobs({ map: true });
 
 port.on('message', ({ id, job }: WriteRequest) => {
   const { reply, transfer } = runWriteJob(id, job);
