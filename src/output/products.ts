@@ -5,6 +5,7 @@
 import { dryCells, headsForOutput, saturatedThicknessField } from '../discretisation/aquifer.js';
 import type { ContourSet } from '../analysis/contours.js';
 import { darcyFlux, linearVelocity, type DarcyFlux } from '../analysis/flux.js';
+import { sharedFloat64Array } from '../executor/shared.js';
 import { CAUTION } from '../caution.js';
 import { PiezomapError } from '../errors.js';
 import { VERSION } from '../version.js';
@@ -47,15 +48,19 @@ export type { PendingFile, RasterEncoder } from './pending.js';
 export { contourFileNames, contourFiles, contourFilesOf, contourOptions } from './contourFiles.js';
 import { contourFileNames, contourFiles, contourOptions } from './contourFiles.js';
 
-function fluxOf(result: SolveResult): DarcyFlux {
-  return darcyFlux({
-    grid: result.model.grid,
-    head: result.head,
-    eastConductance: result.system.conductanceEast,
-    southConductance: result.system.conductanceSouth,
-    // Water tables: the Darcy flux per unit area divides by the saturated thickness, not a given one.
-    thickness: result.system.waterTable === null ? result.model.thickness : saturatedThicknessField(result.system.waterTable, result.head),
-  });
+function fluxOf(result: SolveResult, allocate?: (n: number) => Float64Array): DarcyFlux {
+  return darcyFlux(
+    {
+      grid: result.model.grid,
+      head: result.head,
+      eastConductance: result.system.conductanceEast,
+      southConductance: result.system.conductanceSouth,
+      // Water tables: the Darcy flux per unit area divides by the saturated thickness, not a given one.
+      thickness:
+        result.system.waterTable === null ? result.model.thickness : saturatedThicknessField(result.system.waterTable, result.head),
+    },
+    allocate,
+  );
 }
 
 function raster<B extends Uint8Array | Promise<Uint8Array>>(
@@ -172,7 +177,7 @@ export function solveProductsOnPool(
   const shownHead = headsForOutput(system.waterTable, result.head);
   const contours = observed(pool.contours(model.grid, shownHead, contourOptions(options)));
   const encode: RasterEncoder<Promise<Uint8Array>> = (grid, values, encodeOptions) => pool.geotiff(grid, values, encodeOptions);
-  const flux = fluxOf(result);
+  const flux = fluxOf(result, sharedFloat64Array); // in shared memory: the workers read it without a copy
   const rasters = [
     raster(result, `${prefix}darcy-flux-x.tif`, flux.qx, 'Darcy flux, east component', encode),
     raster(result, `${prefix}darcy-flux-y.tif`, flux.qy, 'Darcy flux, north component', encode),
