@@ -46,8 +46,10 @@ export function comparisonFiles(
 }
 
 /**
- * As comparisonFiles, the same files in the same order, built on a write pool (./writePool.ts): every run's folder
- * and every variant's drawdown products at once, their rasters, contours and maps in the pool's threads.
+ * As comparisonFiles, the same files in the same order, built on a write pool (./writePool.ts): each run's folder
+ * with its rasters, contours and map built at once in the pool's threads. The runs go one after another, so that
+ * the arrays handed to the threads (heads and fluxes in shared memory) are those of one run at a time, whatever the
+ * number of variants.
  */
 export async function comparisonFilesOnPool(
   c: ComparisonResult,
@@ -56,16 +58,13 @@ export async function comparisonFilesOnPool(
 ): Promise<{ files: OutputFile[]; summary: ComparisonSummaryJson }> {
   pool.lendMainThread(runWriteJob);
   const { grid, units } = c.baseline.model;
-  const baseline = observed(solveFolderFilesConcurrent(c.baseline, 'baseline/', options, [], [], pool));
-  // A variant's drawdown warnings go into its result before its folder's (as comparisonFiles has them).
-  const extras = await Promise.all(c.variants.map((v) => drawdownFilesOnPool(v, grid, units, options, pool)));
-  c.variants.forEach((v, i) => {
-    for (const w of extras[i]!.warnings) if (!v.result.warnings.includes(w)) v.result.warnings.push(w);
-  });
-  const variants = await Promise.all(
-    c.variants.map((v, i) => solveFolderFilesConcurrent(v.result, `${v.name}/`, options, extras[i]!.files, extras[i]!.maps, pool)),
-  );
-  return finishComparison(c, options, [await baseline, ...variants]);
+  const folders = [await solveFolderFilesConcurrent(c.baseline, 'baseline/', options, [], [], pool)];
+  for (const v of c.variants) {
+    const extra = await drawdownFilesOnPool(v, grid, units, options, pool);
+    for (const w of extra.warnings) if (!v.result.warnings.includes(w)) v.result.warnings.push(w);
+    folders.push(await solveFolderFilesConcurrent(v.result, `${v.name}/`, options, extra.files, extra.maps, pool));
+  }
+  return finishComparison(c, options, folders);
 }
 
 interface DrawdownFiles {
