@@ -155,7 +155,7 @@ async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags
   const writers = writersModule();
   if (pool)
     writers.then(
-      (m) => m.prepareWriting(),
+      (m) => m.prepareWriting(model.grid.nx * model.grid.ny),
       () => undefined,
     );
   const result = await solveModelWith(model, await executor(), options, timings);
