@@ -1,7 +1,7 @@
 /**
- * `piezomap solve` runs particle tracking with its long part (a track from every active cell) in worker threads, so
- * that Ctrl-C is answered at once (src/pipeline.ts solveModelWith, src/analysis/tracking/run.ts
- * trackSolutionInWorkers). The result must be the one the library computes in one thread, value for value; the
+ * `piezomap solve` and `compare` run particle tracking with its long part (a track from every active cell) in worker threads, so
+ * that Ctrl-C is answered at once (src/pipeline.ts solveModelWith, src/compare/run.ts compareModelsWith,
+ * src/analysis/tracking/run.ts trackSolutionInWorkers). The result must be the one the library computes in one thread, value for value; the
  * one-thread tracking is itself checked against the travel-time areas Q t / (n b) in test/analysis/tracking/.
  * Workers exist only compiled, so this uses the built modules (npm test builds first).
  */
@@ -26,4 +26,24 @@ describe.skipIf(!compiled)('tracking in worker threads', () => {
     expect(threaded.warnings).toEqual(inline.warnings);
     expect(threaded.timings.tracking).toBeGreaterThan(0);
   }, 120_000);
+
+  it('gives compare the same tracking and capture-zone changes per variant as in one thread', async () => {
+    const compare = (await import(dist('compare/run.js').href)) as typeof import('../../src/compare/run.js');
+    const worker = (await import(dist('executor/worker.js').href)) as typeof import('../../src/executor/worker.js');
+    const inline = await compare.compareScenario(demo);
+    const threaded = await compare.compareScenario(demo, {}, worker.workerExecutor);
+    const strip = (t: { seconds: number } | undefined) => {
+      const { seconds: _s, ...rest } = t!;
+      return rest;
+    };
+    expect(strip(threaded.baseline.tracking)).toEqual(strip(inline.baseline.tracking));
+    expect(inline.variants.length).toBeGreaterThan(0);
+    inline.variants.forEach((v, k) => {
+      const t = threaded.variants[k]!;
+      expect(v.capture).toBeTruthy();
+      expect(t.capture).toEqual(v.capture);
+      expect(strip(t.result.tracking)).toEqual(strip(v.result.tracking));
+      expect(t.result.warnings).toEqual(v.result.warnings);
+    });
+  }, 180_000);
 });
