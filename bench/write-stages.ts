@@ -2,8 +2,9 @@
  * Where the writing time goes (`npm run bench -- --write-stages --sizes 1024,2048`): the benchmark case written as
  * GeoTIFF + scenario, loaded and solved as `piezomap solve` does (not timed here), then, in this process:
  * the CPU time of each product on its own (flux, the four GeoTIFFs, contours, the map), and the whole set of result
- * files built one after another (resultBundle) and concurrently (resultBundleConcurrent, rasters compressed on the
- * thread pool), each with its wall time, the process CPU time and the main thread's CPU time (Linux /proc). On a
+ * files built one after another (resultBundle), concurrently (resultBundleConcurrent, rasters compressed on the
+ * thread pool) and on the write pool (resultBundleOnPool, as `piezomap solve` builds them: rasters, contour levels and
+ * the map in worker threads), each with its wall time, the process CPU time and the main thread's CPU time (Linux /proc). On a
  * loaded machine wall times mean little; the main thread's CPU time is the critical path of the concurrent writer
  * (what it would take on idle cores), the process CPU time its total work.
  */
@@ -13,7 +14,8 @@ import { join } from 'node:path';
 import { darcyFlux } from '../src/analysis/flux.js';
 import { workerExecutor } from '../src/executor/worker.js';
 import { contourFiles, solveProducts } from '../src/output/products.js';
-import { resultBundle, resultBundleConcurrent } from '../src/output/solveFiles.js';
+import { resultBundle, resultBundleConcurrent, resultBundleOnPool } from '../src/output/solveFiles.js';
+import { startWritePool } from '../src/output/writePool.js';
 import { solveModelWith } from '../src/pipeline.js';
 import { encodeFloat32GeoTiff } from '../src/raster/write.js';
 import { loadScenario } from '../src/scenario/load.js';
@@ -87,10 +89,19 @@ export async function runWriteStages(sizes: number[], out: string): Promise<void
       await measure(() => [result.head, flux.qx, flux.qy, flux.magnitude].map((v) => encodeFloat32GeoTiff(grid, v, { nodata: -9999 }))),
     );
     row('head contours (GeoJSON)', await measure(() => contourFiles(grid, result.head, 'head', model.units.length, {}, '')));
+    // the pool as `piezomap solve` has it: started early, its workers warmed up and idle when the products start
+    const pool = startWritePool();
+    await new Promise((resolve) => setTimeout(resolve, 1000));
     for (let i = 0; i < 2; i++) {
       row('all files, one after another (resultBundle)', await measure(() => resultBundle(result, '', {})));
       row('all files, rasters concurrently (resultBundleConcurrent)', await measure(() => resultBundleConcurrent(result, '', {})));
+      if (pool)
+        row(
+          `all files on the write pool, ${pool.threads} workers (resultBundleOnPool)`,
+          await measure(() => resultBundleOnPool(result, '', {}, pool)),
+        );
     }
+    await pool?.close();
   }
   for (const l of lines) console.log(l);
 }

@@ -8,7 +8,7 @@
  */
 import { readFileSync } from 'node:fs';
 import { createRequire } from 'node:module';
-import proj4 from 'proj4';
+import type proj4Type from 'proj4';
 import { describeThrown, inputError } from './errors.js';
 
 export interface Projection {
@@ -34,6 +34,16 @@ export interface PointTransform {
 const cache = new Map<number, Projection>();
 const require = createRequire(import.meta.url);
 
+let proj4Module: typeof proj4Type | null = null;
+/**
+ * proj4, loaded on first use (the same package entry an `import` resolves to): most runs give every point in the
+ * raster's CRS and never transform, and loading it costs about 50 ms of start-up.
+ */
+function proj4(): typeof proj4Type {
+  proj4Module ??= require('proj4') as typeof proj4Type;
+  return proj4Module;
+}
+
 /** Parse `EPSG:32633` (any case, optional spaces) into 32633; null when the text is not of that form. */
 export function parseEpsg(text: string): number | null {
   const match = /^\s*EPSG\s*:\s*(\d{3,6})\s*$/i.exec(text);
@@ -46,7 +56,7 @@ export function projectionFor(epsg: number): Projection {
   if (cached) return cached;
   const key = `EPSG:${epsg}`;
   let projection: Projection;
-  if (proj4.defs(key)) {
+  if (proj4().defs(key)) {
     // Built into proj4 (WGS 84 geographic, NAD83 geographic, Web Mercator, WGS 84 UTM zones): proj4 accepts the key itself.
     projection = { epsg, definition: key, geographic: isGeographic(key), name: key };
   } else {
@@ -80,9 +90,9 @@ const HORIZONTAL_KINDS = new Set(['CRS-PROJCRS', 'CRS-GEOGCRS', 'CRS-GEOG3DCRS']
 export function makeTransform(fromEpsg: number, toEpsg: number): PointTransform {
   const from = projectionFor(fromEpsg);
   const to = projectionFor(toEpsg);
-  let converter: proj4.Converter;
+  let converter: proj4Type.Converter;
   try {
-    converter = proj4(from.definition, to.definition);
+    converter = proj4()(from.definition, to.definition);
   } catch (thrown) {
     throw inputError(`cannot build a transform from ${from.name} to ${to.name}: ${describeThrown(thrown)}`);
   }
@@ -162,7 +172,7 @@ function gridShiftFile(definition: string): string | null {
 function isGeographic(definition: string): boolean {
   let projName: string | undefined;
   try {
-    projName = (proj4.Proj(definition) as unknown as { projName?: string }).projName;
+    projName = (proj4().Proj(definition) as unknown as { projName?: string }).projName;
   } catch (thrown) {
     throw inputError(`proj4 cannot read the definition "${definition}": ${describeThrown(thrown)}`);
   }

@@ -13,7 +13,7 @@ import { wellboreHeads, wellboreWarnings } from './analysis/wellbore.js';
 import { sanityWarnings } from './analysis/sanity.js';
 import { calibrationStatistics } from './analysis/calibration.js';
 import { resultProblem, type SolveResult } from './analysis/result.js';
-import { trackSolution } from './analysis/tracking/run.js';
+import { trackSolution, trackSolutionInWorkers } from './analysis/tracking/run.js';
 import { closeSession, openSession, runInline, runOn, type Plan, type SessionHandle } from './executor/plan.js';
 import type { Executor } from './executor/types.js';
 import { loadScenario } from './scenario/load.js';
@@ -64,7 +64,10 @@ export async function solveModelWith(
 ): Promise<SolveResult> {
   const settled = withSolverSettings(model, options);
   const system = assembleModel(settled, options, timings);
-  return runOn(solvePlan(settled, system, options, timings), executor);
+  // Tracking after the plan, its long part in worker threads, so that this thread stays free for signals.
+  const result = await runOn(solvePlan(settled, system, options, timings, undefined, false), executor);
+  await addTrackingInWorkers(settled, system, result);
+  return result;
 }
 
 /**
@@ -99,6 +102,7 @@ export function* solvePlan(
   options: RunOptions = {},
   timings: Record<string, number> = {},
   session?: SessionHandle,
+  track = true,
 ): Plan<SolveResult> {
   const t = now();
   const { tolerance, maxIterations } = model.solver;
@@ -115,7 +119,7 @@ export function* solvePlan(
   timings.solve = now() - t;
   const result = analyseSolution(model, system, answer.x, answer.stats, timings);
   result.outer = answer.outer;
-  addTracking(model, system, result);
+  if (track) addTracking(model, system, result);
   return result;
 }
 
@@ -126,6 +130,15 @@ export function* solvePlan(
 export function addTracking(model: ModelInput, system: FlowSystem, result: SolveResult): void {
   if (!model.tracking || resultProblem(result) !== null) return;
   const tracking = trackSolution(model, system, result.head)!;
+  result.tracking = tracking;
+  for (const w of tracking.warnings) result.warnings.push(w);
+  result.timings.tracking = tracking.seconds;
+}
+
+/** As addTracking, with the end rasters computed in worker threads (trackSolutionInWorkers); the same result. */
+export async function addTrackingInWorkers(model: ModelInput, system: FlowSystem, result: SolveResult): Promise<void> {
+  if (!model.tracking || resultProblem(result) !== null) return;
+  const tracking = (await trackSolutionInWorkers(model, system, result.head))!;
   result.tracking = tracking;
   for (const w of tracking.warnings) result.warnings.push(w);
   result.timings.tracking = tracking.seconds;

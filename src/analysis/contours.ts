@@ -157,6 +157,22 @@ export function finiteRange(values: Float64Array): { min: number; max: number } 
  * Levels: `options.levels`, else multiples of `options.interval`, else an automatic round interval.
  */
 export function contourField(grid: Grid, values: Float64Array, options: ContourOptions = {}): ContourSet {
+  const plan = contourPlan(grid, values, options);
+  return { levels: traceContourLevels(grid, values, plan.levels), interval: plan.interval, note: plan.note };
+}
+
+/** The levels contourField traces, with its interval and note: the part that needs the whole field at once. */
+export interface ContourPlan {
+  levels: number[];
+  interval: number | null;
+  note: string | null;
+}
+
+/**
+ * The levels, interval and note of `contourField` for these values and options, without tracing: each level is traced
+ * on its own (`traceContourLevels`), so that the levels of one field can be traced in several threads.
+ */
+export function contourPlan(grid: Grid, values: Float64Array, options: ContourOptions = {}): ContourPlan {
   const { nx, ny } = grid;
   if (values.length !== nx * ny) {
     throw inputError(`contour field has ${values.length} values, the grid has ${nx * ny} cells`, {
@@ -195,6 +211,18 @@ export function contourField(grid: Grid, values: Float64Array, options: ContourO
     }
     levels = interval === null ? [] : contourLevels(range.min, range.max, interval, base);
   }
+  return { levels, interval, note };
+}
+
+/** The lines of each of `levels` (in the order given), traced as contourField traces them. */
+export function traceContourLevels(grid: Grid, values: Float64Array, levels: readonly number[]): ContourLevel[] {
+  const { nx, ny } = grid;
+  if (values.length !== nx * ny) {
+    throw inputError(`contour field has ${values.length} values, the grid has ${nx * ny} cells`, {
+      hint: 'pass one value per cell, row-major',
+    });
+  }
+  const range = finiteRange(values);
   const generator = d3Contours().size([nx, ny]).smooth(false);
   const array = values as unknown as number[];
   const result: ContourLevel[] = [];
@@ -208,7 +236,7 @@ export function contourField(grid: Grid, values: Float64Array, options: ContourO
     }
     result.push({ level, lines });
   }
-  return { levels: result, interval, note };
+  return result;
 }
 
 function countText(count: number): string {

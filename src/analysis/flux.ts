@@ -89,8 +89,11 @@ export function faceFlows(
   return { east, south };
 }
 
-/** Cell-centred Darcy flux (specific discharge) from the face flows; see the module comment for the rule. */
-export function darcyFlux(input: FluxInput): DarcyFlux {
+/**
+ * Cell-centred Darcy flux (specific discharge) from the face flows; see the module comment for the rule.
+ * `allocate` makes the three result arrays (e.g. in shared memory, for worker threads that read them).
+ */
+export function darcyFlux(input: FluxInput, allocate: (n: number) => Float64Array = (n) => new Float64Array(n)): DarcyFlux {
   const { grid, head, thickness } = input;
   const { nx, ny } = grid;
   const n = nx * ny;
@@ -102,9 +105,9 @@ export function darcyFlux(input: FluxInput): DarcyFlux {
   const dy = cellHeight(grid);
   const colSign = grid.transform[1] >= 0 ? 1 : -1; // +1: columns run east
   const rowSign = grid.transform[5] < 0 ? -1 : 1; // -1: rows run south (north-up), so rowward flow is southward
-  const qx = new Float64Array(n);
-  const qy = new Float64Array(n);
-  const magnitude = new Float64Array(n);
+  const qx = allocate(n);
+  const qy = allocate(n);
+  const magnitude = allocate(n);
   const fe = flows.east;
   const fs = flows.south;
   for (let i = 0; i < ny; i++) {

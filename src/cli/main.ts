@@ -7,25 +7,18 @@ import { PiezomapError, describeThrown, exitCodeFor } from '../errors.js';
 import { VERSION } from '../version.js';
 import { CAUTION } from '../caution.js';
 import { demoScenarioPath } from '../demoPath.js';
-import { loadScenario } from '../scenario/load.js';
-import { solverMethodNames, chooseAutoMethod } from '../solvers/registry.js';
-import { assembleModel, solveModelWith, withSolverSettings, type RunOptions } from '../pipeline.js';
-import { resultProblem } from '../analysis/result.js';
-import { formatSummary } from '../output/summary.js';
-import { inlineExecutor } from '../executor/inline.js';
-import { workerAvailable, workerExecutor } from '../executor/worker.js';
+import { solverMethodNames } from '../solvers/registry.js';
+import type { RunOptions } from '../pipeline.js';
 import type { Executor } from '../executor/types.js';
 import type { ProductOptions } from '../output/products.js';
-import { formatComparison } from '../output/comparison.js';
-import { compareModelsWith, prepareComparison, resolveVariants } from '../compare/run.js';
-import { comparisonProblem } from '../compare/types.js';
 import { parseSolverOption } from '../scenario/solverSettings.js';
 import type { SolverSettings } from '../scenario/types.js';
-import { abandonResultFoldersSync, prepareResultFolder } from '../output/resultFolder.js';
-import { formatInspect, inspectReport } from './inspect.js';
+import { abandonResultFoldersSync } from '../output/resultFolder.js';
+import { startWritePool, type WritePool } from '../output/writePool.js';
 import { makeProgress, clearProgress } from './progress.js';
-import { addEnsembleCommand } from './ensemble.js';
-import { prepareEnsemble } from '../ensemble/realisation.js';
+
+// Each command imports what it runs when it runs (scenario loading, solving, writing, comparing, ensembles), so that
+// a command does not load the others' modules and `solve` starts its result-writing threads before the heavy imports.
 
 interface CommonFlags {
   json?: boolean;
@@ -71,8 +64,10 @@ function solverOption(key: keyof SolverSettings) {
 }
 
 /** Where the solves run: a worker thread (signals answered at once) when the compiled worker is there. */
-function executor(): Executor {
-  return workerAvailable() ? workerExecutor : inlineExecutor;
+async function executor(): Promise<Executor> {
+  const { workerAvailable, workerExecutor } = await import('../executor/worker.js');
+  if (workerAvailable()) return workerExecutor;
+  return (await import('../executor/inline.js')).inlineExecutor;
 }
 
 function addCommon(cmd: Command): Command {
@@ -132,20 +127,44 @@ function writersModule(): Promise<typeof import('../output/solveFiles.js')> {
 }
 
 async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  // The result-writing threads start first: they load their modules on the other cores while this one loads and solves.
+  const pool = startWritePool();
+  try {
+    return await solveAndWrite(scenario, outDir, flags, io, pool);
+  } finally {
+    void pool?.close();
+  }
+}
+
+async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags, io: CliIO, pool: WritePool | null): Promise<number> {
   const { options, progress } = runOptions(flags);
-  const t0 = performance.now();
   progress?.({ stage: 'load', message: `reading ${scenario}` });
+  const [{ loadScenario }, { solveModelWith }, { prepareResultFolder }, { resultProblem }, { formatSummary }] = await Promise.all([
+    import('../scenario/load.js'),
+    import('../pipeline.js'),
+    import('../output/resultFolder.js'),
+    import('../analysis/result.js'),
+    import('../output/summary.js'),
+  ]);
+  // the load stage is reading the scenario and its rasters, as before; module loading is start-up
+  const t0 = performance.now();
   const { model } = await loadScenario(scenario);
   const timings: Record<string, number> = { load: (performance.now() - t0) / 1000 };
   // Check (and lock) the output folder before the long work.
   const folder = await prepareResultFolder(outDir, Boolean(flags.overwrite), model.inputFiles);
   printNotes(folder.notes, io);
-  // The writers (maps, report) load while the worker thread solves, off the critical path.
+  // The writers (maps, report) load while the worker thread solves, off the critical path, and compile the loops
+  // this thread runs for the write pool.
   const writers = writersModule();
-  const result = await solveModelWith(model, executor(), options, timings);
+  if (pool)
+    writers.then(
+      (m) => m.prepareWriting(model.grid.nx * model.grid.ny),
+      () => undefined,
+    );
+  const result = await solveModelWith(model, await executor(), options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const { writeSolveResults } = await writers;
-  const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
+  const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), pool, ...productOptions(flags) });
   clearProgress();
   const problem = resultProblem(result);
   if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');
@@ -158,8 +177,25 @@ async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io:
 }
 
 async function runCompare(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  const pool = startWritePool();
+  try {
+    return await compareAndWrite(scenario, outDir, flags, io, pool);
+  } finally {
+    void pool?.close();
+  }
+}
+
+async function compareAndWrite(scenario: string, outDir: string, flags: SolveFlags, io: CliIO, pool: WritePool | null): Promise<number> {
   const { options, progress } = runOptions(flags);
   progress?.({ stage: 'load', message: `reading ${scenario}` });
+  const [{ loadScenario }, { compareModelsWith, resolveVariants }, { comparisonProblem }, { prepareResultFolder }, { formatComparison }] =
+    await Promise.all([
+      import('../scenario/load.js'),
+      import('../compare/run.js'),
+      import('../compare/types.js'),
+      import('../output/resultFolder.js'),
+      import('../output/comparison.js'),
+    ]);
   const loaded = await loadScenario(scenario);
   if (!loaded.raw.variants?.length) {
     throw new PiezomapError('input', `${scenario}: the scenario has no "variants", so there is nothing to compare`, {
@@ -175,10 +211,10 @@ async function runCompare(scenario: string, outDir: string, flags: SolveFlags, i
   printNotes(folder.notes, io);
   const writers = import('../output/comparisonFiles.js');
   writers.catch(() => undefined);
-  const comparison = await compareModelsWith(loaded.model, variants, executor(), options);
+  const comparison = await compareModelsWith(loaded.model, variants, await executor(), options);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const { writeComparisonResults } = await writers;
-  const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), ...productOptions(flags) });
+  const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), pool, ...productOptions(flags) });
   clearProgress();
   if (flags.json) io.stdout(JSON.stringify(summary, null, 2) + '\n');
   else io.stdout(formatComparison(summary, outDir));
@@ -196,6 +232,22 @@ function printNotes(notes: string[], io: CliIO): void {
 }
 
 async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Promise<number> {
+  const [
+    { loadScenario },
+    { assembleModel, withSolverSettings },
+    { prepareComparison, resolveVariants },
+    { prepareEnsemble },
+    { chooseAutoMethod },
+    inspect,
+  ] = await Promise.all([
+    import('../scenario/load.js'),
+    import('../pipeline.js'),
+    import('../compare/run.js'),
+    import('../ensemble/realisation.js'),
+    import('../solvers/registry.js'),
+    import('./inspect.js'),
+  ]);
+  const { formatInspect, inspectReport } = inspect;
   const { model, raw } = await loadScenario(scenario);
   // As a solve would: the memory budget, the assembly, and every point located.
   const settled = withSolverSettings(model, {});
@@ -210,7 +262,11 @@ async function runInspect(scenario: string, flags: CommonFlags, io: CliIO): Prom
   return 0;
 }
 
-export function buildProgram(io: CliIO, setExit: (code: number) => void): Command {
+/** A command defined in a module of its own (the ensemble commands, src/cli/ensemble.ts). */
+export type AddCommand = (program: Command, io: CliIO, run: (fn: () => Promise<number>) => () => Promise<void>) => void;
+
+/** The program with solve, compare, inspect and demo, and the commands of `more`. */
+export function buildProgram(io: CliIO, setExit: (code: number) => void, more: AddCommand[] = []): Command {
   const program = new Command();
   program
     .name('piezomap')
@@ -274,17 +330,27 @@ export function buildProgram(io: CliIO, setExit: (code: number) => void): Comman
     await run(() => runSolve(demoScenarioPath(), flags.out!, { ...flags, overwrite }, io))();
   });
 
-  addEnsembleCommand(program, io, run);
+  for (const add of more) add(program, io, run);
 
   return program;
 }
 
+/** The commands buildProgram defines itself. */
+const OWN_COMMANDS = new Set(['solve', 'compare', 'inspect', 'demo']);
+
 /** Run the CLI; resolves to the exit code. */
 export async function main(argv: string[], io: CliIO = defaultIO): Promise<number> {
   let exitCode = 0;
-  const program = buildProgram(io, (code) => {
-    exitCode = code;
-  });
+  // The ensemble commands (and their modules) are left out when the command is another one; help lists them.
+  const command = argv.find((a) => !a.startsWith('-'));
+  const more = command !== undefined && OWN_COMMANDS.has(command) ? [] : [(await import('./ensemble.js')).addEnsembleCommand];
+  const program = buildProgram(
+    io,
+    (code) => {
+      exitCode = code;
+    },
+    more,
+  );
   const debug = argv.includes('--debug');
   try {
     await program.parseAsync(argv, { from: 'user' });

@@ -32,7 +32,7 @@ import { gridDifference } from '../grid.js';
 import { inputError } from '../errors.js';
 import { fieldsEqual } from '../field.js';
 import { checkMemoryBudget, COMPARE_FRESH_VARIANT_BYTES_PER_CELL, COMPARE_VARIANT_BYTES_PER_CELL } from '../memory.js';
-import { solvePlan, solverChoice, withSolverSettings, type RunOptions } from '../pipeline.js';
+import { addTrackingInWorkers, solvePlan, solverChoice, withSolverSettings, type RunOptions } from '../pipeline.js';
 import { loadScenario, mergeVariant, resolveScenario, type ScenarioJson } from '../scenario/load.js';
 import type { ModelInput } from '../scenario/types.js';
 import { leanestMethod, solverBytesPerCell } from '../solvers/registry.js';
@@ -151,23 +151,43 @@ export function compareModels(
   return runInline(comparePlan(prepareComparison(baseline, variants, options), options));
 }
 
-/** As compareModels, with the solves run by `executor`. */
-export function compareModelsWith(
+/**
+ * As compareModels, with the solves run by `executor`, and particle tracking after the solves with its long part in
+ * worker threads (addTrackingInWorkers), so that this thread stays free for signals; the same result.
+ */
+export async function compareModelsWith(
   baseline: ModelInput,
   variants: ReadonlyArray<{ name: string; model: ModelInput }>,
   executor: Executor,
   options: RunOptions = {},
 ): Promise<ComparisonResult> {
-  return runOn(comparePlan(prepareComparison(baseline, variants, options), options), executor);
+  const prepared = prepareComparison(baseline, variants, options);
+  const c = await runOn(comparePlan(prepared, options, false), executor);
+  await addTrackingInWorkers(prepared.baseline, prepared.baseSystem, c.baseline);
+  for (const v of c.variants) {
+    await addTrackingInWorkers(v.result.model, v.result.system, v.result);
+    v.capture = captureChange(c.baseline, v.result, prepared.receptors, prepared.receptorCells);
+  }
+  return c;
+}
+
+/** A variant's capture zones against the baseline's, when both were tracked. */
+function captureChange(
+  base: SolveResult,
+  result: SolveResult,
+  receptors: PreparedComparison['receptors'],
+  receptorCells: Int32Array,
+): VariantComparison['capture'] {
+  return base.tracking && result.tracking ? compareCapture(base.tracking, result.tracking, receptors, receptorCells) : null;
 }
 
 /** The solves of a prepared comparison: the baseline, then every variant (on the baseline's session when shared). */
-export function* comparePlan(prepared: PreparedComparison, options: RunOptions = {}): Plan<ComparisonResult> {
+export function* comparePlan(prepared: PreparedComparison, options: RunOptions = {}, track = true): Plan<ComparisonResult> {
   const { baseline, baseSystem, receptors, receptorCells } = prepared;
   const t = performance.now();
   const session = yield* openSession(baseSystem.operator, solverChoice(baseline.solver));
   const setupSeconds = (performance.now() - t) / 1000;
-  const baseResult = yield* solvePlan(baseline, baseSystem, options, {}, session);
+  const baseResult = yield* solvePlan(baseline, baseSystem, options, {}, session, track);
   baseResult.stats.setupSeconds = session.setupSeconds;
   baseResult.timings.solve = (baseResult.timings.solve ?? 0) + setupSeconds;
   const baselineProblem = resultProblem(baseResult);
@@ -186,7 +206,7 @@ export function* comparePlan(prepared: PreparedComparison, options: RunOptions =
   if (!baselineProblem) {
     for (const [k, v] of prepared.variants.entries()) {
       options.onProgress?.({ stage: 'analyse', message: `solving variant "${v.name}"${v.shared ? ' on the baseline operator' : ''}` });
-      const result = yield* solvePlan(v.model, v.system, options, {}, v.shared ? session : undefined);
+      const result = yield* solvePlan(v.model, v.system, options, {}, v.shared ? session : undefined, track);
       if (k === lastShared) yield* release();
       compared.push(analyseVariant(v, result, baseResult, receptors, receptorCells));
     }
@@ -259,6 +279,6 @@ function analyseVariant(
     noiseLevel,
     withdrawal: totalWithdrawal(result.model.wells),
     sources: sourcesOfWater(base.budget, result.budget),
-    capture: base.tracking && result.tracking ? compareCapture(base.tracking, result.tracking, receptors, receptorCells) : null,
+    capture: captureChange(base, result, receptors, receptorCells),
   };
 }

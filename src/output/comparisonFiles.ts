@@ -3,21 +3,25 @@
  * maps per variant, comparison.csv, the comparison report and summary.json (last). Built from a ComparisonResult
  * (src/compare/types.ts); no solving here.
  */
-import type { SolveResult } from '../analysis/result.js';
 import { CAUTION } from '../caution.js';
 import type { ComparisonResult, VariantComparison } from '../compare/types.js';
 import type { ContourSet } from '../analysis/contours.js';
-import { crsLabel } from '../grid.js';
+import { crsLabel, type Grid } from '../grid.js';
 import { PiezomapError } from '../errors.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderMapPng, renderReportHtml, type MapInput, type ReportRun } from '../report/index.js';
 import { VERSION } from '../version.js';
+import { resultRasterOptions } from './rasterOptions.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
 import { comparisonCsv, comparisonSummary, variantStatus, type ComparisonSummaryJson } from './comparison.js';
-import { contourFiles, reportInputs, reportRun, type ProductOptions, type RenderedMap } from './products.js';
+import { contourFiles, mapJobInput, reportInputs, reportRun, type ProductOptions, type RenderedMap } from './products.js';
+import { contourFileNames, contourOptions } from './contourFiles.js';
+import { observed, settleFiles, type LaterFile } from './pending.js';
+import type { WritePool } from './writePool.js';
+import { runWriteJob } from './writeJobs.js';
 import { reportTracking } from './tracking.js';
 import { prepareResultFolder, releaseResultFolder, writeResultFiles, RESULT_MARKER, type OutputFile } from './resultFolder.js';
-import { REPORT_FILE, solveFolderFiles } from './solveFiles.js';
+import { REPORT_FILE, solveFolderFiles, solveFolderFilesConcurrent } from './solveFiles.js';
 
 /**
  * All files of a comparison, relative to OUTDIR: baseline/ and NAME/ as for `solve` (each with its summary.json),
@@ -28,38 +32,121 @@ export function comparisonFiles(
   c: ComparisonResult,
   options: ProductOptions = {},
 ): { files: OutputFile[]; summary: ComparisonSummaryJson } {
-  const files: OutputFile[] = [];
   const { grid, units } = c.baseline.model;
-  const runs: ReportRun[] = [];
-  const runFolder = (name: string, result: SolveResult, extra: OutputFile[], extraMaps: RenderedMap[], reportExtra: Partial<ReportRun>) => {
-    const folder = solveFolderFiles(result, `${name}/`, options, extra, extraMaps);
-    files.push(...folder.files);
-    runs.push(reportRun(name, result, folder.maps, reportExtra));
-  };
-  runFolder('baseline', c.baseline, [], [], {});
+  const extras = c.variants.map((v) => {
+    const extra = drawdownFiles(v, grid, units, options);
+    for (const w of extra.warnings) if (!v.result.warnings.includes(w)) v.result.warnings.push(w);
+    return extra;
+  });
+  const folders = [
+    solveFolderFiles(c.baseline, 'baseline/', options),
+    ...c.variants.map((v, i) => solveFolderFiles(v.result, `${v.name}/`, options, extras[i]!.files, extras[i]!.maps)),
+  ];
+  return finishComparison(c, options, folders);
+}
+
+/**
+ * As comparisonFiles, the same files in the same order, built on a write pool (./writePool.ts): each run's folder
+ * with its rasters, contours and map built at once in the pool's threads. The runs go one after another, so that
+ * the arrays handed to the threads (heads and fluxes in shared memory) are those of one run at a time, whatever the
+ * number of variants.
+ */
+export async function comparisonFilesOnPool(
+  c: ComparisonResult,
+  options: ProductOptions,
+  pool: WritePool,
+): Promise<{ files: OutputFile[]; summary: ComparisonSummaryJson }> {
+  pool.lendMainThread(runWriteJob);
+  const { grid, units } = c.baseline.model;
+  const folders = [await solveFolderFilesConcurrent(c.baseline, 'baseline/', options, [], [], pool)];
   for (const v of c.variants) {
-    const extra: OutputFile[] = [];
-    const maps: RenderedMap[] = [];
-    if (v.drawdown) {
-      const description = `piezomap ${VERSION} drawdown (${units.length}, baseline head - variant head, positive = lowered): ${v.result.model.title}. ${CAUTION}`;
-      extra.push({ name: `${v.name}/drawdown.tif`, bytes: encodeFloat32GeoTiff(grid, v.drawdown, { nodata: -9999, description }) });
-      if (options.maps !== false) {
-        const contours = contourFiles(grid, v.drawdown, 'drawdown', units.length, options, `${v.name}/`);
-        extra.push(...contours.files);
-        for (const w of contours.warnings) if (!v.result.warnings.includes(w)) v.result.warnings.push(w);
-        const map = renderMapPng(drawdownMapInput(v, contours.contours, units));
-        const file = `${v.name}/drawdown-map.png`;
-        extra.push({ name: file, bytes: map.png });
-        maps.push({ caption: `Drawdown against the baseline, ${units.length} (positive = lowered)`, file, png: map.png });
-      }
-    }
+    const extra = await drawdownFilesOnPool(v, grid, units, options, pool);
+    for (const w of extra.warnings) if (!v.result.warnings.includes(w)) v.result.warnings.push(w);
+    folders.push(await solveFolderFilesConcurrent(v.result, `${v.name}/`, options, extra.files, extra.maps, pool));
+  }
+  return finishComparison(c, options, folders);
+}
+
+interface DrawdownFiles {
+  files: OutputFile[];
+  maps: RenderedMap[];
+  warnings: string[];
+}
+
+const DRAWDOWN_CAPTION = (units: { length: string }) => `Drawdown against the baseline, ${units.length} (positive = lowered)`;
+
+function drawdownDescription(v: VariantComparison, units: { length: string }): string {
+  return `piezomap ${VERSION} drawdown (${units.length}, baseline head - variant head, positive = lowered): ${v.result.model.title}. ${CAUTION}`;
+}
+
+/** A sound variant's drawdown.tif, drawdown contours and map (none for a variant without a drawdown field). */
+function drawdownFiles(v: VariantComparison, grid: Grid, units: { length: string; time: string }, options: ProductOptions): DrawdownFiles {
+  const files: OutputFile[] = [];
+  const maps: RenderedMap[] = [];
+  const warnings: string[] = [];
+  if (!v.drawdown) return { files, maps, warnings };
+  const description = drawdownDescription(v, units);
+  files.push({ name: `${v.name}/drawdown.tif`, bytes: encodeFloat32GeoTiff(grid, v.drawdown, resultRasterOptions(description)) });
+  if (options.maps !== false) {
+    const contours = contourFiles(grid, v.drawdown, 'drawdown', units.length, options, `${v.name}/`);
+    files.push(...contours.files);
+    warnings.push(...contours.warnings);
+    const map = renderMapPng(drawdownMapInput(v, contours.contours, units));
+    const file = `${v.name}/drawdown-map.png`;
+    files.push({ name: file, bytes: map.png });
+    maps.push({ caption: DRAWDOWN_CAPTION(units), file, png: map.png });
+  }
+  return { files, maps, warnings };
+}
+
+/** As drawdownFiles, on a write pool. */
+async function drawdownFilesOnPool(
+  v: VariantComparison,
+  grid: Grid,
+  units: { length: string; time: string },
+  options: ProductOptions,
+  pool: WritePool,
+): Promise<DrawdownFiles> {
+  if (!v.drawdown) return { files: [], maps: [], warnings: [] };
+  const drawdown = v.drawdown;
+  const files: LaterFile[] = [
+    { name: `${v.name}/drawdown.tif`, bytes: pool.geotiff(grid, drawdown, resultRasterOptions(drawdownDescription(v, units))) },
+  ];
+  if (options.maps === false) return { files: await settleFiles(files), maps: [], warnings: [] };
+  const prefix = `${v.name}/`;
+  const contours = observed(pool.contours(grid, drawdown, contourOptions(options)));
+  const png = observed(contours.then((set) => pool.mapPng(mapJobInput(drawdownMapInput(v, set, units), v.result))));
+  const out = observed(contours.then((set) => pool.contourFiles(grid, set, 'drawdown', units.length, options, prefix)));
+  for (const name of contourFileNames(grid, 'drawdown', options, prefix)) {
+    files.push({ name, bytes: out.then((o) => o.files.find((f) => f.name === name)!.bytes) });
+  }
+  const file = `${v.name}/drawdown-map.png`;
+  files.push({ name: file, bytes: png });
+  const done = await settleFiles(files);
+  return { files: done, maps: [{ caption: DRAWDOWN_CAPTION(units), file, png: await png }], warnings: (await out).warnings };
+}
+
+/** The comparison's own files around the run folders (in comparisonFiles' order): comparison.csv, the report, summary.json. */
+function finishComparison(
+  c: ComparisonResult,
+  options: ProductOptions,
+  folders: Array<{ files: OutputFile[]; maps: RenderedMap[] }>,
+): { files: OutputFile[]; summary: ComparisonSummaryJson } {
+  const { grid } = c.baseline.model;
+  const files: OutputFile[] = [];
+  const runs: ReportRun[] = [];
+  files.push(...folders[0]!.files);
+  runs.push(reportRun('baseline', c.baseline, folders[0]!.maps, {}));
+  c.variants.forEach((v, i) => {
+    const folder = folders[i + 1]!;
     const obsDrawdown = new Map(v.observations.map((o) => [o.id, o.drawdown]));
     const bores = new Map(v.wellbores.map((w) => [w.id, w]));
     const reportExtra: Partial<ReportRun> = {};
     if (v.maxDrawdown) reportExtra.maxDrawdown = v.maxDrawdown.value;
     if (v.capture && v.result.tracking) reportExtra.tracking = reportTracking(v.result.tracking, v.capture);
-    runFolder(v.name, v.result, extra, maps, reportExtra);
-    const run = runs[runs.length - 1]!;
+    files.push(...folder.files);
+    const run = reportRun(v.name, v.result, folder.maps, reportExtra);
+    runs.push(run);
     for (const w of run.wells) {
       const bore = bores.get(w.id);
       if (bore && Number.isFinite(bore.drawdown)) w.wellboreDrawdown = bore.drawdown;
@@ -70,7 +157,7 @@ export function comparisonFiles(
       const s = obsDrawdown.get(o.id);
       if (s !== undefined && Number.isFinite(s)) o.drawdown = s;
     }
-  }
+  });
   files.push({ name: 'comparison.csv', bytes: comparisonCsv(c) });
   const withReport = options.maps !== false;
   const names = [...files.map((f) => f.name), ...(withReport ? [REPORT_FILE] : []), RESULT_MARKER];
@@ -159,17 +246,18 @@ function comparisonReport(c: ComparisonResult, runs: ReportRun[], summary: Compa
 
 /**
  * Write a comparison into OUTDIR in one staged, all-or-nothing step (src/output/resultFolder.ts): a folder holding
- * any input of the baseline or a variant is refused, and earlier results unless `overwrite`. Returns the comparison summary that was written.
+ * any input of the baseline or a variant is refused, and earlier results unless `overwrite`. With `pool`, the files are
+ * built on its worker threads (comparisonFilesOnPool). Returns the comparison summary that was written.
  */
 export async function writeComparisonResults(
   c: ComparisonResult,
   outDir: string,
-  options: { overwrite?: boolean } & ProductOptions = {},
+  options: { overwrite?: boolean; pool?: WritePool | null } & ProductOptions = {},
 ): Promise<ComparisonSummaryJson> {
   const folder = await prepareResultFolder(outDir, Boolean(options.overwrite), c.inputFiles);
   for (const note of folder.notes) if (!c.warnings.includes(note)) c.warnings.push(note);
   try {
-    const { files, summary } = comparisonFiles(c, options);
+    const { files, summary } = options.pool ? await comparisonFilesOnPool(c, options, options.pool) : comparisonFiles(c, options);
     await writeResultFiles(folder, files);
     return summary;
   } finally {

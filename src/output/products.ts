@@ -3,13 +3,14 @@
  * quick-look map and the pieces of the HTML report. Pure functions of a SolveResult: no file system here.
  */
 import { dryCells, headsForOutput, saturatedThicknessField } from '../discretisation/aquifer.js';
-import { contourField, contoursToGeoJson, type ContourSet } from '../analysis/contours.js';
+import type { ContourSet } from '../analysis/contours.js';
 import { darcyFlux, linearVelocity, type DarcyFlux } from '../analysis/flux.js';
-import { crsLabel, type Grid } from '../grid.js';
+import { sharedFloat64Array } from '../executor/shared.js';
 import { CAUTION } from '../caution.js';
+import { PiezomapError } from '../errors.js';
 import { VERSION } from '../version.js';
-import { encodeFloat32GeoTiff, type EncodeOptions } from '../raster/write.js';
-import { makeTransform } from '../crs.js';
+import { resultRasterOptions } from './rasterOptions.js';
+import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
 import type { ReportInputs, ReportRun, ReportMap } from '../report/index.js';
 import type { SolveResult } from '../analysis/result.js';
@@ -17,6 +18,8 @@ import type { OutputFile } from './resultFolder.js';
 import { mapCellLayers } from '../discretisation/terms/types.js';
 import { headRange } from './summary.js';
 import { reportTracking } from './tracking.js';
+import { observed, type LaterFile, type PendingFile, type RasterEncoder } from './pending.js';
+import type { MapJobInput, WritePool } from './writePool.js';
 
 export interface ProductOptions {
   /** Write contours, flux rasters, the quick-look map and the report (default true). */
@@ -40,62 +43,24 @@ export interface Products {
   warnings: string[];
 }
 
-/**
- * Encodes a raster product: `encodeFloat32GeoTiff` (bytes at once), or `encodeFloat32GeoTiffAsync` (the tiles are
- * compressed on the thread pool while the other products are computed; the same bytes).
- */
-export type RasterEncoder<B extends Uint8Array | Promise<Uint8Array>> = (grid: Grid, values: Float64Array, options: EncodeOptions) => B;
+export type { PendingFile, RasterEncoder } from './pending.js';
 
-/** A result file whose bytes may still be on their way (a raster being compressed); settled before writing. */
-export interface PendingFile<B extends Uint8Array | Promise<Uint8Array>> {
-  name: string;
-  bytes: string | Uint8Array | B;
-}
+export { contourFileNames, contourFiles, contourFilesOf, contourOptions } from './contourFiles.js';
+import { contourFileNames, contourFiles, contourOptions } from './contourFiles.js';
 
-const WGS84 = 4326;
-
-/** Contour GeoJSON files for a field: RFC 7946 (WGS 84) when the raster has an EPSG code, native on request. */
-export function contourFiles(
-  grid: Grid,
-  field: Float64Array,
-  quantity: 'head' | 'drawdown',
-  units: string,
-  options: ProductOptions,
-  prefix: string,
-): { files: OutputFile[]; contours: ContourSet; warnings: string[] } {
-  const contours = contourField(grid, field, options.contourInterval ? { interval: options.contourInterval } : {});
-  const files: OutputFile[] = [];
-  const warnings: string[] = contours.note ? [`${quantity} contours: ${contours.note}`] : [];
-  const epsg = grid.crs?.epsg ?? null;
-  if (epsg !== null) {
-    const transform = makeTransform(epsg, WGS84);
-    const collection = contoursToGeoJson(contours, {
-      quantity,
-      units,
-      toLonLat: (x, y) => transform.forward(x, y, `${quantity} contour vertex`),
-    });
-    files.push({ name: `${prefix}${quantity}-contours.geojson`, bytes: JSON.stringify(collection) + '\n' });
-  } else {
-    warnings.push(
-      `the raster has no EPSG code, so ${quantity} contours are written only in its own coordinates (${quantity}-contours.native.geojson)`,
-    );
-  }
-  if (options.nativeContours || epsg === null) {
-    const collection = contoursToGeoJson(contours, { quantity, units, crsLabel: crsLabel(grid.crs) });
-    files.push({ name: `${prefix}${quantity}-contours.native.geojson`, bytes: JSON.stringify(collection) + '\n' });
-  }
-  return { files, contours, warnings };
-}
-
-function fluxOf(result: SolveResult): DarcyFlux {
-  return darcyFlux({
-    grid: result.model.grid,
-    head: result.head,
-    eastConductance: result.system.conductanceEast,
-    southConductance: result.system.conductanceSouth,
-    // Water tables: the Darcy flux per unit area divides by the saturated thickness, not a given one.
-    thickness: result.system.waterTable === null ? result.model.thickness : saturatedThicknessField(result.system.waterTable, result.head),
-  });
+function fluxOf(result: SolveResult, allocate?: (n: number) => Float64Array): DarcyFlux {
+  return darcyFlux(
+    {
+      grid: result.model.grid,
+      head: result.head,
+      eastConductance: result.system.conductanceEast,
+      southConductance: result.system.conductanceSouth,
+      // Water tables: the Darcy flux per unit area divides by the saturated thickness, not a given one.
+      thickness:
+        result.system.waterTable === null ? result.model.thickness : saturatedThicknessField(result.system.waterTable, result.head),
+    },
+    allocate,
+  );
 }
 
 function raster<B extends Uint8Array | Promise<Uint8Array>>(
@@ -108,10 +73,11 @@ function raster<B extends Uint8Array | Promise<Uint8Array>>(
   const { units, title } = result.model;
   return {
     name,
-    bytes: encode(result.model.grid, values, {
-      nodata: -9999,
-      description: `piezomap ${VERSION} ${what} (${units.length}/${units.time}): ${title}. ${CAUTION}`,
-    }),
+    bytes: encode(
+      result.model.grid,
+      values,
+      resultRasterOptions(`piezomap ${VERSION} ${what} (${units.length}/${units.time}): ${title}. ${CAUTION}`),
+    ),
   };
 }
 
@@ -121,8 +87,17 @@ function raster<B extends Uint8Array | Promise<Uint8Array>>(
  * cell. Names are the budget term's, with characters other than letters, digits, "-" and "_" replaced by "-".
  */
 export function exchangeRasters(result: SolveResult, prefix = ''): OutputFile[] {
+  return exchangeRastersWith(result, prefix, encodeFloat32GeoTiff);
+}
+
+/** As exchangeRasters, with the rasters encoded by `encode`. */
+export function exchangeRastersWith<B extends Uint8Array | Promise<Uint8Array>>(
+  result: SolveResult,
+  prefix: string,
+  encode: RasterEncoder<B>,
+): Array<PendingFile<B>> {
   const { system, head } = result;
-  const files: OutputFile[] = [];
+  const files: Array<PendingFile<B>> = [];
   const used = new Set<string>();
   for (const term of system.terms) {
     if (!term.exchangeRaster) continue;
@@ -136,7 +111,7 @@ export function exchangeRasters(result: SolveResult, prefix = ''): OutputFile[] 
     used.add(name.toLowerCase());
     const { units, title } = result.model;
     const description = `piezomap ${VERSION} exchange with "${term.label}" per cell, into the aquifer positive (${units.length}3/${units.time}): ${title}. ${CAUTION}`;
-    files.push({ name: `${prefix}${name}.tif`, bytes: encodeFloat32GeoTiff(result.model.grid, values, { nodata: -9999, description }) });
+    files.push({ name: `${prefix}${name}.tif`, bytes: encode(result.model.grid, values, resultRasterOptions(description)) });
   }
   return files;
 }
@@ -184,6 +159,58 @@ export function solveProductsWith<B extends Uint8Array | Promise<Uint8Array>>(
   const mapName = `${prefix}head-map.png`;
   files.push({ name: mapName, bytes: map.png });
   return { files, maps: [{ caption: `Head, ${model.units.length}`, file: mapName, png: map.png }], warnings };
+}
+
+/**
+ * As solveProducts, built on a write pool (./writePool.ts): the contour levels are traced in the workers first (the
+ * longest chain: contours, then the map), the flux here meanwhile, then the rasters and the map in the workers; the
+ * GeoJSON is written here as the contours come back. The same files in the same order, their bytes on their way.
+ */
+export function solveProductsOnPool(
+  result: SolveResult,
+  options: ProductOptions,
+  prefix: string,
+  pool: WritePool,
+): { files: LaterFile[]; maps: Promise<RenderedMap[]>; warnings: Promise<string[]> } {
+  if (options.maps === false) return { files: [], maps: Promise.resolve([]), warnings: Promise.resolve([]) };
+  const { model, system } = result;
+  const shownHead = headsForOutput(system.waterTable, result.head);
+  const contours = observed(pool.contours(model.grid, shownHead, contourOptions(options)));
+  const encode: RasterEncoder<Promise<Uint8Array>> = (grid, values, encodeOptions) => pool.geotiff(grid, values, encodeOptions);
+  const flux = fluxOf(result, sharedFloat64Array); // in shared memory: the workers read it without a copy
+  const rasters = [
+    raster(result, `${prefix}darcy-flux-x.tif`, flux.qx, 'Darcy flux, east component', encode),
+    raster(result, `${prefix}darcy-flux-y.tif`, flux.qy, 'Darcy flux, north component', encode),
+    raster(result, `${prefix}darcy-flux.tif`, flux.magnitude, 'Darcy flux magnitude', encode),
+  ];
+  if (model.porosity !== undefined) {
+    const velocity = linearVelocity(model.grid, flux, model.porosity);
+    rasters.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity', encode));
+  }
+  // The map is handed out as soon as the contours are back, then their GeoJSON (both in the workers).
+  const png = observed(contours.then((c) => pool.mapPng(mapJobInput(headMapInput(result, c, flux), result))));
+  const contourOut = observed(contours.then((c) => pool.contourFiles(model.grid, c, 'head', model.units.length, options, prefix)));
+  const files: LaterFile[] = contourFileNames(model.grid, 'head', options, prefix).map((name) => ({
+    name,
+    bytes: contourOut.then((out) => out.files.find((f) => f.name === name)!.bytes),
+  }));
+  files.push(...rasters);
+  const mapName = `${prefix}head-map.png`;
+  files.push({ name: mapName, bytes: png });
+  return {
+    files,
+    maps: png.then((bytes) => [{ caption: `Head, ${model.units.length}`, file: mapName, png: bytes }]),
+    warnings: contourOut.then((out) => out.warnings),
+  };
+}
+
+/** A map input for a worker thread: its overlays (drawing functions) replaced by the tracking run they come from. */
+export function mapJobInput(input: MapInput, result: SolveResult): MapJobInput {
+  const { overlays, ...rest } = input;
+  if (!overlays?.length) return rest;
+  if (!result.tracking || overlays.length !== 1)
+    throw new PiezomapError('internal', 'a map overlay other than the tracking run cannot be drawn in a worker');
+  return { ...rest, tracking: { run: result.tracking, units: result.model.units } };
 }
 
 /** The head map of one solve: heads, contours, flow arrows, each term's cells, wells, receptors, residuals. */

@@ -222,11 +222,11 @@ export async function stageResultFiles(folder: ResultFolder, files: OutputFile[]
     liveStaging.add(staging);
     rmSync(staging, { recursive: true, force: true });
     await mkdir(staging);
-    for (const file of files) {
-      const path = join(staging, file.name);
-      await makeFolders(dirname(path));
-      await writeFile(path, file.bytes);
-    }
+    for (const folder of new Set(files.map((f) => dirname(join(staging, f.name))))) await makeFolders(folder);
+    // The files are written at once (the thread pool takes several); every write has ended before this goes on,
+    // so that a failure's clean-up below never races a write still under way.
+    const written = await Promise.allSettled(files.map((file) => writeFile(join(staging, file.name), file.bytes)));
+    for (const w of written) if (w.status === 'rejected') throw w.reason;
     const manifest: Manifest = { files: names, remove: previous.filter((p) => !names.includes(p)) };
     await writeFile(join(staging, MANIFEST), JSON.stringify(manifest, null, 2) + '\n');
     // The commit point: from here the new set is complete on disk and the commit is finished (by writeResultFiles right

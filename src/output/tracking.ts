@@ -21,7 +21,8 @@ import { makeTransform } from '../crs.js';
 import { crsLabel, type Grid } from '../grid.js';
 import { encodeFloat32GeoTiff } from '../raster/write.js';
 import { VERSION } from '../version.js';
-import type { OutputFile } from './resultFolder.js';
+import { resultRasterOptions } from './rasterOptions.js';
+import type { PendingFile, RasterEncoder } from './pending.js';
 
 const WGS84 = 4326;
 /** Decimals of written coordinates: 7 in degrees (about 1 cm), 3 in map units. */
@@ -40,11 +41,21 @@ export function trackingFiles(
   result: SolveResult,
   prefix = '',
   options: TrackingFileOptions = {},
-): { files: OutputFile[]; warnings: string[] } {
+): { files: Array<PendingFile<Uint8Array>>; warnings: string[] } {
+  return trackingFilesWith(result, prefix, options, encodeFloat32GeoTiff);
+}
+
+/** As trackingFiles, with the rasters encoded by `encode`. */
+export function trackingFilesWith<B extends Uint8Array | Promise<Uint8Array>>(
+  result: SolveResult,
+  prefix: string,
+  options: TrackingFileOptions,
+  encode: RasterEncoder<B>,
+): { files: Array<PendingFile<B>>; warnings: string[] } {
   const run = result.tracking;
   if (!run) return { files: [], warnings: [] };
   const { grid } = result.model;
-  const files: OutputFile[] = [];
+  const files: Array<PendingFile<B>> = [];
   const warnings: string[] = [];
   const epsg = grid.crs?.epsg ?? null;
   if (epsg !== null) {
@@ -66,10 +77,17 @@ export function trackingFiles(
   }
   const { wellRaster, timeRaster } = trackingRasters(run, result.system.active);
   files.push(
-    raster(result, grid, `${prefix}capture-well.tif`, wellRaster, 'capturing well number (see summary.json tracking.wells; 0 = none)'),
+    raster(
+      result,
+      grid,
+      `${prefix}capture-well.tif`,
+      wellRaster,
+      'capturing well number (see summary.json tracking.wells; 0 = none)',
+      encode,
+    ),
   );
   files.push(
-    raster(result, grid, `${prefix}travel-time.tif`, timeRaster, `travel time to the capturing well (${result.model.units.time})`),
+    raster(result, grid, `${prefix}travel-time.tif`, timeRaster, `travel time to the capturing well (${result.model.units.time})`, encode),
   );
   return { files, warnings };
 }
@@ -93,9 +111,16 @@ export function trackingRasters(run: TrackingRun, active: Uint8Array): { wellRas
   return { wellRaster, timeRaster };
 }
 
-function raster(result: SolveResult, grid: Grid, name: string, values: Float64Array, what: string): OutputFile {
+function raster<B extends Uint8Array | Promise<Uint8Array>>(
+  result: SolveResult,
+  grid: Grid,
+  name: string,
+  values: Float64Array,
+  what: string,
+  encode: RasterEncoder<B>,
+): PendingFile<B> {
   const description = `piezomap ${VERSION} ${what}: ${result.model.title}. ${CAUTION}`;
-  return { name, bytes: encodeFloat32GeoTiff(grid, values, { nodata: -9999, description }) };
+  return { name, bytes: encode(grid, values, resultRasterOptions(description)) };
 }
 
 function json(value: unknown): string {

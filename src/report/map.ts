@@ -85,6 +85,11 @@ export interface MapOptions {
   maxMapHeight?: number;
   /** Distance between flow arrows in px. Default 40. */
   arrowSpacing?: number;
+  /**
+   * Encode the embedded image of the cell colours for speed rather than size (the same pixels): for a drawing that
+   * is rasterised and not kept (renderMapPng does this). Default false.
+   */
+  quickCellImage?: boolean;
 }
 
 export interface MapDrawing {
@@ -224,7 +229,7 @@ export function renderMapSvg(input: MapInput, options: MapOptions = {}): MapDraw
   parts.push(
     `<rect x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" fill="url(#nodata)"/>`,
   );
-  parts.push(cellImage(values, nx, ny, ramp, frame));
+  parts.push(cellImage(values, nx, ny, ramp, frame, options.quickCellImage ?? false));
   for (const layer of layers)
     parts.push(layerPath(layer.cells, values, nx, ny, frame.left, frame.top, cellPx, cellPy, layer.id, layer.style));
   parts.push(`<g mask="url(#label-gaps)">${contourSvg.lines}</g>`);
@@ -290,7 +295,7 @@ function wrapToWidth(text: string, widthPx: number, size: number, bold: boolean)
 
 /** Draw the map and rasterise it; `scale` multiplies the pixel size (default 1). */
 export function renderMapPng(input: MapInput, options: MapOptions & { scale?: number } = {}): MapDrawing & { png: Uint8Array } {
-  const drawing = renderMapSvg(input, options);
+  const drawing = renderMapSvg(input, { quickCellImage: true, ...options });
   const { png } = svgToPng(drawing.svg, { scale: options.scale ?? 1 });
   return { ...drawing, png };
 }
@@ -340,7 +345,7 @@ interface Frame {
  * large as the frame: renderers that smooth images when scaling (resvg ignores CSS `pixelated`) then blur only
  * within a pixel, and cells stay flat. Grids larger than the frame are sampled at every `step`-th cell.
  */
-function cellImage(values: Float64Array, nx: number, ny: number, ramp: ColourRamp, frame: Frame): string {
+function cellImage(values: Float64Array, nx: number, ny: number, ramp: ColourRamp, frame: Frame, quick: boolean): string {
   const step = Math.max(1, Math.floor(Math.min(nx / frame.width, ny / frame.height)));
   const w = Math.floor(nx / step);
   const h = Math.floor(ny / step);
@@ -358,7 +363,7 @@ function cellImage(values: Float64Array, nx: number, ny: number, ramp: ColourRam
       }
     }
   }
-  const png = encodePng(colourCells(sampled, ramp), W, h * block);
+  const png = encodePng(colourCells(sampled, ramp), W, h * block, { fast: quick });
   return `<image x="${r1(frame.left)}" y="${r1(frame.top)}" width="${r1(frame.width)}" height="${r1(frame.height)}" preserveAspectRatio="none" image-rendering="optimizeSpeed" style="image-rendering:pixelated" href="${dataUrl('image/png', png)}"/>`;
 }
 
