@@ -297,7 +297,7 @@ export function reportInputs(result: SolveResult): ReportInputs {
 /** The report's view of one run. */
 export function reportRun(name: string, result: SolveResult, maps: RenderedMap[], extra: Partial<ReportRun> = {}): ReportRun {
   const { stats, model } = result;
-  const { min, max } = headRange(result.head);
+  const { min, max } = headRange(result.head, result.system.waterTable);
   return {
     name,
     solver: {

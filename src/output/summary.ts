@@ -6,21 +6,24 @@ import type { CalibrationStatistics } from '../analysis/calibration.js';
 import { csvRow } from './csv.js';
 import { trackingLines, trackingSummary } from './tracking.js';
 import type { OuterReport } from '../discretisation/outerLoop.js';
-import { dryCells, saturatedThicknessField } from '../discretisation/aquifer.js';
+import { dryCells, saturatedThicknessField, type WaterTable } from '../discretisation/aquifer.js';
 
 /** Round to 12 significant digits so files are stable and readable (float noise beyond that is meaningless here). */
 export function tidy(v: number): number {
   return Number.isFinite(v) ? Number(v.toPrecision(12)) : v;
 }
 
-export function headRange(head: Float64Array): { min: number; max: number; mean: number } {
+/** Smallest, largest and mean head over the cells that have one: active, and not dry in a water-table aquifer. */
+export function headRange(head: Float64Array, table: WaterTable | null = null): { min: number; max: number; mean: number } {
   let min = Infinity,
     max = -Infinity,
     sum = 0,
     count = 0;
+  const bottom = table?.bottom;
   for (let p = 0; p < head.length; p++) {
     const h = head[p]!;
-    if (h === h) {
+    // dry cells (head at or below the bottom) have no head: head.tif shows them as nodata (headsForOutput)
+    if (h === h && !(bottom !== undefined && h <= bottom[p]!)) {
       if (h < min) min = h;
       if (h > max) max = h;
       sum += h;
@@ -55,7 +58,7 @@ export interface SummaryJson {
 
 export function buildSummary(result: SolveResult, files: string[], version: string): SummaryJson {
   const { model, system, stats, budget } = result;
-  const range = headRange(result.head);
+  const range = headRange(result.head, system.waterTable);
   return {
     title: model.title,
     piezomap: version,

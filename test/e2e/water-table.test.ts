@@ -32,6 +32,7 @@ describe.runIf(gdalPresent || onCi)('the unconfined demo, end to end', () => {
     grid: { activeCells: number; nx: number; ny: number };
     aquifer: { type: string; dryCells: number };
     solver: { outerStopReason: string };
+    head: { min: number; max: number };
   };
   beforeAll(async () => {
     dir = mkdtempSync(join(tmpdir(), 'piezomap-water-table-'));
@@ -57,6 +58,13 @@ describe.runIf(gdalPresent || onCi)('the unconfined demo, end to end', () => {
     expect(values).toHaveLength(nx * ny);
     expect(values.filter((v) => v !== -9999)).toHaveLength(activeCells - summary.aquifer.dryCells);
     expect(summary.aquifer.dryCells).toBeGreaterThan(0);
+  });
+
+  it("summary.json's head range is that of head.tif as GDAL reads it: dry cells have no head", () => {
+    // GDAL's band statistics skip nodata (gdalinfo -stats); its JSON prints them to 3 decimals (from GDAL's output)
+    const fromGdal = stats(join(dir, 'head.tif'));
+    expect(Math.abs(summary.head.min - fromGdal.min)).toBeLessThanOrEqual(5e-4);
+    expect(Math.abs(summary.head.max - fromGdal.max)).toBeLessThanOrEqual(5e-4);
   });
 
   it('writes saturated-thickness.tif: 0 in dry cells, at most the deepest saturation', () => {
