@@ -12,6 +12,7 @@
  *  - probability: YlOrRd, sequential over the fixed range 0..1 (ColorBrewer 2.0), so maps compare at a glance.
  */
 import { contours as d3Contours } from 'd3-contour';
+import { finiteRange } from '../analysis/contours.js';
 import { interpolatePuBu, interpolateYlOrRd } from 'd3-scale-chromatic';
 import { cellHeight, cellWidth, crsLabel, type Grid } from '../grid.js';
 import { colourCells, headRamp, parseColour, rampHex, type ColourRamp } from './colour.js';
@@ -78,17 +79,6 @@ function table(interpolate: (t: number) => string): Uint8Array {
   const out = new Uint8Array(SIZE * 3);
   for (let k = 0; k < SIZE; k++) out.set(parseColour(interpolate(k / (SIZE - 1))), 3 * k);
   return out;
-}
-
-function finiteRange(values: Float64Array): { min: number; max: number } | null {
-  let min = Infinity;
-  let max = -Infinity;
-  for (let p = 0; p < values.length; p++) {
-    const v = values[p]!;
-    if (v < min) min = v;
-    if (v > max) max = v;
-  }
-  return min <= max ? { min, max } : null;
 }
 
 /** The ramp of a map: head over its range, standard deviation from 0, probability over 0..1. */
