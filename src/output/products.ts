@@ -63,6 +63,26 @@ function fluxOf(result: SolveResult, allocate?: (n: number) => Float64Array): Da
   );
 }
 
+/** The Darcy-flux rasters (east, north, magnitude) and, with a porosity, the average linear velocity. */
+function fluxRasters<B extends Uint8Array | Promise<Uint8Array>>(
+  result: SolveResult,
+  prefix: string,
+  flux: DarcyFlux,
+  encode: RasterEncoder<B>,
+): PendingFile<B>[] {
+  const { model } = result;
+  const rasters = [
+    raster(result, `${prefix}darcy-flux-x.tif`, flux.qx, 'Darcy flux, east component', encode),
+    raster(result, `${prefix}darcy-flux-y.tif`, flux.qy, 'Darcy flux, north component', encode),
+    raster(result, `${prefix}darcy-flux.tif`, flux.magnitude, 'Darcy flux magnitude', encode),
+  ];
+  if (model.porosity !== undefined) {
+    const velocity = linearVelocity(model.grid, flux, model.porosity);
+    rasters.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity', encode));
+  }
+  return rasters;
+}
+
 function raster<B extends Uint8Array | Promise<Uint8Array>>(
   result: SolveResult,
   name: string,
@@ -139,15 +159,7 @@ export function solveProductsWith<B extends Uint8Array | Promise<Uint8Array>>(
   // Dry cells (water tables) are nodata on the map and in the contours, and get a legend entry of their own.
   const shownHead = headsForOutput(system.waterTable, result.head);
   const flux = fluxOf(result);
-  const rasters = [
-    raster(result, `${prefix}darcy-flux-x.tif`, flux.qx, 'Darcy flux, east component', encode),
-    raster(result, `${prefix}darcy-flux-y.tif`, flux.qy, 'Darcy flux, north component', encode),
-    raster(result, `${prefix}darcy-flux.tif`, flux.magnitude, 'Darcy flux magnitude', encode),
-  ];
-  if (model.porosity !== undefined) {
-    const velocity = linearVelocity(model.grid, flux, model.porosity);
-    rasters.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity', encode));
-  }
+  const rasters = fluxRasters(result, prefix, flux, encode);
 
   const headContours = contourFiles(model.grid, shownHead, 'head', model.units.length, options, prefix);
   files.push(...headContours.files);
@@ -178,15 +190,7 @@ export function solveProductsOnPool(
   const contours = observed(pool.contours(model.grid, shownHead, contourOptions(options)));
   const encode: RasterEncoder<Promise<Uint8Array>> = (grid, values, encodeOptions) => pool.geotiff(grid, values, encodeOptions);
   const flux = fluxOf(result, sharedFloat64Array); // in shared memory: the workers read it without a copy
-  const rasters = [
-    raster(result, `${prefix}darcy-flux-x.tif`, flux.qx, 'Darcy flux, east component', encode),
-    raster(result, `${prefix}darcy-flux-y.tif`, flux.qy, 'Darcy flux, north component', encode),
-    raster(result, `${prefix}darcy-flux.tif`, flux.magnitude, 'Darcy flux magnitude', encode),
-  ];
-  if (model.porosity !== undefined) {
-    const velocity = linearVelocity(model.grid, flux, model.porosity);
-    rasters.push(raster(result, `${prefix}velocity.tif`, velocity.speed, 'average linear velocity', encode));
-  }
+  const rasters = fluxRasters(result, prefix, flux, encode);
   // The map is handed out as soon as the contours are back, then their GeoJSON (both in the workers).
   const png = observed(contours.then((c) => pool.mapPng(mapJobInput(headMapInput(result, c, flux), result))));
   const contourOut = observed(contours.then((c) => pool.contourFiles(model.grid, c, 'head', model.units.length, options, prefix)));
