@@ -40,7 +40,8 @@ export function parseSolverOption(key: keyof SolverSettings, text: string): stri
   const flag = SOLVER_OPTION_FLAGS[key];
   const value = key === 'method' ? text : key === 'threads' && text.trim() === 'auto' ? 'auto' : text.trim() === '' ? NaN : Number(text);
   if (typeof value === 'number' && Number.isNaN(value)) {
-    throw new PiezomapError('usage', `${flag}: expected a number, got "${text}"`, { key: `solver.${key}` });
+    const expected = key === 'threads' ? 'a whole number or "auto"' : 'a number';
+    throw new PiezomapError('usage', `${flag}: expected ${expected}, got "${text}"`, { key: `solver.${key}` });
   }
   check(key, value, flag);
   return value;

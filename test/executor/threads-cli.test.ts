@@ -77,6 +77,7 @@ describe('thread count of a solve', () => {
       expect(r.status, r.stderr).toBe(2);
       expect(r.stderr).toMatch(/--threads/);
       expect(r.stderr).not.toMatch(/\n\s+at /);
+      if (bad === 'many') expect(r.stderr).toMatch(/expected a whole number or "auto", got "many"/);
     }
     const inJson = writeScenario(20, 'tiny-bad', { threads: 0 });
     const r = run(['solve', inJson, '-o', join(dir, 'bad2')]);
