@@ -6,6 +6,7 @@
 import { type Command, Option } from 'commander';
 import { PiezomapError } from '../errors.js';
 import { CAUTION } from '../caution.js';
+import { formatLevel } from '../report/text.js';
 import { prepareResultFolder, releaseResultFolder, writeResultFiles } from '../output/resultFolder.js';
 import { parseSolverOption } from '../scenario/solverSettings.js';
 import { solverMethodNames } from '../solvers/registry.js';
@@ -79,7 +80,7 @@ function formatEnsemble(summary: EnsembleSummaryJson, outDir: string): string {
           `P(drawdown > ${threshold} ${summary.units.length}) = ${probability === null ? 'n/a' : probability.toFixed(3)}`,
       );
       lines.push(
-        `    receptor ${p.id}: mean drawdown ${p.mean === null ? 'n/a' : p.mean.toFixed(3)} ${summary.units.length}${exc.length ? '; ' + exc.join(', ') : ''}`,
+        `    receptor ${p.id}: mean drawdown ${p.mean === null ? 'n/a' : formatLevel(p.mean)} ${summary.units.length}${exc.length ? '; ' + exc.join(', ') : ''}`,
       );
     }
     const L = summary.units.length;

@@ -6,6 +6,7 @@
  */
 import { CAUTION } from '../caution.js';
 import { dataUrl } from '../report/png.js';
+import { formatLevel } from '../report/text.js';
 import type { EnsembleSetup, EnsembleSummaryJson, RealisationPoints } from './types.js';
 
 /** A map of the result folder, shown in the report too. */
@@ -17,6 +18,8 @@ export interface EnsembleMapFile {
 
 const esc = (t: string) => t.replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/"/g, '&quot;');
 const num = (v: number | null, digits = 3) => (v === null || !Number.isFinite(v) ? 'n/a' : v.toFixed(digits));
+/** Heads and drawdowns: small values keep their significant digits (formatLevel). */
+const level = (v: number | null) => (v === null || !Number.isFinite(v) ? 'n/a' : formatLevel(v));
 
 /** An SVG histogram of `values` (20 bins over their range), thresholds drawn as dashed lines. */
 export function histogramSvg(values: readonly number[], thresholds: readonly number[], unit: string, label: string): string {
@@ -53,7 +56,7 @@ export function histogramSvg(values: readonly number[], thresholds: readonly num
   return (
     `<svg xmlns="http://www.w3.org/2000/svg" width="${W}" height="${H}" role="img" aria-label="histogram of drawdown at ${esc(label)}">` +
     `<line x1="${left}" x2="${W - 10}" y1="${H - bottom}" y2="${H - bottom}" stroke="#333"/>${bars}${lines}` +
-    `<text x="${left}" y="${H - 12}" font-size="11">${num(lo)}</text><text x="${W - 10}" y="${H - 12}" font-size="11" text-anchor="end">${num(hi)}</text>` +
+    `<text x="${left}" y="${H - 12}" font-size="11">${level(lo)}</text><text x="${W - 10}" y="${H - 12}" font-size="11" text-anchor="end">${level(hi)}</text>` +
     `<text x="${(W + left) / 2}" y="${H - 2}" font-size="11" text-anchor="middle">drawdown (${esc(unit)})</text>` +
     `<text x="4" y="16" font-size="11">n = ${values.length}</text></svg>`
   );
@@ -95,10 +98,10 @@ export function ensembleReportHtml(
       }
       const s = run.drawdownAtPoints.find((p) => p.id === c.id)!;
       const pcts = Object.entries(s.percentiles)
-        .map(([p, v]) => `${p}: ${num(v)}`)
+        .map(([p, v]) => `${p}: ${level(v)}`)
         .join(', ');
       const exc = s.exceedance.map((e) => `P(&gt; ${e.threshold} ${esc(unit)}) = ${num(e.probability, 3)}`).join(', ');
-      parts.push(`<h3>${esc(c.id)}</h3><p>mean ${num(s.mean)} ${esc(unit)}, sd ${num(s.sd)}; ${pcts}; ${exc}</p>`);
+      parts.push(`<h3>${esc(c.id)}</h3><p>mean ${level(s.mean)} ${esc(unit)}, sd ${level(s.sd)}; ${pcts}; ${exc}</p>`);
       parts.push(histogramSvg(values, setup.drawdownThresholds, unit, c.id));
     }
   });

@@ -30,6 +30,15 @@ export function formatSignificant(value: number | null | undefined, digits = 4):
   return formatFixed(value, Math.min(decimals, 10));
 }
 
+/**
+ * A head or drawdown for people: 3 decimals, or 3 significant digits below 0.01 in magnitude, so that a small but
+ * non-zero drawdown (e.g. 8e-5 m at a distant receptor) does not read as 0.000.
+ */
+export function formatLevel(value: number | null | undefined): string {
+  if (value === null || value === undefined || !Number.isFinite(value)) return '\u2013';
+  return value === 0 || Math.abs(value) >= 0.01 ? formatFixed(value, 3) : formatSignificant(value, 3);
+}
+
 /** Round tick values (1, 2, 5 x 10^k steps) covering [min, max] with about `target` ticks. */
 export function niceTicks(min: number, max: number, target = 5): { ticks: number[]; step: number; decimals: number } {
   if (!(max > min) || !Number.isFinite(max - min)) return { ticks: [min], step: 1, decimals: 0 };

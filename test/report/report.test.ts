@@ -12,7 +12,7 @@ import { parseColour } from '../../src/report/colour.js';
 import { renderReportHtml, type ReportInput } from '../../src/report/html.js';
 import { renderMapPng, renderMapSvg, type MapInput } from '../../src/report/map.js';
 import { convergencePlotSvg } from '../../src/report/plot.js';
-import { escapeMarkup, formatSignificant, niceTicks, wrapText } from '../../src/report/text.js';
+import { escapeMarkup, formatLevel, formatSignificant, niceTicks, wrapText } from '../../src/report/text.js';
 
 const CAUTION =
   'Screening-level result. Outputs need review by a qualified hydrogeologist before any decision; local regulations and licensed practice govern.';
@@ -94,6 +94,15 @@ describe('text helpers', () => {
     expect(formatSignificant(-0.012345, 3)).toBe('\u22120.0123');
     expect(formatSignificant(3e-9, 2)).toBe('3.0e-9');
     expect(niceTicks(93.2, 100.4, 6).ticks).toEqual([94, 95, 96, 97, 98, 99, 100]);
+  });
+  it('formatLevel keeps three decimals for heads and drawdowns, and the digits of a small drawdown', () => {
+    // before: a receptor drawdown of 7.9e-5 m read "0.000" in the ensemble report (the solve report showed 0.0000792)
+    expect(formatLevel(108.42817)).toBe('108.428');
+    expect(formatLevel(0.162)).toBe('0.162');
+    expect(formatLevel(0)).toBe('0.000');
+    expect(formatLevel(0.0032)).toBe('0.00320');
+    expect(formatLevel(7.92e-5)).toBe('7.92e-5');
+    expect(formatLevel(-0.0004)).toBe('\u22120.000400');
   });
   it('wrapText keeps every word and respects the width', () => {
     const lines = wrapText(CAUTION, 60);
