@@ -937,6 +937,12 @@ export function writeBadInputs(dir: string): BadInputCase[] {
     /"PT-7".*inactive cell/,
   );
   ensembleCase('ensemble-bad-shard', 'ensemble: --shard 4/3', {}, /--shard "4\/3"/, ['--shard', '4/3']);
+  ensembleCase(
+    'ensemble-capture-probability-text',
+    'ensemble: captureProbability given as text',
+    { captureProbability: 'yes' },
+    /ensemble\.captureProbability/,
+  );
 
   // --- scenario JSON -----------------------------------------------------------------------------------------
   const rawCase = (name: string, what: string, text: string, message: RegExp) => {
@@ -1034,6 +1040,9 @@ export function writeBadInputs(dir: string): BadInputCase[] {
   rawCase('json-huge-number-text', 'a head written as 1e999', valid.replace('"head": 50', '"head": 1e999'), /fixedHeads\[0\]\.head/);
   solveCase('json-bad-tolerance', 'a tolerance of 5', { solver: { tolerance: 5 } }, 2, /solver\.tolerance/);
   solveCase('json-unknown-method', 'an unknown solver method', { solver: { method: 'magic' } }, 2, /unknown solver method "magic"/);
+  solveCase('json-threads-zero', 'solver.threads 0', { solver: { threads: 0 } }, 2, /solver\.threads/);
+  solveCase('json-threads-fraction', 'solver.threads 1.5', { solver: { threads: 1.5 } }, 2, /solver\.threads/);
+  solveCase('json-threads-word', 'solver.threads "many"', { solver: { threads: 'many' } }, 2, /solver\.threads/);
 
   // --- magnitudes the arithmetic cannot carry (src/scenario/magnitudes.ts) ------------------------------------
   solveCase(
