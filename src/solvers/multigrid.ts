@@ -1,13 +1,12 @@
 import { BandedCholesky } from './banded.js';
-import { applyDot, dot } from './kernels.js';
+import { applyDot } from './kernels.js';
+import { K_CYCLE_THRESHOLD, krylovTwoSteps } from './kcycle.js';
 import { PARALLEL_MIN_CELLS, sharedAlloc, type Team } from './team.js';
 import { fineLevelRows, type FineRows, OP, type TeamArray } from './teamKernels.js';
 import type { StencilOperator, VariablePreconditioner } from './types.js';
 
 /** Coarsening stops once a level has at most this many cells; that level is solved directly. */
 const COARSEST_CELLS = 1024;
-/** K-cycle: skip the second inner Krylov step when the first reduced the coarse residual below this fraction. */
-const K_CYCLE_THRESHOLD = 0.25;
 
 /**
  * Coefficient storage of the levels: single precision as a rule (they only shape the preconditioner; the outer CG
@@ -370,37 +369,11 @@ export class AggregationMultigrid implements VariablePreconditioner {
       return;
     }
     const C = this.levels[c]!;
-    const { rhs, v1, w1, r2, v2, w2 } = C;
-    this.cycle(c, rhs, v1);
-    const rho1 = applyDot(C, v1, w1);
-    const alpha1 = dot(v1, rhs);
-    const step1 = alpha1 / rho1;
-    const n = C.n;
-    let rr2 = 0;
-    let rr = 0;
-    for (let i = 0; i < n; i++) {
-      const v = rhs[i]! - step1 * w1[i]!;
-      r2[i] = v;
-      rr2 += v * v;
-      rr += rhs[i]! * rhs[i]!;
-    }
-    if (!(rho1 > 0) || rr2 <= K_CYCLE_THRESHOLD * K_CYCLE_THRESHOLD * rr) {
-      const s = rho1 > 0 ? step1 : 0;
-      for (let i = 0; i < n; i++) v1[i] = s * v1[i]!;
-      return;
-    }
-    this.cycle(c, r2, v2);
-    const beta = applyDot(C, v2, w2);
-    const gamma = dot(v2, w1);
-    const alpha2 = dot(v2, r2);
-    const rho2 = beta - (gamma * gamma) / rho1;
-    if (!(rho2 > 0)) {
-      for (let i = 0; i < n; i++) v1[i] = step1 * v1[i]!;
-      return;
-    }
-    const a1 = step1 - (gamma * alpha2) / (rho1 * rho2);
-    const a2 = alpha2 / rho2;
-    for (let i = 0; i < n; i++) v1[i] = a1 * v1[i]! + a2 * v2[i]!;
+    krylovTwoSteps(
+      C,
+      (x, out) => applyDot(C, x, out),
+      (b, x) => this.cycle(c, b, x),
+    );
   }
 
   /** krylovCorrection with every vector operation shared by the team (same steps, sums added in thread order). */

@@ -1,7 +1,7 @@
 import { BandedCholesky } from './banded.js';
 import { type Coefficients, type CsrMatrix, csrApplyDot, csrGaussSeidel, csrSmoothRestrict, sortRows } from './csr.js';
+import { krylovTwoSteps } from './kcycle.js';
 import { DenseCholesky } from './denseCholesky.js';
-import { dot } from './kernels.js';
 import { operatorScale } from './multigrid.js';
 import { NO_AGGREGATE, type SetupMatrix, galerkin, matrixRows, pairMatrix, pairPairs, pairStencil } from './pairwise.js';
 import type { StencilOperator, VariablePreconditioner } from './types.js';
@@ -14,8 +14,6 @@ const COARSEST_ROWS = 400;
 const STALLED = 0.85;
 /** Largest coarsest level factored densely (n^3 / 6 multiply-adds: 0.6e9, and 8 n^2 bytes: 18 MB); a larger one is only smoothed (SweepSolve). */
 const DENSE_ROWS = 1500;
-/** K-cycle: skip the second inner Krylov step when the first reduced the coarse residual below this fraction. */
-const K_CYCLE_THRESHOLD = 0.25;
 
 /** The five-point fine level: the operator's bands times `scale` in the levels' precision (its aggregate map is maps[0]). */
 interface FineLevel {
@@ -234,37 +232,13 @@ export class PairwiseMultigrid implements VariablePreconditioner {
   /** Two flexible-CG steps on coarse level c for A_c e = C.rhs, preconditioned by the cycle on c; e lands in C.v1. */
   private krylovCorrection(c: number): void {
     const C = this.coarse[c]!;
-    const { matrix, rhs, v1, w1, r2, v2, w2 } = C;
-    this.cycle(c, rhs, v1);
-    const rho1 = csrApplyDot(matrix, v1, w1);
-    const alpha1 = dot(v1, rhs);
-    const step1 = alpha1 / rho1;
-    const n = matrix.n;
-    let rr2 = 0;
-    let rr = 0;
-    for (let i = 0; i < n; i++) {
-      const v = rhs[i]! - step1 * w1[i]!;
-      r2[i] = v;
-      rr2 += v * v;
-      rr += rhs[i]! * rhs[i]!;
-    }
-    if (!(rho1 > 0) || !this.twoSteps[c] || rr2 <= K_CYCLE_THRESHOLD * K_CYCLE_THRESHOLD * rr) {
-      const s = rho1 > 0 ? step1 : 0;
-      for (let i = 0; i < n; i++) v1[i] = s * v1[i]!;
-      return;
-    }
-    this.cycle(c, r2, v2);
-    const beta = csrApplyDot(matrix, v2, w2);
-    const gamma = dot(v2, w1);
-    const alpha2 = dot(v2, r2);
-    const rho2 = beta - (gamma * gamma) / rho1;
-    if (!(rho2 > 0)) {
-      for (let i = 0; i < n; i++) v1[i] = step1 * v1[i]!;
-      return;
-    }
-    const a1 = step1 - (gamma * alpha2) / (rho1 * rho2);
-    const a2 = alpha2 / rho2;
-    for (let i = 0; i < n; i++) v1[i] = a1 * v1[i]! + a2 * v2[i]!;
+    const matrix = C.matrix;
+    krylovTwoSteps(
+      C,
+      (x, out) => csrApplyDot(matrix, x, out),
+      (b, x) => this.cycle(c, b, x),
+      Boolean(this.twoSteps[c]),
+    );
   }
 }
 
