@@ -12,7 +12,7 @@ const COARSEST_CELLS = 1024;
  * Coefficient storage of the levels: single precision as a rule (they only shape the preconditioner; the outer CG
  * works with the exact double-precision operator), double precision when the operator's range is too wide for it.
  */
-type Coefficients = Float32Array | Float64Array;
+export type Coefficients = Float32Array | Float64Array;
 type CoefficientArray = Float32ArrayConstructor | Float64ArrayConstructor;
 
 /** Where the levels' arrays are allocated: ordinary memory, or shared memory when a thread team works on them. */
@@ -463,26 +463,42 @@ function smoothAndRestrict(a: Level, b: Float64Array, x: Float64Array, coarseRhs
  */
 function prolongAndSmooth(a: Level, e: Float64Array, b: Float64Array, x: Float64Array): void {
   const { nx, ny, east, south, invDiag } = a;
-  const n = nx * ny;
   const cx = (nx + 1) >> 1;
   prolongRow(nx, cx, ny - 1, e, x);
   for (let i = ny - 1; i >= 0; i--) {
     if (i > 0) prolongRow(nx, cx, i - 1, e, x);
-    const row = i * nx;
-    if (i > 0 && i < ny - 1) {
-      for (let p = row + nx - 1; p >= row; p--) {
-        x[p] =
-          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * invDiag[p]!;
-      }
-    } else {
-      for (let p = row + nx - 1; p >= row; p--) {
-        let s = b[p]!;
-        if (p > 0) s += east[p - 1]! * x[p - 1]!;
-        if (p + 1 < n) s += east[p]! * x[p + 1]!;
-        if (p >= nx) s += south[p - nx]! * x[p - nx]!;
-        if (p + nx < n) s += south[p]! * x[p + nx]!;
-        x[p] = s * invDiag[p]!;
-      }
+    backwardSweepRow(i, nx, ny, east, south, invDiag, b, x);
+  }
+}
+
+/**
+ * Row i of a backward Gauss–Seidel sweep on a five-point level (right to left): each cell from b and its neighbours
+ * as they are now (the row below already swept, the row above not yet). Shared by both multigrids' post-smoothing.
+ */
+export function backwardSweepRow(
+  i: number,
+  nx: number,
+  ny: number,
+  east: Coefficients,
+  south: Coefficients,
+  invDiag: Coefficients,
+  b: Float64Array,
+  x: Float64Array,
+): void {
+  const n = nx * ny;
+  const row = i * nx;
+  if (i > 0 && i < ny - 1) {
+    for (let p = row + nx - 1; p >= row; p--) {
+      x[p] = (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * invDiag[p]!;
+    }
+  } else {
+    for (let p = row + nx - 1; p >= row; p--) {
+      let s = b[p]!;
+      if (p > 0) s += east[p - 1]! * x[p - 1]!;
+      if (p + 1 < n) s += east[p]! * x[p + 1]!;
+      if (p >= nx) s += south[p - nx]! * x[p - nx]!;
+      if (p + nx < n) s += south[p]! * x[p + nx]!;
+      x[p] = s * invDiag[p]!;
     }
   }
 }

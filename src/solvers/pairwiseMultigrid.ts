@@ -2,7 +2,7 @@ import { BandedCholesky } from './banded.js';
 import { type Coefficients, type CsrMatrix, csrApplyDot, csrGaussSeidel, csrSmoothRestrict, sortRows } from './csr.js';
 import { krylovTwoSteps } from './kcycle.js';
 import { DenseCholesky } from './denseCholesky.js';
-import { operatorScale } from './multigrid.js';
+import { backwardSweepRow, operatorScale } from './multigrid.js';
 import { NO_AGGREGATE, type SetupMatrix, galerkin, matrixRows, pairMatrix, pairPairs, pairStencil } from './pairwise.js';
 import type { StencilOperator, VariablePreconditioner } from './types.js';
 
@@ -268,7 +268,6 @@ function smoothAndRestrict(a: FineLevel, map: Int32Array, b: Float64Array, x: Fl
 /** Prolongation fused with one backward Gauss–Seidel sweep (bottom row first), a row ahead of the sweep. */
 function prolongAndSmooth(a: FineLevel, map: Int32Array, e: Float64Array, b: Float64Array, x: Float64Array): void {
   const { nx, ny, east, south, invDiag } = a;
-  const n = nx * ny;
   const prolongRow = (i: number) => {
     const row = i * nx;
     for (let p = row; p < row + nx; p++) x[p]! += e[map[p]!]!;
@@ -276,21 +275,6 @@ function prolongAndSmooth(a: FineLevel, map: Int32Array, e: Float64Array, b: Flo
   prolongRow(ny - 1);
   for (let i = ny - 1; i >= 0; i--) {
     if (i > 0) prolongRow(i - 1);
-    const row = i * nx;
-    if (i > 0 && i < ny - 1) {
-      for (let p = row + nx - 1; p >= row; p--) {
-        x[p] =
-          (b[p]! + east[p - 1]! * x[p - 1]! + east[p]! * x[p + 1]! + south[p - nx]! * x[p - nx]! + south[p]! * x[p + nx]!) * invDiag[p]!;
-      }
-    } else {
-      for (let p = row + nx - 1; p >= row; p--) {
-        let s = b[p]!;
-        if (p > 0) s += east[p - 1]! * x[p - 1]!;
-        if (p + 1 < n) s += east[p]! * x[p + 1]!;
-        if (p >= nx) s += south[p - nx]! * x[p - nx]!;
-        if (p + nx < n) s += south[p]! * x[p + nx]!;
-        x[p] = s * invDiag[p]!;
-      }
-    }
+    backwardSweepRow(i, nx, ny, east, south, invDiag, b, x);
   }
 }
