@@ -655,7 +655,10 @@ function installExitHook(): void {
 export function abandonResultFoldersSync(): { committed: string[] } {
   for (const staging of liveStaging) {
     try {
-      rmSync(staging, { recursive: true, force: true });
+      // The staged files are written concurrently on the thread pool: one may be created after the removal listed the
+      // folder, and the folder's own removal then fails (ENOTEMPTY). Retried, the removal lists it again; once the
+      // folder is gone no write in flight can create a file in it.
+      rmSync(staging, { recursive: true, force: true, maxRetries: 20, retryDelay: 5 });
     } catch {
       // best effort while exiting
     }
