@@ -63,6 +63,8 @@ export async function solveModelWith(
   timings: Record<string, number> = {},
 ): Promise<SolveResult> {
   const settled = withSolverSettings(model, options);
+  // the solver's threads start while this one assembles
+  executor.prepare?.(model.grid.nx * model.grid.ny, solverChoice(settled.solver));
   const system = assembleModel(settled, options, timings);
   // Tracking after the plan, its long part in worker threads, so that this thread stays free for signals.
   const result = await runOn(solvePlan(settled, system, options, timings, undefined, false), executor);

@@ -63,11 +63,15 @@ function solverOption(key: keyof SolverSettings) {
   return (value: string) => parseSolverOption(key, value);
 }
 
-/** Where the solves run: a worker thread (signals answered at once) when the compiled worker is there. */
-async function executor(): Promise<Executor> {
-  const { workerAvailable, workerExecutor } = await import('../executor/worker.js');
-  if (workerAvailable()) return workerExecutor;
-  return (await import('../executor/inline.js')).inlineExecutor;
+/**
+ * Where the solves run: worker threads (signals answered at once) when the compiled worker is there; the first one
+ * starts now, to load its modules while this thread reads the input. `close` ends it if no solve took it.
+ */
+async function startExecutor(): Promise<Executor & { close(): void }> {
+  const { workerAvailable, startWorkerExecutor } = await import('../executor/worker.js');
+  if (workerAvailable()) return startWorkerExecutor();
+  const { inlineExecutor } = await import('../executor/inline.js');
+  return { open: inlineExecutor.open, close: () => undefined };
 }
 
 function addCommon(cmd: Command): Command {
@@ -129,14 +133,23 @@ function writersModule(): Promise<typeof import('../output/solveFiles.js')> {
 async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
   // The result-writing threads start first: they load their modules on the other cores while this one loads and solves.
   const pool = startWritePool();
+  const solveExecutor = await startExecutor();
   try {
-    return await solveAndWrite(scenario, outDir, flags, io, pool);
+    return await solveAndWrite(scenario, outDir, flags, io, pool, solveExecutor);
   } finally {
+    solveExecutor.close();
     void pool?.close();
   }
 }
 
-async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags, io: CliIO, pool: WritePool | null): Promise<number> {
+async function solveAndWrite(
+  scenario: string,
+  outDir: string,
+  flags: SolveFlags,
+  io: CliIO,
+  pool: WritePool | null,
+  solveExecutor: Executor,
+): Promise<number> {
   const { options, progress } = runOptions(flags);
   progress?.({ stage: 'load', message: `reading ${scenario}` });
   const [{ loadScenario }, { solveModelWith }, { prepareResultFolder }, { resultProblem }, { formatSummary }] = await Promise.all([
@@ -161,7 +174,7 @@ async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags
       (m) => m.prepareWriting(model.grid.nx * model.grid.ny),
       () => undefined,
     );
-  const result = await solveModelWith(model, await executor(), options, timings);
+  const result = await solveModelWith(model, solveExecutor, options, timings);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const { writeSolveResults } = await writers;
   const summary = await writeSolveResults(result, outDir, { overwrite: Boolean(flags.overwrite), pool, ...productOptions(flags) });
@@ -178,14 +191,23 @@ async function solveAndWrite(scenario: string, outDir: string, flags: SolveFlags
 
 async function runCompare(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
   const pool = startWritePool();
+  const solveExecutor = await startExecutor();
   try {
-    return await compareAndWrite(scenario, outDir, flags, io, pool);
+    return await compareAndWrite(scenario, outDir, flags, io, pool, solveExecutor);
   } finally {
+    solveExecutor.close();
     void pool?.close();
   }
 }
 
-async function compareAndWrite(scenario: string, outDir: string, flags: SolveFlags, io: CliIO, pool: WritePool | null): Promise<number> {
+async function compareAndWrite(
+  scenario: string,
+  outDir: string,
+  flags: SolveFlags,
+  io: CliIO,
+  pool: WritePool | null,
+  solveExecutor: Executor,
+): Promise<number> {
   const { options, progress } = runOptions(flags);
   progress?.({ stage: 'load', message: `reading ${scenario}` });
   const [{ loadScenario }, { compareModelsWith, resolveVariants }, { comparisonProblem }, { prepareResultFolder }, { formatComparison }] =
@@ -211,7 +233,7 @@ async function compareAndWrite(scenario: string, outDir: string, flags: SolveFla
   printNotes(folder.notes, io);
   const writers = import('../output/comparisonFiles.js');
   writers.catch(() => undefined);
-  const comparison = await compareModelsWith(loaded.model, variants, await executor(), options);
+  const comparison = await compareModelsWith(loaded.model, variants, solveExecutor, options);
   progress?.({ stage: 'write', message: `writing results to ${outDir}` });
   const { writeComparisonResults } = await writers;
   const summary = await writeComparisonResults(comparison, outDir, { overwrite: Boolean(flags.overwrite), pool, ...productOptions(flags) });

@@ -161,6 +161,8 @@ export async function compareModelsWith(
   executor: Executor,
   options: RunOptions = {},
 ): Promise<ComparisonResult> {
+  // the solver's threads start while this one assembles the baseline and the variants
+  executor.prepare?.(baseline.grid.nx * baseline.grid.ny, solverChoice(withSolverSettings(baseline, options).solver));
   const prepared = prepareComparison(baseline, variants, options);
   const c = await runOn(comparePlan(prepared, options, false), executor);
   await addTrackingInWorkers(prepared.baseline, prepared.baseSystem, c.baseline);

@@ -26,11 +26,23 @@ export function setUpSolver(
  * The thread team a session on `operator` uses: started once when the choice asks for more than one thread on a grid
  * this size and the method shares its work (pcg-multigrid), kept across set-ups and solves, closed with the session.
  */
-function startTeam(operator: StencilOperator, choice: SolverChoice): Team | null {
+function startTeam(operator: StencilOperator, choice: SolverChoice, early: Team | null): Team | null {
   const method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method;
   // below PARALLEL_MIN_CELLS no level would be shared: no helper threads at all
-  if (!methodUsesThreads(method) || operator.n < PARALLEL_MIN_CELLS) return null;
-  return Team.start(resolveThreads(choice.threads, operator.n));
+  const threads = !methodUsesThreads(method) || operator.n < PARALLEL_MIN_CELLS ? 1 : resolveThreads(choice.threads, operator.n);
+  if (early && early.size === threads) return early;
+  void early?.close();
+  return Team.start(threads);
+}
+
+/**
+ * The team a session on a grid of `cells` cells with this choice will most likely want, started before its operator
+ * exists (so before `auto` can choose: a method that shares no work closes it again). Null for one thread.
+ */
+export function prestartTeam(cells: number, choice: SolverChoice): Team | null {
+  if (choice.method !== 'auto' && !methodUsesThreads(choice.method)) return null;
+  if (cells < PARALLEL_MIN_CELLS) return null;
+  return Team.start(resolveThreads(choice.threads, cells));
 }
 
 /** The operator with its bands in shared memory (copied there once when they are not), for a thread team. */
@@ -58,12 +70,14 @@ export class InlineSession implements SolverSession {
   private readonly team: Team | null;
   setupSeconds: number;
 
+  /** `early`: helper threads started ahead (prestartTeam), used when they are the ones needed, else closed. */
   constructor(
     operator: StencilOperator,
     private readonly choice: SolverChoice,
+    early: Team | null = null,
   ) {
     const t0 = now();
-    this.team = startTeam(operator, choice);
+    this.team = startTeam(operator, choice, early);
     this.operator = this.team ? sharedOperator(operator) : operator;
     ({ solver: this.solver } = setUpSolver(this.operator, choice, this.team));
     // the helper threads' start counts as set-up

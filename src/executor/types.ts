@@ -64,4 +64,10 @@ export interface SolverSession {
 export interface Executor {
   /** Set a solver up on `operator`. The executor may copy the operator; the caller keeps its own. */
   open(operator: StencilOperator, choice: SolverChoice): Promise<SolverSession>;
+  /**
+   * A hint, given before the assembly, that a session on a grid of `cells` cells with this choice will be opened
+   * next: an executor may start the threads it will need meanwhile (the solve worker's helper threads). Optional;
+   * it changes when threads start, never what a session computes.
+   */
+  prepare?(cells: number, choice: SolverChoice): void;
 }

@@ -27,6 +27,7 @@ export type WorkerRequest =
       unknown: Uint8Array;
       choice: SolverChoice;
     }
+  | { kind: 'prepare'; cells: number; choice: SolverChoice }
   | { kind: 'solve'; rhs: Float64Array; x: Float64Array; tolerance: number; maxIterations: number }
   | { kind: 'diagonal'; diag: Float64Array }
   | { kind: 'operator'; diag: Float64Array; east: Float64Array; south: Float64Array; rebuild: boolean };
@@ -103,28 +104,67 @@ class WorkerSession implements SolverSession {
     if (answer.kind === 'ready') this.setupSeconds = answer.setupSeconds;
   }
 
+  /** A message that has no answer (a hint); ignored once the thread has failed. */
+  hint(message: WorkerRequest): void {
+    if (!this.failure) this.worker.postMessage(message);
+  }
+
+  /** Lets the thread keep the process alive while it has work (a thread started ahead of its session does not). */
+  hold(): void {
+    this.worker.ref();
+  }
+
   close(): void {
     this.failure ??= new PiezomapError('internal', 'the solver session is closed');
     void this.worker.terminate();
   }
 }
 
-export const workerExecutor: Executor = {
-  async open(operator: StencilOperator, choice: SolverChoice): Promise<SolverSession> {
-    const session = new WorkerSession(new Worker(WORKER_URL));
-    const { nx, ny } = operator;
+/** Open a session on `session`'s thread: the operator's bands go there in shared memory, then the solver is set up. */
+async function openOn(session: WorkerSession, operator: StencilOperator, choice: SolverChoice): Promise<SolverSession> {
+  session.hold();
+  const { nx, ny } = operator;
     // shared, not cloned: the bands in shared memory as they are, others copied there once
     const [diag, east, south, unknown] = [shared(operator.diag), shared(operator.east), shared(operator.south), shared(operator.unknown)];
-    try {
-      const ready = await session.request({ kind: 'open', nx, ny, diag, east, south, unknown, choice });
-      if (ready.kind === 'ready') {
-        session.method = ready.method;
-        session.setupSeconds = ready.setupSeconds;
-      }
-    } catch (error) {
-      session.close();
-      throw error;
+  try {
+    const ready = await session.request({ kind: 'open', nx, ny, diag, east, south, unknown, choice });
+    if (ready.kind === 'ready') {
+      session.method = ready.method;
+      session.setupSeconds = ready.setupSeconds;
     }
-    return session;
-  },
+  } catch (error) {
+    session.close();
+    throw error;
+  }
+  return session;
+}
+
+export const workerExecutor: Executor = {
+  open: (operator, choice) => openOn(new WorkerSession(new Worker(WORKER_URL)), operator, choice),
 };
+
+/**
+ * A worker executor whose first session's thread starts now, so that the thread loads its modules while the caller
+ * reads its input, and starts its helper threads (`prepare`) while the caller assembles; later sessions start their
+ * own thread as `workerExecutor` does. The thread waiting for its session does not keep the process alive; `close`
+ * ends it when no session took it (e.g. the input was refused).
+ */
+export function startWorkerExecutor(): Executor & { close(): void } {
+  const worker = new Worker(WORKER_URL);
+  worker.unref();
+  let waiting: WorkerSession | null = new WorkerSession(worker);
+  return {
+    prepare(cells, choice) {
+      waiting?.hint({ kind: 'prepare', cells, choice });
+    },
+    open(operator, choice) {
+      const session = waiting ?? new WorkerSession(new Worker(WORKER_URL));
+      waiting = null;
+      return openOn(session, operator, choice);
+    },
+    close() {
+      waiting?.close();
+      waiting = null;
+    },
+  };
+}

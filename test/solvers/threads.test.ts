@@ -13,7 +13,8 @@ import { BandedCholesky } from '../../src/solvers/banded.js';
 import { GridOperator } from '../../src/solvers/operator.js';
 import { createSolver } from '../../dist/src/solvers/registry.js';
 import { Team, resolveThreads, AUTO_THREADS_MIN_CELLS } from '../../dist/src/solvers/team.js';
-import { InlineSession } from '../../dist/src/executor/inline.js';
+import { InlineSession, prestartTeam } from '../../dist/src/executor/inline.js';
+import { startWorkerExecutor } from '../../dist/src/executor/worker.js';
 import type { StencilOperator } from '../../src/solvers/types.js';
 import { buildSystem, heterogeneousCase, maxRelativeError, stripCase, type TestCase } from './fixtures.js';
 
@@ -237,5 +238,61 @@ describe('solver session with threads', () => {
     await session.close();
     for (let i = 0; i < 100 && osThreads() > before; i++) await sleep(50);
     expect(osThreads()).toBe(before);
+  });
+
+  // `piezomap solve` starts the solve worker and its helper threads while it reads and assembles the input
+  // (startWorkerExecutor, prepare): a team started ahead must give the very same heads as one started by the session,
+  // and one that is not what the session needs must not be left running.
+  it('helper threads started ahead serve the session when they fit, and are closed when they do not', async () => {
+    const choice = { method: 'pcg-multigrid', threads: 2 } as const;
+    const reference = new InlineSession(op, choice);
+    const expected = solve(reference);
+    await reference.close();
+    await sleep(100);
+    const before = osThreads();
+
+    const early = prestartTeam(op.n, { method: 'auto', threads: 2 });
+    expect(early?.size).toBe(2);
+    const session = new InlineSession(op, choice, early);
+    expect(session.threads).toBe(2);
+    // the early helper is the session's: no second one was started
+    expect(osThreads()).toBe(before + 1);
+    expect(bytes(solve(session).x).equals(bytes(expected.x))).toBe(true);
+    await session.close();
+
+    // three threads started ahead, two wanted: the three are closed and two started
+    const other = new InlineSession(op, choice, prestartTeam(op.n, { method: 'auto', threads: 3 }));
+    expect(other.threads).toBe(2);
+    for (let i = 0; i < 100 && osThreads() > before + 1; i++) await sleep(50);
+    expect(osThreads()).toBe(before + 1);
+    expect(bytes(solve(other).x).equals(bytes(expected.x))).toBe(true);
+    await other.close();
+
+    // a method that shares no work: the early team is closed, the session runs on one thread
+    const single = new InlineSession(op, { method: 'pcg-ic0', threads: 2 }, prestartTeam(op.n, { method: 'auto', threads: 2 }));
+    expect(single.threads).toBe(1);
+    for (let i = 0; i < 100 && osThreads() > before; i++) await sleep(50);
+    expect(osThreads()).toBe(before);
+    // small grids get no team ahead
+    expect(prestartTeam(1000, { method: 'auto', threads: 2 })).toBeNull();
+  });
+
+  it('a worker executor started ahead and prepared solves to the same bytes as a session in this thread', async () => {
+    const choice = { method: 'auto', threads: 2 } as const;
+    const inline = new InlineSession(op, choice);
+    const expected = solve(inline);
+    await inline.close();
+    const executor = startWorkerExecutor();
+    executor.prepare?.(op.n, choice);
+    const session = await executor.open(op, choice);
+    const answer = await session.solve({ rhs: system.b, x: new Float64Array(op.n), tolerance, maxIterations: 500 });
+    expect(bytes(answer.x).equals(bytes(expected.x))).toBe(true);
+    session.close();
+    executor.close();
+    // a second session on the same executor starts a thread of its own
+    const again = await executor.open(op, choice);
+    const second = await again.solve({ rhs: system.b, x: new Float64Array(op.n), tolerance, maxIterations: 500 });
+    expect(bytes(second.x).equals(bytes(expected.x))).toBe(true);
+    again.close();
   });
 });
