@@ -124,8 +124,8 @@ class WorkerSession implements SolverSession {
 async function openOn(session: WorkerSession, operator: StencilOperator, choice: SolverChoice): Promise<SolverSession> {
   session.hold();
   const { nx, ny } = operator;
-    // shared, not cloned: the bands in shared memory as they are, others copied there once
-    const [diag, east, south, unknown] = [shared(operator.diag), shared(operator.east), shared(operator.south), shared(operator.unknown)];
+  // shared, not cloned: the bands in shared memory as they are, others copied there once
+  const [diag, east, south, unknown] = [shared(operator.diag), shared(operator.east), shared(operator.south), shared(operator.unknown)];
   try {
     const ready = await session.request({ kind: 'open', nx, ny, diag, east, south, unknown, choice });
     if (ready.kind === 'ready') {
