@@ -4,7 +4,7 @@
  * the same wherever a job runs.
  */
 import { PiezomapError, describeThrown } from '../errors.js';
-import { encodeFloat32GeoTiff } from '../raster/write.js';
+import { encodeFloat32GeoTiff, encodeFloat32GeoTiffTileRows } from '../raster/write.js';
 import { traceContourLevels } from '../analysis/contours.js';
 import { darcyFlux } from '../analysis/flux.js';
 import { renderMapPng, trackingOverlay, type MapInput } from '../report/index.js';
@@ -17,6 +17,10 @@ export function runWriteJob(id: number, job: WriteJob): { reply: WriteReply; tra
     if (job.kind === 'geotiff') {
       const bytes = encodeFloat32GeoTiff(job.grid, job.values, job.options);
       return { reply: { id, ok: true, bytes }, transfer: [bytes.buffer as ArrayBuffer] };
+    }
+    if (job.kind === 'geotiffTiles') {
+      const tiles = encodeFloat32GeoTiffTileRows(job.grid, job.values, job.options, job.first, job.end);
+      return { reply: { id, ok: true, tiles }, transfer: [tiles.bytes.buffer as ArrayBuffer] };
     }
     if (job.kind === 'contours') {
       const levels = traceContourLevels(job.grid, job.values, job.levels);

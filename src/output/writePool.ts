@@ -20,7 +20,7 @@ import { availableParallelism } from 'node:os';
 import { fileURLToPath } from 'node:url';
 import { PiezomapError, type ErrorCode, type ErrorDetail } from '../errors.js';
 import type { Grid } from '../grid.js';
-import type { EncodeOptions } from '../raster/write.js';
+import { assembleFloat32GeoTiff, geoTiffTileRows, type EncodeOptions } from '../raster/write.js';
 import type { ContourLevel, ContourOptions, ContourSet } from '../analysis/contours.js';
 import { contourPlan } from '../analysis/contours.js';
 import type { MapInput, MapOptions } from '../report/index.js';
@@ -37,6 +37,7 @@ export interface MapJobInput extends Omit<MapInput, 'overlays'> {
 /** Main thread to worker. */
 export type WriteJob =
   | { kind: 'geotiff'; grid: Grid; values: Float64Array; options: EncodeOptions }
+  | { kind: 'geotiffTiles'; grid: Grid; values: Float64Array; options: EncodeOptions; first: number; end: number }
   | { kind: 'contours'; grid: Grid; values: Float64Array; levels: number[] }
   | { kind: 'map'; input: MapJobInput; options: MapOptions }
   | {
@@ -57,6 +58,7 @@ export interface WriteRequest {
 /** Worker to main thread. */
 export type WriteReply =
   | { id: number; ok: true; bytes: Uint8Array }
+  | { id: number; ok: true; tiles: { bytes: Uint8Array; lengths: number[] } }
   | { id: number; ok: true; levels: ContourLevel[] }
   | { id: number; ok: true; files: OutputFile[]; warnings: string[] }
   | { id: number; ok: false; code: ErrorCode; message: string; detail: ErrorDetail; stack?: string | undefined };
@@ -67,6 +69,12 @@ const WORKER_URL = new URL('./writeWorker.js', import.meta.url);
 export function writeWorkersAvailable(): boolean {
   return existsSync(fileURLToPath(WORKER_URL));
 }
+
+/**
+ * Fewest cells of a raster that the pool encodes in bands of tile rows (WritePool.geotiff); a smaller one is one job
+ * (a band costs a message each way and a copy of its tiles).
+ */
+const BAND_MIN_CELLS = 1 << 19;
 
 /** Workers a pool starts by default: one per core but the main thread's, at least 1, at most 3. */
 export function defaultWriteThreads(): number {
@@ -141,10 +149,27 @@ export class WritePool {
     return copy;
   }
 
-  /** A Float32 GeoTIFF of `values`, as encodeFloat32GeoTiff gives it. */
+  /**
+   * A Float32 GeoTIFF of `values`, as encodeFloat32GeoTiff gives it. A large raster is encoded in bands of tile rows,
+   * a job each, so that the threads finish together rather than wait for one of them to compress a whole raster;
+   * this thread then puts the file together.
+   */
   async geotiff(grid: Grid, values: Float64Array, options: EncodeOptions): Promise<Uint8Array> {
-    const reply = await this.run({ kind: 'geotiff', grid, values: this.share(values), options }, false);
-    return (reply as { bytes: Uint8Array }).bytes;
+    const sharedValues = this.share(values);
+    const tileRows = geoTiffTileRows(grid, options);
+    const bands = grid.nx * grid.ny < BAND_MIN_CELLS ? 1 : Math.min(tileRows, 2 * this.threads);
+    if (bands <= 1) {
+      const reply = await this.run({ kind: 'geotiff', grid, values: sharedValues, options }, false);
+      return (reply as { bytes: Uint8Array }).bytes;
+    }
+    const jobs: Array<Promise<{ bytes: Uint8Array; lengths: number[] }>> = [];
+    for (let b = 0; b < bands; b++) {
+      const first = Math.floor((b * tileRows) / bands);
+      const end = Math.floor(((b + 1) * tileRows) / bands);
+      const job: WriteJob = { kind: 'geotiffTiles', grid, values: sharedValues, options, first, end };
+      jobs.push(this.run(job, false).then((r) => (r as { tiles: { bytes: Uint8Array; lengths: number[] } }).tiles));
+    }
+    return assembleFloat32GeoTiff(grid, values, options, await Promise.all(jobs));
   }
 
   /** The contours contourField gives, with the levels traced in parallel, several levels per job. */
@@ -283,7 +308,7 @@ export class WritePool {
  * up (solveFiles.ts prepareWriting); maps and GeoJSON are left to the workers, which warm up their renderer and proj4.
  */
 function takeFor(queue: Task[]): Task | undefined {
-  const k = queue.findIndex((t) => t.job.kind === 'contours' || t.job.kind === 'geotiff');
+  const k = queue.findIndex((t) => t.job.kind === 'contours' || t.job.kind === 'geotiff' || t.job.kind === 'geotiffTiles');
   return k < 0 ? undefined : queue.splice(k, 1)[0];
 }
 

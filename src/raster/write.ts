@@ -9,7 +9,7 @@
  * (OGC 19-008r4) for ModelPixelScale/ModelTiepoint/ModelTransformation and GeoKeys; GDAL's GTiff driver documentation
  * for tag 42113 (GDAL_NODATA, ASCII).
  */
-import { deflate, deflateSync } from 'node:zlib';
+import { constants as zlibConstants, deflate, deflateSync, type ZlibOptions } from 'node:zlib';
 import { promisify } from 'node:util';
 import { PiezomapError } from '../errors.js';
 import type { Grid } from '../grid.js';
@@ -31,7 +31,7 @@ export interface EncodeOptions extends WriteRasterOptions {
 
 const deflateAsync = promisify(deflate);
 
-const OPTION_NAMES = new Set(['nodata', 'tileSize', 'compressionLevel', 'description', 'bigTiff']);
+const OPTION_NAMES = new Set(['nodata', 'tileSize', 'compressionLevel', 'runLengthOnly', 'description', 'bigTiff']);
 
 // TIFF field types (TIFF 6.0 section 2; LONG8 from BigTIFF).
 const ASCII = 2;
@@ -84,7 +84,62 @@ export function encodeFloat32GeoTiff(grid: Grid, values: ArrayLike<number>, opti
   const job = prepare(grid, values, options);
   const tiles: Uint8Array[] = [];
   // one predicted-tile buffer, compressed at once
-  eachPredictedTile(grid.nx, grid.ny, values, job.tileSize, job.nodata, false, (t) => tiles.push(deflateSync(t, { level: job.level })));
+  eachPredictedTile(grid.nx, grid.ny, values, job.tileSize, job.nodata, false, 0, Infinity, (t) => tiles.push(deflateSync(t, job.zlib)));
+  return finish(grid, job, tiles, options);
+}
+
+/** Rows of tiles encodeFloat32GeoTiff cuts a raster of this grid into. */
+export function geoTiffTileRows(grid: Grid, options: EncodeOptions = {}): number {
+  return Math.ceil(grid.ny / (options.tileSize ?? 256));
+}
+
+/**
+ * The compressed tiles of tile rows `first` to `end - 1` of encodeFloat32GeoTiff, in its order, as one buffer and the
+ * length of each tile: for a writer that splits a raster between threads and puts the file together with
+ * assembleFloat32GeoTiff. Only the options are checked here; the whole raster's checks are assembleFloat32GeoTiff's.
+ */
+export function encodeFloat32GeoTiffTileRows(
+  grid: Grid,
+  values: ArrayLike<number>,
+  options: EncodeOptions,
+  first: number,
+  end: number,
+): { bytes: Uint8Array; lengths: number[] } {
+  const job = prepareOptions(grid, values, options);
+  const tiles: Uint8Array[] = [];
+  eachPredictedTile(grid.nx, grid.ny, values, job.tileSize, job.nodata, false, first, end, (t) => tiles.push(deflateSync(t, job.zlib)));
+  const bytes = new Uint8Array(tiles.reduce((sum, t) => sum + t.length, 0));
+  let at = 0;
+  for (const t of tiles) {
+    bytes.set(t, at);
+    at += t.length;
+  }
+  return { bytes, lengths: tiles.map((t) => t.length) };
+}
+
+/**
+ * The GeoTIFF of `values` from its compressed tiles (encodeFloat32GeoTiffTileRows over every tile row, in order): the
+ * bytes encodeFloat32GeoTiff gives, after the same checks.
+ */
+export function assembleFloat32GeoTiff(
+  grid: Grid,
+  values: ArrayLike<number>,
+  options: EncodeOptions,
+  parts: ReadonlyArray<{ bytes: Uint8Array; lengths: readonly number[] }>,
+): Uint8Array {
+  const job = prepare(grid, values, options);
+  const tiles: Uint8Array[] = [];
+  for (const part of parts) {
+    let at = 0;
+    for (const length of part.lengths) {
+      tiles.push(part.bytes.subarray(at, at + length));
+      at += length;
+    }
+  }
+  const expected = Math.ceil(grid.nx / job.tileSize) * Math.ceil(grid.ny / job.tileSize);
+  if (tiles.length !== expected) {
+    throw new PiezomapError('internal', `GeoTIFF writer: ${tiles.length} tiles given for a raster of ${expected}`);
+  }
   return finish(grid, job, tiles, options);
 }
 
@@ -98,7 +153,7 @@ export function encodeFloat32GeoTiffAsync(grid: Grid, values: ArrayLike<number>,
   const job = prepare(grid, values, options);
   const pending: Array<Promise<Uint8Array>> = [];
   // every tile in its own buffer, all queued now
-  eachPredictedTile(grid.nx, grid.ny, values, job.tileSize, job.nodata, true, (t) => pending.push(deflateAsync(t, { level: job.level })));
+  eachPredictedTile(grid.nx, grid.ny, values, job.tileSize, job.nodata, true, 0, Infinity, (t) => pending.push(deflateAsync(t, job.zlib)));
   return Promise.all(pending).then((tiles) => finish(grid, job, tiles, options));
 }
 
@@ -106,17 +161,26 @@ interface EncodeJob {
   nodata: number;
   tileSize: number;
   level: number;
+  /** The DEFLATE settings of every tile. */
+  zlib: ZlibOptions;
   /** The tags, with placeholder tile offsets and byte counts (assemble() fills them in). */
   entries: Entry[];
 }
 
-function prepare(grid: Grid, values: ArrayLike<number>, options: EncodeOptions): EncodeJob {
+/** The options checked and the tags made: everything but the pass over the values. */
+function prepareOptions(grid: Grid, values: ArrayLike<number>, options: EncodeOptions): EncodeJob {
   const nodata = options.nodata ?? -9999;
   const tileSize = options.tileSize ?? 256;
   const level = options.compressionLevel ?? 6;
   checkArguments(grid, values, options, nodata, tileSize, level);
+  const zlib: ZlibOptions = options.runLengthOnly ? { level, strategy: zlibConstants.Z_RLE } : { level };
+  return { nodata, tileSize, level, zlib, entries: tagEntries(grid, tileSize, nodata, options.description) };
+}
+
+function prepare(grid: Grid, values: ArrayLike<number>, options: EncodeOptions): EncodeJob {
+  const job = prepareOptions(grid, values, options);
   checkSinglePrecisionRange(grid, values, options.description);
-  return { nodata, tileSize, level, entries: tagEntries(grid, tileSize, nodata, options.description) };
+  return job;
 }
 
 function finish(grid: Grid, job: EncodeJob, tiles: Uint8Array[], options: EncodeOptions): Uint8Array {
@@ -195,15 +259,17 @@ function checkArguments(
     throw usage(`tileSize ${tileSize} must be a multiple of 16 from 16 to 4096`);
   }
   if (!Number.isInteger(level) || level < 1 || level > 9) throw usage(`compressionLevel ${level} must be 1..9`);
+  if (options.runLengthOnly !== undefined && typeof options.runLengthOnly !== 'boolean') throw usage('runLengthOnly must be true or false');
   if (options.description !== undefined && (typeof options.description !== 'string' || options.description.includes('\0'))) {
     throw usage('description must be text without NUL characters');
   }
 }
 
 /**
- * Cut the raster into tiles, apply the floating-point predictor and hand each predicted tile to `each`, in row-major
- * tile order: into one reused buffer, or (`fresh`) into a new buffer per tile, for compressing later. One Float32
- * tile workspace is reused; cells beyond the raster's right and bottom edges are padded with nodata.
+ * Cut the raster into tiles, apply the floating-point predictor and hand each predicted tile of tile rows `first` to
+ * `end - 1` to `each`, in row-major tile order: into one reused buffer, or (`fresh`) into a new buffer per tile, for
+ * compressing later. One Float32 tile workspace is reused; cells beyond the raster's right and bottom edges are padded
+ * with nodata.
  */
 function eachPredictedTile(
   nx: number,
@@ -212,15 +278,17 @@ function eachPredictedTile(
   tileSize: number,
   nodata: number,
   fresh: boolean,
+  first: number,
+  end: number,
   each: (predicted: Uint8Array) => void,
 ): void {
   const tilesAcross = Math.ceil(nx / tileSize);
-  const tilesDown = Math.ceil(ny / tileSize);
+  const tilesDown = Math.min(Math.ceil(ny / tileSize), end);
   const tile = new Float32Array(tileSize * tileSize);
   const tileBytes = new Uint8Array(tile.buffer);
   const rowBytes = tileSize * 4;
   let predicted = new Uint8Array(tileBytes.length);
-  for (let ty = 0; ty < tilesDown; ty++) {
+  for (let ty = Math.max(0, first); ty < tilesDown; ty++) {
     const rows = Math.min(tileSize, ny - ty * tileSize);
     for (let tx = 0; tx < tilesAcross; tx++) {
       const cols = Math.min(tileSize, nx - tx * tileSize);

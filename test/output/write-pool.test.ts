@@ -139,4 +139,28 @@ describe.skipIf(!compiled)('write pool', () => {
     const values = new Float64Array(grid.nx * grid.ny).fill(1);
     expect((await pool.geotiff(grid, values, { nodata: -9999 })).length).toBeGreaterThan(0);
   }, 60_000);
+
+  it('encodes a large raster in bands of tile rows on the threads to the bytes of the one-thread encoder, and refuses alike', async () => {
+    const write = (await import(dist('raster/write.js').href)) as typeof import('../../src/raster/write.js');
+    // 1000 x 700 = 700 000 cells: above the size the pool splits (BAND_MIN_CELLS); 3 tile rows of 256, the last partial
+    const nx = 1000;
+    const ny = 700;
+    const grid = { nx, ny, transform: [500000, 10, 0, 4107000, 0, -10] as const, crs: { epsg: 32633, geographic: false, geoKeys: {} } };
+    const values = new Float64Array(nx * ny);
+    for (let p = 0; p < values.length; p++) values[p] = 40 + Math.sin(p / 997) * 3 + ((p * 7919) % 101) * 1e-4;
+    values[12_345] = Number.NaN;
+    for (const options of [{ nodata: -9999 }, { nodata: -9999, compressionLevel: 4, runLengthOnly: true }, { nodata: -1, tileSize: 128 }]) {
+      const whole = write.encodeFloat32GeoTiff(grid, values, options);
+      expect(same(await pool.geotiff(grid, values, options), whole)).toBe(true);
+    }
+    const bad = Float64Array.from(values);
+    bad[ny * nx - 5] = 1e300;
+    let serialError: unknown = null;
+    try {
+      write.encodeFloat32GeoTiff(grid, bad, { nodata: -9999 });
+    } catch (error) {
+      serialError = error;
+    }
+    await expect(pool.geotiff(grid, bad, { nodata: -9999 })).rejects.toMatchObject({ message: (serialError as Error).message });
+  }, 60_000);
 });

@@ -12,7 +12,7 @@ import { describe, expect, it } from 'vitest';
 import { PiezomapError } from '../../src/errors.js';
 import type { Grid } from '../../src/grid.js';
 import { readRaster } from '../../src/raster/read.js';
-import { encodeFloat32GeoTiff } from '../../src/raster/write.js';
+import { assembleFloat32GeoTiff, encodeFloat32GeoTiff, encodeFloat32GeoTiffTileRows, geoTiffTileRows } from '../../src/raster/write.js';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const fixtures = join(here, '..', 'fixtures', 'rasters');
@@ -92,6 +92,38 @@ describe('encodeFloat32GeoTiff round trips', () => {
 
   it('compresses a smooth surface (DEFLATE + floating-point predictor) well below raw Float32 size', () => {
     expect(bytes.length).toBeLessThan(300 * 170 * 4 * 0.8);
+  });
+
+  it('run-length-only DEFLATE (the result rasters) is decoded by geotiff.js, an independent reader, to every value', async () => {
+    const rle = encodeFloat32GeoTiff(g, values, { tileSize: 128, compressionLevel: 4, runLengthOnly: true });
+    expect(Buffer.from(rle).equals(Buffer.from(bytes))).toBe(false);
+    const image = await geotiffImage(rle);
+    const [band] = (await image.readRasters({ interleave: false })) as unknown as [Float32Array];
+    let mismatches = 0;
+    for (let i = 0; i < values.length; i++) {
+      const want = Number.isNaN(values[i]!) ? -9999 : Math.fround(values[i]!);
+      if (band[i] !== want) mismatches++;
+    }
+    expect(mismatches).toBe(0);
+  });
+
+  it('tiles encoded in bands of tile rows and put together give the bytes of the whole encoding', () => {
+    const options = { tileSize: 64, runLengthOnly: true };
+    const whole = encodeFloat32GeoTiff(g, values, options);
+    const rows = geoTiffTileRows(g, options);
+    expect(rows).toBe(3);
+    for (const cuts of [
+      [0, 3],
+      [0, 1, 3],
+      [0, 1, 2, 3],
+      [0, 2, 3],
+    ]) {
+      const parts = cuts.slice(1).map((end, k) => encodeFloat32GeoTiffTileRows(g, values, options, cuts[k]!, end));
+      expect(Buffer.from(assembleFloat32GeoTiff(g, values, options, parts)).equals(Buffer.from(whole))).toBe(true);
+    }
+    // a band missing is an error, not a shorter file
+    const some = [encodeFloat32GeoTiffTileRows(g, values, options, 0, 2)];
+    expect(() => assembleFloat32GeoTiff(g, values, options, some)).toThrow(/tiles given/);
   });
 
   it('a custom nodata and a description are stored and read back', async () => {
