@@ -250,7 +250,8 @@ export function linearise(
   const { nx, ny } = grid;
   const n = nx * ny;
   const diag = sharedFloat64Array(n);
-  const rhs = new Float64Array(n);
+  // in shared memory too: a solve worker reads it without a copy
+  const rhs = sharedFloat64Array(n);
   for (const term of terms) term.linearise(head, diag, rhs);
   for (let p = 0; p < n; p++) {
     if (!unknown[p]) {

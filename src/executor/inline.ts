@@ -52,9 +52,12 @@ function sharedOperator(op: StencilOperator): StencilOperator {
   return new GridOperator(op.nx, op.ny, diag, east, south, unknown);
 }
 
-/** Solve one right-hand side with a set-up solver, keeping the residual history. */
-export function runSolver(solver: Solver, request: LinearSolve): LinearAnswer {
-  const x = Float64Array.from(request.x);
+/**
+ * Solve one right-hand side with a set-up solver, keeping the residual history: into a copy of `request.x`, or with
+ * `inPlace` into `request.x` itself (a caller that made it for this solve).
+ */
+export function runSolver(solver: Solver, request: LinearSolve, inPlace = false): LinearAnswer {
+  const x = inPlace ? request.x : Float64Array.from(request.x);
   const stats = solver.solve(request.rhs, x, {
     tolerance: request.tolerance,
     maxIterations: request.maxIterations,
@@ -93,8 +96,9 @@ export class InlineSession implements SolverSession {
     return this.solver.method;
   }
 
-  solveNow(request: LinearSolve): LinearAnswer {
-    return runSolver(this.solver, request);
+  /** See runSolver: `inPlace` solves into `request.x` itself. */
+  solveNow(request: LinearSolve, inPlace = false): LinearAnswer {
+    return runSolver(this.solver, request, inPlace);
   }
 
   setDiagonalNow(diag: Float64Array): void {

@@ -8,6 +8,7 @@
 import { parentPort } from 'node:worker_threads';
 import { PiezomapError, describeThrown } from '../errors.js';
 import { InlineSession, prestartTeam } from './inline.js';
+import { isShared } from './shared.js';
 import type { Team } from '../solvers/team.js';
 import { GridOperator } from '../solvers/operator.js';
 import type { WorkerMessage, WorkerRequest } from './worker.js';
@@ -48,20 +49,25 @@ port.on('message', (request: WorkerRequest) => {
       send({ kind: 'ready', method: session.method, setupSeconds: session.setupSeconds });
     } else {
       let lastPost = 0;
-      const { x, stats } = session.solveNow({
-        rhs: request.rhs,
-        x: request.x,
-        tolerance: request.tolerance,
-        maxIterations: request.maxIterations,
-        onProgress: (iteration, relativeResidual) => {
-          const t = performance.now();
-          if (t - lastPost >= 200) {
-            lastPost = t;
-            send({ kind: 'progress', iteration, relativeResidual });
-          }
+      // x in shared memory (./worker.ts puts it there) is solved in place and shared back, not copied
+      const inPlace = isShared(request.x);
+      const { x, stats } = session.solveNow(
+        {
+          rhs: request.rhs,
+          x: request.x,
+          tolerance: request.tolerance,
+          maxIterations: request.maxIterations,
+          onProgress: (iteration, relativeResidual) => {
+            const t = performance.now();
+            if (t - lastPost >= 200) {
+              lastPost = t;
+              send({ kind: 'progress', iteration, relativeResidual });
+            }
+          },
         },
-      });
-      send({ kind: 'done', x, stats }, [x.buffer as ArrayBuffer]);
+        inPlace,
+      );
+      send({ kind: 'done', x, stats }, inPlace ? [] : [x.buffer as ArrayBuffer]);
     }
   } catch (thrown) {
     if (thrown instanceof PiezomapError) send({ kind: 'error', code: thrown.code, message: thrown.message, detail: thrown.detail });

@@ -13,7 +13,7 @@ import { fileURLToPath } from 'node:url';
 import { PiezomapError, type ErrorCode, type ErrorDetail } from '../errors.js';
 import type { SolveStats, StencilOperator } from '../solvers/types.js';
 import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, SolverSession } from './types.js';
-import { shared } from './shared.js';
+import { shared, sharedFloat64Array } from './shared.js';
 
 /** Main thread to worker. */
 export type WorkerRequest =
@@ -88,7 +88,12 @@ class WorkerSession implements SolverSession {
   }
 
   async solve(request: LinearSolve): Promise<LinearAnswer> {
-    const { rhs, x, tolerance, maxIterations } = request;
+    const { tolerance, maxIterations } = request;
+    // Both in shared memory, so that nothing is cloned: the right-hand side as it is (the assembly puts it there) and
+    // the start a copy there, which the thread solves in place and answers with (the caller's own x is kept).
+    const rhs = shared(request.rhs);
+    const x = sharedFloat64Array(request.x.length);
+    x.set(request.x);
     const answer = await this.request({ kind: 'solve', rhs, x, tolerance, maxIterations }, request.onProgress);
     if (answer.kind !== 'done') throw new PiezomapError('internal', `the solver thread answered "${answer.kind}" to a solve`);
     return { x: answer.x, stats: answer.stats };

@@ -1,0 +1,17 @@
+const cpu = () => { const u = process.cpuUsage(); return (u.user + u.system) / 1e3; };
+const mode = process.argv[2];
+const { solveScenarioFile } = await import('./dist/src/pipeline.js');
+const { headMapInput } = await import('./dist/src/output/products.js');
+const { contourField } = await import('./dist/src/analysis/contours.js');
+const { renderMapPng } = await import('./dist/src/report/map.js');
+const { warmUpWriteJobs } = await import('./dist/src/output/writeJobs.js');
+const r = await solveScenarioFile('bench-results/cases/smooth-1024/scenario.json');
+const c = contourField(r.model.grid, r.head);
+const input = headMapInput(r, c.contours ?? c);
+let t = cpu();
+if (mode === 'full') warmUpWriteJobs({ map: true });
+if (mode === 'nomap') warmUpWriteJobs({});
+const w = cpu() - t;
+t = cpu(); renderMapPng(input); const a = cpu() - t;
+t = cpu(); renderMapPng(input); const b = cpu() - t;
+console.log(mode, `warm-up ${w.toFixed(0)} ms, first map ${a.toFixed(0)} ms, second ${b.toFixed(0)} ms`);
