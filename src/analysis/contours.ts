@@ -14,9 +14,9 @@
  * Coordinates: d3-contour's unit is one cell and a cell's value sits at its centre, (col + 0.5, row + 0.5);
  * so a point (u, v) in that space maps to x = originX + u * pixelWidth, y = originY + v * pixelHeight.
  */
-import { contours as d3Contours } from 'd3-contour';
 import type { Grid } from '../grid.js';
 import { inputError } from '../errors.js';
+import { traceRings } from './contourTrace.js';
 
 /** A polyline in map coordinates of the raster CRS: [x0, y0, x1, y1, ...]. Closed lines repeat the first point. */
 export type Polyline = Float64Array;
@@ -214,7 +214,11 @@ export function contourPlan(grid: Grid, values: Float64Array, options: ContourOp
   return { levels, interval, note };
 }
 
-/** The lines of each of `levels` (in the order given), traced as contourField traces them. */
+/**
+ * The lines of each of `levels` (in the order given), traced as contourField traces them. All levels are traced in
+ * one pass over the grid (./contourTrace.ts). A level that is not finite, or lies outside the values' range, gets no
+ * line: no cell is above it, or every vertex of its rings lies next to an inactive or outside cell.
+ */
 export function traceContourLevels(grid: Grid, values: Float64Array, levels: readonly number[]): ContourLevel[] {
   const { nx, ny } = grid;
   if (values.length !== nx * ny) {
@@ -222,21 +226,23 @@ export function traceContourLevels(grid: Grid, values: Float64Array, levels: rea
       hint: 'pass one value per cell, row-major',
     });
   }
-  const range = finiteRange(values);
-  const generator = d3Contours().size([nx, ny]).smooth(false);
-  const array = values as unknown as number[];
-  const result: ContourLevel[] = [];
-  for (const level of levels) {
-    const lines: Polyline[] = [];
-    if (range && level >= range.min && level <= range.max) {
-      const shape = generator.contour(array, level);
-      for (const polygon of shape.coordinates) {
-        for (const ring of polygon) collectGenuineRuns(grid, values, level, ring as number[][], lines);
-      }
-    }
-    result.push({ level, lines });
-  }
-  return result;
+  // Distinct finite levels, ascending (a Set takes -0 and 0 as one: both give the same cells above and the same lines).
+  const distinct = Float64Array.from(new Set(levels.filter((l) => Number.isFinite(l)))).sort();
+  const linesOf: Polyline[][] = [];
+  for (let k = 0; k < distinct.length; k++) linesOf.push([]);
+  const runs = new RunWorkspace();
+  traceRings(grid, values, distinct, (k, codes, n) => runs.collect(grid, values, distinct[k]!, codes, n, linesOf[k]!));
+  const index = new Map<number, number>();
+  for (let k = 0; k < distinct.length; k++) index.set(distinct[k]!, k);
+  const handedOut = new Uint8Array(distinct.length);
+  return levels.map((level) => {
+    const k = index.get(level);
+    if (k === undefined) return { level, lines: [] };
+    // A level asked for twice gets its own copy of the lines.
+    const lines = handedOut[k] ? linesOf[k]!.map((line) => line.slice()) : linesOf[k]!;
+    handedOut[k] = 1;
+    return { level, lines };
+  });
 }
 
 function countText(count: number): string {
@@ -247,43 +253,53 @@ function fmtRange(range: { min: number; max: number }): string {
   return `${range.min.toPrecision(6)} to ${range.max.toPrecision(6)}`;
 }
 
-/**
- * Split one d3-contour ring into runs of genuine crossings and append each run (2+ points) to `out`
- * as a map-coordinate polyline. A ring with no boundary vertex stays one closed line.
- */
-function collectGenuineRuns(grid: Grid, values: Float64Array, level: number, ring: number[][], out: Polyline[]): void {
-  // d3 rings repeat the first point at the end; work on the distinct vertices.
-  const n = ring.length - 1;
-  if (n < 2) return;
-  const xs = new Float64Array(n);
-  const ys = new Float64Array(n);
-  const genuine = new Uint8Array(n);
-  let firstBoundary = -1;
-  for (let k = 0; k < n; k++) {
-    const point = ring[k]!;
-    if (placeVertex(grid, values, level, point[0]!, point[1]!, xs, ys, k)) genuine[k] = 1;
-    else if (firstBoundary < 0) firstBoundary = k;
-  }
-  if (firstBoundary < 0) {
-    const line = new Float64Array(2 * (n + 1));
-    for (let k = 0; k < n; k++) {
-      line[2 * k] = xs[k]!;
-      line[2 * k + 1] = ys[k]!;
+/** Workspaces of `collect`, grown to the longest ring seen. */
+class RunWorkspace {
+  private xs = new Float64Array(64);
+  private ys = new Float64Array(64);
+  private genuine = new Uint8Array(64);
+
+  /**
+   * Split one ring (n vertex codes, see ./contourTrace.ts) into runs of genuine crossings and append each run (2+
+   * points) to `out` as a map-coordinate polyline. A ring with no boundary vertex stays one closed line.
+   */
+  collect(grid: Grid, values: Float64Array, level: number, codes: Int32Array, n: number, out: Polyline[]): void {
+    if (n < 2) return;
+    if (this.xs.length < n) {
+      this.xs = new Float64Array(2 * n);
+      this.ys = new Float64Array(2 * n);
+      this.genuine = new Uint8Array(2 * n);
     }
-    line[2 * n] = xs[0]!;
-    line[2 * n + 1] = ys[0]!;
-    out.push(line);
-    return;
-  }
-  // Walk once round the ring starting just after a boundary vertex, so no run is split at the seam.
-  let runStart = -1;
-  for (let step = 1; step <= n; step++) {
-    const k = (firstBoundary + step) % n;
-    if (genuine[k]) {
-      if (runStart < 0) runStart = step;
-    } else if (runStart >= 0) {
-      pushRun(xs, ys, n, firstBoundary, runStart, step, out);
-      runStart = -1;
+    const { xs, ys, genuine } = this;
+    let firstBoundary = -1;
+    for (let k = 0; k < n; k++) {
+      if (placeVertex(grid, values, level, codes[k]!, xs, ys, k)) genuine[k] = 1;
+      else {
+        genuine[k] = 0;
+        if (firstBoundary < 0) firstBoundary = k;
+      }
+    }
+    if (firstBoundary < 0) {
+      const line = new Float64Array(2 * (n + 1));
+      for (let k = 0; k < n; k++) {
+        line[2 * k] = xs[k]!;
+        line[2 * k + 1] = ys[k]!;
+      }
+      line[2 * n] = xs[0]!;
+      line[2 * n + 1] = ys[0]!;
+      out.push(line);
+      return;
+    }
+    // Walk once round the ring starting just after a boundary vertex, so no run is split at the seam.
+    let runStart = -1;
+    for (let step = 1; step <= n; step++) {
+      const k = (firstBoundary + step) % n;
+      if (genuine[k]) {
+        if (runStart < 0) runStart = step;
+      } else if (runStart >= 0) {
+        pushRun(xs, ys, n, firstBoundary, runStart, step, out);
+        runStart = -1;
+      }
     }
   }
 }
@@ -301,39 +317,44 @@ function pushRun(xs: Float64Array, ys: Float64Array, n: number, origin: number, 
 }
 
 /**
- * Place a ring vertex given in d3-contour's cell space. Vertices sit on the midpoint between two cell
- * centres: (X, r + 0.5) between cells (r, X-1) and (r, X); (c + 0.5, Y) between cells (Y-1, c) and (Y, c).
- * Returns false (boundary vertex) when either cell is outside the raster or inactive.
+ * Place ring vertex `code` (./contourTrace.ts) in map coordinates at xs[k], ys[k]. Vertices sit on the midpoint
+ * between two cell centres: (X, r + 0.5) between cells (r, X-1) and (r, X); (c + 0.5, Y) between cells (Y-1, c) and
+ * (Y, c); the level's crossing is placed by linear interpolation between the two heads. Returns false (boundary
+ * vertex) when either cell is outside the raster or inactive.
  */
 function placeVertex(
   grid: Grid,
   values: Float64Array,
   level: number,
-  u: number,
-  v: number,
+  code: number,
   xs: Float64Array,
   ys: Float64Array,
   k: number,
 ): boolean {
   const { nx, ny, transform: t } = grid;
-  let a: number;
-  let b: number;
-  let uu = u;
-  let vv = v;
-  if (Number.isInteger(u)) {
-    const row = Math.floor(v);
-    if (u <= 0 || u >= nx || row < 0 || row >= ny) return false;
-    a = values[row * nx + u - 1]!;
-    b = values[row * nx + u]!;
+  const w = nx + 1;
+  const hCount = ny * w;
+  let uu: number;
+  let vv: number;
+  if (code < hCount) {
+    const row = (code / w) | 0;
+    const X = code - row * w;
+    if (X <= 0 || X >= nx) return false;
+    const a = values[row * nx + X - 1]!;
+    const b = values[row * nx + X]!;
     if (!Number.isFinite(a) || !Number.isFinite(b)) return false;
-    uu = u - 0.5 + crossing(a, b, level);
+    uu = X - 0.5 + crossing(a, b, level);
+    vv = row + 0.5;
   } else {
-    const col = Math.floor(u);
-    if (v <= 0 || v >= ny || col < 0 || col >= nx) return false;
-    a = values[(v - 1) * nx + col]!;
-    b = values[v * nx + col]!;
+    const v = code - hCount;
+    const Y = (v / nx) | 0;
+    const col = v - Y * nx;
+    if (Y <= 0 || Y >= ny) return false;
+    const a = values[(Y - 1) * nx + col]!;
+    const b = values[Y * nx + col]!;
     if (!Number.isFinite(a) || !Number.isFinite(b)) return false;
-    vv = v - 0.5 + crossing(a, b, level);
+    uu = col + 0.5;
+    vv = Y - 0.5 + crossing(a, b, level);
   }
   xs[k] = t[0] + uu * t[1];
   ys[k] = t[3] + vv * t[5];
