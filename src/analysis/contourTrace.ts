@@ -42,11 +42,16 @@
 import type { Grid } from '../grid.js';
 import { PiezomapError } from '../errors.js';
 
-/** One ring of a level as traced: its vertices are the node chain from `head`, `length` of them. */
+/**
+ * The rings as traced, in closing order: level index, first node of the vertex chain, vertex count, whether it is an
+ * outer ring, and the cell row of the square it closed in.
+ */
 interface RingStore {
   level: Int32Array<ArrayBuffer>;
   head: Int32Array<ArrayBuffer>;
   length: Int32Array<ArrayBuffer>;
+  outer: Int32Array<ArrayBuffer>;
+  row: Int32Array<ArrayBuffer>;
   count: number;
 }
 
@@ -93,7 +98,14 @@ export function traceRings(
   let nodeCode = new Int32Array(nodeCap);
   let nodeNext = new Int32Array(nodeCap);
   let nodeCount = 0;
-  const rings: RingStore = { level: new Int32Array(64), head: new Int32Array(64), length: new Int32Array(64), count: 0 };
+  const rings: RingStore = {
+    level: new Int32Array(64),
+    head: new Int32Array(64),
+    length: new Int32Array(64),
+    outer: new Int32Array(64),
+    row: new Int32Array(64),
+    count: 0,
+  };
 
   const newNode = (code: number, next: number): number => {
     if (nodeCount === nodeCap) {
@@ -121,16 +133,29 @@ export function traceRings(
   const freeFrag = (f: number): void => {
     freeFrags[freeCount++] = f;
   };
-  const closeRing = (k: number, f: number): void => {
+  /**
+   * Fragment f of level k closed by the segment s -> e. That segment lies in the ring's last square in scan order, so
+   * it joins the square's top and left sides (the bottom and right ones would continue in later squares), and the
+   * square's bottom-right corner lies outside the ring (nothing of the ring is below or right of it). The cells above
+   * the level lie on the same side of every segment, seen in its direction (d3-contour's table): for L -> T (cases 8
+   * and 10) that side holds the top-left corner, inside the ring, so the ring bounds an above region from outside (an
+   * outer ring: positive area in d3-contour's terms); for T -> L (case 7) it faces the outside: the ring is a hole.
+   */
+  const closeRing = (k: number, f: number, s: number, e: number): void => {
     if (rings.count === rings.level.length) {
       const cap = 2 * rings.count;
       rings.level = grow(rings.level, cap);
       rings.head = grow(rings.head, cap);
       rings.length = grow(rings.length, cap);
+      rings.outer = grow(rings.outer, cap);
+      rings.row = grow(rings.row, cap);
     }
+    const outer = s >= hCount;
     rings.level[rings.count] = k;
     rings.head[rings.count] = fragHead[f]!;
     rings.length[rings.count] = fragLen[f]!;
+    rings.outer[rings.count] = outer ? 1 : 0;
+    rings.row[rings.count] = ((outer ? e : s) / W) | 0;
     rings.count++;
     freeFrag(f);
   };
@@ -147,7 +172,7 @@ export function traceRings(
       if (g >= 0) {
         startAt[eSlot] = -1;
         if (f === g) {
-          closeRing(k, f);
+          closeRing(k, f, s, e);
         } else {
           nodeNext[fragTail[f]!] = fragHead[g]!;
           fragTail[f] = fragTail[g]!;
@@ -337,12 +362,12 @@ function emitInOrder(
   let maxLength = 0;
   for (let r = 0; r < count; r++) if (rings.length[r]! > maxLength) maxLength = rings.length[r]!;
   const codes = new Int32Array(maxLength);
-  const outer = new Uint8Array(count);
-  const holeRow = new Int32Array(count).fill(-1);
+  const outer = rings.outer;
   const parent = new Int32Array(count).fill(-1);
   const firstChild = new Int32Array(count).fill(-1);
   const lastChild = new Int32Array(count).fill(-1);
   const nextSibling = new Int32Array(count).fill(-1);
+  const needsParent = new Uint8Array(count);
   const rowSlot = new Int32Array(ny).fill(-1);
   let rowRing = new Int32Array(0);
   const stack = new Int32Array(count);
@@ -352,46 +377,12 @@ function emitInOrder(
     const from = levelStart[k]!;
     const to = levelStart[k + 1]!;
     if (from === to) continue;
-    // Orientation (twice d3-contour's cell coordinates keep the shoelace sum in integers) and each hole's row.
+    // Holes that give a line need their outer ring; the others (around inactive cells) give nothing, wherever they go.
     let holes = 0;
     for (let q = from; q < to; q++) {
       const r = order[q]!;
-      let node = rings.head[r]!;
-      let firstX = 0;
-      let firstY = 0;
-      let prevX = 0;
-      let prevY = 0;
-      let area = 0;
-      let row = -1;
-      for (let n = 0; node >= 0; n++, node = nodeNext[node]!) {
-        const code = nodeCode[node]!;
-        let px: number;
-        let py: number;
-        if (code < hCount) {
-          const rr = (code / W) | 0;
-          px = 2 * (code - rr * W);
-          py = 2 * rr + 1;
-          if (row < 0) row = rr;
-        } else {
-          const v = code - hCount;
-          const yy = (v / nx) | 0;
-          px = 2 * (v - yy * nx) + 1;
-          py = 2 * yy;
-        }
-        if (n === 0) {
-          firstX = px;
-          firstY = py;
-        } else {
-          area += prevY * px - prevX * py;
-        }
-        prevX = px;
-        prevY = py;
-      }
-      area += prevY * firstX - prevX * firstY;
-      if (area > 0) {
-        outer[r] = 1;
-      } else {
-        holeRow[r] = row;
+      if (!outer[r] && hasGenuineVertex(r)) {
+        needsParent[r] = 1;
         holes++;
       }
     }
@@ -405,6 +396,24 @@ function emitInOrder(
     }
   }
 
+  /** Whether ring r has a vertex between two active cells (see placeVertex in contours.ts). */
+  function hasGenuineVertex(r: number): boolean {
+    for (let node = rings.head[r]!; node >= 0; node = nodeNext[node]!) {
+      const code = nodeCode[node]!;
+      if (code < hCount) {
+        const row = (code / W) | 0;
+        const X = code - row * W;
+        if (X > 0 && X < nx && Number.isFinite(values[row * nx + X - 1]!) && Number.isFinite(values[row * nx + X]!)) return true;
+      } else {
+        const v = code - hCount;
+        const Y = (v / nx) | 0;
+        const col = v - Y * nx;
+        if (Y > 0 && Y < ny && Number.isFinite(values[(Y - 1) * nx + col]!) && Number.isFinite(values[Y * nx + col]!)) return true;
+      }
+    }
+    return false;
+  }
+
   function visitRing(k: number, r: number): void {
     let n = 0;
     for (let node = rings.head[r]!; node >= 0; node = nodeNext[node]!) codes[n++] = nodeCode[node]!;
@@ -415,12 +424,17 @@ function emitInOrder(
   function findParents(k: number, from: number, to: number): void {
     const level = levels[k]!;
     const rows: number[] = [];
+    const pending: number[] = [];
     for (let q = from; q < to; q++) {
-      const row = holeRow[order[q]!]!;
-      if (row >= 0 && rowSlot[row]! < 0) {
+      const r = order[q]!;
+      if (!needsParent[r]) continue;
+      const row = rings.row[r]!;
+      if (rowSlot[row]! < 0) {
         rowSlot[row] = rows.length;
         rows.push(row);
+        pending.push(0);
       }
+      pending[rowSlot[row]!]!++;
     }
     if (rowRing.length < rows.length * W) rowRing = new Int32Array(rows.length * W);
     // Which ring each vertex on those rows belongs to.
@@ -438,7 +452,8 @@ function emitInOrder(
       const slot = rowSlot[row]!;
       let depth = 0;
       let left = false;
-      for (let X = 0; X <= nx; X++) {
+      let unresolved = pending[slot]!;
+      for (let X = 0; X <= nx && unresolved > 0; X++) {
         const right = X < nx && values[row * nx + X]! >= level;
         if (right === left) continue;
         left = right;
@@ -451,7 +466,7 @@ function emitInOrder(
           stack[depth++] = r;
           onStack[r] = 1;
         }
-        if (!outer[r] && parent[r]! < 0) {
+        if (needsParent[r] && parent[r]! < 0) {
           // The rings containing this hole are the others on the stack; the outer ring among them that closed first.
           let best = -1;
           for (let d = 0; d < depth; d++) {
@@ -460,15 +475,16 @@ function emitInOrder(
           }
           if (best < 0) throw new PiezomapError('internal', 'contour tracing: a hole lies in no outer ring');
           parent[r] = best;
+          // A hole of this row is resolved here; one from another row may be met too, and is resolved as well.
+          if (rings.row[r] === row) unresolved--;
         }
       }
       for (let d = 0; d < depth; d++) onStack[stack[d]!] = 0;
-      if (depth !== 0) throw new PiezomapError('internal', 'contour tracing: a ring is left open along a row');
       rowSlot[row] = -1;
     }
     for (let q = from; q < to; q++) {
       const h = order[q]!;
-      if (outer[h]) continue;
+      if (!needsParent[h]) continue;
       const p = parent[h]!;
       if (p < 0) throw new PiezomapError('internal', 'contour tracing: a hole without an outer ring');
       if (firstChild[p]! < 0) firstChild[p] = h;
