@@ -222,19 +222,21 @@ export function traceRings(
     else bottom.fill(0);
     const topBase = (y & 1) * K * W;
     const bottomBase = ((y + 1) & 1) * K * W;
-    for (let x = -1; x < nx; x++) {
-      const i = x + 1;
-      const b3 = top[i]!;
+    // Corner buckets of square x = i - 1: b3 top left, b2 top right, b0 bottom left, b1 bottom right.
+    let b3 = top[0]!;
+    let b0 = bottom[0]!;
+    for (let i = 0; i <= nx; i++) {
       const b2 = top[i + 1]!;
-      const b0 = bottom[i]!;
       const b1 = bottom[i + 1]!;
+      // All four corners in one bucket: no level crosses the square (and the next square's left corners are these).
+      if (b0 === b1 && b2 === b3 && b0 === b3) continue;
+      const x = i - 1;
       let lo = b0 < b1 ? b0 : b1;
       let hi = b0 < b1 ? b1 : b0;
       const lo2 = b2 < b3 ? b2 : b3;
       const hi2 = b2 < b3 ? b3 : b2;
       if (lo2 < lo) lo = lo2;
       if (hi2 > hi) hi = hi2;
-      if (lo === hi) continue;
       // Vertex codes of the four sides (T, B: X = x + 1 on cell rows y, y + 1; L, R: columns x, x + 1 at Y = y + 1).
       const T = y * W + x + 1;
       const B = T + W;
@@ -293,6 +295,8 @@ export function traceRings(
             break;
         }
       }
+      b3 = b2;
+      b0 = b1;
     }
   }
   if (fragCount - freeCount !== 0) {
@@ -302,25 +306,35 @@ export function traceRings(
   emitInOrder(grid, values, levels, rings, nodeCode, nodeNext, visit);
 }
 
-/** Buckets of one cell row: the number of levels <= value (0 for NaN), from the left neighbour's when close. */
+/**
+ * Buckets of one cell row into out[1..nx]: the number of levels <= value (0 for NaN). A cell in the same bucket as its
+ * left neighbour (the usual case) costs two comparisons; others a binary search.
+ */
 function bucketRow(values: Float64Array, base: number, nx: number, levels: Float64Array, out: Int32Array): void {
   const K = levels.length;
   const first = levels[0]!;
   let b = 0;
+  // Bucket b holds lower <= v < upper.
+  let lower = -Infinity;
+  let upper = first;
   for (let j = 0; j < nx; j++) {
     const v = values[base + j]!;
-    if (!(v >= first)) {
-      b = 0;
-    } else if (!((b === 0 || levels[b - 1]! <= v) && (b === K || v < levels[b]!))) {
-      // levels[lo - 1] <= v < levels[hi]: find the first level > v.
-      let lo = 1;
-      let hi = K;
-      while (lo < hi) {
-        const mid = (lo + hi) >>> 1;
-        if (levels[mid]! <= v) lo = mid + 1;
-        else hi = mid;
+    if (!(v >= lower && v < upper)) {
+      if (!(v >= first)) {
+        b = 0;
+      } else {
+        // levels[lo - 1] <= v < levels[hi]: find the first level > v.
+        let lo = 1;
+        let hi = K;
+        while (lo < hi) {
+          const mid = (lo + hi) >>> 1;
+          if (levels[mid]! <= v) lo = mid + 1;
+          else hi = mid;
+        }
+        b = lo;
       }
-      b = lo;
+      lower = b > 0 ? levels[b - 1]! : -Infinity;
+      upper = b < K ? levels[b]! : Infinity;
     }
     out[j + 1] = b;
   }
