@@ -1,18 +1,19 @@
 /**
- * Head and drawdown contours: levels at a round interval, lines traced by d3-contour, GeoJSON out.
+ * Head and drawdown contours: levels at a round interval, lines traced by marching squares (./contourTrace.ts, one
+ * pass over the grid for all levels), GeoJSON out.
  *
- * How inactive cells are kept from making false lines. d3-contour traces, for each level L, the rings that
- * bound the region {value >= L} on the grid of cell centres, treating NaN (inactive) and everything outside
- * the raster as below every level. Those rings are the true isoline plus pieces that run along the edge of
- * the data (inactive cells, raster border). We ask d3-contour for the rings without its smoothing, so every
- * ring vertex still sits on the midpoint between two neighbouring cell centres, and keep a vertex only when
- * both of those cells are active (a genuine crossing of L between two heads); a ring is cut wherever it
- * touches a vertex with an inactive or outside cell. The genuine vertices are then placed by linear
- * interpolation between the two heads, as d3-contour's own smoothing does. Consequence: lines stop up to one
- * cell short of inactive areas and of the raster border, and never trace the outline of a hole.
+ * How inactive cells are kept from making false lines. The tracer gives, for each level L, the rings that bound the
+ * region {value >= L} on the grid of cell centres, treating NaN (inactive) and everything outside the raster as
+ * below every level: the rings d3-contour gives without its smoothing (the tracer piezomap used before; the tests
+ * compare the two line by line). Those rings are the true isoline plus pieces that run along the edge of the data
+ * (inactive cells, raster border). Every ring vertex sits on the midpoint between two neighbouring cell centres; we
+ * keep a vertex only when both of those cells are active (a genuine crossing of L between two heads); a ring is cut
+ * wherever it touches a vertex with an inactive or outside cell. The genuine vertices are then placed by linear
+ * interpolation between the two heads, as d3-contour's own smoothing does. Consequence: lines stop up to one cell
+ * short of inactive areas and of the raster border, and never trace the outline of a hole.
  *
- * Coordinates: d3-contour's unit is one cell and a cell's value sits at its centre, (col + 0.5, row + 0.5);
- * so a point (u, v) in that space maps to x = originX + u * pixelWidth, y = originY + v * pixelHeight.
+ * Coordinates: the tracer's unit is one cell and a cell's value sits at its centre, (col + 0.5, row + 0.5); so a
+ * point (u, v) in that space maps to x = originX + u * pixelWidth, y = originY + v * pixelHeight.
  */
 import type { Grid } from '../grid.js';
 import { inputError } from '../errors.js';
@@ -48,14 +49,15 @@ export interface ContourOptions {
 const ROUND_STEPS = [1, 2, 2.5, 5] as const;
 const MAX_AUTO_LEVELS = 25;
 /**
- * Most levels one contour set may have, whoever asks: ten times the automatic number. Each level costs a pass over
- * the grid and its lines in the GeoJSON; without a bound an interval of 0.001 m wrote 121 MB in 41 s, and 1e-300
- * never ended. A requested interval that gives more is widened (contourField) or refused (contourLevels).
+ * Most levels one contour set may have, whoever asks: ten times the automatic number. Each level costs its lines in
+ * the GeoJSON (and their tracing); without a bound an interval of 0.001 m wrote 121 MB in 41 s (with the tracer of
+ * the time: a pass over the grid per level), and 1e-300 never ended. A requested interval that gives more is widened (contourField) or refused (contourLevels).
  */
 export const MAX_CONTOUR_LEVELS = 10 * MAX_AUTO_LEVELS;
 /**
- * Levels × cells one contour set may trace (each level is a pass of d3-contour over the grid): on large grids the
- * level bound shrinks so that contouring stays a matter of seconds, but never below the automatic 25 levels.
+ * Levels × cells one contour set may trace (a level's lines, and so their tracing and GeoJSON, grow with the grid):
+ * on large grids the level bound shrinks so that contouring stays a matter of seconds, but never below the automatic
+ * 25 levels.
  */
 const MAX_LEVEL_CELLS = 2e8;
 
