@@ -16,7 +16,8 @@
  *   order they close.
  * - Rings with positive area (shoelace in d3-contour's cell space, y down) are outer rings, the others holes; a
  *   level's output is each outer ring in closing order, each followed by the holes assigned to it, in closing order;
- *   a hole goes to the first outer ring, in closing order, that contains it.
+ *   a hole goes to the first outer ring, in closing order, that contains it. We tell outer rings from holes by the
+ *   segment that closes them (Scanner.closeRing), without the area.
  *
  * What we do instead of d3-contour's work per level (a pass over the grid per level, arrays of point arrays, a
  * point-in-polygon test of every hole against the outer rings):
@@ -33,7 +34,9 @@
  *   another. Walking along that line from the left edge, the rings that contain the current point therefore form a
  *   stack (a crossed ring is entered when it is not on top, left when it is). At a vertex of a hole, the rings
  *   containing the hole are the others on the stack; the hole goes to the outer ring among them that closed first,
- *   which is d3-contour's rule without any polygon test. Only rows holding a vertex of some hole are walked.
+ *   which is d3-contour's rule without any polygon test. Only rows holding a vertex of some hole are walked, and
+ *   only for holes with a vertex between two active cells: the others (round inactive cells) give no line, so where
+ *   they would go does not matter, and they are left out.
  *
  * Vertex codes: (X, r + 0.5), between cells (r, X-1) and (r, X) of a row: r * (nx + 1) + X; (c + 0.5, Y), between
  * cells (Y-1, c) and (Y, c) of a column: ny * (nx + 1) + Y * nx + c (d3-contour's cell space: the value of cell
@@ -42,97 +45,114 @@
 import type { Grid } from '../grid.js';
 import { PiezomapError } from '../errors.js';
 
-/**
- * The rings as traced, in closing order: level index, first node of the vertex chain, vertex count, whether it is an
- * outer ring, and the cell row of the square it closed in.
- */
-interface RingStore {
-  level: Int32Array<ArrayBuffer>;
-  head: Int32Array<ArrayBuffer>;
-  length: Int32Array<ArrayBuffer>;
-  outer: Int32Array<ArrayBuffer>;
-  row: Int32Array<ArrayBuffer>;
-  count: number;
+/** The rings of a trace, level by level in d3-contour's output order, as chains of vertex codes. */
+export interface TracedRings {
+  /** The rings of level k are order[levelStart[k]] .. order[levelStart[k + 1] - 1], in output order. */
+  levelStart: Int32Array;
+  order: Int32Array;
+  /** Per ring: first node of its vertex chain and vertex count. */
+  head: Int32Array;
+  length: Int32Array;
+  /** Per node: vertex code and next node (-1 at the end). */
+  nodeCode: Int32Array;
+  nodeNext: Int32Array;
+  /** The longest ring's vertex count. */
+  maxLength: number;
 }
 
 /**
- * The rings of each of `levels` (finite, strictly ascending), handed to `visit` level by level in d3-contour's
- * output order (see the file comment): `visit(k, codes, n)` gets the n vertex codes of one ring in `codes[0..n)`.
+ * The rings of each of `levels` (finite, strictly ascending) in d3-contour's output order (see the file comment);
+ * rings that give no line at all may be left out.
  */
-export function traceRings(
-  grid: Grid,
-  values: Float64Array,
-  levels: Float64Array,
-  visit: (k: number, codes: Int32Array, n: number) => void,
-): void {
+export function traceRings(grid: Grid, values: Float64Array, levels: Float64Array): TracedRings {
   const { nx, ny } = grid;
   const K = levels.length;
-  if (K === 0 || nx < 1 || ny < 1) return;
-  const W = nx + 1;
-  const hCount = ny * W;
-  if (hCount + (ny + 1) * nx > 0x7fffffff) {
+  if ((ny + 1) * (nx + 1) * 2 > 0x7fffffff) {
     throw new PiezomapError('internal', `contour tracing: a grid of ${nx} x ${ny} cells is too large for 32-bit vertex codes`);
   }
   for (let k = 1; k < K; k++) {
     if (!(levels[k - 1]! < levels[k]!)) throw new PiezomapError('internal', 'contour tracing: levels must be strictly ascending');
   }
+  const scanner = new Scanner(nx, ny, K);
+  if (K > 0 && nx > 0 && ny > 0) scan(scanner, values, levels);
+  return orderRings(scanner, values, levels);
+}
 
-  // Front: open fragment starts/ends at each vertex of the front, per level (-1: none). Horizontal-side vertices of
-  // cell row r at ((r & 1) * K + k) * W + X; the vertical side between the current square and the next at 2KW + k.
-  const frontSize = 2 * K * W + K;
-  const vSlot0 = 2 * K * W;
-  const startAt = new Int32Array(frontSize).fill(-1);
-  const endAt = new Int32Array(frontSize).fill(-1);
+/**
+ * Stitching state of a scan (d3-contour's fragments and rings) on typed arrays that grow as needed. One class, its
+ * methods on the prototype: the engine compiles them once for every trace.
+ */
+class Scanner {
+  readonly nx: number;
+  readonly ny: number;
+  readonly K: number;
+  /** Row length of the horizontal-side vertex codes (nx + 1) and their count (codes below it are horizontal). */
+  readonly W: number;
+  readonly hCount: number;
+  /**
+   * The front: open fragment starting/ending at each vertex of it, per level (-1: none). Horizontal-side vertices
+   * of cell row r at ((r & 1) * K + k) * W + X; the vertical side between the current square and the next at
+   * 2KW + k.
+   */
+  readonly startAt: Int32Array;
+  readonly endAt: Int32Array;
+  readonly vSlot0: number;
+  // Fragments, their ids reused through a free list.
+  fragHead = new Int32Array(256);
+  fragTail = new Int32Array(256);
+  fragStartSlot = new Int32Array(256);
+  fragEndSlot = new Int32Array(256);
+  fragLen = new Int32Array(256);
+  fragCount = 0;
+  freeFrags = new Int32Array(256);
+  freeCount = 0;
+  // Nodes of vertex chains (never freed: rings keep theirs).
+  nodeCode = new Int32Array(4096);
+  nodeNext = new Int32Array(4096);
+  nodeCount = 0;
+  // Rings in closing order: level index, first node, vertex count, outer ring (1) or hole (0), cell row it closed on.
+  ringLevel = new Int32Array(64);
+  ringHead = new Int32Array(64);
+  ringLength = new Int32Array(64);
+  ringOuter = new Uint8Array(64);
+  ringRow = new Int32Array(64);
+  ringCount = 0;
 
-  // Fragments (ids reused through a free list) and the node pool (never freed: rings keep their nodes).
-  let fragCap = 256;
-  let fragHead = new Int32Array(fragCap);
-  let fragTail = new Int32Array(fragCap);
-  let fragStartSlot = new Int32Array(fragCap);
-  let fragEndSlot = new Int32Array(fragCap);
-  let fragLen = new Int32Array(fragCap);
-  let fragCount = 0;
-  let freeFrags = new Int32Array(fragCap);
-  let freeCount = 0;
-  let nodeCap = 4096;
-  let nodeCode = new Int32Array(nodeCap);
-  let nodeNext = new Int32Array(nodeCap);
-  let nodeCount = 0;
-  const rings: RingStore = {
-    level: new Int32Array(64),
-    head: new Int32Array(64),
-    length: new Int32Array(64),
-    outer: new Int32Array(64),
-    row: new Int32Array(64),
-    count: 0,
-  };
+  constructor(nx: number, ny: number, K: number) {
+    this.nx = nx;
+    this.ny = ny;
+    this.K = K;
+    this.W = nx + 1;
+    this.hCount = ny * this.W;
+    this.vSlot0 = 2 * K * this.W;
+    this.startAt = new Int32Array(this.vSlot0 + K).fill(-1);
+    this.endAt = new Int32Array(this.vSlot0 + K).fill(-1);
+  }
 
-  const newNode = (code: number, next: number): number => {
-    if (nodeCount === nodeCap) {
-      nodeCap *= 2;
-      nodeCode = grow(nodeCode, nodeCap);
-      nodeNext = grow(nodeNext, nodeCap);
+  newNode(code: number, next: number): number {
+    if (this.nodeCount === this.nodeCode.length) {
+      this.nodeCode = grow(this.nodeCode);
+      this.nodeNext = grow(this.nodeNext);
     }
-    nodeCode[nodeCount] = code;
-    nodeNext[nodeCount] = next;
-    return nodeCount++;
-  };
-  const newFrag = (): number => {
-    if (freeCount > 0) return freeFrags[--freeCount]!;
-    if (fragCount === fragCap) {
-      fragCap *= 2;
-      fragHead = grow(fragHead, fragCap);
-      fragTail = grow(fragTail, fragCap);
-      fragStartSlot = grow(fragStartSlot, fragCap);
-      fragEndSlot = grow(fragEndSlot, fragCap);
-      fragLen = grow(fragLen, fragCap);
-      freeFrags = grow(freeFrags, fragCap);
+    const node = this.nodeCount++;
+    this.nodeCode[node] = code;
+    this.nodeNext[node] = next;
+    return node;
+  }
+
+  newFrag(): number {
+    if (this.freeCount > 0) return this.freeFrags[--this.freeCount]!;
+    if (this.fragCount === this.fragHead.length) {
+      this.fragHead = grow(this.fragHead);
+      this.fragTail = grow(this.fragTail);
+      this.fragStartSlot = grow(this.fragStartSlot);
+      this.fragEndSlot = grow(this.fragEndSlot);
+      this.fragLen = grow(this.fragLen);
+      this.freeFrags = grow(this.freeFrags);
     }
-    return fragCount++;
-  };
-  const freeFrag = (f: number): void => {
-    freeFrags[freeCount++] = f;
-  };
+    return this.fragCount++;
+  }
+
   /**
    * Fragment f of level k closed by the segment s -> e. That segment lies in the ring's last square in scan order, so
    * it joins the square's top and left sides (the bottom and right ones would continue in later squares), and the
@@ -141,30 +161,35 @@ export function traceRings(
    * and 10) that side holds the top-left corner, inside the ring, so the ring bounds an above region from outside (an
    * outer ring: positive area in d3-contour's terms); for T -> L (case 7) it faces the outside: the ring is a hole.
    */
-  const closeRing = (k: number, f: number, s: number, e: number): void => {
-    if (rings.count === rings.level.length) {
-      const cap = 2 * rings.count;
-      rings.level = grow(rings.level, cap);
-      rings.head = grow(rings.head, cap);
-      rings.length = grow(rings.length, cap);
-      rings.outer = grow(rings.outer, cap);
-      rings.row = grow(rings.row, cap);
+  closeRing(k: number, f: number, s: number, e: number): void {
+    const r = this.ringCount;
+    if (r === this.ringLevel.length) {
+      this.ringLevel = grow(this.ringLevel);
+      this.ringHead = grow(this.ringHead);
+      this.ringLength = grow(this.ringLength);
+      this.ringRow = grow(this.ringRow);
+      const outer = new Uint8Array(2 * r);
+      outer.set(this.ringOuter);
+      this.ringOuter = outer;
     }
-    const outer = s >= hCount;
-    rings.level[rings.count] = k;
-    rings.head[rings.count] = fragHead[f]!;
-    rings.length[rings.count] = fragLen[f]!;
-    rings.outer[rings.count] = outer ? 1 : 0;
-    rings.row[rings.count] = ((outer ? e : s) / W) | 0;
-    rings.count++;
-    freeFrag(f);
-  };
+    const isOuter = s >= this.hCount;
+    this.ringLevel[r] = k;
+    this.ringHead[r] = this.fragHead[f]!;
+    this.ringLength[r] = this.fragLen[f]!;
+    this.ringOuter[r] = isOuter ? 1 : 0;
+    // The square's top-side vertex lies on the cell row the ring closed on.
+    this.ringRow[r] = ((isOuter ? e : s) / this.W) | 0;
+    this.ringCount = r + 1;
+    this.freeFrags[this.freeCount++] = f;
+  }
 
   /**
    * Segment s -> e of level k (d3-contour's stitch). `sOld`/`eOld`: whether the vertex may already hold an open
-   * fragment end (the top and left sides of the square; the bottom and right ones are new).
+   * fragment end (the top and left sides of the square; the bottom and right ones are new). The slots are the
+   * vertices' places on the front.
    */
-  const stitch = (k: number, s: number, sSlot: number, sOld: boolean, e: number, eSlot: number, eOld: boolean): void => {
+  stitch(k: number, s: number, sSlot: number, sOld: boolean, e: number, eSlot: number, eOld: boolean): void {
+    const { startAt, endAt } = this;
     const f = sOld ? endAt[sSlot]! : -1;
     if (f >= 0) {
       const g = eOld ? startAt[eSlot]! : -1;
@@ -172,21 +197,23 @@ export function traceRings(
       if (g >= 0) {
         startAt[eSlot] = -1;
         if (f === g) {
-          closeRing(k, f, s, e);
+          this.closeRing(k, f, s, e);
         } else {
-          nodeNext[fragTail[f]!] = fragHead[g]!;
-          fragTail[f] = fragTail[g]!;
-          fragLen[f] = fragLen[f]! + fragLen[g]!;
-          fragEndSlot[f] = fragEndSlot[g]!;
-          endAt[fragEndSlot[g]!] = f;
-          freeFrag(g);
+          // f, then g.
+          this.nodeNext[this.fragTail[f]!] = this.fragHead[g]!;
+          this.fragTail[f] = this.fragTail[g]!;
+          this.fragLen[f] = this.fragLen[f]! + this.fragLen[g]!;
+          const gEnd = this.fragEndSlot[g]!;
+          this.fragEndSlot[f] = gEnd;
+          endAt[gEnd] = f;
+          this.freeFrags[this.freeCount++] = g;
         }
       } else {
-        const node = newNode(e, -1);
-        nodeNext[fragTail[f]!] = node;
-        fragTail[f] = node;
-        fragLen[f] = fragLen[f]! + 1;
-        fragEndSlot[f] = eSlot;
+        const node = this.newNode(e, -1);
+        this.nodeNext[this.fragTail[f]!] = node;
+        this.fragTail[f] = node;
+        this.fragLen[f] = this.fragLen[f]! + 1;
+        this.fragEndSlot[f] = eSlot;
         endAt[eSlot] = f;
       }
       return;
@@ -194,23 +221,27 @@ export function traceRings(
     const g = eOld ? startAt[eSlot]! : -1;
     if (g >= 0) {
       startAt[eSlot] = -1;
-      fragHead[g] = newNode(s, fragHead[g]!);
-      fragLen[g] = fragLen[g]! + 1;
-      fragStartSlot[g] = sSlot;
+      this.fragHead[g] = this.newNode(s, this.fragHead[g]!);
+      this.fragLen[g] = this.fragLen[g]! + 1;
+      this.fragStartSlot[g] = sSlot;
       startAt[sSlot] = g;
       return;
     }
-    const h = newFrag();
-    const tail = newNode(e, -1);
-    fragHead[h] = newNode(s, tail);
-    fragTail[h] = tail;
-    fragLen[h] = 2;
-    fragStartSlot[h] = sSlot;
-    fragEndSlot[h] = eSlot;
+    const h = this.newFrag();
+    const tail = this.newNode(e, -1);
+    this.fragHead[h] = this.newNode(s, tail);
+    this.fragTail[h] = tail;
+    this.fragLen[h] = 2;
+    this.fragStartSlot[h] = sSlot;
+    this.fragEndSlot[h] = eSlot;
     startAt[sSlot] = h;
     endAt[eSlot] = h;
-  };
+  }
+}
 
+/** The pass over the squares of the padded grid, row by row, every level at once. */
+function scan(sc: Scanner, values: Float64Array, levels: Float64Array): void {
+  const { nx, ny, K, W, hCount, vSlot0 } = sc;
   // Buckets of two cell rows, padded with a 0 (below every level) at both ends: index i is column i - 1.
   let top = new Int32Array(nx + 2);
   let bottom = new Int32Array(nx + 2);
@@ -250,48 +281,48 @@ export function traceRings(
         // d3-contour's table of cases, segment by segment in its order.
         switch (c) {
           case 1:
-            stitch(k, B, bSlot, false, L, vSlot, true);
+            sc.stitch(k, B, bSlot, false, L, vSlot, true);
             break;
           case 2:
-            stitch(k, R, vSlot, false, B, bSlot, false);
+            sc.stitch(k, R, vSlot, false, B, bSlot, false);
             break;
           case 3:
-            stitch(k, R, vSlot, false, L, vSlot, true);
+            sc.stitch(k, R, vSlot, false, L, vSlot, true);
             break;
           case 4:
-            stitch(k, T, tSlot, true, R, vSlot, false);
+            sc.stitch(k, T, tSlot, true, R, vSlot, false);
             break;
           case 5:
-            stitch(k, B, bSlot, false, L, vSlot, true);
-            stitch(k, T, tSlot, true, R, vSlot, false);
+            sc.stitch(k, B, bSlot, false, L, vSlot, true);
+            sc.stitch(k, T, tSlot, true, R, vSlot, false);
             break;
           case 6:
-            stitch(k, T, tSlot, true, B, bSlot, false);
+            sc.stitch(k, T, tSlot, true, B, bSlot, false);
             break;
           case 7:
-            stitch(k, T, tSlot, true, L, vSlot, true);
+            sc.stitch(k, T, tSlot, true, L, vSlot, true);
             break;
           case 8:
-            stitch(k, L, vSlot, true, T, tSlot, true);
+            sc.stitch(k, L, vSlot, true, T, tSlot, true);
             break;
           case 9:
-            stitch(k, B, bSlot, false, T, tSlot, true);
+            sc.stitch(k, B, bSlot, false, T, tSlot, true);
             break;
           case 10:
-            stitch(k, L, vSlot, true, T, tSlot, true);
-            stitch(k, R, vSlot, false, B, bSlot, false);
+            sc.stitch(k, L, vSlot, true, T, tSlot, true);
+            sc.stitch(k, R, vSlot, false, B, bSlot, false);
             break;
           case 11:
-            stitch(k, R, vSlot, false, T, tSlot, true);
+            sc.stitch(k, R, vSlot, false, T, tSlot, true);
             break;
           case 12:
-            stitch(k, L, vSlot, true, R, vSlot, false);
+            sc.stitch(k, L, vSlot, true, R, vSlot, false);
             break;
           case 13:
-            stitch(k, B, bSlot, false, R, vSlot, false);
+            sc.stitch(k, B, bSlot, false, R, vSlot, false);
             break;
           case 14:
-            stitch(k, L, vSlot, true, B, bSlot, false);
+            sc.stitch(k, L, vSlot, true, B, bSlot, false);
             break;
         }
       }
@@ -299,11 +330,9 @@ export function traceRings(
       b0 = b1;
     }
   }
-  if (fragCount - freeCount !== 0) {
-    throw new PiezomapError('internal', `contour tracing: ${fragCount - freeCount} line pieces left open`);
+  if (sc.fragCount !== sc.freeCount) {
+    throw new PiezomapError('internal', `contour tracing: ${sc.fragCount - sc.freeCount} line pieces left open`);
   }
-
-  emitInOrder(grid, values, levels, rings, nodeCode, nodeNext, visit);
 }
 
 /**
@@ -341,108 +370,126 @@ function bucketRow(values: Float64Array, base: number, nx: number, levels: Float
 }
 
 /**
- * Each level's rings in d3-contour's output order: outer rings (positive area) in closing order, each followed by
- * its holes in closing order (file comment).
+ * Each level's rings in d3-contour's output order: outer rings in closing order, each followed by its holes in
+ * closing order (file comment); holes that give no line are left out.
  */
-function emitInOrder(
-  grid: Grid,
-  values: Float64Array,
-  levels: Float64Array,
-  rings: RingStore,
-  nodeCode: Int32Array,
-  nodeNext: Int32Array,
-  visit: (k: number, codes: Int32Array, n: number) => void,
-): void {
-  const { nx, ny } = grid;
-  const K = levels.length;
-  const W = nx + 1;
-  const hCount = ny * W;
-  const count = rings.count;
+function orderRings(sc: Scanner, values: Float64Array, levels: Float64Array): TracedRings {
+  const { K, ringCount: count } = sc;
   // Rings of each level, in closing order (a stable counting sort by level).
   const levelStart = new Int32Array(K + 1);
   for (let r = 0; r < count; r++) {
-    const k = rings.level[r]! + 1;
+    const k = sc.ringLevel[r]! + 1;
     levelStart[k] = levelStart[k]! + 1;
   }
   for (let k = 0; k < K; k++) levelStart[k + 1] = levelStart[k + 1]! + levelStart[k]!;
-  const order = new Int32Array(count);
+  const byLevel = new Int32Array(count);
   const fill = levelStart.slice(0, K);
   for (let r = 0; r < count; r++) {
-    const k = rings.level[r]!;
-    order[fill[k]!] = r;
+    const k = sc.ringLevel[r]!;
+    byLevel[fill[k]!] = r;
     fill[k] = fill[k]! + 1;
   }
 
+  const parents = new HoleParents(sc, count);
+  const order = new Int32Array(count);
+  const outStart = new Int32Array(K + 1);
+  let n = 0;
   let maxLength = 0;
-  for (let r = 0; r < count; r++) if (rings.length[r]! > maxLength) maxLength = rings.length[r]!;
-  const codes = new Int32Array(maxLength);
-  const outer = rings.outer;
-  const parent = new Int32Array(count).fill(-1);
-  const firstChild = new Int32Array(count).fill(-1);
-  const lastChild = new Int32Array(count).fill(-1);
-  const nextSibling = new Int32Array(count).fill(-1);
-  const needsParent = new Uint8Array(count);
-  const rowSlot = new Int32Array(ny).fill(-1);
-  let rowRing = new Int32Array(0);
-  const stack = new Int32Array(count);
-  const onStack = new Uint8Array(count);
-
   for (let k = 0; k < K; k++) {
+    outStart[k] = n;
     const from = levelStart[k]!;
     const to = levelStart[k + 1]!;
     if (from === to) continue;
-    // Holes that give a line need their outer ring; the others (around inactive cells) give nothing, wherever they go.
+    // Holes that give a line need their outer ring; the others (round inactive cells) give nothing, wherever they go.
     let holes = 0;
     for (let q = from; q < to; q++) {
-      const r = order[q]!;
-      if (!outer[r] && hasGenuineVertex(r)) {
-        needsParent[r] = 1;
+      const r = byLevel[q]!;
+      if (!sc.ringOuter[r] && hasGenuineVertex(sc, values, r)) {
+        parents.needed[r] = 1;
         holes++;
       }
     }
-    if (holes > 0) findParents(k, from, to);
-    // Output: outer rings in closing order, each followed by its holes.
+    if (holes > 0) parents.find(values, levels[k]!, byLevel, from, to);
     for (let q = from; q < to; q++) {
-      const r = order[q]!;
-      if (!outer[r]) continue;
-      visitRing(k, r);
-      for (let h = firstChild[r]!; h >= 0; h = nextSibling[h]!) visitRing(k, h);
-    }
-  }
-
-  /** Whether ring r has a vertex between two active cells (see placeVertex in contours.ts). */
-  function hasGenuineVertex(r: number): boolean {
-    for (let node = rings.head[r]!; node >= 0; node = nodeNext[node]!) {
-      const code = nodeCode[node]!;
-      if (code < hCount) {
-        const row = (code / W) | 0;
-        const X = code - row * W;
-        if (X > 0 && X < nx && Number.isFinite(values[row * nx + X - 1]!) && Number.isFinite(values[row * nx + X]!)) return true;
-      } else {
-        const v = code - hCount;
-        const Y = (v / nx) | 0;
-        const col = v - Y * nx;
-        if (Y > 0 && Y < ny && Number.isFinite(values[(Y - 1) * nx + col]!) && Number.isFinite(values[Y * nx + col]!)) return true;
+      const r = byLevel[q]!;
+      if (!sc.ringOuter[r]) continue;
+      order[n++] = r;
+      if (sc.ringLength[r]! > maxLength) maxLength = sc.ringLength[r]!;
+      for (let h = parents.firstChild[r]!; h >= 0; h = parents.nextSibling[h]!) {
+        order[n++] = h;
+        if (sc.ringLength[h]! > maxLength) maxLength = sc.ringLength[h]!;
       }
     }
-    return false;
+  }
+  outStart[K] = n;
+  return {
+    levelStart: outStart,
+    order,
+    head: sc.ringHead,
+    length: sc.ringLength,
+    nodeCode: sc.nodeCode,
+    nodeNext: sc.nodeNext,
+    maxLength,
+  };
+}
+
+/** Whether ring r has a vertex between two active cells (see placeVertex in contours.ts). */
+function hasGenuineVertex(sc: Scanner, values: Float64Array, r: number): boolean {
+  const { nx, ny, W, hCount, nodeCode, nodeNext } = sc;
+  for (let node = sc.ringHead[r]!; node >= 0; node = nodeNext[node]!) {
+    const code = nodeCode[node]!;
+    if (code < hCount) {
+      const row = (code / W) | 0;
+      const X = code - row * W;
+      if (X > 0 && X < nx && Number.isFinite(values[row * nx + X - 1]!) && Number.isFinite(values[row * nx + X]!)) return true;
+    } else {
+      const v = code - hCount;
+      const Y = (v / nx) | 0;
+      const col = v - Y * nx;
+      if (Y > 0 && Y < ny && Number.isFinite(values[(Y - 1) * nx + col]!) && Number.isFinite(values[Y * nx + col]!)) return true;
+    }
+  }
+  return false;
+}
+
+/** Holes and their outer rings: which holes need one, and the holes of each outer ring as a list in closing order. */
+class HoleParents {
+  readonly sc: Scanner;
+  readonly needed: Uint8Array;
+  readonly parent: Int32Array;
+  readonly firstChild: Int32Array;
+  readonly lastChild: Int32Array;
+  readonly nextSibling: Int32Array;
+  readonly rowSlot: Int32Array;
+  rowRing = new Int32Array(0);
+  readonly stack: Int32Array;
+  readonly onStack: Uint8Array;
+
+  constructor(sc: Scanner, count: number) {
+    this.sc = sc;
+    this.needed = new Uint8Array(count);
+    this.parent = new Int32Array(count).fill(-1);
+    this.firstChild = new Int32Array(count).fill(-1);
+    this.lastChild = new Int32Array(count).fill(-1);
+    this.nextSibling = new Int32Array(count).fill(-1);
+    this.rowSlot = new Int32Array(sc.ny).fill(-1);
+    this.stack = new Int32Array(count);
+    this.onStack = new Uint8Array(count);
   }
 
-  function visitRing(k: number, r: number): void {
-    let n = 0;
-    for (let node = rings.head[r]!; node >= 0; node = nodeNext[node]!) codes[n++] = nodeCode[node]!;
-    visit(k, codes, n);
-  }
-
-  /** The parent of each hole of level k (rings order[from..to)), by walking the rows that hold a hole vertex. */
-  function findParents(k: number, from: number, to: number): void {
-    const level = levels[k]!;
+  /**
+   * The outer ring of each needed hole among the rings byLevel[from..to) of one level, by walking the cell rows the
+   * holes closed on (file comment).
+   */
+  find(values: Float64Array, level: number, byLevel: Int32Array, from: number, to: number): void {
+    const { sc, needed, parent, rowSlot, stack, onStack } = this;
+    const { nx, W, hCount, nodeCode, nodeNext } = sc;
     const rows: number[] = [];
     const pending: number[] = [];
     for (let q = from; q < to; q++) {
-      const r = order[q]!;
-      if (!needsParent[r]) continue;
-      const row = rings.row[r]!;
+      const r = byLevel[q]!;
+      if (!needed[r]) continue;
+      const row = sc.ringRow[r]!;
       if (rowSlot[row]! < 0) {
         rowSlot[row] = rows.length;
         rows.push(row);
@@ -450,11 +497,12 @@ function emitInOrder(
       }
       pending[rowSlot[row]!]!++;
     }
-    if (rowRing.length < rows.length * W) rowRing = new Int32Array(rows.length * W);
+    if (this.rowRing.length < rows.length * W) this.rowRing = new Int32Array(rows.length * W);
+    const rowRing = this.rowRing;
     // Which ring each vertex on those rows belongs to.
     for (let q = from; q < to; q++) {
-      const r = order[q]!;
-      for (let node = rings.head[r]!; node >= 0; node = nodeNext[node]!) {
+      const r = byLevel[q]!;
+      for (let node = sc.ringHead[r]!; node >= 0; node = nodeNext[node]!) {
         const code = nodeCode[node]!;
         if (code >= hCount) continue;
         const rr = (code / W) | 0;
@@ -471,6 +519,7 @@ function emitInOrder(
         const right = X < nx && values[row * nx + X]! >= level;
         if (right === left) continue;
         left = right;
+        // A vertex of ring r: entered when r is not on top of the stack, left when it is.
         const r = rowRing[slot * W + X]!;
         if (depth > 0 && stack[depth - 1] === r) {
           depth--;
@@ -480,36 +529,37 @@ function emitInOrder(
           stack[depth++] = r;
           onStack[r] = 1;
         }
-        if (needsParent[r] && parent[r]! < 0) {
+        if (needed[r] && parent[r]! < 0) {
           // The rings containing this hole are the others on the stack; the outer ring among them that closed first.
           let best = -1;
           for (let d = 0; d < depth; d++) {
             const s = stack[d]!;
-            if (s !== r && outer[s] && (best < 0 || s < best)) best = s;
+            if (s !== r && sc.ringOuter[s] && (best < 0 || s < best)) best = s;
           }
           if (best < 0) throw new PiezomapError('internal', 'contour tracing: a hole lies in no outer ring');
           parent[r] = best;
-          // A hole of this row is resolved here; one from another row may be met too, and is resolved as well.
-          if (rings.row[r] === row) unresolved--;
+          // A hole of this row is resolved here; one of another row may be met too, and is resolved as well.
+          if (sc.ringRow[r] === row) unresolved--;
         }
       }
       for (let d = 0; d < depth; d++) onStack[stack[d]!] = 0;
       rowSlot[row] = -1;
     }
     for (let q = from; q < to; q++) {
-      const h = order[q]!;
-      if (!needsParent[h]) continue;
+      const h = byLevel[q]!;
+      if (!needed[h]) continue;
       const p = parent[h]!;
       if (p < 0) throw new PiezomapError('internal', 'contour tracing: a hole without an outer ring');
-      if (firstChild[p]! < 0) firstChild[p] = h;
-      else nextSibling[lastChild[p]!] = h;
-      lastChild[p] = h;
+      if (this.firstChild[p]! < 0) this.firstChild[p] = h;
+      else this.nextSibling[this.lastChild[p]!] = h;
+      this.lastChild[p] = h;
     }
   }
 }
 
-function grow(a: Int32Array<ArrayBuffer>, size: number): Int32Array<ArrayBuffer> {
-  const b = new Int32Array(size);
-  b.set(a.subarray(0, Math.min(a.length, size)));
-  return b;
+/** A copy of `a` twice as long. */
+function grow<T extends Int32Array>(a: T): T {
+  const b = new Int32Array(2 * a.length);
+  b.set(a);
+  return b as T;
 }

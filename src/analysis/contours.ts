@@ -17,7 +17,7 @@
  */
 import type { Grid } from '../grid.js';
 import { inputError } from '../errors.js';
-import { traceRings } from './contourTrace.js';
+import { type TracedRings, traceRings } from './contourTrace.js';
 
 /** A polyline in map coordinates of the raster CRS: [x0, y0, x1, y1, ...]. Closed lines repeat the first point. */
 export type Polyline = Float64Array;
@@ -232,8 +232,16 @@ export function traceContourLevels(grid: Grid, values: Float64Array, levels: rea
   const distinct = Float64Array.from(new Set(levels.filter((l) => Number.isFinite(l)))).sort();
   const linesOf: Polyline[][] = [];
   for (let k = 0; k < distinct.length; k++) linesOf.push([]);
-  const runs = new RunWorkspace();
-  traceRings(grid, values, distinct, (k, codes, n) => runs.collect(grid, values, distinct[k]!, codes, n, linesOf[k]!));
+  const traced = traceRings(grid, values, distinct);
+  // Workspaces for the longest ring: its vertices placed, and which of them are genuine crossings.
+  const xs = new Float64Array(traced.maxLength);
+  const ys = new Float64Array(traced.maxLength);
+  const genuine = new Uint8Array(traced.maxLength);
+  for (let k = 0; k < distinct.length; k++) {
+    for (let q = traced.levelStart[k]!; q < traced.levelStart[k + 1]!; q++) {
+      collectGenuineRuns(grid, values, distinct[k]!, traced, traced.order[q]!, xs, ys, genuine, linesOf[k]!);
+    }
+  }
   const index = new Map<number, number>();
   for (let k = 0; k < distinct.length; k++) index.set(distinct[k]!, k);
   const handedOut = new Uint8Array(distinct.length);
@@ -255,53 +263,53 @@ function fmtRange(range: { min: number; max: number }): string {
   return `${range.min.toPrecision(6)} to ${range.max.toPrecision(6)}`;
 }
 
-/** Workspaces of `collect`, grown to the longest ring seen. */
-class RunWorkspace {
-  private xs = new Float64Array(64);
-  private ys = new Float64Array(64);
-  private genuine = new Uint8Array(64);
-
-  /**
-   * Split one ring (n vertex codes, see ./contourTrace.ts) into runs of genuine crossings and append each run (2+
-   * points) to `out` as a map-coordinate polyline. A ring with no boundary vertex stays one closed line.
-   */
-  collect(grid: Grid, values: Float64Array, level: number, codes: Int32Array, n: number, out: Polyline[]): void {
-    if (n < 2) return;
-    if (this.xs.length < n) {
-      this.xs = new Float64Array(2 * n);
-      this.ys = new Float64Array(2 * n);
-      this.genuine = new Uint8Array(2 * n);
+/**
+ * Split ring r of a trace into runs of genuine crossings and append each run (2+ points) to `out` as a
+ * map-coordinate polyline. A ring with no boundary vertex stays one closed line.
+ */
+function collectGenuineRuns(
+  grid: Grid,
+  values: Float64Array,
+  level: number,
+  traced: TracedRings,
+  r: number,
+  xs: Float64Array,
+  ys: Float64Array,
+  genuine: Uint8Array,
+  out: Polyline[],
+): void {
+  const n = traced.length[r]!;
+  if (n < 2) return;
+  const { nodeCode, nodeNext } = traced;
+  let firstBoundary = -1;
+  let k = 0;
+  for (let node = traced.head[r]!; node >= 0; node = nodeNext[node]!, k++) {
+    if (placeVertex(grid, values, level, nodeCode[node]!, xs, ys, k)) genuine[k] = 1;
+    else {
+      genuine[k] = 0;
+      if (firstBoundary < 0) firstBoundary = k;
     }
-    const { xs, ys, genuine } = this;
-    let firstBoundary = -1;
+  }
+  if (firstBoundary < 0) {
+    const line = new Float64Array(2 * (n + 1));
     for (let k = 0; k < n; k++) {
-      if (placeVertex(grid, values, level, codes[k]!, xs, ys, k)) genuine[k] = 1;
-      else {
-        genuine[k] = 0;
-        if (firstBoundary < 0) firstBoundary = k;
-      }
+      line[2 * k] = xs[k]!;
+      line[2 * k + 1] = ys[k]!;
     }
-    if (firstBoundary < 0) {
-      const line = new Float64Array(2 * (n + 1));
-      for (let k = 0; k < n; k++) {
-        line[2 * k] = xs[k]!;
-        line[2 * k + 1] = ys[k]!;
-      }
-      line[2 * n] = xs[0]!;
-      line[2 * n + 1] = ys[0]!;
-      out.push(line);
-      return;
-    }
-    // Walk once round the ring starting just after a boundary vertex, so no run is split at the seam.
-    let runStart = -1;
-    for (let step = 1; step <= n; step++) {
-      const k = (firstBoundary + step) % n;
-      if (genuine[k]) {
-        if (runStart < 0) runStart = step;
-      } else if (runStart >= 0) {
-        pushRun(xs, ys, n, firstBoundary, runStart, step, out);
-        runStart = -1;
-      }
+    line[2 * n] = xs[0]!;
+    line[2 * n + 1] = ys[0]!;
+    out.push(line);
+    return;
+  }
+  // Walk once round the ring starting just after a boundary vertex, so no run is split at the seam.
+  let runStart = -1;
+  for (let step = 1; step <= n; step++) {
+    const k = (firstBoundary + step) % n;
+    if (genuine[k]) {
+      if (runStart < 0) runStart = step;
+    } else if (runStart >= 0) {
+      pushRun(xs, ys, n, firstBoundary, runStart, step, out);
+      runStart = -1;
     }
   }
 }
