@@ -24,7 +24,8 @@
  *
  * - One pass for all levels. Every cell gets its bucket B = the number of levels <= value (0 for NaN); a cell is above
  *   level k (0-based, levels ascending) exactly when B > k. A square has segments only for the levels k with
- *   min(B) <= k < max(B) of its corners, so squares inside a band between two levels cost four loads and a compare.
+ *   min(B) <= k < max(B) of its corners; a square inside a band between two levels costs two loads (its left corners
+ *   are the last square's right ones) and three comparisons.
  * - Open fragment ends can only lie on the front between visited and unvisited squares: the vertices on the two cell
  *   rows the current square row spans (one array per row parity and level) and the one vertical side between the
  *   current square and the next (one slot per level). Fragments are linked lists in a node pool (Int32Array), so
