@@ -1,22 +1,23 @@
 /**
- * Head and drawdown contours: levels at a round interval, lines traced by d3-contour, GeoJSON out.
+ * Head and drawdown contours: levels at a round interval, lines traced by marching squares (./contourTrace.ts, one
+ * pass over the grid for all levels), GeoJSON out.
  *
- * How inactive cells are kept from making false lines. d3-contour traces, for each level L, the rings that
- * bound the region {value >= L} on the grid of cell centres, treating NaN (inactive) and everything outside
- * the raster as below every level. Those rings are the true isoline plus pieces that run along the edge of
- * the data (inactive cells, raster border). We ask d3-contour for the rings without its smoothing, so every
- * ring vertex still sits on the midpoint between two neighbouring cell centres, and keep a vertex only when
- * both of those cells are active (a genuine crossing of L between two heads); a ring is cut wherever it
- * touches a vertex with an inactive or outside cell. The genuine vertices are then placed by linear
- * interpolation between the two heads, as d3-contour's own smoothing does. Consequence: lines stop up to one
- * cell short of inactive areas and of the raster border, and never trace the outline of a hole.
+ * How inactive cells are kept from making false lines. The tracer gives, for each level L, the rings that bound the
+ * region {value >= L} on the grid of cell centres, treating NaN (inactive) and everything outside the raster as
+ * below every level: the rings d3-contour gives without its smoothing (the tracer piezomap used before; the tests
+ * compare the two line by line). Those rings are the true isoline plus pieces that run along the edge of the data
+ * (inactive cells, raster border). Every ring vertex sits on the midpoint between two neighbouring cell centres; we
+ * keep a vertex only when both of those cells are active (a genuine crossing of L between two heads); a ring is cut
+ * wherever it touches a vertex with an inactive or outside cell. The genuine vertices are then placed by linear
+ * interpolation between the two heads, as d3-contour's own smoothing does. Consequence: lines stop up to one cell
+ * short of inactive areas and of the raster border, and never trace the outline of a hole.
  *
- * Coordinates: d3-contour's unit is one cell and a cell's value sits at its centre, (col + 0.5, row + 0.5);
- * so a point (u, v) in that space maps to x = originX + u * pixelWidth, y = originY + v * pixelHeight.
+ * Coordinates: the tracer's unit is one cell and a cell's value sits at its centre, (col + 0.5, row + 0.5); so a
+ * point (u, v) in that space maps to x = originX + u * pixelWidth, y = originY + v * pixelHeight.
  */
-import { contours as d3Contours } from 'd3-contour';
 import type { Grid } from '../grid.js';
 import { inputError } from '../errors.js';
+import { type TracedRings, traceRings } from './contourTrace.js';
 
 /** A polyline in map coordinates of the raster CRS: [x0, y0, x1, y1, ...]. Closed lines repeat the first point. */
 export type Polyline = Float64Array;
@@ -48,14 +49,15 @@ export interface ContourOptions {
 const ROUND_STEPS = [1, 2, 2.5, 5] as const;
 const MAX_AUTO_LEVELS = 25;
 /**
- * Most levels one contour set may have, whoever asks: ten times the automatic number. Each level costs a pass over
- * the grid and its lines in the GeoJSON; without a bound an interval of 0.001 m wrote 121 MB in 41 s, and 1e-300
- * never ended. A requested interval that gives more is widened (contourField) or refused (contourLevels).
+ * Most levels one contour set may have, whoever asks: ten times the automatic number. Each level costs its lines in
+ * the GeoJSON (and their tracing); without a bound an interval of 0.001 m wrote 121 MB in 41 s (with the tracer of
+ * the time: a pass over the grid per level), and 1e-300 never ended. A requested interval that gives more is widened (contourField) or refused (contourLevels).
  */
 export const MAX_CONTOUR_LEVELS = 10 * MAX_AUTO_LEVELS;
 /**
- * Levels × cells one contour set may trace (each level is a pass of d3-contour over the grid): on large grids the
- * level bound shrinks so that contouring stays a matter of seconds, but never below the automatic 25 levels.
+ * Levels × cells one contour set may trace (a level's lines, and so their tracing and GeoJSON, grow with the grid):
+ * on large grids the level bound shrinks so that contouring stays a matter of seconds, but never below the automatic
+ * 25 levels.
  */
 const MAX_LEVEL_CELLS = 2e8;
 
@@ -214,7 +216,11 @@ export function contourPlan(grid: Grid, values: Float64Array, options: ContourOp
   return { levels, interval, note };
 }
 
-/** The lines of each of `levels` (in the order given), traced as contourField traces them. */
+/**
+ * The lines of each of `levels` (in the order given), traced as contourField traces them. All levels are traced in
+ * one pass over the grid (./contourTrace.ts). A level that is not finite, or lies outside the values' range, gets no
+ * line: no cell is above it, or every vertex of its rings lies next to an inactive or outside cell.
+ */
 export function traceContourLevels(grid: Grid, values: Float64Array, levels: readonly number[]): ContourLevel[] {
   const { nx, ny } = grid;
   if (values.length !== nx * ny) {
@@ -222,21 +228,31 @@ export function traceContourLevels(grid: Grid, values: Float64Array, levels: rea
       hint: 'pass one value per cell, row-major',
     });
   }
-  const range = finiteRange(values);
-  const generator = d3Contours().size([nx, ny]).smooth(false);
-  const array = values as unknown as number[];
-  const result: ContourLevel[] = [];
-  for (const level of levels) {
-    const lines: Polyline[] = [];
-    if (range && level >= range.min && level <= range.max) {
-      const shape = generator.contour(array, level);
-      for (const polygon of shape.coordinates) {
-        for (const ring of polygon) collectGenuineRuns(grid, values, level, ring as number[][], lines);
-      }
+  // Distinct finite levels, ascending (a Set takes -0 and 0 as one: both give the same cells above and the same lines).
+  const distinct = Float64Array.from(new Set(levels.filter((l) => Number.isFinite(l)))).sort();
+  const linesOf: Polyline[][] = [];
+  for (let k = 0; k < distinct.length; k++) linesOf.push([]);
+  const traced = traceRings(grid, values, distinct);
+  // Workspaces for the longest ring: its vertices placed, and which of them are genuine crossings.
+  const xs = new Float64Array(traced.maxLength);
+  const ys = new Float64Array(traced.maxLength);
+  const genuine = new Uint8Array(traced.maxLength);
+  for (let k = 0; k < distinct.length; k++) {
+    for (let q = traced.levelStart[k]!; q < traced.levelStart[k + 1]!; q++) {
+      collectGenuineRuns(grid, values, distinct[k]!, traced, traced.order[q]!, xs, ys, genuine, linesOf[k]!);
     }
-    result.push({ level, lines });
   }
-  return result;
+  const index = new Map<number, number>();
+  for (let k = 0; k < distinct.length; k++) index.set(distinct[k]!, k);
+  const handedOut = new Uint8Array(distinct.length);
+  return levels.map((level) => {
+    const k = index.get(level);
+    if (k === undefined) return { level, lines: [] };
+    // A level asked for twice gets its own copy of the lines.
+    const lines = handedOut[k] ? linesOf[k]!.map((line) => line.slice()) : linesOf[k]!;
+    handedOut[k] = 1;
+    return { level, lines };
+  });
 }
 
 function countText(count: number): string {
@@ -248,21 +264,31 @@ function fmtRange(range: { min: number; max: number }): string {
 }
 
 /**
- * Split one d3-contour ring into runs of genuine crossings and append each run (2+ points) to `out`
- * as a map-coordinate polyline. A ring with no boundary vertex stays one closed line.
+ * Split ring r of a trace into runs of genuine crossings and append each run (2+ points) to `out` as a
+ * map-coordinate polyline. A ring with no boundary vertex stays one closed line.
  */
-function collectGenuineRuns(grid: Grid, values: Float64Array, level: number, ring: number[][], out: Polyline[]): void {
-  // d3 rings repeat the first point at the end; work on the distinct vertices.
-  const n = ring.length - 1;
+function collectGenuineRuns(
+  grid: Grid,
+  values: Float64Array,
+  level: number,
+  traced: TracedRings,
+  r: number,
+  xs: Float64Array,
+  ys: Float64Array,
+  genuine: Uint8Array,
+  out: Polyline[],
+): void {
+  const n = traced.length[r]!;
   if (n < 2) return;
-  const xs = new Float64Array(n);
-  const ys = new Float64Array(n);
-  const genuine = new Uint8Array(n);
+  const { nodeCode, nodeNext } = traced;
   let firstBoundary = -1;
-  for (let k = 0; k < n; k++) {
-    const point = ring[k]!;
-    if (placeVertex(grid, values, level, point[0]!, point[1]!, xs, ys, k)) genuine[k] = 1;
-    else if (firstBoundary < 0) firstBoundary = k;
+  let k = 0;
+  for (let node = traced.head[r]!; node >= 0; node = nodeNext[node]!, k++) {
+    if (placeVertex(grid, values, level, nodeCode[node]!, xs, ys, k)) genuine[k] = 1;
+    else {
+      genuine[k] = 0;
+      if (firstBoundary < 0) firstBoundary = k;
+    }
   }
   if (firstBoundary < 0) {
     const line = new Float64Array(2 * (n + 1));
@@ -301,39 +327,44 @@ function pushRun(xs: Float64Array, ys: Float64Array, n: number, origin: number, 
 }
 
 /**
- * Place a ring vertex given in d3-contour's cell space. Vertices sit on the midpoint between two cell
- * centres: (X, r + 0.5) between cells (r, X-1) and (r, X); (c + 0.5, Y) between cells (Y-1, c) and (Y, c).
- * Returns false (boundary vertex) when either cell is outside the raster or inactive.
+ * Place ring vertex `code` (./contourTrace.ts) in map coordinates at xs[k], ys[k]. Vertices sit on the midpoint
+ * between two cell centres: (X, r + 0.5) between cells (r, X-1) and (r, X); (c + 0.5, Y) between cells (Y-1, c) and
+ * (Y, c); the level's crossing is placed by linear interpolation between the two heads. Returns false (boundary
+ * vertex) when either cell is outside the raster or inactive.
  */
 function placeVertex(
   grid: Grid,
   values: Float64Array,
   level: number,
-  u: number,
-  v: number,
+  code: number,
   xs: Float64Array,
   ys: Float64Array,
   k: number,
 ): boolean {
   const { nx, ny, transform: t } = grid;
-  let a: number;
-  let b: number;
-  let uu = u;
-  let vv = v;
-  if (Number.isInteger(u)) {
-    const row = Math.floor(v);
-    if (u <= 0 || u >= nx || row < 0 || row >= ny) return false;
-    a = values[row * nx + u - 1]!;
-    b = values[row * nx + u]!;
+  const w = nx + 1;
+  const hCount = ny * w;
+  let uu: number;
+  let vv: number;
+  if (code < hCount) {
+    const row = (code / w) | 0;
+    const X = code - row * w;
+    if (X <= 0 || X >= nx) return false;
+    const a = values[row * nx + X - 1]!;
+    const b = values[row * nx + X]!;
     if (!Number.isFinite(a) || !Number.isFinite(b)) return false;
-    uu = u - 0.5 + crossing(a, b, level);
+    uu = X - 0.5 + crossing(a, b, level);
+    vv = row + 0.5;
   } else {
-    const col = Math.floor(u);
-    if (v <= 0 || v >= ny || col < 0 || col >= nx) return false;
-    a = values[(v - 1) * nx + col]!;
-    b = values[v * nx + col]!;
+    const v = code - hCount;
+    const Y = (v / nx) | 0;
+    const col = v - Y * nx;
+    if (Y <= 0 || Y >= ny) return false;
+    const a = values[(Y - 1) * nx + col]!;
+    const b = values[Y * nx + col]!;
     if (!Number.isFinite(a) || !Number.isFinite(b)) return false;
-    vv = v - 0.5 + crossing(a, b, level);
+    uu = col + 0.5;
+    vv = Y - 0.5 + crossing(a, b, level);
   }
   xs[k] = t[0] + uu * t[1];
   ys[k] = t[3] + vv * t[5];
