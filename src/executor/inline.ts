@@ -8,13 +8,16 @@ import type { Executor, LinearAnswer, LinearSolve, OperatorBands, SolverChoice, 
 
 const now = () => performance.now() / 1000;
 
-/** Set up a solver for `operator`: `auto` picks a method from the operator; returns the set-up time. */
+/**
+ * Set up a solver for `operator`: `auto` picks a method from the operator (unless the caller has just done so and
+ * passes the pick as `method`); returns the set-up time.
+ */
 export function setUpSolver(
   operator: StencilOperator,
   choice: SolverChoice,
   team: Team | null = null,
+  method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method,
 ): { solver: Solver; setupSeconds: number } {
-  const method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method;
   const t0 = now();
   const config: SolverConfig = choice.relaxation === undefined ? {} : { relaxation: choice.relaxation };
   if (team) config.team = team;
@@ -23,26 +26,42 @@ export function setUpSolver(
 }
 
 /**
- * The thread team a session on `operator` uses: started once when the choice asks for more than one thread on a grid
- * this size and the method shares its work (pcg-multigrid), kept across set-ups and solves, closed with the session.
+ * The thread team a session on `operator` uses and the method: the team is started once when the choice asks for more
+ * than one thread on a grid this size and the method shares its work (pcg-multigrid), kept across set-ups and solves,
+ * closed with the session. For `auto` the helpers are launched before the method is picked, so that they start while
+ * thread 0 measures the operator (weakBlockShare, one pass over the bands); when the pick does not use them
+ * (pcg-pairwise), they are ended again without having run a kernel.
  */
-function startTeam(operator: StencilOperator, choice: SolverChoice, early: Team | null): Team | null {
-  const method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method;
+function startTeam(operator: StencilOperator, choice: SolverChoice, early: Team | null): { team: Team | null; method: string } {
   // below PARALLEL_MIN_CELLS no level would be shared: no helper threads at all
-  const threads = !methodUsesThreads(method) || operator.n < PARALLEL_MIN_CELLS ? 1 : resolveThreads(choice.threads, operator.n);
-  if (early && early.size === threads) return early;
-  void early?.close();
-  return Team.start(threads);
+  const mayShare = (choice.method === 'auto' || methodUsesThreads(choice.method)) && operator.n >= PARALLEL_MIN_CELLS;
+  const threads = mayShare ? resolveThreads(choice.threads, operator.n) : 1;
+  // helpers started ahead (prestartTeam) serve when they are as many as wanted; otherwise they are ended
+  let team: Team | null;
+  if (early && early.size === threads) team = early;
+  else {
+    void early?.close();
+    team = Team.start(threads);
+  }
+  const method = choice.method === 'auto' ? chooseAutoMethod(operator) : choice.method;
+  if (team && !methodUsesThreads(method)) {
+    void team.close();
+    return { team: null, method };
+  }
+  return { team, method };
 }
 
 /**
- * The team a session on a grid of `cells` cells with this choice will most likely want, started before its operator
- * exists (so before `auto` can choose: a method that shares no work closes it again). Null for one thread.
+ * The team a session on a grid of `cells` cells with this choice will most likely want, started and ready before its
+ * operator exists (so before `auto` can choose: a method that shares no work closes it again). Null for one thread.
  */
 export function prestartTeam(cells: number, choice: SolverChoice): Team | null {
   if (choice.method !== 'auto' && !methodUsesThreads(choice.method)) return null;
   if (cells < PARALLEL_MIN_CELLS) return null;
-  return Team.start(resolveThreads(choice.threads, cells));
+  const team = Team.start(resolveThreads(choice.threads, cells));
+  // the kernels compiled and the helpers running before the operator arrives
+  team?.ready();
+  return team;
 }
 
 /** The operator with its bands in shared memory (copied there once when they are not), for a thread team. */
@@ -80,9 +99,10 @@ export class InlineSession implements SolverSession {
     early: Team | null = null,
   ) {
     const t0 = now();
-    this.team = startTeam(operator, choice, early);
+    const { team, method } = startTeam(operator, choice, early);
+    this.team = team;
     this.operator = this.team ? sharedOperator(operator) : operator;
-    ({ solver: this.solver } = setUpSolver(this.operator, choice, this.team));
+    ({ solver: this.solver } = setUpSolver(this.operator, choice, this.team, method));
     // the helper threads' start counts as set-up
     this.setupSeconds = now() - t0;
   }

@@ -21,6 +21,8 @@ import {
   PARTIALS_PER_THREAD,
   runKernel,
   SCALARS,
+  SPIN_MICROS,
+  SPIN_MICROS_MIN,
   type TeamArray,
   type TeamContext,
   warmUpAlone,
@@ -39,8 +41,12 @@ export const AUTO_THREADS_MIN_CELLS = 1_000_000;
 /**
  * Fewest cells of a multigrid level (or of the grid, for the CG vectors) on which the team shares the work; smaller
  * levels are run by thread 0 alone while the helpers wait (a kernel there is shorter than the barriers around it).
+ * Measured with 2 threads (wall time of the solve, best of 5, load average about 3.5 on 2 cores): at 1024^2 16 384
+ * gave 1.19-1.23 s, 32 768 1.27-1.31 s (its serial levels took 120-145 ms of thread 0's time, 16 384's 52-55 ms) and
+ * 4 096 1.33-1.42 s (the smallest levels' kernels are then shorter than their barriers on a busy machine); at 2048^2
+ * the serial part fell from about 220 ms to 60 ms.
  */
-export const PARALLEL_MIN_CELLS = 32_768;
+export const PARALLEL_MIN_CELLS = 16_384;
 
 /** A thread-count setting: a whole number >= 1, or 'auto'. */
 export type ThreadSetting = number | 'auto';
@@ -94,16 +100,19 @@ export class Team {
   private pending: TeamArray[] = [];
   private resetPending = false;
   private closed = false;
+  /** Set once thread 0 has waited for the helpers to start (before the first kernel). */
+  private started = false;
   /** Kernels run since the team started (for the statistics). */
   kernels = 0;
 
-  /** Starts `size - 1` helper threads and waits until they run. */
+  /** Launches `size - 1` helper threads; the first kernel waits until they run. */
   constructor(size: number) {
     if (!Number.isInteger(size) || size < 1) throw new PiezomapError('internal', `a thread team needs at least 1 thread, got ${size}`);
     this.size = size;
     this.control = new Int32Array(new SharedArrayBuffer(4 * CONTROL.length));
     this.scalars = new Float64Array(new SharedArrayBuffer(8 * (SCALARS.partials + size * PARTIALS_PER_THREAD)));
     this.ctx = { size, control: this.control, scalars: this.scalars, arrays: [] };
+    this.control[CONTROL.spinMicros] = size <= availableParallelism() ? SPIN_MICROS : SPIN_MICROS_MIN;
     for (let t = 1; t < size; t++) {
       const { port1, port2 } = new MessageChannel();
       const worker = new Worker(WORKER_URL, {
@@ -115,7 +124,16 @@ export class Team {
       this.workers.push(worker);
       this.ports.push(port1);
     }
-    // thread 0 compiles the kernels while the helpers start and do the same
+  }
+
+  /**
+   * Before the first kernel: thread 0 compiles the kernels (the helpers do the same as they start) and waits until
+   * every helper runs. The constructor only launches the helpers, so that thread 0 can do serial set-up work (the
+   * `auto` choice, the operator's scale) while they start.
+   */
+  private awaitStart(): void {
+    this.started = true;
+    const size = this.size;
     warmUpAlone();
     const deadline = performance.now() + START_TIMEOUT_MS;
     for (;;) {
@@ -127,6 +145,14 @@ export class Team {
       }
       Atomics.wait(this.control, CONTROL.started, started, 100);
     }
+  }
+
+  /**
+   * Compile the kernels and wait for the helpers now rather than before the first kernel: for a caller with time to
+   * spare (a solve worker whose team was started ahead while the operator is being assembled).
+   */
+  ready(): void {
+    if (!this.started && !this.closed) this.awaitStart();
   }
 
   /** A team of `threads` threads, or null when one thread is asked for or the helper script is not there. */
@@ -161,6 +187,7 @@ export class Team {
    */
   run(op: number, ints: ArrayLike<number>, floats: ArrayLike<number> = []): void {
     if (this.closed) throw new PiezomapError('internal', 'thread team: used after close');
+    if (!this.started) this.awaitStart();
     if (this.pending.length > 0 || this.resetPending) this.sendTable();
     const control = this.control;
     for (let i = 0; i < ints.length; i++) control[CONTROL.args + i] = ints[i]!;

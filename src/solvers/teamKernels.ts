@@ -25,6 +25,8 @@ export const CONTROL = {
   failed: 3,
   /** Helpers that have started (start-up handshake). */
   started: 4,
+  /** How long a thread waiting at a barrier spins before it sleeps, in microseconds (see SPIN_MICROS). */
+  spinMicros: 5,
   /** First integer argument of the kernel. */
   args: 8,
   /** Slots in all. */
@@ -58,11 +60,25 @@ export const OP = {
 } as const;
 
 /**
- * Spins before a waiting thread sleeps in Atomics.wait: long enough to cover the gap between two kernels of a
- * multigrid cycle on a fine level (a futex wake costs tens of microseconds), short enough not to steal a busy core for
- * long while thread 0 works alone on a coarse level.
+ * How long a waiting thread spins at most before it sleeps in Atomics.wait, in microseconds (CONTROL.spinMicros, set by
+ * thread 0 for the team). With no more threads than cores: long enough to cover the gaps in a solve where thread 0
+ * works alone (a coarse level's cycle, the coarsest direct solve: up to a millisecond or two), since waking a sleeping
+ * thread costs far more than spinning on a virtual machine whose idle core has halted (measured at 2048^2 with 2
+ * threads: spinning about 75 µs, the helper slept through 600 ms of thread 0's serial work and the solve took
+ * 2.7-2.9 s; spinning up to 2.7 ms, 2.2-2.3 s). With more threads than cores a spinning thread would keep a late one
+ * from running at every barrier: then SPIN_MICROS_MIN.
  */
-const SPINS = 4000;
+export const SPIN_MICROS = 2000;
+/** The shortest spin (about the earlier fixed 4 000 loads). */
+export const SPIN_MICROS_MIN = 75;
+/** Loads between two looks at the clock while spinning (about 5 µs). */
+const SPINS_PER_CHECK = 256;
+/**
+ * This thread's current spin, adapted between SPIN_MICROS_MIN and the team's most: halved when a spin ran out (the
+ * others were later than it: a long serial stretch, or a thread that waits for a core on a busy machine, where
+ * spinning on would only take a core from it), doubled when a wait ended in the second half of the spin.
+ */
+let spinBudget = SPIN_MICROS;
 
 /** What a thread needs to run kernels: the team's shared blocks and its table of shared arrays. */
 export interface TeamContext {
@@ -81,7 +97,22 @@ export function barrier(control: Int32Array, size: number): void {
     Atomics.notify(control, CONTROL.generation);
     return;
   }
-  for (let i = 0; i < SPINS; i++) if (Atomics.load(control, CONTROL.generation) !== generation) return;
+  for (let i = 0; i < SPINS_PER_CHECK; i++) if (Atomics.load(control, CONTROL.generation) !== generation) return;
+  const most = control[CONTROL.spinMicros]!;
+  const budget = Math.min(spinBudget, most);
+  const start = performance.now();
+  const until = start + budget / 1000;
+  let now = start;
+  do {
+    for (let i = 0; i < SPINS_PER_CHECK; i++) {
+      if (Atomics.load(control, CONTROL.generation) !== generation) {
+        if ((now - start) * 2000 > budget) spinBudget = Math.min(most, 2 * budget);
+        return;
+      }
+    }
+    now = performance.now();
+  } while (now < until);
+  spinBudget = Math.max(SPIN_MICROS_MIN, budget / 2);
   while (Atomics.load(control, CONTROL.generation) === generation) Atomics.wait(control, CONTROL.generation, generation);
 }
 

@@ -230,6 +230,41 @@ describe('solver session with threads', () => {
     await Promise.all([session.close(), fresh.close(), kept.close(), rebuilt.close()]);
   });
 
+  it('auto launches the helpers while it measures the operator and ends them when it picks pcg-pairwise', async () => {
+    // a checkerboard of 5 x 5 blocks with K 1 and 1e-6 (share of weakly tied cells above ROUGH_SHARE, as in
+    // pairwise.test.ts): auto takes pcg-pairwise, which runs on one thread; 130 x 130 cells, above the size from which
+    // a team is started at all, so the helpers are launched before the pick
+    const n = 130;
+    const k = new Float64Array(n * n);
+    for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) k[i * n + j] = (Math.floor(i / 5) + Math.floor(j / 5)) % 2 === 0 ? 1 : 1e-6;
+    const fixedHead = new Float64Array(n * n).fill(NaN);
+    for (let i = 0; i < n; i++) {
+      fixedHead[i * n] = 10;
+      fixedHead[i * n + n - 1] = 0;
+    }
+    const rough = buildSystem({
+      nx: n,
+      ny: n,
+      dx: 10,
+      dy: 10,
+      k,
+      thickness: 10,
+      anisotropy: 1,
+      fixedHead,
+      source: new Float64Array(n * n),
+    });
+    const before = osThreads();
+    const session = new InlineSession(inShared(rough.op), { method: 'auto', threads: 2 });
+    expect(session.method).toBe('pcg-pairwise');
+    expect(session.threads).toBe(1);
+    const answer = session.solveNow({ rhs: rough.b, x: new Float64Array(rough.op.n), tolerance, maxIterations: 500 });
+    expect(answer.stats.stopReason).toBe('converged');
+    // the launched helper is gone without the session being closed
+    for (let i = 0; i < 100 && osThreads() > before; i++) await sleep(50);
+    expect(osThreads()).toBe(before);
+    await session.close();
+  });
+
   it('closing the session ends its helper threads', async () => {
     const before = osThreads();
     const session = new InlineSession(op, { method: 'pcg-multigrid', threads: 3 });
