@@ -130,16 +130,23 @@ function writersModule(): Promise<typeof import('../output/solveFiles.js')> {
   return loading;
 }
 
-async function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
-  // The result-writing threads start first: they load their modules on the other cores while this one loads and solves.
+/**
+ * Run `work` with the threads a solving command uses, started first: the result-writing pool and the first solve
+ * worker load their modules on the other cores while this one loads the input; both are ended afterwards.
+ */
+async function withRunThreads(work: (pool: WritePool | null, solveExecutor: Executor) => Promise<number>): Promise<number> {
   const pool = startWritePool();
   const solveExecutor = await startExecutor();
   try {
-    return await solveAndWrite(scenario, outDir, flags, io, pool, solveExecutor);
+    return await work(pool, solveExecutor);
   } finally {
     solveExecutor.close();
     void pool?.close();
   }
+}
+
+function runSolve(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  return withRunThreads((pool, solveExecutor) => solveAndWrite(scenario, outDir, flags, io, pool, solveExecutor));
 }
 
 async function solveAndWrite(
@@ -189,15 +196,8 @@ async function solveAndWrite(
   return 0;
 }
 
-async function runCompare(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
-  const pool = startWritePool();
-  const solveExecutor = await startExecutor();
-  try {
-    return await compareAndWrite(scenario, outDir, flags, io, pool, solveExecutor);
-  } finally {
-    solveExecutor.close();
-    void pool?.close();
-  }
+function runCompare(scenario: string, outDir: string, flags: SolveFlags, io: CliIO): Promise<number> {
+  return withRunThreads((pool, solveExecutor) => compareAndWrite(scenario, outDir, flags, io, pool, solveExecutor));
 }
 
 async function compareAndWrite(
