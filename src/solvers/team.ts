@@ -147,14 +147,6 @@ export class Team {
     }
   }
 
-  /**
-   * Compile the kernels and wait for the helpers now rather than before the first kernel: for a caller with time to
-   * spare (a solve worker whose team was started ahead while the operator is being assembled).
-   */
-  ready(): void {
-    if (!this.started && !this.closed) this.awaitStart();
-  }
-
   /** A team of `threads` threads, or null when one thread is asked for or the helper script is not there. */
   static start(threads: number): Team | null {
     if (threads < 2 || !teamAvailable()) return null;
