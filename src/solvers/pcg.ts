@@ -86,9 +86,7 @@ export class PcgSolver implements Solver {
       const pq = applyDot(op, p, q);
       if (!(pq > 0) || !(rz > 0)) {
         stop = 'breakdown';
-        notes.push(
-          `curvature p·Ap = ${pq.toExponential(3)} or r·z = ${rz.toExponential(3)} is not positive: operator or preconditioner not positive definite`,
-        );
+        notes.push(breakdownNote(pq, rz));
         break;
       }
       const alpha = rz / pq;
@@ -202,9 +200,7 @@ export class PcgSolver implements Solver {
       const pq = team.sum(0);
       if (!(pq > 0) || !(rz > 0)) {
         stop = 'breakdown';
-        notes.push(
-          `curvature p·Ap = ${pq.toExponential(3)} or r·z = ${rz.toExponential(3)} is not positive: operator or preconditioner not positive definite`,
-        );
+        notes.push(breakdownNote(pq, rz));
         break;
       }
       const alpha = rz / pq;
@@ -298,4 +294,9 @@ function shareWorkspace(
   const b = sharedAlloc.f64(op.n);
   const x = sharedAlloc.f64(op.n);
   return { ...ids, b, x, bId: team.id(b), xId: team.id(x), fusedDots: null };
+}
+
+/** Why CG stopped when a curvature p·Ap or r·z is not positive. */
+function breakdownNote(pq: number, rz: number): string {
+  return `curvature p·Ap = ${pq.toExponential(3)} or r·z = ${rz.toExponential(3)} is not positive: operator or preconditioner not positive definite`;
 }
